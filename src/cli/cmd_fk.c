@@ -1,0 +1,185 @@
+/* cmd_fk.c: `twistfit fk MODEL [JOINTS.csv]`: forward kinematics of a model
+ * at the joint rows of a file: flange pose and target positions, CSV. */
+#define _GNU_SOURCE
+#include "config.h"
+#include "cli.h"
+
+#include <getopt.h>
+#include <stdlib.h>
+#include <string.h>
+
+static const char fk_help[] =
+  "Usage: twistfit fk [OPTIONS] MODEL [JOINTS.csv]\n"
+  "\n"
+  "Forward kinematics: for each row of JOINTS.csv (a header naming the model's\n"
+  "joints, optionally a 'pose' id column; see twistfit-data(5)) print the flange\n"
+  "pose in the robot base frame and the position of every target with a known\n"
+  "offset, as CSV. Without JOINTS.csv, the home configuration (all joints 0).\n"
+  "Positions are in the model's length unit (or --output-length-unit), the\n"
+  "orientation as a unit quaternion w x y z.\n"
+  "\n"
+  "Options:\n"
+  "  -o, --output FILE          write the CSV to FILE (atomically) instead of stdout\n"
+  "  -f, --force                replace FILE when it exists\n"
+  "      --length-unit U        unit of prismatic joint values in JOINTS.csv\n"
+  "                             (mm, m, um, in; default: as the file declares, else mm)\n"
+  "      --angle-unit U         unit of revolute joint values (deg, rad, mrad;\n"
+  "                             default: as the file declares, else deg)\n"
+  "      --output-length-unit U unit of the printed positions (default: the model's)\n"
+  "  -h, --help                 show this help\n";
+
+static void write_header(cli_csv *csv, const twf_model *m, const char *lu)
+{
+  char name[TWF_NAME_MAX + 32];
+  static const char *axes[3] = { "x", "y", "z" };
+  size_t k;
+  int a;
+  cli_csv_text(csv, "pose");
+  for (a = 0; a < 3; a++) {
+    snprintf(name, sizeof name, "flange_%s_%s", axes[a], lu);
+    cli_csv_text(csv, name);
+  }
+  cli_csv_text(csv, "flange_qw");
+  cli_csv_text(csv, "flange_qx");
+  cli_csv_text(csv, "flange_qy");
+  cli_csv_text(csv, "flange_qz");
+  for (k = 0; k < m->n_targets; k++) {
+    if (!m->targets[k].offset_known)
+      continue;
+    for (a = 0; a < 3; a++) {
+      snprintf(name, sizeof name, "%s_%s_%s", m->targets[k].name, axes[a], lu);
+      cli_csv_text(csv, name);
+    }
+  }
+  cli_csv_end_row(csv);
+}
+
+static void write_row(cli_csv *csv, const twf_model *m, const char *id,
+                      const double *q, double per_unit)
+{
+  twf_pose flange;
+  double quat[4], y[3];
+  size_t k;
+  int a;
+  twf_model_fk(m, q, NULL, &flange);
+  twf_rot_to_quat(flange.R, quat);
+  cli_csv_text(csv, id);
+  for (a = 0; a < 3; a++)
+    cli_csv_number(csv, flange.p[a] / per_unit);
+  for (a = 0; a < 4; a++)
+    cli_csv_number(csv, quat[a]);
+  for (k = 0; k < m->n_targets; k++) {
+    if (!m->targets[k].offset_known)
+      continue;
+    twf_pose_apply(&flange, m->targets[k].offset, y);
+    for (a = 0; a < 3; a++)
+      cli_csv_number(csv, y[a] / per_unit);
+  }
+  cli_csv_end_row(csv);
+}
+
+static int run_fk(int argc, char **argv)
+{
+  static const struct option longopts[] = {
+    { "output", required_argument, NULL, 'o' },
+    { "force", no_argument, NULL, 'f' },
+    { "length-unit", required_argument, NULL, 'L' },
+    { "angle-unit", required_argument, NULL, 'A' },
+    { "output-length-unit", required_argument, NULL, 'U' },
+    { "help", no_argument, NULL, 'h' },
+    { NULL, 0, NULL, 0 }
+  };
+  const char *output = NULL;
+  int force = 0, opt, status;
+  twf_campaign_options copt = twf_campaign_default_options();
+  int have_out_unit = 0;
+  twf_length_unit out_unit = TWF_LENGTH_MM;
+  twf_model *model = NULL;
+  twf_campaign *joints = NULL;
+  twf_warnings warnings;
+  twf_error err;
+  cli_output out;
+  cli_csv csv;
+  const char *inputs[3] = { NULL, NULL, NULL };
+  size_t i;
+
+  optind = 0;
+  while ((opt = getopt_long(argc, argv, "+o:fh", longopts, NULL)) != -1) {
+    switch (opt) {
+    case 'o': output = optarg; break;
+    case 'f': force = 1; break;
+    case 'L':
+      if ((status = cli_parse_length_unit("fk", optarg, &copt.length_unit)) != 0)
+        return status;
+      copt.length_from_caller = 1;
+      break;
+    case 'A':
+      if ((status = cli_parse_angle_unit("fk", optarg, &copt.angle_unit)) != 0)
+        return status;
+      copt.angle_from_caller = 1;
+      break;
+    case 'U':
+      if ((status = cli_parse_length_unit("fk", optarg, &out_unit)) != 0)
+        return status;
+      have_out_unit = 1;
+      break;
+    case 'h': fputs(fk_help, stdout); return TWF_EXIT_OK;
+    default: return cli_usage_error("fk", "invalid option");
+    }
+  }
+  if (argc - optind < 1 || argc - optind > 2)
+    return cli_usage_error("fk", "expected MODEL and an optional JOINTS.csv");
+
+  twf_warnings_init(&warnings);
+  twf_error_clear(&err);
+  inputs[0] = argv[optind];
+  inputs[1] = argc - optind == 2 ? argv[optind + 1] : NULL;
+  model = twf_model_read(argv[optind], &warnings, &err);
+  if (model == NULL) {
+    cli_print_warnings(&warnings);
+    twf_warnings_clear(&warnings);
+    return cli_report_error(&err);
+  }
+  if (inputs[1] != NULL) {
+    joints = twf_campaign_read_joints(inputs[1], model, &copt, &warnings, &err);
+    if (joints == NULL) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+  }
+  cli_print_warnings(&warnings);
+  if (!have_out_unit)
+    out_unit = model->length_unit;
+
+  if ((status = cli_output_open(&out, output, force, inputs, &err)) != 0) {
+    cli_report_error(&err);
+    goto done;
+  }
+  cli_csv_init(&csv, out.fp);
+  write_header(&csv, model, twf_length_unit_name(out_unit));
+  if (joints == NULL) {
+    double *zero = calloc(model->n_joints ? model->n_joints : 1, sizeof *zero);
+    if (zero == NULL) {
+      cli_output_abort(&out);
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    write_row(&csv, model, "home", zero, twf_length_unit_si(out_unit));
+    free(zero);
+  } else {
+    for (i = 0; i < joints->n_poses; i++)
+      write_row(&csv, model, joints->pose_ids[i], joints->q + i * model->n_joints,
+                twf_length_unit_si(out_unit));
+  }
+  status = cli_output_commit(&out);
+
+done:
+  twf_campaign_free(joints);
+  twf_model_free(model);
+  twf_warnings_clear(&warnings);
+  return status;
+}
+
+const cli_command cli_cmd_fk = {
+  "fk", run_fk, "forward kinematics of a model at joint values (CSV)", fk_help
+};

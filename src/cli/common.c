@@ -1,0 +1,211 @@
+/* common.c: error printing, exit statuses, atomic output files and option
+ * value parsing shared by the commands. */
+#include "config.h"
+#include "cli.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+int cli_exit_status(twf_status st)
+{
+  switch (st) {
+  case TWF_OK: return TWF_EXIT_OK;
+  case TWF_ERR_NOMEM: return TWF_EXIT_INTERNAL;
+  case TWF_ERR_IO: return TWF_EXIT_IO;
+  case TWF_ERR_INVALID: return TWF_EXIT_USAGE;
+  case TWF_ERR_DEGENERATE:
+  case TWF_ERR_SINGULAR:
+  case TWF_ERR_DIVERGED: return TWF_EXIT_COMPUTE;
+  case TWF_ERR_SYNTAX:
+  case TWF_ERR_VALUE:
+  case TWF_ERR_MISSING:
+  case TWF_ERR_DUPLICATE:
+  case TWF_ERR_UNKNOWN:
+  case TWF_ERR_UNITS:
+  case TWF_ERR_LIMIT: return TWF_EXIT_INPUT;
+  }
+  return TWF_EXIT_INTERNAL;
+}
+
+static void print_location(FILE *fp, const char *file, long line, long column)
+{
+  if (file != NULL && file[0] != '\0') {
+    fprintf(fp, "%s:", file);
+    if (line > 0) {
+      fprintf(fp, "%ld:", line);
+      if (column > 0)
+        fprintf(fp, "%ld:", column);
+    }
+    fputc(' ', fp);
+  }
+}
+
+int cli_report_error(const twf_error *err)
+{
+  fputs("twistfit: error: ", stderr);
+  print_location(stderr, err->file, err->line, err->column);
+  fprintf(stderr, "%s\n", err->message[0] ? err->message : twf_strerror(err->status));
+  if (err->hint[0] != '\0')
+    fprintf(stderr, "twistfit: hint: %s\n", err->hint);
+  return cli_exit_status(err->status);
+}
+
+int cli_usage_error(const char *command, const char *fmt, ...)
+{
+  va_list ap;
+  fputs("twistfit: error: ", stderr);
+  va_start(ap, fmt);
+  vfprintf(stderr, fmt, ap);
+  va_end(ap);
+  fprintf(stderr, "\ntwistfit: hint: run 'twistfit help %s'\n", command);
+  return TWF_EXIT_USAGE;
+}
+
+void cli_print_warnings(const twf_warnings *w)
+{
+  size_t i;
+  if (w == NULL || cli_verbosity == 0)
+    return;
+  for (i = 0; i < w->count; i++) {
+    fputs("twistfit: warning: ", stderr);
+    print_location(stderr, w->items[i].file, w->items[i].line, w->items[i].column);
+    fprintf(stderr, "%s\n", w->items[i].message);
+  }
+}
+
+static int same_file(const char *a, const char *b)
+{
+  struct stat sa, sb;
+  if (stat(a, &sa) != 0 || stat(b, &sb) != 0)
+    return 0;
+  return sa.st_dev == sb.st_dev && sa.st_ino == sb.st_ino;
+}
+
+int cli_output_open(cli_output *out, const char *path, int force,
+                    const char *const *inputs, twf_error *err)
+{
+  size_t n;
+  int fd;
+  memset(out, 0, sizeof *out);
+  if (path == NULL || strcmp(path, "-") == 0) {
+    out->fp = stdout;
+    return TWF_EXIT_OK;
+  }
+  for (; inputs != NULL && *inputs != NULL; inputs++)
+    if (same_file(path, *inputs)) {
+      twf_error_set(err, TWF_ERR_IO, path, 0, 0, "choose another output name",
+                    "refusing to write over the input file '%s'", *inputs);
+      return TWF_EXIT_IO;
+    }
+  if (!force && access(path, F_OK) == 0) {
+    twf_error_set(err, TWF_ERR_IO, path, 0, 0,
+                  "choose another name, or pass --force to replace it",
+                  "output file already exists");
+    return TWF_EXIT_IO;
+  }
+  n = strlen(path);
+  out->path = strdup(path);
+  out->tmp_path = malloc(n + 16);
+  if (out->path == NULL || out->tmp_path == NULL) {
+    free(out->path);
+    free(out->tmp_path);
+    memset(out, 0, sizeof *out);
+    twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    return TWF_EXIT_INTERNAL;
+  }
+  snprintf(out->tmp_path, n + 16, "%s.tmp.XXXXXX", path);
+  fd = mkstemp(out->tmp_path);
+  if (fd < 0 || (out->fp = fdopen(fd, "w")) == NULL) {
+    twf_error_set(err, TWF_ERR_IO, path, 0, 0,
+                  "check that the folder exists and is writable",
+                  "cannot create a temporary file beside the output: %s", strerror(errno));
+    if (fd >= 0) {
+      close(fd);
+      unlink(out->tmp_path);
+    }
+    free(out->path);
+    free(out->tmp_path);
+    memset(out, 0, sizeof *out);
+    return TWF_EXIT_IO;
+  }
+  return TWF_EXIT_OK;
+}
+
+int cli_output_commit(cli_output *out)
+{
+  twf_error err;
+  int bad;
+  if (out->fp == NULL)
+    return TWF_EXIT_OK;
+  if (out->path == NULL) {
+    bad = fflush(out->fp) != 0 || ferror(out->fp);
+    out->fp = NULL;
+    if (bad) {
+      twf_error_set(&err, TWF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+      return cli_report_error(&err);
+    }
+    return TWF_EXIT_OK;
+  }
+  bad = ferror(out->fp);
+  if (fclose(out->fp) != 0)
+    bad = 1;
+  out->fp = NULL;
+  if (bad || rename(out->tmp_path, out->path) != 0) {
+    twf_error_set(&err, TWF_ERR_IO, out->path, 0, 0, "check free space and permissions",
+                  "cannot write the output file: %s", strerror(errno));
+    unlink(out->tmp_path);
+    free(out->path);
+    free(out->tmp_path);
+    out->path = out->tmp_path = NULL;
+    return cli_report_error(&err);
+  }
+  free(out->path);
+  free(out->tmp_path);
+  out->path = out->tmp_path = NULL;
+  return TWF_EXIT_OK;
+}
+
+void cli_output_abort(cli_output *out)
+{
+  if (out->path != NULL) {
+    if (out->fp != NULL)
+      fclose(out->fp);
+    unlink(out->tmp_path);
+    free(out->path);
+    free(out->tmp_path);
+  }
+  memset(out, 0, sizeof *out);
+}
+
+int cli_parse_length_unit(const char *command, const char *value, twf_length_unit *u)
+{
+  if (twf_length_unit_parse(value, u) != TWF_OK)
+    return cli_usage_error(command, "unknown length unit '%s' (use mm, m, um or in)", value);
+  return TWF_EXIT_OK;
+}
+
+int cli_parse_angle_unit(const char *command, const char *value, twf_angle_unit *u)
+{
+  if (twf_angle_unit_parse(value, u) != TWF_OK)
+    return cli_usage_error(command, "unknown angle unit '%s' (use deg, rad or mrad)", value);
+  return TWF_EXIT_OK;
+}
+
+int cli_parse_double(const char *text, double *out)
+{
+  char *end;
+  double v;
+  if (text == NULL || *text == '\0')
+    return -1;
+  errno = 0;
+  v = strtod(text, &end);
+  if (*end != '\0' || errno == ERANGE || !isfinite(v))
+    return -1;
+  *out = v;
+  return 0;
+}

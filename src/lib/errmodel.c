@@ -1,0 +1,426 @@
+/* errmodel.c: the calibration parameters of a PoE model and the exact
+ * first-order effect of each on one measurement (the adjoint error model,
+ * calibration-model.md "Error parameters"; Okamura and Park 1996, He, Zhao,
+ * Yang and Yang 2010, Li, Wu, Loewe and others 2016).
+ *
+ * Each parameter is a small perturbation of the current model; its effect
+ * on the flange is a spatial twist in the tracker frame. One pose is
+ * evaluated at a time: the prefixes and twists cost O(n p), and every target
+ * measured at that pose reuses them, so assembling a campaign is linear in
+ * the number of measurements. */
+#include "internal.h"
+
+#include <stdlib.h>
+
+struct twf_errmodel {
+  size_t n_joints, n_targets, n_params;
+  twf_param *params;
+  double *scale;      /* column scale per parameter */
+  double (*u1)[3];    /* axis-error directions per joint */
+  double (*u2)[3];
+  double reach;
+  /* workspace of the evaluated pose */
+  twf_pose *prefix;   /* n_joints + 1: B P_i, base included */
+  twf_pose flange;    /* B P_n M */
+  double *twists;     /* 6 x n_params, column j at twists[6 j] */
+  double *axis_step;  /* 6 x n_joints, fold workspace */
+  const double *q;
+};
+
+static const char *const group_names[TWF_GROUP_COUNT] = {
+  "base", "targets", "offsets", "home", "shifts", "tilts", "scale"
+};
+
+const char *twf_group_name(twf_group g)
+{
+  return (unsigned)g < TWF_GROUP_COUNT ? group_names[g] : "?";
+}
+
+twf_status twf_group_parse(const char *name, unsigned *mask)
+{
+  int g;
+  if (strcmp(name, "axes") == 0) {
+    *mask = TWF_GROUP_BIT(TWF_GROUP_SHIFTS) | TWF_GROUP_BIT(TWF_GROUP_TILTS);
+    return TWF_OK;
+  }
+  for (g = 0; g < TWF_GROUP_COUNT; g++)
+    if (strcmp(name, group_names[g]) == 0) {
+      *mask = TWF_GROUP_BIT(g);
+      return TWF_OK;
+    }
+  return TWF_ERR_UNKNOWN;
+}
+
+static size_t count_params(const twf_model *m, unsigned groups)
+{
+  size_t n = 0, i;
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_BASE)) n += 6;
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_TARGETS)) n += 3 * m->n_targets;
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_OFFSETS)) n += m->n_joints;
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_HOME)) n += 6;
+  for (i = 0; i < m->n_joints; i++) {
+    int rev = m->joints[i].type == TWF_JOINT_REVOLUTE;
+    if (rev && (groups & TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) n += 2;
+    if (groups & TWF_GROUP_BIT(TWF_GROUP_TILTS)) n += 2;
+  }
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_SCALE)) n += m->n_joints;
+  return n;
+}
+
+static void add_param(twf_errmodel *em, const twf_model *m, size_t *j,
+                      twf_group g, long joint, long target, int comp,
+                      twf_param_kind kind, const char *suffix)
+{
+  twf_param *p = &em->params[*j];
+  const char *owner = g == TWF_GROUP_BASE ? "base"
+                      : g == TWF_GROUP_HOME ? "home"
+                      : target >= 0 ? m->targets[target].name
+                                    : m->joints[joint].name;
+  p->group = g;
+  p->joint = joint;
+  p->target = target;
+  p->component = comp;
+  p->kind = kind;
+  snprintf(p->name, sizeof p->name, "%s.%s", owner, suffix);
+  em->scale[*j] = kind == TWF_PARAM_LENGTH ? 1.0 : em->reach;
+  (*j)++;
+}
+
+twf_errmodel *twf_errmodel_alloc(const twf_model *m, unsigned groups, twf_error *err)
+{
+  static const char *const pose_names[6] = { "rx", "ry", "rz", "tx", "ty", "tz" };
+  static const char *const xyz[3] = { "x", "y", "z" };
+  twf_errmodel *em;
+  size_t n, j = 0, i;
+  int c;
+
+  if (m == NULL || groups == 0 || (groups >> TWF_GROUP_COUNT) != 0)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "no valid parameter group chosen"), NULL;
+  n = count_params(m, groups);
+  em = calloc(1, sizeof *em);
+  if (em == NULL)
+    goto nomem;
+  em->n_joints = m->n_joints;
+  em->n_targets = m->n_targets;
+  em->n_params = n;
+  em->reach = twf_model_reach(m);
+  em->params = calloc(n ? n : 1, sizeof *em->params);
+  em->scale = calloc(n ? n : 1, sizeof *em->scale);
+  em->u1 = calloc(m->n_joints ? m->n_joints : 1, sizeof *em->u1);
+  em->u2 = calloc(m->n_joints ? m->n_joints : 1, sizeof *em->u2);
+  em->prefix = calloc(m->n_joints + 1, sizeof *em->prefix);
+  em->twists = calloc(6 * (n ? n : 1), sizeof *em->twists);
+  em->axis_step = calloc(6 * (m->n_joints ? m->n_joints : 1), sizeof *em->axis_step);
+  if (!em->params || !em->scale || !em->u1 || !em->u2 || !em->prefix || !em->twists ||
+      !em->axis_step)
+    goto nomem;
+
+  /* The internal layout is group-major in enum order; the redundancy walk
+   * chooses its own order, so this one only fixes names and indices. */
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_BASE))
+    for (c = 0; c < 6; c++)
+      add_param(em, m, &j, TWF_GROUP_BASE, -1, -1, c,
+                c < 3 ? TWF_PARAM_ANGLE : TWF_PARAM_LENGTH, pose_names[c]);
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_TARGETS))
+    for (i = 0; i < m->n_targets; i++)
+      for (c = 0; c < 3; c++)
+        add_param(em, m, &j, TWF_GROUP_TARGETS, -1, (long)i, c, TWF_PARAM_LENGTH, xyz[c]);
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_OFFSETS))
+    for (i = 0; i < m->n_joints; i++)
+      add_param(em, m, &j, TWF_GROUP_OFFSETS, (long)i, -1, 0,
+                m->joints[i].type == TWF_JOINT_REVOLUTE ? TWF_PARAM_ANGLE : TWF_PARAM_LENGTH,
+                "offset");
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_HOME))
+    for (c = 0; c < 6; c++)
+      add_param(em, m, &j, TWF_GROUP_HOME, -1, -1, c,
+                c < 3 ? TWF_PARAM_ANGLE : TWF_PARAM_LENGTH, pose_names[c]);
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_SHIFTS))
+    for (i = 0; i < m->n_joints; i++)
+      if (m->joints[i].type == TWF_JOINT_REVOLUTE)
+        for (c = 0; c < 2; c++)
+          add_param(em, m, &j, TWF_GROUP_SHIFTS, (long)i, -1, c, TWF_PARAM_LENGTH,
+                    c == 0 ? "shift1" : "shift2");
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_TILTS))
+    for (i = 0; i < m->n_joints; i++)
+      for (c = 0; c < 2; c++)
+        add_param(em, m, &j, TWF_GROUP_TILTS, (long)i, -1, c, TWF_PARAM_ANGLE,
+                  c == 0 ? "tilt1" : "tilt2");
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_SCALE))
+    for (i = 0; i < m->n_joints; i++)
+      add_param(em, m, &j, TWF_GROUP_SCALE, (long)i, -1, 0,
+                TWF_PARAM_RATIO, "scale");
+  /* a joint scale moves the arm by c q: angular for a revolute joint */
+  for (i = 0; i < n; i++)
+    if (em->params[i].group == TWF_GROUP_SCALE)
+      em->scale[i] = m->joints[em->params[i].joint].type == TWF_JOINT_REVOLUTE ? em->reach : 1.0;
+  twf_errmodel_update(em, m);
+  return em;
+
+nomem:
+  twf_errmodel_free(em);
+  twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+  return NULL;
+}
+
+void twf_errmodel_free(twf_errmodel *em)
+{
+  if (em == NULL)
+    return;
+  free(em->params);
+  free(em->scale);
+  free(em->u1);
+  free(em->u2);
+  free(em->prefix);
+  free(em->twists);
+  free(em->axis_step);
+  free(em);
+}
+
+size_t twf_errmodel_n_params(const twf_errmodel *em) { return em->n_params; }
+
+const twf_param *twf_errmodel_param(const twf_errmodel *em, size_t j)
+{
+  return j < em->n_params ? &em->params[j] : NULL;
+}
+
+double twf_errmodel_param_scale(const twf_errmodel *em, size_t j)
+{
+  return j < em->n_params ? em->scale[j] : 1.0;
+}
+
+/* u1: the component of base x perpendicular to the joint direction (base y
+ * when x is within 30 degrees of it), u2 = d x u1: reproducible names and
+ * values for the axis errors (calibration-model.md). */
+void twf_errmodel_update(twf_errmodel *em, const twf_model *m)
+{
+  size_t i;
+  for (i = 0; i < m->n_joints; i++) {
+    const twf_joint *jt = &m->joints[i];
+    const double *d = jt->type == TWF_JOINT_REVOLUTE ? jt->twist : jt->twist + 3;
+    double ref[3] = { 1.0, 0.0, 0.0 };
+    double dot, n;
+    int a;
+    if (fabs(d[0]) > cos(30.0 * TWF_PI / 180.0)) {
+      ref[0] = 0.0;
+      ref[1] = 1.0;
+    }
+    dot = twf_v3_dot(ref, d);
+    for (a = 0; a < 3; a++)
+      em->u1[i][a] = ref[a] - dot * d[a];
+    n = twf_v3_norm(em->u1[i]);
+    for (a = 0; a < 3; a++)
+      em->u1[i][a] /= n;
+    twf_v3_cross(d, em->u1[i], em->u2[i]);
+  }
+}
+
+void twf_errmodel_axis_basis(const twf_errmodel *em, size_t joint,
+                             double u1[3], double u2[3])
+{
+  twf_v3_copy(em->u1[joint], u1);
+  twf_v3_copy(em->u2[joint], u2);
+}
+
+/* The basis twist of an axis parameter: tilt about the line through the
+ * joint's reference point along u, (u, -u x q); shift along u, (0, u). */
+static void axis_basis_twist(const twf_errmodel *em, const twf_model *m,
+                             const twf_param *p, double e[6])
+{
+  const double *u = p->component == 0 ? em->u1[p->joint] : em->u2[p->joint];
+  if (p->group == TWF_GROUP_TILTS) {
+    double uxq[3];
+    twf_v3_cross(u, m->joints[p->joint].point, uxq);
+    e[0] = u[0]; e[1] = u[1]; e[2] = u[2];
+    e[3] = -uxq[0]; e[4] = -uxq[1]; e[5] = -uxq[2];
+  } else {
+    e[0] = e[1] = e[2] = 0.0;
+    e[3] = u[0]; e[4] = u[1]; e[5] = u[2];
+  }
+}
+
+void twf_errmodel_eval_pose(twf_errmodel *em, const twf_model *m,
+                            const twf_pose *base_in_tracker, const double *q,
+                            twf_pose *flange_in_tracker)
+{
+  size_t i, j, n = m->n_joints;
+  em->prefix[0] = *base_in_tracker;
+  for (i = 0; i < n; i++) {
+    const twf_joint *jt = &m->joints[i];
+    twf_pose E;
+    twf_se3_exp(jt->twist, jt->scale * q[i] + jt->offset, &E);
+    twf_pose_mul(&em->prefix[i], &E, &em->prefix[i + 1]);
+  }
+  twf_pose_mul(&em->prefix[n], &m->home, &em->flange);
+  em->q = q;
+  if (flange_in_tracker != NULL)
+    *flange_in_tracker = em->flange;
+
+  for (j = 0; j < em->n_params; j++) {
+    const twf_param *p = &em->params[j];
+    double *t = em->twists + 6 * j;
+    double e[6] = { 0, 0, 0, 0, 0, 0 }, a[6], b[6];
+    int c;
+    switch (p->group) {
+    case TWF_GROUP_BASE:
+      e[p->component] = 1.0;
+      twf_se3_adjoint_apply(base_in_tracker, e, t);
+      break;
+    case TWF_GROUP_HOME:
+      e[p->component] = 1.0;
+      twf_se3_adjoint_apply(&em->flange, e, t);
+      break;
+    case TWF_GROUP_OFFSETS:
+      twf_se3_adjoint_apply(&em->prefix[p->joint], m->joints[p->joint].twist, t);
+      break;
+    case TWF_GROUP_SCALE:
+      twf_se3_adjoint_apply(&em->prefix[p->joint], m->joints[p->joint].twist, t);
+      for (c = 0; c < 6; c++)
+        t[c] *= q[p->joint];
+      break;
+    case TWF_GROUP_SHIFTS:
+    case TWF_GROUP_TILTS:
+      /* Ad_{B P_(i-1)} (I - Ad_{exp(S_i theta_i)}) e = Ad_{B P_(i-1)} e - Ad_{B P_i} e */
+      axis_basis_twist(em, m, p, e);
+      twf_se3_adjoint_apply(&em->prefix[p->joint], e, a);
+      twf_se3_adjoint_apply(&em->prefix[p->joint + 1], e, b);
+      for (c = 0; c < 6; c++)
+        t[c] = a[c] - b[c];
+      break;
+    case TWF_GROUP_TARGETS:
+    case TWF_GROUP_COUNT:
+      break; /* targets move the point only: handled in twf_errmodel_point */
+    }
+  }
+}
+
+void twf_errmodel_point(const twf_errmodel *em, const twf_model *m,
+                        size_t target, double y[3], double *rows)
+{
+  size_t j, p = em->n_params;
+  twf_pose_apply(&em->flange, m->targets[target].offset, y);
+  if (rows == NULL)
+    return;
+  for (j = 0; j < p; j++) {
+    const twf_param *par = &em->params[j];
+    if (par->group == TWF_GROUP_TARGETS) {
+      int r;
+      for (r = 0; r < 3; r++)
+        rows[r * p + j] = par->target == (long)target ? em->flange.R[r][par->component] : 0.0;
+    } else {
+      /* a spatial twist (w, v) moves the point y by w x y + v */
+      const double *t = em->twists + 6 * j;
+      double wxy[3];
+      twf_v3_cross(t, y, wxy);
+      rows[0 * p + j] = wxy[0] + t[3];
+      rows[1 * p + j] = wxy[1] + t[4];
+      rows[2 * p + j] = wxy[2] + t[5];
+    }
+  }
+}
+
+void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
+                              double r[3], double *rows)
+{
+  double E[3][3], Jinv[3][3], H[3][3], H2[3][3], theta, coef;
+  size_t j, p = em->n_params;
+  int a, b, k;
+  for (a = 0; a < 3; a++)
+    for (b = 0; b < 3; b++) {
+      E[a][b] = 0.0;
+      for (k = 0; k < 3; k++)
+        E[a][b] += R_meas[a][k] * em->flange.R[b][k];
+    }
+  twf_so3_log(E, r);
+  if (rows == NULL)
+    return;
+  /* r(a) = log(E exp(-hat a)) ~ r - Jr^-1(r) a, with the inverse right
+   * Jacobian Jr^-1(phi) = I + hat(phi)/2 + (1/t^2 - (1 + cos t)/(2 t sin t)) hat(phi)^2. */
+  theta = twf_v3_norm(r);
+  coef = theta < 1e-4 ? 1.0 / 12.0 + theta * theta / 720.0
+                      : 1.0 / (theta * theta) - (1.0 + cos(theta)) / (2.0 * theta * sin(theta));
+  twf_so3_hat(r, H);
+  for (a = 0; a < 3; a++)
+    for (b = 0; b < 3; b++) {
+      H2[a][b] = 0.0;
+      for (k = 0; k < 3; k++)
+        H2[a][b] += H[a][k] * H[k][b];
+    }
+  for (a = 0; a < 3; a++)
+    for (b = 0; b < 3; b++)
+      Jinv[a][b] = (a == b ? 1.0 : 0.0) + 0.5 * H[a][b] + coef * H2[a][b];
+  for (j = 0; j < p; j++) {
+    const double *t = em->twists + 6 * j;
+    if (em->params[j].group == TWF_GROUP_TARGETS) {
+      rows[j] = rows[p + j] = rows[2 * p + j] = 0.0;
+      continue;
+    }
+    for (a = 0; a < 3; a++)
+      rows[a * p + j] = Jinv[a][0] * t[0] + Jinv[a][1] * t[1] + Jinv[a][2] * t[2];
+  }
+}
+
+void twf_errmodel_fold(twf_errmodel *em, const double *delta, twf_model *m,
+                       twf_pose *base_in_tracker)
+{
+  double base_step[6] = { 0 }, home_step[6] = { 0 };
+  double *axis_step = em->axis_step;
+  size_t j, i;
+  int c, any_base = 0, any_home = 0;
+
+  for (j = 0; j < em->n_params; j++) {
+    const twf_param *p = &em->params[j];
+    double d = delta[j], e[6];
+    switch (p->group) {
+    case TWF_GROUP_BASE: base_step[p->component] += d; any_base = 1; break;
+    case TWF_GROUP_HOME: home_step[p->component] += d; any_home = 1; break;
+    case TWF_GROUP_TARGETS:
+      m->targets[p->target].offset[p->component] += d;
+      m->targets[p->target].offset_known = 1;
+      break;
+    case TWF_GROUP_OFFSETS: m->joints[p->joint].offset += d; break;
+    case TWF_GROUP_SCALE: m->joints[p->joint].scale += d; break;
+    case TWF_GROUP_SHIFTS:
+    case TWF_GROUP_TILTS:
+      axis_basis_twist(em, m, p, e);
+      for (c = 0; c < 6; c++)
+        axis_step[6 * p->joint + c] += d * e[c];
+      break;
+    case TWF_GROUP_COUNT: break;
+    }
+  }
+  if (any_base) {
+    twf_pose E;
+    twf_se3_exp(base_step, 1.0, &E);
+    twf_pose_mul(base_in_tracker, &E, base_in_tracker);
+  }
+  if (any_home) {
+    twf_pose E;
+    twf_se3_exp(home_step, 1.0, &E);
+    twf_pose_mul(&m->home, &E, &m->home);
+  }
+  for (i = 0; i < m->n_joints; i++) {
+    twf_joint *jt = &m->joints[i];
+    const double *e = axis_step + 6 * i;
+    twf_pose E;
+    if (e[0] == 0 && e[1] == 0 && e[2] == 0 && e[3] == 0 && e[4] == 0 && e[5] == 0)
+      continue;
+    /* S <- Ad_{exp(e)} S moves the line rigidly; the reference point rides along */
+    twf_se3_exp(e, 1.0, &E);
+    twf_se3_adjoint_apply(&E, jt->twist, jt->twist);
+    twf_pose_apply(&E, jt->point, jt->point);
+    /* keep the axis exactly unit against rounding drift over many folds */
+    {
+      double *d = jt->type == TWF_JOINT_REVOLUTE ? jt->twist : jt->twist + 3;
+      double n = twf_v3_norm(d);
+      for (c = 0; c < 3; c++)
+        d[c] /= n;
+      if (jt->type == TWF_JOINT_REVOLUTE) {
+        double w[3] = { d[0], d[1], d[2] };
+        twf_twist_revolute(w, jt->point, jt->twist);
+      }
+    }
+  }
+  memset(axis_step, 0, 6 * m->n_joints * sizeof *axis_step);
+  twf_errmodel_update(em, m);
+}

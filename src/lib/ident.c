@@ -1,0 +1,176 @@
+/* ident.c: which parameters a pose set determines, and how well: the
+ * redundancy walk, the explanation of fixed parameters, covariance and
+ * singular values, all from the normal matrix (calibration-model.md
+ * "Redundant and weak parameters"). */
+#include "ident.h"
+
+#include <gsl/gsl_eigen.h>
+#include <gsl/gsl_linalg.h>
+#include <gsl/gsl_matrix.h>
+#include <gsl/gsl_sort_vector.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+int twf_ident_walk(const double *A, size_t p, const size_t *order,
+                   size_t n_order, double tol, unsigned char *keep,
+                   double *rel_out)
+{
+  /* L is the Cholesky factor of A over the kept columns, in walk order:
+   * for a candidate j, z = L^-1 A_Kj and A_jj - z.z is the squared length
+   * of the part of column j orthogonal to the kept ones. */
+  double *L = calloc(p ? p * p : 1, sizeof *L);
+  double *z = calloc(p ? p : 1, sizeof *z);
+  size_t *kept = calloc(p ? p : 1, sizeof *kept);
+  size_t nk = 0, t, a, b;
+  if (L == NULL || z == NULL || kept == NULL) {
+    free(L); free(z); free(kept);
+    return -1;
+  }
+  memset(keep, 0, p);
+  for (t = 0; t < n_order; t++) {
+    size_t j = order[t];
+    double ajj = A[j * p + j], r2, rel;
+    for (a = 0; a < nk; a++) {
+      double s = A[kept[a] * p + j];
+      for (b = 0; b < a; b++)
+        s -= L[a * p + b] * z[b];
+      z[a] = s / L[a * p + a];
+    }
+    r2 = ajj;
+    for (a = 0; a < nk; a++)
+      r2 -= z[a] * z[a];
+    rel = ajj > 0 && r2 > 0 ? sqrt(r2 / ajj) : 0.0;
+    if (rel_out != NULL)
+      rel_out[j] = rel;
+    if (ajj > 0 && rel >= tol) {
+      for (a = 0; a < nk; a++)
+        L[nk * p + a] = z[a];
+      L[nk * p + nk] = sqrt(r2);
+      kept[nk++] = j;
+      keep[j] = 1;
+    }
+  }
+  free(L); free(z); free(kept);
+  return 0;
+}
+
+/* Gather the kept block of A into a GSL matrix; idx receives the map. */
+static gsl_matrix *kept_block(const double *A, size_t p, const unsigned char *keep,
+                              size_t *idx, size_t *nk_out)
+{
+  size_t nk = 0, a, b;
+  gsl_matrix *K;
+  for (a = 0; a < p; a++)
+    if (keep[a])
+      idx[nk++] = a;
+  *nk_out = nk;
+  if (nk == 0)
+    return NULL;
+  K = gsl_matrix_alloc(nk, nk);
+  if (K == NULL)
+    return NULL;
+  for (a = 0; a < nk; a++)
+    for (b = 0; b < nk; b++)
+      gsl_matrix_set(K, a, b, A[idx[a] * p + idx[b]]);
+  return K;
+}
+
+size_t twf_ident_explain(const double *A, size_t p, const unsigned char *keep,
+                         size_t j, size_t max_out, size_t *idx_out, double *coef_out)
+{
+  size_t *idx = malloc((p ? p : 1) * sizeof *idx), nk, a, n = 0;
+  gsl_matrix *K = kept_block(A, p, keep, idx, &nk);
+  gsl_vector *rhs = NULL, *c = NULL;
+  if (K == NULL || gsl_linalg_cholesky_decomp1(K) != 0)
+    goto done;
+  rhs = gsl_vector_alloc(nk);
+  c = gsl_vector_alloc(nk);
+  if (rhs == NULL || c == NULL)
+    goto done;
+  for (a = 0; a < nk; a++)
+    gsl_vector_set(rhs, a, A[idx[a] * p + j]);
+  if (gsl_linalg_cholesky_solve(K, rhs, c) != 0)
+    goto done;
+  /* a simple selection of the largest |c| */
+  for (n = 0; n < max_out && n < nk; n++) {
+    size_t best = nk;
+    double bv = 0.0;
+    for (a = 0; a < nk; a++) {
+      double v = fabs(gsl_vector_get(c, a));
+      size_t k;
+      int used = 0;
+      for (k = 0; k < n; k++)
+        if (idx_out[k] == idx[a])
+          used = 1;
+      if (!used && v > bv) {
+        bv = v;
+        best = a;
+      }
+    }
+    if (best == nk || bv < 1e-9)
+      break;
+    idx_out[n] = idx[best];
+    coef_out[n] = gsl_vector_get(c, best);
+  }
+done:
+  gsl_vector_free(rhs);
+  gsl_vector_free(c);
+  if (K != NULL)
+    gsl_matrix_free(K);
+  free(idx);
+  return n;
+}
+
+int twf_ident_inverse(const double *A, size_t p, const unsigned char *keep, double *cov)
+{
+  size_t *idx = malloc((p ? p : 1) * sizeof *idx), nk, a, b;
+  gsl_matrix *K = kept_block(A, p, keep, idx, &nk);
+  int rc = -1;
+  memset(cov, 0, p * p * sizeof *cov);
+  if (nk == 0) {
+    rc = 0;
+    goto done;
+  }
+  if (K == NULL || gsl_linalg_cholesky_decomp1(K) != 0 || gsl_linalg_cholesky_invert(K) != 0)
+    goto done;
+  for (a = 0; a < nk; a++)
+    for (b = 0; b < nk; b++)
+      cov[idx[a] * p + idx[b]] = gsl_matrix_get(K, a, b);
+  rc = 0;
+done:
+  if (K != NULL)
+    gsl_matrix_free(K);
+  free(idx);
+  return rc;
+}
+
+size_t twf_ident_singular_values(const double *A, size_t p,
+                                 const unsigned char *keep, double *sv)
+{
+  size_t *idx = malloc((p ? p : 1) * sizeof *idx), nk, a;
+  gsl_matrix *K = kept_block(A, p, keep, idx, &nk);
+  gsl_vector *ev = NULL;
+  gsl_eigen_symm_workspace *ws = NULL;
+  size_t out = 0;
+  if (K == NULL)
+    goto done;
+  ev = gsl_vector_alloc(nk);
+  ws = gsl_eigen_symm_alloc(nk);
+  if (ev == NULL || ws == NULL || gsl_eigen_symm(K, ev, ws) != 0)
+    goto done;
+  gsl_sort_vector(ev);
+  for (a = 0; a < nk; a++) {
+    double e = gsl_vector_get(ev, nk - 1 - a);
+    sv[a] = e > 0 ? sqrt(e) : 0.0;
+  }
+  out = nk;
+done:
+  if (ws != NULL)
+    gsl_eigen_symm_free(ws);
+  gsl_vector_free(ev);
+  if (K != NULL)
+    gsl_matrix_free(K);
+  free(idx);
+  return out;
+}

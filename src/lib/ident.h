@@ -1,0 +1,39 @@
+/* ident.h: identifiability on scaled normal matrices (internal). Every
+ * function here works on a symmetric p x p matrix A = D J^T W J D (the
+ * normal matrix of the scaled, weighted Jacobian), so that the assembly can
+ * stream measurement by measurement and nothing is quadratic in their
+ * number. */
+#ifndef TWF_IDENT_H
+#define TWF_IDENT_H
+
+#include <stddef.h>
+
+/* Walk the columns in order[0..n_order) and keep a column when the part of
+ * it orthogonal to the columns kept so far is at least tol of its length
+ * (a Gram-Schmidt walk done on A through an incremental Cholesky factor).
+ * keep[p] receives 1 for kept, 0 otherwise (columns not in order stay 0).
+ * rel_out[p] (may be NULL) receives each walked column's relative
+ * independent part. Returns 0, or -1 when out of memory. */
+int twf_ident_walk(const double *A, size_t p, const size_t *order,
+                   size_t n_order, double tol, unsigned char *keep,
+                   double *rel_out);
+
+/* Least-squares coefficients of column j on the kept columns: c solves
+ * A_KK c = A_Kj. idx/coef receive the up to max_out kept columns with the
+ * largest |c| (coefficients in scaled units). Returns how many. */
+size_t twf_ident_explain(const double *A, size_t p, const unsigned char *keep,
+                         size_t j, size_t max_out, size_t *idx, double *coef);
+
+/* Inverse of A restricted to the kept columns, written into cov (p x p,
+ * zero outside the kept block). Returns 0, or -1 when A_KK is not positive
+ * definite or memory is short. */
+int twf_ident_inverse(const double *A, size_t p, const unsigned char *keep,
+                      double *cov);
+
+/* Singular values of the scaled Jacobian of the kept columns (square roots
+ * of the eigenvalues of A_KK), descending, into sv[n_kept]. Returns the
+ * count, or 0 on failure. */
+size_t twf_ident_singular_values(const double *A, size_t p,
+                                 const unsigned char *keep, double *sv);
+
+#endif

@@ -1,0 +1,60 @@
+#!/bin/sh
+# Command-line tests. Each case is a folder under tests/cli/cases/ holding
+#   cmd              the arguments, one shell line; run from a scratch folder
+#                    with $TWISTFIT (the built binary) and $SRC (source tree)
+#   status           the expected exit status
+#   stdout           optional: the expected standard output, exactly (golden)
+#   stderr-contains  optional: lines that must each appear in standard error
+#   stdout-contains  optional: lines that must each appear in standard output
+#   files-absent     optional: paths (relative to the scratch folder) that
+#                    must not exist afterwards
+# To regenerate a golden output after a deliberate change:
+#   TWF_CLI_UPDATE=1 make check TESTS=tests/cli/run-cli-tests.sh
+set -u
+SRC=${TWF_SRCDIR:-$(cd "$(dirname "$0")/../.." && pwd)}
+BUILD=${TWF_BUILDDIR:-$SRC}
+TWISTFIT="$BUILD/src/twistfit"
+export SRC TWISTFIT
+pass=0
+fail=0
+for case_dir in "$SRC"/tests/cli/cases/*/; do
+  name=$(basename "$case_dir")
+  scratch=$(mktemp -d)
+  [ -d "$case_dir/scratch" ] && cp -R "$case_dir/scratch/." "$scratch/"
+  ( cd "$scratch" && eval "$(cat "$case_dir/cmd")" ) >"$scratch/.out" 2>"$scratch/.err"
+  got=$?
+  want=$(cat "$case_dir/status")
+  ok=1
+  why=""
+  if [ "$got" != "$want" ]; then ok=0; why="exit status $got, expected $want"; fi
+  if [ -f "$case_dir/stdout" ]; then
+    if [ "${TWF_CLI_UPDATE:-0}" = 1 ]; then cp "$scratch/.out" "$case_dir/stdout"; fi
+    if ! cmp -s "$scratch/.out" "$case_dir/stdout"; then
+      ok=0; why="$why; stdout differs:"
+      why="$why
+$(diff "$case_dir/stdout" "$scratch/.out" | head -20)"
+    fi
+  fi
+  for kind in err out; do
+    [ -f "$case_dir/std$kind-contains" ] || continue
+    while IFS= read -r line; do
+      [ -n "$line" ] || continue
+      grep -F -q -- "$line" "$scratch/.$kind" || { ok=0; why="$why; std$kind lacks: $line"; }
+    done <"$case_dir/std$kind-contains"
+  done
+  if [ -f "$case_dir/files-absent" ]; then
+    while IFS= read -r f; do
+      [ -n "$f" ] || continue
+      if [ -e "$scratch/$f" ]; then ok=0; why="$why; $f exists"; fi
+    done <"$case_dir/files-absent"
+  fi
+  if [ $ok = 1 ]; then
+    pass=$((pass + 1)); echo "PASS: $name"
+  else
+    fail=$((fail + 1)); echo "FAIL: $name: $why"
+    echo "--- stderr:"; head -20 "$scratch/.err"
+  fi
+  rm -rf "$scratch"
+done
+echo "cli: $pass passed, $fail failed"
+[ $fail = 0 ]

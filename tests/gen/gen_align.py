@@ -1,0 +1,160 @@
+#!/usr/bin/python3
+"""Reference values for twf_register_points: SciPy's Rotation.align_vectors.
+
+For a handful of point sets a (robot base frame) and b = R a + p (+ noise)
+(tracker frame), this writes the points and the rigid transform that SciPy
+finds. scipy.spatial.transform.Rotation.align_vectors(u, v, weights)
+minimises 1/2 sum w_i |u_i - C v_i|^2 over rotations C, for vectors, not
+points: the generator centres both clouds on their weighted centroids
+itself (u = b - bbar, v = a - abar), takes R = C and computes the
+translation from the centroids, p = bbar - R abar. That is the weighted
+least-squares rigid transform the library computes by its own SVD.
+
+Cases: noise-free and noisy, unweighted and weighted, a coplanar cloud (the
+reflection fix matters), the minimal three points, a large rotation
+(170 degrees) far from the origin, and a large noisy set.
+
+Output, in the output directory (default tests/fixtures):
+  align_points.csv   header row, then one row per point:
+                     case,i,ax,ay,az,bx,by,bz,w    (metres; w = 1 when
+                     the case is unweighted)
+  align_results.csv  header row, then one row per case:
+                     case,n,weighted,noise_m,
+                     R00..R22,px,py,pz            (SciPy's answer)
+                     T00..T22,tx,ty,tz            (the true transform)
+                     rmsd                         (SciPy's returned rmsd)
+Lines starting with '#' are comments (library versions, seed). Values are
+printed with repr(), which round-trips doubles exactly.
+
+Deterministic (fixed seed). CI regenerates into a temporary directory and
+compares with tests/gen/compare_fixtures.py, which ignores comment lines and
+compares numbers with relative tolerance 1e-12 (absolute 1e-15 near zero).
+
+Run with Debian's interpreter:  /usr/bin/python3 tests/gen/gen_align.py [--out DIR]
+"""
+import argparse
+import math
+import os
+import sys
+
+import numpy as np
+import scipy
+from scipy.spatial.transform import Rotation
+
+SEED = 20260311
+
+
+def rot_about(axis, angle):
+    axis = np.asarray(axis, dtype=float)
+    axis = axis / np.linalg.norm(axis)
+    return Rotation.from_rotvec(axis * angle).as_matrix()
+
+
+def make_cases(rng):
+    cases = []
+
+    def cloud(n, lo=-0.9, hi=1.3):
+        return rng.uniform(lo, hi, size=(n, 3))
+
+    # name, a, R, p, noise sigma, weights (None: unweighted)
+    R = rot_about([0.31, -0.77, 0.52], 1.1873)
+    cases.append(("exact", cloud(10), R, np.array([2.385, -1.417, 0.623]), 0.0, None))
+
+    R = rot_about([-0.6, 0.2, 0.9], -2.0471)
+    cases.append(("exact_w", cloud(12), R, np.array([-3.117, 0.845, 1.902]), 0.0,
+                  rng.uniform(0.3, 2.7, size=12)))
+
+    # coplanar: every point on a tilted plane through (0.2, -0.1, 0.4)
+    u = np.array([0.8, 0.3, -0.1]); u /= np.linalg.norm(u)
+    v = np.cross(u, [0.1, 0.2, 0.97]); v /= np.linalg.norm(v)
+    s = rng.uniform(-0.7, 0.9, size=(9, 2))
+    a = np.array([0.2, -0.1, 0.4]) + s[:, :1] * u + s[:, 1:] * v
+    R = rot_about([0.1, 0.9, -0.35], 0.7391)
+    cases.append(("planar", a, R, np.array([1.234, 4.321, -0.567]), 0.0, None))
+
+    R = rot_about([0.45, 0.45, -0.77], 2.6137)
+    cases.append(("three", cloud(3), R, np.array([0.0713, -2.2209, 0.9314]), 0.0, None))
+
+    R = rot_about([-0.21, 0.63, 0.75], math.radians(170.0))
+    cases.append(("far", cloud(15, 0.4, 1.9), R, np.array([6.083, -4.771, 2.207]),
+                  0.0, None))
+
+    R = rot_about([0.72, -0.12, 0.68], 0.9134)
+    cases.append(("noisy", cloud(25), R, np.array([3.204, 1.118, -0.741]), 3.7e-4, None))
+
+    # weighted noisy: per-point sigma, weight 1/sigma^2 (relative)
+    sig = rng.uniform(1.0e-4, 9.0e-4, size=30)
+    R = rot_about([-0.33, -0.81, 0.27], -1.4466)
+    cases.append(("noisy_w", cloud(30), R, np.array([-1.882, 2.761, 0.415]), sig,
+                  (sig.min() / sig) ** 2))
+
+    R = rot_about([0.05, 0.13, -0.99], 2.2718)
+    cases.append(("noisy_many", cloud(200), R, np.array([4.417, 3.009, -1.276]),
+                  1.3e-4, None))
+    return cases
+
+
+def solve(a, b, w):
+    ww = np.ones(len(a)) if w is None else w
+    abar = (ww[:, None] * a).sum(0) / ww.sum()
+    bbar = (ww[:, None] * b).sum(0) / ww.sum()
+    # align_vectors(u, v) finds C with u ~ C v: u in b's frame, v in a's
+    rot, rmsd = Rotation.align_vectors(b - bbar, a - abar, weights=w)
+    Rm = rot.as_matrix()
+    p = bbar - Rm @ abar
+    return Rm, p, rmsd
+
+
+def main(argv):
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    here = os.path.dirname(os.path.abspath(__file__))
+    ap.add_argument("--out", default=os.path.join(here, "..", "fixtures"))
+    args = ap.parse_args(argv)
+    os.makedirs(args.out, exist_ok=True)
+    rng = np.random.default_rng(SEED)
+    cases = make_cases(rng)
+
+    head = ("# reference: SciPy %s scipy.spatial.transform.Rotation.align_vectors "
+            "(NumPy %s), generated by tests/gen/gen_align.py, seed %d\n"
+            "# clouds centred on their weighted centroids by the generator; "
+            "p = bbar - R abar\n# units: metres; R row-major; b = R a + p\n"
+            % (scipy.__version__, np.__version__, SEED))
+    pts = [head, "case,i,ax,ay,az,bx,by,bz,w\n"]
+    res = [head, "case,n,weighted,noise_m,"
+           + ",".join("R%d%d" % (r, c) for r in range(3) for c in range(3))
+           + ",px,py,pz,"
+           + ",".join("T%d%d" % (r, c) for r in range(3) for c in range(3))
+           + ",tx,ty,tz,rmsd\n"]
+    for name, a, Rt, pt, sigma, w in cases:
+        n = len(a)
+        b = a @ Rt.T + pt
+        if np.any(np.asarray(sigma) > 0):
+            b = b + rng.standard_normal(size=(n, 3)) * np.reshape(sigma, (-1, 1))
+        Rm, p, rmsd = solve(a, b, w)
+        # the reference must be a proper rotation and better than the truth
+        assert abs(np.linalg.det(Rm) - 1.0) < 1e-12
+        ww = np.ones(n) if w is None else w
+        cost = lambda R_, p_: float((ww * ((a @ R_.T + p_ - b) ** 2).sum(1)).sum())
+        assert cost(Rm, p) <= cost(Rt, pt) + 1e-18
+        if np.all(np.asarray(sigma) == 0):
+            assert np.abs(Rm - Rt).max() < 1e-13, name
+        for i in range(n):
+            pts.append(",".join([name, str(i)] + [repr(float(x)) for x in a[i]]
+                                + [repr(float(x)) for x in b[i]]
+                                + [repr(float(ww[i]))]) + "\n")
+        noise = float(np.max(sigma))
+        res.append(",".join([name, str(n), "1" if w is not None else "0", repr(noise)]
+                            + [repr(float(x)) for x in Rm.ravel()]
+                            + [repr(float(x)) for x in p]
+                            + [repr(float(x)) for x in Rt.ravel()]
+                            + [repr(float(x)) for x in pt]
+                            + [repr(float(rmsd))]) + "\n")
+    with open(os.path.join(args.out, "align_points.csv"), "w") as f:
+        f.writelines(pts)
+    with open(os.path.join(args.out, "align_results.csv"), "w") as f:
+        f.writelines(res)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))

@@ -1,0 +1,35 @@
+/* testutil.h: helpers shared by the Check programs. */
+#ifndef TWF_TESTUTIL_H
+#define TWF_TESTUTIL_H
+
+#include <check.h>
+#include <stdint.h>
+
+/* |a - b| <= tol * max(1, |a|, |b|); NaN and infinity compare unequal
+ * unless both are the same infinity. Check's own double assertions are
+ * absolute. */
+int twf_test_close(double a, double b, double tol);
+#define ck_assert_close(a, b, tol)                                            \
+  do {                                                                        \
+    double ck_a_ = (a), ck_b_ = (b);                                          \
+    ck_assert_msg(twf_test_close(ck_a_, ck_b_, (tol)),                        \
+                  "%s = %.17g differs from %s = %.17g beyond %g", #a, ck_a_,  \
+                  #b, ck_b_, (double)(tol));                                  \
+  } while (0)
+
+/* Seeded random numbers (xorshift64*): the seed comes from TWF_TEST_SEED
+ * when set, else the given default; printed on failure by the caller. */
+typedef struct twf_test_rng { uint64_t state; } twf_test_rng;
+uint64_t twf_test_seed(uint64_t fallback);
+void twf_test_rng_init(twf_test_rng *rng, uint64_t seed);
+double twf_test_uniform(twf_test_rng *rng, double lo, double hi);
+double twf_test_gauss(twf_test_rng *rng);
+
+/* Absolute path of a file in the source tree (TWF_SRCDIR or "."), in a
+ * static buffer valid until the next call. */
+const char *twf_test_srcpath(const char *relative);
+
+/* Run a suite; returns the process exit status (0 when all passed). */
+int twf_test_run(Suite *s);
+
+#endif

@@ -845,6 +845,16 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
                                      const twf_campaign_options *opt,
                                      twf_warnings *w, twf_error *err);
 
+/* Read a joints file alone (the first file of the two-file form: pose id,
+ * one column per joint, optional set): a campaign of poses without
+ * measurements (n_meas = 0, meas may be NULL), e.g. to evaluate forward
+ * kinematics at logged poses. Units, limits, errors and warnings as for
+ * twf_campaign_read_pair. */
+twf_campaign *twf_campaign_read_joints(const char *joints_path,
+                                       const twf_model *m,
+                                       const twf_campaign_options *opt,
+                                       twf_warnings *w, twf_error *err);
+
 /* Write c in the one-file form, in the given units (declared in a
  * "# units:" line), numbers with 17 significant digits so that reading
  * back gives the same values to rounding. Rows are grouped by pose in pose
@@ -855,6 +865,59 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
                               twf_length_unit length_unit,
                               twf_angle_unit angle_unit, FILE *out,
                               twf_error *err);
+
+/* ------------------------------------------------------------------ */
+/* As-built geometry against nominal                                   */
+/* ------------------------------------------------------------------ */
+
+/* Deviation of one as-built joint line from its nominal line, both in the
+ * datum base frame (see twf_asbuilt_align). */
+typedef struct twf_joint_deviation {
+  /* Lines are compared at logged zero (q = 0, so theta = offset), where
+   * the data determine them whichever redundant parameters were fixed. */
+  double angle_rad;    /* angle between the as-built and nominal directions */
+  double distance_m;   /* distance from the nominal reference point to the
+                          as-built line (revolute); 0 for prismatic joints,
+                          whose line position has no meaning */
+  double offset;       /* as-built minus nominal joint offset, rad or m */
+  double scale;        /* as-built minus nominal joint scale */
+  double direction[3]; /* as-built unit direction, datum frame */
+  double point[3];     /* as-built line's point closest to the nominal
+                          reference point, datum frame, m */
+} twf_joint_deviation;
+
+typedef struct twf_asbuilt_comparison {
+  twf_pose datum;          /* G applied to the as-built model: its old base
+                              frame expressed in the datum frame */
+  double datum_rms_m;      /* RMS distance of the aligned line points */
+  size_t n_joints;
+  twf_joint_deviation *joints; /* owned; free with twf_asbuilt_comparison_clear */
+  /* The flange at logged zero: determined by full-pose data only (with
+   * points only, the home pose trades off against the target offsets). */
+  double home_angle_rad;   /* rotation between the as-built and nominal flange at logged zero */
+  double home_distance_m;  /* distance between their origins, m */
+  size_t n_targets;
+  /* owned; n_targets x 3: as-built minus nominal position of each target
+   * at logged zero, datum frame, m (NaN where the nominal offset is
+   * unknown): determined by point data too */
+  double *target_change_m;
+} twf_asbuilt_comparison;
+
+void twf_asbuilt_comparison_clear(twf_asbuilt_comparison *c);
+
+/* The datum rule: find the rigid motion G that best aligns the as-built
+ * joint lines with the nominal ones (least squares over two points per
+ * revolute line, the one nearest the nominal reference point and one a
+ * quarter of the reach along the line, re-chosen until they settle), re-express
+ * asbuilt in that frame (S <- Ad_G S, points <- G q, M <- G M) and
+ * base_in_tracker <- B G^-1, so that every prediction is unchanged, then
+ * compare line by line. The result does not depend on which redundant
+ * parameters the calibration fixed. nominal and asbuilt must have the same
+ * joints and targets. out is filled (clear it with
+ * twf_asbuilt_comparison_clear). */
+twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
+                             twf_pose *base_in_tracker,
+                             twf_asbuilt_comparison *out, twf_error *err);
 
 /* ------------------------------------------------------------------ */
 /* Calibration: Levenberg-Marquardt fit of the error model             */
@@ -974,6 +1037,7 @@ typedef struct twf_calib_result {
   int sigma_estimated;        /* 1: sigma_length estimated from the residuals */
   size_t n_fit_meas, n_check_meas, n_fit_poses;
   double *joint_range;        /* n_joints: range of each joint over the fit poses, SI */
+  twf_asbuilt_comparison comparison; /* as-built lines against the starting model's */
 } twf_calib_result;
 
 void twf_calib_result_free(twf_calib_result *r);

@@ -223,6 +223,30 @@ START_TEST(test_pair_equals_one)
 }
 END_TEST
 
+START_TEST(test_joints_only)
+{
+  twf_model *m = tf6s();
+  twf_campaign *a = read_ok(data("tests/data/campaign-one.csv"), m, NULL, NULL);
+  twf_error err;
+  twf_campaign *c = twf_campaign_read_joints(data("tests/data/campaign-joints.csv"),
+                                             m, NULL, NULL, &err);
+  size_t k;
+  ck_assert_msg(c != NULL, "%s", err.message);
+  ck_assert_uint_eq(c->n_poses, 4);
+  ck_assert_uint_eq(c->n_meas, 0);
+  for (k = 0; k < 4 * 6; k++)
+    ck_assert(c->q[k] == a->q[k]);
+  ck_assert_int_eq(c->pose_lines[1], 4);
+  twf_campaign_free(c);
+  /* A points file is not a joints file. */
+  ck_assert_ptr_null(twf_campaign_read_joints(data("tests/data/campaign-points.csv"),
+                                              m, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_UNKNOWN);
+  twf_campaign_free(a);
+  twf_model_free(m);
+}
+END_TEST
+
 START_TEST(test_pair_set_precedence)
 {
   twf_model *m = tf6s();
@@ -625,6 +649,21 @@ START_TEST(test_limit_error_and_tolerance)
   ck_assert(warned(&w, "joint 'j5'"));
   twf_campaign_free(c);
   twf_warnings_clear(&w);
+  /* Two-file form: the error points into the joints file. */
+  make_tmpdir();
+  write_file(tmppath("j.csv"), "pose,j6,j5,j4,j3,j2,j1\n"
+                               "a,1.5,2.5,3.5,4.5,5.5,6.5\n"
+                               "b,-1.5,-2.5,-3.5,-4.5,-5.5,-171.25\n");
+  write_file(tmppath("p.csv"), "pose,target,x,y,z\na,T1,1.5,2.5,3.5\nb,T1,1.5,2.5,3.5\n");
+  o = twf_campaign_default_options();
+  o.limits_are_errors = 1;
+  ck_assert_ptr_null(twf_campaign_read_pair(tmppath("j.csv"), tmppath("p.csv"), m, &o, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_LIMIT);
+  ck_assert_str_eq(err.file, tmppath("j.csv"));
+  ck_assert_int_eq(err.line, 3);
+  ck_assert_int_eq(err.column, 7);
+  ck_assert_ptr_nonnull(strstr(err.message, "column 'j1': -171.25 deg at pose 'b'"));
+  remove_tmpdir();
   twf_model_free(m);
 }
 END_TEST
@@ -898,6 +937,62 @@ START_TEST(test_many_poses)
 }
 END_TEST
 
+/* ------------------------------------------------------------------ */
+/* The examples of twistfit-data(5) are read as they stand             */
+/* ------------------------------------------------------------------ */
+
+/* The k-th .nf/.fi block of the man page, roff escapes undone, written to
+ * a file in tmpdir. */
+static void man_example(const char *page, int k, const char *name)
+{
+  const char *s = page, *e;
+  FILE *f;
+  int i;
+  for (i = 0; i <= k; i++) {
+    s = strstr(s, "\n.nf\n");
+    ck_assert_ptr_nonnull(s);
+    s += 5;
+  }
+  e = strstr(s, ".fi\n");
+  ck_assert_ptr_nonnull(e);
+  f = fopen(tmppath(name), "w");
+  ck_assert_ptr_nonnull(f);
+  for (; s < e; s++) {
+    if (s[0] == '\\' && s[1] == '-')
+      s++;
+    fputc(*s, f);
+  }
+  fclose(f);
+}
+
+START_TEST(test_man_examples)
+{
+  twf_model *m = tf6s();
+  char *page = slurp(data("man/twistfit-data.5"));
+  twf_warnings w;
+  twf_campaign *a, *b;
+  make_tmpdir();
+  man_example(page, 0, "one.csv");
+  man_example(page, 1, "joints.csv");
+  man_example(page, 2, "points.csv");
+  twf_warnings_init(&w);
+  a = read_ok(tmppath("one.csv"), m, NULL, &w);
+  b = read_pair_ok(tmppath("joints.csv"), tmppath("points.csv"), m, NULL, &w);
+  ck_assert_uint_eq(w.count, 0);
+  ck_assert_uint_eq(a->n_poses, 2);
+  ck_assert_uint_eq(a->n_meas, 4);
+  ck_assert_int_eq(a->meas[3].set, TWF_SET_CHECK);
+  ck_assert_close(a->meas[3].pos[2], 1.3544487, 1e-15);
+  assert_same(a, b, 0.0, 0);
+  twf_campaign_free(a);
+  twf_campaign_free(b);
+  twf_warnings_clear(&w);
+  free(page);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
 static Suite *campaign_suite(void)
 {
   Suite *s = suite_create("campaign");
@@ -905,6 +1000,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_one_file_values);
   tcase_add_test(tc, test_pair_equals_one);
   tcase_add_test(tc, test_pair_set_precedence);
+  tcase_add_test(tc, test_joints_only);
   tcase_add_test(tc, test_delimiters);
   tcase_add_test(tc, test_bom_crlf_comments);
   tcase_add_test(tc, test_units_declared);
@@ -918,6 +1014,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_bad_campaigns);
   tcase_add_test(tc, test_arguments);
   tcase_add_test(tc, test_many_poses);
+  tcase_add_test(tc, test_man_examples);
   suite_add_tcase(s, tc);
   tc = tcase_create("write");
   tcase_add_test(tc, test_roundtrip);

@@ -514,6 +514,7 @@ void twf_calib_result_free(twf_calib_result *r)
   free(r->rot_before);
   free(r->rot_after);
   free(r->joint_range);
+  twf_asbuilt_comparison_clear(&r->comparison);
   free(r);
 }
 
@@ -636,8 +637,14 @@ static size_t robust_screen(problem *pr, const twf_calib_options *opt, double *s
     comp[i] = fabs(comp[i] - med);
   mad = median_of(comp, n);
   s = 1.4826 * mad;
-  if (!(s > 0))
-    s = 1e-300;
+  /* floor the scale at 1 um: below any instrument's noise, so that a
+   * noise-free campaign flags no rounding-level "outliers" (common
+   * practice, no source) */
+  {
+    double floor_s = 1e-6 * pr->inv_sigma[0];
+    if (!(s > floor_s))
+      s = floor_s;
+  }
   for (i = 0; i < c->n_meas; i++) {
     double len = sqrt(pos[3 * i] * pos[3 * i] + pos[3 * i + 1] * pos[3 * i + 1] +
                       pos[3 * i + 2] * pos[3 * i + 2]);
@@ -1090,6 +1097,9 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   reg = NULL;
   if (res->asbuilt == NULL)
     goto nomem;
+  st = twf_asbuilt_align(start, res->asbuilt, &res->base_in_tracker, &res->comparison, err);
+  if (st != TWF_OK)
+    goto fail;
   *out = res;
   res = NULL;
   st = TWF_OK;

@@ -1567,6 +1567,31 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
   return c;
 }
 
+twf_campaign *twf_campaign_read_joints(const char *joints_path,
+                                       const twf_model *m,
+                                       const twf_campaign_options *opt,
+                                       twf_warnings *w, twf_error *err)
+{
+  reader r;
+  locale_t old = (locale_t)0;
+  twf_campaign *c;
+  twf_status st;
+  twf_error_clear(err);
+  if (joints_path == NULL) {
+    twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "no joints file given");
+    return NULL;
+  }
+  st = reader_init(&r, m, opt, w, err);
+  if (r.c_locale != (locale_t)0)
+    old = uselocale(r.c_locale);
+  if (st == TWF_OK)
+    st = read_file(&r, joints_path, KIND_JOINTS);
+  c = reader_finish(&r, st);
+  if (old != (locale_t)0)
+    uselocale(old);
+  return c;
+}
+
 /* ------------------------------------------------------------------ */
 /* Writer                                                              */
 /* ------------------------------------------------------------------ */

@@ -848,10 +848,10 @@ static int parse_joint_axis(parse_ctx *c, const section *s,
     return fail(c, TWF_ERR_VALUE, axis->line, 0,
                 "give a unit vector; lengths within 1e-3 of 1 are normalised "
                 "with a warning",
-                "axis of joint %s has length %.9g, not 1", s->name, n);
+                "axis of joint %s has length %.12g, not 1", s->name, n);
   if (fabs(n - 1.0) > AXIS_QUIET_TOL)
     twf_warnings_add(c->warnings, c->path, axis->line, 0,
-                     "axis of joint %s has length %.9g and was normalised",
+                     "axis of joint %s has length %.12g and was normalised",
                      s->name, n);
   for (int i = 0; i < 3; i++)
     w[i] /= n;

@@ -692,10 +692,12 @@ twf_status twf_register_campaign(const twf_model *model,
     for (i = 0; i < wk.n; i++) {
       double yp[3], d[3];
       twf_pose_apply(&B, wk.a + 3 * i, yp);
-      d[0] = yp[0] - wk.pred[3 * i];
-      d[1] = yp[1] - wk.pred[3 * i + 1];
-      d[2] = yp[2] - wk.pred[3 * i + 2];
-      change = fmax(change, twf_v3_norm(d));
+      if (rep.iterations > 1) { /* no previous prediction before */
+        d[0] = yp[0] - wk.pred[3 * i];
+        d[1] = yp[1] - wk.pred[3 * i + 1];
+        d[2] = yp[2] - wk.pred[3 * i + 2];
+        change = fmax(change, twf_v3_norm(d));
+      }
       twf_v3_copy(yp, wk.pred + 3 * i);
     }
     if (rep.iterations > 1) {

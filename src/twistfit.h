@@ -497,7 +497,9 @@ typedef struct twf_register_report {
    * equal or all rotations about one axis (as on a four-axis arm), so one
    * component of the offset trades off against the base translation. The
    * alternation still returns a solution (that component stays near its
-   * start); the caller should warn and fix the component before refining. */
+   * start); the caller should warn and fix the component before refining.
+   * Judged only when no trusted target is measured in the fit set (a
+   * trusted target pins the base). */
   size_t n_inseparable;
   long first_inseparable; /* index of the first such target, -1 if none */
 } twf_register_report;
@@ -636,11 +638,10 @@ typedef struct twf_accuracy_summary {
  * and the k_worst poses of each set. NULL with err filled on failure
  * (TWF_ERR_INVALID, TWF_ERR_VALUE for a non-finite position error,
  * TWF_ERR_NOMEM). O(n log n). */
-twf_accuracy_summary *twf_accuracy_summarize(const struct twf_campaign *campaign,
-                                             size_t n_targets,
-                                             const double *pos_err,
-                                             const double *angle_err,
-                                             size_t k_worst, twf_error *err);
+twf_accuracy_summary *
+twf_accuracy_summarize(const struct twf_campaign *campaign, size_t n_targets,
+                       const double *pos_err, const double *angle_err,
+                       size_t k_worst, twf_error *err);
 void twf_accuracy_summary_free(twf_accuracy_summary *s);
 
 /* ISO 9283:1998 pose accuracy (7.2.1) and pose repeatability (7.2.3) where
@@ -969,7 +970,7 @@ typedef struct twf_calib_options {
   double step_tol_m;       /* converged when every scaled step is below this (default 1e-10 m) */
   double redundancy_tol;   /* relative independent part to keep a column (default 1e-6) */
   size_t synthetic_poses;  /* poses of the rich set for structural redundancy (0: automatic) */
-  double weak_ratio;       /* weak when the scaled predicted std exceeds weak_ratio * sigma (default 3) */
+  double weak_ratio;       /* weak when the scaled predicted std exceeds weak_ratio * sigma (default 5) */
 } twf_calib_options;
 
 twf_calib_options twf_calib_default_options(void);
@@ -1105,6 +1106,20 @@ typedef struct twf_perturbation {
  * "true" arm of a synthetic campaign. */
 void twf_model_perturb(twf_model *m, const twf_perturbation *mag,
                        unsigned long long seed);
+
+/* ------------------------------------------------------------------ */
+/* Base pose files (see twistfit-model(5), "BASE POSE FILES")          */
+/* ------------------------------------------------------------------ */
+
+/* Read a base pose file: the robot base frame in the tracker frame, one
+ * [base] section with length_unit, position and quaternion_wxyz. NULL
+ * rules and errors as twf_model_read (file, line and a hint). */
+twf_status twf_base_read(const char *path, twf_pose *base_in_tracker,
+                         twf_error *err);
+/* Write base_in_tracker in that form with 17 significant digits, position
+ * in length unit u; comment (may be NULL) becomes a leading ';' line. */
+twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,
+                          const char *comment, FILE *out, twf_error *err);
 
 /* ------------------------------------------------------------------ */
 /* Version                                                             */

@@ -11,7 +11,8 @@
  *    fragment of its row in tests/bad-models/expected.tsv;
  *  - reader details (indentation, CR LF, byte order mark, inline comments,
  *    the 198-character line, names longer than inih's 49-character buffers)
- *    and every refusal of the writer. */
+ *    and every refusal of the writer;
+ *  - the examples of twistfit-model(5) load and agree with each other. */
 #include "testutil.h"
 #include "twistfit.h"
 
@@ -755,6 +756,22 @@ START_TEST(test_long_names_and_limit_line)
   written = roundtrip(m, &back);
   assert_lines_fit(written);
   assert_same_model(m, back, 0.0, "long names");
+  /* The same with CR LF: the CR does not count. */
+  {
+    char crlf[8192];
+    size_t o = 0;
+    twf_model *m2;
+    for (const char *p = text; *p; p++) {
+      if (*p == '\n')
+        crlf[o++] = '\r';
+      crlf[o++] = *p;
+    }
+    crlf[o] = '\0';
+    write_text(path, crlf);
+    m2 = read_ok(path, NULL);
+    assert_same_model(m, m2, 0.0, "long names, CR LF");
+    twf_model_free(m2);
+  }
   free(written);
   twf_model_free(back);
   twf_model_free(m);
@@ -887,6 +904,12 @@ START_TEST(test_writer_refuses)
   twf_model_free(c);
 
   c = twf_model_copy(m);
+  c->angle_unit = (twf_angle_unit)7;
+  ck_assert_int_eq(write_to(c, &text, &err), TWF_ERR_INVALID);
+  free(text);
+  twf_model_free(c);
+
+  c = twf_model_copy(m);
   c->joints[1].scale = 0.0;
   ck_assert_int_eq(write_to(c, &text, &err), TWF_ERR_INVALID);
   free(text);
@@ -953,6 +976,73 @@ START_TEST(test_writer_metadata_and_points)
 }
 END_TEST
 
+/* ------------------------------------------------ man page examples */
+
+/* The two example files of twistfit-model(5) (the .nf/.fi blocks of its
+ * EXAMPLE section, roff escapes undone) load, and the axis-and-point and
+ * DH versions of the arm agree. */
+START_TEST(test_man_page_examples)
+{
+  char *man = slurp(twf_test_srcpath("man/twistfit-model.5"));
+  char *sec = strstr(man, "\n.SH EXAMPLE\n"), *end;
+  char *blocks[2] = { NULL, NULL };
+  char paths[2][4096];
+  twf_model *m[2];
+  int nb = 0;
+  uint64_t seed = twf_test_seed(SEED);
+  twf_test_rng rng;
+  ck_assert_ptr_nonnull(sec);
+  end = strstr(sec + 1, "\n.SH ");
+  if (end != NULL)
+    *end = '\0';
+  for (char *p = strstr(sec, "\n.nf\n"); p != NULL && nb < 3;
+       p = strstr(p, "\n.nf\n")) {
+    char *q = strstr(p + 5, "\n.fi\n"), *out;
+    size_t o = 0;
+    ck_assert_ptr_nonnull(q);
+    ck_assert_int_lt(nb, 2);
+    out = malloc((size_t)(q - p) + 2);
+    ck_assert_ptr_nonnull(out);
+    for (char *c = p + 5; c <= q; c++) {
+      if (c[0] == '\\' && c[1] == '-') {
+        out[o++] = '-';
+        c++;
+      } else if (c[0] == '\\' && c[1] == 'e') {
+        out[o++] = '\\';
+        c++;
+      } else {
+        out[o++] = *c;
+      }
+    }
+    out[o] = '\0';
+    blocks[nb++] = out;
+    p = q;
+  }
+  ck_assert_int_eq(nb, 2);
+  for (int k = 0; k < 2; k++) {
+    twf_warnings w;
+    twf_warnings_init(&w);
+    temp_name(paths[k], sizeof paths[k]);
+    write_text(paths[k], blocks[k]);
+    m[k] = read_ok(paths[k], &w);
+    ck_assert_int_eq(w.count, 0);
+    remove(paths[k]);
+    free(blocks[k]);
+  }
+  ck_assert_str_eq(m[0]->name, "planar2");
+  ck_assert_uint_eq(m[0]->n_joints, 2);
+  ck_assert_uint_eq(m[0]->n_targets, 1);
+  ck_assert(!m[0]->targets[0].offset_known);
+  ck_assert_close(m[0]->joints[1].offset, 0.25 * D2R, 1e-15);
+  twf_test_rng_init(&rng, seed);
+  assert_same_model(m[0], m[1], 1e-15, "man page examples");
+  assert_same_fk(m[0], m[1], &rng, 50, FK_TOL, "man page examples", seed);
+  twf_model_free(m[0]);
+  twf_model_free(m[1]);
+  free(man);
+}
+END_TEST
+
 static Suite *modelfile_suite(void)
 {
   Suite *s = suite_create("modelfile");
@@ -972,6 +1062,7 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_rotation_rows_polished);
   tcase_add_test(tc, test_writer_refuses);
   tcase_add_test(tc, test_writer_metadata_and_points);
+  tcase_add_test(tc, test_man_page_examples);
   suite_add_tcase(s, tc);
   return s;
 }

@@ -6,6 +6,7 @@
 
 #include "twistfit.h"
 
+#include <jansson.h>
 #include <stdio.h>
 
 /* Exit statuses: stable, documented in twistfit(1). */
@@ -27,6 +28,8 @@ typedef struct cli_command {
 } cli_command;
 
 extern const cli_command cli_cmd_fk;
+extern const cli_command cli_cmd_verify;
+extern const cli_command cli_cmd_calibrate;
 
 /* Verbosity set by -q / -v before the command: 0 quiet, 1 normal, 2 verbose. */
 extern int cli_verbosity;
@@ -76,5 +79,80 @@ int cli_parse_length_unit(const char *command, const char *value, twf_length_uni
 int cli_parse_angle_unit(const char *command, const char *value, twf_angle_unit *u);
 /* Parse a strictly finite double. Returns 0 on success. */
 int cli_parse_double(const char *text, double *out);
+
+/* The safety cautions every report that proposes parameters prints. */
+extern const char cli_safety_text[];
+
+/* Long-option codes shared by the commands that read a campaign. */
+enum {
+  CLI_OPT_JOINTS = 1000,
+  CLI_OPT_POINTS,
+  CLI_OPT_LENGTH_UNIT,
+  CLI_OPT_ANGLE_UNIT,
+  CLI_OPT_LIMITS_ERROR,
+  CLI_OPT_FIRST_FREE /* commands number their own options from here */
+};
+#define CLI_INPUT_LONGOPTS                                                     \
+  { "joints", required_argument, NULL, CLI_OPT_JOINTS },                       \
+  { "points", required_argument, NULL, CLI_OPT_POINTS },                       \
+  { "length-unit", required_argument, NULL, CLI_OPT_LENGTH_UNIT },             \
+  { "angle-unit", required_argument, NULL, CLI_OPT_ANGLE_UNIT },               \
+  { "limits-error", no_argument, NULL, CLI_OPT_LIMITS_ERROR }
+#define CLI_INPUT_HELP                                                         \
+  "      --joints FILE       two-file form: the controller's joint log ...\n"  \
+  "      --points FILE       ... and the instrument's points (instead of DATA)\n" \
+  "      --length-unit U     length unit of the data files (mm, m, um, in;\n"  \
+  "                          default: as each file declares, else mm)\n"       \
+  "      --angle-unit U      angle unit of the joint values (deg, rad, mrad;\n" \
+  "                          default: as each file declares, else deg)\n"      \
+  "      --limits-error      joint values outside the model's limits are an\n" \
+  "                          error (default: a warning)\n"
+
+/* A model and a campaign read from the command line. */
+typedef struct cli_inputs {
+  const char *model_path, *data_path, *joints_path, *points_path;
+  const char *paths[4]; /* NULL-terminated list of the input files */
+  twf_campaign_options copt;
+  twf_model *model;
+  twf_campaign *campaign;
+  twf_warnings warnings;
+} cli_inputs;
+
+void cli_inputs_init(cli_inputs *in);
+/* Handle one of the CLI_INPUT_LONGOPTS; returns 1 when handled (with
+ * *status the exit status of a bad value, else 0). */
+int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *arg,
+                      int *status);
+/* Read MODEL and DATA (argv[first], argv[first + 1]) or the two-file form;
+ * prints warnings and errors; returns an exit status. */
+int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, int first);
+void cli_inputs_free(cli_inputs *in);
+
+/* The units reports use: the model's declared ones. */
+typedef struct cli_units {
+  const char *length, *angle;
+  double length_si, angle_si; /* SI value of one unit */
+} cli_units;
+void cli_units_of(cli_units *u, const twf_model *m);
+
+/* Accuracy tables (text) and their JSON form. */
+void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary *s,
+                        const twf_model *m, const twf_campaign *c, const cli_units *u);
+void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign *c,
+                     const twf_model *m, const cli_units *u);
+json_t *cli_json_number(double v);
+json_t *cli_json_stats(const twf_stats *s, double unit);
+json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
+                          const twf_campaign *c, const cli_units *u);
+/* Write root to path ("-": stdout) atomically; returns an exit status. */
+int cli_write_json(json_t *root, const char *path, int force, const char *const *inputs);
+/* Per-measurement residual CSV with one or two variants (labels such as
+ * "before_", "after_"; pos[v] NULL to skip). */
+int cli_write_residuals(const char *path, int force, const char *const *inputs,
+                        const twf_model *m, const twf_campaign *c, const twf_meas_set *sets,
+                        const double *const pos[2], const double *const rot[2],
+                        const char *const labels[2], const cli_units *u);
+/* A positive tolerance in the given unit, to SI. */
+int cli_parse_tolerance(const char *command, const char *arg, double unit_si, double *out);
 
 #endif

@@ -104,7 +104,7 @@ static int run_fk(int argc, char **argv)
   size_t i;
 
   optind = 0;
-  while ((opt = getopt_long(argc, argv, "+o:fh", longopts, NULL)) != -1) {
+  while ((opt = getopt_long(argc, argv, "o:fh", longopts, NULL)) != -1) {
     switch (opt) {
     case 'o': output = optarg; break;
     case 'f': force = 1; break;

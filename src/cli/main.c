@@ -9,6 +9,8 @@ int cli_verbosity = 1;
 
 static const cli_command *const commands[] = {
   &cli_cmd_fk,
+  &cli_cmd_verify,
+  &cli_cmd_calibrate,
 };
 static const size_t n_commands = sizeof commands / sizeof commands[0];
 

@@ -51,7 +51,7 @@ twf_calib_options twf_calib_default_options(void)
   o.max_iterations = 100;
   o.step_tol_m = 1e-10;
   o.redundancy_tol = 1e-6;
-  o.weak_ratio = 3.0;
+  o.weak_ratio = 5.0;
   return o;
 }
 

@@ -321,9 +321,9 @@ static void classify_line(parse_ctx *c, const char *s)
 static char *read_line(char *str, int num, void *stream)
 {
   parse_ctx *c = stream;
-  char line[TWF_MODEL_LINE_MAX + 3];
+  char line[TWF_MODEL_LINE_MAX + 2];
   size_t len = 0, limit = TWF_MODEL_LINE_MAX;
-  int ch, nul = 0;
+  int ch, prev = 0, nul = 0;
   const char *s;
 
   if (c->status != TWF_OK)
@@ -333,14 +333,15 @@ static char *read_line(char *str, int num, void *stream)
     return NULL;
   if ((size_t)num - 2 < limit)
     limit = (size_t)num - 2;
-  /* Keep up to limit + 2 characters: a line of limit + 1 plus a CR is
-   * still too long, and one more tells nothing new. */
+  /* Keep up to limit + 1 characters: one more than the limit already
+   * makes the line too long; count the rest. */
   while ((ch = getc(c->fp)) != EOF && ch != '\n') {
     if (ch == '\0')
       nul = 1;
-    if (len < limit + 2)
+    if (len < limit + 1)
       line[len] = (char)ch;
     len++;
+    prev = ch;
   }
   if (ch == EOF && ferror(c->fp)) {
     fail(c, TWF_ERR_IO, c->lineno + 1, 0, "check the file and the disk",
@@ -351,7 +352,7 @@ static char *read_line(char *str, int num, void *stream)
     return NULL;
   c->lineno++;
   /* CR LF line ends: the CR is not part of the line. */
-  if (len > 0 && len <= limit + 2 && line[len - 1] == '\r')
+  if (prev == '\r')
     len--;
   if (nul) {
     fail(c, TWF_ERR_SYNTAX, c->lineno, 0,
@@ -1182,8 +1183,11 @@ static void put_num(FILE *out, double si, conv_kind k, const units *u)
       /* %g writes 1060 as 1.06e+03 at 3 digits: plain notation reads
        * better and is the same number. */
       if (strchr(s, 'e') != NULL && fabs(v) >= 1e-4 && fabs(v) < 1e17) {
+        char f[40];
         int decimals = prec - 1 - (int)floor(log10(fabs(v)));
-        snprintf(s, sizeof s, "%.*f", decimals > 0 ? decimals : 0, v);
+        snprintf(f, sizeof f, "%.*f", decimals > 0 ? decimals : 0, v);
+        if (to_si(strtod(f, NULL), k, u) == si)
+          memcpy(s, f, sizeof s);
       }
       fputs(s, out);
       return;
@@ -1285,6 +1289,11 @@ static twf_status write_check(const twf_model *m, twf_error *err)
   if (m->n_joints == 0 || m->joints == NULL)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "model has no joints");
+  if (strcmp(twf_length_unit_name(m->length_unit), "?") == 0 ||
+      strcmp(twf_angle_unit_name(m->angle_unit), "?") == 0)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "model declares an unknown unit (%d, %d)",
+                         (int)m->length_unit, (int)m->angle_unit);
   if (m->n_targets > 0 && m->targets == NULL)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "model has %zu targets but no target array",

@@ -10,7 +10,6 @@
  * caller's next step (see twistfit.h). */
 #include "internal.h"
 
-#include <float.h>
 #include <stdlib.h>
 
 #include <gsl/gsl_errno.h>
@@ -45,14 +44,13 @@ static int cloud_shape(const double *x, const double *w, size_t n,
                        double sumw, double centroid[3], double sv[3],
                        double *rms_size)
 {
-  double C[9] = { 0 }, work[3], vbuf[9];
+  double C[9] = { 0 }, vbuf[9];
   double ss = 0.0;
   size_t i;
   int r, c;
   gsl_matrix_view Cm = gsl_matrix_view_array(C, 3, 3);
   gsl_matrix_view Vm = gsl_matrix_view_array(vbuf, 3, 3);
   gsl_vector_view Sv = gsl_vector_view_array(sv, 3);
-  gsl_vector_view Wv = gsl_vector_view_array(work, 3);
 
   centroid[0] = centroid[1] = centroid[2] = 0.0;
   for (i = 0; i < n; i++) {
@@ -79,7 +77,6 @@ static int cloud_shape(const double *x, const double *w, size_t n,
    * values are its eigenvalues. */
   if (gsl_linalg_SV_decomp_jacobi(&Cm.matrix, &Vm.matrix, &Sv.vector) != GSL_SUCCESS)
     return -1;
-  (void)Wv;
   for (c = 0; c < 3; c++)
     sv[c] = sqrt(fmax(sv[c], 0.0));
   return 0;
@@ -106,11 +103,10 @@ static reg_outcome register_core(const double *a, const double *b,
                                  size_t *n_pos, int *which)
 {
   double sumw = 0.0, ca[3], cb[3];
-  double H[9] = { 0 }, vbuf[9], sv[3], work[3];
+  double H[9] = { 0 }, vbuf[9], sv[3];
   gsl_matrix_view Hm = gsl_matrix_view_array(H, 3, 3);
   gsl_matrix_view Vm = gsl_matrix_view_array(vbuf, 3, 3);
   gsl_vector_view Sv = gsl_vector_view_array(sv, 3);
-  gsl_vector_view Wv = gsl_vector_view_array(work, 3);
   size_t i, count = 0;
   reg_outcome o;
   int r, c, k;
@@ -150,12 +146,11 @@ static reg_outcome register_core(const double *a, const double *b,
       for (c = 0; c < 3; c++)
         H[3 * r + c] += wi * da[r] * db[c];
   }
-  /* gsl_linalg_SV_decomp overwrites H with U and returns V untransposed;
-   * the one-sided Jacobi variant is accurate for the tiny s3 of a planar
-   * cloud. */
+  /* The SVD overwrites H with U, returns V untransposed and the singular
+   * values in decreasing order (one-sided Jacobi: accurate for small
+   * singular values). */
   if (gsl_linalg_SV_decomp_jacobi(&Hm.matrix, &Vm.matrix, &Sv.vector) != GSL_SUCCESS)
     return REG_NUMERIC;
-  (void)Wv;
   {
     /* Complete U and V to rotations from their first two columns:
      * u3 = u1 x u2 = det(U) u3 and v3 = v1 x v2 = det(V) v3, so that
@@ -727,12 +722,22 @@ twf_status twf_register_campaign(const twf_model *model,
     rep.rms_m = sqrt(ss / (double)wk.n);
     rep.max_m = mx;
   }
-  for (k = 0; k < nt; k++)
-    if (wk.fitted[k] && orientation_spread(&wk, campaign, k) < TWF_REG_SEPARABLE_TOL) {
-      if (rep.n_inseparable == 0)
-        rep.first_inseparable = (long)k;
-      rep.n_inseparable++;
-    }
+  /* A trusted target measured in the fit set pins the base pose (unless
+   * its own points are degenerate), and given B every offset is
+   * determined: then nothing trades off. */
+  {
+    int pinned = 0;
+    for (k = 0; k < nt; k++)
+      if (!wk.fitted[k] && fit_count[k] > 0)
+        pinned = 1;
+    for (k = 0; k < nt && !pinned; k++)
+      if (wk.fitted[k]
+          && orientation_spread(&wk, campaign, k) < TWF_REG_SEPARABLE_TOL) {
+        if (rep.n_inseparable == 0)
+          rep.first_inseparable = (long)k;
+        rep.n_inseparable++;
+      }
+  }
   *base_in_tracker = B;
   memcpy(target_offsets, offsets, 3 * nt * sizeof *offsets);
   if (report != NULL)

@@ -1,0 +1,683 @@
+/* cmd_calibrate.c: `twistfit calibrate MODEL DATA`: fit the PoE error
+ * model to a campaign, report accuracy before and after, the as-built
+ * geometry, identifiability and warnings, and write the as-built model, the
+ * base pose, JSON and residuals on request. */
+#define _GNU_SOURCE
+#include "config.h"
+#include "cli.h"
+
+#include <getopt.h>
+#include <math.h>
+#include <sha2.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+static const char calibrate_help[] =
+  "Usage: twistfit calibrate [OPTIONS] MODEL DATA.csv\n"
+  "       twistfit calibrate [OPTIONS] MODEL --joints JOINTS.csv --points POINTS.csv\n"
+  "\n"
+  "Calibrate: register MODEL to the instrument, then fit the chosen parameter\n"
+  "groups by Levenberg-Marquardt with redundant parameters fixed, screen\n"
+  "outliers, and report accuracy before (registered MODEL) and after, on the fit\n"
+  "and check sets; the as-built joint lines against MODEL's; identifiability;\n"
+  "warnings. The report goes to standard output, in MODEL's units.\n"
+  "\n"
+  "Options:\n"
+  CLI_INPUT_HELP
+  "  -o, --output FILE       write the as-built model (model file, axis-and-point form)\n"
+  "      --base-output FILE  write the fitted base pose in the tracker frame\n"
+  "      --json FILE         write the report as JSON ('-': standard output, then the\n"
+  "                          text report goes to standard error)\n"
+  "      --residuals FILE    write the per-measurement residuals before and after (CSV)\n"
+  "      --fit GROUPS        parameter groups, comma-separated: base, targets, offsets,\n"
+  "                          home, shifts, tilts, axes (= shifts,tilts), scale; or a preset:\n"
+  "                          geometric (default: all but scale), remaster (base,targets,\n"
+  "                          offsets: re-mastering after a crash or a motor swap, best\n"
+  "                          started from the previous as-built model), all\n"
+  "      --priority GROUPS   order in which redundant parameters are kept (default\n"
+  "                          base,targets,offsets,home,shifts,tilts,scale); groups left\n"
+  "                          out follow in the default order\n"
+  "      --sigma X           standard deviation of one measured coordinate (length unit)\n"
+  "                          where the data give none (default: estimated from the fit)\n"
+  "      --sigma-angle X     of one orientation component (angle unit), for 6-D rows\n"
+  "      --robust MODE       outlier screen: drop (default), huber, cauchy or off\n"
+  "      --robust-threshold K  in robust standard deviations of the error (default 5)\n"
+  "      --check-fraction F  also hold out this fraction of the poses as check data\n"
+  "      --seed N            seed of the held-out draw and of the synthetic pose set\n"
+  "      --max-iterations N  solver iterations per fit (default 100)\n"
+  "  -f, --force             replace output files that exist\n"
+  "  -h, --help              show this help\n"
+  "\n"
+  "No output file is written when the solver fails. Output files are written\n"
+  "atomically, never over an input, and replace an existing file only with --force.\n";
+
+enum {
+  OPT_BASE_OUT = CLI_OPT_FIRST_FREE, OPT_JSON, OPT_RESIDUALS, OPT_FIT, OPT_PRIORITY, OPT_SIGMA,
+  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT
+};
+
+/* Parse a comma list of groups or a preset into a mask. */
+static int parse_groups(const char *text, unsigned *mask)
+{
+  char buf[256], *tok, *save = NULL;
+  *mask = 0;
+  if (strcmp(text, "geometric") == 0) { *mask = TWF_GROUPS_GEOMETRIC; return 0; }
+  if (strcmp(text, "remaster") == 0) { *mask = TWF_GROUPS_REMASTER; return 0; }
+  if (strcmp(text, "all") == 0) {
+    *mask = TWF_GROUPS_GEOMETRIC | TWF_GROUP_BIT(TWF_GROUP_SCALE);
+    return 0;
+  }
+  if (strlen(text) >= sizeof buf)
+    return -1;
+  strcpy(buf, text);
+  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
+    unsigned m;
+    if (twf_group_parse(tok, &m) != TWF_OK)
+      return -1;
+    *mask |= m;
+  }
+  return *mask ? 0 : -1;
+}
+
+static int parse_priority(const char *text, twf_group priority[TWF_GROUP_COUNT])
+{
+  char buf[256], *tok, *save = NULL;
+  int used[TWF_GROUP_COUNT] = { 0 }, n = 0, g;
+  if (strlen(text) >= sizeof buf)
+    return -1;
+  strcpy(buf, text);
+  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
+    unsigned m;
+    if (twf_group_parse(tok, &m) != TWF_OK)
+      return -1;
+    for (g = 0; g < TWF_GROUP_COUNT; g++)
+      if ((m & TWF_GROUP_BIT(g)) && !used[g]) {
+        used[g] = 1;
+        priority[n++] = (twf_group)g;
+      }
+  }
+  for (g = 0; g < TWF_GROUP_COUNT; g++)
+    if (!used[g])
+      priority[n++] = (twf_group)g;
+  return 0;
+}
+
+/* Value of a parameter in report units, with its unit name. */
+static double param_shown(const twf_param *p, double v, const cli_units *u, const char **unit)
+{
+  switch (p->kind) {
+  case TWF_PARAM_LENGTH: *unit = u->length; return v / u->length_si;
+  case TWF_PARAM_ANGLE: *unit = u->angle; return v / u->angle_si;
+  case TWF_PARAM_RATIO: break;
+  }
+  *unit = "ppm";
+  return v * 1e6;
+}
+
+static const char *status_name(twf_param_status s)
+{
+  switch (s) {
+  case TWF_PARAM_KEPT: return "estimated";
+  case TWF_PARAM_FIXED_STRUCTURAL: return "fixed (redundant)";
+  case TWF_PARAM_FIXED_DATA: return "fixed (not in the data)";
+  }
+  return "?";
+}
+
+static const char *robust_name(twf_robust r)
+{
+  switch (r) {
+  case TWF_ROBUST_OFF: return "off";
+  case TWF_ROBUST_DROP: return "drop";
+  case TWF_ROBUST_HUBER: return "huber";
+  case TWF_ROBUST_CAUCHY: return "cauchy";
+  }
+  return "?";
+}
+
+static void explain_text(const twf_calib_result *r, const twf_param_result *p, char *buf, size_t n)
+{
+  size_t k, used = 0;
+  buf[0] = '\0';
+  for (k = 0; k < p->n_explain && used + 1 < n; k++) {
+    int w = snprintf(buf + used, n - used, "%s%s %+.3g", k ? ", " : "", r->params[p->explain[k]].param.name,
+                     p->explain_coef[k]);
+    if (w < 0)
+      break;
+    used += (size_t)w;
+  }
+}
+
+typedef struct digest { const char *path; char hex[SHA256_DIGEST_STRING_LENGTH]; } digest;
+
+static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result *r,
+                         const twf_calib_options *co, const twf_accuracy_summary *before,
+                         const twf_accuracy_summary *after, const twf_stats *screened,
+                         const twf_campaign *view, const cli_units *u, const digest *dg, size_t n_dg,
+                         const char *created, const twf_warnings *w)
+{
+  size_t j, i;
+  const twf_model *m = in->model;
+  char expl[256];
+  fprintf(fp, "twistfit %s calibrate, %s\n", twf_version(), created);
+  for (i = 0; i < n_dg; i++)
+    fprintf(fp, "input: %s (SHA-256 %s)\n", dg[i].path, dg[i].hex);
+  fprintf(fp, "model: %s, %zu joints, %zu targets; units %s and %s\n", m->name, m->n_joints,
+          m->n_targets, u->length, u->angle);
+  fprintf(fp, "campaign: %zu poses, %zu measurements: %zu fit, %zu check%s\n", view->n_poses,
+          view->n_meas, r->n_fit_meas, r->n_check_meas, view->has_orientation_any ? " (6-D rows)" : "");
+  fprintf(fp, "noise: sigma %.4f %s per coordinate (%s)\n", r->sigma_length / u->length_si, u->length,
+          r->sigma_estimated ? "estimated from the fit residuals" : "given");
+  fputc('\n', fp);
+  cli_print_accuracy(fp, "Accuracy before calibration (starting model, registered)", before, m, view, u);
+  fputc('\n', fp);
+  cli_print_accuracy(fp, "Accuracy after calibration (as-built model)", after, m, view, u);
+  if (screened->count > 0 && screened->count < after->position[TWF_SET_FIT].count)
+    fprintf(fp, "  fit set without the %zu dropped measurements: count %zu, mean %.4f, rms %.4f, p95 %.4f, max %.4f %s\n",
+            after->position[TWF_SET_FIT].count - screened->count, screened->count, screened->mean / u->length_si,
+            screened->rms / u->length_si, screened->p95 / u->length_si, screened->max / u->length_si, u->length);
+  cli_print_worst(fp, after, view, m, u);
+
+  fprintf(fp, "\nSolver\n");
+  fprintf(fp, "  registration refinement: %d iterations, stop: %s\n", r->registration.iterations,
+          twf_stop_name(r->registration.stop));
+  fprintf(fp, "  calibration: %d iterations, cost %.6g -> %.6g, stop: %s%s\n", r->solve.iterations,
+          r->solve.cost_start, r->solve.cost_end, twf_stop_name(r->solve.stop),
+          twf_stop_converged(r->solve.stop) ? " (converged)" : "");
+  fprintf(fp, "  outlier screen: %s, threshold %.3g robust standard deviations, %d refits\n",
+          robust_name(co->robust), co->robust_threshold, r->robust_rounds);
+  if (r->n_outliers > 0) {
+    fprintf(fp, "  %zu measurements affected (error at the first fit, %s):\n", r->n_outliers, u->length);
+    for (i = 0; i < r->n_outliers; i++) {
+      const twf_outlier *o = &r->outliers[i];
+      const twf_measurement *ms = &view->meas[o->meas];
+      fprintf(fp, "    line %ld: pose %s target %s: %.4f (%.1f robust sd), %s\n", ms->line,
+              view->pose_ids[ms->pose], m->targets[ms->target].name, o->error_m / u->length_si, o->score,
+              o->weight == 0.0 ? "dropped" : "down-weighted");
+    }
+  }
+
+  fprintf(fp, "\nAs-built geometry against the starting model\n");
+  fprintf(fp, "  datum: the base frame that best aligns the as-built joint lines with the\n"
+              "  starting model's (lines at logged zero; RMS misfit %.4f %s)\n",
+          r->comparison.datum_rms_m / u->length_si, u->length);
+  fprintf(fp, "  %-8s %14s %14s %14s\n", "joint", "tilt", "line shift", "offset");
+  fprintf(fp, "  %-8s %14s %14s %14s\n", "", u->angle, u->length, m->joints[0].type == TWF_JOINT_REVOLUTE ? u->angle : u->length);
+  for (j = 0; j < m->n_joints; j++) {
+    const twf_joint_deviation *d = &r->comparison.joints[j];
+    int rev = m->joints[j].type == TWF_JOINT_REVOLUTE;
+    fprintf(fp, "  %-8s %14.5f %14.4f %14.5f%s\n", m->joints[j].name, d->angle_rad / u->angle_si,
+            d->distance_m / u->length_si, d->offset / (rev ? u->angle_si : u->length_si),
+            rev ? "" : " (prismatic: offset in length unit)");
+  }
+  for (j = 0; j < m->n_targets; j++) {
+    const double *t = r->comparison.target_change_m + 3 * j;
+    if (isnan(t[0]))
+      continue;
+    fprintf(fp, "  target %s at logged zero moved by %.4f %.4f %.4f %s\n", m->targets[j].name,
+            t[0] / u->length_si, t[1] / u->length_si, t[2] / u->length_si, u->length);
+  }
+  for (j = 0; j < r->asbuilt->n_targets; j++)
+    if (r->asbuilt->targets[j].offset_known && r->registered->targets[j].offset_known)
+      fprintf(fp, "  target %s offset (flange frame): %.4f %.4f %.4f %s\n", m->targets[j].name,
+              r->asbuilt->targets[j].offset[0] / u->length_si, r->asbuilt->targets[j].offset[1] / u->length_si,
+              r->asbuilt->targets[j].offset[2] / u->length_si, u->length);
+  if (view->has_orientation_any)
+    fprintf(fp, "  flange at logged zero: rotated %.5f %s, moved %.4f %s\n",
+            r->comparison.home_angle_rad / u->angle_si, u->angle,
+            r->comparison.home_distance_m / u->length_si, u->length);
+  fprintf(fp, "  (the offset column is the fitted joint offset; which redundant offsets are\n"
+              "  fixed depends on --priority, the tilt and line shift columns do not)\n");
+
+  fprintf(fp, "\nIdentifiability\n");
+  fprintf(fp, "  requested %zu parameters; identifiable for this arm and measurement kind %zu;\n"
+              "  estimated %zu; fixed as redundant %zu; fixed because the poses cannot determine them %zu;\n"
+              "  weak %zu\n",
+          r->n_params, r->structural_count, r->n_kept, r->n_fixed_structural, r->n_fixed_data, r->n_weak);
+  fprintf(fp, "  condition number of the scaled Jacobian %.4g; observability O1 %.4g, O2 %.4g, O3 %.4g, O4 %.4g\n",
+          r->condition_number, r->observability[0], r->observability[1], r->observability[2],
+          r->observability[3]);
+  for (j = 0; j < r->n_params; j++) {
+    const twf_param_result *p = &r->params[j];
+    if (p->status == TWF_PARAM_KEPT)
+      continue;
+    explain_text(r, p, expl, sizeof expl);
+    fprintf(fp, "  %-14s %s%s%s\n", p->param.name, status_name(p->status), expl[0] ? ": ~ " : "", expl);
+  }
+  if (r->n_correlations > 0) {
+    fprintf(fp, "  strongest correlations above 0.9:");
+    for (i = 0; i < r->n_correlations; i++)
+      fprintf(fp, "%s %s/%s %.3f", i ? "," : "", r->params[r->correlations[i].a].param.name,
+              r->params[r->correlations[i].b].param.name, r->correlations[i].rho);
+    fputc('\n', fp);
+  }
+
+  fprintf(fp, "\nParameters (raw, in the error model's coordinates; change from the starting model)\n");
+  fprintf(fp, "  %-8s %-14s %14s %12s %-5s %s\n", "group", "name", "value", "std", "unit", "status");
+  for (j = 0; j < r->n_params; j++) {
+    const twf_param_result *p = &r->params[j];
+    const char *unit;
+    double v = param_shown(&p->param, p->value, u, &unit);
+    double s = param_shown(&p->param, p->std, u, &unit);
+    if (p->status == TWF_PARAM_KEPT)
+      fprintf(fp, "  %-8s %-14s %14.6f %12.6f %-5s %s%s\n", twf_group_name(p->param.group), p->param.name, v, s,
+              unit, status_name(p->status), p->weak ? ", weak" : "");
+    else
+      fprintf(fp, "  %-8s %-14s %14s %12s %-5s %s\n", twf_group_name(p->param.group), p->param.name, "-", "-",
+              unit, status_name(p->status));
+  }
+  if (w->count > 0) {
+    fprintf(fp, "\nWarnings\n");
+    for (i = 0; i < w->count; i++)
+      fprintf(fp, "  - %s\n", w->items[i].message);
+  }
+  fprintf(fp, "\n%s", cli_safety_text);
+}
+
+static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
+                           const twf_accuracy_summary *before, const twf_accuracy_summary *after,
+                           const twf_stats *screened, const twf_campaign *view, const cli_units *u, const digest *dg, size_t n_dg,
+                           const char *created, const twf_warnings *w)
+{
+  json_t *root = json_object(), *inputs = json_array(), *params = json_array(), *joints = json_array();
+  json_t *warn = json_array(), *outl = json_array(), *corr = json_array(), *ident;
+  size_t i, j;
+  const twf_model *m = in->model;
+  for (i = 0; i < n_dg; i++)
+    json_array_append_new(inputs, json_pack("{s:s, s:s}", "path", dg[i].path, "sha256", dg[i].hex));
+  json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
+  json_object_set_new(root, "command", json_string("calibrate"));
+  json_object_set_new(root, "created", json_string(created));
+  json_object_set_new(root, "inputs", inputs);
+  json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u->length, "angle", u->angle));
+  json_object_set_new(root, "campaign",
+                      json_pack("{s:I, s:I, s:I, s:I}", "poses", (json_int_t)view->n_poses, "measurements",
+                                (json_int_t)view->n_meas, "fit", (json_int_t)r->n_fit_meas, "check",
+                                (json_int_t)r->n_check_meas));
+  json_object_set_new(root, "sigma", json_pack("{s:o, s:b}", "length", cli_json_number(r->sigma_length / u->length_si),
+                                               "estimated", r->sigma_estimated));
+  json_object_set_new(root, "accuracy_before", cli_json_accuracy(before, m, view, u));
+  json_object_set_new(root, "accuracy_after", cli_json_accuracy(after, m, view, u));
+  json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(screened, u->length_si));
+  json_object_set_new(root, "solver",
+                      json_pack("{s:{s:i, s:s}, s:{s:i, s:o, s:o, s:s, s:b}, s:{s:s, s:o, s:i}}",
+                                "registration", "iterations", r->registration.iterations, "stop",
+                                twf_stop_name(r->registration.stop), "calibration", "iterations",
+                                r->solve.iterations, "cost_start", cli_json_number(r->solve.cost_start),
+                                "cost_end", cli_json_number(r->solve.cost_end), "stop",
+                                twf_stop_name(r->solve.stop), "converged", twf_stop_converged(r->solve.stop),
+                                "robust", "mode", robust_name(co->robust), "threshold",
+                                cli_json_number(co->robust_threshold), "refits", r->robust_rounds));
+  for (i = 0; i < r->n_outliers; i++) {
+    const twf_outlier *o = &r->outliers[i];
+    const twf_measurement *ms = &view->meas[o->meas];
+    json_array_append_new(outl, json_pack("{s:I, s:s, s:s, s:o, s:o, s:o}", "line", (json_int_t)ms->line, "pose",
+                                          view->pose_ids[ms->pose], "target", m->targets[ms->target].name,
+                                          "error", cli_json_number(o->error_m / u->length_si), "score",
+                                          cli_json_number(o->score), "weight", cli_json_number(o->weight)));
+  }
+  json_object_set_new(root, "outliers", outl);
+  for (j = 0; j < m->n_joints; j++) {
+    const twf_joint_deviation *d = &r->comparison.joints[j];
+    int rev = m->joints[j].type == TWF_JOINT_REVOLUTE;
+    json_array_append_new(joints, json_pack("{s:s, s:o, s:o, s:o}", "joint", m->joints[j].name, "tilt",
+                                            cli_json_number(d->angle_rad / u->angle_si), "line_shift",
+                                            cli_json_number(d->distance_m / u->length_si), "offset",
+                                            cli_json_number(d->offset / (rev ? u->angle_si : u->length_si))));
+  }
+  json_object_set_new(root, "asbuilt_deviation",
+                      json_pack("{s:s, s:o, s:o}", "datum", "best alignment of the joint lines at logged zero",
+                                "datum_rms", cli_json_number(r->comparison.datum_rms_m / u->length_si), "joints",
+                                joints));
+  for (j = 0; j < r->n_params; j++) {
+    const twf_param_result *p = &r->params[j];
+    const char *unit;
+    double v = param_shown(&p->param, p->value, u, &unit);
+    double s = param_shown(&p->param, p->std, u, &unit);
+    json_t *o = json_pack("{s:s, s:s, s:s, s:s, s:b}", "group", twf_group_name(p->param.group), "name",
+                          p->param.name, "unit", unit, "status", status_name(p->status), "weak", p->weak);
+    json_object_set_new(o, "value", p->status == TWF_PARAM_KEPT ? cli_json_number(v) : json_null());
+    json_object_set_new(o, "std", p->status == TWF_PARAM_KEPT ? cli_json_number(s) : json_null());
+    if (p->n_explain > 0) {
+      json_t *e = json_array();
+      for (i = 0; i < p->n_explain; i++)
+        json_array_append_new(e, json_pack("{s:s, s:o}", "param", r->params[p->explain[i]].param.name, "coef",
+                                           cli_json_number(p->explain_coef[i])));
+      json_object_set_new(o, "explained_by", e);
+    }
+    json_array_append_new(params, o);
+  }
+  json_object_set_new(root, "parameters", params);
+  for (i = 0; i < r->n_correlations; i++)
+    json_array_append_new(corr, json_pack("{s:s, s:s, s:o}", "a", r->params[r->correlations[i].a].param.name, "b",
+                                          r->params[r->correlations[i].b].param.name, "rho",
+                                          cli_json_number(r->correlations[i].rho)));
+  ident = json_pack("{s:I, s:I, s:I, s:I, s:I, s:I, s:o, s:[o,o,o,o], s:o}", "requested",
+                    (json_int_t)r->n_params, "identifiable", (json_int_t)r->structural_count, "estimated",
+                    (json_int_t)r->n_kept, "fixed_redundant", (json_int_t)r->n_fixed_structural,
+                    "fixed_by_data", (json_int_t)r->n_fixed_data, "weak", (json_int_t)r->n_weak,
+                    "condition_number", cli_json_number(r->condition_number), "observability",
+                    cli_json_number(r->observability[0]), cli_json_number(r->observability[1]),
+                    cli_json_number(r->observability[2]), cli_json_number(r->observability[3]),
+                    "correlations", corr);
+  json_object_set_new(root, "identifiability", ident);
+  for (i = 0; i < w->count; i++)
+    json_array_append_new(warn, json_string(w->items[i].message));
+  json_object_set_new(root, "warnings", warn);
+  json_object_set_new(root, "safety", json_string(cli_safety_text));
+  return root;
+}
+
+static int write_model_file(const char *path, int force, const char *const *inputs, const twf_model *m)
+{
+  cli_output out;
+  twf_error err;
+  int st;
+  twf_error_clear(&err);
+  if ((st = cli_output_open(&out, path, force, inputs, &err)) != 0)
+    return cli_report_error(&err);
+  fprintf(out.fp, "; As-built model written by twistfit calibrate. A changed model moves the real\n"
+                  "; arm differently: keep the previous parameters, verify at reduced speed with\n"
+                  "; the cell's safety functions active, and validate on held-out poses first.\n");
+  if (twf_model_write(m, out.fp, &err) != TWF_OK) {
+    cli_output_abort(&out);
+    return cli_report_error(&err);
+  }
+  return cli_output_commit(&out);
+}
+
+static int write_base_file(const char *path, int force, const char *const *inputs, const twf_pose *B,
+                           twf_length_unit lu)
+{
+  cli_output out;
+  twf_error err;
+  int st;
+  twf_error_clear(&err);
+  if ((st = cli_output_open(&out, path, force, inputs, &err)) != 0)
+    return cli_report_error(&err);
+  if (twf_base_write(B, lu, "base pose fitted by twistfit calibrate", out.fp, &err) != TWF_OK) {
+    cli_output_abort(&out);
+    return cli_report_error(&err);
+  }
+  return cli_output_commit(&out);
+}
+
+/* Model files keep every line under TWF_MODEL_LINE_MAX: shorten long
+ * metadata values (a long command line or path) with a marked cut. */
+static void meta_set_short(twf_model *m, const char *key, const char *value)
+{
+  char buf[TWF_MODEL_LINE_MAX];
+  size_t room = TWF_MODEL_LINE_MAX - strlen(key) - 8;
+  if (strlen(value) <= room) {
+    twf_model_meta_set(m, key, value);
+    return;
+  }
+  snprintf(buf, sizeof buf, "...%s", value + strlen(value) - (room - 3));
+  twf_model_meta_set(m, key, buf);
+}
+
+static int run_calibrate(int argc, char **argv)
+{
+  static const struct option longopts[] = {
+    CLI_INPUT_LONGOPTS,
+    { "output", required_argument, NULL, 'o' },
+    { "base-output", required_argument, NULL, OPT_BASE_OUT },
+    { "json", required_argument, NULL, OPT_JSON },
+    { "residuals", required_argument, NULL, OPT_RESIDUALS },
+    { "fit", required_argument, NULL, OPT_FIT },
+    { "priority", required_argument, NULL, OPT_PRIORITY },
+    { "sigma", required_argument, NULL, OPT_SIGMA },
+    { "sigma-angle", required_argument, NULL, OPT_SIGMA_ANGLE },
+    { "robust", required_argument, NULL, OPT_ROBUST },
+    { "robust-threshold", required_argument, NULL, OPT_ROBUST_K },
+    { "check-fraction", required_argument, NULL, OPT_CHECK_FRACTION },
+    { "seed", required_argument, NULL, OPT_SEED },
+    { "max-iterations", required_argument, NULL, OPT_MAXIT },
+    { "force", no_argument, NULL, 'f' },
+    { "help", no_argument, NULL, 'h' },
+    { NULL, 0, NULL, 0 }
+  };
+  const char *model_out = NULL, *base_out = NULL, *json_path = NULL, *residuals_path = NULL;
+  const char *sigma_text = NULL, *sigma_angle_text = NULL, *fit_text = NULL, *priority_text = NULL;
+  int force = 0, opt, status = TWF_EXIT_OK;
+  cli_inputs in;
+  cli_units u;
+  twf_calib_options co = twf_calib_default_options();
+  twf_calib_result *res = NULL;
+  twf_warnings warnings;
+  twf_error err;
+  twf_campaign view;
+  twf_measurement *meas = NULL;
+  twf_accuracy_summary *before = NULL, *after = NULL;
+  twf_stats screened;
+  json_t *root = NULL;
+  digest dg[3];
+  size_t n_dg = 0, i;
+  char created[64], cmdline[1024];
+  FILE *txt = stdout;
+
+  cli_inputs_init(&in);
+  twf_warnings_init(&warnings);
+  optind = 0;
+  while ((opt = getopt_long(argc, argv, "o:fh", longopts, NULL)) != -1) {
+    if (cli_inputs_option(&in, "calibrate", opt, optarg, &status)) {
+      if (status != 0)
+        goto done;
+      continue;
+    }
+    switch (opt) {
+    case 'o': model_out = optarg; break;
+    case OPT_BASE_OUT: base_out = optarg; break;
+    case OPT_JSON: json_path = optarg; break;
+    case OPT_RESIDUALS: residuals_path = optarg; break;
+    case OPT_FIT: fit_text = optarg; break;
+    case OPT_PRIORITY: priority_text = optarg; break;
+    case OPT_SIGMA: sigma_text = optarg; break;
+    case OPT_SIGMA_ANGLE: sigma_angle_text = optarg; break;
+    case OPT_ROBUST:
+      if (strcmp(optarg, "drop") == 0) co.robust = TWF_ROBUST_DROP;
+      else if (strcmp(optarg, "huber") == 0) co.robust = TWF_ROBUST_HUBER;
+      else if (strcmp(optarg, "cauchy") == 0) co.robust = TWF_ROBUST_CAUCHY;
+      else if (strcmp(optarg, "off") == 0) co.robust = TWF_ROBUST_OFF;
+      else { status = cli_usage_error("calibrate", "--robust takes drop, huber, cauchy or off"); goto done; }
+      break;
+    case OPT_ROBUST_K:
+      if (cli_parse_double(optarg, &co.robust_threshold) != 0 || co.robust_threshold <= 0) {
+        status = cli_usage_error("calibrate", "--robust-threshold takes a positive number");
+        goto done;
+      }
+      break;
+    case OPT_CHECK_FRACTION:
+      if (cli_parse_double(optarg, &co.check_fraction) != 0 || co.check_fraction < 0 || co.check_fraction >= 1) {
+        status = cli_usage_error("calibrate", "--check-fraction takes a number from 0 up to (not including) 1");
+        goto done;
+      }
+      break;
+    case OPT_SEED: {
+      char *end;
+      co.seed = strtoull(optarg, &end, 10);
+      if (*end != '\0' || *optarg == '\0' || *optarg == '-') {
+        status = cli_usage_error("calibrate", "--seed takes a non-negative whole number");
+        goto done;
+      }
+      break;
+    }
+    case OPT_MAXIT: {
+      char *end;
+      long v = strtol(optarg, &end, 10);
+      if (*end != '\0' || v < 1 || v > 100000) {
+        status = cli_usage_error("calibrate", "--max-iterations takes a count from 1 to 100000");
+        goto done;
+      }
+      co.max_iterations = (int)v;
+      break;
+    }
+    case 'f': force = 1; break;
+    case 'h': fputs(calibrate_help, stdout); goto done;
+    default: status = cli_usage_error("calibrate", "invalid option"); goto done;
+    }
+  }
+  if (fit_text != NULL && parse_groups(fit_text, &co.groups) != 0) {
+    status = cli_usage_error("calibrate", "unknown group in --fit '%s'", fit_text);
+    goto done;
+  }
+  if (priority_text != NULL && parse_priority(priority_text, co.priority) != 0) {
+    status = cli_usage_error("calibrate", "unknown group in --priority '%s'", priority_text);
+    goto done;
+  }
+  if ((status = cli_inputs_load(&in, "calibrate", argc, argv, optind)) != 0)
+    goto done;
+  cli_units_of(&u, in.model);
+  if (sigma_text != NULL && (status = cli_parse_tolerance("calibrate", sigma_text, u.length_si, &co.sigma_length)) != 0)
+    goto done;
+  if (sigma_angle_text != NULL &&
+      (status = cli_parse_tolerance("calibrate", sigma_angle_text, u.angle_si, &co.sigma_angle)) != 0)
+    goto done;
+  if (json_path != NULL && strcmp(json_path, "-") == 0)
+    txt = stderr;
+  /* refuse outputs that would fail after the work is done */
+  {
+    const char *outs[4] = { model_out, base_out, json_path, residuals_path };
+    size_t a, b;
+    for (a = 0; a < 4; a++)
+      for (b = a + 1; b < 4; b++)
+        if (outs[a] && outs[b] && strcmp(outs[a], "-") != 0 && strcmp(outs[a], outs[b]) == 0) {
+          status = cli_usage_error("calibrate", "two outputs share the name '%s'", outs[a]);
+          goto done;
+        }
+  }
+
+  for (i = 0; in.paths[i] != NULL; i++) {
+    dg[n_dg].path = in.paths[i];
+    if (SHA256File(in.paths[i], dg[n_dg].hex) == NULL)
+      strcpy(dg[n_dg].hex, "unreadable");
+    n_dg++;
+  }
+  {
+    time_t now = time(NULL);
+    struct tm tmv;
+    gmtime_r(&now, &tmv);
+    strftime(created, sizeof created, "%Y-%m-%dT%H:%M:%SZ", &tmv);
+  }
+
+  twf_error_clear(&err);
+  if (twf_calibrate(in.model, in.campaign, &co, &res, &warnings, &err) != TWF_OK) {
+    cli_print_warnings(&warnings);
+    status = cli_report_error(&err);
+    fprintf(stderr, "twistfit: no output file was written\n");
+    goto done;
+  }
+
+  /* the campaign with the effective sets, for the summaries */
+  view = *in.campaign;
+  meas = malloc(view.n_meas * sizeof *meas);
+  if (meas == NULL) {
+    status = TWF_EXIT_INTERNAL;
+    goto done;
+  }
+  memcpy(meas, in.campaign->meas, view.n_meas * sizeof *meas);
+  for (i = 0; i < view.n_meas; i++)
+    meas[i].set = res->meas_set[i];
+  view.meas = meas;
+  before = twf_accuracy_summarize(&view, in.model->n_targets, res->residual_before, res->rot_before, 5, &err);
+  after = before ? twf_accuracy_summarize(&view, in.model->n_targets, res->residual_after, res->rot_after, 5, &err)
+                 : NULL;
+  if (before == NULL || after == NULL) {
+    status = cli_report_error(&err);
+    goto done;
+  }
+
+  /* metadata of the as-built model */
+  {
+    size_t used = 0;
+    int k;
+    char key[TWF_NAME_MAX], val[64];
+    cmdline[0] = '\0';
+    for (k = 0; k < argc && used + 2 < sizeof cmdline; k++) {
+      int w = snprintf(cmdline + used, sizeof cmdline - used, "%s%s", k ? " " : "twistfit ", argv[k]);
+      if (w < 0)
+        break;
+      used = used + (size_t)w < sizeof cmdline ? used + (size_t)w : sizeof cmdline - 1;
+    }
+    twf_model_meta_set(res->asbuilt, "created", created);
+    twf_model_meta_set(res->asbuilt, "tool", "twistfit " PACKAGE_VERSION);
+    meta_set_short(res->asbuilt, "command", cmdline);
+    for (i = 0; i < n_dg; i++) {
+      snprintf(key, sizeof key, "input%zu", i + 1);
+      meta_set_short(res->asbuilt, key, dg[i].path);
+      snprintf(key, sizeof key, "input%zu_sha256", i + 1);
+      twf_model_meta_set(res->asbuilt, key, dg[i].hex);
+    }
+    snprintf(val, sizeof val, "%.6g %s", before->position[TWF_SET_FIT].rms / u.length_si, u.length);
+    twf_model_meta_set(res->asbuilt, "rms_before_fit", val);
+    snprintf(val, sizeof val, "%.6g %s", after->position[TWF_SET_FIT].rms / u.length_si, u.length);
+    twf_model_meta_set(res->asbuilt, "rms_after_fit", val);
+    if (after->position[TWF_SET_CHECK].count > 0) {
+      snprintf(val, sizeof val, "%.6g %s", before->position[TWF_SET_CHECK].rms / u.length_si, u.length);
+      twf_model_meta_set(res->asbuilt, "rms_before_check", val);
+      snprintf(val, sizeof val, "%.6g %s", after->position[TWF_SET_CHECK].rms / u.length_si, u.length);
+      twf_model_meta_set(res->asbuilt, "rms_after_check", val);
+    }
+  }
+
+  /* the fit set without the dropped measurements: what the fit achieved */
+  {
+    double *len = malloc((view.n_meas ? view.n_meas : 1) * sizeof *len);
+    size_t n = 0, k;
+    if (len == NULL) {
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    for (i = 0; i < view.n_meas; i++) {
+      int dropped = 0;
+      if (res->meas_set[i] != TWF_SET_FIT)
+        continue;
+      for (k = 0; k < res->n_outliers; k++)
+        dropped |= res->outliers[k].meas == i && res->outliers[k].weight == 0.0;
+      if (!dropped) {
+        const double *e = res->residual_after + 3 * i;
+        len[n++] = sqrt(e[0] * e[0] + e[1] * e[1] + e[2] * e[2]);
+      }
+    }
+    memset(&screened, 0, sizeof screened);
+    if (twf_accuracy_stats(len, n, &screened, &err) != TWF_OK) {
+      free(len);
+      status = cli_report_error(&err);
+      goto done;
+    }
+    free(len);
+  }
+  print_report(txt, &in, res, &co, before, after, &screened, &view, &u, dg, n_dg, created, &warnings);
+  if (model_out != NULL && (status = write_model_file(model_out, force, in.paths, res->asbuilt)) != 0)
+    goto done;
+  if (base_out != NULL &&
+      (status = write_base_file(base_out, force, in.paths, &res->base_in_tracker, in.model->length_unit)) != 0)
+    goto done;
+  if (json_path != NULL) {
+    root = report_json(&in, res, &co, before, after, &screened, &view, &u, dg, n_dg, created, &warnings);
+    if ((status = cli_write_json(root, json_path, force, in.paths)) != 0)
+      goto done;
+  }
+  if (residuals_path != NULL) {
+    const double *const p2[2] = { res->residual_before, res->residual_after };
+    const double *const r2[2] = { res->rot_before, res->rot_after };
+    const char *const labels[2] = { "before_", "after_" };
+    status = cli_write_residuals(residuals_path, force, in.paths, in.model, &view, res->meas_set, p2, r2,
+                                 labels, &u);
+  }
+
+done:
+  json_decref(root);
+  twf_accuracy_summary_free(before);
+  twf_accuracy_summary_free(after);
+  free(meas);
+  twf_calib_result_free(res);
+  twf_warnings_clear(&warnings);
+  cli_inputs_free(&in);
+  return status;
+}
+
+const cli_command cli_cmd_calibrate = {
+  "calibrate", run_calibrate, "fit the as-built model to a campaign; report and write it", calibrate_help
+};

@@ -1,0 +1,373 @@
+/* cmd_verify.c: `twistfit verify MODEL DATA`: how accurate a model really
+ * is on a campaign. Registers the model to the instrument (or takes a given
+ * base pose), reports the accuracy figures and ISO 9283 pose accuracy and
+ * repeatability, and judges acceptance tolerances. */
+#define _GNU_SOURCE
+#include "config.h"
+#include "cli.h"
+
+#include <getopt.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static const char verify_help[] =
+  "Usage: twistfit verify [OPTIONS] MODEL DATA.csv\n"
+  "       twistfit verify [OPTIONS] MODEL --joints JOINTS.csv --points POINTS.csv\n"
+  "\n"
+  "Put the instrument's frame and the robot's in register (closed-form\n"
+  "registration of the predicted target points to the measured ones, then a\n"
+  "least-squares refinement of the base pose and of the target offsets that are\n"
+  "unknown), and report the position error |measured - model| of MODEL on the\n"
+  "fit and check sets: count, mean, RMS, 95th percentile and maximum, per target\n"
+  "and overall, and the worst poses; the orientation error for 6-D rows; ISO 9283\n"
+  "pose accuracy AP and repeatability RP where a commanded pose repeats. Only the\n"
+  "fit set enters the registration. Lengths in the model's length unit.\n"
+  "\n"
+  "Options:\n"
+  CLI_INPUT_HELP
+  "      --base FILE         use this base pose (tracker frame) instead of registering;\n"
+  "                          every measured target then needs an offset in MODEL\n"
+  "      --fit-offsets       fit every target's offset in the registration (default:\n"
+  "                          only targets declared without an offset)\n"
+  "      --tol-rms X         acceptance: RMS position error at most X (length unit)\n"
+  "      --tol-p95 X         acceptance: 95th percentile at most X\n"
+  "      --tol-max X         acceptance: maximum position error at most X\n"
+  "      --tol-angle-max X   acceptance: maximum orientation error at most X (angle unit)\n"
+  "                          The verdict uses the check set when it has rows, else\n"
+  "                          the fit set; exit status 1 when measured and rejected.\n"
+  "      --repeat-tol X      joint values within X (angle unit; length unit for\n"
+  "                          prismatic joints) are the same commanded pose (default 1e-6 rad)\n"
+  "      --worst N           list the N worst poses (default 5)\n"
+  "      --residuals FILE    write the per-measurement residuals as CSV\n"
+  "      --json FILE         write the figures as JSON ('-' for standard output,\n"
+  "                          then the text report goes to standard error)\n"
+  "  -f, --force             replace output files that exist\n"
+  "  -h, --help              show this help\n";
+
+enum {
+  OPT_BASE = CLI_OPT_FIRST_FREE, OPT_FIT_OFFSETS, OPT_TOL_RMS, OPT_TOL_P95, OPT_TOL_MAX,
+  OPT_TOL_ANGLE, OPT_REPEAT_TOL, OPT_WORST, OPT_RESIDUALS, OPT_JSON
+};
+
+typedef struct tolerance {
+  const char *name;
+  double limit; /* SI; 0 = not set */
+  double value;
+  int is_angle;
+} tolerance;
+
+static void print_iso9283(FILE *fp, const twf_iso9283 *iso, const twf_model *m,
+                          const twf_campaign *c, const cli_units *u)
+{
+  size_t i;
+  if (iso == NULL || iso->n_entries == 0) {
+    fprintf(fp, "ISO 9283 pose accuracy and repeatability: no commanded pose is repeated\n");
+    return;
+  }
+  fprintf(fp, "ISO 9283 pose accuracy AP and repeatability RP (ISO 9283:1998, 7.2.1 and 7.2.3), %s\n",
+          u->length);
+  fprintf(fp, "  %-12s %-8s %6s %10s %10s %10s %10s %10s\n", "pose", "target", "visits", "AP_P",
+          "AP_x", "AP_y", "AP_z", "RP_l");
+  for (i = 0; i < iso->n_entries; i++) {
+    const twf_iso9283_entry *e = &iso->entries[i];
+    fprintf(fp, "  %-12s %-8s %6zu %10.4f %10.4f %10.4f %10.4f %10.4f\n",
+            c->pose_ids[e->first_pose], m->targets[e->target].name, e->n, e->ap_p / u->length_si,
+            e->ap[0] / u->length_si, e->ap[1] / u->length_si, e->ap[2] / u->length_si,
+            e->rp / u->length_si);
+  }
+}
+
+static json_t *json_iso9283(const twf_iso9283 *iso, const twf_model *m, const twf_campaign *c,
+                            const cli_units *u)
+{
+  json_t *a = json_array();
+  size_t i;
+  for (i = 0; iso != NULL && i < iso->n_entries; i++) {
+    const twf_iso9283_entry *e = &iso->entries[i];
+    json_array_append_new(
+        a, json_pack("{s:s, s:s, s:I, s:o, s:[o,o,o], s:o}", "pose", c->pose_ids[e->first_pose],
+                     "target", m->targets[e->target].name, "visits", (json_int_t)e->n, "ap_p",
+                     cli_json_number(e->ap_p / u->length_si), "ap",
+                     cli_json_number(e->ap[0] / u->length_si), cli_json_number(e->ap[1] / u->length_si),
+                     cli_json_number(e->ap[2] / u->length_si), "rp",
+                     cli_json_number(e->rp / u->length_si)));
+  }
+  return a;
+}
+
+static int run_verify(int argc, char **argv)
+{
+  static const struct option longopts[] = {
+    CLI_INPUT_LONGOPTS,
+    { "base", required_argument, NULL, OPT_BASE },
+    { "fit-offsets", no_argument, NULL, OPT_FIT_OFFSETS },
+    { "tol-rms", required_argument, NULL, OPT_TOL_RMS },
+    { "tol-p95", required_argument, NULL, OPT_TOL_P95 },
+    { "tol-max", required_argument, NULL, OPT_TOL_MAX },
+    { "tol-angle-max", required_argument, NULL, OPT_TOL_ANGLE },
+    { "repeat-tol", required_argument, NULL, OPT_REPEAT_TOL },
+    { "worst", required_argument, NULL, OPT_WORST },
+    { "residuals", required_argument, NULL, OPT_RESIDUALS },
+    { "json", required_argument, NULL, OPT_JSON },
+    { "force", no_argument, NULL, 'f' },
+    { "help", no_argument, NULL, 'h' },
+    { NULL, 0, NULL, 0 }
+  };
+  const char *tol_text[4] = { NULL, NULL, NULL, NULL };
+  const char *base_path = NULL, *residuals_path = NULL, *json_path = NULL, *repeat_text = NULL;
+  int force = 0, fit_offsets = 0, opt, status = TWF_EXIT_OK, i;
+  long worst = 5;
+  cli_inputs in;
+  cli_units u;
+  twf_error err;
+  twf_pose base;
+  double *offsets = NULL, *pos = NULL, *rot = NULL;
+  twf_accuracy_summary *summary = NULL;
+  twf_iso9283 *iso = NULL;
+  tolerance tol[4] = { { "rms", 0, 0, 0 }, { "p95", 0, 0, 0 }, { "max", 0, 0, 0 },
+                       { "angle-max", 0, 0, 1 } };
+  twf_register_report rrep;
+  twf_solve_report srep;
+  FILE *txt = stdout;
+  json_t *root = NULL;
+
+  cli_inputs_init(&in);
+  memset(&rrep, 0, sizeof rrep);
+  memset(&srep, 0, sizeof srep);
+  optind = 0;
+  while ((opt = getopt_long(argc, argv, "fh", longopts, NULL)) != -1) {
+    if (cli_inputs_option(&in, "verify", opt, optarg, &status)) {
+      if (status != 0)
+        goto done;
+      continue;
+    }
+    switch (opt) {
+    case OPT_BASE: base_path = optarg; break;
+    case OPT_FIT_OFFSETS: fit_offsets = 1; break;
+    case OPT_TOL_RMS: tol_text[0] = optarg; break;
+    case OPT_TOL_P95: tol_text[1] = optarg; break;
+    case OPT_TOL_MAX: tol_text[2] = optarg; break;
+    case OPT_TOL_ANGLE: tol_text[3] = optarg; break;
+    case OPT_REPEAT_TOL: repeat_text = optarg; break;
+    case OPT_WORST: {
+      char *end;
+      worst = strtol(optarg, &end, 10);
+      if (*end != '\0' || worst < 0 || worst > 1000) {
+        status = cli_usage_error("verify", "--worst takes a count from 0 to 1000");
+        goto done;
+      }
+      break;
+    }
+    case OPT_RESIDUALS: residuals_path = optarg; break;
+    case OPT_JSON: json_path = optarg; break;
+    case 'f': force = 1; break;
+    case 'h': fputs(verify_help, stdout); goto done;
+    default: status = cli_usage_error("verify", "invalid option"); goto done;
+    }
+  }
+  if (base_path != NULL && fit_offsets) {
+    status = cli_usage_error("verify", "--base and --fit-offsets exclude each other");
+    goto done;
+  }
+  if ((status = cli_inputs_load(&in, "verify", argc, argv, optind)) != 0)
+    goto done;
+  cli_units_of(&u, in.model);
+  for (i = 0; i < 4; i++)
+    if (tol_text[i] != NULL &&
+        (status = cli_parse_tolerance("verify", tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
+                                      &tol[i].limit)) != 0)
+      goto done;
+  if (json_path != NULL && strcmp(json_path, "-") == 0)
+    txt = stderr;
+  twf_error_clear(&err);
+
+  /* the base pose and the target offsets */
+  offsets = calloc(3 * (in.model->n_targets ? in.model->n_targets : 1), sizeof *offsets);
+  pos = calloc(3 * in.campaign->n_meas, sizeof *pos);
+  rot = calloc(in.campaign->n_meas, sizeof *rot);
+  if (offsets == NULL || pos == NULL || rot == NULL) {
+    status = TWF_EXIT_INTERNAL;
+    goto done;
+  }
+  twf_register_offsets_init(in.model, offsets);
+  if (base_path != NULL) {
+    size_t k;
+    if (twf_base_read(base_path, &base, &err) != TWF_OK) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+    for (k = 0; k < in.campaign->n_meas; k++)
+      if (!in.model->targets[in.campaign->meas[k].target].offset_known) {
+        twf_error_set(&err, TWF_ERR_MISSING, in.model_path, 0, 0,
+                      "give the target an offset in the model, or drop --base to fit it",
+                      "target %s has no offset and --base fits nothing",
+                      in.model->targets[in.campaign->meas[k].target].name);
+        status = cli_report_error(&err);
+        goto done;
+      }
+  } else {
+    twf_register_options ro = twf_register_default_options();
+    unsigned char *fit = calloc(in.model->n_targets ? in.model->n_targets : 1, 1);
+    size_t k;
+    twf_status st;
+    if (fit == NULL) {
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    ro.fit_all_offsets = fit_offsets;
+    st = twf_register_campaign(in.model, in.campaign, &ro, &base, offsets, &rrep, &err);
+    if (st == TWF_OK) {
+      for (k = 0; k < in.model->n_targets; k++) {
+        memcpy(in.model->targets[k].offset, offsets + 3 * k, sizeof in.model->targets[k].offset);
+        fit[k] = twf_register_target_is_fitted(in.model, &ro, k);
+      }
+      /* measured targets now have an offset: known for the refinement */
+      for (k = 0; k < in.campaign->n_meas; k++)
+        in.model->targets[in.campaign->meas[k].target].offset_known = 1;
+      st = twf_refine_base(in.model, in.campaign, fit, 0.0, &base, &srep, &err);
+      for (k = 0; k < in.model->n_targets; k++)
+        memcpy(offsets + 3 * k, in.model->targets[k].offset, sizeof in.model->targets[k].offset);
+    }
+    free(fit);
+    if (st != TWF_OK) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+  }
+  if (twf_accuracy_residuals(in.model, &base, offsets, in.campaign, pos, rot, &err) != TWF_OK ||
+      (summary = twf_accuracy_summarize(in.campaign, in.model->n_targets, pos, rot, (size_t)worst,
+                                        &err)) == NULL) {
+    status = cli_report_error(&err);
+    goto done;
+  }
+  {
+    twf_iso9283_options io = twf_iso9283_default_options();
+    if (repeat_text != NULL) {
+      double v;
+      if (cli_parse_double(repeat_text, &v) != 0 || v <= 0) {
+        status = cli_usage_error("verify", "--repeat-tol takes a positive number");
+        goto done;
+      }
+      io.joint_tol = v * u.angle_si;
+    }
+    iso = twf_accuracy_iso9283(in.model, &base, offsets, in.campaign, &io, &err);
+    if (iso == NULL) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+  }
+
+  /* acceptance on the check set when it has rows */
+  {
+    int set = summary->position[TWF_SET_CHECK].count > 0 ? TWF_SET_CHECK : TWF_SET_FIT;
+    tol[0].value = summary->position[set].rms;
+    tol[1].value = summary->position[set].p95;
+    tol[2].value = summary->position[set].max;
+    tol[3].value = summary->orientation[set].max;
+    for (i = 0; i < 4; i++)
+      if (tol[i].limit > 0 && !(tol[i].value <= tol[i].limit))
+        status = TWF_EXIT_REJECTED;
+
+    /* text report */
+    fprintf(txt, "twistfit %s verify\n", twf_version());
+    fprintf(txt, "model: %s (%s, %zu joints)\n", in.model_path, in.model->name, in.model->n_joints);
+    if (in.data_path)
+      fprintf(txt, "data: %s\n", in.data_path);
+    else
+      fprintf(txt, "data: %s + %s\n", in.joints_path, in.points_path);
+    fprintf(txt, "campaign: %zu poses, %zu measurements\n", in.campaign->n_poses, in.campaign->n_meas);
+    {
+      double q[4];
+      twf_rot_to_quat(base.R, q);
+      fprintf(txt, "base pose in the tracker frame (%s): position %.4f %.4f %.4f, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
+              base_path ? "given" : "registered", base.p[0] / u.length_si, base.p[1] / u.length_si,
+              base.p[2] / u.length_si, q[0], q[1], q[2], q[3]);
+    }
+    if (base_path == NULL)
+      fprintf(txt, "registration: %u alternations%s, refinement %d iterations (%s)\n",
+              rrep.iterations, rrep.converged ? "" : " (not converged)", srep.iterations,
+              twf_stop_name(srep.stop));
+    {
+      size_t k;
+      for (k = 0; k < in.model->n_targets; k++)
+        if (in.model->targets[k].offset_known)
+          fprintf(txt, "target %s offset in the flange frame, %s: %.4f %.4f %.4f\n",
+                  in.model->targets[k].name, u.length, offsets[3 * k] / u.length_si,
+                  offsets[3 * k + 1] / u.length_si, offsets[3 * k + 2] / u.length_si);
+    }
+    fputc('\n', txt);
+    cli_print_accuracy(txt, "Accuracy of the model on this campaign", summary, in.model,
+                       in.campaign, &u);
+    cli_print_worst(txt, summary, in.campaign, in.model, &u);
+    fputc('\n', txt);
+    print_iso9283(txt, iso, in.model, in.campaign, &u);
+    {
+      int any = 0;
+      for (i = 0; i < 4; i++)
+        any |= tol[i].limit > 0;
+      if (any) {
+        fprintf(txt, "\nAcceptance on the %s set:\n", set == TWF_SET_CHECK ? "check" : "fit");
+        for (i = 0; i < 4; i++)
+          if (tol[i].limit > 0)
+            fprintf(txt, "  %-10s %10.4f %s  limit %10.4f  %s\n", tol[i].name,
+                    tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si),
+                    tol[i].is_angle ? u.angle : u.length,
+                    tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si),
+                    tol[i].value <= tol[i].limit ? "pass" : "FAIL");
+        fprintf(txt, "verdict: %s\n", status == TWF_EXIT_REJECTED ? "REJECTED" : "ACCEPTED");
+      }
+    }
+
+    if (json_path != NULL) {
+      json_t *tols = json_object();
+      int w;
+      root = json_object();
+      json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
+      json_object_set_new(root, "command", json_string("verify"));
+      json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
+      json_object_set_new(root, "accuracy", cli_json_accuracy(summary, in.model, in.campaign, &u));
+      json_object_set_new(root, "iso9283", json_iso9283(iso, in.model, in.campaign, &u));
+      for (i = 0; i < 4; i++)
+        if (tol[i].limit > 0)
+          json_object_set_new(tols, tol[i].name,
+                              json_pack("{s:o, s:o, s:b}", "limit",
+                                        cli_json_number(tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si)),
+                                        "value",
+                                        cli_json_number(tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si)),
+                                        "pass", tol[i].value <= tol[i].limit));
+      json_object_set_new(root, "acceptance",
+                          json_pack("{s:s, s:o, s:s}", "set", set == TWF_SET_CHECK ? "check" : "fit",
+                                    "tolerances", tols, "verdict",
+                                    json_object_size(tols) == 0 ? "none"
+                                    : status == TWF_EXIT_REJECTED ? "rejected" : "accepted"));
+      if ((w = cli_write_json(root, json_path, force, in.paths)) != 0) {
+        status = w;
+        goto done;
+      }
+    }
+    if (residuals_path != NULL) {
+      const double *const p2[2] = { pos, NULL };
+      const double *const r2[2] = { rot, NULL };
+      const char *const labels[2] = { "", "" };
+      int w = cli_write_residuals(residuals_path, force, in.paths, in.model, in.campaign, NULL, p2, r2,
+                                  labels, &u);
+      if (w != 0)
+        status = w;
+    }
+  }
+
+done:
+  json_decref(root);
+  twf_iso9283_free(iso);
+  twf_accuracy_summary_free(summary);
+  free(offsets);
+  free(pos);
+  free(rot);
+  cli_inputs_free(&in);
+  return status;
+}
+
+const cli_command cli_cmd_verify = {
+  "verify", run_verify, "accuracy of a model on a measured campaign; acceptance", verify_help
+};

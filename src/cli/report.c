@@ -1,0 +1,300 @@
+/* report.c: loading the inputs common to verify and calibrate, and the
+ * text, JSON and CSV forms of the accuracy figures. Figures come from the
+ * library as data; this file only formats them. */
+#define _GNU_SOURCE
+#include "config.h"
+#include "cli.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+const char cli_safety_text[] =
+  "Safety: a changed kinematic model moves the real arm differently. Keep the\n"
+  "previous parameters; verify the new ones at reduced speed with the cell's\n"
+  "safety functions active; validate on held-out poses before production use.\n"
+  "Follow the robot maker's procedures and local codes; the work belongs to\n"
+  "qualified personnel.\n";
+
+/* ------------------------------------------------------------ inputs */
+
+void cli_inputs_init(cli_inputs *in)
+{
+  memset(in, 0, sizeof *in);
+  in->copt = twf_campaign_default_options();
+  twf_warnings_init(&in->warnings);
+}
+
+int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *arg, int *status)
+{
+  *status = TWF_EXIT_OK;
+  switch (opt) {
+  case CLI_OPT_JOINTS: in->joints_path = arg; return 1;
+  case CLI_OPT_POINTS: in->points_path = arg; return 1;
+  case CLI_OPT_LENGTH_UNIT:
+    *status = cli_parse_length_unit(command, arg, &in->copt.length_unit);
+    in->copt.length_from_caller = 1;
+    return 1;
+  case CLI_OPT_ANGLE_UNIT:
+    *status = cli_parse_angle_unit(command, arg, &in->copt.angle_unit);
+    in->copt.angle_from_caller = 1;
+    return 1;
+  case CLI_OPT_LIMITS_ERROR: in->copt.limits_are_errors = 1; return 1;
+  default: return 0;
+  }
+}
+
+int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, int first)
+{
+  twf_error err;
+  int n = argc - first;
+  twf_error_clear(&err);
+  if (in->joints_path != NULL || in->points_path != NULL) {
+    if (in->joints_path == NULL || in->points_path == NULL)
+      return cli_usage_error(command, "--joints and --points go together");
+    if (n != 1)
+      return cli_usage_error(command, "with --joints and --points, give MODEL only");
+  } else if (n != 2) {
+    return cli_usage_error(command, "expected MODEL and DATA.csv (or --joints and --points)");
+  }
+  in->model_path = argv[first];
+  in->data_path = n == 2 ? argv[first + 1] : NULL;
+  in->paths[0] = in->model_path;
+  in->paths[1] = in->data_path ? in->data_path : in->joints_path;
+  in->paths[2] = in->data_path ? NULL : in->points_path;
+  in->paths[3] = NULL;
+  in->model = twf_model_read(in->model_path, &in->warnings, &err);
+  if (in->model == NULL)
+    goto fail;
+  if (in->data_path != NULL)
+    in->campaign = twf_campaign_read(in->data_path, in->model, &in->copt, &in->warnings, &err);
+  else
+    in->campaign = twf_campaign_read_pair(in->joints_path, in->points_path, in->model,
+                                          &in->copt, &in->warnings, &err);
+  if (in->campaign == NULL)
+    goto fail;
+  if (in->campaign->n_meas == 0) {
+    twf_error_set(&err, TWF_ERR_MISSING, in->paths[1], 0, 0, "add measurement rows",
+                  "the campaign holds no measurement");
+    goto fail;
+  }
+  cli_print_warnings(&in->warnings);
+  in->warnings.count = 0;
+  return TWF_EXIT_OK;
+fail:
+  cli_print_warnings(&in->warnings);
+  in->warnings.count = 0;
+  return cli_report_error(&err);
+}
+
+void cli_inputs_free(cli_inputs *in)
+{
+  twf_campaign_free(in->campaign);
+  twf_model_free(in->model);
+  twf_warnings_clear(&in->warnings);
+  memset(in, 0, sizeof *in);
+}
+
+/* ------------------------------------------------------------ units */
+
+void cli_units_of(cli_units *u, const twf_model *m)
+{
+  u->length = twf_length_unit_name(m->length_unit);
+  u->length_si = twf_length_unit_si(m->length_unit);
+  u->angle = twf_angle_unit_name(m->angle_unit);
+  u->angle_si = twf_angle_unit_si(m->angle_unit);
+}
+
+/* ------------------------------------------------------------ text */
+
+static const char *set_name(int set) { return set == TWF_SET_CHECK ? "check" : "fit"; }
+
+static void print_stats_row(FILE *fp, const char *label, const twf_stats *s, double unit,
+                            const twf_campaign *c, int with_worst)
+{
+  if (s->count == 0) {
+    fprintf(fp, "  %-14s %7zu %10s %10s %10s %10s\n", label, s->count, "-", "-", "-", "-");
+    return;
+  }
+  fprintf(fp, "  %-14s %7zu %10.4f %10.4f %10.4f %10.4f", label, s->count, s->mean / unit,
+          s->rms / unit, s->p95 / unit, s->max / unit);
+  if (with_worst && s->max_index < c->n_meas)
+    fprintf(fp, "  %s", c->pose_ids[c->meas[s->max_index].pose]);
+  fputc('\n', fp);
+}
+
+void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary *s,
+                        const twf_model *m, const twf_campaign *c, const cli_units *u)
+{
+  int set;
+  size_t k;
+  fprintf(fp, "%s\n", title);
+  fprintf(fp, "  position error |measured - model|, %s\n", u->length);
+  fprintf(fp, "  %-14s %7s %10s %10s %10s %10s  %s\n", "set", "count", "mean", "rms", "p95",
+          "max", "worst pose");
+  for (set = 0; set < 2; set++)
+    print_stats_row(fp, set_name(set), &s->position[set], u->length_si, c, 1);
+  for (set = 0; set < 2; set++)
+    for (k = 0; k < s->n_targets; k++) {
+      char label[TWF_NAME_MAX + 16];
+      if (s->target_position[2 * k + set].count == 0 || s->n_targets < 2)
+        continue;
+      snprintf(label, sizeof label, "%s %s", set_name(set), m->targets[k].name);
+      print_stats_row(fp, label, &s->target_position[2 * k + set], u->length_si, c, 1);
+    }
+  if (s->orientation[0].count + s->orientation[1].count > 0) {
+    fprintf(fp, "  orientation error, %s\n", u->angle);
+    for (set = 0; set < 2; set++)
+      print_stats_row(fp, set_name(set), &s->orientation[set], u->angle_si, c, 1);
+  }
+}
+
+void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign *c,
+                     const twf_model *m, const cli_units *u)
+{
+  int set;
+  size_t i;
+  for (set = 0; set < 2; set++) {
+    if (s->n_worst[set] == 0)
+      continue;
+    fprintf(fp, "  worst poses (%s set), %s:", set_name(set), u->length);
+    for (i = 0; i < s->n_worst[set]; i++) {
+      const twf_accuracy_worst *w = &s->worst[set][i];
+      fprintf(fp, " %s/%s %.4f", c->pose_ids[w->pose], m->targets[c->meas[w->meas].target].name,
+              w->error_m / u->length_si);
+    }
+    fputc('\n', fp);
+  }
+}
+
+/* ------------------------------------------------------------ JSON */
+
+json_t *cli_json_number(double v)
+{
+  /* jansson refuses NaN and infinity: they become null */
+  return isfinite(v) ? json_real(v) : json_null();
+}
+
+json_t *cli_json_stats(const twf_stats *s, double unit)
+{
+  json_t *o = json_object();
+  json_object_set_new(o, "count", json_integer((json_int_t)s->count));
+  json_object_set_new(o, "mean", cli_json_number(s->mean / unit));
+  json_object_set_new(o, "rms", cli_json_number(s->rms / unit));
+  json_object_set_new(o, "p95", cli_json_number(s->p95 / unit));
+  json_object_set_new(o, "max", cli_json_number(s->max / unit));
+  return o;
+}
+
+json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
+                          const twf_campaign *c, const cli_units *u)
+{
+  json_t *o = json_object();
+  int set;
+  size_t k, i;
+  for (set = 0; set < 2; set++) {
+    json_t *so = json_object(), *targets = json_object(), *worst = json_array();
+    json_object_set_new(so, "position", cli_json_stats(&s->position[set], u->length_si));
+    if (s->orientation[set].count > 0)
+      json_object_set_new(so, "orientation", cli_json_stats(&s->orientation[set], u->angle_si));
+    for (k = 0; k < s->n_targets; k++)
+      if (s->target_position[2 * k + set].count > 0)
+        json_object_set_new(targets, m->targets[k].name,
+                            cli_json_stats(&s->target_position[2 * k + set], u->length_si));
+    json_object_set_new(so, "targets", targets);
+    for (i = 0; i < s->n_worst[set]; i++) {
+      const twf_accuracy_worst *w = &s->worst[set][i];
+      json_array_append_new(worst, json_pack("{s:s, s:s, s:o}", "pose", c->pose_ids[w->pose],
+                                             "target", m->targets[c->meas[w->meas].target].name,
+                                             "error", cli_json_number(w->error_m / u->length_si)));
+    }
+    json_object_set_new(so, "worst_poses", worst);
+    json_object_set_new(o, set_name(set), so);
+  }
+  return o;
+}
+
+int cli_write_json(json_t *root, const char *path, int force, const char *const *inputs)
+{
+  cli_output out;
+  twf_error err;
+  int st;
+  twf_error_clear(&err);
+  if ((st = cli_output_open(&out, path, force, inputs, &err)) != 0)
+    return cli_report_error(&err);
+  if (json_dumpf(root, out.fp, JSON_INDENT(2) | JSON_REAL_PRECISION(12) | JSON_SORT_KEYS) != 0) {
+    cli_output_abort(&out);
+    twf_error_set(&err, TWF_ERR_IO, path, 0, 0, NULL, "cannot write the JSON report");
+    return cli_report_error(&err);
+  }
+  fputc('\n', out.fp);
+  return cli_output_commit(&out);
+}
+
+/* ------------------------------------------------------------ residual CSV */
+
+int cli_write_residuals(const char *path, int force, const char *const *inputs,
+                        const twf_model *m, const twf_campaign *c, const twf_meas_set *sets,
+                        const double *const pos[2], const double *const rot[2],
+                        const char *const labels[2], const cli_units *u)
+{
+  static const char *axes[3] = { "ex", "ey", "ez" };
+  cli_output out;
+  cli_csv csv;
+  twf_error err;
+  int st, v, a;
+  size_t i;
+  char name[64];
+  twf_error_clear(&err);
+  if ((st = cli_output_open(&out, path, force, inputs, &err)) != 0)
+    return cli_report_error(&err);
+  cli_csv_init(&csv, out.fp);
+  cli_csv_text(&csv, "pose");
+  cli_csv_text(&csv, "target");
+  cli_csv_text(&csv, "set");
+  for (v = 0; v < 2; v++) {
+    if (pos[v] == NULL)
+      continue;
+    for (a = 0; a < 3; a++) {
+      snprintf(name, sizeof name, "%s%s_%s", labels[v], axes[a], u->length);
+      cli_csv_text(&csv, name);
+    }
+    snprintf(name, sizeof name, "%serror_%s", labels[v], u->length);
+    cli_csv_text(&csv, name);
+    if (c->has_orientation_any) {
+      snprintf(name, sizeof name, "%sangle_%s", labels[v], u->angle);
+      cli_csv_text(&csv, name);
+    }
+  }
+  cli_csv_end_row(&csv);
+  for (i = 0; i < c->n_meas; i++) {
+    const twf_measurement *ms = &c->meas[i];
+    cli_csv_text(&csv, c->pose_ids[ms->pose]);
+    cli_csv_text(&csv, m->targets[ms->target].name);
+    cli_csv_text(&csv, set_name(sets ? (int)sets[i] : (int)ms->set));
+    for (v = 0; v < 2; v++) {
+      const double *e;
+      if (pos[v] == NULL)
+        continue;
+      e = pos[v] + 3 * i;
+      for (a = 0; a < 3; a++)
+        cli_csv_number(&csv, e[a] / u->length_si);
+      cli_csv_number(&csv, sqrt(e[0] * e[0] + e[1] * e[1] + e[2] * e[2]) / u->length_si);
+      if (c->has_orientation_any)
+        cli_csv_number(&csv, rot[v][i] / u->angle_si);
+    }
+    cli_csv_end_row(&csv);
+  }
+  return cli_output_commit(&out);
+}
+
+/* ------------------------------------------------------------ acceptance */
+
+int cli_parse_tolerance(const char *command, const char *arg, double unit_si, double *out)
+{
+  double v;
+  if (cli_parse_double(arg, &v) != 0 || v <= 0)
+    return cli_usage_error(command, "a tolerance must be a positive number, not '%s'", arg);
+  *out = v * unit_si;
+  return TWF_EXIT_OK;
+}

@@ -71,7 +71,7 @@ typedef struct problem {
   double inv_sigma_rot;    /* 1/rad */
   double *weight;          /* robust weight, 0 = dropped */
   const unsigned char *use;/* 1: enters the fit */
-  double *rows;            /* 3 x p scratch */
+  double *rows;            /* 3 x p rows, then 3 x p gathered columns */
   double *A, *g;           /* p x p, p */
 } problem;
 
@@ -126,7 +126,7 @@ static twf_status problem_init(problem *pr, const twf_model *m, const twf_campai
   pr->pose_meas = calloc(c->n_meas ? c->n_meas : 1, sizeof *pr->pose_meas);
   pr->inv_sigma = calloc(c->n_meas ? c->n_meas : 1, sizeof *pr->inv_sigma);
   pr->weight = calloc(c->n_meas ? c->n_meas : 1, sizeof *pr->weight);
-  pr->rows = calloc(3 * (pr->p ? pr->p : 1), sizeof *pr->rows);
+  pr->rows = calloc(6 * (pr->p ? pr->p : 1), sizeof *pr->rows);
   pr->A = calloc(pr->p ? pr->p * pr->p : 1, sizeof *pr->A);
   pr->g = calloc(pr->p ? pr->p : 1, sizeof *pr->g);
   if (!pr->pose_start || !pr->pose_meas || !pr->inv_sigma || !pr->weight ||
@@ -163,16 +163,22 @@ static int meas_active(const problem *pr, size_t i)
   return pr->use[i] && pr->weight[i] > 0.0;
 }
 
-/* Accumulate the full normal matrix A = J^T W J, gradient g = J^T W r and
- * the cost 0.5 r^T W r over the active measurements, at the working model.
- * J is the derivative of the prediction (r ~ r0 - J delta). */
-static double accumulate(problem *pr, double *A, double *g)
+/* Accumulate the normal matrix A = J^T W J, gradient g = J^T W r and the
+ * cost 0.5 r^T W r over the active measurements, at the working model,
+ * for the columns cols[0..nc) (NULL: all p columns): A is nc x nc and g
+ * has nc entries. J is the derivative of the prediction (r ~ r0 - J delta).
+ * Restricting to the kept columns in the solver saves the rank-3 updates of
+ * the fixed ones, which dominate the cost of an iteration. */
+static double accumulate_cols(problem *pr, const size_t *cols, size_t nc, double *A, double *g)
 {
   const twf_campaign *c = pr->c;
   size_t p = pr->p, pose, a, b, t;
   double cost = 0.0;
-  memset(A, 0, p * p * sizeof *A);
-  memset(g, 0, p * sizeof *g);
+  double *c0 = pr->rows + 3 * p, *c1 = c0 + p, *c2 = c1 + p;
+  if (cols == NULL)
+    nc = p;
+  memset(A, 0, nc * nc * sizeof *A);
+  memset(g, 0, nc * sizeof *g);
   for (pose = 0; pose < c->n_poses; pose++) {
     int any = 0;
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++)
@@ -188,7 +194,6 @@ static double accumulate(problem *pr, double *A, double *g)
       if (!meas_active(pr, i))
         continue;
       for (pass = 0; pass < (ms->has_orientation ? 2 : 1); pass++) {
-        const double *r0 = pr->rows, *r1 = pr->rows + p, *r2 = pr->rows + 2 * p;
         if (pass == 0) {
           twf_errmodel_point(pr->em, pr->m, ms->target, y, pr->rows);
           for (k = 0; k < 3; k++)
@@ -201,22 +206,33 @@ static double accumulate(problem *pr, double *A, double *g)
           w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
         }
         cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
-        for (a = 0; a < p; a++) {
-          double wa0 = w * r0[a], wa1 = w * r1[a], wa2 = w * r2[a];
-          double *Arow = A + a * p;
+        for (a = 0; a < nc; a++) {
+          size_t j = cols ? cols[a] : a;
+          c0[a] = pr->rows[j];
+          c1[a] = pr->rows[p + j];
+          c2[a] = pr->rows[2 * p + j];
+        }
+        for (a = 0; a < nc; a++) {
+          double wa0 = w * c0[a], wa1 = w * c1[a], wa2 = w * c2[a];
+          double *Arow = A + a * nc;
           g[a] += wa0 * r[0] + wa1 * r[1] + wa2 * r[2];
           if (wa0 == 0.0 && wa1 == 0.0 && wa2 == 0.0)
             continue;
-          for (b = a; b < p; b++)
-            Arow[b] += wa0 * r0[b] + wa1 * r1[b] + wa2 * r2[b];
+          for (b = a; b < nc; b++)
+            Arow[b] += wa0 * c0[b] + wa1 * c1[b] + wa2 * c2[b];
         }
       }
     }
   }
-  for (a = 0; a < p; a++)
+  for (a = 0; a < nc; a++)
     for (b = 0; b < a; b++)
-      A[a * p + b] = A[b * p + a];
+      A[a * nc + b] = A[b * nc + a];
   return cost;
+}
+
+static double accumulate(problem *pr, double *A, double *g)
+{
+  return accumulate_cols(pr, NULL, 0, A, g);
 }
 
 /* The cost only (no Jacobian), at model m and base B. */
@@ -286,7 +302,7 @@ static twf_status lm_run(problem *pr, const unsigned char *keep, int max_iter,
   for (a = 0; a < p; a++)
     if (keep[a])
       idx[nk++] = a;
-  cost = accumulate(pr, pr->A, pr->g);
+  cost = accumulate_cols(pr, idx, nk, pr->A, pr->g);
   rep->cost_start = rep->cost_end = cost;
   if (!isfinite(cost)) {
     rep->stop = TWF_STOP_DIVERGED;
@@ -310,8 +326,8 @@ static twf_status lm_run(problem *pr, const unsigned char *keep, int max_iter,
     /* converged when every column is orthogonal to the weighted residual
      * (cosine below 1e-12): the gradient test, scale free */
     for (a = 0; a < nk; a++) {
-      double ajj = pr->A[idx[a] * p + idx[a]];
-      double cosine = ajj > 0 && cost > 0 ? fabs(pr->g[idx[a]]) / sqrt(ajj * 2.0 * cost) : 0.0;
+      double ajj = pr->A[a * nk + a];
+      double cosine = ajj > 0 && cost > 0 ? fabs(pr->g[a]) / sqrt(ajj * 2.0 * cost) : 0.0;
       if (cosine > grad_max)
         grad_max = cosine;
     }
@@ -321,9 +337,9 @@ static twf_status lm_run(problem *pr, const unsigned char *keep, int max_iter,
     }
     for (a = 0; a < nk; a++) {
       for (b = 0; b < nk; b++)
-        gsl_matrix_set(M, a, b, pr->A[idx[a] * p + idx[b]]);
+        gsl_matrix_set(M, a, b, pr->A[a * nk + b]);
       *gsl_matrix_ptr(M, a, a) *= 1.0 + lambda;
-      gsl_vector_set(rhs, a, pr->g[idx[a]]);
+      gsl_vector_set(rhs, a, pr->g[a]);
     }
     rep->iterations++;
     if (gsl_linalg_cholesky_decomp1(M) != 0 || gsl_linalg_cholesky_solve(M, rhs, x) != 0) {
@@ -345,7 +361,7 @@ static twf_status lm_run(problem *pr, const unsigned char *keep, int max_iter,
       delta[idx[a]] = d;
       if (s > step_max)
         step_max = s;
-      pred += d * (lambda * pr->A[idx[a] * p + idx[a]] * d + pr->g[idx[a]]);
+      pred += d * (lambda * pr->A[a * nk + a] * d + pr->g[a]);
     }
     pred *= 0.5;
     model_assign(pr->trial, pr->m);
@@ -354,18 +370,24 @@ static twf_status lm_run(problem *pr, const unsigned char *keep, int max_iter,
     cost_new = cost_at(pr, pr->trial, &trial_base, prefix);
     rho = pred > 0 ? (cost - cost_new) / pred : -1.0;
     if (isfinite(cost_new) && cost_new < cost) {
+      double decrease = cost - cost_new;
       twf_model *tmp = pr->m;
       pr->m = pr->trial;
       pr->trial = tmp;
       pr->base = trial_base;
       for (a = 0; a < p; a++)
         value[a] += delta[a];
-      cost = accumulate(pr, pr->A, pr->g);
+      cost = accumulate_cols(pr, idx, nk, pr->A, pr->g);
       rep->cost_end = cost;
       lambda *= fmax(1.0 / 3.0, 1.0 - pow(2.0 * rho - 1.0, 3));
       nu = 2.0;
       if (step_max < step_tol_m) {
         rep->stop = TWF_STOP_STEP;
+        break;
+      }
+      /* a decrease at the level of rounding in the cost: nothing left */
+      if (decrease <= 1e-13 * (cost + decrease)) {
+        rep->stop = TWF_STOP_COST;
         break;
       }
     } else {
@@ -377,7 +399,7 @@ static twf_status lm_run(problem *pr, const unsigned char *keep, int max_iter,
                            "the solver diverged (non-finite cost)");
         goto done;
       }
-      if (step_max < step_tol_m || nu > 1e12) {
+      if (step_max < step_tol_m || nu > 1e12 || pred <= 1e-13 * cost) {
         /* no smaller step lowers the cost: the cost is at its rounding floor */
         rep->stop = TWF_STOP_COST;
         break;

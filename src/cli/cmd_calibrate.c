@@ -245,6 +245,22 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     explain_text(r, p, expl, sizeof expl);
     fprintf(fp, "  %-14s %s%s%s\n", p->param.name, status_name(p->status), expl[0] ? ": ~ " : "", expl);
   }
+  for (j = 0; j < r->n_params; j++) {
+    const twf_param_result *p = &r->params[j];
+    if (p->param.group != TWF_GROUP_OFFSETS || p->status == TWF_PARAM_KEPT)
+      continue;
+    if (p->status == TWF_PARAM_FIXED_STRUCTURAL && p->n_explain > 0)
+      fprintf(fp, "  the offset of joint %s cannot be determined: it is absorbed by %s%s\n",
+              m->joints[p->param.joint].name,
+              r->params[p->explain[0]].param.group == TWF_GROUP_BASE ? "the base pose"
+              : r->params[p->explain[0]].param.group == TWF_GROUP_TARGETS ? "the target offsets"
+                                                                          : "other parameters",
+              p->param.joint == 0 ? " (rotation about the first axis)"
+              : (size_t)p->param.joint + 1 == m->n_joints ? " (rotation about the last axis)" : "");
+    else
+      fprintf(fp, "  the offset of joint %s is not determined by these poses and keeps its starting value\n",
+              m->joints[p->param.joint].name);
+  }
   if (r->n_correlations > 0) {
     fprintf(fp, "  strongest correlations above 0.9:");
     for (i = 0; i < r->n_correlations; i++)

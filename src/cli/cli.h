@@ -54,6 +54,12 @@ typedef struct cli_output {
   char *tmp_path; /* temporary path */
 } cli_output;
 
+/* Check before any work that path ("-" or NULL: stdout) can be written:
+ * not an input, not existing unless force, its folder writable. */
+int cli_output_check(const char *path, int force, const char *const *inputs, twf_error *err);
+/* The same for n outputs (NULL entries skipped), also refusing two outputs
+ * of one name; prints the error and returns an exit status. */
+int cli_outputs_check(const char *const *outputs, size_t n, int force, const char *const *inputs);
 /* Open path for writing ("-" or NULL: stdout). inputs (NULL-terminated) are
  * the run's input files: writing over one is refused. */
 int cli_output_open(cli_output *out, const char *path, int force,

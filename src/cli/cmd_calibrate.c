@@ -552,16 +552,12 @@ static int run_calibrate(int argc, char **argv)
     goto done;
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;
-  /* refuse outputs that would fail after the work is done */
+  /* refuse outputs that would fail before the work is done: a failed run
+   * then writes nothing */
   {
     const char *outs[4] = { model_out, base_out, json_path, residuals_path };
-    size_t a, b;
-    for (a = 0; a < 4; a++)
-      for (b = a + 1; b < 4; b++)
-        if (outs[a] && outs[b] && strcmp(outs[a], "-") != 0 && strcmp(outs[a], outs[b]) == 0) {
-          status = cli_usage_error("calibrate", "two outputs share the name '%s'", outs[a]);
-          goto done;
-        }
+    if ((status = cli_outputs_check(outs, 4, force, in.paths)) != 0)
+      goto done;
   }
 
   for (i = 0; in.paths[i] != NULL; i++) {

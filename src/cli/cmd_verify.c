@@ -180,6 +180,11 @@ static int run_verify(int argc, char **argv)
       goto done;
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;
+  {
+    const char *outs[2] = { json_path, residuals_path };
+    if ((status = cli_outputs_check(outs, 2, force, in.paths)) != 0)
+      goto done;
+  }
   twf_error_clear(&err);
 
   /* the base pose and the target offsets */

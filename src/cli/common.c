@@ -86,16 +86,12 @@ static int same_file(const char *a, const char *b)
   return sa.st_dev == sb.st_dev && sa.st_ino == sb.st_ino;
 }
 
-int cli_output_open(cli_output *out, const char *path, int force,
-                    const char *const *inputs, twf_error *err)
+int cli_output_check(const char *path, int force, const char *const *inputs, twf_error *err)
 {
-  size_t n;
-  int fd;
-  memset(out, 0, sizeof *out);
-  if (path == NULL || strcmp(path, "-") == 0) {
-    out->fp = stdout;
+  char *dir, *slash;
+  int writable;
+  if (path == NULL || strcmp(path, "-") == 0)
     return TWF_EXIT_OK;
-  }
   for (; inputs != NULL && *inputs != NULL; inputs++)
     if (same_file(path, *inputs)) {
       twf_error_set(err, TWF_ERR_IO, path, 0, 0, "choose another output name",
@@ -108,6 +104,61 @@ int cli_output_open(cli_output *out, const char *path, int force,
                   "output file already exists");
     return TWF_EXIT_IO;
   }
+  dir = strdup(path);
+  if (dir == NULL) {
+    twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    return TWF_EXIT_INTERNAL;
+  }
+  slash = strrchr(dir, '/');
+  if (slash == NULL)
+    strcpy(dir, ".");
+  else if (slash == dir)
+    dir[1] = '\0';
+  else
+    *slash = '\0';
+  writable = access(dir, W_OK) == 0;
+  free(dir);
+  if (!writable) {
+    twf_error_set(err, TWF_ERR_IO, path, 0, 0, "check that the folder exists and is writable",
+                  "cannot write into the output's folder");
+    return TWF_EXIT_IO;
+  }
+  return TWF_EXIT_OK;
+}
+
+int cli_outputs_check(const char *const *outputs, size_t n, int force, const char *const *inputs)
+{
+  size_t a, b;
+  twf_error err;
+  twf_error_clear(&err);
+  for (a = 0; a < n; a++) {
+    int st;
+    if (outputs[a] == NULL)
+      continue;
+    for (b = a + 1; b < n; b++)
+      if (outputs[b] != NULL && strcmp(outputs[a], "-") != 0 && strcmp(outputs[a], outputs[b]) == 0) {
+        twf_error_set(&err, TWF_ERR_IO, outputs[a], 0, 0, "give each output its own name",
+                      "two outputs share this name");
+        return cli_report_error(&err);
+      }
+    if ((st = cli_output_check(outputs[a], force, inputs, &err)) != 0)
+      return cli_report_error(&err);
+  }
+  return TWF_EXIT_OK;
+}
+
+int cli_output_open(cli_output *out, const char *path, int force,
+                    const char *const *inputs, twf_error *err)
+{
+  size_t n;
+  int fd, st;
+  memset(out, 0, sizeof *out);
+  if (path == NULL || strcmp(path, "-") == 0) {
+    out->fp = stdout;
+    return TWF_EXIT_OK;
+  }
+  if ((st = cli_output_check(path, force, inputs, err)) != 0)
+    return st;
   n = strlen(path);
   out->path = strdup(path);
   out->tmp_path = malloc(n + 16);

@@ -223,6 +223,34 @@ START_TEST(test_pair_equals_one)
 }
 END_TEST
 
+START_TEST(test_pair_pose_without_points)
+{
+  /* a pose the instrument missed is left out with a warning that names it;
+   * the measurements keep pointing at their own poses */
+  twf_model *m = tf6s();
+  twf_warnings w;
+  twf_error err;
+  twf_campaign *c;
+  size_t k;
+  int named = 0;
+  twf_warnings_init(&w);
+  c = twf_campaign_read_pair(data("tests/data/campaign-joints-missed.csv"),
+                             data("tests/data/campaign-points-missed.csv"), m, NULL, &w, &err);
+  ck_assert_msg(c != NULL, "%s", err.message);
+  ck_assert_uint_eq(c->n_poses, 2);
+  ck_assert_uint_eq(c->n_meas, 2);
+  ck_assert_str_eq(c->pose_ids[1], "p02");
+  ck_assert_uint_eq(c->meas[1].pose, 1);
+  ck_assert_close(c->q[6], -47.875 * 3.14159265358979323846 / 180.0, 1e-15);
+  for (k = 0; k < w.count; k++)
+    named |= strstr(w.items[k].message, "'p03'") != NULL && w.items[k].line == 6;
+  ck_assert_msg(named, "no warning names p03 at line 6 (%zu warnings)", w.count);
+  twf_warnings_clear(&w);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
 START_TEST(test_joints_only)
 {
   twf_model *m = tf6s();
@@ -1001,6 +1029,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_pair_equals_one);
   tcase_add_test(tc, test_pair_set_precedence);
   tcase_add_test(tc, test_joints_only);
+  tcase_add_test(tc, test_pair_pose_without_points);
   tcase_add_test(tc, test_delimiters);
   tcase_add_test(tc, test_bom_crlf_comments);
   tcase_add_test(tc, test_units_declared);

@@ -1547,16 +1547,41 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
       for (k = 0; k < r.c->n_poses; k++)
         if (r.pose_npts[k] == 0)
           which[n++] = k;
-      if (n > 0) {
+      if (n > 0 && n == r.c->n_poses) {
+        st = twf_error_set(err, TWF_ERR_MISSING, points_path, 0, 0,
+                           "check that both files come from the same campaign",
+                           "no pose of the joints file has points in the points file");
+      } else if (n > 0) {
+        /* A pose the instrument missed (a broken beam, a target out of
+         * sight) is common: say which, and leave it out of the campaign. */
         char list[TWF_ERROR_TEXT_MAX];
+        size_t *map = malloc(r.c->n_poses * sizeof *map), kept = 0, i;
         list_ids(list, sizeof list, r.c->pose_ids, which, n);
-        st = twf_error_set(err, TWF_ERR_MISSING, joints_path,
-                           r.c->pose_lines[which[0]], r.jpose_col,
-                           "remove the pose from the joints file, or add its "
-                           "measurements to the points file",
-                           "%zu pose%s of the joints file %s no points in the "
-                           "points file: %s", n, n == 1 ? "" : "s",
-                           n == 1 ? "has" : "have", list);
+        twf_warnings_add(w, joints_path, r.c->pose_lines[which[0]], r.jpose_col,
+                         "%zu pose%s of the joints file %s no points in the points file "
+                         "and %s left out: %s", n, n == 1 ? "" : "s", n == 1 ? "has" : "have",
+                         n == 1 ? "is" : "are", list);
+        if (map == NULL) {
+          st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL,
+                             "out of memory reading the campaign");
+        } else {
+          for (k = 0; k < r.c->n_poses; k++) {
+            map[k] = kept;
+            if (r.pose_npts[k] == 0)
+              continue;
+            if (kept != k) {
+              memcpy(r.c->pose_ids[kept], r.c->pose_ids[k], sizeof r.c->pose_ids[k]);
+              memcpy(r.c->q + kept * r.c->n_joints, r.c->q + k * r.c->n_joints,
+                     r.c->n_joints * sizeof *r.c->q);
+              r.c->pose_lines[kept] = r.c->pose_lines[k];
+            }
+            kept++;
+          }
+          for (i = 0; i < r.c->n_meas; i++)
+            r.c->meas[i].pose = map[r.c->meas[i].pose];
+          r.c->n_poses = kept;
+          free(map);
+        }
       }
       free(which);
     }

@@ -368,6 +368,43 @@ START_TEST(test_joint_never_moves)
 }
 END_TEST
 
+START_TEST(test_narrow_joint_warning)
+{
+  /* joint 6 moved through only about 12 degrees: the parameters that depend
+   * on its motion are weak (predicted std far above the noise), and one
+   * warning names the joint and what to measure */
+  twf_model *nominal = test_arm_model(ARM_TF6S), *truth = twf_model_copy(nominal);
+  twf_simulate_options so = twf_simulate_default_options();
+  twf_calib_options co = twf_calib_default_options();
+  twf_calib_result *res = NULL;
+  twf_campaign *c;
+  twf_warnings w;
+  twf_error err;
+  twf_pose B;
+  size_t i, hits = 0;
+  twf_model_perturb(truth, &typical, 95);
+  truth->joints[5].limit_lo = -6.6 * 3.14159265358979323846 / 180.0;
+  truth->joints[5].limit_hi = 6.6 * 3.14159265358979323846 / 180.0;
+  test_tracker_base(&B);
+  so.n_poses = 60;
+  so.seed = 195;
+  so.sigma_m = 3e-5;
+  c = twf_simulate_campaign(truth, &B, &so, &err);
+  co.sigma_length = 3e-5;
+  twf_warnings_init(&w);
+  ck_assert_int_eq(twf_calibrate(nominal, c, &co, &res, &w, &err), TWF_OK);
+  ck_assert_uint_gt(res->n_weak, 0);
+  for (i = 0; i < w.count; i++)
+    hits += strstr(w.items[i].message, "joint j6 moved through only 11.7 deg in the fit poses") != NULL;
+  ck_assert_msg(hits == 1, "%zu warnings name the narrow joint (of %zu)", hits, w.count);
+  twf_warnings_clear(&w);
+  twf_calib_result_free(res);
+  twf_campaign_free(c);
+  twf_model_free(nominal);
+  twf_model_free(truth);
+}
+END_TEST
+
 START_TEST(test_gross_outliers)
 {
   /* three gross errors of 2 to 5 mm (a broken beam, a wrong nest) are found
@@ -496,6 +533,7 @@ int main(void)
   tcase_add_test(fit, test_stationary_solution);
   tcase_add_test(fit, test_offsets_only_remaster);
   tcase_add_test(fit, test_joint_never_moves);
+  tcase_add_test(fit, test_narrow_joint_warning);
   tcase_add_test(fit, test_gross_outliers);
   tcase_add_test(fit, test_asbuilt_independent_of_order);
   tcase_add_test(fit, test_parallel_axes_well_conditioned);

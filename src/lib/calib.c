@@ -726,25 +726,57 @@ static long narrowest_joint(const twf_model *m, const twf_calib_result *res, lon
   return best;
 }
 
-static void warn_weak(const problem *pr, const twf_calib_result *res, size_t j,
-                      double scaled_std, double sigma, twf_warnings *w)
+/* One warning per cause for the weak parameters: the narrowest joint they
+ * depend on, or too few varied poses; the worst one is quoted, the rest
+ * named. ratio[j] is the scaled std over sigma (0 for parameters that are
+ * not weak). */
+static void warn_weak(const problem *pr, const twf_calib_result *res, const double *ratio,
+                      twf_warnings *w)
 {
-  const twf_param *par = &res->params[j].param;
-  const char *unit = par->kind == TWF_PARAM_ANGLE ? "mrad" : par->kind == TWF_PARAM_LENGTH ? "mm" : "";
-  double shown = res->params[j].std * (par->kind == TWF_PARAM_RATIO ? 1.0 : 1e3);
-  long jn = narrowest_joint(pr->m, res, par->joint);
-  if (jn >= 0) {
-    const twf_joint *jt = &pr->m->joints[jn];
-    twf_warnings_add(w, NULL, 0, 0,
-                     "%s is poorly determined by these poses (std %.3g %s, %.2g times the noise at the arm's reach): "
-                     "joint %s moved through only %.3g %s in the fit poses; add poses that move %s over more of its range",
-                     par->name, shown, unit, scaled_std / sigma, jt->name,
-                     joint_range_shown(jt, res->joint_range[jn]), joint_range_unit(jt), jt->name);
-  } else {
-    twf_warnings_add(w, NULL, 0, 0,
-                     "%s is poorly determined by these poses (std %.3g %s, %.2g times the noise at the arm's reach): "
-                     "add poses that vary more joints together (%zu fit poses now)",
-                     par->name, shown, unit, scaled_std / sigma, res->n_fit_poses);
+  long cause;
+  for (cause = -1; cause < (long)pr->m->n_joints; cause++) {
+    char names[TWF_ERROR_TEXT_MAX / 2];
+    size_t j, n = 0, used = 0, worst = 0;
+    names[0] = '\0';
+    for (j = 0; j < res->n_params; j++) {
+      const twf_param *par = &res->params[j].param;
+      if (!res->params[j].weak || narrowest_joint(pr->m, res, par->joint) != cause)
+        continue;
+      if (n == 0 || ratio[j] > ratio[worst])
+        worst = j;
+      n++;
+    }
+    if (n == 0)
+      continue;
+    for (j = 0; j < res->n_params; j++) {
+      const twf_param *par = &res->params[j].param;
+      int k;
+      if (j == worst || !res->params[j].weak || narrowest_joint(pr->m, res, par->joint) != cause ||
+          used + 2 >= sizeof names)
+        continue;
+      k = snprintf(names + used, sizeof names - used, "%s%s", used ? ", " : "", par->name);
+      used = k > 0 && used + (size_t)k < sizeof names ? used + (size_t)k : sizeof names - 1;
+    }
+    {
+      const twf_param *par = &res->params[worst].param;
+      const char *unit = par->kind == TWF_PARAM_ANGLE ? "mrad" : par->kind == TWF_PARAM_LENGTH ? "mm" : "";
+      double shown = res->params[worst].std * (par->kind == TWF_PARAM_RATIO ? 1.0 : 1e3);
+      char what[TWF_ERROR_TEXT_MAX];
+      snprintf(what, sizeof what, "%zu parameter%s poorly determined by these poses (worst %s: std %.3g %s, "
+               "%.2g times the noise at the arm's reach%s%s)",
+               n, n == 1 ? " is" : "s are", par->name, shown, unit, ratio[worst], n > 1 ? "; also " : "", names);
+      if (cause >= 0) {
+        const twf_joint *jt = &pr->m->joints[cause];
+        twf_warnings_add(w, NULL, 0, 0,
+                         "%s: joint %s moved through only %.3g %s in the fit poses; add poses that move %s "
+                         "over more of its range",
+                         what, jt->name, joint_range_shown(jt, res->joint_range[cause]), joint_range_unit(jt),
+                         jt->name);
+      } else {
+        twf_warnings_add(w, NULL, 0, 0, "%s: add poses that vary more joints together (%zu fit poses now)",
+                         what, res->n_fit_poses);
+      }
+    }
   }
 }
 
@@ -1056,6 +1088,7 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
     twf_param_result *pj = &res->params[j];
     pj->value = value[j];
     pj->std = keep[j] ? sqrt(cov[j * p + j]) : NAN;
+    sv[j] = 0.0; /* reused below: the weak parameters' std over sigma */
     if (!keep[j]) {
       pj->value = 0.0;
       continue;
@@ -1065,10 +1098,11 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
       if (scaled > opt.weak_ratio * sigma_ref || rel[j] < 1e-3) {
         pj->weak = 1;
         res->n_weak++;
-        warn_weak(&pr, res, j, scaled, sigma_ref, warnings);
+        sv[j] = scaled / sigma_ref;
       }
     }
   }
+  warn_weak(&pr, res, sv, warnings);
   /* strongest correlations above 0.9 */
   for (i = 0; i < p; i++)
     for (j = i + 1; j < p; j++) {

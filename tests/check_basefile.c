@@ -1,0 +1,120 @@
+/* check_basefile.c: the base pose file: write/read round trip and every
+ * refusal with its status and line. Round trip and refusals are checked
+ * against the format of twistfit-model(5), BASE POSE FILES (no outside
+ * reference is needed: common practice, no source). */
+#include "testutil.h"
+#include "twistfit.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+static char path[64];
+
+static void write_text(const char *text)
+{
+  FILE *fp;
+  int fd;
+  strcpy(path, "/tmp/twf-base-XXXXXX");
+  fd = mkstemp(path);
+  ck_assert_int_ge(fd, 0);
+  fp = fdopen(fd, "w");
+  fputs(text, fp);
+  fclose(fp);
+}
+
+START_TEST(test_roundtrip)
+{
+  static const twf_length_unit units[] = { TWF_LENGTH_MM, TWF_LENGTH_M, TWF_LENGTH_UM, TWF_LENGTH_IN };
+  const double S[6] = { 0.31, -2.52, 0.79, 0, 0, 0 };
+  twf_pose B, R;
+  twf_error err;
+  size_t u;
+  int a, b;
+  twf_se3_exp(S, 1.0, &B);
+  B.p[0] = 3.2171234;
+  B.p[1] = -1.8453;
+  B.p[2] = 0.7341;
+  for (u = 0; u < 4; u++) {
+    FILE *fp;
+    int fd;
+    strcpy(path, "/tmp/twf-base-XXXXXX");
+    fd = mkstemp(path);
+    fp = fdopen(fd, "w");
+    ck_assert_int_eq(twf_base_write(&B, units[u], "a comment", fp, &err), TWF_OK);
+    fclose(fp);
+    ck_assert_int_eq(twf_base_read(path, &R, &err), TWF_OK);
+    for (a = 0; a < 3; a++) {
+      ck_assert_close(R.p[a], B.p[a], 1e-15);
+      for (b = 0; b < 3; b++)
+        ck_assert_close(R.R[a][b], B.R[a][b], 1e-15);
+    }
+    unlink(path);
+  }
+}
+END_TEST
+
+START_TEST(test_indented_and_comments)
+{
+  twf_pose R;
+  twf_error err;
+  write_text("; base\n[base]\n  length_unit = m\n\tposition = 1 2 3\n"
+             "  quaternion_wxyz = 1 0 0 0\n");
+  ck_assert_int_eq(twf_base_read(path, &R, &err), TWF_OK);
+  ck_assert_close(R.p[1], 2.0, 1e-15);
+  unlink(path);
+}
+END_TEST
+
+static const struct {
+  const char *text;
+  twf_status status;
+  long line;
+  const char *fragment;
+} bad[] = {
+  { "[base]\nlength_unit = mm\nposition = 1 2 3\n", TWF_ERR_MISSING, 0, "incomplete" },
+  { "[base]\nlength_unit = mm\nposition = 1 2 3\nquaternion_wxyz = 1 0 0 0.1\n", TWF_ERR_VALUE, 4, "not unit" },
+  { "[base]\nlength_unit = mm\nposition = 1 2\nquaternion_wxyz = 1 0 0 0\n", TWF_ERR_VALUE, 3, "bad position" },
+  { "[base]\nlength_unit = mm\nposition = 1 2 nan\nquaternion_wxyz = 1 0 0 0\n", TWF_ERR_VALUE, 3, "bad position" },
+  { "[base]\nlength_unit = furlong\n", TWF_ERR_UNITS, 2, "unknown length unit" },
+  { "[base]\nlength_unit = mm\nlength_unit = m\n", TWF_ERR_DUPLICATE, 3, "duplicate key" },
+  { "[base]\ncolour = red\n", TWF_ERR_UNKNOWN, 2, "unknown key" },
+  { "[tool]\nlength_unit = mm\n", TWF_ERR_UNKNOWN, 1, "unknown section" },
+  { "[base]\n[base]\n", TWF_ERR_DUPLICATE, 2, "duplicate section" },
+  { "length_unit = mm\n", TWF_ERR_SYNTAX, 0, "outside [base]" },
+};
+
+START_TEST(test_bad_files)
+{
+  size_t i;
+  for (i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+    twf_pose R;
+    twf_error err;
+    write_text(bad[i].text);
+    ck_assert_int_eq(twf_base_read(path, &R, &err), bad[i].status);
+    ck_assert_msg(strstr(err.message, bad[i].fragment) != NULL, "case %zu: '%s'", i, err.message);
+    if (bad[i].line > 0)
+      ck_assert_int_eq(err.line, bad[i].line);
+    ck_assert_msg(err.hint[0] != '\0', "case %zu has no hint", i);
+    unlink(path);
+  }
+  {
+    twf_pose R;
+    twf_error err;
+    ck_assert_int_eq(twf_base_read("/nonexistent/base.ini", &R, &err), TWF_ERR_IO);
+  }
+}
+END_TEST
+
+int main(void)
+{
+  Suite *s = suite_create("basefile");
+  TCase *tc = tcase_create("basefile");
+  tcase_add_test(tc, test_roundtrip);
+  tcase_add_test(tc, test_indented_and_comments);
+  tcase_add_test(tc, test_bad_files);
+  suite_add_tcase(s, tc);
+  return twf_test_run(s);
+}

@@ -149,6 +149,16 @@ static void explain_text(const twf_calib_result *r, const twf_param_result *p, c
   }
 }
 
+/* Whether target k has fit-set rows: only those are determined. */
+static int target_measured(const twf_campaign *view, const twf_calib_result *r, size_t k)
+{
+  size_t i;
+  for (i = 0; i < view->n_meas; i++)
+    if (view->meas[i].target == k && r->meas_set[i] == TWF_SET_FIT)
+      return 1;
+  return 0;
+}
+
 typedef struct digest { const char *path; char hex[SHA256_DIGEST_STRING_LENGTH]; } digest;
 
 static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result *r,
@@ -213,13 +223,13 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   }
   for (j = 0; j < m->n_targets; j++) {
     const double *t = r->comparison.target_change_m + 3 * j;
-    if (isnan(t[0]))
+    if (isnan(t[0]) || !target_measured(view, r, j))
       continue;
     fprintf(fp, "  target %s at logged zero moved by %.4f %.4f %.4f %s\n", m->targets[j].name,
             t[0] / u->length_si, t[1] / u->length_si, t[2] / u->length_si, u->length);
   }
   for (j = 0; j < r->asbuilt->n_targets; j++)
-    if (r->asbuilt->targets[j].offset_known && r->registered->targets[j].offset_known)
+    if (r->asbuilt->targets[j].offset_known && target_measured(view, r, j))
       fprintf(fp, "  target %s offset (flange frame): %.4f %.4f %.4f %s\n", m->targets[j].name,
               r->asbuilt->targets[j].offset[0] / u->length_si, r->asbuilt->targets[j].offset[1] / u->length_si,
               r->asbuilt->targets[j].offset[2] / u->length_si, u->length);
@@ -240,7 +250,8 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
           r->observability[3]);
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
-    if (p->status == TWF_PARAM_KEPT)
+    if (p->status == TWF_PARAM_KEPT ||
+        (p->param.group == TWF_GROUP_TARGETS && !target_measured(view, r, (size_t)p->param.target)))
       continue;
     explain_text(r, p, expl, sizeof expl);
     fprintf(fp, "  %-14s %s%s%s\n", p->param.name, status_name(p->status), expl[0] ? ": ~ " : "", expl);
@@ -281,7 +292,10 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
               unit, status_name(p->status), p->weak ? ", weak" : "");
     else
       fprintf(fp, "  %-8s %-14s %14s %12s %-5s %s\n", twf_group_name(p->param.group), p->param.name, "-", "-",
-              unit, status_name(p->status));
+              unit,
+              p->param.group == TWF_GROUP_TARGETS && !target_measured(view, r, (size_t)p->param.target)
+                  ? "fixed (target not measured)"
+                  : status_name(p->status));
   }
   if (w->count > 0) {
     fprintf(fp, "\nWarnings\n");

@@ -1479,28 +1479,42 @@ static void list_ids(char *buf, size_t n, char (*ids)[TWF_NAME_MAX],
     appendf(buf, n, " and %zu more", count - LIST_IDS);
 }
 
+/* Every reader entry point parses in the C locale (so the caller's locale
+ * cannot change what a number means) and ends through reader_finish. */
+static twf_status reader_begin(reader *r, const twf_model *m, const twf_campaign_options *opt,
+                               twf_warnings *w, twf_error *err, locale_t *old)
+{
+  twf_status st = reader_init(r, m, opt, w, err);
+  *old = (locale_t)0;
+  if (r->c_locale != (locale_t)0)
+    *old = uselocale(r->c_locale);
+  return st;
+}
+
+static twf_campaign *reader_end(reader *r, twf_status st, locale_t old)
+{
+  twf_campaign *c = reader_finish(r, st);
+  if (old != (locale_t)0)
+    uselocale(old);
+  return c;
+}
+
 twf_campaign *twf_campaign_read(const char *path, const twf_model *m,
                                 const twf_campaign_options *opt,
                                 twf_warnings *w, twf_error *err)
 {
   reader r;
-  locale_t old = (locale_t)0;
-  twf_campaign *c;
+  locale_t old;
   twf_status st;
   twf_error_clear(err);
   if (path == NULL) {
     twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "no campaign file given");
     return NULL;
   }
-  st = reader_init(&r, m, opt, w, err);
-  if (r.c_locale != (locale_t)0)
-    old = uselocale(r.c_locale);
+  st = reader_begin(&r, m, opt, w, err, &old);
   if (st == TWF_OK)
     st = read_file(&r, path, KIND_ONE);
-  c = reader_finish(&r, st);
-  if (old != (locale_t)0)
-    uselocale(old);
-  return c;
+  return reader_end(&r, st, old);
 }
 
 twf_campaign *twf_campaign_read_pair(const char *joints_path,
@@ -1510,8 +1524,7 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
                                      twf_warnings *w, twf_error *err)
 {
   reader r;
-  locale_t old = (locale_t)0;
-  twf_campaign *c;
+  locale_t old;
   twf_status st;
   twf_error_clear(err);
   if (joints_path == NULL || points_path == NULL) {
@@ -1519,9 +1532,7 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
                   "the two-file form needs a joints file and a points file");
     return NULL;
   }
-  st = reader_init(&r, m, opt, w, err);
-  if (r.c_locale != (locale_t)0)
-    old = uselocale(r.c_locale);
+  st = reader_begin(&r, m, opt, w, err, &old);
   if (st == TWF_OK)
     st = read_file(&r, joints_path, KIND_JOINTS);
   if (st == TWF_OK)
@@ -1586,10 +1597,7 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
       free(which);
     }
   }
-  c = reader_finish(&r, st);
-  if (old != (locale_t)0)
-    uselocale(old);
-  return c;
+  return reader_end(&r, st, old);
 }
 
 twf_campaign *twf_campaign_read_joints(const char *joints_path,
@@ -1598,23 +1606,17 @@ twf_campaign *twf_campaign_read_joints(const char *joints_path,
                                        twf_warnings *w, twf_error *err)
 {
   reader r;
-  locale_t old = (locale_t)0;
-  twf_campaign *c;
+  locale_t old;
   twf_status st;
   twf_error_clear(err);
   if (joints_path == NULL) {
     twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "no joints file given");
     return NULL;
   }
-  st = reader_init(&r, m, opt, w, err);
-  if (r.c_locale != (locale_t)0)
-    old = uselocale(r.c_locale);
+  st = reader_begin(&r, m, opt, w, err, &old);
   if (st == TWF_OK)
     st = read_file(&r, joints_path, KIND_JOINTS);
-  c = reader_finish(&r, st);
-  if (old != (locale_t)0)
-    uselocale(old);
-  return c;
+  return reader_end(&r, st, old);
 }
 
 /* ------------------------------------------------------------------ */

@@ -147,6 +147,8 @@ void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary 
 void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign *c,
                      const twf_model *m, const cli_units *u);
 json_t *cli_json_number(double v);
+/* {position: [x y z] (length unit), quaternion_wxyz: [...]} */
+json_t *cli_json_pose(const twf_pose *T, const cli_units *u);
 json_t *cli_json_stats(const twf_stats *s, double unit);
 json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
                           const twf_campaign *c, const cli_units *u);

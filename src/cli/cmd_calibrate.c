@@ -327,6 +327,19 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                 (json_int_t)r->n_check_meas));
   json_object_set_new(root, "sigma", json_pack("{s:o, s:b}", "length", cli_json_number(r->sigma_length / u->length_si),
                                                "estimated", r->sigma_estimated));
+  json_object_set_new(root, "base_in_tracker",
+                      json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
+                                cli_json_pose(&r->base_in_tracker, u)));
+  {
+    json_t *targets = json_object();
+    for (j = 0; j < r->asbuilt->n_targets; j++)
+      if (target_measured(view, r, j))
+        json_object_set_new(targets, m->targets[j].name,
+                            json_pack("[o,o,o]", cli_json_number(r->asbuilt->targets[j].offset[0] / u->length_si),
+                                      cli_json_number(r->asbuilt->targets[j].offset[1] / u->length_si),
+                                      cli_json_number(r->asbuilt->targets[j].offset[2] / u->length_si)));
+    json_object_set_new(root, "target_offsets_flange", targets);
+  }
   json_object_set_new(root, "accuracy_before", cli_json_accuracy(before, m, view, u));
   json_object_set_new(root, "accuracy_after", cli_json_accuracy(after, m, view, u));
   json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(screened, u->length_si));

@@ -331,6 +331,8 @@ static int run_verify(int argc, char **argv)
       json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
       json_object_set_new(root, "command", json_string("verify"));
       json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
+      json_object_set_new(root, "base_in_tracker", cli_json_pose(&base, &u));
+      json_object_set_new(root, "base_source", json_string(base_path ? "given" : "registered"));
       json_object_set_new(root, "accuracy", cli_json_accuracy(summary, in.model, in.campaign, &u));
       json_object_set_new(root, "iso9283", json_iso9283(iso, in.model, in.campaign, &u));
       for (i = 0; i < 4; i++)

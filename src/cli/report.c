@@ -169,6 +169,16 @@ void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign
 
 /* ------------------------------------------------------------ JSON */
 
+json_t *cli_json_pose(const twf_pose *T, const cli_units *u)
+{
+  double q[4];
+  twf_rot_to_quat(T->R, q);
+  return json_pack("{s:[o,o,o], s:[o,o,o,o]}", "position", cli_json_number(T->p[0] / u->length_si),
+                   cli_json_number(T->p[1] / u->length_si), cli_json_number(T->p[2] / u->length_si),
+                   "quaternion_wxyz", cli_json_number(q[0]), cli_json_number(q[1]), cli_json_number(q[2]),
+                   cli_json_number(q[3]));
+}
+
 json_t *cli_json_number(double v)
 {
   /* jansson refuses NaN and infinity: they become null */

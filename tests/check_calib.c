@@ -408,37 +408,101 @@ END_TEST
 START_TEST(test_gross_outliers)
 {
   /* three gross errors of 2 to 5 mm (a broken beam, a wrong nest) are found
-   * and listed, and the result stays within the noise */
+   * and listed by every robust mode, and the result stays within the noise */
   const double sigma = 5e-5;
   const size_t bad[3] = { 17, 101, 230 };
   const double size[3] = { 2e-3, -3.5e-3, 5e-3 };
+  static const twf_robust modes[] = { TWF_ROBUST_DROP, TWF_ROBUST_HUBER, TWF_ROBUST_CAUCHY };
+  size_t mode;
+  for (mode = 0; mode < 3; mode++) {
+    scenario s;
+    twf_simulate_options so = twf_simulate_default_options();
+    twf_calib_options co = twf_calib_default_options();
+    twf_error err;
+    size_t i, k;
+    double pred;
+    memset(&s, 0, sizeof s);
+    s.nominal = test_arm_model(ARM_TF6S);
+    s.truth = twf_model_copy(s.nominal);
+    twf_model_perturb(s.truth, &typical, 71);
+    test_tracker_base(&s.base);
+    so.n_poses = 120;
+    so.sigma_m = sigma;
+    so.seed = 72;
+    s.c = twf_simulate_campaign(s.truth, &s.base, &so, &err);
+    for (k = 0; k < 3; k++)
+      s.c->meas[bad[k]].pos[k] += size[k];
+    co.sigma_length = sigma;
+    co.robust = modes[mode];
+    ck_assert_int_eq(twf_calibrate(s.nominal, s.c, &co, &s.res, NULL, &err), TWF_OK);
+    for (k = 0; k < 3; k++) {
+      int found = 0;
+      for (i = 0; i < s.res->n_outliers; i++)
+        found |= s.res->outliers[i].meas == bad[k] &&
+                 (modes[mode] == TWF_ROBUST_DROP ? s.res->outliers[i].weight == 0.0
+                                                 : s.res->outliers[i].weight < 0.2);
+      ck_assert_msg(found, "mode %zu: outlier %zu not listed", mode, bad[k]);
+    }
+    ck_assert_msg(s.res->n_outliers <= 6, "mode %zu lists %zu measurements", mode, s.res->n_outliers);
+    pred = prediction_rms(s.res->asbuilt, &s.res->base_in_tracker, s.truth, &s.base, 500, 79);
+    ck_assert_msg(pred <= 3 * sigma, "mode %zu: prediction RMS %.4g mm", mode, pred * 1e3);
+    free_scenario(&s);
+  }
+}
+END_TEST
+
+START_TEST(test_orientation_outliers)
+{
+  /* full-pose rows: four orientation readings 10 mrad off are screened
+   * against the rotation errors' own robust scale, listed, and the result
+   * stays within the noise */
+  const double sigma = 3e-5, sigma_rad = 2e-5;
+  const size_t bad[4] = { 11, 57, 123, 201 };
   scenario s;
   twf_simulate_options so = twf_simulate_default_options();
   twf_calib_options co = twf_calib_default_options();
   twf_error err;
   size_t i, k;
   double pred;
+  unsigned char sel[3] = { 1, 0, 0 };
   memset(&s, 0, sizeof s);
   s.nominal = test_arm_model(ARM_TF6S);
   s.truth = twf_model_copy(s.nominal);
-  twf_model_perturb(s.truth, &typical, 71);
+  twf_model_perturb(s.truth, &typical, 73);
   test_tracker_base(&s.base);
-  so.n_poses = 120;
+  so.n_poses = 300;
   so.sigma_m = sigma;
-  so.seed = 72;
+  so.sigma_rad = sigma_rad;
+  so.orientation = 1;
+  so.targets = sel;
+  so.seed = 74;
   s.c = twf_simulate_campaign(s.truth, &s.base, &so, &err);
-  for (k = 0; k < 3; k++)
-    s.c->meas[bad[k]].pos[k] += size[k];
+  for (k = 0; k < 4; k++) {
+    double R[3][3], E[3][3], Rn[3][3];
+    const double w[3] = { 0.01, 0.0, 0.0 };
+    int a, b, d;
+    twf_quat_to_rot(s.c->meas[bad[k]].quat, R);
+    twf_so3_exp(w, 1.0, E);
+    for (a = 0; a < 3; a++)
+      for (b = 0; b < 3; b++)
+        for (Rn[a][b] = 0, d = 0; d < 3; d++)
+          Rn[a][b] += E[a][d] * R[d][b];
+    twf_rot_to_quat(Rn, s.c->meas[bad[k]].quat);
+  }
   co.sigma_length = sigma;
+  co.sigma_angle = sigma_rad;
   ck_assert_int_eq(twf_calibrate(s.nominal, s.c, &co, &s.res, NULL, &err), TWF_OK);
-  for (k = 0; k < 3; k++) {
+  for (k = 0; k < 4; k++) {
     int found = 0;
     for (i = 0; i < s.res->n_outliers; i++)
-      found |= s.res->outliers[i].meas == bad[k] && s.res->outliers[i].weight == 0.0;
-    ck_assert_msg(found, "outlier %zu not dropped", bad[k]);
+      found |= s.res->outliers[i].meas == bad[k];
+    ck_assert_msg(found, "orientation outlier %zu not listed", bad[k]);
   }
-  ck_assert_uint_le(s.res->n_outliers, 5);
-  pred = prediction_rms(s.res->asbuilt, &s.res->base_in_tracker, s.truth, &s.base, 500, 79);
+  ck_assert_uint_le(s.res->n_outliers, 6);
+  /* only T1 was measured: predict T1 */
+  s.res->asbuilt->n_targets = 1;
+  pred = prediction_rms(s.res->asbuilt, &s.res->base_in_tracker, s.truth, &s.base, 500, 80);
+  s.res->asbuilt->n_targets = 3;
   ck_assert_msg(pred <= 3 * sigma, "prediction RMS %.4g mm", pred * 1e3);
   free_scenario(&s);
 }
@@ -447,34 +511,51 @@ END_TEST
 
 START_TEST(test_asbuilt_independent_of_order)
 {
-  /* the per-joint deviations in the datum frame do not depend on which
-   * redundant parameters the walk fixed (calibration-model.md, "Reporting
-   * the as-built geometry"), while the raw parameters do */
-  twf_calib_options a = twf_calib_default_options(), b = twf_calib_default_options();
+  /* the per-joint deviations in the datum frame (tilt, line shift, offset)
+   * and the targets at logged zero do not depend on which redundant
+   * parameters the walk fixed (calibration-model.md, "Reporting the as-built
+   * geometry"), while the raw parameters do; on every sample arm, the
+   * four-axis one with all revolute axes parallel included */
+  static const test_arm arms[] = { ARM_TF6S, ARM_TF6P, ARM_TF7, ARM_TF4P };
   const twf_group order_b[TWF_GROUP_COUNT] = { TWF_GROUP_TILTS, TWF_GROUP_SHIFTS, TWF_GROUP_HOME,
                                                TWF_GROUP_OFFSETS, TWF_GROUP_TARGETS,
                                                TWF_GROUP_BASE, TWF_GROUP_SCALE };
-  scenario sa, sb;
-  size_t i;
-  int raw_differs = 0;
-  a.sigma_length = b.sigma_length = 1e-5;
-  memcpy(b.priority, order_b, sizeof order_b);
-  ck_assert_int_eq(run_scenario(&sa, ARM_TF6S, 80, 0.0, 81, &a), TWF_OK);
-  ck_assert_int_eq(run_scenario(&sb, ARM_TF6S, 80, 0.0, 81, &b), TWF_OK);
-  for (i = 0; i < 6; i++) {
-    const twf_joint_deviation *da = &sa.res->comparison.joints[i], *db = &sb.res->comparison.joints[i];
-    ck_assert_msg(fabs(da->angle_rad - db->angle_rad) < 1e-9 && fabs(da->distance_m - db->distance_m) < 1e-9,
-                  "joint %zu: %.6g rad / %.6g m against %.6g rad / %.6g m", i + 1, da->angle_rad,
-                  da->distance_m, db->angle_rad, db->distance_m);
+  size_t arm;
+  for (arm = 0; arm < 4; arm++) {
+    twf_calib_options a = twf_calib_default_options(), b = twf_calib_default_options();
+    scenario sa, sb;
+    size_t i, n;
+    int raw_differs = 0;
+    a.sigma_length = b.sigma_length = 1e-5;
+    memcpy(b.priority, order_b, sizeof order_b);
+    ck_assert_int_eq(run_scenario(&sa, arms[arm], 80, 0.0, 81, &a), TWF_OK);
+    ck_assert_int_eq(run_scenario(&sb, arms[arm], 80, 0.0, 81, &b), TWF_OK);
+    ck_assert(sa.res->comparison.settled && sb.res->comparison.settled);
+    n = sa.nominal->n_joints;
+    for (i = 0; i < n; i++) {
+      const twf_joint_deviation *da = &sa.res->comparison.joints[i], *db = &sb.res->comparison.joints[i];
+      int offset_same = isnan(da->offset) ? isnan(db->offset) : fabs(da->offset - db->offset) < 1e-9;
+      ck_assert_msg(fabs(da->angle_rad - db->angle_rad) < 1e-9 && fabs(da->distance_m - db->distance_m) < 1e-9 &&
+                    offset_same,
+                    "%s joint %zu: %.6g rad / %.6g m / offset %.6g against %.6g rad / %.6g m / offset %.6g",
+                    sa.nominal->name, i + 1, da->angle_rad, da->distance_m, da->offset, db->angle_rad,
+                    db->distance_m, db->offset);
+      if (da->offset_raw != db->offset_raw)
+        raw_differs = 1;
+    }
+    /* with points only the last joint's offset is absorbed by the targets */
+    ck_assert(isnan(sa.res->comparison.joints[n - 1].offset));
+    ck_assert(isnan(sa.res->comparison.home_distance_m) && isnan(sa.res->comparison.home_angle_rad));
+    for (i = 0; i < 3 * sa.nominal->n_targets; i++)
+      ck_assert(fabs(sa.res->comparison.target_change_m[i] - sb.res->comparison.target_change_m[i]) < 1e-9);
+    for (i = 0; i < sa.res->n_params; i++)
+      if (sa.res->params[i].status != sb.res->params[i].status)
+        raw_differs = 1;
+    ck_assert_msg(raw_differs, "%s: the two orders fixed the same parameters: the test shows nothing",
+                  sa.nominal->name);
+    free_scenario(&sa);
+    free_scenario(&sb);
   }
-  for (i = 0; i < 9; i++)
-    ck_assert(fabs(sa.res->comparison.target_change_m[i] - sb.res->comparison.target_change_m[i]) < 1e-9);
-  for (i = 0; i < sa.res->n_params; i++)
-    if (sa.res->params[i].status != sb.res->params[i].status)
-      raw_differs = 1;
-  ck_assert_msg(raw_differs, "the two orders fixed the same parameters: the test shows nothing");
-  free_scenario(&sa);
-  free_scenario(&sb);
 }
 END_TEST
 
@@ -535,6 +616,7 @@ int main(void)
   tcase_add_test(fit, test_joint_never_moves);
   tcase_add_test(fit, test_narrow_joint_warning);
   tcase_add_test(fit, test_gross_outliers);
+  tcase_add_test(fit, test_orientation_outliers);
   tcase_add_test(fit, test_asbuilt_independent_of_order);
   tcase_add_test(fit, test_parallel_axes_well_conditioned);
   tcase_add_test(fit, test_bad_calls);

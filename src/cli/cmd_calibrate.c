@@ -213,13 +213,19 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
               "  starting model's (lines at logged zero; RMS misfit %.4f %s)\n",
           r->comparison.datum_rms_m / u->length_si, u->length);
   fprintf(fp, "  %-8s %14s %14s %14s\n", "joint", "tilt", "line shift", "offset");
-  fprintf(fp, "  %-8s %14s %14s %14s\n", "", u->angle, u->length, m->joints[0].type == TWF_JOINT_REVOLUTE ? u->angle : u->length);
+  fprintf(fp, "  %-8s %14s %14s %14s\n", "", u->angle, u->length, u->angle);
   for (j = 0; j < m->n_joints; j++) {
     const twf_joint_deviation *d = &r->comparison.joints[j];
-    int rev = m->joints[j].type == TWF_JOINT_REVOLUTE;
-    fprintf(fp, "  %-8s %14.5f %14.4f %14.5f%s\n", m->joints[j].name, d->angle_rad / u->angle_si,
-            d->distance_m / u->length_si, d->offset / (rev ? u->angle_si : u->length_si),
-            rev ? "" : " (prismatic: offset in length unit)");
+    char off[32];
+    if (isfinite(d->offset))
+      snprintf(off, sizeof off, "%14.5f", d->offset / u->angle_si);
+    else
+      snprintf(off, sizeof off, "%14s", "-");
+    fprintf(fp, "  %-8s %14.5f %14.4f %s%s\n", m->joints[j].name, d->angle_rad / u->angle_si,
+            d->distance_m / u->length_si, off,
+            m->joints[j].type != TWF_JOINT_REVOLUTE ? "  (prismatic: direction only)"
+            : isfinite(d->offset)                   ? ""
+                                                    : "  (not shown by the data: absorbed by the targets)");
   }
   for (j = 0; j < m->n_targets; j++) {
     const double *t = r->comparison.target_change_m + 3 * j;
@@ -233,12 +239,15 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
       fprintf(fp, "  target %s offset (flange frame): %.4f %.4f %.4f %s\n", m->targets[j].name,
               r->asbuilt->targets[j].offset[0] / u->length_si, r->asbuilt->targets[j].offset[1] / u->length_si,
               r->asbuilt->targets[j].offset[2] / u->length_si, u->length);
-  if (view->has_orientation_any)
-    fprintf(fp, "  flange at logged zero: rotated %.5f %s, moved %.4f %s\n",
-            r->comparison.home_angle_rad / u->angle_si, u->angle,
-            r->comparison.home_distance_m / u->length_si, u->length);
-  fprintf(fp, "  (the offset column is the fitted joint offset; which redundant offsets are\n"
-              "  fixed depends on --priority, the tilt and line shift columns do not)\n");
+  if (isfinite(r->comparison.home_angle_rad))
+    fprintf(fp, "  flange at logged zero: rotated %.5f %s\n", r->comparison.home_angle_rad / u->angle_si,
+            u->angle);
+  if (isfinite(r->comparison.home_distance_m))
+    fprintf(fp, "  flange at logged zero: moved %.4f %s\n", r->comparison.home_distance_m / u->length_si,
+            u->length);
+  fprintf(fp, "  (tilt, line shift and offset are rotations and shifts of the joint lines at\n"
+              "  logged zero: they do not depend on which redundant parameters were fixed;\n"
+              "  the raw parameters below do)\n");
 
   fprintf(fp, "\nIdentifiability\n");
   fprintf(fp, "  requested %zu parameters; identifiable for this arm and measurement kind %zu;\n"
@@ -364,10 +373,11 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   for (j = 0; j < m->n_joints; j++) {
     const twf_joint_deviation *d = &r->comparison.joints[j];
     int rev = m->joints[j].type == TWF_JOINT_REVOLUTE;
-    json_array_append_new(joints, json_pack("{s:s, s:o, s:o, s:o}", "joint", m->joints[j].name, "tilt",
+    json_array_append_new(joints, json_pack("{s:s, s:o, s:o, s:o, s:o}", "joint", m->joints[j].name, "tilt",
                                             cli_json_number(d->angle_rad / u->angle_si), "line_shift",
                                             cli_json_number(d->distance_m / u->length_si), "offset",
-                                            cli_json_number(d->offset / (rev ? u->angle_si : u->length_si))));
+                                            cli_json_number(d->offset / u->angle_si), "offset_raw",
+                                            cli_json_number(d->offset_raw / (rev ? u->angle_si : u->length_si))));
   }
   json_object_set_new(root, "asbuilt_deviation",
                       json_pack("{s:s, s:o, s:o}", "datum", "best alignment of the joint lines at logged zero",

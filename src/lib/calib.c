@@ -69,6 +69,7 @@ typedef struct problem {
   size_t *pose_meas;
   double *inv_sigma;       /* per measurement, 1/m */
   double inv_sigma_rot;    /* 1/rad */
+  double sigma_len;        /* typical sigma of a coordinate, m */
   double *weight;          /* robust weight, 0 = dropped */
   const unsigned char *use;/* 1: enters the fit */
   double *rows;            /* 3 x p rows, then 3 x p gathered columns */
@@ -152,6 +153,7 @@ static twf_status problem_init(problem *pr, const twf_model *m, const twf_campai
     pr->weight[i] = 1.0;
   }
   pr->inv_sigma_rot = 1.0 / (sigma_angle > 0 ? sigma_angle : sigma_length / twf_model_reach(m));
+  pr->sigma_len = sigma_length;
   return TWF_OK;
 nomem:
   problem_free(pr);
@@ -235,6 +237,50 @@ static double accumulate(problem *pr, double *A, double *g)
   return accumulate_cols(pr, NULL, 0, A, g);
 }
 
+/* The triangular factor R of the weighted Jacobian (R^T R = J^T W J) over
+ * the active measurements and the columns cols[0..nc) (R is nc x nc),
+ * streamed row by row with Givens rotations: the redundancy walk on the
+ * user's poses runs on it. */
+static void accumulate_r(problem *pr, const size_t *cols, size_t nc, double *R)
+{
+  const twf_campaign *c = pr->c;
+  size_t p = pr->p, pose, t, a;
+  memset(R, 0, nc * nc * sizeof *R);
+  for (pose = 0; pose < c->n_poses; pose++) {
+    int any = 0;
+    for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++)
+      any |= meas_active(pr, pr->pose_meas[t]);
+    if (!any)
+      continue;
+    twf_errmodel_eval_pose(pr->em, pr->m, &pr->base, c->q + pose * pr->n_joints, NULL);
+    for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
+      size_t i = pr->pose_meas[t];
+      const twf_measurement *ms = &c->meas[i];
+      double y[3], r[3], sw;
+      int pass, k;
+      if (!meas_active(pr, i))
+        continue;
+      for (pass = 0; pass < (ms->has_orientation ? 2 : 1); pass++) {
+        if (pass == 0) {
+          twf_errmodel_point(pr->em, pr->m, ms->target, y, pr->rows);
+          sw = sqrt(pr->weight[i]) * pr->inv_sigma[i];
+        } else {
+          double Rm[3][3];
+          quat_to_R(ms->quat, Rm);
+          twf_errmodel_orientation(pr->em, Rm, r, pr->rows);
+          sw = sqrt(pr->weight[i]) * pr->inv_sigma_rot;
+        }
+        for (k = 0; k < 3; k++) {
+          double *row = pr->rows + 3 * p;
+          for (a = 0; a < nc; a++)
+            row[a] = sw * pr->rows[k * p + cols[a]];
+          twf_ident_qr_add_row(R, nc, row);
+        }
+      }
+    }
+  }
+}
+
 /* The cost only (no Jacobian), at model m and base B. */
 static double cost_at(const problem *pr, const twf_model *m, const twf_pose *B,
                       twf_pose *prefix_ws)
@@ -292,7 +338,11 @@ static twf_status lm_run(problem *pr, const unsigned char *keep, int max_iter,
   twf_pose *prefix = calloc(pr->n_joints + 1, sizeof *prefix);
   gsl_matrix *M = NULL;
   gsl_vector *rhs = NULL, *x = NULL;
-  double cost, lambda = 1e-3, nu = 2.0;
+  /* start close to Gauss-Newton: with Marquardt's diagonal scaling a
+   * damping of 1e-3 held back the weak directions (the normal matrix's
+   * condition number is the square of the Jacobian's) and the fit crept on
+   * linearly; a rejected step raises the damping quickly (Nielsen) */
+  double cost, lambda = 1e-9, nu = 2.0;
   twf_status st = TWF_OK;
   twf_pose trial_base;
 
@@ -569,13 +619,14 @@ static void all_residuals(const twf_model *m, const twf_pose *B, const twf_campa
   }
 }
 
-/* Synthetic rich pose set within the joint limits (structural redundancy). */
-static twf_status synthetic_normal(const problem *pr, size_t n_poses, unsigned long long seed,
+/* The triangular factor R (R^T R = J^T J) of a synthetic rich pose set
+ * within the joint limits: the structural redundancy is walked on it. */
+static twf_status synthetic_factor(const problem *pr, size_t n_poses, unsigned long long seed,
                                    const unsigned char *target_seen, int with_orientation,
-                                   double *A)
+                                   double *R)
 {
   const twf_model *m = pr->m;
-  size_t p = pr->p, n = m->n_joints, s, k, a, b;
+  size_t p = pr->p, n = m->n_joints, s, k;
   double *q = calloc(n ? n : 1, sizeof *q);
   double *rows = calloc(3 * (p ? p : 1), sizeof *rows);
   unsigned long long st = seed;
@@ -583,7 +634,7 @@ static twf_status synthetic_normal(const problem *pr, size_t n_poses, unsigned l
     free(q); free(rows);
     return TWF_ERR_NOMEM;
   }
-  memset(A, 0, p * p * sizeof *A);
+  memset(R, 0, p * p * sizeof *R);
   for (s = 0; s < n_poses; s++) {
     for (k = 0; k < n; k++) {
       const twf_joint *jt = &m->joints[k];
@@ -607,16 +658,12 @@ static twf_status synthetic_normal(const problem *pr, size_t n_poses, unsigned l
           twf_pose_mul(&pr->base, &T, &T);
           twf_errmodel_orientation(pr->em, T.R, r, rows);
         }
-        for (a = 0; a < p; a++)
-          for (b = a; b < p; b++)
-            A[a * p + b] += rows[a] * rows[b] + rows[p + a] * rows[p + b] +
-                            rows[2 * p + a] * rows[2 * p + b];
+        twf_ident_qr_add_row(R, p, rows);
+        twf_ident_qr_add_row(R, p, rows + p);
+        twf_ident_qr_add_row(R, p, rows + 2 * p);
       }
     }
   }
-  for (a = 0; a < p; a++)
-    for (b = 0; b < a; b++)
-      A[a * p + b] = A[b * p + a];
   free(q);
   free(rows);
   return TWF_OK;
@@ -631,20 +678,26 @@ static double median_of(double *v, size_t n)
 }
 
 /* Robust screen: score each fit measurement's error length against
- * 1.4826 MAD of the weighted residual components; set weights. Returns the
- * number of measurements whose weight changed. */
-static size_t robust_screen(problem *pr, const twf_calib_options *opt, double *score,
-                            double *err_len)
+ * 1.4826 MAD of the weighted residual components (and, for 6-D rows, the
+ * rotation error against its own robust scale, the median over 1.5382, the
+ * median of a chi distribution with 3 degrees of freedom; a row scores the
+ * larger of the two); set the weights. *changed receives the number of
+ * measurements whose weight changed. */
+static twf_status robust_screen(problem *pr, const twf_calib_options *opt, double *score,
+                                double *err_len, size_t *changed)
 {
   const twf_campaign *c = pr->c;
-  size_t i, n = 0, changed = 0;
-  double *comp = malloc(3 * (c->n_meas ? c->n_meas : 1) * sizeof *comp);
-  double *pos = malloc(3 * (c->n_meas ? c->n_meas : 1) * sizeof *pos);
-  double *rot = malloc((c->n_meas ? c->n_meas : 1) * sizeof *rot);
-  double med, mad, s;
-  if (comp == NULL || pos == NULL || rot == NULL) {
-    free(comp); free(pos); free(rot);
-    return 0;
+  size_t i, n = 0, nr = 0;
+  size_t cap = c->n_meas ? c->n_meas : 1;
+  double *comp = malloc(3 * cap * sizeof *comp);
+  double *pos = malloc(3 * cap * sizeof *pos);
+  double *rot = malloc(cap * sizeof *rot);
+  double *rs = malloc(cap * sizeof *rs);
+  double med, mad, s, s_rot = 0.0;
+  *changed = 0;
+  if (comp == NULL || pos == NULL || rot == NULL || rs == NULL) {
+    free(comp); free(pos); free(rot); free(rs);
+    return TWF_ERR_NOMEM;
   }
   all_residuals(pr->m, &pr->base, c, pos, rot);
   for (i = 0; i < c->n_meas; i++) {
@@ -653,42 +706,49 @@ static size_t robust_screen(problem *pr, const twf_calib_options *opt, double *s
       continue;
     for (k = 0; k < 3; k++)
       comp[n++] = pos[3 * i + k] * pr->inv_sigma[i];
+    if (c->meas[i].has_orientation)
+      rs[nr++] = rot[i] * pr->inv_sigma_rot;
   }
   med = median_of(comp, n);
   for (i = 0; i < n; i++)
     comp[i] = fabs(comp[i] - med);
   mad = median_of(comp, n);
   s = 1.4826 * mad;
-  /* floor the scale at 1 um: below any instrument's noise, so that a
-   * noise-free campaign flags no rounding-level "outliers" (common
+  /* floor the scales at 1 um (and 1 urad): below any instrument's noise, so
+   * that a noise-free campaign flags no rounding-level "outliers" (common
    * practice, no source) */
-  {
-    double floor_s = 1e-6 * pr->inv_sigma[0];
-    if (!(s > floor_s))
-      s = floor_s;
+  if (!(s > 1e-6 / pr->sigma_len))
+    s = 1e-6 / pr->sigma_len;
+  if (nr > 0) {
+    s_rot = median_of(rs, nr) / 1.5382;
+    if (!(s_rot > 1e-6 * pr->inv_sigma_rot))
+      s_rot = 1e-6 * pr->inv_sigma_rot;
   }
   for (i = 0; i < c->n_meas; i++) {
     double len = sqrt(pos[3 * i] * pos[3 * i] + pos[3 * i + 1] * pos[3 * i + 1] +
                       pos[3 * i + 2] * pos[3 * i + 2]);
-    double u = len * pr->inv_sigma[i] / s, w = 1.0;
+    double u = len * pr->inv_sigma[i] / s, w = 1.0, k = opt->robust_threshold;
+    if (c->meas[i].has_orientation && s_rot > 0)
+      u = fmax(u, rot[i] * pr->inv_sigma_rot / s_rot);
     err_len[i] = len;
     score[i] = u;
     if (!pr->use[i])
       continue;
     switch (opt->robust) {
-    case TWF_ROBUST_DROP: w = u > opt->robust_threshold ? 0.0 : 1.0; break;
-    case TWF_ROBUST_HUBER: w = u > opt->robust_threshold ? opt->robust_threshold / u : 1.0; break;
-    case TWF_ROBUST_CAUCHY: w = 1.0 / (1.0 + (u / opt->robust_threshold) * (u / opt->robust_threshold)); break;
+    case TWF_ROBUST_DROP: w = u > k ? 0.0 : 1.0; break;
+    case TWF_ROBUST_HUBER: w = u > k ? k / u : 1.0; break;
+    case TWF_ROBUST_CAUCHY: w = 1.0 / (1.0 + (u / k) * (u / k)); break;
     case TWF_ROBUST_OFF: w = 1.0; break;
     }
     if (fabs(w - pr->weight[i]) > 1e-3 * fmax(w, pr->weight[i]))
-      changed++;
+      (*changed)++;
     pr->weight[i] = w;
   }
   free(comp);
   free(pos);
   free(rot);
-  return changed;
+  free(rs);
+  return TWF_OK;
 }
 
 /* A joint counts as narrow in the fit poses when it moved through less
@@ -818,6 +878,7 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   twf_model *reg = NULL;
   unsigned char *use = NULL, *keep_struct = NULL, *keep = NULL, *target_seen = NULL,
                 *fit_target = NULL, *pose_held = NULL;
+  double *Rf = NULL, *scales = NULL;
   double *offsets = NULL, *As = NULL, *cov = NULL, *value = NULL, *rel = NULL, *sv = NULL,
          *score = NULL, *err_len = NULL, *first_err = NULL, *first_score = NULL;
   size_t *order = NULL;
@@ -834,7 +895,25 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   if (start == NULL || c == NULL || c->n_joints != start->n_joints)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "the campaign does not match the model");
-  sigma_len = opt.sigma_length > 0 ? opt.sigma_length : 1e-4;
+  if (!(opt.robust_threshold > 0) || !(opt.check_fraction >= 0 && opt.check_fraction < 1) ||
+      opt.max_iterations < 1 || !(opt.redundancy_tol > 0 && opt.redundancy_tol < 1) ||
+      !(opt.sigma_length >= 0) || !(opt.sigma_angle >= 0) || !(opt.weak_ratio > 0) || opt.groups == 0)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+                         "use positive thresholds, a held-out fraction in [0, 1) and at least one iteration",
+                         "invalid calibration options");
+  /* the sigma of the covariance: given, else the mean of the rows' own
+   * (as the registration does), else a placeholder scaled a posteriori */
+  sigma_len = opt.sigma_length;
+  if (!(sigma_len > 0)) {
+    double sum = 0.0;
+    size_t n_sig = 0;
+    for (i = 0; i < c->n_meas; i++)
+      if (c->meas[i].sigma > 0) {
+        sum += c->meas[i].sigma;
+        n_sig++;
+      }
+    sigma_len = n_sig ? sum / (double)n_sig : 1e-4;
+  }
 
   res = calloc(1, sizeof *res);
   use = calloc(c->n_meas ? c->n_meas : 1, 1);
@@ -958,6 +1037,8 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   keep = calloc(p ? p : 1, 1);
   order = calloc(p ? p : 1, sizeof *order);
   As = calloc(p ? p * p : 1, sizeof *As);
+  Rf = calloc(p ? p * p : 1, sizeof *Rf);
+  scales = calloc(p ? p : 1, sizeof *scales);
   cov = calloc(p ? p * p : 1, sizeof *cov);
   value = calloc(p ? p : 1, sizeof *value);
   rel = calloc(p ? p : 1, sizeof *rel);
@@ -966,21 +1047,23 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   err_len = calloc(c->n_meas ? c->n_meas : 1, sizeof *err_len);
   first_err = calloc(c->n_meas ? c->n_meas : 1, sizeof *first_err);
   first_score = calloc(c->n_meas ? c->n_meas : 1, sizeof *first_score);
-  if (!res->params || !keep_struct || !keep || !order || !As || !cov || !value || !rel || !sv ||
+  if (!res->params || !keep_struct || !keep || !order || !As || !Rf || !scales || !cov || !value || !rel || !sv ||
       !score || !err_len || !first_err || !first_score)
     goto nomem;
   for (j = 0; j < p; j++)
     res->params[j].param = *twf_errmodel_param(pr.em, j);
   n_order = walk_order(&pr, opt.priority, order);
 
+  for (j = 0; j < p; j++)
+    scales[j] = twf_errmodel_param_scale(pr.em, j);
   /* 3. structural redundancy on a rich synthetic pose set */
   {
     size_t n_syn = opt.synthetic_poses ? opt.synthetic_poses : (p < 40 ? 200 : 5 * p);
-    if (synthetic_normal(&pr, n_syn, opt.seed, target_seen, with_orientation, pr.A) != TWF_OK)
+    if (synthetic_factor(&pr, n_syn, opt.seed, target_seen, with_orientation, Rf) != TWF_OK)
       goto nomem;
-    scale_normal(&pr, pr.A, As);
-    if (twf_ident_walk(As, p, order, n_order, opt.redundancy_tol, keep_struct, rel) != 0)
+    if (twf_ident_walk_r(Rf, p, scales, order, n_order, opt.redundancy_tol, keep_struct, rel) != 0)
       goto nomem;
+    twf_ident_normal_from_r(Rf, p, scales, As);
     for (j = 0; j < p; j++)
       res->structural_count += keep_struct[j];
     for (j = 0; j < p; j++)
@@ -991,21 +1074,44 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
                                                      res->params[j].explain_coef);
       }
   }
-  /* 4. columns exactly dependent on the user's own poses */
-  accumulate(&pr, pr.A, pr.g);
-  scale_normal(&pr, pr.A, As);
+  /* 4. columns exactly dependent on the user's own poses: the factor over
+   * the structurally kept columns only (the others are fixed already) */
   {
-    size_t *order2 = calloc(p ? p : 1, sizeof *order2), n2 = 0;
-    if (order2 == NULL)
-      goto nomem;
-    for (i = 0; i < n_order; i++)
-      if (keep_struct[order[i]])
-        order2[n2++] = order[i];
-    if (twf_ident_walk(As, p, order2, n2, opt.redundancy_tol, keep, rel) != 0) {
-      free(order2);
-      goto nomem;
+    size_t *cols = calloc(p ? p : 1, sizeof *cols), *order2 = calloc(p ? p : 1, sizeof *order2);
+    size_t *pos_of = calloc(p ? p : 1, sizeof *pos_of);
+    double *sc = calloc(p ? p : 1, sizeof *sc), *Ac = calloc(p ? p * p : 1, sizeof *Ac);
+    unsigned char *keep_c = calloc(p ? p : 1, 1);
+    size_t nc = 0, n2 = 0, a, b;
+    int bad = cols == NULL || order2 == NULL || pos_of == NULL || sc == NULL || Ac == NULL ||
+              keep_c == NULL;
+    if (!bad) {
+      for (j = 0; j < p; j++)
+        if (keep_struct[j]) {
+          pos_of[j] = nc;
+          sc[nc] = scales[j];
+          cols[nc++] = j;
+        }
+      for (i = 0; i < n_order; i++)
+        if (keep_struct[order[i]])
+          order2[n2++] = pos_of[order[i]];
+      accumulate_r(&pr, cols, nc, Rf);
+      bad = twf_ident_walk_r(Rf, nc, sc, order2, n2, opt.redundancy_tol, keep_c, Ac) != 0;
     }
-    free(order2);
+    if (!bad) {
+      memset(keep, 0, p);
+      for (a = 0; a < nc; a++) {
+        keep[cols[a]] = keep_c[a];
+        rel[cols[a]] = Ac[a]; /* the walk's relative independent parts */
+      }
+      twf_ident_normal_from_r(Rf, nc, sc, Ac);
+      memset(As, 0, p * p * sizeof *As);
+      for (a = 0; a < nc; a++)
+        for (b = 0; b < nc; b++)
+          As[cols[a] * p + cols[b]] = Ac[a * nc + b];
+    }
+    free(cols); free(order2); free(pos_of); free(sc); free(Ac); free(keep_c);
+    if (bad)
+      goto nomem;
   }
   for (j = 0; j < p; j++)
     if (keep_struct[j] && !keep[j]) {
@@ -1026,26 +1132,42 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   if (st != TWF_OK)
     goto fail;
   if (opt.robust != TWF_ROBUST_OFF) {
-    int round;
-    size_t changed = robust_screen(&pr, &opt, first_score, first_err);
-    for (round = 0; round < 5 && changed > 0; round++) {
+    size_t changed;
+    /* iterate screen and refit until the weights settle (a dropped set
+     * that no longer changes, or reweighting that moves no weight by more
+     * than 1e-3); the model reported is always the fit with the final
+     * weights */
+    if (robust_screen(&pr, &opt, first_score, first_err, &changed) != TWF_OK)
+      goto nomem;
+    memcpy(score, first_score, c->n_meas * sizeof *score);
+    while (changed > 0) {
       res->robust_rounds++;
       st = lm_run(&pr, keep, opt.max_iterations, opt.step_tol_m, value, &res->solve, err);
       if (st != TWF_OK)
         goto fail;
-      if (opt.robust == TWF_ROBUST_DROP)
-        changed = robust_screen(&pr, &opt, score, err_len);
-      else
-        changed = 0;
+      if (res->robust_rounds >= 10)
+        break;
+      if (robust_screen(&pr, &opt, score, err_len, &changed) != TWF_OK)
+        goto nomem;
+      if (changed > 0 && res->robust_rounds >= 9) {
+        /* last refit with these weights */
+        res->robust_rounds++;
+        st = lm_run(&pr, keep, opt.max_iterations, opt.step_tol_m, value, &res->solve, err);
+        if (st != TWF_OK)
+          goto fail;
+        break;
+      }
     }
+    /* listed: dropped or down-weighted beyond the threshold (a Cauchy weight
+     * is below 1 for every residual, so only scores past the threshold count) */
     for (i = 0; i < c->n_meas; i++)
-      if (use[i] && pr.weight[i] < 1.0)
+      if (use[i] && (opt.robust == TWF_ROBUST_CAUCHY ? score[i] > opt.robust_threshold : pr.weight[i] < 1.0))
         res->n_outliers++;
     res->outliers = calloc(res->n_outliers ? res->n_outliers : 1, sizeof *res->outliers);
     if (res->outliers == NULL)
       goto nomem;
     for (i = 0, j = 0; i < c->n_meas; i++)
-      if (use[i] && pr.weight[i] < 1.0) {
+      if (use[i] && (opt.robust == TWF_ROBUST_CAUCHY ? score[i] > opt.robust_threshold : pr.weight[i] < 1.0)) {
         res->outliers[j].meas = i;
         res->outliers[j].error_m = first_err[i];
         res->outliers[j].score = first_score[i];
@@ -1054,8 +1176,19 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
       }
   }
 
-  /* 6. covariance, conditioning, correlations, weak parameters */
-  accumulate(&pr, pr.A, pr.g);
+  /* 6. covariance, conditioning, correlations, weak parameters: the normal
+   * matrix of the kept columns, spread into the full p x p layout */
+  {
+    size_t nkc = 0, a, b;
+    for (j = 0; j < p; j++)
+      if (keep[j])
+        order[nkc++] = j; /* order is free again: reuse it as the column map */
+    accumulate_cols(&pr, order, nkc, As, pr.g);
+    memset(pr.A, 0, p * p * sizeof *pr.A);
+    for (a = 0; a < nkc; a++)
+      for (b = 0; b < nkc; b++)
+        pr.A[order[a] * p + order[b]] = As[a * nkc + b];
+  }
   for (i = 0; i < c->n_meas; i++)
     if (meas_active(&pr, i))
       n_rows += c->meas[i].has_orientation ? 6 : 3;
@@ -1153,9 +1286,20 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   reg = NULL;
   if (res->asbuilt == NULL)
     goto nomem;
-  st = twf_asbuilt_align(start, res->asbuilt, &res->base_in_tracker, &res->comparison, err);
+  st = twf_asbuilt_align(start, res->asbuilt, &res->base_in_tracker, with_orientation,
+                         &res->comparison, err);
   if (st != TWF_OK)
     goto fail;
+  /* what the data cannot tell about the flange at logged zero */
+  if (!with_orientation)
+    res->comparison.home_angle_rad = NAN;
+  if (opt.groups & TWF_GROUP_BIT(TWF_GROUP_TARGETS))
+    res->comparison.home_distance_m = NAN;
+  if (!res->comparison.settled)
+    twf_warnings_add(warnings, NULL, 0, 0,
+                     "the datum of the as-built report did not settle: the joint lines leave the base "
+                     "frame partly free (give the targets offsets in the starting model); the model "
+                     "and its predictions are not affected");
   *out = res;
   res = NULL;
   st = TWF_OK;
@@ -1170,7 +1314,7 @@ cleanup:
   twf_model_free(reg);
   problem_free(&pr);
   free(use); free(keep_struct); free(keep); free(target_seen); free(fit_target);
-  free(pose_held); free(offsets); free(As); free(cov); free(value); free(rel); free(sv);
+  free(pose_held); free(offsets); free(As); free(Rf); free(scales); free(cov); free(value); free(rel); free(sv);
   free(score); free(err_len); free(first_err); free(first_score); free(order);
   return st;
 }

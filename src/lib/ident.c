@@ -80,7 +80,7 @@ size_t twf_ident_explain(const double *A, size_t p, const unsigned char *keep,
                          size_t j, size_t max_out, size_t *idx_out, double *coef_out)
 {
   size_t *idx = malloc((p ? p : 1) * sizeof *idx), nk, a, n = 0;
-  gsl_matrix *K = kept_block(A, p, keep, idx, &nk);
+  gsl_matrix *K = idx ? kept_block(A, p, keep, idx, &nk) : NULL;
   gsl_vector *rhs = NULL, *c = NULL;
   if (K == NULL || gsl_linalg_cholesky_decomp1(K) != 0)
     goto done;
@@ -124,11 +124,11 @@ done:
 
 int twf_ident_inverse(const double *A, size_t p, const unsigned char *keep, double *cov)
 {
-  size_t *idx = malloc((p ? p : 1) * sizeof *idx), nk, a, b;
-  gsl_matrix *K = kept_block(A, p, keep, idx, &nk);
+  size_t *idx = malloc((p ? p : 1) * sizeof *idx), nk = 0, a, b;
+  gsl_matrix *K = idx ? kept_block(A, p, keep, idx, &nk) : NULL;
   int rc = -1;
   memset(cov, 0, p * p * sizeof *cov);
-  if (nk == 0) {
+  if (idx != NULL && nk == 0) {
     rc = 0;
     goto done;
   }
@@ -148,8 +148,8 @@ done:
 size_t twf_ident_singular_values(const double *A, size_t p,
                                  const unsigned char *keep, double *sv)
 {
-  size_t *idx = malloc((p ? p : 1) * sizeof *idx), nk, a;
-  gsl_matrix *K = kept_block(A, p, keep, idx, &nk);
+  size_t *idx = malloc((p ? p : 1) * sizeof *idx), nk = 0, a;
+  gsl_matrix *K = idx ? kept_block(A, p, keep, idx, &nk) : NULL;
   gsl_vector *ev = NULL;
   gsl_eigen_symm_workspace *ws = NULL;
   size_t out = 0;
@@ -173,4 +173,84 @@ done:
     gsl_matrix_free(K);
   free(idx);
   return out;
+}
+
+void twf_ident_qr_add_row(double *R, size_t p, double *row)
+{
+  size_t k, j;
+  for (k = 0; k < p; k++) {
+    double a = R[k * p + k], b = row[k], h, c, sn;
+    if (b == 0.0)
+      continue;
+    h = sqrt(a * a + b * b); /* values are moderate here: no need for hypot's care */
+    c = a / h;
+    sn = b / h;
+    R[k * p + k] = h;
+    for (j = k + 1; j < p; j++) {
+      double x = R[k * p + j], y = row[j];
+      R[k * p + j] = c * x + sn * y;
+      row[j] = -sn * x + c * y;
+    }
+  }
+}
+
+int twf_ident_walk_r(const double *R, size_t p, const double *scale, const size_t *order,
+                     size_t n_order, double tol, unsigned char *keep, double *rel_out)
+{
+  double *Q = calloc(p ? p * p : 1, sizeof *Q); /* kept orthonormal columns, one per row of Q */
+  double *v = calloc(p ? p : 1, sizeof *v);
+  size_t nk = 0, t, a, r;
+  int pass;
+  if (Q == NULL || v == NULL) {
+    free(Q);
+    free(v);
+    return -1;
+  }
+  memset(keep, 0, p);
+  for (t = 0; t < n_order; t++) {
+    size_t j = order[t];
+    double norm0 = 0.0, norm = 0.0, rel;
+    for (r = 0; r < p; r++) {
+      v[r] = R[r * p + j] * (scale ? scale[j] : 1.0);
+      norm0 += v[r] * v[r];
+    }
+    norm0 = sqrt(norm0);
+    for (pass = 0; pass < 2; pass++)
+      for (a = 0; a < nk; a++) {
+        double d = 0.0;
+        for (r = 0; r < p; r++)
+          d += Q[a * p + r] * v[r];
+        for (r = 0; r < p; r++)
+          v[r] -= d * Q[a * p + r];
+      }
+    for (r = 0; r < p; r++)
+      norm += v[r] * v[r];
+    norm = sqrt(norm);
+    rel = norm0 > 0 ? norm / norm0 : 0.0;
+    if (rel_out != NULL)
+      rel_out[j] = rel;
+    if (norm0 > 0 && rel >= tol) {
+      for (r = 0; r < p; r++)
+        Q[nk * p + r] = v[r] / norm;
+      nk++;
+      keep[j] = 1;
+    }
+  }
+  free(Q);
+  free(v);
+  return 0;
+}
+
+void twf_ident_normal_from_r(const double *R, size_t p, const double *scale, double *A)
+{
+  size_t a, b, k;
+  for (a = 0; a < p; a++)
+    for (b = a; b < p; b++) {
+      double s = 0.0;
+      for (k = 0; k <= (a < b ? a : b); k++)
+        s += R[k * p + a] * R[k * p + b];
+      if (scale != NULL)
+        s *= scale[a] * scale[b];
+      A[a * p + b] = A[b * p + a] = s;
+    }
 }

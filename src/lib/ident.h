@@ -36,4 +36,19 @@ int twf_ident_inverse(const double *A, size_t p, const unsigned char *keep,
 size_t twf_ident_singular_values(const double *A, size_t p,
                                  const unsigned char *keep, double *sv);
 
+/* Stream one row into the upper-triangular p x p factor R (row-major) so
+ * that R^T R gains row row^T: Givens rotations, O(p^2), row is destroyed.
+ * Working on R instead of the normal matrix keeps the redundancy walk's
+ * margins at rounding level (1e-14) rather than at its square root. */
+void twf_ident_qr_add_row(double *R, size_t p, double *row);
+
+/* The walk of twf_ident_walk on the columns of R D (D = diag(scale), NULL
+ * for none): modified Gram-Schmidt with one re-orthogonalisation. Same
+ * outputs. Returns 0, or -1 when out of memory. */
+int twf_ident_walk_r(const double *R, size_t p, const double *scale, const size_t *order,
+                     size_t n_order, double tol, unsigned char *keep, double *rel_out);
+
+/* A = D R^T R D (p x p, full), the scaled normal matrix of a factor. */
+void twf_ident_normal_from_r(const double *R, size_t p, const double *scale, double *A);
+
 #endif

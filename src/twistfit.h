@@ -986,7 +986,16 @@ typedef struct twf_calib_options {
   double redundancy_tol;   /* relative independent part to keep a column (default 1e-6) */
   size_t synthetic_poses;  /* poses of the rich set for structural redundancy (0: automatic) */
   double weak_ratio;       /* weak when the scaled predicted std exceeds weak_ratio * sigma (default 5) */
+  int accept_large;        /* 0 (default): refuse results beyond any calibration (noise over
+                              1 mm, a joint line over 5 deg or 50 mm from the model's) */
 } twf_calib_options;
+
+/* Where the sigma of the covariance came from. */
+typedef enum twf_sigma_source {
+  TWF_SIGMA_GIVEN = 0,     /* the caller's sigma_length */
+  TWF_SIGMA_FROM_ROWS,     /* the rows' own sigmas (their mean where a row gives none) */
+  TWF_SIGMA_ESTIMATED      /* estimated a posteriori from the fit residuals */
+} twf_sigma_source;
 
 twf_calib_options twf_calib_default_options(void);
 
@@ -1050,7 +1059,7 @@ typedef struct twf_calib_result {
   twf_solve_report solve;         /* the calibration fit (last robust round) */
   int robust_rounds;
   double sigma_length;        /* sigma used for the covariance, m */
-  int sigma_estimated;        /* 1: sigma_length estimated from the residuals */
+  twf_sigma_source sigma_source;
   size_t n_fit_meas, n_check_meas, n_fit_poses;
   double *joint_range;        /* n_joints: range of each joint over the fit poses, SI */
   twf_asbuilt_comparison comparison; /* as-built lines against the starting model's */
@@ -1067,14 +1076,27 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
                          const twf_calib_options *opt, twf_calib_result **out,
                          twf_warnings *warnings, twf_error *err);
 
+/* Options of twf_refine_base: take twf_refine_default_options(). */
+typedef struct twf_refine_options {
+  double sigma_length;      /* m, where rows give none (0: 0.1 mm; only weights matter) */
+  int screen;               /* 1 (default): drop gross errors as the calibration does */
+  double robust_threshold;  /* in robust standard deviations (default 5) */
+} twf_refine_options;
+
+twf_refine_options twf_refine_default_options(void);
+
 /* Least-squares refinement of the base pose and of the offsets of the
  * targets flagged in fit_target (n_targets flags, NULL: none) for a fixed
- * model, on the fit set. m's target offsets are updated in place. Used
- * after the closed-form registration. */
+ * model, on the fit set, after the closed-form registration. m's target
+ * offsets are updated in place. With screening, fit rows beyond the robust
+ * threshold (1.4826 MAD of the residual components) are left out and the
+ * refinement repeated; excluded (n_meas flags, may be NULL) receives 1 for
+ * each. Offset components the poses cannot separate from the base are
+ * fixed at their start. */
 twf_status twf_refine_base(twf_model *m, const twf_campaign *c,
-                           const unsigned char *fit_target, double sigma_length,
+                           const unsigned char *fit_target, const twf_refine_options *opt,
                            twf_pose *base_in_tracker, twf_solve_report *report,
-                           twf_error *err);
+                           unsigned char *excluded, twf_error *err);
 
 /* ------------------------------------------------------------------ */
 /* Simulation: synthetic campaigns and perturbed models                */

@@ -42,6 +42,9 @@ int cli_report_error(const twf_error *err);
 /* Print a usage error for the command and return TWF_EXIT_USAGE. */
 int cli_usage_error(const char *command, const char *fmt, ...)
     __attribute__((format(printf, 2, 3)));
+/* Usage error for getopt's '?' or ':' (call with opterr = 0 and an
+ * optstring starting with ':'): names the option. */
+int cli_bad_option(const char *command, int opt, char **argv);
 /* Print collected warnings to stderr (unless quiet). */
 void cli_print_warnings(const twf_warnings *w);
 
@@ -69,6 +72,17 @@ int cli_output_open(cli_output *out, const char *path, int force,
 int cli_output_commit(cli_output *out);
 /* Remove the temporary file (after a failure). */
 void cli_output_abort(cli_output *out);
+
+/* Several outputs of one run, written together: all temporary files are
+ * opened, all contents written, and only then all renamed into place; any
+ * failure removes every temporary file. put returns 0 on success (and may
+ * fill err). */
+typedef struct cli_put {
+  const char *path;  /* NULL: skipped; "-": standard output */
+  int (*put)(FILE *fp, void *ctx, twf_error *err);
+  void *ctx;
+} cli_put;
+int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs);
 
 /* CSV writing (libcsv quotes text fields; numbers are written plainly). */
 typedef struct cli_csv {
@@ -117,7 +131,7 @@ enum {
 /* A model and a campaign read from the command line. */
 typedef struct cli_inputs {
   const char *model_path, *data_path, *joints_path, *points_path;
-  const char *paths[4]; /* NULL-terminated list of the input files */
+  const char *paths[6]; /* NULL-terminated list of the input files */
   twf_campaign_options copt;
   twf_model *model;
   twf_campaign *campaign;
@@ -133,11 +147,14 @@ int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *
  * prints warnings and errors; returns an exit status. */
 int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, int first);
 void cli_inputs_free(cli_inputs *in);
+/* Add one more input file (a base pose file) to in->paths. */
+void cli_inputs_add_path(cli_inputs *in, const char *path);
 
 /* The units reports use: the model's declared ones. */
 typedef struct cli_units {
   const char *length, *angle;
   double length_si, angle_si; /* SI value of one unit */
+  int ldec, adec;             /* decimals that show 0.1 um and 1e-7 rad */
 } cli_units;
 void cli_units_of(cli_units *u, const twf_model *m);
 
@@ -152,15 +169,23 @@ json_t *cli_json_pose(const twf_pose *T, const cli_units *u);
 json_t *cli_json_stats(const twf_stats *s, double unit);
 json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
                           const twf_campaign *c, const cli_units *u);
-/* Write root to path ("-": stdout) atomically; returns an exit status. */
-int cli_write_json(json_t *root, const char *path, int force, const char *const *inputs);
+/* cli_put writer of a JSON document (ctx: json_t *). */
+int cli_put_json(FILE *fp, void *ctx, twf_error *err);
 /* Per-measurement residual CSV with one or two variants (labels such as
- * "before_", "after_"; pos[v] NULL to skip). */
-int cli_write_residuals(const char *path, int force, const char *const *inputs,
-                        const twf_model *m, const twf_campaign *c, const twf_meas_set *sets,
-                        const double *const pos[2], const double *const rot[2],
-                        const char *const labels[2], const cli_units *u);
+ * "before_", "after_"; pos[v] NULL to skip) and, when weights is not NULL,
+ * the fit weight of each row (0: dropped). */
+typedef struct cli_residuals {
+  const twf_model *m;
+  const twf_campaign *c;
+  const twf_meas_set *sets;   /* NULL: the campaign's own */
+  const double *pos[2], *rot[2];
+  const char *labels[2];
+  const double *weights;
+  const cli_units *u;
+} cli_residuals;
+int cli_put_residuals(FILE *fp, void *ctx, twf_error *err);
 /* A positive tolerance in the given unit, to SI. */
-int cli_parse_tolerance(const char *command, const char *arg, double unit_si, double *out);
+int cli_parse_tolerance(const char *command, const char *option, const char *arg, double unit_si,
+                        double *out);
 
 #endif

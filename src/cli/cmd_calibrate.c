@@ -6,11 +6,13 @@
 #include "config.h"
 #include "cli.h"
 
+#include <errno.h>
 #include <getopt.h>
 #include <math.h>
 #include <sha2.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <time.h>
 
 static const char calibrate_help[] =
@@ -46,6 +48,10 @@ static const char calibrate_help[] =
   "      --check-fraction F  also hold out this fraction of the poses as check data\n"
   "      --seed N            seed of the held-out draw and of the synthetic pose set\n"
   "      --max-iterations N  solver iterations per fit (default 100)\n"
+  "      --accept-large      accept a result beyond any calibration (noise over 1 mm,\n"
+  "                          a joint line over 5 deg or 50 mm from the model's);\n"
+  "                          without it such a run fails (exit 5): the data and the\n"
+  "                          model then rarely describe the same arm\n"
   "  -f, --force             replace output files that exist\n"
   "  -h, --help              show this help\n"
   "\n"
@@ -54,7 +60,7 @@ static const char calibrate_help[] =
 
 enum {
   OPT_BASE_OUT = CLI_OPT_FIRST_FREE, OPT_JSON, OPT_RESIDUALS, OPT_FIT, OPT_PRIORITY, OPT_SIGMA,
-  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT
+  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_ACCEPT_LARGE
 };
 
 /* Parse a comma list of groups or a preset into a mask. */
@@ -115,6 +121,13 @@ static double param_shown(const twf_param *p, double v, const cli_units *u, cons
   return v * 1e6;
 }
 
+/* Decimals of a parameter in report units: a tenth of the resolution of
+ * the figures (0.01 um, 1e-8 rad). */
+static int param_decimals(const twf_param *p, const cli_units *u)
+{
+  return p->kind == TWF_PARAM_LENGTH ? u->ldec + 2 : p->kind == TWF_PARAM_ANGLE ? u->adec + 1 : 3;
+}
+
 static const char *status_name(twf_param_status s)
 {
   switch (s) {
@@ -159,7 +172,7 @@ static int target_measured(const twf_campaign *view, const twf_calib_result *r, 
   return 0;
 }
 
-typedef struct digest { const char *path; char hex[SHA256_DIGEST_STRING_LENGTH]; } digest;
+typedef struct digest { const char *path; char hex[40 > SHA256_DIGEST_STRING_LENGTH ? 40 : SHA256_DIGEST_STRING_LENGTH]; } digest;
 
 static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result *r,
                          const twf_calib_options *co, const twf_accuracy_summary *before,
@@ -177,16 +190,19 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
           m->n_targets, u->length, u->angle);
   fprintf(fp, "campaign: %zu poses, %zu measurements: %zu fit, %zu check%s\n", view->n_poses,
           view->n_meas, r->n_fit_meas, r->n_check_meas, view->has_orientation_any ? " (6-D rows)" : "");
-  fprintf(fp, "noise: sigma %.4f %s per coordinate (%s)\n", r->sigma_length / u->length_si, u->length,
-          r->sigma_estimated ? "estimated from the fit residuals" : "given");
+  fprintf(fp, "noise: sigma %.*f %s per coordinate (%s)\n", u->ldec, r->sigma_length / u->length_si, u->length,
+          r->sigma_source == TWF_SIGMA_ESTIMATED   ? "estimated from the fit residuals"
+          : r->sigma_source == TWF_SIGMA_FROM_ROWS ? "from the rows' sigma column"
+                                                   : "given with --sigma");
   fputc('\n', fp);
   cli_print_accuracy(fp, "Accuracy before calibration (starting model, registered)", before, m, view, u);
   fputc('\n', fp);
   cli_print_accuracy(fp, "Accuracy after calibration (as-built model)", after, m, view, u);
   if (screened->count > 0 && screened->count < after->position[TWF_SET_FIT].count)
-    fprintf(fp, "  fit set without the %zu dropped measurements: count %zu, mean %.4f, rms %.4f, p95 %.4f, max %.4f %s\n",
-            after->position[TWF_SET_FIT].count - screened->count, screened->count, screened->mean / u->length_si,
-            screened->rms / u->length_si, screened->p95 / u->length_si, screened->max / u->length_si, u->length);
+    fprintf(fp, "  fit set without the %zu dropped measurements: count %zu, mean %.*f, rms %.*f, p95 %.*f, max %.*f %s\n",
+            after->position[TWF_SET_FIT].count - screened->count, screened->count, u->ldec,
+            screened->mean / u->length_si, u->ldec, screened->rms / u->length_si, u->ldec,
+            screened->p95 / u->length_si, u->ldec, screened->max / u->length_si, u->length);
   cli_print_worst(fp, after, view, m, u);
 
   fprintf(fp, "\nSolver\n");
@@ -202,27 +218,27 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     for (i = 0; i < r->n_outliers; i++) {
       const twf_outlier *o = &r->outliers[i];
       const twf_measurement *ms = &view->meas[o->meas];
-      fprintf(fp, "    line %ld: pose %s target %s: %.4f (%.1f robust sd), %s\n", ms->line,
-              view->pose_ids[ms->pose], m->targets[ms->target].name, o->error_m / u->length_si, o->score,
+      fprintf(fp, "    line %ld: pose %s target %s: %.*f (%.1f robust sd), %s\n", ms->line,
+              view->pose_ids[ms->pose], m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score,
               o->weight == 0.0 ? "dropped" : "down-weighted");
     }
   }
 
   fprintf(fp, "\nAs-built geometry against the starting model\n");
   fprintf(fp, "  datum: the base frame that best aligns the as-built joint lines with the\n"
-              "  starting model's (lines at logged zero; RMS misfit %.4f %s)\n",
-          r->comparison.datum_rms_m / u->length_si, u->length);
+              "  starting model's (lines at logged zero; RMS misfit %.*f %s)\n",
+          u->ldec, r->comparison.datum_rms_m / u->length_si, u->length);
   fprintf(fp, "  %-8s %14s %14s %14s\n", "joint", "tilt", "line shift", "offset");
   fprintf(fp, "  %-8s %14s %14s %14s\n", "", u->angle, u->length, u->angle);
   for (j = 0; j < m->n_joints; j++) {
     const twf_joint_deviation *d = &r->comparison.joints[j];
     char off[32];
     if (isfinite(d->offset))
-      snprintf(off, sizeof off, "%14.5f", d->offset / u->angle_si);
+      snprintf(off, sizeof off, "%14.*f", u->adec, d->offset / u->angle_si);
     else
       snprintf(off, sizeof off, "%14s", "-");
-    fprintf(fp, "  %-8s %14.5f %14.4f %s%s\n", m->joints[j].name, d->angle_rad / u->angle_si,
-            d->distance_m / u->length_si, off,
+    fprintf(fp, "  %-8s %14.*f %14.*f %s%s\n", m->joints[j].name, u->adec, d->angle_rad / u->angle_si,
+            u->ldec, d->distance_m / u->length_si, off,
             m->joints[j].type != TWF_JOINT_REVOLUTE ? "  (prismatic: direction only)"
             : isfinite(d->offset)                   ? ""
                                                     : "  (not shown by the data: absorbed by the targets)");
@@ -231,19 +247,20 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     const double *t = r->comparison.target_change_m + 3 * j;
     if (isnan(t[0]) || !target_measured(view, r, j))
       continue;
-    fprintf(fp, "  target %s at logged zero moved by %.4f %.4f %.4f %s\n", m->targets[j].name,
-            t[0] / u->length_si, t[1] / u->length_si, t[2] / u->length_si, u->length);
+    fprintf(fp, "  target %s at logged zero moved by %.*f %.*f %.*f %s\n", m->targets[j].name,
+            u->ldec, t[0] / u->length_si, u->ldec, t[1] / u->length_si, u->ldec, t[2] / u->length_si, u->length);
   }
   for (j = 0; j < r->asbuilt->n_targets; j++)
     if (r->asbuilt->targets[j].offset_known && target_measured(view, r, j))
-      fprintf(fp, "  target %s offset (flange frame): %.4f %.4f %.4f %s\n", m->targets[j].name,
-              r->asbuilt->targets[j].offset[0] / u->length_si, r->asbuilt->targets[j].offset[1] / u->length_si,
+      fprintf(fp, "  target %s offset (flange frame): %.*f %.*f %.*f %s\n", m->targets[j].name,
+              u->ldec, r->asbuilt->targets[j].offset[0] / u->length_si, u->ldec,
+              r->asbuilt->targets[j].offset[1] / u->length_si, u->ldec,
               r->asbuilt->targets[j].offset[2] / u->length_si, u->length);
   if (isfinite(r->comparison.home_angle_rad))
-    fprintf(fp, "  flange at logged zero: rotated %.5f %s\n", r->comparison.home_angle_rad / u->angle_si,
+    fprintf(fp, "  flange at logged zero: rotated %.*f %s\n", u->adec, r->comparison.home_angle_rad / u->angle_si,
             u->angle);
   if (isfinite(r->comparison.home_distance_m))
-    fprintf(fp, "  flange at logged zero: moved %.4f %s\n", r->comparison.home_distance_m / u->length_si,
+    fprintf(fp, "  flange at logged zero: moved %.*f %s\n", u->ldec, r->comparison.home_distance_m / u->length_si,
             u->length);
   fprintf(fp, "  (tilt, line shift and offset are rotations and shifts of the joint lines at\n"
               "  logged zero: they do not depend on which redundant parameters were fixed;\n"
@@ -297,7 +314,8 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     double v = param_shown(&p->param, p->value, u, &unit);
     double s = param_shown(&p->param, p->std, u, &unit);
     if (p->status == TWF_PARAM_KEPT)
-      fprintf(fp, "  %-8s %-14s %14.6f %12.6f %-5s %s%s\n", twf_group_name(p->param.group), p->param.name, v, s,
+      fprintf(fp, "  %-8s %-14s %14.*f %12.*f %-5s %s%s\n", twf_group_name(p->param.group), p->param.name,
+              param_decimals(&p->param, u), v, param_decimals(&p->param, u), s,
               unit, status_name(p->status), p->weak ? ", weak" : "");
     else
       fprintf(fp, "  %-8s %-14s %14s %12s %-5s %s\n", twf_group_name(p->param.group), p->param.name, "-", "-",
@@ -334,8 +352,12 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                       json_pack("{s:I, s:I, s:I, s:I}", "poses", (json_int_t)view->n_poses, "measurements",
                                 (json_int_t)view->n_meas, "fit", (json_int_t)r->n_fit_meas, "check",
                                 (json_int_t)r->n_check_meas));
-  json_object_set_new(root, "sigma", json_pack("{s:o, s:b}", "length", cli_json_number(r->sigma_length / u->length_si),
-                                               "estimated", r->sigma_estimated));
+  json_object_set_new(root, "sigma", json_pack("{s:o, s:s, s:b}", "length", cli_json_number(r->sigma_length / u->length_si),
+                                               "source",
+                                               r->sigma_source == TWF_SIGMA_ESTIMATED   ? "estimated"
+                                               : r->sigma_source == TWF_SIGMA_FROM_ROWS ? "rows"
+                                                                                        : "given",
+                                               "estimated", r->sigma_source == TWF_SIGMA_ESTIMATED));
   json_object_set_new(root, "base_in_tracker",
                       json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
                                 cli_json_pose(&r->base_in_tracker, u)));
@@ -422,38 +444,20 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   return root;
 }
 
-static int write_model_file(const char *path, int force, const char *const *inputs, const twf_model *m)
+static int put_model(FILE *fp, void *ctx, twf_error *err)
 {
-  cli_output out;
-  twf_error err;
-  int st;
-  twf_error_clear(&err);
-  if ((st = cli_output_open(&out, path, force, inputs, &err)) != 0)
-    return cli_report_error(&err);
-  fprintf(out.fp, "; As-built model written by twistfit calibrate. A changed model moves the real\n"
-                  "; arm differently: keep the previous parameters, verify at reduced speed with\n"
-                  "; the cell's safety functions active, and validate on held-out poses first.\n");
-  if (twf_model_write(m, out.fp, &err) != TWF_OK) {
-    cli_output_abort(&out);
-    return cli_report_error(&err);
-  }
-  return cli_output_commit(&out);
+  fprintf(fp, "; As-built model written by twistfit calibrate. A changed model moves the real\n"
+              "; arm differently: keep the previous parameters, verify at reduced speed with\n"
+              "; the cell's safety functions active, and validate on held-out poses first.\n");
+  return twf_model_write((const twf_model *)ctx, fp, err) == TWF_OK ? 0 : -1;
 }
 
-static int write_base_file(const char *path, int force, const char *const *inputs, const twf_pose *B,
-                           twf_length_unit lu)
+typedef struct base_file_ctx { const twf_pose *B; twf_length_unit lu; } base_file_ctx;
+
+static int put_base(FILE *fp, void *ctx, twf_error *err)
 {
-  cli_output out;
-  twf_error err;
-  int st;
-  twf_error_clear(&err);
-  if ((st = cli_output_open(&out, path, force, inputs, &err)) != 0)
-    return cli_report_error(&err);
-  if (twf_base_write(B, lu, "base pose fitted by twistfit calibrate", out.fp, &err) != TWF_OK) {
-    cli_output_abort(&out);
-    return cli_report_error(&err);
-  }
-  return cli_output_commit(&out);
+  const base_file_ctx *b = ctx;
+  return twf_base_write(b->B, b->lu, "base pose fitted by twistfit calibrate", fp, err) == TWF_OK ? 0 : -1;
 }
 
 /* Model files keep every line under TWF_MODEL_LINE_MAX: shorten long
@@ -466,7 +470,8 @@ static void meta_set_short(twf_model *m, const char *key, const char *value)
     twf_model_meta_set(m, key, value);
     return;
   }
-  snprintf(buf, sizeof buf, "...%s", value + strlen(value) - (room - 3));
+  /* keep the head (the command and its options), mark the cut */
+  snprintf(buf, sizeof buf, "%.*s...", (int)(room - 3), value);
   twf_model_meta_set(m, key, buf);
 }
 
@@ -487,6 +492,7 @@ static int run_calibrate(int argc, char **argv)
     { "check-fraction", required_argument, NULL, OPT_CHECK_FRACTION },
     { "seed", required_argument, NULL, OPT_SEED },
     { "max-iterations", required_argument, NULL, OPT_MAXIT },
+    { "accept-large", no_argument, NULL, OPT_ACCEPT_LARGE },
     { "force", no_argument, NULL, 'f' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
@@ -505,15 +511,16 @@ static int run_calibrate(int argc, char **argv)
   twf_accuracy_summary *before = NULL, *after = NULL;
   twf_stats screened;
   json_t *root = NULL;
-  digest dg[3];
-  size_t n_dg = 0, i;
+  digest dg[6];
+  size_t n_dg = 0, i, n_reader_warnings = 0;
   char created[64], cmdline[1024];
   FILE *txt = stdout;
 
   cli_inputs_init(&in);
   twf_warnings_init(&warnings);
   optind = 0;
-  while ((opt = getopt_long(argc, argv, "o:fh", longopts, NULL)) != -1) {
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
     if (cli_inputs_option(&in, "calibrate", opt, optarg, &status)) {
       if (status != 0)
         goto done;
@@ -549,8 +556,9 @@ static int run_calibrate(int argc, char **argv)
       break;
     case OPT_SEED: {
       char *end;
+      errno = 0;
       co.seed = strtoull(optarg, &end, 10);
-      if (*end != '\0' || *optarg == '\0' || *optarg == '-') {
+      if (*end != '\0' || *optarg == '\0' || *optarg == '-' || errno == ERANGE) {
         status = cli_usage_error("calibrate", "--seed takes a non-negative whole number");
         goto done;
       }
@@ -566,9 +574,10 @@ static int run_calibrate(int argc, char **argv)
       co.max_iterations = (int)v;
       break;
     }
+    case OPT_ACCEPT_LARGE: co.accept_large = 1; break;
     case 'f': force = 1; break;
     case 'h': fputs(calibrate_help, stdout); goto done;
-    default: status = cli_usage_error("calibrate", "invalid option"); goto done;
+    default: status = cli_bad_option("calibrate", opt, argv); goto done;
     }
   }
   if (fit_text != NULL && parse_groups(fit_text, &co.groups) != 0) {
@@ -582,10 +591,10 @@ static int run_calibrate(int argc, char **argv)
   if ((status = cli_inputs_load(&in, "calibrate", argc, argv, optind)) != 0)
     goto done;
   cli_units_of(&u, in.model);
-  if (sigma_text != NULL && (status = cli_parse_tolerance("calibrate", sigma_text, u.length_si, &co.sigma_length)) != 0)
+  if (sigma_text != NULL && (status = cli_parse_tolerance("calibrate", "--sigma", sigma_text, u.length_si, &co.sigma_length)) != 0)
     goto done;
   if (sigma_angle_text != NULL &&
-      (status = cli_parse_tolerance("calibrate", sigma_angle_text, u.angle_si, &co.sigma_angle)) != 0)
+      (status = cli_parse_tolerance("calibrate", "--sigma-angle", sigma_angle_text, u.angle_si, &co.sigma_angle)) != 0)
     goto done;
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;
@@ -593,13 +602,23 @@ static int run_calibrate(int argc, char **argv)
    * then writes nothing */
   {
     const char *outs[4] = { model_out, base_out, json_path, residuals_path };
+    size_t k;
+    for (k = 0; k < 4; k++)
+      if (k != 2 && outs[k] != NULL && strcmp(outs[k], "-") == 0) {
+        status = cli_usage_error("calibrate", "only --json may go to standard output ('-'); give file names for the others");
+        goto done;
+      }
     if ((status = cli_outputs_check(outs, 4, force, in.paths)) != 0)
       goto done;
   }
 
   for (i = 0; in.paths[i] != NULL; i++) {
+    struct stat st;
     dg[n_dg].path = in.paths[i];
-    if (SHA256File(in.paths[i], dg[n_dg].hex) == NULL)
+    /* a pipe was consumed by the reader: its digest cannot be taken again */
+    if (stat(in.paths[i], &st) != 0 || !S_ISREG(st.st_mode))
+      strcpy(dg[n_dg].hex, "unavailable (not a regular file)");
+    else if (SHA256File(in.paths[i], dg[n_dg].hex) == NULL)
       strcpy(dg[n_dg].hex, "unreadable");
     n_dg++;
   }
@@ -611,8 +630,16 @@ static int run_calibrate(int argc, char **argv)
   }
 
   twf_error_clear(&err);
+  /* the report lists the readers' warnings too */
+  for (i = 0; i < in.warnings.count; i++)
+    twf_warnings_add(&warnings, in.warnings.items[i].file, in.warnings.items[i].line,
+                     in.warnings.items[i].column, "%s", in.warnings.items[i].message);
+  n_reader_warnings = warnings.count;
   if (twf_calibrate(in.model, in.campaign, &co, &res, &warnings, &err) != TWF_OK) {
-    cli_print_warnings(&warnings);
+    twf_warnings tail = warnings;
+    tail.items += n_reader_warnings;
+    tail.count -= n_reader_warnings;
+    cli_print_warnings(&tail);
     status = cli_report_error(&err);
     fprintf(stderr, "twistfit: no output file was written\n");
     goto done;
@@ -697,23 +724,53 @@ static int run_calibrate(int argc, char **argv)
     }
     free(len);
   }
-  print_report(txt, &in, res, &co, before, after, &screened, &view, &u, dg, n_dg, created, &warnings);
-  if (model_out != NULL && (status = write_model_file(model_out, force, in.paths, res->asbuilt)) != 0)
-    goto done;
-  if (base_out != NULL &&
-      (status = write_base_file(base_out, force, in.paths, &res->base_in_tracker, in.model->length_unit)) != 0)
-    goto done;
-  if (json_path != NULL) {
-    root = report_json(&in, res, &co, before, after, &screened, &view, &u, dg, n_dg, created, &warnings);
-    if ((status = cli_write_json(root, json_path, force, in.paths)) != 0)
-      goto done;
+  {
+    char val[64];
+    size_t dropped = 0;
+    for (i = 0; i < res->n_outliers; i++)
+      dropped += res->outliers[i].weight == 0.0;
+    snprintf(val, sizeof val, "%.6g %s", screened.rms / u.length_si, u.length);
+    twf_model_meta_set(res->asbuilt, "rms_after_fit_screened", val);
+    snprintf(val, sizeof val, "%zu", dropped);
+    twf_model_meta_set(res->asbuilt, "outliers_dropped", val);
   }
-  if (residuals_path != NULL) {
-    const double *const p2[2] = { res->residual_before, res->residual_after };
-    const double *const r2[2] = { res->rot_before, res->rot_after };
-    const char *const labels[2] = { "before_", "after_" };
-    status = cli_write_residuals(residuals_path, force, in.paths, in.model, &view, res->meas_set, p2, r2,
-                                 labels, &u);
+  print_report(txt, &in, res, &co, before, after, &screened, &view, &u, dg, n_dg, created, &warnings);
+  {
+    cli_put puts[4];
+    cli_residuals rr;
+    base_file_ctx bo;
+    double *weights = malloc((view.n_meas ? view.n_meas : 1) * sizeof *weights);
+    size_t k;
+    if (weights == NULL) {
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    for (i = 0; i < view.n_meas; i++)
+      weights[i] = 1.0;
+    for (k = 0; k < res->n_outliers; k++)
+      weights[res->outliers[k].meas] = res->outliers[k].weight;
+    if (json_path != NULL)
+      root = report_json(&in, res, &co, before, after, &screened, &view, &u, dg, n_dg, created, &warnings);
+    memset(&rr, 0, sizeof rr);
+    rr.m = in.model;
+    rr.c = &view;
+    rr.sets = res->meas_set;
+    rr.pos[0] = res->residual_before;
+    rr.pos[1] = res->residual_after;
+    rr.rot[0] = res->rot_before;
+    rr.rot[1] = res->rot_after;
+    rr.labels[0] = "before_";
+    rr.labels[1] = "after_";
+    rr.weights = weights;
+    rr.u = &u;
+    bo.B = &res->base_in_tracker;
+    bo.lu = in.model->length_unit;
+    puts[0] = (cli_put){ model_out, put_model, res->asbuilt };
+    puts[1] = (cli_put){ base_out, put_base, &bo };
+    puts[2] = (cli_put){ json_path, cli_put_json, root };
+    puts[3] = (cli_put){ residuals_path, cli_put_residuals, &rr };
+    status = cli_write_outputs(puts, 4, force, in.paths);
+    free(weights);
   }
 
 done:

@@ -104,7 +104,8 @@ static int run_fk(int argc, char **argv)
   size_t i;
 
   optind = 0;
-  while ((opt = getopt_long(argc, argv, "o:fh", longopts, NULL)) != -1) {
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
     switch (opt) {
     case 'o': output = optarg; break;
     case 'f': force = 1; break;
@@ -124,7 +125,7 @@ static int run_fk(int argc, char **argv)
       have_out_unit = 1;
       break;
     case 'h': fputs(fk_help, stdout); return TWF_EXIT_OK;
-    default: return cli_usage_error("fk", "invalid option");
+    default: return cli_bad_option("fk", opt, argv);
     }
   }
   if (argc - optind < 1 || argc - optind > 2)

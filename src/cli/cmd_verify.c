@@ -71,10 +71,10 @@ static void print_iso9283(FILE *fp, const twf_iso9283 *iso, const twf_model *m,
           "AP_x", "AP_y", "AP_z", "RP_l");
   for (i = 0; i < iso->n_entries; i++) {
     const twf_iso9283_entry *e = &iso->entries[i];
-    fprintf(fp, "  %-12s %-8s %6zu %10.4f %10.4f %10.4f %10.4f %10.4f\n",
-            c->pose_ids[e->first_pose], m->targets[e->target].name, e->n, e->ap_p / u->length_si,
-            e->ap[0] / u->length_si, e->ap[1] / u->length_si, e->ap[2] / u->length_si,
-            e->rp / u->length_si);
+    fprintf(fp, "  %-12s %-8s %6zu %10.*f %10.*f %10.*f %10.*f %10.*f\n",
+            c->pose_ids[e->first_pose], m->targets[e->target].name, e->n, u->ldec, e->ap_p / u->length_si,
+            u->ldec, e->ap[0] / u->length_si, u->ldec, e->ap[1] / u->length_si, u->ldec,
+            e->ap[2] / u->length_si, u->ldec, e->rp / u->length_si);
   }
 }
 
@@ -115,6 +115,7 @@ static int run_verify(int argc, char **argv)
     { NULL, 0, NULL, 0 }
   };
   const char *tol_text[4] = { NULL, NULL, NULL, NULL };
+  static const char *const tol_opt[4] = { "--tol-rms", "--tol-p95", "--tol-max", "--tol-angle-max" };
   const char *base_path = NULL, *residuals_path = NULL, *json_path = NULL, *repeat_text = NULL;
   int force = 0, fit_offsets = 0, opt, status = TWF_EXIT_OK, i;
   long worst = 5;
@@ -123,6 +124,7 @@ static int run_verify(int argc, char **argv)
   twf_error err;
   twf_pose base;
   double *offsets = NULL, *pos = NULL, *rot = NULL;
+  unsigned char *excluded = NULL;
   twf_accuracy_summary *summary = NULL;
   twf_iso9283 *iso = NULL;
   tolerance tol[4] = { { "rms", 0, 0, 0 }, { "p95", 0, 0, 0 }, { "max", 0, 0, 0 },
@@ -136,7 +138,8 @@ static int run_verify(int argc, char **argv)
   memset(&rrep, 0, sizeof rrep);
   memset(&srep, 0, sizeof srep);
   optind = 0;
-  while ((opt = getopt_long(argc, argv, "fh", longopts, NULL)) != -1) {
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":fh", longopts, NULL)) != -1) {
     if (cli_inputs_option(&in, "verify", opt, optarg, &status)) {
       if (status != 0)
         goto done;
@@ -153,7 +156,7 @@ static int run_verify(int argc, char **argv)
     case OPT_WORST: {
       char *end;
       worst = strtol(optarg, &end, 10);
-      if (*end != '\0' || worst < 0 || worst > 1000) {
+      if (*end != '\0' || *optarg == '\0' || worst < 0 || worst > 1000) {
         status = cli_usage_error("verify", "--worst takes a count from 0 to 1000");
         goto done;
       }
@@ -163,7 +166,7 @@ static int run_verify(int argc, char **argv)
     case OPT_JSON: json_path = optarg; break;
     case 'f': force = 1; break;
     case 'h': fputs(verify_help, stdout); goto done;
-    default: status = cli_usage_error("verify", "invalid option"); goto done;
+    default: status = cli_bad_option("verify", opt, argv); goto done;
     }
   }
   if (base_path != NULL && fit_offsets) {
@@ -175,23 +178,34 @@ static int run_verify(int argc, char **argv)
   cli_units_of(&u, in.model);
   for (i = 0; i < 4; i++)
     if (tol_text[i] != NULL &&
-        (status = cli_parse_tolerance("verify", tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
+        (status = cli_parse_tolerance("verify", tol_opt[i], tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
                                       &tol[i].limit)) != 0)
       goto done;
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;
+  if (base_path != NULL)
+    cli_inputs_add_path(&in, base_path);
   {
     const char *outs[2] = { json_path, residuals_path };
+    if (residuals_path != NULL && strcmp(residuals_path, "-") == 0) {
+      status = cli_usage_error("verify", "--residuals needs a file name");
+      goto done;
+    }
     if ((status = cli_outputs_check(outs, 2, force, in.paths)) != 0)
       goto done;
+  }
+  if (tol_text[3] != NULL && !in.campaign->has_orientation_any) {
+    status = cli_usage_error("verify", "--tol-angle-max needs 6-D rows (with a quaternion); the campaign has none");
+    goto done;
   }
   twf_error_clear(&err);
 
   /* the base pose and the target offsets */
+  excluded = calloc(in.campaign->n_meas, 1);
   offsets = calloc(3 * (in.model->n_targets ? in.model->n_targets : 1), sizeof *offsets);
   pos = calloc(3 * in.campaign->n_meas, sizeof *pos);
   rot = calloc(in.campaign->n_meas, sizeof *rot);
-  if (offsets == NULL || pos == NULL || rot == NULL) {
+  if (offsets == NULL || pos == NULL || rot == NULL || excluded == NULL) {
     status = TWF_EXIT_INTERNAL;
     goto done;
   }
@@ -230,7 +244,7 @@ static int run_verify(int argc, char **argv)
       /* measured targets now have an offset: known for the refinement */
       for (k = 0; k < in.campaign->n_meas; k++)
         in.model->targets[in.campaign->meas[k].target].offset_known = 1;
-      st = twf_refine_base(in.model, in.campaign, fit, 0.0, &base, &srep, &err);
+      st = twf_refine_base(in.model, in.campaign, fit, NULL, &base, &srep, excluded, &err);
       for (k = 0; k < in.model->n_targets; k++)
         memcpy(offsets + 3 * k, in.model->targets[k].offset, sizeof in.model->targets[k].offset);
     }
@@ -285,21 +299,38 @@ static int run_verify(int argc, char **argv)
     {
       double q[4];
       twf_rot_to_quat(base.R, q);
-      fprintf(txt, "base pose in the tracker frame (%s): position %.4f %.4f %.4f, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
-              base_path ? "given" : "registered", base.p[0] / u.length_si, base.p[1] / u.length_si,
-              base.p[2] / u.length_si, q[0], q[1], q[2], q[3]);
+      fprintf(txt, "base pose in the tracker frame (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
+              base_path ? "given" : "registered", u.ldec, base.p[0] / u.length_si, u.ldec,
+              base.p[1] / u.length_si, u.ldec, base.p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
     }
-    if (base_path == NULL)
+    if (base_path == NULL) {
+      size_t k, n_ex = 0;
       fprintf(txt, "registration: %u alternations%s, refinement %d iterations (%s)\n",
               rrep.iterations, rrep.converged ? "" : " (not converged)", srep.iterations,
               twf_stop_name(srep.stop));
+      for (k = 0; k < in.campaign->n_meas; k++)
+        n_ex += excluded[k];
+      if (n_ex > 0) {
+        fprintf(txt, "registration left out %zu fit-set measurement%s as gross errors (beyond 5 robust "
+                     "standard deviations; they stay in the figures below):\n", n_ex, n_ex == 1 ? "" : "s");
+        for (k = 0; k < in.campaign->n_meas; k++)
+          if (excluded[k]) {
+            const twf_measurement *ms = &in.campaign->meas[k];
+            fprintf(txt, "  line %ld: pose %s target %s: %.*f %s\n", ms->line,
+                    in.campaign->pose_ids[ms->pose], in.model->targets[ms->target].name, u.ldec,
+                    sqrt(pos[3 * k] * pos[3 * k] + pos[3 * k + 1] * pos[3 * k + 1] + pos[3 * k + 2] * pos[3 * k + 2]) /
+                        u.length_si,
+                    u.length);
+          }
+      }
+    }
     {
       size_t k;
       for (k = 0; k < in.model->n_targets; k++)
         if (in.model->targets[k].offset_known)
-          fprintf(txt, "target %s offset in the flange frame, %s: %.4f %.4f %.4f\n",
-                  in.model->targets[k].name, u.length, offsets[3 * k] / u.length_si,
-                  offsets[3 * k + 1] / u.length_si, offsets[3 * k + 2] / u.length_si);
+          fprintf(txt, "target %s offset in the flange frame, %s: %.*f %.*f %.*f\n",
+                  in.model->targets[k].name, u.length, u.ldec, offsets[3 * k] / u.length_si, u.ldec,
+                  offsets[3 * k + 1] / u.length_si, u.ldec, offsets[3 * k + 2] / u.length_si);
     }
     fputc('\n', txt);
     cli_print_accuracy(txt, "Accuracy of the model on this campaign", summary, in.model,
@@ -315,9 +346,10 @@ static int run_verify(int argc, char **argv)
         fprintf(txt, "\nAcceptance on the %s set:\n", set == TWF_SET_CHECK ? "check" : "fit");
         for (i = 0; i < 4; i++)
           if (tol[i].limit > 0)
-            fprintf(txt, "  %-10s %10.4f %s  limit %10.4f  %s\n", tol[i].name,
+            fprintf(txt, "  %-10s %10.*f %s  limit %10.*f  %s\n", tol[i].name,
+                    tol[i].is_angle ? u.adec : u.ldec,
                     tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si),
-                    tol[i].is_angle ? u.angle : u.length,
+                    tol[i].is_angle ? u.angle : u.length, tol[i].is_angle ? u.adec : u.ldec,
                     tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si),
                     tol[i].value <= tol[i].limit ? "pass" : "FAIL");
         fprintf(txt, "verdict: %s\n", status == TWF_EXIT_REJECTED ? "REJECTED" : "ACCEPTED");
@@ -326,7 +358,6 @@ static int run_verify(int argc, char **argv)
 
     if (json_path != NULL) {
       json_t *tols = json_object();
-      int w;
       root = json_object();
       json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
       json_object_set_new(root, "command", json_string("verify"));
@@ -348,17 +379,43 @@ static int run_verify(int argc, char **argv)
                                     "tolerances", tols, "verdict",
                                     json_object_size(tols) == 0 ? "none"
                                     : status == TWF_EXIT_REJECTED ? "rejected" : "accepted"));
-      if ((w = cli_write_json(root, json_path, force, in.paths)) != 0) {
-        status = w;
-        goto done;
+      {
+        json_t *wa = json_array();
+        size_t k;
+        for (k = 0; k < in.warnings.count; k++)
+          json_array_append_new(wa, json_string(in.warnings.items[k].message));
+        json_object_set_new(root, "warnings", wa);
       }
     }
-    if (residuals_path != NULL) {
-      const double *const p2[2] = { pos, NULL };
-      const double *const r2[2] = { rot, NULL };
-      const char *const labels[2] = { "", "" };
-      int w = cli_write_residuals(residuals_path, force, in.paths, in.model, in.campaign, NULL, p2, r2,
-                                  labels, &u);
+    {
+      cli_residuals rr;
+      cli_put puts[2];
+      int w;
+      double *weights = NULL;
+      memset(&rr, 0, sizeof rr);
+      rr.m = in.model;
+      rr.c = in.campaign;
+      rr.pos[0] = pos;
+      rr.rot[0] = rot;
+      rr.labels[0] = rr.labels[1] = "";
+      rr.u = &u;
+      if (residuals_path != NULL && base_path == NULL) {
+        /* the registration's weight of each fit row: 0 for a gross error */
+        size_t k;
+        weights = malloc(in.campaign->n_meas * sizeof *weights);
+        if (weights != NULL)
+          for (k = 0; k < in.campaign->n_meas; k++)
+            weights[k] = excluded[k] ? 0.0 : 1.0;
+        rr.weights = weights;
+      }
+      puts[0].path = json_path;
+      puts[0].put = cli_put_json;
+      puts[0].ctx = root;
+      puts[1].path = residuals_path;
+      puts[1].put = cli_put_residuals;
+      puts[1].ctx = &rr;
+      w = cli_write_outputs(puts, 2, force, in.paths);
+      free(weights);
       if (w != 0)
         status = w;
     }
@@ -371,6 +428,7 @@ done:
   free(offsets);
   free(pos);
   free(rot);
+  free(excluded);
   cli_inputs_free(&in);
   return status;
 }

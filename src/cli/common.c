@@ -1,9 +1,11 @@
 /* common.c: error printing, exit statuses, atomic output files and option
  * value parsing shared by the commands. */
+#define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
 
 #include <errno.h>
+#include <getopt.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdlib.h>
@@ -17,7 +19,7 @@ int cli_exit_status(twf_status st)
   case TWF_OK: return TWF_EXIT_OK;
   case TWF_ERR_NOMEM: return TWF_EXIT_INTERNAL;
   case TWF_ERR_IO: return TWF_EXIT_IO;
-  case TWF_ERR_INVALID: return TWF_EXIT_USAGE;
+  case TWF_ERR_INVALID: return TWF_EXIT_INTERNAL; /* a library call the front end got wrong */
   case TWF_ERR_DEGENERATE:
   case TWF_ERR_SINGULAR:
   case TWF_ERR_DIVERGED: return TWF_EXIT_COMPUTE;
@@ -86,6 +88,57 @@ static int same_file(const char *a, const char *b)
   return sa.st_dev == sb.st_dev && sa.st_ino == sb.st_ino;
 }
 
+/* The canonical form of a path that may not exist yet: the real path of
+ * its folder, then its last component. NULL when the folder cannot be
+ * resolved (or out of memory). Caller frees. */
+static char *canonical_target(const char *path)
+{
+  char *copy = strdup(path), *slash, *dir, *real, *out;
+  const char *base;
+  size_t n;
+  if (copy == NULL)
+    return NULL;
+  slash = strrchr(copy, '/');
+  if (slash == NULL) {
+    dir = ".";
+    base = copy;
+  } else if (slash == copy) {
+    dir = "/";
+    base = slash + 1;
+  } else {
+    *slash = '\0';
+    dir = copy;
+    base = slash + 1;
+  }
+  real = realpath(dir, NULL);
+  if (real == NULL) {
+    free(copy);
+    return NULL;
+  }
+  n = strlen(real) + strlen(base) + 2;
+  out = malloc(n);
+  if (out != NULL)
+    snprintf(out, n, "%s/%s", strcmp(real, "/") == 0 ? "" : real, base);
+  free(real);
+  free(copy);
+  return out;
+}
+
+/* Whether two paths name the same file, existing or not. */
+static int same_target(const char *a, const char *b)
+{
+  char *ca, *cb;
+  int same;
+  if (same_file(a, b))
+    return 1;
+  ca = canonical_target(a);
+  cb = canonical_target(b);
+  same = ca != NULL && cb != NULL && strcmp(ca, cb) == 0;
+  free(ca);
+  free(cb);
+  return same;
+}
+
 int cli_output_check(const char *path, int force, const char *const *inputs, twf_error *err)
 {
   char *dir, *slash;
@@ -93,11 +146,19 @@ int cli_output_check(const char *path, int force, const char *const *inputs, twf
   if (path == NULL || strcmp(path, "-") == 0)
     return TWF_EXIT_OK;
   for (; inputs != NULL && *inputs != NULL; inputs++)
-    if (same_file(path, *inputs)) {
+    if (same_target(path, *inputs)) {
       twf_error_set(err, TWF_ERR_IO, path, 0, 0, "choose another output name",
                     "refusing to write over the input file '%s'", *inputs);
       return TWF_EXIT_IO;
     }
+  {
+    struct stat st;
+    if (stat(path, &st) == 0 && !S_ISREG(st.st_mode)) {
+      twf_error_set(err, TWF_ERR_IO, path, 0, 0, "give the name of a file",
+                    "the output exists and is not a regular file");
+      return TWF_EXIT_IO;
+    }
+  }
   if (!force && access(path, F_OK) == 0) {
     twf_error_set(err, TWF_ERR_IO, path, 0, 0,
                   "choose another name, or pass --force to replace it",
@@ -136,9 +197,12 @@ int cli_outputs_check(const char *const *outputs, size_t n, int force, const cha
     if (outputs[a] == NULL)
       continue;
     for (b = a + 1; b < n; b++)
-      if (outputs[b] != NULL && strcmp(outputs[a], "-") != 0 && strcmp(outputs[a], outputs[b]) == 0) {
+      if (outputs[b] != NULL &&
+          (strcmp(outputs[a], "-") == 0 ? strcmp(outputs[b], "-") == 0
+                                        : strcmp(outputs[b], "-") != 0 && same_target(outputs[a], outputs[b]))) {
         twf_error_set(&err, TWF_ERR_IO, outputs[a], 0, 0, "give each output its own name",
-                      "two outputs share this name");
+                      strcmp(outputs[a], "-") == 0 ? "two outputs would go to standard output"
+                                                   : "two outputs name the same file");
         return cli_report_error(&err);
       }
     if ((st = cli_output_check(outputs[a], force, inputs, &err)) != 0)
@@ -171,6 +235,16 @@ int cli_output_open(cli_output *out, const char *path, int force,
   }
   snprintf(out->tmp_path, n + 16, "%s.tmp.XXXXXX", path);
   fd = mkstemp(out->tmp_path);
+  if (fd >= 0) {
+    /* mkstemp makes the file private; give it the mode a new file would
+     * have (or the one of the file it replaces) */
+    struct stat old;
+    mode_t mask = umask(0);
+    umask(mask);
+    if (fchmod(fd, stat(path, &old) == 0 ? old.st_mode & 07777 : 0666 & ~mask) != 0) {
+      /* not fatal: the file keeps its private mode */
+    }
+  }
   if (fd < 0 || (out->fp = fdopen(fd, "w")) == NULL) {
     twf_error_set(err, TWF_ERR_IO, path, 0, 0,
                   "check that the folder exists and is writable",
@@ -259,4 +333,60 @@ int cli_parse_double(const char *text, double *out)
     return -1;
   *out = v;
   return 0;
+}
+
+int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs)
+{
+  cli_output outs[8];
+  twf_error err;
+  size_t i, opened = 0;
+  int st = TWF_EXIT_OK;
+  twf_error_clear(&err);
+  if (n > sizeof outs / sizeof outs[0])
+    return TWF_EXIT_INTERNAL;
+  /* every temporary file first, then every content, then the renames: a
+   * failure anywhere leaves no output behind */
+  for (i = 0; i < n; i++) {
+    memset(&outs[i], 0, sizeof outs[i]);
+    if (puts[i].path == NULL)
+      continue;
+    if ((st = cli_output_open(&outs[i], puts[i].path, force, inputs, &err)) != 0) {
+      cli_report_error(&err);
+      goto abort;
+    }
+    opened = i + 1;
+  }
+  for (i = 0; i < n; i++) {
+    if (puts[i].path == NULL)
+      continue;
+    if (puts[i].put(outs[i].fp, puts[i].ctx, &err) != 0 || ferror(outs[i].fp) || fflush(outs[i].fp) != 0) {
+      if (err.status == TWF_OK)
+        twf_error_set(&err, TWF_ERR_IO, puts[i].path, 0, 0, "check free space and permissions",
+                      "cannot write the output file");
+      if (err.file[0] == '\0')
+        snprintf(err.file, sizeof err.file, "%s", puts[i].path);
+      st = cli_report_error(&err);
+      opened = n;
+      goto abort;
+    }
+  }
+  for (i = 0; i < n; i++)
+    if (puts[i].path != NULL) {
+      int c = cli_output_commit(&outs[i]);
+      if (c != 0 && st == TWF_EXIT_OK)
+        st = c;
+    }
+  return st;
+abort:
+  for (i = 0; i < opened && i < n; i++)
+    cli_output_abort(&outs[i]);
+  return st != TWF_EXIT_OK ? st : TWF_EXIT_IO;
+}
+
+int cli_bad_option(const char *command, int opt, char **argv)
+{
+  const char *word = optind > 0 ? argv[optind - 1] : "?";
+  if (opt == ':')
+    return cli_usage_error(command, "option '%s' needs a value", word);
+  return cli_usage_error(command, "unknown option '%s'", word);
 }

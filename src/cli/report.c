@@ -78,13 +78,23 @@ int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, 
                   "the campaign holds no measurement");
     goto fail;
   }
+  /* printed now, and kept for the reports that list warnings */
   cli_print_warnings(&in->warnings);
-  in->warnings.count = 0;
   return TWF_EXIT_OK;
 fail:
   cli_print_warnings(&in->warnings);
-  in->warnings.count = 0;
   return cli_report_error(&err);
+}
+
+void cli_inputs_add_path(cli_inputs *in, const char *path)
+{
+  size_t i;
+  for (i = 0; i + 1 < sizeof in->paths / sizeof in->paths[0]; i++)
+    if (in->paths[i] == NULL) {
+      in->paths[i] = path;
+      in->paths[i + 1] = NULL;
+      return;
+    }
 }
 
 void cli_inputs_free(cli_inputs *in)
@@ -103,21 +113,28 @@ void cli_units_of(cli_units *u, const twf_model *m)
   u->length_si = twf_length_unit_si(m->length_unit);
   u->angle = twf_angle_unit_name(m->angle_unit);
   u->angle_si = twf_angle_unit_si(m->angle_unit);
+  /* enough decimals for 0.1 um and 1e-7 rad whatever the unit */
+  u->ldec = (int)ceil(log10(u->length_si / 1e-7) - 1e-9);
+  u->adec = (int)ceil(log10(u->angle_si / 1e-7) - 1e-9);
+  if (u->ldec < 1)
+    u->ldec = 1;
+  if (u->adec < 1)
+    u->adec = 1;
 }
 
 /* ------------------------------------------------------------ text */
 
 static const char *set_name(int set) { return set == TWF_SET_CHECK ? "check" : "fit"; }
 
-static void print_stats_row(FILE *fp, const char *label, const twf_stats *s, double unit,
+static void print_stats_row(FILE *fp, const char *label, const twf_stats *s, double unit, int dec,
                             const twf_campaign *c, int with_worst)
 {
   if (s->count == 0) {
     fprintf(fp, "  %-14s %7zu %10s %10s %10s %10s\n", label, s->count, "-", "-", "-", "-");
     return;
   }
-  fprintf(fp, "  %-14s %7zu %10.4f %10.4f %10.4f %10.4f", label, s->count, s->mean / unit,
-          s->rms / unit, s->p95 / unit, s->max / unit);
+  fprintf(fp, "  %-14s %7zu %10.*f %10.*f %10.*f %10.*f", label, s->count, dec, s->mean / unit, dec,
+          s->rms / unit, dec, s->p95 / unit, dec, s->max / unit);
   if (with_worst && s->max_index < c->n_meas)
     fprintf(fp, "  %s", c->pose_ids[c->meas[s->max_index].pose]);
   fputc('\n', fp);
@@ -133,19 +150,19 @@ void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary 
   fprintf(fp, "  %-14s %7s %10s %10s %10s %10s  %s\n", "set", "count", "mean", "rms", "p95",
           "max", "worst pose");
   for (set = 0; set < 2; set++)
-    print_stats_row(fp, set_name(set), &s->position[set], u->length_si, c, 1);
+    print_stats_row(fp, set_name(set), &s->position[set], u->length_si, u->ldec, c, 1);
   for (set = 0; set < 2; set++)
     for (k = 0; k < s->n_targets; k++) {
       char label[TWF_NAME_MAX + 16];
       if (s->target_position[2 * k + set].count == 0 || s->n_targets < 2)
         continue;
       snprintf(label, sizeof label, "%s %s", set_name(set), m->targets[k].name);
-      print_stats_row(fp, label, &s->target_position[2 * k + set], u->length_si, c, 1);
+      print_stats_row(fp, label, &s->target_position[2 * k + set], u->length_si, u->ldec, c, 1);
     }
   if (s->orientation[0].count + s->orientation[1].count > 0) {
     fprintf(fp, "  orientation error, %s\n", u->angle);
     for (set = 0; set < 2; set++)
-      print_stats_row(fp, set_name(set), &s->orientation[set], u->angle_si, c, 1);
+      print_stats_row(fp, set_name(set), &s->orientation[set], u->angle_si, u->adec, c, 1);
   }
 }
 
@@ -160,7 +177,7 @@ void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign
     fprintf(fp, "  worst poses (%s set), %s:", set_name(set), u->length);
     for (i = 0; i < s->n_worst[set]; i++) {
       const twf_accuracy_worst *w = &s->worst[set][i];
-      fprintf(fp, " %s/%s %.4f", c->pose_ids[w->pose], m->targets[c->meas[w->meas].target].name,
+      fprintf(fp, " %s/%s %.*f", c->pose_ids[w->pose], m->targets[c->meas[w->meas].target].name, u->ldec,
               w->error_m / u->length_si);
     }
     fputc('\n', fp);
@@ -224,87 +241,82 @@ json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
   return o;
 }
 
-int cli_write_json(json_t *root, const char *path, int force, const char *const *inputs)
+int cli_put_json(FILE *fp, void *ctx, twf_error *err)
 {
-  cli_output out;
-  twf_error err;
-  int st;
-  twf_error_clear(&err);
-  if ((st = cli_output_open(&out, path, force, inputs, &err)) != 0)
-    return cli_report_error(&err);
-  if (json_dumpf(root, out.fp, JSON_INDENT(2) | JSON_REAL_PRECISION(12) | JSON_SORT_KEYS) != 0) {
-    cli_output_abort(&out);
-    twf_error_set(&err, TWF_ERR_IO, path, 0, 0, NULL, "cannot write the JSON report");
-    return cli_report_error(&err);
+  if (json_dumpf((json_t *)ctx, fp, JSON_INDENT(2) | JSON_REAL_PRECISION(12) | JSON_SORT_KEYS) != 0) {
+    twf_error_set(err, TWF_ERR_IO, NULL, 0, 0, "check free space", "cannot write the JSON report");
+    return -1;
   }
-  fputc('\n', out.fp);
-  return cli_output_commit(&out);
+  fputc('\n', fp);
+  return 0;
 }
 
 /* ------------------------------------------------------------ residual CSV */
 
-int cli_write_residuals(const char *path, int force, const char *const *inputs,
-                        const twf_model *m, const twf_campaign *c, const twf_meas_set *sets,
-                        const double *const pos[2], const double *const rot[2],
-                        const char *const labels[2], const cli_units *u)
+int cli_put_residuals(FILE *fp, void *ctx, twf_error *err)
 {
   static const char *axes[3] = { "ex", "ey", "ez" };
-  cli_output out;
+  const cli_residuals *r = ctx;
+  const twf_campaign *c = r->c;
+  const cli_units *u = r->u;
   cli_csv csv;
-  twf_error err;
-  int st, v, a;
+  int v, a;
   size_t i;
   char name[64];
-  twf_error_clear(&err);
-  if ((st = cli_output_open(&out, path, force, inputs, &err)) != 0)
-    return cli_report_error(&err);
-  cli_csv_init(&csv, out.fp);
+  (void)err;
+  cli_csv_init(&csv, fp);
   cli_csv_text(&csv, "pose");
   cli_csv_text(&csv, "target");
   cli_csv_text(&csv, "set");
+  if (r->weights != NULL)
+    cli_csv_text(&csv, "fit_weight");
   for (v = 0; v < 2; v++) {
-    if (pos[v] == NULL)
+    if (r->pos[v] == NULL)
       continue;
     for (a = 0; a < 3; a++) {
-      snprintf(name, sizeof name, "%s%s_%s", labels[v], axes[a], u->length);
+      snprintf(name, sizeof name, "%s%s_%s", r->labels[v], axes[a], u->length);
       cli_csv_text(&csv, name);
     }
-    snprintf(name, sizeof name, "%serror_%s", labels[v], u->length);
+    snprintf(name, sizeof name, "%serror_%s", r->labels[v], u->length);
     cli_csv_text(&csv, name);
     if (c->has_orientation_any) {
-      snprintf(name, sizeof name, "%sangle_%s", labels[v], u->angle);
+      snprintf(name, sizeof name, "%sangle_%s", r->labels[v], u->angle);
       cli_csv_text(&csv, name);
     }
   }
   cli_csv_end_row(&csv);
   for (i = 0; i < c->n_meas; i++) {
     const twf_measurement *ms = &c->meas[i];
+    int set = r->sets ? (int)r->sets[i] : (int)ms->set;
     cli_csv_text(&csv, c->pose_ids[ms->pose]);
-    cli_csv_text(&csv, m->targets[ms->target].name);
-    cli_csv_text(&csv, set_name(sets ? (int)sets[i] : (int)ms->set));
+    cli_csv_text(&csv, r->m->targets[ms->target].name);
+    cli_csv_text(&csv, set_name(set));
+    if (r->weights != NULL)
+      cli_csv_number(&csv, set == TWF_SET_FIT ? r->weights[i] : NAN);
     for (v = 0; v < 2; v++) {
       const double *e;
-      if (pos[v] == NULL)
+      if (r->pos[v] == NULL)
         continue;
-      e = pos[v] + 3 * i;
+      e = r->pos[v] + 3 * i;
       for (a = 0; a < 3; a++)
         cli_csv_number(&csv, e[a] / u->length_si);
       cli_csv_number(&csv, sqrt(e[0] * e[0] + e[1] * e[1] + e[2] * e[2]) / u->length_si);
       if (c->has_orientation_any)
-        cli_csv_number(&csv, rot[v][i] / u->angle_si);
+        cli_csv_number(&csv, r->rot[v][i] / u->angle_si);
     }
     cli_csv_end_row(&csv);
   }
-  return cli_output_commit(&out);
+  return 0;
 }
 
 /* ------------------------------------------------------------ acceptance */
 
-int cli_parse_tolerance(const char *command, const char *arg, double unit_si, double *out)
+int cli_parse_tolerance(const char *command, const char *option, const char *arg, double unit_si,
+                        double *out)
 {
   double v;
   if (cli_parse_double(arg, &v) != 0 || v <= 0)
-    return cli_usage_error(command, "a tolerance must be a positive number, not '%s'", arg);
+    return cli_usage_error(command, "%s takes a positive number, not '%s'", option, arg);
   *out = v * unit_si;
   return TWF_EXIT_OK;
 }

@@ -54,6 +54,10 @@ static char *reader(char *str, int num, void *stream)
   if (fgets(str, num, fp) == NULL)
     return NULL;
   c->line++;
+  /* a UTF-8 byte-order mark at the start of the file */
+  if (c->line == 1 && (unsigned char)str[0] == 0xEF && (unsigned char)str[1] == 0xBB &&
+      (unsigned char)str[2] == 0xBF)
+    memmove(str, str + 3, strlen(str + 3) + 1);
   len = strlen(str);
   if (len > 0 && str[len - 1] != '\n' && !feof(fp))
     fail_at(c, TWF_ERR_SYNTAX, c->line, "keep lines under 199 characters",

@@ -232,11 +232,6 @@ static double accumulate_cols(problem *pr, const size_t *cols, size_t nc, double
   return cost;
 }
 
-static double accumulate(problem *pr, double *A, double *g)
-{
-  return accumulate_cols(pr, NULL, 0, A, g);
-}
-
 /* The triangular factor R of the weighted Jacobian (R^T R = J^T W J) over
  * the active measurements and the columns cols[0..nc) (R is nc x nc),
  * streamed row by row with Givens rotations: the redundancy walk on the
@@ -502,19 +497,37 @@ static size_t walk_order(const problem *pr, const twf_group *priority, size_t *o
 
 /* ------------------------------------------------------------ refinement of the base */
 
-twf_status twf_refine_base(twf_model *m, const twf_campaign *c,
-                           const unsigned char *fit_target, double sigma_length,
-                           twf_pose *base_in_tracker, twf_solve_report *report,
-                           twf_error *err)
+static twf_status robust_screen(problem *pr, twf_robust mode, double k_threshold, double *score,
+                                double *err_len, size_t *changed);
+
+twf_refine_options twf_refine_default_options(void)
 {
+  twf_refine_options o;
+  o.sigma_length = 0.0;
+  o.screen = 1;
+  o.robust_threshold = 5.0;
+  return o;
+}
+
+twf_status twf_refine_base(twf_model *m, const twf_campaign *c,
+                           const unsigned char *fit_target, const twf_refine_options *opt_in,
+                           twf_pose *base_in_tracker, twf_solve_report *report,
+                           unsigned char *excluded, twf_error *err)
+{
+  twf_refine_options opt = opt_in ? *opt_in : twf_refine_default_options();
   unsigned groups = TWF_GROUP_BIT(TWF_GROUP_BASE);
   unsigned char *use = NULL, *keep = NULL;
-  double *value = NULL, *As = NULL, *order_rel = NULL;
-  size_t *order = NULL, i, j, n_order;
+  double *value = NULL, *R = NULL, *rel = NULL, *scales = NULL, *score = NULL, *len = NULL;
+  size_t *order = NULL, *cols = NULL, i, j, n_order;
   problem pr;
   twf_status st;
   twf_solve_report rep;
 
+  memset(&rep, 0, sizeof rep);
+  if (m == NULL || c == NULL || c->n_joints != m->n_joints)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "the campaign does not match the model");
+  if (!(opt.robust_threshold > 0) || !(opt.sigma_length >= 0))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "invalid refinement options");
   for (i = 0; fit_target != NULL && i < m->n_targets; i++)
     if (fit_target[i])
       groups |= TWF_GROUP_BIT(TWF_GROUP_TARGETS);
@@ -523,7 +536,7 @@ twf_status twf_refine_base(twf_model *m, const twf_campaign *c,
     return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
   for (i = 0; i < c->n_meas; i++)
     use[i] = c->meas[i].set == TWF_SET_FIT;
-  st = problem_init(&pr, m, c, groups, use, sigma_length > 0 ? sigma_length : 1e-4, 0.0, err);
+  st = problem_init(&pr, m, c, groups, use, opt.sigma_length > 0 ? opt.sigma_length : 1e-4, 0.0, err);
   if (st != TWF_OK) {
     free(use);
     return st;
@@ -532,15 +545,24 @@ twf_status twf_refine_base(twf_model *m, const twf_campaign *c,
   value = calloc(pr.p, sizeof *value);
   keep = calloc(pr.p, 1);
   order = calloc(pr.p, sizeof *order);
-  As = calloc(pr.p * pr.p, sizeof *As);
-  order_rel = calloc(pr.p, sizeof *order_rel);
-  if (!value || !keep || !order || !As || !order_rel) {
+  cols = calloc(pr.p, sizeof *cols);
+  R = calloc(pr.p * pr.p, sizeof *R);
+  rel = calloc(pr.p, sizeof *rel);
+  scales = calloc(pr.p, sizeof *scales);
+  score = calloc(c->n_meas ? c->n_meas : 1, sizeof *score);
+  len = calloc(c->n_meas ? c->n_meas : 1, sizeof *len);
+  if (!value || !keep || !order || !cols || !R || !rel || !scales || !score || !len) {
     st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
     goto done;
   }
-  /* free only the flagged targets; drop exactly dependent columns */
-  accumulate(&pr, pr.A, pr.g);
-  scale_normal(&pr, pr.A, As);
+  /* free only the flagged targets; fix columns exactly dependent on these
+   * poses (a target offset the poses cannot separate from the base, as on a
+   * four-axis arm) rather than leave them to the damping */
+  for (j = 0; j < pr.p; j++) {
+    cols[j] = j;
+    scales[j] = twf_errmodel_param_scale(pr.em, j);
+  }
+  accumulate_r(&pr, cols, pr.p, R);
   n_order = 0;
   for (j = 0; j < pr.p; j++) {
     const twf_param *par = twf_errmodel_param(pr.em, j);
@@ -548,24 +570,48 @@ twf_status twf_refine_base(twf_model *m, const twf_campaign *c,
       continue;
     order[n_order++] = j;
   }
-  if (twf_ident_walk(As, pr.p, order, n_order, 1e-6, keep, order_rel) != 0) {
+  if (twf_ident_walk_r(R, pr.p, scales, order, n_order, 1e-6, keep, rel) != 0) {
     st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
     goto done;
   }
   st = lm_run(&pr, keep, 100, 1e-12, value, &rep, err);
+  /* gross errors (a broken beam, a wrong nest) would pull the base pose:
+   * drop them from the refinement as the calibration does, and say which */
+  if (st == TWF_OK && opt.screen) {
+    int round;
+    for (round = 0; round < 5; round++) {
+      size_t changed;
+      if (robust_screen(&pr, TWF_ROBUST_DROP, opt.robust_threshold, score, len, &changed) != TWF_OK) {
+        st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+        break;
+      }
+      if (changed == 0)
+        break;
+      st = lm_run(&pr, keep, 100, 1e-12, value, &rep, err);
+      if (st != TWF_OK)
+        break;
+    }
+  }
   if (report != NULL)
     *report = rep;
   if (st == TWF_OK) {
     model_assign(m, pr.m);
     *base_in_tracker = pr.base;
+    if (excluded != NULL)
+      for (i = 0; i < c->n_meas; i++)
+        excluded[i] = use[i] && pr.weight[i] == 0.0;
   }
 done:
   free(use);
   free(value);
   free(keep);
   free(order);
-  free(As);
-  free(order_rel);
+  free(cols);
+  free(R);
+  free(rel);
+  free(scales);
+  free(score);
+  free(len);
   problem_free(&pr);
   return st;
 }
@@ -683,7 +729,7 @@ static double median_of(double *v, size_t n)
  * median of a chi distribution with 3 degrees of freedom; a row scores the
  * larger of the two); set the weights. *changed receives the number of
  * measurements whose weight changed. */
-static twf_status robust_screen(problem *pr, const twf_calib_options *opt, double *score,
+static twf_status robust_screen(problem *pr, twf_robust mode, double k_threshold, double *score,
                                 double *err_len, size_t *changed)
 {
   const twf_campaign *c = pr->c;
@@ -727,14 +773,14 @@ static twf_status robust_screen(problem *pr, const twf_calib_options *opt, doubl
   for (i = 0; i < c->n_meas; i++) {
     double len = sqrt(pos[3 * i] * pos[3 * i] + pos[3 * i + 1] * pos[3 * i + 1] +
                       pos[3 * i + 2] * pos[3 * i + 2]);
-    double u = len * pr->inv_sigma[i] / s, w = 1.0, k = opt->robust_threshold;
+    double u = len * pr->inv_sigma[i] / s, w = 1.0, k = k_threshold;
     if (c->meas[i].has_orientation && s_rot > 0)
       u = fmax(u, rot[i] * pr->inv_sigma_rot / s_rot);
     err_len[i] = len;
     score[i] = u;
     if (!pr->use[i])
       continue;
-    switch (opt->robust) {
+    switch (mode) {
     case TWF_ROBUST_DROP: w = u > k ? 0.0 : 1.0; break;
     case TWF_ROBUST_HUBER: w = u > k ? k / u : 1.0; break;
     case TWF_ROBUST_CAUCHY: w = 1.0 / (1.0 + (u / k) * (u / k)); break;
@@ -762,14 +808,17 @@ static int joint_narrow(const twf_joint *jt, double range)
   return range < fmin(0.25 * span, floor_abs);
 }
 
-static double joint_range_shown(const twf_joint *jt, double range)
+/* A joint's range in the model's declared units. */
+static double joint_range_shown(const twf_model *m, const twf_joint *jt, double range)
 {
-  return jt->type == TWF_JOINT_REVOLUTE ? range * 180.0 / TWF_PI : range * 1e3;
+  return range / (jt->type == TWF_JOINT_REVOLUTE ? twf_angle_unit_si(m->angle_unit)
+                                                 : twf_length_unit_si(m->length_unit));
 }
 
-static const char *joint_range_unit(const twf_joint *jt)
+static const char *joint_range_unit(const twf_model *m, const twf_joint *jt)
 {
-  return jt->type == TWF_JOINT_REVOLUTE ? "deg" : "mm";
+  return jt->type == TWF_JOINT_REVOLUTE ? twf_angle_unit_name(m->angle_unit)
+                                        : twf_length_unit_name(m->length_unit);
 }
 
 /* The narrowest joint among those whose motion the parameter depends on:
@@ -808,19 +857,32 @@ static void warn_weak(const problem *pr, const twf_calib_result *res, const doub
     }
     if (n == 0)
       continue;
-    for (j = 0; j < res->n_params; j++) {
-      const twf_param *par = &res->params[j].param;
-      int k;
-      if (j == worst || !res->params[j].weak || narrowest_joint(pr->m, res, par->joint) != cause ||
-          used + 2 >= sizeof names)
-        continue;
-      k = snprintf(names + used, sizeof names - used, "%s%s", used ? ", " : "", par->name);
-      used = k > 0 && used + (size_t)k < sizeof names ? used + (size_t)k : sizeof names - 1;
+    {
+      size_t listed = 0;
+      for (j = 0; j < res->n_params; j++) {
+        const twf_param *par = &res->params[j].param;
+        int k;
+        if (j == worst || !res->params[j].weak || narrowest_joint(pr->m, res, par->joint) != cause)
+          continue;
+        if (listed == 6) {
+          k = snprintf(names + used, sizeof names - used, " and %zu more", n - 1 - listed);
+          used = k > 0 && used + (size_t)k < sizeof names ? used + (size_t)k : sizeof names - 1;
+          break;
+        }
+        k = snprintf(names + used, sizeof names - used, "%s%s", listed ? ", " : "", par->name);
+        used = k > 0 && used + (size_t)k < sizeof names ? used + (size_t)k : sizeof names - 1;
+        listed++;
+      }
     }
     {
       const twf_param *par = &res->params[worst].param;
-      const char *unit = par->kind == TWF_PARAM_ANGLE ? "mrad" : par->kind == TWF_PARAM_LENGTH ? "mm" : "";
-      double shown = res->params[worst].std * (par->kind == TWF_PARAM_RATIO ? 1.0 : 1e3);
+      const char *unit = par->kind == TWF_PARAM_ANGLE    ? twf_angle_unit_name(pr->m->angle_unit)
+                         : par->kind == TWF_PARAM_LENGTH ? twf_length_unit_name(pr->m->length_unit)
+                                                         : "";
+      double shown = res->params[worst].std /
+                     (par->kind == TWF_PARAM_ANGLE    ? twf_angle_unit_si(pr->m->angle_unit)
+                      : par->kind == TWF_PARAM_LENGTH ? twf_length_unit_si(pr->m->length_unit)
+                                                      : 1.0);
       char what[TWF_ERROR_TEXT_MAX];
       snprintf(what, sizeof what, "%zu parameter%s poorly determined by these poses (worst %s: std %.3g %s, "
                "%.2g times the noise at the arm's reach%s%s)",
@@ -830,7 +892,7 @@ static void warn_weak(const problem *pr, const twf_calib_result *res, const doub
         twf_warnings_add(w, NULL, 0, 0,
                          "%s: joint %s moved through only %.3g %s in the fit poses; add poses that move %s "
                          "over more of its range",
-                         what, jt->name, joint_range_shown(jt, res->joint_range[cause]), joint_range_unit(jt),
+                         what, jt->name, joint_range_shown(pr->m, jt, res->joint_range[cause]), joint_range_unit(pr->m, jt),
                          jt->name);
       } else {
         twf_warnings_add(w, NULL, 0, 0, "%s: add poses that vary more joints together (%zu fit poses now)",
@@ -861,8 +923,8 @@ static void warn_fixed_on_data(const twf_model *m, const twf_calib_result *res,
     twf_warnings_add(w, NULL, 0, 0,
                      "joint %s moved through %.3g %s in the fit poses: %zu parameters cannot be determined "
                      "and stay at their starting values (%s); measure poses that move %s over its range",
-                     m->joints[jn].name, joint_range_shown(&m->joints[jn], res->joint_range[jn]),
-                     joint_range_unit(&m->joints[jn]), res->n_fixed_data, list, m->joints[jn].name);
+                     m->joints[jn].name, joint_range_shown(m, &m->joints[jn], res->joint_range[jn]),
+                     joint_range_unit(m, &m->joints[jn]), res->n_fixed_data, list, m->joints[jn].name);
   else
     twf_warnings_add(w, NULL, 0, 0,
                      "%zu parameters cannot be determined from these poses and stay at their starting values (%s): "
@@ -884,6 +946,7 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   size_t *order = NULL;
   size_t i, j, p = 0, n_order, n_rows = 0, nk;
   double sigma_len, sigma_ref;
+  int sigma_from_rows = 0;
   problem pr;
   twf_status st;
   twf_register_report rrep;
@@ -913,6 +976,7 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
         n_sig++;
       }
     sigma_len = n_sig ? sum / (double)n_sig : 1e-4;
+    sigma_from_rows = n_sig > 0;
   }
 
   res = calloc(1, sizeof *res);
@@ -1017,8 +1081,13 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
       if (target_seen[j])
         reg->targets[j].offset_known = 1;
     }
-    st = twf_refine_base(reg, &view, fit_target, sigma_len, &res->base_before,
-                         &res->registration, err);
+    {
+      twf_refine_options ro = twf_refine_default_options();
+      ro.sigma_length = sigma_len;
+      ro.screen = opt.robust != TWF_ROBUST_OFF;
+      ro.robust_threshold = opt.robust_threshold;
+      st = twf_refine_base(reg, &view, fit_target, &ro, &res->base_before, &res->registration, NULL, err);
+    }
     free(meas);
     if (st != TWF_OK)
       goto fail;
@@ -1127,6 +1196,30 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
       res->n_fixed_data++;
   }
 
+  /* enough coordinates beyond the parameters to check the fit (and, with
+   * no sigma given, to estimate it) */
+  {
+    size_t rows0 = 0, nk0 = 0, need;
+    int sigma_known = opt.sigma_length > 0 || sigma_from_rows;
+    for (i = 0; i < c->n_meas; i++)
+      if (use[i])
+        rows0 += c->meas[i].has_orientation ? 6 : 3;
+    for (j = 0; j < p; j++)
+      nk0 += keep[j];
+    need = nk0 + (sigma_known ? 3 : (nk0 / 5 > 10 ? nk0 / 5 : 10));
+    if (rows0 < need) {
+      size_t per_pose = res->n_fit_poses ? (rows0 + res->n_fit_poses - 1) / res->n_fit_poses : 3;
+      st = twf_error_set(err, TWF_ERR_DEGENERATE, NULL, 0, 0,
+                         sigma_known ? "measure more poses, or fit fewer groups (--fit)"
+                                     : "measure more poses, fit fewer groups (--fit), or give the noise (--sigma)",
+                         "the fit set has %zu coordinates for %zu parameters: at least %zu are needed "
+                         "to check the fit%s (about %zu more poses)",
+                         rows0, nk0, need, sigma_known ? "" : " and estimate the noise",
+                         (need - rows0 + per_pose - 1) / (per_pose ? per_pose : 1));
+      goto fail;
+    }
+  }
+
   /* 5. fit, then the outlier screen and refits */
   st = lm_run(&pr, keep, opt.max_iterations, opt.step_tol_m, value, &res->solve, err);
   if (st != TWF_OK)
@@ -1137,7 +1230,7 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
      * that no longer changes, or reweighting that moves no weight by more
      * than 1e-3); the model reported is always the fit with the final
      * weights */
-    if (robust_screen(&pr, &opt, first_score, first_err, &changed) != TWF_OK)
+    if (robust_screen(&pr, opt.robust, opt.robust_threshold, first_score, first_err, &changed) != TWF_OK)
       goto nomem;
     memcpy(score, first_score, c->n_meas * sizeof *score);
     while (changed > 0) {
@@ -1147,7 +1240,7 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
         goto fail;
       if (res->robust_rounds >= 10)
         break;
-      if (robust_screen(&pr, &opt, score, err_len, &changed) != TWF_OK)
+      if (robust_screen(&pr, opt.robust, opt.robust_threshold, score, err_len, &changed) != TWF_OK)
         goto nomem;
       if (changed > 0 && res->robust_rounds >= 9) {
         /* last refit with these weights */
@@ -1197,14 +1290,12 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   res->n_kept = nk;
   {
     /* with no sigma given, the a-posteriori variance factor scales sigma */
-    int any_sigma = opt.sigma_length > 0;
     double factor = 1.0;
-    for (i = 0; i < c->n_meas && !any_sigma; i++)
-      any_sigma = c->meas[i].sigma > 0;
-    if (!any_sigma && n_rows > nk) {
+    res->sigma_source = opt.sigma_length > 0 ? TWF_SIGMA_GIVEN
+                        : sigma_from_rows    ? TWF_SIGMA_FROM_ROWS
+                                             : TWF_SIGMA_ESTIMATED;
+    if (res->sigma_source == TWF_SIGMA_ESTIMATED && n_rows > nk)
       factor = 2.0 * res->solve.cost_end / (double)(n_rows - nk);
-      res->sigma_estimated = 1;
-    }
     res->sigma_length = sigma_len * sqrt(factor);
     if (twf_ident_inverse(pr.A, p, keep, cov) != 0) {
       st = twf_error_set(err, TWF_ERR_SINGULAR, NULL, 0, 0,
@@ -1295,6 +1386,68 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
     res->comparison.home_angle_rad = NAN;
   if (opt.groups & TWF_GROUP_BIT(TWF_GROUP_TARGETS))
     res->comparison.home_distance_m = NAN;
+  /* plausibility: far beyond any calibration, the data and the model do
+   * not describe the same arm (joint order, signs, units, another model) */
+  if (!opt.accept_large) {
+    double worst_tilt = 0.0, worst_shift = 0.0;
+    size_t wt = 0, ws = 0;
+    for (j = 0; j < start->n_joints; j++) {
+      if (res->comparison.joints[j].angle_rad > worst_tilt) {
+        worst_tilt = res->comparison.joints[j].angle_rad;
+        wt = j;
+      }
+      if (res->comparison.joints[j].distance_m > worst_shift) {
+        worst_shift = res->comparison.joints[j].distance_m;
+        ws = j;
+      }
+    }
+    if (res->sigma_source == TWF_SIGMA_ESTIMATED && res->sigma_length > 1e-3) {
+      st = twf_error_set(err, TWF_ERR_DEGENERATE, NULL, 0, 0,
+                         "check the joint order and signs, the units and that the model is this arm's; "
+                         "pass --accept-large if the arm really is that far from its model",
+                         "the fit leaves %.3g mm of noise per coordinate, far beyond a measuring instrument's",
+                         res->sigma_length * 1e3);
+      goto fail;
+    }
+    if (worst_tilt > 5.0 * TWF_PI / 180.0 || worst_shift > 0.05) {
+      st = twf_error_set(err, TWF_ERR_DEGENERATE, NULL, 0, 0,
+                         "check the joint order and signs, the units and that the model is this arm's; "
+                         "pass --accept-large if the arm really is that far from its model",
+                         "the as-built line of joint %s is %.3g deg and of joint %s %.3g mm from the model's: "
+                         "beyond any calibration",
+                         start->joints[wt].name, worst_tilt * 180.0 / TWF_PI, start->joints[ws].name,
+                         worst_shift * 1e3);
+      goto fail;
+    }
+  }
+  if (!isfinite(res->condition_number)) {
+    st = twf_error_set(err, TWF_ERR_SINGULAR, NULL, 0, 0,
+                       "fix more parameters (--fit) or measure more varied poses",
+                       "the kept parameters are not independent on these poses (condition number infinite)");
+    goto fail;
+  }
+  /* a calibrated model that predicts the held-out poses worse than the
+   * starting one has learnt the noise, not the arm */
+  {
+    double b2 = 0.0, a2 = 0.0;
+    size_t nc = 0;
+    for (i = 0; i < c->n_meas; i++)
+      if (res->meas_set[i] == TWF_SET_CHECK) {
+        int k;
+        for (k = 0; k < 3; k++) {
+          b2 += res->residual_before[3 * i + k] * res->residual_before[3 * i + k];
+          a2 += res->residual_after[3 * i + k] * res->residual_after[3 * i + k];
+        }
+        nc++;
+      }
+    if (nc > 0 && a2 > b2)
+      twf_warnings_add(warnings, NULL, 0, 0,
+                       "the calibrated model predicts the check set worse than the starting model "
+                       "(RMS %.4g against %.4g %s): do not use it; measure more, and more varied, poses",
+                       sqrt(a2 / (double)nc) / twf_length_unit_si(start->length_unit),
+                       sqrt(b2 / (double)nc) / twf_length_unit_si(start->length_unit),
+                       twf_length_unit_name(start->length_unit));
+  }
   if (!res->comparison.settled)
     twf_warnings_add(warnings, NULL, 0, 0,
                      "the datum of the as-built report did not settle: the joint lines leave the base "

@@ -1005,6 +1005,14 @@ static twf_status field_meas(reader *r, const csv_row *row,
                   "column 'sigma': a standard deviation of 0 gives infinite "
                   "weight");
     ms->sigma = s * r->len_si;
+    /* 1 nm to 1 m spans every instrument; outside it the value is a slip
+     * (a unit, a variance for a standard deviation) and would wreck the
+     * weights */
+    if (ms->sigma < 1e-9 || ms->sigma > 1.0)
+      return rerr(r, row, r->col[COL_SIGMA], TWF_ERR_VALUE,
+                  "give the standard deviation of one coordinate in the file's length unit "
+                  "(between 1 nm and 1 m)",
+                  "column 'sigma': %g is outside 1 nm to 1 m", s);
   }
   st = field_set(r, row, set);
   if (st != TWF_OK)

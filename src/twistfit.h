@@ -651,6 +651,8 @@ typedef struct twf_iso9283_options {
    * joint_tol (rad or m; default 1e-6), chained joint by joint (single
    * linkage: see joint_spread). */
   double joint_tol;
+  /* The same for prismatic joints, m (0, the default: joint_tol). */
+  double joint_tol_prismatic;
   size_t min_visits; /* visits needed per target, default and minimum 2 */
   int set;           /* -1 (default): all rows; else TWF_SET_FIT or
                         TWF_SET_CHECK only */

@@ -36,8 +36,9 @@ static const char verify_help[] =
   "      --tol-angle-max X   acceptance: maximum orientation error at most X (angle unit)\n"
   "                          The verdict uses the check set when it has rows, else\n"
   "                          the fit set; exit status 1 when measured and rejected.\n"
-  "      --repeat-tol X      joint values within X (angle unit; length unit for\n"
-  "                          prismatic joints) are the same commanded pose (default 1e-6 rad)\n"
+  "      --repeat-tol X      joint values within X (the model's angle unit; its length\n"
+  "                          unit for prismatic joints) are the same commanded pose\n"
+  "                          (default 1e-6 rad, 1e-6 m)\n"
   "      --worst N           list the N worst poses (default 5)\n"
   "      --residuals FILE    write the per-measurement residuals as CSV\n"
   "      --json FILE         write the figures as JSON ('-' for standard output,\n"
@@ -269,6 +270,7 @@ static int run_verify(int argc, char **argv)
         goto done;
       }
       io.joint_tol = v * u.angle_si;
+      io.joint_tol_prismatic = v * u.length_si;
     }
     iso = twf_accuracy_iso9283(in.model, &base, offsets, in.campaign, &io, &err);
     if (iso == NULL) {

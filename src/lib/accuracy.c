@@ -397,6 +397,7 @@ twf_iso9283_options twf_iso9283_default_options(void)
   twf_iso9283_options o;
   memset(&o, 0, sizeof o);
   o.joint_tol = 1e-6;
+  o.joint_tol_prismatic = 0.0;
   o.min_visits = 2;
   o.set = -1;
   return o;
@@ -431,7 +432,8 @@ static int cmp_key(const void *pa, const void *pb)
 typedef struct grouper {
   const double *q;
   size_t nj;
-  double tol;
+  const twf_model *model;
+  double tol, tol_prismatic;
   key_item *keys;
   size_t *group_of;
   size_t n_groups;
@@ -457,7 +459,8 @@ static void group_segment(grouper *g, size_t *poses, size_t n, size_t j)
     poses[i] = g->keys[i].pose;
   start = 0;
   for (i = 1; i <= n; i++) {
-    if (i == n || g->q[poses[i] * g->nj + j] - g->q[poses[i - 1] * g->nj + j] > g->tol) {
+    double tol = g->model->joints[j].type == TWF_JOINT_PRISMATIC ? g->tol_prismatic : g->tol;
+    if (i == n || g->q[poses[i] * g->nj + j] - g->q[poses[i - 1] * g->nj + j] > tol) {
       group_segment(g, poses + start, i - start, j + 1);
       start = i;
     }
@@ -539,7 +542,9 @@ twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
 
   g.q = campaign->q;
   g.nj = nj;
+  g.model = model;
   g.tol = o->joint_tol;
+  g.tol_prismatic = o->joint_tol_prismatic > 0 ? o->joint_tol_prismatic : o->joint_tol;
   group_segment(&g, poses, n_used, 0);
 
   /* Poses of each group, in pose order; groups numbered by first visit. */

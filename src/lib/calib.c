@@ -165,22 +165,20 @@ static int meas_active(const problem *pr, size_t i)
   return pr->use[i] && pr->weight[i] > 0.0;
 }
 
-/* Accumulate the normal matrix A = J^T W J, gradient g = J^T W r and the
- * cost 0.5 r^T W r over the active measurements, at the working model,
- * for the columns cols[0..nc) (NULL: all p columns): A is nc x nc and g
- * has nc entries. J is the derivative of the prediction (r ~ r0 - J delta).
- * Restricting to the kept columns in the solver saves the rank-3 updates of
- * the fixed ones, which dominate the cost of an iteration. */
-static double accumulate_cols(problem *pr, const size_t *cols, size_t nc, double *A, double *g)
+/* Visit every weighted 3-row block of the Jacobian over the active
+ * measurements at the working model: pose by pose (one evaluation of the
+ * prefixes and parameter twists), then each target of the pose, its
+ * position rows and, for a 6-D row, its orientation rows. visit receives
+ * the 3 x p rows (derivative of the prediction, so r ~ r0 - J delta), the
+ * residual and the weight (robust weight / sigma^2). Returns the cost
+ * 0.5 r^T W r. */
+typedef void (*row_visitor)(problem *pr, void *ctx, const double *rows, const double r[3], double w);
+
+static double visit_rows(problem *pr, row_visitor visit, void *ctx)
 {
   const twf_campaign *c = pr->c;
-  size_t p = pr->p, pose, a, b, t;
+  size_t pose, t;
   double cost = 0.0;
-  double *c0 = pr->rows + 3 * p, *c1 = c0 + p, *c2 = c1 + p;
-  if (cols == NULL)
-    nc = p;
-  memset(A, 0, nc * nc * sizeof *A);
-  memset(g, 0, nc * sizeof *g);
   for (pose = 0; pose < c->n_poses; pose++) {
     int any = 0;
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++)
@@ -208,72 +206,93 @@ static double accumulate_cols(problem *pr, const size_t *cols, size_t nc, double
           w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
         }
         cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
-        for (a = 0; a < nc; a++) {
-          size_t j = cols ? cols[a] : a;
-          c0[a] = pr->rows[j];
-          c1[a] = pr->rows[p + j];
-          c2[a] = pr->rows[2 * p + j];
-        }
-        for (a = 0; a < nc; a++) {
-          double wa0 = w * c0[a], wa1 = w * c1[a], wa2 = w * c2[a];
-          double *Arow = A + a * nc;
-          g[a] += wa0 * r[0] + wa1 * r[1] + wa2 * r[2];
-          if (wa0 == 0.0 && wa1 == 0.0 && wa2 == 0.0)
-            continue;
-          for (b = a; b < nc; b++)
-            Arow[b] += wa0 * c0[b] + wa1 * c1[b] + wa2 * c2[b];
-        }
+        visit(pr, ctx, pr->rows, r, w);
       }
     }
   }
-  for (a = 0; a < nc; a++)
+  return cost;
+}
+
+/* Columns of the Jacobian a visitor works on (NULL: all p). */
+typedef struct col_ctx {
+  const size_t *cols;
+  size_t nc;
+  double *M;  /* nc x nc: the normal matrix, or the triangular factor */
+  double *g;  /* nc: the gradient (normal matrix only) */
+} col_ctx;
+
+/* rank-3 update of the upper triangle of A and of g */
+static void visit_normal(problem *pr, void *vctx, const double *rows, const double r[3], double w)
+{
+  col_ctx *x = vctx;
+  size_t p = pr->p, nc = x->nc, a, b;
+  double *c0 = pr->rows + 3 * p, *c1 = c0 + p, *c2 = c1 + p;
+  for (a = 0; a < nc; a++) {
+    size_t j = x->cols ? x->cols[a] : a;
+    c0[a] = rows[j];
+    c1[a] = rows[p + j];
+    c2[a] = rows[2 * p + j];
+  }
+  for (a = 0; a < nc; a++) {
+    double wa0 = w * c0[a], wa1 = w * c1[a], wa2 = w * c2[a];
+    double *Arow = x->M + a * nc;
+    x->g[a] += wa0 * r[0] + wa1 * r[1] + wa2 * r[2];
+    if (wa0 == 0.0 && wa1 == 0.0 && wa2 == 0.0)
+      continue;
+    for (b = a; b < nc; b++)
+      Arow[b] += wa0 * c0[b] + wa1 * c1[b] + wa2 * c2[b];
+  }
+}
+
+/* three Givens row updates of the factor */
+static void visit_factor(problem *pr, void *vctx, const double *rows, const double r[3], double w)
+{
+  col_ctx *x = vctx;
+  size_t p = pr->p, a;
+  double sw = sqrt(w), *row = pr->rows + 3 * p;
+  int k;
+  (void)r;
+  for (k = 0; k < 3; k++) {
+    for (a = 0; a < x->nc; a++)
+      row[a] = sw * rows[k * p + (x->cols ? x->cols[a] : a)];
+    twf_ident_qr_add_row(x->M, x->nc, row);
+  }
+}
+
+/* The normal matrix A = J^T W J (nc x nc) and gradient g = J^T W r (nc)
+ * over the columns cols[0..nc) (NULL: all p), and the cost. Restricting to
+ * the kept columns in the solver saves the rank-3 updates of the fixed
+ * ones, which dominate the cost of an iteration. */
+static double accumulate_cols(problem *pr, const size_t *cols, size_t nc, double *A, double *g)
+{
+  col_ctx x;
+  double cost;
+  size_t a, b;
+  x.cols = cols;
+  x.nc = cols ? nc : pr->p;
+  x.M = A;
+  x.g = g;
+  memset(A, 0, x.nc * x.nc * sizeof *A);
+  memset(g, 0, x.nc * sizeof *g);
+  cost = visit_rows(pr, visit_normal, &x);
+  for (a = 0; a < x.nc; a++)
     for (b = 0; b < a; b++)
-      A[a * nc + b] = A[b * nc + a];
+      A[a * x.nc + b] = A[b * x.nc + a];
   return cost;
 }
 
 /* The triangular factor R of the weighted Jacobian (R^T R = J^T W J) over
- * the active measurements and the columns cols[0..nc) (R is nc x nc),
- * streamed row by row with Givens rotations: the redundancy walk on the
- * user's poses runs on it. */
+ * the columns cols[0..nc) (R is nc x nc), streamed row by row with Givens
+ * rotations: the redundancy walks run on it. */
 static void accumulate_r(problem *pr, const size_t *cols, size_t nc, double *R)
 {
-  const twf_campaign *c = pr->c;
-  size_t p = pr->p, pose, t, a;
+  col_ctx x;
+  x.cols = cols;
+  x.nc = nc;
+  x.M = R;
+  x.g = NULL;
   memset(R, 0, nc * nc * sizeof *R);
-  for (pose = 0; pose < c->n_poses; pose++) {
-    int any = 0;
-    for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++)
-      any |= meas_active(pr, pr->pose_meas[t]);
-    if (!any)
-      continue;
-    twf_errmodel_eval_pose(pr->em, pr->m, &pr->base, c->q + pose * pr->n_joints, NULL);
-    for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
-      size_t i = pr->pose_meas[t];
-      const twf_measurement *ms = &c->meas[i];
-      double y[3], r[3], sw;
-      int pass, k;
-      if (!meas_active(pr, i))
-        continue;
-      for (pass = 0; pass < (ms->has_orientation ? 2 : 1); pass++) {
-        if (pass == 0) {
-          twf_errmodel_point(pr->em, pr->m, ms->target, y, pr->rows);
-          sw = sqrt(pr->weight[i]) * pr->inv_sigma[i];
-        } else {
-          double Rm[3][3];
-          quat_to_R(ms->quat, Rm);
-          twf_errmodel_orientation(pr->em, Rm, r, pr->rows);
-          sw = sqrt(pr->weight[i]) * pr->inv_sigma_rot;
-        }
-        for (k = 0; k < 3; k++) {
-          double *row = pr->rows + 3 * p;
-          for (a = 0; a < nc; a++)
-            row[a] = sw * pr->rows[k * p + cols[a]];
-          twf_ident_qr_add_row(R, nc, row);
-        }
-      }
-    }
-  }
+  visit_rows(pr, visit_factor, &x);
 }
 
 /* The cost only (no Jacobian), at model m and base B. */

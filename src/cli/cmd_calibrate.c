@@ -518,6 +518,18 @@ static int run_calibrate(int argc, char **argv)
 
   cli_inputs_init(&in);
   twf_warnings_init(&warnings);
+  /* the command line as typed, before getopt reorders argv */
+  {
+    size_t used = 0;
+    int k;
+    cmdline[0] = '\0';
+    for (k = 0; k < argc && used + 2 < sizeof cmdline; k++) {
+      int w = snprintf(cmdline + used, sizeof cmdline - used, "%s%s", k ? " " : "twistfit ", argv[k]);
+      if (w < 0)
+        break;
+      used = used + (size_t)w < sizeof cmdline ? used + (size_t)w : sizeof cmdline - 1;
+    }
+  }
   optind = 0;
   opterr = 0;
   while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
@@ -666,16 +678,7 @@ static int run_calibrate(int argc, char **argv)
 
   /* metadata of the as-built model */
   {
-    size_t used = 0;
-    int k;
     char key[TWF_NAME_MAX], val[64];
-    cmdline[0] = '\0';
-    for (k = 0; k < argc && used + 2 < sizeof cmdline; k++) {
-      int w = snprintf(cmdline + used, sizeof cmdline - used, "%s%s", k ? " " : "twistfit ", argv[k]);
-      if (w < 0)
-        break;
-      used = used + (size_t)w < sizeof cmdline ? used + (size_t)w : sizeof cmdline - 1;
-    }
     twf_model_meta_set(res->asbuilt, "created", created);
     twf_model_meta_set(res->asbuilt, "tool", "twistfit " PACKAGE_VERSION);
     meta_set_short(res->asbuilt, "command", cmdline);

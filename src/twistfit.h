@@ -1064,6 +1064,8 @@ typedef struct twf_calib_result {
   twf_sigma_source sigma_source;
   size_t n_fit_meas, n_check_meas, n_fit_poses;
   double *joint_range;        /* n_joints: range of each joint over the fit poses, SI */
+  unsigned char *target_in_fit; /* n_targets: 1 for a target with fit-set rows (only those are
+                                   determined) */
   twf_asbuilt_comparison comparison; /* as-built lines against the starting model's */
 } twf_calib_result;
 

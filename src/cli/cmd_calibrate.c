@@ -63,10 +63,26 @@ enum {
   OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_ACCEPT_LARGE
 };
 
+/* Split a comma list of group names into one mask per name; returns the
+ * count, or -1 for an unknown name or an over-long list. */
+static int split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT])
+{
+  char buf[256], *tok, *save = NULL;
+  int n = 0;
+  if (strlen(text) >= sizeof buf)
+    return -1;
+  strcpy(buf, text);
+  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save))
+    if (n == 2 * TWF_GROUP_COUNT || twf_group_parse(tok, &masks[n++]) != TWF_OK)
+      return -1;
+  return n;
+}
+
 /* Parse a comma list of groups or a preset into a mask. */
 static int parse_groups(const char *text, unsigned *mask)
 {
-  char buf[256], *tok, *save = NULL;
+  unsigned masks[2 * TWF_GROUP_COUNT];
+  int n, k;
   *mask = 0;
   if (strcmp(text, "geometric") == 0) { *mask = TWF_GROUPS_GEOMETRIC; return 0; }
   if (strcmp(text, "remaster") == 0) { *mask = TWF_GROUPS_REMASTER; return 0; }
@@ -74,35 +90,26 @@ static int parse_groups(const char *text, unsigned *mask)
     *mask = TWF_GROUPS_GEOMETRIC | TWF_GROUP_BIT(TWF_GROUP_SCALE);
     return 0;
   }
-  if (strlen(text) >= sizeof buf)
+  if ((n = split_groups(text, masks)) < 0)
     return -1;
-  strcpy(buf, text);
-  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
-    unsigned m;
-    if (twf_group_parse(tok, &m) != TWF_OK)
-      return -1;
-    *mask |= m;
-  }
+  for (k = 0; k < n; k++)
+    *mask |= masks[k];
   return *mask ? 0 : -1;
 }
 
+/* The walk order: the listed groups first, the others in default order. */
 static int parse_priority(const char *text, twf_group priority[TWF_GROUP_COUNT])
 {
-  char buf[256], *tok, *save = NULL;
-  int used[TWF_GROUP_COUNT] = { 0 }, n = 0, g;
-  if (strlen(text) >= sizeof buf)
+  unsigned masks[2 * TWF_GROUP_COUNT];
+  int used[TWF_GROUP_COUNT] = { 0 }, n = 0, g, k, count;
+  if ((count = split_groups(text, masks)) < 0)
     return -1;
-  strcpy(buf, text);
-  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
-    unsigned m;
-    if (twf_group_parse(tok, &m) != TWF_OK)
-      return -1;
+  for (k = 0; k < count; k++)
     for (g = 0; g < TWF_GROUP_COUNT; g++)
-      if ((m & TWF_GROUP_BIT(g)) && !used[g]) {
+      if ((masks[k] & TWF_GROUP_BIT(g)) && !used[g]) {
         used[g] = 1;
         priority[n++] = (twf_group)g;
       }
-  }
   for (g = 0; g < TWF_GROUP_COUNT; g++)
     if (!used[g])
       priority[n++] = (twf_group)g;
@@ -160,16 +167,6 @@ static void explain_text(const twf_calib_result *r, const twf_param_result *p, c
       break;
     used += (size_t)w;
   }
-}
-
-/* Whether target k has fit-set rows: only those are determined. */
-static int target_measured(const twf_campaign *view, const twf_calib_result *r, size_t k)
-{
-  size_t i;
-  for (i = 0; i < view->n_meas; i++)
-    if (view->meas[i].target == k && r->meas_set[i] == TWF_SET_FIT)
-      return 1;
-  return 0;
 }
 
 typedef struct digest { const char *path; char hex[40 > SHA256_DIGEST_STRING_LENGTH ? 40 : SHA256_DIGEST_STRING_LENGTH]; } digest;
@@ -245,13 +242,13 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   }
   for (j = 0; j < m->n_targets; j++) {
     const double *t = r->comparison.target_change_m + 3 * j;
-    if (isnan(t[0]) || !target_measured(view, r, j))
+    if (isnan(t[0]) || !r->target_in_fit[j])
       continue;
     fprintf(fp, "  target %s at logged zero moved by %.*f %.*f %.*f %s\n", m->targets[j].name,
             u->ldec, t[0] / u->length_si, u->ldec, t[1] / u->length_si, u->ldec, t[2] / u->length_si, u->length);
   }
   for (j = 0; j < r->asbuilt->n_targets; j++)
-    if (r->asbuilt->targets[j].offset_known && target_measured(view, r, j))
+    if (r->asbuilt->targets[j].offset_known && r->target_in_fit[j])
       fprintf(fp, "  target %s offset (flange frame): %.*f %.*f %.*f %s\n", m->targets[j].name,
               u->ldec, r->asbuilt->targets[j].offset[0] / u->length_si, u->ldec,
               r->asbuilt->targets[j].offset[1] / u->length_si, u->ldec,
@@ -277,7 +274,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     if (p->status == TWF_PARAM_KEPT ||
-        (p->param.group == TWF_GROUP_TARGETS && !target_measured(view, r, (size_t)p->param.target)))
+        (p->param.group == TWF_GROUP_TARGETS && !r->target_in_fit[p->param.target]))
       continue;
     explain_text(r, p, expl, sizeof expl);
     fprintf(fp, "  %-14s %s%s%s\n", p->param.name, status_name(p->status), expl[0] ? ": ~ " : "", expl);
@@ -320,7 +317,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     else
       fprintf(fp, "  %-8s %-14s %14s %12s %-5s %s\n", twf_group_name(p->param.group), p->param.name, "-", "-",
               unit,
-              p->param.group == TWF_GROUP_TARGETS && !target_measured(view, r, (size_t)p->param.target)
+              p->param.group == TWF_GROUP_TARGETS && !r->target_in_fit[p->param.target]
                   ? "fixed (target not measured)"
                   : status_name(p->status));
   }
@@ -364,7 +361,7 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   {
     json_t *targets = json_object();
     for (j = 0; j < r->asbuilt->n_targets; j++)
-      if (target_measured(view, r, j))
+      if (r->target_in_fit[j])
         json_object_set_new(targets, m->targets[j].name,
                             json_pack("[o,o,o]", cli_json_number(r->asbuilt->targets[j].offset[0] / u->length_si),
                                       cli_json_number(r->asbuilt->targets[j].offset[1] / u->length_si),

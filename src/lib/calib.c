@@ -651,6 +651,7 @@ void twf_calib_result_free(twf_calib_result *r)
   free(r->rot_before);
   free(r->rot_after);
   free(r->joint_range);
+  free(r->target_in_fit);
   twf_asbuilt_comparison_clear(&r->comparison);
   free(r);
 }
@@ -1394,6 +1395,8 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   res->asbuilt = twf_model_copy(pr.m);
   res->registered = reg;
   reg = NULL;
+  res->target_in_fit = target_seen;
+  target_seen = NULL;
   if (res->asbuilt == NULL)
     goto nomem;
   st = twf_asbuilt_align(start, res->asbuilt, &res->base_in_tracker, with_orientation,

@@ -5,7 +5,7 @@
  * level (below 1e-12), while the same walk on the normal matrix only gets
  * to about the square root of the rounding (common practice, no source). */
 #include "testutil.h"
-#include "../src/lib/ident.h"
+#include "calib/ident.h"
 
 #include <math.h>
 #include <stdlib.h>

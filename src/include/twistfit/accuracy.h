@@ -1,0 +1,167 @@
+/* twistfit/accuracy.h: accuracy figures and ISO 9283.
+ * Part of the public interface of libtwistfit; include <twistfit.h>,
+ * whose opening comment states the rules (units, frames, ownership,
+ * errors) that hold for every declaration here. */
+#ifndef TWISTFIT_ACCURACY_H
+#define TWISTFIT_ACCURACY_H
+
+#include "twistfit/common.h"
+#include "twistfit/se3.h"
+#include "twistfit/model.h"
+#include "twistfit/campaign.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ------------------------------------------------------------------ */
+/* Accuracy figures                                                    */
+/* ------------------------------------------------------------------ */
+
+/* Per-measurement errors of a model on a campaign, measured - model:
+ *   pos_err[3 * i + c]: position error of measurement i, tracker frame,
+ *                       metres (y_measured - B F(q) t_k).
+ *   angle_err[i]:       for a 6-D row, the angle of R_meas R_model^T in
+ *                       radians (R_model = R_B R_F, the flange orientation
+ *                       in the tracker frame); NaN for point rows.
+ * Either output may be NULL (not both); both are caller-provided arrays of
+ * campaign->n_meas (x 3) entries. target_offsets: n_targets x 3 metres,
+ * flange frame, or NULL for the model's (then every measured target must
+ * have offset_known, else TWF_ERR_MISSING). Every row is computed, fit and
+ * check alike. Returns TWF_OK, TWF_ERR_INVALID, TWF_ERR_MISSING or
+ * TWF_ERR_NOMEM. */
+twf_status twf_accuracy_residuals(const twf_model *model,
+                                  const twf_pose *base_in_tracker,
+                                  const double *target_offsets,
+                                  const struct twf_campaign *campaign,
+                                  double *pos_err, double *angle_err,
+                                  twf_error *err);
+
+/* Summary statistics of a set of error lengths (metres or radians). */
+typedef struct twf_stats {
+  size_t count;
+  double mean;
+  double rms;       /* sqrt(mean of squares) */
+  double p95;       /* 95th percentile, twf_accuracy_percentile(., 0.95) */
+  double max;
+  size_t max_index; /* where the max is (first of equal maxima): an index
+                       into the values given, or in a summary the
+                       campaign's measurement index */
+} twf_stats;          /* count 0: every figure NaN, max_index SIZE_MAX */
+
+/* Percentile p in [0, 1] of sorted[0..n) (ascending), Hyndman and Fan
+ * (1996) definition 7, numpy's default: with h = (n - 1) p, linear
+ * interpolation between the order statistics x[floor h] and x[floor h + 1]
+ * (0-based). NaN when n = 0 or p is outside [0, 1]. */
+double twf_accuracy_percentile(const double *sorted, size_t n, double p);
+
+/* Statistics of values[0..n) (not modified; n may be 0). TWF_ERR_VALUE for
+ * a NaN, TWF_ERR_NOMEM, TWF_ERR_INVALID for NULL. O(n log n). */
+twf_status twf_accuracy_stats(const double *values, size_t n, twf_stats *out,
+                              twf_error *err);
+
+/* One of the worst poses: the largest position error among its
+ * measurements. */
+typedef struct twf_accuracy_worst {
+  size_t pose;     /* campaign pose index: its id is campaign->pose_ids[pose] */
+  size_t meas;     /* campaign measurement index with that error */
+  double error_m;  /* its length, metres */
+} twf_accuracy_worst;
+
+/* Figures per set, indexed by the set value: [TWF_SET_FIT] and
+ * [TWF_SET_CHECK]. Allocated by twf_accuracy_summarize, released with
+ * twf_accuracy_summary_free. */
+typedef struct twf_accuracy_summary {
+  size_t n_targets;
+  twf_stats position[2];           /* |pos_err| over all targets, metres */
+  twf_stats orientation[2];        /* angle_err over the 6-D rows, radians */
+  twf_stats *target_position;      /* [2 * k + set]: target k only */
+  twf_stats *target_orientation;   /* [2 * k + set] */
+  size_t n_worst[2];               /* at most k_worst */
+  twf_accuracy_worst *worst[2];    /* largest error first (ties: lower pose
+                                      index first) */
+} twf_accuracy_summary;
+
+/* Summarise the residuals of twf_accuracy_residuals (pos_err required,
+ * angle_err may be NULL) for campaign, whose target indices must be below
+ * n_targets: count, mean, RMS, 95th percentile and max of the error
+ * lengths per target and overall, for the fit and check sets separately,
+ * and the k_worst poses of each set. NULL with err filled on failure
+ * (TWF_ERR_INVALID, TWF_ERR_VALUE for a non-finite position error,
+ * TWF_ERR_NOMEM). O(n log n). */
+twf_accuracy_summary *
+twf_accuracy_summarize(const struct twf_campaign *campaign, size_t n_targets,
+                       const double *pos_err, const double *angle_err,
+                       size_t k_worst, twf_error *err);
+void twf_accuracy_summary_free(twf_accuracy_summary *s);
+
+/* ISO 9283:1998 pose accuracy (7.2.1) and pose repeatability (7.2.3) where
+ * a campaign revisits a commanded pose. */
+typedef struct twf_iso9283_options {
+  /* Poses are the same commanded pose when every joint value agrees within
+   * joint_tol (rad or m; default 1e-6), chained joint by joint (single
+   * linkage: see joint_spread). */
+  double joint_tol;
+  /* The same for prismatic joints, m (0, the default: joint_tol). */
+  double joint_tol_prismatic;
+  size_t min_visits; /* visits needed per target, default and minimum 2 */
+  int set;           /* -1 (default): all rows; else TWF_SET_FIT or
+                        TWF_SET_CHECK only */
+} twf_iso9283_options;
+
+twf_iso9283_options twf_iso9283_default_options(void);
+
+/* Figures of one target at one commanded pose, all metres, tracker frame.
+ * With x_j the n attained (measured) positions and x_c the commanded one:
+ *   barycentre  xbar = sum x_j / n
+ *   AP_P        |xbar - x_c|, components ap = xbar - x_c      (7.2.1)
+ *   RP_l        lbar + 3 S_l, l_j = |x_j - xbar|, lbar = mean l_j,
+ *               S_l = sqrt(sum (l_j - lbar)^2 / (n - 1))      (7.2.3) */
+typedef struct twf_iso9283_entry {
+  size_t group;          /* commanded-pose number, 0-based, in order of the
+                            first visit */
+  size_t first_pose;     /* campaign pose index of the first visit */
+  size_t n_poses;        /* visits of this commanded pose */
+  size_t target;         /* model target index */
+  size_t n;              /* attained positions of this target */
+  double commanded[3];   /* model prediction at the mean joint values of
+                            the visits, with the given base and offsets */
+  double barycentre[3];
+  double ap[3];          /* AP_x, AP_y, AP_z */
+  double ap_p;           /* AP_P */
+  double l_mean;         /* lbar */
+  double s_l;            /* S_l */
+  double rp;             /* RP_l */
+  double joint_spread;   /* largest (max - min) of one joint over the
+                            visits, rad or m: above joint_tol only when
+                            single linkage chained nearby poses */
+} twf_iso9283_entry;
+
+typedef struct twf_iso9283 {
+  size_t n_groups;             /* commanded poses with at least one entry */
+  size_t n_entries;
+  twf_iso9283_entry *entries;  /* by group, then target; NULL when none */
+} twf_iso9283;
+
+/* Group the campaign's poses by commanded joint values (sorting joint by
+ * joint, O(n_joints n log n)) and compute the figures for every group and
+ * target with at least min_visits measurements. The commanded position is
+ * the model's prediction with base_in_tracker and target_offsets (NULL:
+ * the model's, which must then be known). options NULL for the defaults.
+ * Returns a result to free with twf_iso9283_free (n_entries 0 when no pose
+ * repeats), or NULL with err filled (TWF_ERR_INVALID, TWF_ERR_MISSING,
+ * TWF_ERR_NOMEM). */
+twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
+                                  const twf_pose *base_in_tracker,
+                                  const double *target_offsets,
+                                  const struct twf_campaign *campaign,
+                                  const twf_iso9283_options *options,
+                                  twf_error *err);
+void twf_iso9283_free(twf_iso9283 *r);
+
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* TWISTFIT_ACCURACY_H */

@@ -1,0 +1,191 @@
+/* twistfit/calib.h: the calibration job.
+ * Part of the public interface of libtwistfit; include <twistfit.h>,
+ * whose opening comment states the rules (units, frames, ownership,
+ * errors) that hold for every declaration here. */
+#ifndef TWISTFIT_CALIB_H
+#define TWISTFIT_CALIB_H
+
+#include "twistfit/common.h"
+#include "twistfit/se3.h"
+#include "twistfit/model.h"
+#include "twistfit/campaign.h"
+#include "twistfit/errmodel.h"
+#include "twistfit/register.h"
+#include "twistfit/accuracy.h"
+#include "twistfit/asbuilt.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ------------------------------------------------------------------ */
+/* Calibration: Levenberg-Marquardt fit of the error model             */
+/* ------------------------------------------------------------------ */
+
+/* Outlier screen after a first fit (calibration-model.md "Outliers"). */
+typedef enum twf_robust {
+  TWF_ROBUST_OFF = 0,  /* every measurement keeps full weight */
+  TWF_ROBUST_DROP,     /* measurements beyond the threshold are dropped (listed) */
+  TWF_ROBUST_HUBER,    /* Huber weights min(1, k/u) */
+  TWF_ROBUST_CAUCHY    /* Cauchy weights 1 / (1 + (u/k)^2) */
+} twf_robust;
+
+/* Why the solver stopped. */
+typedef enum twf_stop {
+  TWF_STOP_NONE = 0,    /* did not run */
+  TWF_STOP_STEP,        /* the scaled step fell below step_tol_m: converged */
+  TWF_STOP_GRADIENT,    /* the scaled gradient vanished: converged */
+  TWF_STOP_COST,        /* no step reduces the cost any more (at rounding level): converged */
+  TWF_STOP_MAXITER,     /* iteration limit reached: not converged */
+  TWF_STOP_DIVERGED,    /* the cost became non-finite or the damping exploded */
+  TWF_STOP_SINGULAR     /* the damped normal system could not be solved */
+} twf_stop;
+
+/* Stable names: "none", "step", "gradient", "cost", "max-iterations",
+ * "diverged", "singular". */
+const char *twf_stop_name(twf_stop s);
+/* 1 for the converged stop reasons. */
+int twf_stop_converged(twf_stop s);
+
+typedef struct twf_solve_report {
+  int iterations;     /* accepted and rejected trial steps */
+  double cost_start;  /* 0.5 sum of squared weighted residuals, before */
+  double cost_end;    /* after */
+  twf_stop stop;
+} twf_solve_report;
+
+typedef struct twf_calib_options {
+  unsigned groups;                        /* TWF_GROUP_BIT mask; default TWF_GROUPS_GEOMETRIC */
+  twf_group priority[TWF_GROUP_COUNT];    /* redundancy walk order of the groups */
+  double sigma_length;  /* m: standard deviation of one coordinate where a row gives none
+                           (0: unknown, estimated a posteriori from the residuals) */
+  double sigma_angle;   /* rad: of one orientation component (0: sigma_length / reach) */
+  twf_robust robust;    /* default TWF_ROBUST_DROP */
+  double robust_threshold; /* in robust standard deviations of the error length (default 5) */
+  double check_fraction;   /* fraction of poses held out at random as check data (default 0) */
+  unsigned long long seed; /* for the held-out fraction and the synthetic pose set */
+  int max_iterations;      /* LM trial steps per fit (default 100) */
+  double step_tol_m;       /* converged when every scaled step is below this (default 1e-10 m) */
+  double redundancy_tol;   /* relative independent part to keep a column (default 1e-6) */
+  size_t synthetic_poses;  /* poses of the rich set for structural redundancy (0: automatic) */
+  double weak_ratio;       /* weak when the scaled predicted std exceeds weak_ratio * sigma (default 5) */
+  int accept_large;        /* 0 (default): refuse results beyond any calibration (noise over
+                              1 mm, a joint line over 5 deg or 50 mm from the model's) */
+} twf_calib_options;
+
+/* Where the sigma of the covariance came from. */
+typedef enum twf_sigma_source {
+  TWF_SIGMA_GIVEN = 0,     /* the caller's sigma_length */
+  TWF_SIGMA_FROM_ROWS,     /* the rows' own sigmas (their mean where a row gives none) */
+  TWF_SIGMA_ESTIMATED      /* estimated a posteriori from the fit residuals */
+} twf_sigma_source;
+
+twf_calib_options twf_calib_default_options(void);
+
+typedef enum twf_param_status {
+  TWF_PARAM_KEPT = 0,        /* estimated */
+  TWF_PARAM_FIXED_STRUCTURAL,/* redundant for any pose set of this arm and measurement kind */
+  TWF_PARAM_FIXED_DATA       /* exactly dependent on the given poses (e.g. a joint never moved) */
+} twf_param_status;
+
+#define TWF_EXPLAIN_MAX 3
+typedef struct twf_param_result {
+  twf_param param;
+  twf_param_status status;
+  double value;    /* total change from the starting model, SI (m, rad, ratio) */
+  double std;      /* predicted standard deviation, SI; NAN when fixed */
+  int weak;        /* 1: poorly determined by these poses (see warnings) */
+  /* For a fixed parameter: the kept parameters whose columns explain it,
+   * largest scaled least-squares coefficient first. */
+  size_t n_explain;
+  size_t explain[TWF_EXPLAIN_MAX];
+  double explain_coef[TWF_EXPLAIN_MAX];
+} twf_param_result;
+
+typedef struct twf_correlation {
+  size_t a, b;  /* parameter indices */
+  double rho;   /* correlation coefficient */
+} twf_correlation;
+
+typedef struct twf_outlier {
+  size_t meas;      /* measurement index in the campaign */
+  double error_m;   /* position error length at the first fit, m */
+  double score;     /* error length in robust standard deviations */
+  double weight;    /* final weight: 0 dropped, below 1 down-weighted */
+} twf_outlier;
+
+#define TWF_CORRELATIONS_MAX 8
+
+typedef struct twf_calib_result {
+  twf_model *asbuilt;         /* owned: the calibrated model (datum frame, see DEVELOPERS.md) */
+  twf_pose base_in_tracker;   /* fitted base pose in the tracker frame */
+  twf_pose base_before;       /* registered base pose of the starting model */
+  twf_model *registered;      /* owned: the starting model with registered target offsets */
+  size_t n_params;
+  twf_param_result *params;
+  size_t n_kept, n_fixed_structural, n_fixed_data, n_weak;
+  size_t structural_count;    /* independent parameters of the rich synthetic set */
+  double condition_number;    /* of the scaled, weighted Jacobian of the kept columns */
+  double observability[4];    /* O1 (Borm-Menq), O2 (inverse condition), O3 (min singular value),
+                                 O4 (noise amplification), Sun and Hollerbach 2008 */
+  size_t n_correlations;
+  twf_correlation correlations[TWF_CORRELATIONS_MAX];
+  size_t n_outliers;
+  twf_outlier *outliers;
+  size_t n_meas;
+  twf_meas_set *meas_set;     /* effective set of each measurement (held-out fraction applied) */
+  double *residual_before;    /* n_meas x 3, measured - model, m, tracker frame */
+  double *residual_after;
+  double *rot_before;         /* n_meas orientation error angles, rad (NAN for point rows) */
+  double *rot_after;
+  twf_solve_report registration;  /* refinement of base and targets on the starting model */
+  twf_solve_report solve;         /* the calibration fit (last robust round) */
+  int robust_rounds;
+  double sigma_length;        /* sigma used for the covariance, m */
+  twf_sigma_source sigma_source;
+  size_t n_fit_meas, n_check_meas, n_fit_poses;
+  double *joint_range;        /* n_joints: range of each joint over the fit poses, SI */
+  unsigned char *target_in_fit; /* n_targets: 1 for a target with fit-set rows (only those are
+                                   determined) */
+  twf_asbuilt_comparison comparison; /* as-built lines against the starting model's */
+} twf_calib_result;
+
+void twf_calib_result_free(twf_calib_result *r);
+
+/* Calibrate: register start to the campaign (base pose and the offsets of
+ * targets declared without one), refine, then fit the chosen groups by
+ * Levenberg-Marquardt with redundant parameters fixed, screen outliers,
+ * and return everything a report shows. start is not modified. On failure
+ * returns the status with err filled and *out NULL. */
+twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
+                         const twf_calib_options *opt, twf_calib_result **out,
+                         twf_warnings *warnings, twf_error *err);
+
+/* Options of twf_refine_base: take twf_refine_default_options(). */
+typedef struct twf_refine_options {
+  double sigma_length;      /* m, where rows give none (0: 0.1 mm; only weights matter) */
+  int screen;               /* 1 (default): drop gross errors as the calibration does */
+  double robust_threshold;  /* in robust standard deviations (default 5) */
+} twf_refine_options;
+
+twf_refine_options twf_refine_default_options(void);
+
+/* Least-squares refinement of the base pose and of the offsets of the
+ * targets flagged in fit_target (n_targets flags, NULL: none) for a fixed
+ * model, on the fit set, after the closed-form registration. m's target
+ * offsets are updated in place. With screening, fit rows beyond the robust
+ * threshold (1.4826 MAD of the residual components) are left out and the
+ * refinement repeated; excluded (n_meas flags, may be NULL) receives 1 for
+ * each. Offset components the poses cannot separate from the base are
+ * fixed at their start. */
+twf_status twf_refine_base(twf_model *m, const twf_campaign *c,
+                           const unsigned char *fit_target, const twf_refine_options *opt,
+                           twf_pose *base_in_tracker, twf_solve_report *report,
+                           unsigned char *excluded, twf_error *err);
+
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* TWISTFIT_CALIB_H */

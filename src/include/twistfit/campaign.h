@@ -1,0 +1,141 @@
+/* twistfit/campaign.h: measurement campaigns.
+ * Part of the public interface of libtwistfit; include <twistfit.h>,
+ * whose opening comment states the rules (units, frames, ownership,
+ * errors) that hold for every declaration here. */
+#ifndef TWISTFIT_CAMPAIGN_H
+#define TWISTFIT_CAMPAIGN_H
+
+#include "twistfit/common.h"
+#include "twistfit/se3.h"
+#include "twistfit/model.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ------------------------------------------------------------------ */
+/* Measurement campaigns (CSV, see twistfit-data(5))                   */
+/* ------------------------------------------------------------------ */
+
+/* Which use a measurement is for: fitting the model, or the held-out check
+ * set that the solver never sees (its accuracy is reported separately). */
+typedef enum twf_meas_set {
+  TWF_SET_FIT = 0,
+  TWF_SET_CHECK = 1
+} twf_meas_set;
+
+/* One measured target at one pose. */
+typedef struct twf_measurement {
+  size_t pose;         /* index into the campaign's poses */
+  size_t target;       /* index of the target in the model's targets */
+  double pos[3];       /* measured target position, metres, tracker frame */
+  /* 1 for a 6-D row: quat is the orientation of the flange frame in the
+   * tracker frame (the rotation part of the flange pose in the tracker). */
+  int has_orientation;
+  double quat[4];      /* unit quaternion w x y z; (1 0 0 0) when absent */
+  double sigma;        /* standard deviation of each coordinate, metres;
+                          0 = not given (the caller picks a default) */
+  twf_meas_set set;
+  long line;           /* source line (in the points file for the two-file
+                          form), 0 when not read from a file */
+} twf_measurement;
+
+/* A campaign: the poses the arm was driven to, with the joint values the
+ * controller logged, and the measurements taken there. Poses keep the order
+ * of their first appearance in the file (the joints file for the two-file
+ * form); measurements keep the order of the rows. */
+typedef struct twf_campaign {
+  size_t n_joints;                /* = the model's n_joints, in model order */
+  size_t n_poses;
+  char (*pose_ids)[TWF_NAME_MAX]; /* n_poses ids, NUL-terminated, unique */
+  double *q;          /* n_poses x n_joints logged joint values, SI (rad for
+                         revolute, m for prismatic), row-major q[p*n_joints+j] */
+  long *pose_lines;   /* n_poses source lines (first row of the pose; in the
+                         joints file for the two-file form), 0 if none */
+  size_t n_meas;
+  twf_measurement *meas;
+  int has_orientation_any; /* some measurement has has_orientation */
+} twf_campaign;
+
+/* How to read a campaign; get the defaults from
+ * twf_campaign_default_options() and change fields. */
+typedef struct twf_campaign_options {
+  /* 1: read lengths (angles) in length_unit (angle_unit) whatever the file
+   * declares (a differing declaration gives a warning); 0: use the file's
+   * "# units:" line, else millimetres (degrees). */
+  int length_from_caller;
+  int angle_from_caller;
+  twf_length_unit length_unit; /* default TWF_LENGTH_MM */
+  twf_angle_unit angle_unit;   /* default TWF_ANGLE_DEG */
+  /* 0: joint values outside the model's limits give one warning per joint;
+   * 1: they are an error (TWF_ERR_LIMIT) at the first such value. */
+  int limits_are_errors;
+  /* Slack on the limits, SI of the joint (rad or m); default 1e-9. */
+  double limit_tolerance;
+} twf_campaign_options;
+
+twf_campaign_options twf_campaign_default_options(void);
+
+/* A zero-filled campaign with room for n_poses poses and n_meas
+ * measurements (n_poses and n_meas set; quaternions (1 0 0 0); set fit),
+ * for simulators and tests. NULL when out of memory. */
+twf_campaign *twf_campaign_alloc(size_t n_joints, size_t n_poses,
+                                 size_t n_meas);
+void twf_campaign_free(twf_campaign *c);
+
+/* Read the one-file form: one row per measurement with pose id, target,
+ * one column per joint of m, x y z, optional qw qx qy qz, sigma, set.
+ * m (borrowed for the call) gives the joint names, types and limits and
+ * the target names. opt may be NULL for the defaults; w may be NULL.
+ * Returns the campaign (caller frees) or NULL with err filled: file, line,
+ * column (1-based field, its name in the message) and a hint. Statuses:
+ * TWF_ERR_IO (cannot read), TWF_ERR_SYNTAX (quoting, field count, units
+ * line), TWF_ERR_MISSING (empty file, no data, missing column or field),
+ * TWF_ERR_UNKNOWN (column or target), TWF_ERR_DUPLICATE (column, pose and
+ * target), TWF_ERR_VALUE (number, quaternion, sigma, set, a pose repeated
+ * with other joint values), TWF_ERR_UNITS, TWF_ERR_LIMIT (only with
+ * limits_are_errors), TWF_ERR_INVALID (arguments), TWF_ERR_NOMEM. */
+twf_campaign *twf_campaign_read(const char *path, const twf_model *m,
+                                const twf_campaign_options *opt,
+                                twf_warnings *w, twf_error *err);
+
+/* Read the two-file form: joints_path holds pose id, one column per joint
+ * and optionally set (per pose); points_path holds pose id, target, x y z,
+ * optional quaternion, sigma and set (per measurement, it takes precedence
+ * over the pose's). Joined on pose id: points whose pose the joints file
+ * lacks, and poses without points, are errors (TWF_ERR_MISSING) that list
+ * the ids. Otherwise as twf_campaign_read; each file may declare its own
+ * units. */
+twf_campaign *twf_campaign_read_pair(const char *joints_path,
+                                     const char *points_path,
+                                     const twf_model *m,
+                                     const twf_campaign_options *opt,
+                                     twf_warnings *w, twf_error *err);
+
+/* Read a joints file alone (the first file of the two-file form: pose id,
+ * one column per joint, optional set): a campaign of poses without
+ * measurements (n_meas = 0, meas may be NULL), e.g. to evaluate forward
+ * kinematics at logged poses. Units, limits, errors and warnings as for
+ * twf_campaign_read_pair. */
+twf_campaign *twf_campaign_read_joints(const char *joints_path,
+                                       const twf_model *m,
+                                       const twf_campaign_options *opt,
+                                       twf_warnings *w, twf_error *err);
+
+/* Write c in the one-file form, in the given units (declared in a
+ * "# units:" line), numbers with 17 significant digits so that reading
+ * back gives the same values to rounding. Rows are grouped by pose in pose
+ * order (measurement order kept within a pose), so the poses read back in
+ * the same order. Every pose needs at least one measurement and indices
+ * must be in range (else TWF_ERR_INVALID); TWF_ERR_IO on a write error. */
+twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
+                              twf_length_unit length_unit,
+                              twf_angle_unit angle_unit, FILE *out,
+                              twf_error *err);
+
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* TWISTFIT_CAMPAIGN_H */

@@ -1,0 +1,91 @@
+/* twistfit/io.h: model files and base pose files.
+ * Part of the public interface of libtwistfit; include <twistfit.h>,
+ * whose opening comment states the rules (units, frames, ownership,
+ * errors) that hold for every declaration here. */
+#ifndef TWISTFIT_IO_H
+#define TWISTFIT_IO_H
+
+#include "twistfit/common.h"
+#include "twistfit/se3.h"
+#include "twistfit/model.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ------------------------------------------------------------------ */
+/* Model files (INI, see twistfit-model(5))                            */
+/* ------------------------------------------------------------------ */
+
+/* Read a model file. On failure returns NULL and fills err with the file,
+ * line and what to do. Recoverable oddities (an axis normalised within
+ * 1e-3 of unit length, ...) go to warnings. */
+twf_model *twf_model_read(const char *path, twf_warnings *warnings,
+                          twf_error *err);
+/* Write m in axis-and-point form with full precision (17 significant
+ * digits) in m's declared units, metadata included. */
+twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err);
+
+
+/* ------------------------------------------------------------------ */
+/* Model files: limits and return codes (modelfile.c)                  */
+/* ------------------------------------------------------------------ */
+
+/* Longest line of a model file, in bytes, not counting the line end: one
+ * less than what libinih's 200-byte line buffer holds with its newline and
+ * NUL. The reader refuses longer lines (inih would split them silently);
+ * the writer never writes one.
+ *
+ * twf_model_read (declared above) returns NULL with err->status:
+ *   TWF_ERR_IO         the file cannot be opened or read (line 0);
+ *   TWF_ERR_SYNTAX     a malformed line, section header or name, a line
+ *                      longer than TWF_MODEL_LINE_MAX, joints in different
+ *                      forms, [home] in a DH file or [flange] in an
+ *                      axis-and-point file;
+ *   TWF_ERR_UNKNOWN    an unknown section, key or joint type;
+ *   TWF_ERR_DUPLICATE  a key, section, joint or target name given twice,
+ *                      two rotation forms or two joint geometries;
+ *   TWF_ERR_MISSING    no [robot], no joint, no [home], a missing type,
+ *                      axis, point, position or rotation, an empty file;
+ *   TWF_ERR_VALUE      a value that is not a finite number, a wrong count,
+ *                      a zero or non-unit axis (beyond 1e-3), min > max,
+ *                      a zero scale, a rotation not orthonormal to 1e-6 or
+ *                      a reflection, a quaternion norm beyond 1e-6 of 1;
+ *   TWF_ERR_UNITS      an unknown length_unit or angle_unit;
+ *   TWF_ERR_NOMEM      out of memory.
+ * err->line is the 1-based line concerned (the section header for a
+ * missing key, 0 for what concerns the whole file), err->column the
+ * 1-based field of a bad number, else 0. warnings (NULL: discard) receive
+ * axes normalised from within 1e-3 of unit length.
+ *
+ * twf_model_write (declared above) returns TWF_OK, TWF_ERR_INVALID when m
+ * cannot be written faithfully (a non-finite value, an invalid or repeated
+ * name, a revolute twist with screw pitch, a home rotation that is not
+ * one, a metadata line longer than TWF_MODEL_LINE_MAX), TWF_ERR_IO when
+ * the stream fails, TWF_ERR_NOMEM. Nothing is written unless m passed the
+ * checks. Metadata values are put on one line: control characters (line
+ * ends included) become spaces, blanks before ';' are dropped so that the
+ * reader does not take the rest for a comment, and the ends are trimmed. */
+#define TWF_MODEL_LINE_MAX 198
+
+
+/* ------------------------------------------------------------------ */
+/* Base pose files (see twistfit-model(5), "BASE POSE FILES")          */
+/* ------------------------------------------------------------------ */
+
+/* Read a base pose file: the robot base frame in the tracker frame, one
+ * [base] section with length_unit, position and quaternion_wxyz. NULL
+ * rules and errors as twf_model_read (file, line and a hint). */
+twf_status twf_base_read(const char *path, twf_pose *base_in_tracker,
+                         twf_error *err);
+/* Write base_in_tracker in that form with 17 significant digits, position
+ * in length unit u; comment (may be NULL) becomes a leading ';' line. */
+twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,
+                          const char *comment, FILE *out, twf_error *err);
+
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* TWISTFIT_IO_H */

@@ -1,0 +1,132 @@
+/* twistfit/model.h: the kinematic model, forward kinematics, DH tables.
+ * Part of the public interface of libtwistfit; include <twistfit.h>,
+ * whose opening comment states the rules (units, frames, ownership,
+ * errors) that hold for every declaration here. */
+#ifndef TWISTFIT_MODEL_H
+#define TWISTFIT_MODEL_H
+
+#include "twistfit/common.h"
+#include "twistfit/se3.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ------------------------------------------------------------------ */
+/* The kinematic model                                                 */
+/* ------------------------------------------------------------------ */
+
+#define TWF_NAME_MAX 64
+
+typedef enum twf_joint_type {
+  TWF_JOINT_REVOLUTE = 0,
+  TWF_JOINT_PRISMATIC = 1
+} twf_joint_type;
+
+typedef struct twf_joint {
+  char name[TWF_NAME_MAX];
+  twf_joint_type type;
+  /* Screw axis in the base frame at all-zero joint values, S = (w, v):
+   * revolute |w| = 1 and v = -w x point; prismatic w = 0, |v| = 1. */
+  double twist[6];
+  /* Reference point on the axis line, metres, base frame: the point closest
+   * to the nominal joint frame origin (for a DH input, that frame's origin).
+   * Fixes the naming of axis errors (tilts about lines through it). For a
+   * prismatic joint any point of reference (not used by the kinematics). */
+  double point[3];
+  /* Joint model: theta = scale * q + offset, q the value the controller
+   * logs (rad or m), theta the value the exponential uses. Nominal: 1, 0. */
+  double scale;
+  double offset;
+  /* Travel limits on the logged value q (rad or m); valid when has_limits. */
+  int has_limits;
+  double limit_lo, limit_hi;
+} twf_joint;
+
+typedef struct twf_target {
+  char name[TWF_NAME_MAX];
+  double offset[3];  /* metres, flange frame; meaningful when offset_known */
+  int offset_known;  /* 0: declared without an offset (unknown, to be fitted) */
+} twf_target;
+
+/* Free-form key/value metadata carried by a model file (as-built models
+ * record date, version, command line, input digests, accuracy). */
+typedef struct twf_meta_entry {
+  char key[TWF_NAME_MAX];
+  char *value; /* owned by the model */
+} twf_meta_entry;
+
+typedef struct twf_model {
+  char name[128];
+  twf_length_unit length_unit; /* declared units: used by files and reports */
+  twf_angle_unit angle_unit;
+  size_t n_joints;
+  twf_joint *joints;
+  twf_pose home;       /* flange pose in the base frame at theta = 0 */
+  size_t n_targets;
+  twf_target *targets;
+  size_t n_meta;
+  twf_meta_entry *meta;
+} twf_model;
+
+/* A model with n_joints joints and n_targets targets, all zero-filled except
+ * scale = 1 per joint and home = identity. NULL when out of memory. */
+twf_model *twf_model_alloc(size_t n_joints, size_t n_targets);
+void twf_model_free(twf_model *m);
+/* Deep copy; NULL when out of memory. */
+twf_model *twf_model_copy(const twf_model *m);
+/* Set (replace) a metadata value; copies value. */
+twf_status twf_model_meta_set(twf_model *m, const char *key, const char *value);
+/* The metadata value, or NULL. */
+const char *twf_model_meta_get(const twf_model *m, const char *key);
+/* Index of the joint or target named name, or -1. */
+long twf_model_joint_index(const twf_model *m, const char *name);
+long twf_model_target_index(const twf_model *m, const char *name);
+/* Characteristic length of the arm in metres (largest distance of a joint
+ * reference point or the home flange from the base origin, at least 0.1 m):
+ * scales angular columns into length units. */
+double twf_model_reach(const twf_model *m);
+
+/* Forward kinematics at logged joint values q[n_joints] (rad or m).
+ * prefix (may be NULL) receives n_joints + 1 poses: prefix[0] = I and
+ * prefix[i] = exp(S_1 theta_1) ... exp(S_i theta_i). flange receives
+ * prefix[n] * home, the flange pose in the base frame. O(n). */
+void twf_model_fk(const twf_model *m, const double *q, twf_pose *prefix,
+                  twf_pose *flange);
+
+/* Spatial Jacobian with respect to the logged joint values, from the
+ * prefixes of twf_model_fk: column i = scale_i Ad_{prefix[i]} S_i, so that
+ * dT T^-1 = sum_i J_i dq_i. J is 6 x n_joints, row-major (J[r*n + i]). */
+void twf_model_jacobian_spatial(const twf_model *m, const twf_pose *prefix,
+                                double *J);
+
+/* A Denavit-Hartenberg row, SI units. Standard (distal) DH:
+ *   A_i = Rz(theta_i + q_i) Tz(d_i) Tx(a_i) Rx(alpha_i), joint axis z_(i-1);
+ * modified (proximal, Craig) DH, where a and alpha are a_(i-1), alpha_(i-1):
+ *   A_i = Rx(alpha_i) Tx(a_i) Rz(theta_i + q_i) Tz(d_i), joint axis z_i.
+ * For a prismatic joint q adds to d instead of theta. */
+typedef struct twf_dh_row {
+  double a, alpha, d, theta;
+  twf_joint_type type;
+} twf_dh_row;
+
+typedef enum twf_dh_convention {
+  TWF_DH_STANDARD = 0,
+  TWF_DH_MODIFIED = 1
+} twf_dh_convention;
+
+/* Convert a DH table into the joints and home pose of m (m->n_joints must
+ * equal n). flange_in_last (may be NULL for identity) is the flange pose in
+ * the last DH frame. Names and limits of m's joints are left unchanged;
+ * scale and offset are reset to 1 and 0. */
+twf_status twf_model_set_from_dh(twf_model *m, const twf_dh_row *rows,
+                                 size_t n, twf_dh_convention conv,
+                                 const twf_pose *flange_in_last,
+                                 twf_error *err);
+
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* TWISTFIT_MODEL_H */

@@ -97,8 +97,14 @@ void cli_csv_end_row(cli_csv *c);
 /* Parse a length or angle unit option value, printing a usage error. */
 int cli_parse_length_unit(const char *command, const char *value, twf_length_unit *u);
 int cli_parse_angle_unit(const char *command, const char *value, twf_angle_unit *u);
-/* Parse a strictly finite double. Returns 0 on success. */
+/* Parse a strictly finite double; a number too small for a normal double
+ * (one that would read as 0 or lose precision) is refused like one too
+ * large. Returns 0 on success. */
 int cli_parse_double(const char *text, double *out);
+/* A number from lo to hi in the given unit (unit_name for the message),
+ * to SI; lo_si and hi_si are the bounds in SI. Prints a usage error. */
+int cli_parse_bounded(const char *command, const char *option, const char *arg, double unit_si,
+                      const char *unit_name, double lo_si, double hi_si, double *out);
 
 /* The safety cautions every report that proposes parameters prints. */
 extern const char cli_safety_text[];

@@ -600,10 +600,14 @@ static int run_calibrate(int argc, char **argv)
   if ((status = cli_inputs_load(&in, "calibrate", argc, argv, optind)) != 0)
     goto done;
   cli_units_of(&u, in.model);
-  if (sigma_text != NULL && (status = cli_parse_tolerance("calibrate", "--sigma", sigma_text, u.length_si, &co.sigma_length)) != 0)
+  /* bounded: a sigma far outside what an instrument can have (1e-300)
+   * would reach the solver as infinite weights */
+  if (sigma_text != NULL &&
+      (status = cli_parse_bounded("calibrate", "--sigma", sigma_text, u.length_si, u.length, 1e-9, 1.0, &co.sigma_length)) != 0)
     goto done;
   if (sigma_angle_text != NULL &&
-      (status = cli_parse_tolerance("calibrate", "--sigma-angle", sigma_angle_text, u.angle_si, &co.sigma_angle)) != 0)
+      (status = cli_parse_bounded("calibrate", "--sigma-angle", sigma_angle_text, u.angle_si, u.angle, 1e-9, 1.0,
+                                  &co.sigma_angle)) != 0)
     goto done;
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;

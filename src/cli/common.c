@@ -5,6 +5,7 @@
 #include "cli.h"
 
 #include <errno.h>
+#include <float.h>
 #include <getopt.h>
 #include <math.h>
 #include <stdarg.h>
@@ -321,6 +322,25 @@ int cli_parse_angle_unit(const char *command, const char *value, twf_angle_unit 
   return TWF_EXIT_OK;
 }
 
+/* Whether the digits of a number (before its exponent) are not all zero. */
+static int mantissa_nonzero(const char *p)
+{
+  int hex = 0;
+  while (*p == ' ' || *p == '\t' || *p == '+' || *p == '-')
+    p++;
+  if (p[0] == '0' && (p[1] == 'x' || p[1] == 'X')) {
+    hex = 1;
+    p += 2;
+  }
+  for (; *p != '\0'; p++) {
+    if (hex ? (*p == 'p' || *p == 'P') : (*p == 'e' || *p == 'E'))
+      break;
+    if (*p != '0' && *p != '.')
+      return 1;
+  }
+  return 0;
+}
+
 int cli_parse_double(const char *text, double *out)
 {
   char *end;
@@ -329,10 +349,28 @@ int cli_parse_double(const char *text, double *out)
     return -1;
   errno = 0;
   v = strtod(text, &end);
-  if (*end != '\0' || errno == ERANGE || !isfinite(v))
+  if (end == text || *end != '\0' || errno == ERANGE || !isfinite(v))
+    return -1;
+  /* C leaves ERANGE on underflow to the library: refuse a number below
+   * the normal range here, and a 0 read from digits that are not zero */
+  if ((v != 0 && fabs(v) < DBL_MIN) || (v == 0 && mantissa_nonzero(text)))
     return -1;
   *out = v;
   return 0;
+}
+
+int cli_parse_bounded(const char *command, const char *option, const char *arg, double unit_si,
+                      const char *unit_name, double lo_si, double hi_si, double *out)
+{
+  double v;
+  /* a relative slack of 1e-9 keeps the bounds themselves, written in
+   * another unit, inside */
+  if (cli_parse_double(arg, &v) != 0 || !(v * unit_si >= lo_si * (1 - 1e-9)) ||
+      !(v * unit_si <= hi_si * (1 + 1e-9)))
+    return cli_usage_error(command, "%s takes a number from %g to %g (%s), not '%s'", option,
+                           lo_si / unit_si, hi_si / unit_si, unit_name, arg);
+  *out = v * unit_si;
+  return TWF_EXIT_OK;
 }
 
 int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs)

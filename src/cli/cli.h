@@ -84,6 +84,14 @@ typedef struct cli_put {
 } cli_put;
 int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs);
 
+/* Record the command line and the start time (call first in main). */
+void cli_run_start(int argc, char **argv);
+/* The run id written into every output of a set: 16 hex digits of a
+ * SHA-256 over the command line, the start time, the process id and the
+ * identity (device, inode, size, modification time) of the inputs, so
+ * that outputs of two runs mixed in one folder can be told apart. Set by
+ * cli_write_outputs before the contents are written. */
+const char *cli_run_id(void);
 /* CSV writing (libcsv quotes text fields; numbers are written plainly). */
 typedef struct cli_csv {
   FILE *fp;

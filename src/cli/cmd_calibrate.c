@@ -445,7 +445,8 @@ static int put_model(FILE *fp, void *ctx, twf_error *err)
 {
   fprintf(fp, "; As-built model written by twistfit calibrate. A changed model moves the real\n"
               "; arm differently: keep the previous parameters, verify at reduced speed with\n"
-              "; the cell's safety functions active, and validate on held-out poses first.\n");
+              "; the cell's safety functions active, and validate on held-out poses first.\n"
+              "; run_id: %s\n", cli_run_id());
   return twf_model_write((const twf_model *)ctx, fp, err) == TWF_OK ? 0 : -1;
 }
 
@@ -454,6 +455,7 @@ typedef struct base_file_ctx { const twf_pose *B; twf_length_unit lu; } base_fil
 static int put_base(FILE *fp, void *ctx, twf_error *err)
 {
   const base_file_ctx *b = ctx;
+  fprintf(fp, "; run_id: %s\n", cli_run_id());
   return twf_base_write(b->B, b->lu, "base pose fitted by twistfit calibrate", fp, err) == TWF_OK ? 0 : -1;
 }
 

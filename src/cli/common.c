@@ -8,10 +8,13 @@
 #include <float.h>
 #include <getopt.h>
 #include <math.h>
+#include <sha2.h>
 #include <stdarg.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 int cli_exit_status(twf_status st)
@@ -212,6 +215,70 @@ int cli_outputs_check(const char *const *outputs, size_t n, int force, const cha
   return TWF_EXIT_OK;
 }
 
+/* ------------------------------------------------------------ run id */
+
+static struct {
+  int argc;
+  char **argv;
+  struct timespec start;
+  int started, have_id;
+  char id[17];
+} run;
+
+void cli_run_start(int argc, char **argv)
+{
+  run.argc = argc;
+  run.argv = argv;
+  clock_gettime(CLOCK_REALTIME, &run.start);
+  run.started = 1;
+}
+
+static void run_id_compute(const char *const *inputs)
+{
+  SHA2_CTX ctx;
+  uint8_t d[SHA256_DIGEST_LENGTH];
+  long long word[6];
+  int k;
+  if (run.have_id)
+    return;
+  if (!run.started)
+    clock_gettime(CLOCK_REALTIME, &run.start);
+  SHA256Init(&ctx);
+  for (k = 0; k < run.argc; k++)
+    SHA256Update(&ctx, (const uint8_t *)run.argv[k], strlen(run.argv[k]) + 1);
+  /* the time and the process tell apart two runs of one command line,
+   * even when started in the same second */
+  word[0] = (long long)run.start.tv_sec;
+  word[1] = (long long)run.start.tv_nsec;
+  word[2] = (long long)getpid();
+  SHA256Update(&ctx, (const uint8_t *)word, 3 * sizeof word[0]);
+  /* the inputs as found on disk (identity and version, without reading
+   * them again) */
+  for (; inputs != NULL && *inputs != NULL; inputs++) {
+    struct stat st;
+    SHA256Update(&ctx, (const uint8_t *)*inputs, strlen(*inputs) + 1);
+    if (stat(*inputs, &st) == 0) {
+      word[0] = (long long)st.st_dev;
+      word[1] = (long long)st.st_ino;
+      word[2] = (long long)st.st_size;
+      word[3] = (long long)st.st_mtim.tv_sec;
+      word[4] = (long long)st.st_mtim.tv_nsec;
+      word[5] = (long long)st.st_ctim.tv_nsec;
+      SHA256Update(&ctx, (const uint8_t *)word, sizeof word);
+    }
+  }
+  SHA256Final(d, &ctx);
+  for (k = 0; k < 8; k++)
+    snprintf(run.id + 2 * k, 3, "%02x", d[k]);
+  run.have_id = 1;
+}
+
+const char *cli_run_id(void)
+{
+  run_id_compute(NULL);
+  return run.id;
+}
+
 int cli_output_open(cli_output *out, const char *path, int force,
                     const char *const *inputs, twf_error *err)
 {
@@ -382,6 +449,7 @@ int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *cons
   twf_error_clear(&err);
   if (n > sizeof outs / sizeof outs[0])
     return TWF_EXIT_INTERNAL;
+  run_id_compute(inputs);
   /* every temporary file first, then every content, then the renames: a
    * failure anywhere leaves no output behind */
   for (i = 0; i < n; i++) {

@@ -52,6 +52,7 @@ int main(int argc, char **argv)
   int i = 1;
   const cli_command *cmd;
 
+  cli_run_start(argc, argv);
   gsl_set_error_handler_off();
   for (; i < argc && argv[i][0] == '-'; i++) {
     const char *a = argv[i];

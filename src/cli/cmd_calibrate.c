@@ -617,13 +617,14 @@ static int run_calibrate(int argc, char **argv)
    * then writes nothing */
   {
     const char *outs[4] = { model_out, base_out, json_path, residuals_path };
+    static const char *const names[4] = { "--output", "--base-output", "--json", "--residuals" };
     size_t k;
     for (k = 0; k < 4; k++)
       if (k != 2 && outs[k] != NULL && strcmp(outs[k], "-") == 0) {
         status = cli_usage_error("calibrate", "only --json may go to standard output ('-'); give file names for the others");
         goto done;
       }
-    if ((status = cli_outputs_check(outs, 4, force, in.paths)) != 0)
+    if ((status = cli_outputs_check("calibrate", outs, names, 4, force, in.paths)) != 0)
       goto done;
   }
 

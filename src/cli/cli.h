@@ -48,41 +48,48 @@ int cli_bad_option(const char *command, int opt, char **argv);
 /* Print collected warnings to stderr (unless quiet). */
 void cli_print_warnings(const twf_warnings *w);
 
-/* Output files are written atomically: a temporary file beside the target,
- * renamed over it only on success, so that a failed run never creates or
- * truncates the output. An existing file is replaced only with force. */
-typedef struct cli_output {
-  FILE *fp;
-  char *path;     /* final path, NULL for stdout */
-  char *tmp_path; /* temporary path */
-} cli_output;
+/* The outputs of a run form one set: every output is staged as a
+ * temporary file beside its target, all contents are written and synced,
+ * and only then are all committed; a failure (or a terminating signal)
+ * after the first commit undoes the commits made, so that the set appears
+ * whole or not at all. Without force a commit never replaces a file, even
+ * one created while the run was working. */
 
 /* Check before any work that path ("-" or NULL: stdout) can be written:
- * not an input, not existing unless force, its folder writable. */
+ * not empty, not an input, not existing (a dangling link counts) unless
+ * force, its folder writable. */
 int cli_output_check(const char *path, int force, const char *const *inputs, twf_error *err);
 /* The same for n outputs (NULL entries skipped), also refusing two outputs
- * of one name; prints the error and returns an exit status. */
-int cli_outputs_check(const char *const *outputs, size_t n, int force, const char *const *inputs);
-/* Open path for writing ("-" or NULL: stdout). inputs (NULL-terminated) are
- * the run's input files: writing over one is refused. */
-int cli_output_open(cli_output *out, const char *path, int force,
-                    const char *const *inputs, twf_error *err);
-/* Flush, close and rename into place. Returns TWF_EXIT_OK or an exit status
- * after printing the error. */
-int cli_output_commit(cli_output *out);
-/* Remove the temporary file (after a failure). */
-void cli_output_abort(cli_output *out);
+ * of one name; options[k] names the option of outputs[k] for the message
+ * on an empty name (a usage error of command). Prints the error and
+ * returns an exit status. */
+int cli_outputs_check(const char *command, const char *const *outputs, const char *const *options,
+                      size_t n, int force, const char *const *inputs);
 
-/* Several outputs of one run, written together: all temporary files are
- * opened, all contents written, and only then all renamed into place; any
- * failure removes every temporary file. put returns 0 on success (and may
- * fill err). */
+/* One output of the set: put writes the content and returns 0 on success
+ * (and may fill err). */
 typedef struct cli_put {
   const char *path;  /* NULL: skipped; "-": standard output */
   int (*put)(FILE *fp, void *ctx, twf_error *err);
   void *ctx;
 } cli_put;
+/* Write the set (at most 8 outputs); standard output is flushed and
+ * checked first, so that a lost text report also writes nothing. Prints
+ * the error and returns an exit status. */
 int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs);
+
+/* Record the command line and the start time (call first in main). */
+void cli_run_start(int argc, char **argv);
+/* The run id written into every output of a set: 16 hex digits of a
+ * SHA-256 over the command line, the start time, the process id and the
+ * identity (device, inode, size, modification time) of the inputs, so
+ * that outputs of two runs mixed in one folder can be told apart. Set by
+ * cli_write_outputs before the contents are written. */
+const char *cli_run_id(void);
+/* Flush and close standard output at the end of main; on a write error
+ * print the reason (once) and turn a success or a rejection into
+ * TWF_EXIT_IO. Returns the final exit status. */
+int cli_finish_stdout(int status);
 
 /* CSV writing (libcsv quotes text fields; numbers are written plainly). */
 typedef struct cli_csv {
@@ -97,8 +104,14 @@ void cli_csv_end_row(cli_csv *c);
 /* Parse a length or angle unit option value, printing a usage error. */
 int cli_parse_length_unit(const char *command, const char *value, twf_length_unit *u);
 int cli_parse_angle_unit(const char *command, const char *value, twf_angle_unit *u);
-/* Parse a strictly finite double. Returns 0 on success. */
+/* Parse a strictly finite double; a number too small for a normal double
+ * (one that would read as 0 or lose precision) is refused like one too
+ * large. Returns 0 on success. */
 int cli_parse_double(const char *text, double *out);
+/* A number from lo to hi in the given unit (unit_name for the message),
+ * to SI; lo_si and hi_si are the bounds in SI. Prints a usage error. */
+int cli_parse_bounded(const char *command, const char *option, const char *arg, double unit_si,
+                      const char *unit_name, double lo_si, double hi_si, double *out);
 
 /* The safety cautions every report that proposes parameters prints. */
 extern const char cli_safety_text[];

@@ -445,7 +445,8 @@ static int put_model(FILE *fp, void *ctx, twf_error *err)
 {
   fprintf(fp, "; As-built model written by twistfit calibrate. A changed model moves the real\n"
               "; arm differently: keep the previous parameters, verify at reduced speed with\n"
-              "; the cell's safety functions active, and validate on held-out poses first.\n");
+              "; the cell's safety functions active, and validate on held-out poses first.\n"
+              "; run_id: %s\n", cli_run_id());
   return twf_model_write((const twf_model *)ctx, fp, err) == TWF_OK ? 0 : -1;
 }
 
@@ -454,6 +455,7 @@ typedef struct base_file_ctx { const twf_pose *B; twf_length_unit lu; } base_fil
 static int put_base(FILE *fp, void *ctx, twf_error *err)
 {
   const base_file_ctx *b = ctx;
+  fprintf(fp, "; run_id: %s\n", cli_run_id());
   return twf_base_write(b->B, b->lu, "base pose fitted by twistfit calibrate", fp, err) == TWF_OK ? 0 : -1;
 }
 
@@ -600,10 +602,14 @@ static int run_calibrate(int argc, char **argv)
   if ((status = cli_inputs_load(&in, "calibrate", argc, argv, optind)) != 0)
     goto done;
   cli_units_of(&u, in.model);
-  if (sigma_text != NULL && (status = cli_parse_tolerance("calibrate", "--sigma", sigma_text, u.length_si, &co.sigma_length)) != 0)
+  /* bounded: a sigma far outside what an instrument can have (1e-300)
+   * would reach the solver as infinite weights */
+  if (sigma_text != NULL &&
+      (status = cli_parse_bounded("calibrate", "--sigma", sigma_text, u.length_si, u.length, 1e-9, 1.0, &co.sigma_length)) != 0)
     goto done;
   if (sigma_angle_text != NULL &&
-      (status = cli_parse_tolerance("calibrate", "--sigma-angle", sigma_angle_text, u.angle_si, &co.sigma_angle)) != 0)
+      (status = cli_parse_bounded("calibrate", "--sigma-angle", sigma_angle_text, u.angle_si, u.angle, 1e-9, 1.0,
+                                  &co.sigma_angle)) != 0)
     goto done;
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;
@@ -611,13 +617,14 @@ static int run_calibrate(int argc, char **argv)
    * then writes nothing */
   {
     const char *outs[4] = { model_out, base_out, json_path, residuals_path };
+    static const char *const names[4] = { "--output", "--base-output", "--json", "--residuals" };
     size_t k;
     for (k = 0; k < 4; k++)
       if (k != 2 && outs[k] != NULL && strcmp(outs[k], "-") == 0) {
         status = cli_usage_error("calibrate", "only --json may go to standard output ('-'); give file names for the others");
         goto done;
       }
-    if ((status = cli_outputs_check(outs, 4, force, in.paths)) != 0)
+    if ((status = cli_outputs_check("calibrate", outs, names, 4, force, in.paths)) != 0)
       goto done;
   }
 

@@ -78,6 +78,35 @@ static void write_row(cli_csv *csv, const twf_model *m, const char *id,
   cli_csv_end_row(csv);
 }
 
+typedef struct fk_ctx {
+  const twf_model *model;
+  const twf_campaign *joints; /* NULL: the home configuration */
+  twf_length_unit out_unit;
+} fk_ctx;
+
+static int put_fk(FILE *fp, void *ctx, twf_error *err)
+{
+  const fk_ctx *f = ctx;
+  cli_csv csv;
+  size_t i;
+  cli_csv_init(&csv, fp);
+  write_header(&csv, f->model, twf_length_unit_name(f->out_unit));
+  if (f->joints == NULL) {
+    double *zero = calloc(f->model->n_joints ? f->model->n_joints : 1, sizeof *zero);
+    if (zero == NULL) {
+      twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+      return -1;
+    }
+    write_row(&csv, f->model, "home", zero, twf_length_unit_si(f->out_unit));
+    free(zero);
+  } else {
+    for (i = 0; i < f->joints->n_poses; i++)
+      write_row(&csv, f->model, f->joints->pose_ids[i], f->joints->q + i * f->model->n_joints,
+                twf_length_unit_si(f->out_unit));
+  }
+  return 0;
+}
+
 static int run_fk(int argc, char **argv)
 {
   static const struct option longopts[] = {
@@ -89,6 +118,7 @@ static int run_fk(int argc, char **argv)
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
+  static const char *const names[1] = { "--output" };
   const char *output = NULL;
   int force = 0, opt, status;
   twf_campaign_options copt = twf_campaign_default_options();
@@ -98,10 +128,9 @@ static int run_fk(int argc, char **argv)
   twf_campaign *joints = NULL;
   twf_warnings warnings;
   twf_error err;
-  cli_output out;
-  cli_csv csv;
   const char *inputs[3] = { NULL, NULL, NULL };
-  size_t i;
+  fk_ctx ctx;
+  cli_put put;
 
   optind = 0;
   opterr = 0;
@@ -131,10 +160,13 @@ static int run_fk(int argc, char **argv)
   if (argc - optind < 1 || argc - optind > 2)
     return cli_usage_error("fk", "expected MODEL and an optional JOINTS.csv");
 
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
   inputs[0] = argv[optind];
   inputs[1] = argc - optind == 2 ? argv[optind + 1] : NULL;
+  /* the output is checked before the work, as the other commands do */
+  if ((status = cli_outputs_check("fk", &output, names, 1, force, inputs)) != 0)
+    return status;
+  twf_warnings_init(&warnings);
+  twf_error_clear(&err);
   model = twf_model_read(argv[optind], &warnings, &err);
   if (model == NULL) {
     cli_print_warnings(&warnings);
@@ -152,27 +184,13 @@ static int run_fk(int argc, char **argv)
   if (!have_out_unit)
     out_unit = model->length_unit;
 
-  if ((status = cli_output_open(&out, output, force, inputs, &err)) != 0) {
-    cli_report_error(&err);
-    goto done;
-  }
-  cli_csv_init(&csv, out.fp);
-  write_header(&csv, model, twf_length_unit_name(out_unit));
-  if (joints == NULL) {
-    double *zero = calloc(model->n_joints ? model->n_joints : 1, sizeof *zero);
-    if (zero == NULL) {
-      cli_output_abort(&out);
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    write_row(&csv, model, "home", zero, twf_length_unit_si(out_unit));
-    free(zero);
-  } else {
-    for (i = 0; i < joints->n_poses; i++)
-      write_row(&csv, model, joints->pose_ids[i], joints->q + i * model->n_joints,
-                twf_length_unit_si(out_unit));
-  }
-  status = cli_output_commit(&out);
+  ctx.model = model;
+  ctx.joints = joints;
+  ctx.out_unit = out_unit;
+  put.path = output != NULL ? output : "-";
+  put.put = put_fk;
+  put.ctx = &ctx;
+  status = cli_write_outputs(&put, 1, force, inputs);
 
 done:
   twf_campaign_free(joints);

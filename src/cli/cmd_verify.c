@@ -188,11 +188,12 @@ static int run_verify(int argc, char **argv)
     cli_inputs_add_path(&in, base_path);
   {
     const char *outs[2] = { json_path, residuals_path };
+    static const char *const names[2] = { "--json", "--residuals" };
     if (residuals_path != NULL && strcmp(residuals_path, "-") == 0) {
       status = cli_usage_error("verify", "--residuals needs a file name");
       goto done;
     }
-    if ((status = cli_outputs_check(outs, 2, force, in.paths)) != 0)
+    if ((status = cli_outputs_check("verify", outs, names, 2, force, in.paths)) != 0)
       goto done;
   }
   if (tol_text[3] != NULL && !in.campaign->has_orientation_any) {

@@ -1,16 +1,23 @@
-/* common.c: error printing, exit statuses, atomic output files and option
- * value parsing shared by the commands. */
+/* common.c: error printing, exit statuses, the output set (staged,
+ * committed together, undone on failure or a terminating signal) and
+ * option value parsing shared by the commands. */
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
 
 #include <errno.h>
+#include <fcntl.h>
+#include <float.h>
 #include <getopt.h>
 #include <math.h>
+#include <sha2.h>
+#include <signal.h>
 #include <stdarg.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 int cli_exit_status(twf_status st)
@@ -139,37 +146,14 @@ static int same_target(const char *a, const char *b)
   return same;
 }
 
-int cli_output_check(const char *path, int force, const char *const *inputs, twf_error *err)
+/* The folder of path ("." for a bare name). Caller frees. */
+static char *folder_of(const char *path)
 {
-  char *dir, *slash;
-  int writable;
-  if (path == NULL || strcmp(path, "-") == 0)
-    return TWF_EXIT_OK;
-  for (; inputs != NULL && *inputs != NULL; inputs++)
-    if (same_target(path, *inputs)) {
-      twf_error_set(err, TWF_ERR_IO, path, 0, 0, "choose another output name",
-                    "refusing to write over the input file '%s'", *inputs);
-      return TWF_EXIT_IO;
-    }
-  {
-    struct stat st;
-    if (stat(path, &st) == 0 && !S_ISREG(st.st_mode)) {
-      twf_error_set(err, TWF_ERR_IO, path, 0, 0, "give the name of a file",
-                    "the output exists and is not a regular file");
-      return TWF_EXIT_IO;
-    }
-  }
-  if (!force && access(path, F_OK) == 0) {
-    twf_error_set(err, TWF_ERR_IO, path, 0, 0,
-                  "choose another name, or pass --force to replace it",
-                  "output file already exists");
-    return TWF_EXIT_IO;
-  }
-  dir = strdup(path);
-  if (dir == NULL) {
-    twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
-    return TWF_EXIT_INTERNAL;
-  }
+  size_t n = strlen(path);
+  char *dir = malloc(n + 2), *slash;
+  if (dir == NULL)
+    return NULL;
+  memcpy(dir, path, n + 1);
   slash = strrchr(dir, '/');
   if (slash == NULL)
     strcpy(dir, ".");
@@ -177,6 +161,51 @@ int cli_output_check(const char *path, int force, const char *const *inputs, twf
     dir[1] = '\0';
   else
     *slash = '\0';
+  return dir;
+}
+
+int cli_output_check(const char *path, int force, const char *const *inputs, twf_error *err)
+{
+  struct stat st;
+  char *dir;
+  int writable;
+  if (path == NULL || strcmp(path, "-") == 0)
+    return TWF_EXIT_OK;
+  if (path[0] == '\0') {
+    twf_error_set(err, TWF_ERR_IO, NULL, 0, 0, "give the output a file name",
+                  "an output file name is empty");
+    return TWF_EXIT_USAGE;
+  }
+  for (; inputs != NULL && *inputs != NULL; inputs++)
+    if (same_target(path, *inputs)) {
+      twf_error_set(err, TWF_ERR_IO, path, 0, 0, "choose another output name",
+                    "refusing to write over the input file '%s'", *inputs);
+      return TWF_EXIT_IO;
+    }
+  /* lstat, not stat: a dangling link is a name the commit would replace,
+   * so it exists as far as --force is concerned */
+  if (lstat(path, &st) == 0) {
+    struct stat target;
+    int regular = S_ISLNK(st.st_mode) ? stat(path, &target) != 0 || S_ISREG(target.st_mode)
+                                      : S_ISREG(st.st_mode);
+    if (!regular) {
+      twf_error_set(err, TWF_ERR_IO, path, 0, 0, "give the name of a file",
+                    "the output exists and is not a regular file");
+      return TWF_EXIT_IO;
+    }
+    if (!force) {
+      twf_error_set(err, TWF_ERR_IO, path, 0, 0,
+                    "choose another name, or pass --force to replace it",
+                    S_ISLNK(st.st_mode) ? "output file already exists (as a symbolic link)"
+                                        : "output file already exists");
+      return TWF_EXIT_IO;
+    }
+  }
+  dir = folder_of(path);
+  if (dir == NULL) {
+    twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    return TWF_EXIT_INTERNAL;
+  }
   writable = access(dir, W_OK) == 0;
   free(dir);
   if (!writable) {
@@ -187,13 +216,19 @@ int cli_output_check(const char *path, int force, const char *const *inputs, twf
   return TWF_EXIT_OK;
 }
 
-int cli_outputs_check(const char *const *outputs, size_t n, int force, const char *const *inputs)
+int cli_outputs_check(const char *command, const char *const *outputs, const char *const *options,
+                      size_t n, int force, const char *const *inputs)
 {
   size_t a, b;
   twf_error err;
   twf_error_clear(&err);
+  /* an empty name is a mistake on the command line, not a file problem:
+   * say so before looking at any file */
+  for (a = 0; a < n; a++)
+    if (outputs[a] != NULL && outputs[a][0] == '\0')
+      return cli_usage_error(command, "%s needs a file name, not an empty one",
+                             options != NULL ? options[a] : "an output option");
   for (a = 0; a < n; a++) {
-    int st;
     if (outputs[a] == NULL)
       continue;
     for (b = a + 1; b < n; b++)
@@ -205,37 +240,283 @@ int cli_outputs_check(const char *const *outputs, size_t n, int force, const cha
                                                    : "two outputs name the same file");
         return cli_report_error(&err);
       }
-    if ((st = cli_output_check(outputs[a], force, inputs, &err)) != 0)
+    if (cli_output_check(outputs[a], force, inputs, &err) != 0)
       return cli_report_error(&err);
   }
   return TWF_EXIT_OK;
 }
 
-int cli_output_open(cli_output *out, const char *path, int force,
-                    const char *const *inputs, twf_error *err)
+/* ------------------------------------------------------------ run id */
+
+static struct {
+  int argc;
+  char **argv;
+  struct timespec start;
+  int started, have_id;
+  char id[17];
+} run;
+
+void cli_run_start(int argc, char **argv)
 {
-  size_t n;
-  int fd, st;
-  memset(out, 0, sizeof *out);
-  if (path == NULL || strcmp(path, "-") == 0) {
-    out->fp = stdout;
-    return TWF_EXIT_OK;
+  run.argc = argc;
+  run.argv = argv;
+  clock_gettime(CLOCK_REALTIME, &run.start);
+  run.started = 1;
+}
+
+static void run_id_compute(const char *const *inputs)
+{
+  SHA2_CTX ctx;
+  uint8_t d[SHA256_DIGEST_LENGTH];
+  long long word[6];
+  int k;
+  if (run.have_id)
+    return;
+  if (!run.started)
+    clock_gettime(CLOCK_REALTIME, &run.start);
+  SHA256Init(&ctx);
+  for (k = 0; k < run.argc; k++)
+    SHA256Update(&ctx, (const uint8_t *)run.argv[k], strlen(run.argv[k]) + 1);
+  /* the time and the process tell apart two runs of one command line,
+   * even when started in the same second */
+  word[0] = (long long)run.start.tv_sec;
+  word[1] = (long long)run.start.tv_nsec;
+  word[2] = (long long)getpid();
+  SHA256Update(&ctx, (const uint8_t *)word, 3 * sizeof word[0]);
+  /* the inputs as found on disk (identity and version, without reading
+   * them again) */
+  for (; inputs != NULL && *inputs != NULL; inputs++) {
+    struct stat st;
+    SHA256Update(&ctx, (const uint8_t *)*inputs, strlen(*inputs) + 1);
+    if (stat(*inputs, &st) == 0) {
+      word[0] = (long long)st.st_dev;
+      word[1] = (long long)st.st_ino;
+      word[2] = (long long)st.st_size;
+      word[3] = (long long)st.st_mtim.tv_sec;
+      word[4] = (long long)st.st_mtim.tv_nsec;
+      word[5] = (long long)st.st_ctim.tv_nsec;
+      SHA256Update(&ctx, (const uint8_t *)word, sizeof word);
+    }
   }
-  if ((st = cli_output_check(path, force, inputs, err)) != 0)
-    return st;
-  n = strlen(path);
-  out->path = strdup(path);
-  out->tmp_path = malloc(n + 16);
-  if (out->path == NULL || out->tmp_path == NULL) {
-    free(out->path);
-    free(out->tmp_path);
-    memset(out, 0, sizeof *out);
+  SHA256Final(d, &ctx);
+  for (k = 0; k < 8; k++)
+    snprintf(run.id + 2 * k, 3, "%02x", d[k]);
+  run.have_id = 1;
+}
+
+const char *cli_run_id(void)
+{
+  run_id_compute(NULL);
+  return run.id;
+}
+
+/* ------------------------------------------------------- standard output */
+
+static int stdout_reported;
+
+/* Flush standard output; 1 when a write failed, with the reason in *e (0
+ * when unknown). */
+static int stdout_failed(int *e)
+{
+  int bad = ferror(stdout) != 0;
+  *e = 0;
+  errno = 0;
+  if (fflush(stdout) != 0) {
+    bad = 1;
+    *e = errno;
+  }
+  return bad;
+}
+
+static int report_stdout(int e)
+{
+  if (!stdout_reported)
+    fprintf(stderr, "twistfit: error: cannot write to standard output: %s\n",
+            e != 0 ? strerror(e) : "an earlier write failed");
+  stdout_reported = 1;
+  return TWF_EXIT_IO;
+}
+
+int cli_finish_stdout(int status)
+{
+  int e, bad = stdout_failed(&e);
+  errno = 0;
+  /* EBADF with nothing pending: standard output was closed from the start
+   * and nothing was written to it, which is no error */
+  if (fclose(stdout) != 0 && !bad && errno != EBADF) {
+    bad = 1;
+    e = errno;
+  }
+  if (bad) {
+    report_stdout(e);
+    if (status == TWF_EXIT_OK || status == TWF_EXIT_REJECTED)
+      status = TWF_EXIT_IO;
+  }
+  return status;
+}
+
+/* ------------------------------------------------------------ output set */
+
+#define MAX_OUTPUTS 8
+
+enum { SLOT_FREE, SLOT_STAGED, SLOT_COMMITTING, SLOT_COMMITTED };
+
+/* One staged file. The signal handler reads these, so every field it uses
+ * is set before n_slots counts the slot, and the strings are never freed
+ * while the handler is installed. */
+typedef struct staged {
+  char *path, *tmp;
+  char *old;       /* with force: a second name of the file being replaced */
+  dev_t dev;       /* identity of the temporary file: a commit made by */
+  ino_t ino;       /* this run leaves exactly this file under path */
+  FILE *fp;
+  volatile sig_atomic_t state;
+  volatile sig_atomic_t has_old;
+} staged;
+
+static staged slots[MAX_OUTPUTS];
+static volatile sig_atomic_t n_slots;
+
+/* Signals that end the process: the handler removes the staged files and
+ * undoes the commits, then dies of the same signal. */
+static const int caught[] = { SIGINT, SIGTERM, SIGHUP, SIGQUIT, SIGPIPE, SIGXFSZ };
+#define N_CAUGHT (sizeof caught / sizeof caught[0])
+static struct sigaction previous[N_CAUGHT];
+static int installed[N_CAUGHT];
+
+/* Whether path holds the file this run committed (async-signal-safe). */
+static int is_ours(const staged *s)
+{
+  struct stat st;
+  return lstat(s->path, &st) == 0 && st.st_dev == s->dev && st.st_ino == s->ino;
+}
+
+/* Undo one slot with async-signal-safe calls only. Returns -1 when the
+ * replaced file could not be put back (it is then kept under s->old). */
+static int undo_slot(staged *s)
+{
+  int kept = 0;
+  if (s->state >= SLOT_COMMITTING && is_ours(s)) {
+    if (s->has_old) {
+      if (rename(s->old, s->path) != 0)
+        kept = 1;
+    } else {
+      unlink(s->path);
+    }
+  } else if (s->has_old) {
+    /* the replacement did not happen: the second name is just a link */
+    unlink(s->old);
+  }
+  if (s->state >= SLOT_STAGED)
+    unlink(s->tmp);
+  s->state = SLOT_FREE;
+  return kept ? -1 : 0;
+}
+
+static void on_signal(int sig)
+{
+  struct sigaction dfl;
+  sig_atomic_t i = n_slots;
+  while (i-- > 0)
+    undo_slot(&slots[i]);
+  n_slots = 0;
+  memset(&dfl, 0, sizeof dfl);
+  dfl.sa_handler = SIG_DFL;
+  sigemptyset(&dfl.sa_mask);
+  sigaction(sig, &dfl, NULL);
+  /* blocked while the handler runs: delivered, with the default action,
+   * when it returns */
+  raise(sig);
+}
+
+static void block_signals(sigset_t *saved)
+{
+  sigset_t set;
+  size_t k;
+  sigemptyset(&set);
+  for (k = 0; k < N_CAUGHT; k++)
+    sigaddset(&set, caught[k]);
+  sigprocmask(SIG_BLOCK, &set, saved);
+}
+
+static void install_handlers(void)
+{
+  struct sigaction sa;
+  size_t k;
+  memset(&sa, 0, sizeof sa);
+  sa.sa_handler = on_signal;
+  sigemptyset(&sa.sa_mask);
+  for (k = 0; k < N_CAUGHT; k++)
+    sigaddset(&sa.sa_mask, caught[k]);
+  for (k = 0; k < N_CAUGHT; k++) {
+    installed[k] = 0;
+    if (sigaction(caught[k], NULL, &previous[k]) != 0)
+      continue;
+    /* an ignored signal (nohup, a background job) stays ignored */
+    if (previous[k].sa_handler == SIG_IGN)
+      continue;
+    installed[k] = sigaction(caught[k], &sa, NULL) == 0;
+  }
+}
+
+static void restore_handlers(void)
+{
+  size_t k;
+  for (k = 0; k < N_CAUGHT; k++)
+    if (installed[k])
+      sigaction(caught[k], &previous[k], NULL);
+}
+
+static void free_slots(void)
+{
+  size_t i;
+  for (i = 0; i < MAX_OUTPUTS; i++) {
+    if (slots[i].fp != NULL)
+      fclose(slots[i].fp);
+    free(slots[i].path);
+    free(slots[i].tmp);
+    free(slots[i].old);
+    memset(&slots[i], 0, sizeof slots[i]);
+  }
+}
+
+/* A test hook: with TWF_TEST_PAUSE set to the phase's name the process
+ * stops itself there (SIGSTOP), so that a test can create files, send a
+ * signal, or start a second run at a known point of the write phase. */
+static void test_pause(const char *phase)
+{
+  const char *want = getenv("TWF_TEST_PAUSE");
+  if (want == NULL || strcmp(want, phase) != 0)
+    return;
+  fprintf(stderr, "twistfit: test pause: %s\n", phase);
+  fflush(stderr);
+  raise(SIGSTOP);
+}
+
+/* Create the temporary file of s beside path. Called with the signals
+ * blocked. */
+static int stage_open(staged *s, const char *path, twf_error *err)
+{
+  size_t n = strlen(path);
+  struct stat st;
+  int fd;
+  s->path = strdup(path);
+  s->tmp = malloc(n + 16);
+  s->old = malloc(n + 24);
+  if (s->path == NULL || s->tmp == NULL || s->old == NULL) {
     twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
     return TWF_EXIT_INTERNAL;
   }
-  snprintf(out->tmp_path, n + 16, "%s.tmp.XXXXXX", path);
-  fd = mkstemp(out->tmp_path);
-  if (fd >= 0) {
+  snprintf(s->tmp, n + 16, "%s.tmp.XXXXXX", path);
+  fd = mkstemp(s->tmp);
+  if (fd < 0) {
+    twf_error_set(err, TWF_ERR_IO, path, 0, 0, "check that the folder exists and is writable",
+                  "cannot create a temporary file beside the output: %s", strerror(errno));
+    return TWF_EXIT_IO;
+  }
+  s->state = SLOT_STAGED;
+  snprintf(s->old, n + 24, "%s.old", s->tmp);
+  {
     /* mkstemp makes the file private; give it the mode a new file would
      * have (or the one of the file it replaces) */
     struct stat old;
@@ -245,66 +526,222 @@ int cli_output_open(cli_output *out, const char *path, int force,
       /* not fatal: the file keeps its private mode */
     }
   }
-  if (fd < 0 || (out->fp = fdopen(fd, "w")) == NULL) {
-    twf_error_set(err, TWF_ERR_IO, path, 0, 0,
-                  "check that the folder exists and is writable",
+  if (fstat(fd, &st) != 0 || (s->fp = fdopen(fd, "w")) == NULL) {
+    twf_error_set(err, TWF_ERR_IO, path, 0, 0, "check that the folder exists and is writable",
                   "cannot create a temporary file beside the output: %s", strerror(errno));
-    if (fd >= 0) {
-      close(fd);
-      unlink(out->tmp_path);
-    }
-    free(out->path);
-    free(out->tmp_path);
-    memset(out, 0, sizeof *out);
+    close(fd);
     return TWF_EXIT_IO;
   }
+  s->dev = st.st_dev;
+  s->ino = st.st_ino;
   return TWF_EXIT_OK;
 }
 
-int cli_output_commit(cli_output *out)
+/* Flush, sync and close a staged file after its content was written;
+ * put_errno is errno as the writer left it. The error names the system's
+ * reason. */
+static int stage_finish(staged *s, int put_failed, int put_errno, twf_error *err)
+{
+  int e = put_errno, bad = put_failed || ferror(s->fp);
+  errno = 0;
+  /* a failed flush writes the buffer again: its errno is the reason */
+  if (fflush(s->fp) != 0) {
+    bad = 1;
+    e = errno;
+  }
+  if (!bad && fsync(fileno(s->fp)) != 0) {
+    bad = 1;
+    e = errno;
+  }
+  errno = 0;
+  if (fclose(s->fp) != 0 && !bad) {
+    bad = 1;
+    e = errno;
+  }
+  s->fp = NULL;
+  if (!bad)
+    return TWF_EXIT_OK;
+  /* a writer's own error that is not about writing (e.g. a model it
+   * cannot express) stands; a write error gets the system's reason */
+  if (err->status == TWF_OK || err->status == TWF_ERR_IO)
+    twf_error_set(err, TWF_ERR_IO, s->path, 0, 0, "check free space and permissions",
+                  "cannot write the output file: %s", e != 0 ? strerror(e) : "write error");
+  else if (err->file[0] == '\0')
+    snprintf(err->file, sizeof err->file, "%s", s->path);
+  return cli_exit_status(err->status);
+}
+
+/* Put the staged file in place without replacing anything: the check and
+ * the replacement are one step, so a file that appeared while the run
+ * was working is never clobbered (EEXIST). */
+static int commit_noreplace(const staged *s)
+{
+  struct stat st;
+#ifdef RENAME_NOREPLACE
+  if (renameat2(AT_FDCWD, s->tmp, AT_FDCWD, s->path, RENAME_NOREPLACE) == 0)
+    return 0;
+  if (errno != EINVAL && errno != ENOSYS && errno != ENOTSUP && errno != EOPNOTSUPP)
+    return -1;
+  /* the file system cannot do it: a hard link is also one step */
+#endif
+  if (link(s->tmp, s->path) == 0) {
+    unlink(s->tmp);
+    return 0;
+  }
+  if (errno != EPERM && errno != ENOTSUP && errno != EOPNOTSUPP && errno != ENOSYS && errno != EMLINK)
+    return -1;
+  /* no hard links either (some network or foreign file systems): check
+   * and rename, the best left */
+  if (lstat(s->path, &st) == 0) {
+    errno = EEXIST;
+    return -1;
+  }
+  return rename(s->tmp, s->path);
+}
+
+static int commit_slot(staged *s, int force, twf_error *err)
+{
+  int failed;
+  s->state = SLOT_COMMITTING;
+  if (force) {
+    struct stat st;
+    /* keep a second name of the file being replaced, so that a later
+     * failure of the set can put it back */
+    if (lstat(s->path, &st) == 0) {
+      s->has_old = 1;
+      if (linkat(AT_FDCWD, s->path, AT_FDCWD, s->old, 0) != 0)
+        s->has_old = 0;
+    }
+    failed = rename(s->tmp, s->path) != 0;
+  } else {
+    failed = commit_noreplace(s) != 0;
+  }
+  if (failed) {
+    int e = errno;
+    s->state = SLOT_STAGED;
+    if (e == EEXIST)
+      twf_error_set(err, TWF_ERR_IO, s->path, 0, 0,
+                    "choose another name, or pass --force to replace it",
+                    "output file already exists (it appeared while this run was working)");
+    else
+      twf_error_set(err, TWF_ERR_IO, s->path, 0, 0, "check free space and permissions",
+                    "cannot put the output file in place: %s", strerror(e));
+    return TWF_EXIT_IO;
+  }
+  s->state = SLOT_COMMITTED;
+  return TWF_EXIT_OK;
+}
+
+int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs)
 {
   twf_error err;
-  int bad;
-  if (out->fp == NULL)
-    return TWF_EXIT_OK;
-  if (out->path == NULL) {
-    bad = fflush(out->fp) != 0 || ferror(out->fp);
-    out->fp = NULL;
-    if (bad) {
-      twf_error_set(&err, TWF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
-      return cli_report_error(&err);
+  sigset_t saved;
+  int slot_of[MAX_OUTPUTS];
+  size_t i, n_files = 0, committed = 0;
+  int st = TWF_EXIT_OK, e;
+  twf_error_clear(&err);
+  if (n > MAX_OUTPUTS)
+    return TWF_EXIT_INTERNAL;
+  run_id_compute(inputs);
+  /* the text report went out first: when it is lost, write nothing */
+  if (stdout_failed(&e))
+    return report_stdout(e);
+  for (i = 0; i < n; i++)
+    if (puts[i].path != NULL && strcmp(puts[i].path, "-") != 0 &&
+        (st = cli_output_check(puts[i].path, force, inputs, &err)) != 0) {
+      cli_report_error(&err);
+      return st;
     }
-    return TWF_EXIT_OK;
-  }
-  bad = ferror(out->fp);
-  if (fclose(out->fp) != 0)
-    bad = 1;
-  out->fp = NULL;
-  if (bad || rename(out->tmp_path, out->path) != 0) {
-    twf_error_set(&err, TWF_ERR_IO, out->path, 0, 0, "check free space and permissions",
-                  "cannot write the output file: %s", strerror(errno));
-    unlink(out->tmp_path);
-    free(out->path);
-    free(out->tmp_path);
-    out->path = out->tmp_path = NULL;
-    return cli_report_error(&err);
-  }
-  free(out->path);
-  free(out->tmp_path);
-  out->path = out->tmp_path = NULL;
-  return TWF_EXIT_OK;
-}
 
-void cli_output_abort(cli_output *out)
-{
-  if (out->path != NULL) {
-    if (out->fp != NULL)
-      fclose(out->fp);
-    unlink(out->tmp_path);
-    free(out->path);
-    free(out->tmp_path);
+  /* stage: every temporary file is registered before the handler could
+   * need it */
+  block_signals(&saved);
+  install_handlers();
+  for (i = 0; i < n; i++) {
+    slot_of[i] = -1;
+    if (puts[i].path == NULL || strcmp(puts[i].path, "-") == 0)
+      continue;
+    slot_of[i] = (int)n_files;
+    st = stage_open(&slots[n_files], puts[i].path, &err);
+    n_files++;
+    n_slots = (sig_atomic_t)n_files;
+    if (st != 0) {
+      cli_report_error(&err);
+      goto fail;
+    }
   }
-  memset(out, 0, sizeof *out);
+  sigprocmask(SIG_SETMASK, &saved, NULL);
+
+  /* write: every content, each file flushed, synced and closed */
+  for (i = 0; i < n; i++) {
+    int failed;
+    if (puts[i].path == NULL)
+      continue;
+    errno = 0;
+    failed = puts[i].put(slot_of[i] >= 0 ? slots[slot_of[i]].fp : stdout, puts[i].ctx, &err) != 0;
+    e = errno;
+    if (slot_of[i] >= 0) {
+      if ((st = stage_finish(&slots[slot_of[i]], failed, e, &err)) != 0) {
+        cli_report_error(&err);
+        goto fail_reported;
+      }
+    } else {
+      int flush_errno, bad = stdout_failed(&flush_errno);
+      if (failed && err.status != TWF_OK && err.status != TWF_ERR_IO) {
+        st = cli_report_error(&err);
+        goto fail_reported;
+      }
+      if (failed || bad) {
+        st = report_stdout(bad && flush_errno != 0 ? flush_errno : e);
+        goto fail_reported;
+      }
+    }
+  }
+  test_pause("staged");
+
+  /* commit: all or none */
+  for (i = 0; i < n_files; i++) {
+    if ((st = commit_slot(&slots[i], force, &err)) != 0) {
+      cli_report_error(&err);
+      goto fail_reported;
+    }
+    committed++;
+    if (committed == 1)
+      test_pause("committed");
+  }
+  block_signals(&saved);
+  n_slots = 0;
+  for (i = 0; i < n_files; i++)
+    if (slots[i].has_old)
+      unlink(slots[i].old);
+  free_slots();
+  restore_handlers();
+  sigprocmask(SIG_SETMASK, &saved, NULL);
+  return TWF_EXIT_OK;
+
+fail_reported:
+  block_signals(&saved);
+fail:
+  {
+    size_t k = n_files;
+    int kept = 0;
+    while (k-- > 0)
+      if (undo_slot(&slots[k]) != 0) {
+        fprintf(stderr, "twistfit: error: could not put back the previous %s; it is kept as %s\n",
+                slots[k].path, slots[k].old);
+        kept = 1;
+      }
+    if (kept)
+      committed = 0;
+  }
+  if (committed > 0)
+    fprintf(stderr, "twistfit: the outputs already in place were taken back: no output of this "
+                    "run remains\n");
+  n_slots = 0;
+  free_slots();
+  restore_handlers();
+  sigprocmask(SIG_SETMASK, &saved, NULL);
+  return st != TWF_EXIT_OK ? st : TWF_EXIT_IO;
 }
 
 int cli_parse_length_unit(const char *command, const char *value, twf_length_unit *u)
@@ -321,6 +758,25 @@ int cli_parse_angle_unit(const char *command, const char *value, twf_angle_unit 
   return TWF_EXIT_OK;
 }
 
+/* Whether the digits of a number (before its exponent) are not all zero. */
+static int mantissa_nonzero(const char *p)
+{
+  int hex = 0;
+  while (*p == ' ' || *p == '\t' || *p == '+' || *p == '-')
+    p++;
+  if (p[0] == '0' && (p[1] == 'x' || p[1] == 'X')) {
+    hex = 1;
+    p += 2;
+  }
+  for (; *p != '\0'; p++) {
+    if (hex ? (*p == 'p' || *p == 'P') : (*p == 'e' || *p == 'E'))
+      break;
+    if (*p != '0' && *p != '.')
+      return 1;
+  }
+  return 0;
+}
+
 int cli_parse_double(const char *text, double *out)
 {
   char *end;
@@ -329,58 +785,28 @@ int cli_parse_double(const char *text, double *out)
     return -1;
   errno = 0;
   v = strtod(text, &end);
-  if (*end != '\0' || errno == ERANGE || !isfinite(v))
+  if (end == text || *end != '\0' || errno == ERANGE || !isfinite(v))
+    return -1;
+  /* C leaves ERANGE on underflow to the library: refuse a number below
+   * the normal range here, and a 0 read from digits that are not zero */
+  if ((v != 0 && fabs(v) < DBL_MIN) || (v == 0 && mantissa_nonzero(text)))
     return -1;
   *out = v;
   return 0;
 }
 
-int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs)
+int cli_parse_bounded(const char *command, const char *option, const char *arg, double unit_si,
+                      const char *unit_name, double lo_si, double hi_si, double *out)
 {
-  cli_output outs[8];
-  twf_error err;
-  size_t i, opened = 0;
-  int st = TWF_EXIT_OK;
-  twf_error_clear(&err);
-  if (n > sizeof outs / sizeof outs[0])
-    return TWF_EXIT_INTERNAL;
-  /* every temporary file first, then every content, then the renames: a
-   * failure anywhere leaves no output behind */
-  for (i = 0; i < n; i++) {
-    memset(&outs[i], 0, sizeof outs[i]);
-    if (puts[i].path == NULL)
-      continue;
-    if ((st = cli_output_open(&outs[i], puts[i].path, force, inputs, &err)) != 0) {
-      cli_report_error(&err);
-      goto abort;
-    }
-    opened = i + 1;
-  }
-  for (i = 0; i < n; i++) {
-    if (puts[i].path == NULL)
-      continue;
-    if (puts[i].put(outs[i].fp, puts[i].ctx, &err) != 0 || ferror(outs[i].fp) || fflush(outs[i].fp) != 0) {
-      if (err.status == TWF_OK)
-        twf_error_set(&err, TWF_ERR_IO, puts[i].path, 0, 0, "check free space and permissions",
-                      "cannot write the output file");
-      if (err.file[0] == '\0')
-        snprintf(err.file, sizeof err.file, "%s", puts[i].path);
-      st = cli_report_error(&err);
-      opened = n;
-      goto abort;
-    }
-  }
-  for (i = 0; i < n; i++)
-    if (puts[i].path != NULL) {
-      int c = cli_output_commit(&outs[i]);
-      if (c != 0 && st == TWF_EXIT_OK)
-        st = c;
-    }
-  return st;
-abort:
-  for (i = 0; i < opened && i < n; i++)
-    cli_output_abort(&outs[i]);
-  return st != TWF_EXIT_OK ? st : TWF_EXIT_IO;
+  double v;
+  /* a relative slack of 1e-9 keeps the bounds themselves, written in
+   * another unit, inside */
+  if (cli_parse_double(arg, &v) != 0 || !(v * unit_si >= lo_si * (1 - 1e-9)) ||
+      !(v * unit_si <= hi_si * (1 + 1e-9)))
+    return cli_usage_error(command, "%s takes a number from %g to %g (%s), not '%s'", option,
+                           lo_si / unit_si, hi_si / unit_si, unit_name, arg);
+  *out = v * unit_si;
+  return TWF_EXIT_OK;
 }
 
 int cli_bad_option(const char *command, int opt, char **argv)

@@ -47,7 +47,7 @@ static const cli_command *find_command(const char *name)
   return NULL;
 }
 
-int main(int argc, char **argv)
+static int run_main(int argc, char **argv)
 {
   int i = 1;
   const cli_command *cmd;
@@ -96,4 +96,11 @@ int main(int argc, char **argv)
     return TWF_EXIT_USAGE;
   }
   return cmd->run(argc - i, argv + i);
+}
+
+int main(int argc, char **argv)
+{
+  cli_run_start(argc, argv);
+  /* a report lost on a full disk or a closed pipe is a failed run */
+  return cli_finish_stdout(run_main(argc, argv));
 }

@@ -243,6 +243,7 @@ json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
 
 int cli_put_json(FILE *fp, void *ctx, twf_error *err)
 {
+  json_object_set_new((json_t *)ctx, "run_id", json_string(cli_run_id()));
   if (json_dumpf((json_t *)ctx, fp, JSON_INDENT(2) | JSON_REAL_PRECISION(12) | JSON_SORT_KEYS) != 0) {
     twf_error_set(err, TWF_ERR_IO, NULL, 0, 0, "check free space", "cannot write the JSON report");
     return -1;
@@ -264,6 +265,8 @@ int cli_put_residuals(FILE *fp, void *ctx, twf_error *err)
   size_t i;
   char name[64];
   (void)err;
+  /* the campaign reader skips comment lines: the run id can lead */
+  fprintf(fp, "# run_id: %s\n", cli_run_id());
   cli_csv_init(&csv, fp);
   cli_csv_text(&csv, "pose");
   cli_csv_text(&csv, "target");

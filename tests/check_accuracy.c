@@ -70,7 +70,10 @@ START_TEST(test_residuals)
   double q[3][3] = { { 0.113, -0.271, 0.9 }, { -0.402, 0.089, -2.3 }, { 0.25, 0.31, 0.04 } };
   double delta[5][3] = { { 1.3e-4, -2.1e-4, 0.7e-4 }, { -3.3e-5, 0, 8.9e-5 },
                          { 0, 0, 0 }, { 2.2e-4, 1.1e-4, -4.4e-4 }, { 5e-6, -6e-6, 7e-6 } };
-  double angle[5] = { 0, 0.00123, 0, 0.0417, 0 };
+  /* a small angle and one beyond 2 pi / 3: the angle is the length of the
+   * solver's orientation residual log(R_meas R_model^T), whose two branches
+   * both show here */
+  double angle[5] = { 0, 0.00123, 0, 2.9417, 0 };
   double t_other[6] = { 0.011, -0.007, 0.023, 0, 0.019, 0.031 };
   double pos_err[15], ang_err[5];
   size_t pose_of[5] = { 0, 0, 1, 2, 2 }, target_of[5] = { 0, 1, 0, 0, 1 };

@@ -601,6 +601,212 @@ START_TEST(test_bad_calls)
 }
 END_TEST
 
+/* A gross-error scenario on tf6s: three rows off by 2 to 5 mm. */
+static void gross_scenario(scenario *s, twf_calib_options *co)
+{
+  static const size_t near[3] = { 17, 101, 230 };
+  static const double size[3] = { 2.3e-3, -3.7e-3, 24.9e-3 };
+  twf_simulate_options so = twf_simulate_default_options();
+  twf_error err;
+  size_t k;
+  memset(s, 0, sizeof *s);
+  s->nominal = test_arm_model(ARM_TF6S);
+  s->truth = twf_model_copy(s->nominal);
+  twf_model_perturb(s->truth, &typical, 83);
+  test_tracker_base(&s->base);
+  so.n_poses = 120;
+  so.sigma_m = 4e-5;
+  so.seed = 84;
+  so.check_fraction = 0.2;
+  s->c = twf_simulate_campaign(s->truth, &s->base, &so, &err);
+  ck_assert_ptr_nonnull(s->c);
+  for (k = 0; k < 3; k++) {
+    size_t i = near[k];
+    while (s->c->meas[i].set != TWF_SET_FIT) /* a fit row: check rows are never screened */
+      i++;
+    s->c->meas[i].pos[k] += size[k];
+  }
+  ck_assert_int_eq(twf_calibrate(s->nominal, s->c, co, &s->res, NULL, &err), TWF_OK);
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+  double x = *(const double *)a, y = *(const double *)b;
+  return (x > y) - (x < y);
+}
+
+START_TEST(test_registration_matches_verify_sequence)
+{
+  /* the sequence verify runs (default options) gives the base pose and
+   * target offsets of twf_calibrate's registration with default options */
+  scenario s;
+  twf_calib_options co = twf_calib_default_options();
+  twf_model *m;
+  twf_pose B;
+  twf_registration_report rep;
+  twf_error err;
+  size_t k;
+  int r, c;
+  gross_scenario(&s, &co);
+  m = twf_model_copy(s.nominal);
+  ck_assert_int_eq(twf_register_and_refine(m, s.c, NULL, NULL, &B, &rep, NULL, NULL, &err), TWF_OK);
+  ck_assert_uint_ge(rep.n_excluded, 1); /* the 25 mm error: the screen ran */
+  for (r = 0; r < 3; r++) {
+    ck_assert_close(B.p[r], s.res->base_before.p[r], 1e-12);
+    for (c = 0; c < 3; c++)
+      ck_assert_close(B.R[r][c], s.res->base_before.R[r][c], 1e-12);
+  }
+  for (k = 0; k < m->n_targets; k++)
+    for (r = 0; r < 3; r++)
+      ck_assert_close(m->targets[k].offset[r], s.res->registered->targets[k].offset[r], 1e-12);
+  ck_assert_int_eq(rep.refinement.iterations, s.res->registration.iterations);
+  twf_model_free(m);
+  free_scenario(&s);
+}
+END_TEST
+
+START_TEST(test_fit_screened_figures)
+{
+  /* the result's fit figures without the dropped rows, against a direct
+   * computation from the residuals and the outlier list */
+  scenario s;
+  twf_calib_options co = twf_calib_default_options();
+  double *len, sum = 0.0, ss = 0.0, mx = 0.0, h, p95;
+  size_t i, k, n = 0, dropped = 0, n_fit = 0;
+  co.sigma_length = 4e-5;
+  gross_scenario(&s, &co);
+  len = malloc(s.c->n_meas * sizeof *len);
+  for (k = 0; k < s.res->n_outliers; k++)
+    dropped += s.res->outliers[k].weight == 0.0;
+  for (i = 0; i < s.c->n_meas; i++) {
+    int out = 0;
+    const double *e = s.res->residual_after + 3 * i;
+    if (s.res->meas_set[i] != TWF_SET_FIT)
+      continue;
+    n_fit++;
+    for (k = 0; k < s.res->n_outliers; k++)
+      out |= s.res->outliers[k].meas == i && s.res->outliers[k].weight == 0.0;
+    if (out)
+      continue;
+    len[n] = sqrt(e[0] * e[0] + e[1] * e[1] + e[2] * e[2]);
+    sum += len[n];
+    ss += len[n] * len[n];
+    mx = fmax(mx, len[n]);
+    n++;
+  }
+  qsort(len, n, sizeof *len, cmp_double);
+  h = 0.95 * (double)(n - 1); /* Hyndman and Fan type 7 */
+  p95 = len[(size_t)h] + (h - floor(h)) * (len[(size_t)h + 1] - len[(size_t)h]);
+  ck_assert_uint_ge(dropped, 3);
+  ck_assert_uint_eq(s.res->n_dropped, dropped);
+  ck_assert_uint_eq(s.res->fit_screened.count, n);
+  ck_assert_uint_eq(s.res->accuracy_after->position[TWF_SET_FIT].count, n_fit);
+  ck_assert_uint_eq(n_fit, s.res->n_fit_meas);
+  ck_assert_close(s.res->fit_screened.mean, sum / (double)n, 1e-12);
+  ck_assert_close(s.res->fit_screened.rms, sqrt(ss / (double)n), 1e-12);
+  ck_assert_close(s.res->fit_screened.max, mx, 1e-15);
+  ck_assert_close(s.res->fit_screened.p95, p95, 1e-12);
+  /* the dropped rows are what makes the difference */
+  ck_assert(s.res->fit_screened.max < s.res->accuracy_after->position[TWF_SET_FIT].max);
+  free(len);
+  free_scenario(&s);
+}
+END_TEST
+
+START_TEST(test_trace)
+{
+  /* every stage timed once, in order, and the steps of the last fit add
+   * up to the solver report */
+  static const char *const names[] = { "sets and joint ranges", "registration", "registration refinement",
+                                       "problem set-up", "structural redundancy",
+                                       "redundancy on the fit poses", "degrees of freedom", "fit",
+                                       "robust screen", "covariance", "identifiability",
+                                       "as-built summary", "plausibility" };
+  scenario s;
+  twf_calib_options co = twf_calib_default_options();
+  const twf_trace *t;
+  size_t k, last = 0;
+  int last_round = -1;
+  co.sigma_length = 4e-5;
+  gross_scenario(&s, &co);
+  t = &s.res->trace;
+  ck_assert_uint_eq(t->n_stages, sizeof names / sizeof names[0]);
+  for (k = 0; k < t->n_stages; k++) {
+    ck_assert_str_eq(t->stages[k].name, names[k]);
+    ck_assert_msg(t->stages[k].seconds >= 0.0 && isfinite(t->stages[k].seconds), "stage %s: %g s",
+                  t->stages[k].name, t->stages[k].seconds);
+  }
+  ck_assert_uint_gt(t->n_steps, 0);
+  for (k = 0; k < t->n_steps; k++) {
+    const twf_solver_step *st = &t->steps[k];
+    ck_assert(st->damping > 0.0);
+    ck_assert(!st->accepted || isfinite(st->cost));
+    if (strcmp(st->fit, "calibration") == 0) {
+      ck_assert_int_ge(st->round, last_round);
+      if (st->round != last_round)
+        last = 0;
+      last_round = st->round;
+      last++;
+      ck_assert_int_eq(st->iteration, (int)last);
+    }
+  }
+  ck_assert_int_eq(last_round, s.res->robust_rounds);
+  ck_assert_int_eq((int)last, s.res->solve.iterations);
+  free_scenario(&s);
+}
+END_TEST
+
+START_TEST(test_hints_without_options)
+{
+  /* the library's advice names option fields, never a command-line option,
+   * and is recognised by twf_advice_of */
+  twf_model *m = test_arm_model(ARM_TF6S);
+  twf_simulate_options so = twf_simulate_default_options();
+  twf_calib_options co = twf_calib_default_options();
+  twf_calib_result *res = NULL;
+  twf_campaign *c;
+  twf_error err;
+  twf_pose B;
+  int a;
+  static const unsigned char one_target[3] = { 1, 0, 0 };
+  size_t n;
+  int found;
+  test_tracker_base(&B);
+  /* the fewest poses that pass the redundancy walk but not the
+   * degrees-of-freedom check: with the noise unknown (10 coordinates
+   * beyond the parameters), then given (3) */
+  for (found = 0; found < 2; found++) {
+    int hit = 0;
+    co.sigma_length = found == 0 ? 0.0 : 3e-5;
+    for (n = 3; n <= 20 && !hit; n++) {
+      so.n_poses = n;
+      so.seed = 91;
+      so.targets = found == 0 ? NULL : one_target;
+      c = twf_simulate_campaign(m, &B, &so, &err);
+      ck_assert_ptr_nonnull(c);
+      if (twf_calibrate(m, c, &co, &res, NULL, &err) == TWF_ERR_DEGENERATE &&
+          strstr(err.message, "coordinates for") != NULL) {
+        ck_assert_int_eq(twf_advice_of(&err), found == 0 ? TWF_ADVICE_MORE_POSES_OR_SIGMA : TWF_ADVICE_MORE_POSES);
+        hit = 1;
+      }
+      twf_calib_result_free(res);
+      res = NULL;
+      twf_campaign_free(c);
+    }
+    ck_assert_msg(hit, "no pose count below 21 fails the check (sigma %s)", found ? "given" : "unknown");
+  }
+  for (a = TWF_ADVICE_FIX_MORE; a <= TWF_ADVICE_ACCEPT_LARGE; a++) {
+    ck_assert_msg(strstr(twf_advice_text((twf_advice)a), "--") == NULL, "%s", twf_advice_text((twf_advice)a));
+    ck_assert(strlen(twf_advice_text((twf_advice)a)) > 0);
+    twf_error_set(&err, TWF_ERR_SINGULAR, NULL, 0, 0, twf_advice_text((twf_advice)a), "x");
+    ck_assert_int_eq(twf_advice_of(&err), a);
+  }
+  twf_error_set(&err, TWF_ERR_SINGULAR, NULL, 0, 0, "some other hint", "x");
+  ck_assert_int_eq(twf_advice_of(&err), TWF_ADVICE_NONE);
+  twf_model_free(m);
+}
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("calib");
@@ -626,6 +832,10 @@ int main(void)
   tcase_add_test(fit, test_asbuilt_independent_of_order);
   tcase_add_test(fit, test_parallel_axes_well_conditioned);
   tcase_add_test(fit, test_bad_calls);
+  tcase_add_test(fit, test_registration_matches_verify_sequence);
+  tcase_add_test(fit, test_fit_screened_figures);
+  tcase_add_test(fit, test_trace);
+  tcase_add_test(fit, test_hints_without_options);
   suite_add_tcase(s, counts);
   suite_add_tcase(s, fit);
   return twf_test_run(s);

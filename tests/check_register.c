@@ -687,6 +687,78 @@ START_TEST(test_campaign_scara)
 }
 END_TEST
 
+/* The registration sequence in one call: alternation, offset copy and
+ * refinement. Targets 2 and 3 start unknown (at the flange origin), one fit
+ * row carries a gross error of 4.1 mm: the sequence recovers base and
+ * offsets exactly from the others, leaves out exactly that row and marks
+ * the measured targets known. */
+START_TEST(test_register_and_refine)
+{
+  twf_model *m = make_tf6s(), *before;
+  twf_pose B, Bf;
+  twf_campaign *c;
+  twf_registration_report rep;
+  twf_trace trace;
+  twf_error err;
+  unsigned char *excluded;
+  double truth[9];
+  size_t k, bad = 7, n_fit = 0, n_steps = 0;
+  make_base(&B);
+  c = make_campaign(m, &B, 30, NULL, 4, 311);
+  ck_assert(c->meas[bad].set == TWF_SET_FIT);
+  c->meas[bad].pos[1] += 0.0041;
+  for (k = 0; k < 3; k++)
+    memcpy(truth + 3 * k, m->targets[k].offset, sizeof(double[3]));
+  for (k = 1; k < 3; k++) {
+    memset(m->targets[k].offset, 0, sizeof m->targets[k].offset);
+    m->targets[k].offset_known = 0;
+  }
+  excluded = calloc(c->n_meas, 1);
+  twf_trace_init(&trace);
+  ck_assert_int_eq(twf_register_and_refine(m, c, NULL, NULL, &Bf, &rep, excluded, &trace, &err), TWF_OK);
+  assert_pose_close(&Bf, &B, 1e-9, 1.5);
+  for (k = 0; k < 9; k++)
+    ck_assert_msg(fabs(m->targets[k / 3].offset[k % 3] - truth[k]) <= 1e-9, "offset %zu off by %g", k,
+                  m->targets[k / 3].offset[k % 3] - truth[k]);
+  for (k = 0; k < 3; k++)
+    ck_assert(m->targets[k].offset_known);
+  ck_assert_uint_eq(rep.alternation.n_fitted, 2);
+  ck_assert(twf_stop_converged(rep.refinement.stop));
+  ck_assert_uint_eq(rep.n_excluded, 1);
+  ck_assert(rep.robust_threshold == TWF_ROBUST_THRESHOLD_DEFAULT);
+  for (k = 0; k < c->n_meas; k++) {
+    n_fit += c->meas[k].set == TWF_SET_FIT;
+    ck_assert_msg(excluded[k] == (k == bad), "row %zu excluded %d", k, excluded[k]);
+  }
+  ck_assert(n_fit > 0);
+  /* the trace: both stages, and the refinement's steps */
+  ck_assert_uint_eq(trace.n_stages, 2);
+  ck_assert_str_eq(trace.stages[0].name, "registration");
+  ck_assert_str_eq(trace.stages[1].name, "registration refinement");
+  for (k = 0; k < trace.n_stages; k++)
+    ck_assert(trace.stages[k].seconds >= 0.0 && isfinite(trace.stages[k].seconds));
+  for (k = 0; k < trace.n_steps; k++) {
+    ck_assert_str_eq(trace.steps[k].fit, "registration refinement");
+    ck_assert(trace.steps[k].damping > 0.0);
+    n_steps += trace.steps[k].round == trace.steps[trace.n_steps - 1].round;
+  }
+  ck_assert_uint_eq(n_steps, (size_t)rep.refinement.iterations);
+  twf_trace_clear(&trace);
+
+  /* a failure leaves the model as it was */
+  before = twf_model_copy(m);
+  for (k = 2; k < c->n_meas; k++)
+    c->meas[k].set = TWF_SET_CHECK;
+  ck_assert_int_eq(twf_register_and_refine(m, c, NULL, NULL, &Bf, NULL, NULL, NULL, &err), TWF_ERR_DEGENERATE);
+  for (k = 0; k < 3; k++)
+    ck_assert(memcmp(&m->targets[k], &before->targets[k], sizeof m->targets[k]) == 0);
+  twf_model_free(before);
+  free(excluded);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
 static Suite *register_suite(void)
 {
   Suite *s = suite_create("register");
@@ -702,6 +774,7 @@ static Suite *register_suite(void)
   tcase_add_test(tc, test_campaign_sigma);
   tcase_add_test(tc, test_campaign_degenerate);
   tcase_add_test(tc, test_campaign_scara);
+  tcase_add_test(tc, test_register_and_refine);
   suite_add_tcase(s, tc);
   return s;
 }

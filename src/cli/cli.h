@@ -45,6 +45,11 @@ int cli_usage_error(const char *command, const char *fmt, ...)
 /* Usage error for getopt's '?' or ':' (call with opterr = 0 and an
  * optstring starting with ':'): names the option. */
 int cli_bad_option(const char *command, int opt, char **argv);
+/* Replace a library hint that speaks of option fields (twf_advice) by the
+ * same advice in terms of the command line's options. */
+void cli_hint_options(twf_error *err);
+/* With -v: the stage timings and solver steps of a job, to stderr. */
+void cli_print_trace(const twf_trace *t);
 /* Print collected warnings to stderr (unless quiet). */
 void cli_print_warnings(const twf_warnings *w);
 

@@ -172,13 +172,14 @@ static void explain_text(const twf_calib_result *r, const twf_param_result *p, c
 typedef struct digest { const char *path; char hex[40 > SHA256_DIGEST_STRING_LENGTH ? 40 : SHA256_DIGEST_STRING_LENGTH]; } digest;
 
 static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result *r,
-                         const twf_calib_options *co, const twf_accuracy_summary *before,
-                         const twf_accuracy_summary *after, const twf_stats *screened,
-                         const twf_campaign *view, const cli_units *u, const digest *dg, size_t n_dg,
+                         const twf_calib_options *co, const cli_units *u, const digest *dg, size_t n_dg,
                          const char *created, const twf_warnings *w)
 {
   size_t j, i;
   const twf_model *m = in->model;
+  const twf_campaign *view = in->campaign;
+  const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
+  const twf_stats *screened = &r->fit_screened;
   char expl[256];
   fprintf(fp, "twistfit %s calibrate, %s\n", twf_version(), created);
   for (i = 0; i < n_dg; i++)
@@ -195,9 +196,9 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   cli_print_accuracy(fp, "Accuracy before calibration (starting model, registered)", before, m, view, u);
   fputc('\n', fp);
   cli_print_accuracy(fp, "Accuracy after calibration (as-built model)", after, m, view, u);
-  if (screened->count > 0 && screened->count < after->position[TWF_SET_FIT].count)
+  if (screened->count > 0 && r->n_dropped > 0)
     fprintf(fp, "  fit set without the %zu dropped measurements: count %zu, mean %.*f, rms %.*f, p95 %.*f, max %.*f %s\n",
-            after->position[TWF_SET_FIT].count - screened->count, screened->count, u->ldec,
+            r->n_dropped, screened->count, u->ldec,
             screened->mean / u->length_si, u->ldec, screened->rms / u->length_si, u->ldec,
             screened->p95 / u->length_si, u->ldec, screened->max / u->length_si, u->length);
   cli_print_worst(fp, after, view, m, u);
@@ -330,10 +331,11 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
 }
 
 static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
-                           const twf_accuracy_summary *before, const twf_accuracy_summary *after,
-                           const twf_stats *screened, const twf_campaign *view, const cli_units *u, const digest *dg, size_t n_dg,
-                           const char *created, const twf_warnings *w)
+                           const cli_units *u, const digest *dg, size_t n_dg, const char *created,
+                           const twf_warnings *w)
 {
+  const twf_campaign *view = in->campaign;
+  const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
   json_t *root = json_object(), *inputs = json_array(), *params = json_array(), *joints = json_array();
   json_t *warn = json_array(), *outl = json_array(), *corr = json_array(), *ident;
   size_t i, j;
@@ -370,7 +372,7 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   }
   json_object_set_new(root, "accuracy_before", cli_json_accuracy(before, m, view, u));
   json_object_set_new(root, "accuracy_after", cli_json_accuracy(after, m, view, u));
-  json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(screened, u->length_si));
+  json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(&r->fit_screened, u->length_si));
   json_object_set_new(root, "solver",
                       json_pack("{s:{s:i, s:s}, s:{s:i, s:o, s:o, s:s, s:b}, s:{s:s, s:o, s:i}}",
                                 "registration", "iterations", r->registration.iterations, "stop",
@@ -505,10 +507,7 @@ static int run_calibrate(int argc, char **argv)
   twf_calib_result *res = NULL;
   twf_warnings warnings;
   twf_error err;
-  twf_campaign view;
-  twf_measurement *meas = NULL;
-  twf_accuracy_summary *before = NULL, *after = NULL;
-  twf_stats screened;
+  const twf_accuracy_summary *before, *after;
   json_t *root = NULL;
   digest dg[6];
   size_t n_dg = 0, i, n_reader_warnings = 0;
@@ -656,29 +655,14 @@ static int run_calibrate(int argc, char **argv)
     tail.items += n_reader_warnings;
     tail.count -= n_reader_warnings;
     cli_print_warnings(&tail);
+    cli_hint_options(&err);
     status = cli_report_error(&err);
     fprintf(stderr, "twistfit: no output file was written\n");
     goto done;
   }
-
-  /* the campaign with the effective sets, for the summaries */
-  view = *in.campaign;
-  meas = malloc(view.n_meas * sizeof *meas);
-  if (meas == NULL) {
-    status = TWF_EXIT_INTERNAL;
-    goto done;
-  }
-  memcpy(meas, in.campaign->meas, view.n_meas * sizeof *meas);
-  for (i = 0; i < view.n_meas; i++)
-    meas[i].set = res->meas_set[i];
-  view.meas = meas;
-  before = twf_accuracy_summarize(&view, in.model->n_targets, res->residual_before, res->rot_before, 5, &err);
-  after = before ? twf_accuracy_summarize(&view, in.model->n_targets, res->residual_after, res->rot_after, 5, &err)
-                 : NULL;
-  if (before == NULL || after == NULL) {
-    status = cli_report_error(&err);
-    goto done;
-  }
+  cli_print_trace(&res->trace);
+  before = res->accuracy_before;
+  after = res->accuracy_after;
 
   /* metadata of the as-built model */
   {
@@ -704,63 +688,33 @@ static int run_calibrate(int argc, char **argv)
     }
   }
 
-  /* the fit set without the dropped measurements: what the fit achieved */
-  {
-    double *len = malloc((view.n_meas ? view.n_meas : 1) * sizeof *len);
-    size_t n = 0, k;
-    if (len == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    for (i = 0; i < view.n_meas; i++) {
-      int dropped = 0;
-      if (res->meas_set[i] != TWF_SET_FIT)
-        continue;
-      for (k = 0; k < res->n_outliers; k++)
-        dropped |= res->outliers[k].meas == i && res->outliers[k].weight == 0.0;
-      if (!dropped) {
-        const double *e = res->residual_after + 3 * i;
-        len[n++] = sqrt(e[0] * e[0] + e[1] * e[1] + e[2] * e[2]);
-      }
-    }
-    memset(&screened, 0, sizeof screened);
-    if (twf_accuracy_stats(len, n, &screened, &err) != TWF_OK) {
-      free(len);
-      status = cli_report_error(&err);
-      goto done;
-    }
-    free(len);
-  }
   {
     char val[64];
-    size_t dropped = 0;
-    for (i = 0; i < res->n_outliers; i++)
-      dropped += res->outliers[i].weight == 0.0;
-    snprintf(val, sizeof val, "%.6g %s", screened.rms / u.length_si, u.length);
+    snprintf(val, sizeof val, "%.6g %s", res->fit_screened.rms / u.length_si, u.length);
     twf_model_meta_set(res->asbuilt, "rms_after_fit_screened", val);
-    snprintf(val, sizeof val, "%zu", dropped);
+    snprintf(val, sizeof val, "%zu", res->n_dropped);
     twf_model_meta_set(res->asbuilt, "outliers_dropped", val);
   }
-  print_report(txt, &in, res, &co, before, after, &screened, &view, &u, dg, n_dg, created, &warnings);
+  print_report(txt, &in, res, &co, &u, dg, n_dg, created, &warnings);
   {
     cli_put puts[4];
     cli_residuals rr;
     base_file_ctx bo;
-    double *weights = malloc((view.n_meas ? view.n_meas : 1) * sizeof *weights);
+    double *weights = malloc((in.campaign->n_meas ? in.campaign->n_meas : 1) * sizeof *weights);
     size_t k;
     if (weights == NULL) {
       status = TWF_EXIT_INTERNAL;
       goto done;
     }
-    for (i = 0; i < view.n_meas; i++)
+    for (i = 0; i < in.campaign->n_meas; i++)
       weights[i] = 1.0;
     for (k = 0; k < res->n_outliers; k++)
       weights[res->outliers[k].meas] = res->outliers[k].weight;
     if (json_path != NULL)
-      root = report_json(&in, res, &co, before, after, &screened, &view, &u, dg, n_dg, created, &warnings);
+      root = report_json(&in, res, &co, &u, dg, n_dg, created, &warnings);
     memset(&rr, 0, sizeof rr);
     rr.m = in.model;
-    rr.c = &view;
+    rr.c = in.campaign;
     rr.sets = res->meas_set;
     rr.pos[0] = res->residual_before;
     rr.pos[1] = res->residual_after;
@@ -782,9 +736,6 @@ static int run_calibrate(int argc, char **argv)
 
 done:
   json_decref(root);
-  twf_accuracy_summary_free(before);
-  twf_accuracy_summary_free(after);
-  free(meas);
   twf_calib_result_free(res);
   twf_warnings_clear(&warnings);
   cli_inputs_free(&in);

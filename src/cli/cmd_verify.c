@@ -130,14 +130,14 @@ static int run_verify(int argc, char **argv)
   twf_iso9283 *iso = NULL;
   tolerance tol[4] = { { "rms", 0, 0, 0 }, { "p95", 0, 0, 0 }, { "max", 0, 0, 0 },
                        { "angle-max", 0, 0, 1 } };
-  twf_register_report rrep;
-  twf_solve_report srep;
+  twf_registration_report rrep;
+  twf_trace trace;
   FILE *txt = stdout;
   json_t *root = NULL;
 
   cli_inputs_init(&in);
   memset(&rrep, 0, sizeof rrep);
-  memset(&srep, 0, sizeof srep);
+  twf_trace_init(&trace);
   optind = 0;
   opterr = 0;
   while ((opt = getopt_long(argc, argv, ":fh", longopts, NULL)) != -1) {
@@ -229,32 +229,17 @@ static int run_verify(int argc, char **argv)
       }
   } else {
     twf_register_options ro = twf_register_default_options();
-    unsigned char *fit = calloc(in.model->n_targets ? in.model->n_targets : 1, 1);
     size_t k;
-    twf_status st;
-    if (fit == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
     ro.fit_all_offsets = fit_offsets;
-    st = twf_register_campaign(in.model, in.campaign, &ro, &base, offsets, &rrep, &err);
-    if (st == TWF_OK) {
-      for (k = 0; k < in.model->n_targets; k++) {
-        memcpy(in.model->targets[k].offset, offsets + 3 * k, sizeof in.model->targets[k].offset);
-        fit[k] = twf_register_target_is_fitted(in.model, &ro, k);
-      }
-      /* measured targets now have an offset: known for the refinement */
-      for (k = 0; k < in.campaign->n_meas; k++)
-        in.model->targets[in.campaign->meas[k].target].offset_known = 1;
-      st = twf_refine_base(in.model, in.campaign, fit, NULL, &base, &srep, excluded, &err);
-      for (k = 0; k < in.model->n_targets; k++)
-        memcpy(offsets + 3 * k, in.model->targets[k].offset, sizeof in.model->targets[k].offset);
-    }
-    free(fit);
-    if (st != TWF_OK) {
+    if (twf_register_and_refine(in.model, in.campaign, &ro, NULL, &base, &rrep, excluded, &trace, &err) !=
+        TWF_OK) {
+      cli_hint_options(&err);
       status = cli_report_error(&err);
       goto done;
     }
+    for (k = 0; k < in.model->n_targets; k++)
+      memcpy(offsets + 3 * k, in.model->targets[k].offset, sizeof in.model->targets[k].offset);
+    cli_print_trace(&trace);
   }
   if (twf_accuracy_residuals(in.model, &base, offsets, in.campaign, pos, rot, &err) != TWF_OK ||
       (summary = twf_accuracy_summarize(in.campaign, in.model->n_targets, pos, rot, (size_t)worst,
@@ -307,15 +292,14 @@ static int run_verify(int argc, char **argv)
               base.p[1] / u.length_si, u.ldec, base.p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
     }
     if (base_path == NULL) {
-      size_t k, n_ex = 0;
+      size_t k, n_ex = rrep.n_excluded;
       fprintf(txt, "registration: %u alternations%s, refinement %d iterations (%s)\n",
-              rrep.iterations, rrep.converged ? "" : " (not converged)", srep.iterations,
-              twf_stop_name(srep.stop));
-      for (k = 0; k < in.campaign->n_meas; k++)
-        n_ex += excluded[k];
+              rrep.alternation.iterations, rrep.alternation.converged ? "" : " (not converged)",
+              rrep.refinement.iterations, twf_stop_name(rrep.refinement.stop));
       if (n_ex > 0) {
-        fprintf(txt, "registration left out %zu fit-set measurement%s as gross errors (beyond 5 robust "
-                     "standard deviations; they stay in the figures below):\n", n_ex, n_ex == 1 ? "" : "s");
+        fprintf(txt, "registration left out %zu fit-set measurement%s as gross errors (beyond %g robust "
+                     "standard deviations; they stay in the figures below):\n", n_ex, n_ex == 1 ? "" : "s",
+                rrep.robust_threshold);
         for (k = 0; k < in.campaign->n_meas; k++)
           if (excluded[k]) {
             const twf_measurement *ms = &in.campaign->meas[k];
@@ -432,6 +416,7 @@ done:
   free(pos);
   free(rot);
   free(excluded);
+  twf_trace_clear(&trace);
   cli_inputs_free(&in);
   return status;
 }

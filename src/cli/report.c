@@ -16,6 +16,41 @@ const char cli_safety_text[] =
   "Follow the robot maker's procedures and local codes; the work belongs to\n"
   "qualified personnel.\n";
 
+/* ------------------------------------------------------------ hints and trace */
+
+void cli_hint_options(twf_error *err)
+{
+  const char *text = NULL;
+  switch (twf_advice_of(err)) {
+  case TWF_ADVICE_NONE: break;
+  case TWF_ADVICE_FIX_MORE: text = "fix more parameters (--fit) or measure more varied poses"; break;
+  case TWF_ADVICE_MORE_POSES: text = "measure more poses, or fit fewer groups (--fit)"; break;
+  case TWF_ADVICE_MORE_POSES_OR_SIGMA:
+    text = "measure more poses, fit fewer groups (--fit), or give the noise (--sigma)";
+    break;
+  case TWF_ADVICE_ACCEPT_LARGE:
+    text = "check the joint order and signs, the units and that the model is this arm's; "
+           "pass --accept-large if the arm really is that far from its model";
+    break;
+  }
+  if (text != NULL)
+    snprintf(err->hint, sizeof err->hint, "%s", text);
+}
+
+void cli_print_trace(const twf_trace *t)
+{
+  size_t i;
+  if (cli_verbosity < 2 || t == NULL)
+    return;
+  for (i = 0; i < t->n_stages; i++)
+    fprintf(stderr, "twistfit: stage %s: %.6f s\n", t->stages[i].name, t->stages[i].seconds);
+  for (i = 0; i < t->n_steps; i++) {
+    const twf_solver_step *s = &t->steps[i];
+    fprintf(stderr, "twistfit: solver %s, round %d, iteration %d: cost %.9g, damping %.3g, %s\n", s->fit,
+            s->round, s->iteration, s->cost, s->damping, s->accepted ? "accepted" : "rejected");
+  }
+}
+
 /* ------------------------------------------------------------ inputs */
 
 void cli_inputs_init(cli_inputs *in)

@@ -23,7 +23,9 @@ extern "C" {
  *                       metres (y_measured - B F(q) t_k).
  *   angle_err[i]:       for a 6-D row, the angle of R_meas R_model^T in
  *                       radians (R_model = R_B R_F, the flange orientation
- *                       in the tracker frame); NaN for point rows.
+ *                       in the tracker frame): the length of the
+ *                       calibration's orientation residual
+ *                       log(R_meas R_model^T); NaN for point rows.
  * Either output may be NULL (not both); both are caller-provided arrays of
  * campaign->n_meas (x 3) entries. target_offsets: n_targets x 3 metres,
  * flange frame, or NULL for the model's (then every measured target must

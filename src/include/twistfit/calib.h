@@ -30,29 +30,10 @@ typedef enum twf_robust {
   TWF_ROBUST_CAUCHY    /* Cauchy weights 1 / (1 + (u/k)^2) */
 } twf_robust;
 
-/* Why the solver stopped. */
-typedef enum twf_stop {
-  TWF_STOP_NONE = 0,    /* did not run */
-  TWF_STOP_STEP,        /* the scaled step fell below step_tol_m: converged */
-  TWF_STOP_GRADIENT,    /* the scaled gradient vanished: converged */
-  TWF_STOP_COST,        /* no step reduces the cost any more (at rounding level): converged */
-  TWF_STOP_MAXITER,     /* iteration limit reached: not converged */
-  TWF_STOP_DIVERGED,    /* the cost became non-finite or the damping exploded */
-  TWF_STOP_SINGULAR     /* the damped normal system could not be solved */
-} twf_stop;
-
-/* Stable names: "none", "step", "gradient", "cost", "max-iterations",
- * "diverged", "singular". */
-const char *twf_stop_name(twf_stop s);
-/* 1 for the converged stop reasons. */
-int twf_stop_converged(twf_stop s);
-
-typedef struct twf_solve_report {
-  int iterations;     /* accepted and rejected trial steps */
-  double cost_start;  /* 0.5 sum of squared weighted residuals, before */
-  double cost_end;    /* after */
-  twf_stop stop;
-} twf_solve_report;
+/* Relative independent part a column needs to be kept by the redundancy
+ * walks: the default of redundancy_tol, and the tolerance of the
+ * registration refinement's walk. */
+#define TWF_REDUNDANCY_TOL_DEFAULT 1e-6
 
 typedef struct twf_calib_options {
   unsigned groups;                        /* TWF_GROUP_BIT mask; default TWF_GROUPS_GEOMETRIC */
@@ -61,16 +42,19 @@ typedef struct twf_calib_options {
                            (0: unknown, estimated a posteriori from the residuals) */
   double sigma_angle;   /* rad: of one orientation component (0: sigma_length / reach) */
   twf_robust robust;    /* default TWF_ROBUST_DROP */
-  double robust_threshold; /* in robust standard deviations of the error length (default 5) */
+  double robust_threshold; /* in robust standard deviations of the error length
+                              (default TWF_ROBUST_THRESHOLD_DEFAULT) */
   double check_fraction;   /* fraction of poses held out at random as check data (default 0) */
   unsigned long long seed; /* for the held-out fraction and the synthetic pose set */
   int max_iterations;      /* LM trial steps per fit (default 100) */
   double step_tol_m;       /* converged when every scaled step is below this (default 1e-10 m) */
-  double redundancy_tol;   /* relative independent part to keep a column (default 1e-6) */
+  double redundancy_tol;   /* relative independent part to keep a column
+                              (default TWF_REDUNDANCY_TOL_DEFAULT) */
   size_t synthetic_poses;  /* poses of the rich set for structural redundancy (0: automatic) */
   double weak_ratio;       /* weak when the scaled predicted std exceeds weak_ratio * sigma (default 5) */
   int accept_large;        /* 0 (default): refuse results beyond any calibration (noise over
                               1 mm, a joint line over 5 deg or 50 mm from the model's) */
+  size_t worst_poses;      /* poses listed per set in the accuracy summaries (default 5) */
 } twf_calib_options;
 
 /* Where the sigma of the covariance came from. */
@@ -148,12 +132,24 @@ typedef struct twf_calib_result {
   unsigned char *target_in_fit; /* n_targets: 1 for a target with fit-set rows (only those are
                                    determined) */
   twf_asbuilt_comparison comparison; /* as-built lines against the starting model's */
+  /* The accuracy figures of residual_before and residual_after over the
+   * effective sets (meas_set), worst_poses per set: owned. */
+  twf_accuracy_summary *accuracy_before;
+  twf_accuracy_summary *accuracy_after;
+  /* What the fit achieved on the rows it kept: the position errors after
+   * calibration over the fit set without the dropped measurements (weight
+   * 0), and how many were dropped (fit rows only; 0 without a screen or
+   * with reweighting). */
+  twf_stats fit_screened;
+  size_t n_dropped;
+  twf_trace trace;            /* stage timings and solver steps, for a verbose report */
 } twf_calib_result;
 
 void twf_calib_result_free(twf_calib_result *r);
 
 /* Calibrate: register start to the campaign (base pose and the offsets of
- * targets declared without one), refine, then fit the chosen groups by
+ * targets declared without one) and refine (twf_register_and_refine on the
+ * effective sets), then fit the chosen groups by
  * Levenberg-Marquardt with redundant parameters fixed, screen outliers,
  * and return everything a report shows. start is not modified. On failure
  * returns the status with err filled and *out NULL. */
@@ -161,27 +157,22 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
                          const twf_calib_options *opt, twf_calib_result **out,
                          twf_warnings *warnings, twf_error *err);
 
-/* Options of twf_refine_base: take twf_refine_default_options(). */
-typedef struct twf_refine_options {
-  double sigma_length;      /* m, where rows give none (0: 0.1 mm; only weights matter) */
-  int screen;               /* 1 (default): drop gross errors as the calibration does */
-  double robust_threshold;  /* in robust standard deviations (default 5) */
-} twf_refine_options;
+/* The plain-words hints (twf_error.hint) of twf_calibrate and of the
+ * solvers it shares with twf_refine_base. A front end that has options of
+ * its own for these fields recognises the hint with twf_advice_of and may
+ * print its own wording. */
+typedef enum twf_advice {
+  TWF_ADVICE_NONE = 0,            /* another hint, or none */
+  TWF_ADVICE_FIX_MORE,            /* fix more parameters (fewer groups) or measure more varied poses */
+  TWF_ADVICE_MORE_POSES,          /* measure more poses or fit fewer groups */
+  TWF_ADVICE_MORE_POSES_OR_SIGMA, /* ... or give the noise (sigma_length) */
+  TWF_ADVICE_ACCEPT_LARGE         /* check the model and data; accept_large if really so far */
+} twf_advice;
 
-twf_refine_options twf_refine_default_options(void);
-
-/* Least-squares refinement of the base pose and of the offsets of the
- * targets flagged in fit_target (n_targets flags, NULL: none) for a fixed
- * model, on the fit set, after the closed-form registration. m's target
- * offsets are updated in place. With screening, fit rows beyond the robust
- * threshold (1.4826 MAD of the residual components) are left out and the
- * refinement repeated; excluded (n_meas flags, may be NULL) receives 1 for
- * each. Offset components the poses cannot separate from the base are
- * fixed at their start. */
-twf_status twf_refine_base(twf_model *m, const twf_campaign *c,
-                           const unsigned char *fit_target, const twf_refine_options *opt,
-                           twf_pose *base_in_tracker, twf_solve_report *report,
-                           unsigned char *excluded, twf_error *err);
+/* The library's hint text of a (never NULL; "" for TWF_ADVICE_NONE). */
+const char *twf_advice_text(twf_advice a);
+/* Which advice err->hint is (TWF_ADVICE_NONE for any other text or NULL). */
+twf_advice twf_advice_of(const twf_error *err);
 
 
 #ifdef __cplusplus

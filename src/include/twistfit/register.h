@@ -156,6 +156,126 @@ twf_status twf_register_campaign(const twf_model *model,
                                  twf_error *err);
 
 
+/* ------------------------------------------------------------------ */
+/* The least-squares solver's report (refinement and calibration)      */
+/* ------------------------------------------------------------------ */
+
+/* Why the solver stopped. */
+typedef enum twf_stop {
+  TWF_STOP_NONE = 0,    /* did not run */
+  TWF_STOP_STEP,        /* the scaled step fell below step_tol_m: converged */
+  TWF_STOP_GRADIENT,    /* the scaled gradient vanished: converged */
+  TWF_STOP_COST,        /* no step reduces the cost any more (at rounding level): converged */
+  TWF_STOP_MAXITER,     /* iteration limit reached: not converged */
+  TWF_STOP_DIVERGED,    /* the cost became non-finite or the damping exploded */
+  TWF_STOP_SINGULAR     /* the damped normal system could not be solved */
+} twf_stop;
+
+/* Stable names: "none", "step", "gradient", "cost", "max-iterations",
+ * "diverged", "singular". */
+const char *twf_stop_name(twf_stop s);
+/* 1 for the converged stop reasons. */
+int twf_stop_converged(twf_stop s);
+
+typedef struct twf_solve_report {
+  int iterations;     /* accepted and rejected trial steps */
+  double cost_start;  /* 0.5 sum of squared weighted residuals, before */
+  double cost_end;    /* after */
+  twf_stop stop;
+} twf_solve_report;
+
+/* The threshold of the gross-error screens, in robust standard deviations
+ * of the error length: the default of the refinement and the calibration. */
+#define TWF_ROBUST_THRESHOLD_DEFAULT 5.0
+
+/* Where a job's time went and how its solver moved: plain data for a
+ * verbose report, never needed for the results. Initialise with
+ * twf_trace_init, release with twf_trace_clear. */
+#define TWF_TRACE_STAGES_MAX 24
+
+typedef struct twf_stage_time {
+  const char *name;  /* static string, e.g. "registration refinement" */
+  double seconds;    /* wall time on the monotonic clock, >= 0 */
+} twf_stage_time;
+
+typedef struct twf_solver_step {
+  const char *fit;   /* static string: "registration refinement" or "calibration" */
+  int round;         /* 0: the first fit, k: the refit after the k-th screen */
+  int iteration;     /* 1-based trial step within that fit */
+  double cost;       /* cost at the trial parameters; NaN when the damped
+                        system could not be solved (the damping then rises) */
+  double damping;    /* the Levenberg-Marquardt damping of the trial */
+  int accepted;      /* 1: the step was taken */
+} twf_solver_step;
+
+typedef struct twf_trace {
+  size_t n_stages;                            /* in the order they ran */
+  twf_stage_time stages[TWF_TRACE_STAGES_MAX];
+  size_t n_steps, capacity;
+  twf_solver_step *steps;                     /* owned */
+} twf_trace;
+
+void twf_trace_init(twf_trace *t);
+void twf_trace_clear(twf_trace *t);
+
+/* ------------------------------------------------------------------ */
+/* Least-squares refinement of the registration                        */
+/* ------------------------------------------------------------------ */
+
+/* Options of twf_refine_base: take twf_refine_default_options(). */
+typedef struct twf_refine_options {
+  double sigma_length;      /* m, where rows give none (0: 0.1 mm; only weights matter) */
+  int screen;               /* 1 (default): drop gross errors as the calibration does */
+  double robust_threshold;  /* in robust standard deviations (default TWF_ROBUST_THRESHOLD_DEFAULT) */
+} twf_refine_options;
+
+twf_refine_options twf_refine_default_options(void);
+
+/* Least-squares refinement of the base pose and of the offsets of the
+ * targets flagged in fit_target (n_targets flags, NULL: none) for a fixed
+ * model, on the fit set, after the closed-form registration. m's target
+ * offsets are updated in place. With screening, fit rows beyond the robust
+ * threshold (1.4826 MAD of the residual components) are left out and the
+ * refinement repeated; excluded (n_meas flags, may be NULL) receives 1 for
+ * each. Offset components the poses cannot separate from the base are
+ * fixed at their start. */
+twf_status twf_refine_base(twf_model *m, const struct twf_campaign *c,
+                           const unsigned char *fit_target, const twf_refine_options *opt,
+                           twf_pose *base_in_tracker, twf_solve_report *report,
+                           unsigned char *excluded, twf_error *err);
+
+/* What twf_register_and_refine did. */
+typedef struct twf_registration_report {
+  twf_register_report alternation; /* the closed-form registration and offset solve */
+  twf_solve_report refinement;     /* the least-squares refinement */
+  size_t n_excluded;               /* fit rows the refinement left out as gross errors */
+  double robust_threshold;         /* their threshold, robust standard deviations
+                                      (0 when the refinement did not screen) */
+} twf_registration_report;
+
+/* The registration every job starts with, in one call: the closed-form
+ * registration alternating with the offset solve (twf_register_campaign
+ * with reg_options, NULL: defaults), then the least-squares refinement of
+ * the base and of the fitted offsets (twf_refine_base with refine_options,
+ * NULL: defaults) of the targets that twf_register_target_is_fitted names
+ * and that have fit-set rows.
+ *   model:           in/out. On success its target offsets are the refined
+ *                    ones and every target with fit-set rows is marked
+ *                    offset_known; on failure it is unchanged.
+ *   base_in_tracker: out, the refined base pose.
+ *   report:          out, may be NULL.
+ *   excluded:        n_meas flags (may be NULL): 1 for a fit row left out
+ *                    of the refinement as a gross error.
+ *   trace:           may be NULL; receives the stages "registration" and
+ *                    "registration refinement" and the refinement's steps.
+ * Returns the status of the step that failed, with err filled. */
+twf_status twf_register_and_refine(twf_model *model, const struct twf_campaign *campaign,
+                                   const twf_register_options *reg_options,
+                                   const twf_refine_options *refine_options,
+                                   twf_pose *base_in_tracker, twf_registration_report *report,
+                                   unsigned char *excluded, twf_trace *trace, twf_error *err);
+
+
 #ifdef __cplusplus
 }
 #endif

@@ -55,6 +55,25 @@ static twf_status check_offsets(const twf_model *m, const twf_campaign *c,
 /* Residuals                                                           */
 /* ------------------------------------------------------------------ */
 
+int twf_meas_residual(const twf_pose *T, const double t[3], const twf_measurement *ms,
+                      double pos[3], double rot[3])
+{
+  double y[3], Rm[3][3], E[3][3];
+  int a, b;
+  twf_pose_apply(T, t, y);
+  pos[0] = ms->pos[0] - y[0];
+  pos[1] = ms->pos[1] - y[1];
+  pos[2] = ms->pos[2] - y[2];
+  if (!ms->has_orientation)
+    return 0;
+  twf_quat_to_rot(ms->quat, Rm);
+  for (a = 0; a < 3; a++)
+    for (b = 0; b < 3; b++)
+      E[a][b] = Rm[a][0] * T->R[b][0] + Rm[a][1] * T->R[b][1] + Rm[a][2] * T->R[b][2];
+  twf_so3_log(E, rot);
+  return 1;
+}
+
 twf_status twf_accuracy_residuals(const twf_model *model,
                                   const twf_pose *base_in_tracker,
                                   const double *target_offsets,
@@ -83,30 +102,19 @@ twf_status twf_accuracy_residuals(const twf_model *model,
   t = offsets_or_model(model, target_offsets, scratch);
   for (i = 0; i < campaign->n_meas; i++) {
     const twf_measurement *me = &campaign->meas[i];
-    double y[3];
+    double pos[3], rot[3];
+    int six_d;
     if (me->pose != last_pose) {
       twf_pose F;
       twf_model_fk(model, campaign->q + me->pose * model->n_joints, NULL, &F);
       twf_pose_mul(base_in_tracker, &F, &T);
       last_pose = me->pose;
     }
-    if (pos_err != NULL) {
-      twf_pose_apply(&T, t + 3 * me->target, y);
-      pos_err[3 * i] = me->pos[0] - y[0];
-      pos_err[3 * i + 1] = me->pos[1] - y[1];
-      pos_err[3 * i + 2] = me->pos[2] - y[2];
-    }
-    if (angle_err != NULL) {
-      if (me->has_orientation) {
-        double Rm[3][3];
-        twf_quat_to_rot(me->quat, Rm);
-        /* angle of R_meas R_model^T, which equals that of
-         * R_model^T R_meas (the two are similar matrices) */
-        angle_err[i] = twf_rot_angle_between(T.R, Rm);
-      } else {
-        angle_err[i] = NAN;
-      }
-    }
+    six_d = twf_meas_residual(&T, t + 3 * me->target, me, pos, rot);
+    if (pos_err != NULL)
+      twf_v3_copy(pos, pos_err + 3 * i);
+    if (angle_err != NULL)
+      angle_err[i] = six_d ? twf_v3_norm(rot) : NAN;
   }
   free(scratch);
   return TWF_OK;

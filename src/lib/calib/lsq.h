@@ -1,0 +1,90 @@
+/* lsq.h: the least-squares machinery shared by the calibration fit and the
+ * registration refinement (internal): the problem (a working model, the
+ * error model, measurements grouped by pose, weights), the row visitors
+ * that stream the weighted Jacobian pose by pose into the normal matrix or
+ * its triangular factor, and the Levenberg-Marquardt loop. */
+#ifndef TWF_LSQ_H
+#define TWF_LSQ_H
+
+#include "internal.h"
+
+typedef struct twf_lsq_problem {
+  const twf_campaign *c;
+  size_t n_joints;
+  twf_model *m;            /* working model (owned) */
+  twf_model *trial;        /* trial copy (owned) */
+  twf_pose base;
+  twf_errmodel *em;
+  size_t p;
+  size_t *pose_start;      /* measurements grouped by pose (CSR) */
+  size_t *pose_meas;
+  double *inv_sigma;       /* per measurement, 1/m */
+  double inv_sigma_rot;    /* 1/rad */
+  double sigma_len;        /* typical sigma of a coordinate, m */
+  double *weight;          /* robust weight, 0 = dropped */
+  const unsigned char *use;/* 1: enters the fit */
+  double *rows;            /* 3 x p rows, then 3 x p gathered columns */
+  double *A, *g;           /* p x p, p */
+} twf_lsq_problem;
+
+/* Set up the problem at model m (copied) for the parameter groups, over
+ * the measurements flagged in use (borrowed: it must outlive the problem).
+ * Rows without a sigma take sigma_length; orientation rows sigma_angle
+ * (0: sigma_length / reach). The base starts at the identity: set
+ * pr->base. */
+twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campaign *c,
+                        unsigned groups, const unsigned char *use, double sigma_length,
+                        double sigma_angle, twf_error *err);
+void twf_lsq_free(twf_lsq_problem *pr);
+
+/* Copy the geometry of src into dst of the same shape (no metadata). */
+void twf_lsq_model_assign(twf_model *dst, const twf_model *src);
+
+/* 1 when measurement i enters the fit with a positive weight. */
+int twf_lsq_active(const twf_lsq_problem *pr, size_t i);
+
+/* The normal matrix A = J^T W J (nc x nc) and gradient g = J^T W r (nc)
+ * over the columns cols[0..nc) (NULL: all p) at the working model; returns
+ * the cost 0.5 r^T W r. */
+double twf_lsq_normal(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *A, double *g);
+
+/* The triangular factor R of the weighted Jacobian (R^T R = J^T W J) over
+ * the columns cols[0..nc) (R is nc x nc), streamed row by row with Givens
+ * rotations: the redundancy walks run on it. */
+void twf_lsq_factor(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *R);
+
+/* Scale A (p x p) into length units: As = D A D. */
+void twf_lsq_scale_normal(const twf_lsq_problem *pr, const double *A, double *As);
+
+/* How one Levenberg-Marquardt run is bounded and where its steps go. */
+typedef struct twf_lsq_run {
+  int max_iterations;   /* trial steps */
+  double step_tol_m;    /* converged when every scaled step is below this */
+  twf_trace *trace;     /* NULL: steps not recorded */
+  const char *name;     /* static name of the fit in the trace */
+  int round;            /* robust round in the trace */
+} twf_lsq_run;
+
+/* Levenberg-Marquardt over the columns flagged in keep; every accepted
+ * step is folded into the working model and base. value[p] accumulates the
+ * steps taken. rep receives the counts and the stop reason. */
+twf_status twf_lsq_solve(twf_lsq_problem *pr, const unsigned char *keep, const twf_lsq_run *run,
+                         double *value, twf_solve_report *rep, twf_error *err);
+
+/* Residuals of every measurement (fit and check) at model m and base B
+ * with the model's own target offsets, through twf_accuracy_residuals:
+ * pos[3 n_meas], rot[n_meas] (NaN for point rows). */
+twf_status twf_lsq_residuals(const twf_model *m, const twf_pose *B, const twf_campaign *c,
+                             double *pos, double *rot, twf_error *err);
+
+/* ------------------------------------------------------------ trace */
+
+/* Seconds on the monotonic clock (stage timings only: never a result). */
+double twf_trace_now(void);
+/* Record a stage that started at t0 (twf_trace_now). t may be NULL. */
+void twf_trace_stage(twf_trace *t, const char *name, double t0);
+/* Append a solver step; dropped when t is NULL or memory is short (a trace
+ * is a diagnostic: it never fails a job). */
+void twf_trace_step(twf_trace *t, const twf_solver_step *s);
+
+#endif

@@ -159,6 +159,52 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
                          const twf_calib_options *opt, twf_calib_result **out,
                          twf_warnings *warnings, twf_error *err);
 
+/* ------------------------------------------------------------------ */
+/* Uncertainty by resampling: a bootstrap over the fit poses           */
+/* ------------------------------------------------------------------ */
+
+typedef struct twf_resample_param {
+  size_t n;        /* refits in which the parameter was estimated */
+  double mean;     /* of its value over those refits, SI */
+  double std;      /* their sample standard deviation, SI (NaN for n < 2) */
+  double ratio;    /* std over the base result's predicted std (NaN when either is missing) */
+  int disagree;    /* 1: ratio above 2 or below 1/2 (a warning names it) */
+} twf_resample_param;
+
+/* The check-set figures of the refits (position error after calibration
+ * over the base result's check rows, m): 0 RMS, 1 p95, 2 max. */
+#define TWF_RESAMPLE_FIGURES 3
+
+typedef struct twf_resample_result {
+  size_t n_refits;            /* asked for */
+  size_t n_ok;                /* refits that calibrated (the others are refused fits) */
+  unsigned long long seed;
+  size_t n_params;            /* = the base result's */
+  twf_resample_param *params; /* owned */
+  size_t n_check;             /* refits with check rows */
+  double check_base[TWF_RESAMPLE_FIGURES]; /* the base result's figures */
+  double check_mean[TWF_RESAMPLE_FIGURES];
+  double check_std[TWF_RESAMPLE_FIGURES];
+} twf_resample_result;
+
+void twf_resample_result_free(twf_resample_result *r);
+
+/* Bootstrap the calibration base (made by twf_calibrate(start, c, opt)):
+ * n_refits times, draw as many poses as base had fit poses, with
+ * replacement, from them (refit k draws from its own splitmix stream of
+ * seed and k), keep base's check rows as they are, and calibrate again
+ * with opt (held-out fraction 0: the sets are base's). Each parameter's
+ * spread over the refits stands beside its predicted std, with a warning
+ * where they disagree by more than a factor 2; the check-set figures get
+ * their spread too. The refits run on opt->threads threads (0: one per
+ * core), one refit per thread; the result is the same bits for every
+ * thread count. */
+twf_status twf_calibrate_resample(const twf_model *start, const twf_campaign *c,
+                                  const twf_calib_options *opt, const twf_calib_result *base,
+                                  size_t n_refits, unsigned long long seed,
+                                  twf_resample_result **out, twf_warnings *warnings,
+                                  twf_error *err);
+
 /* The plain-words hints (twf_error.hint) of twf_calibrate and of the
  * solvers it shares with twf_refine_base. A front end that has options of
  * its own for these fields recognises the hint with twf_advice_of and may

@@ -95,6 +95,13 @@ twf_accuracy_summary *
 twf_accuracy_summarize(const struct twf_campaign *campaign, size_t n_targets,
                        const double *pos_err, const double *angle_err,
                        size_t k_worst, twf_error *err);
+/* The same over the measurements i with excluded[i] == 0 only (excluded
+ * NULL: every one); the excluded rows' errors are not read. */
+twf_accuracy_summary *
+twf_accuracy_summarize_kept(const struct twf_campaign *campaign, size_t n_targets,
+                            const double *pos_err, const double *angle_err,
+                            const unsigned char *excluded, size_t k_worst,
+                            twf_error *err);
 void twf_accuracy_summary_free(twf_accuracy_summary *s);
 
 /* ISO 9283:1998 pose accuracy (7.2.1) and pose repeatability (7.2.3) where

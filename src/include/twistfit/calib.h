@@ -100,6 +100,37 @@ typedef struct twf_outlier {
 
 #define TWF_CORRELATIONS_MAX 8
 
+/* The conclusion of a calibration (twf_calib_result.verdict). The rule,
+ * on the basis set (twf_verdict_basis) and with the RMS position error
+ * over the same measurements before (registered starting model) and after:
+ *   TWF_VERDICT_DO_NOT_USE    after > before: the calibrated model predicts
+ *                             worse than the start (it learnt the noise, or
+ *                             the data and the model do not match);
+ *   TWF_VERDICT_NOT_IMPROVED  after > TWF_VERDICT_IMPROVED_RATIO x before:
+ *                             less than a tenth better, not worth the
+ *                             change (keep the previous model);
+ *   TWF_VERDICT_IMPROVED      otherwise.
+ * The ratio is our own choice (no standard sets one). */
+typedef enum twf_calib_verdict {
+  TWF_VERDICT_IMPROVED = 0,
+  TWF_VERDICT_NOT_IMPROVED,
+  TWF_VERDICT_DO_NOT_USE
+} twf_calib_verdict;
+#define TWF_VERDICT_IMPROVED_RATIO 0.9
+
+/* Which figures the verdict used. */
+typedef enum twf_verdict_basis {
+  TWF_BASIS_CHECK = 0,       /* the check set, every row (none flagged) */
+  TWF_BASIS_CHECK_SCREENED,  /* the check set without its flagged gross errors */
+  TWF_BASIS_FIT              /* no check rows: the fit set the fit kept (not a
+                                validation: a fit always improves its own data) */
+} twf_verdict_basis;
+
+/* Name of a verdict ("improved", "not improved", "do not use") and of a
+ * basis ("check set", "check set without flagged rows", "fit set"). */
+const char *twf_calib_verdict_name(twf_calib_verdict v);
+const char *twf_verdict_basis_name(twf_verdict_basis b);
+
 typedef struct twf_calib_result {
   twf_model *asbuilt;         /* owned: the calibrated model (datum frame, see DEVELOPERS.md) */
   twf_pose base_in_tracker;   /* fitted base pose in the tracker frame */
@@ -131,7 +162,14 @@ typedef struct twf_calib_result {
   double *joint_range;        /* n_joints: range of each joint over the fit poses, SI */
   unsigned char *target_in_fit; /* n_targets: 1 for a target with fit-set rows (only those are
                                    determined) */
-  twf_asbuilt_comparison comparison; /* as-built lines against the starting model's */
+  /* As-built lines against the starting model's. Only what the fit could
+   * change is given: without tilts the angles, without tilts and shifts
+   * the distances, without offsets the offsets are NaN, and when no joint
+   * line was fitted (neither tilts nor shifts) the model keeps its own
+   * frame (no datum alignment, so the lines stay exactly the starting
+   * model's) and the offset is the fitted offset change (offset_raw; NaN
+   * where that parameter was fixed). */
+  twf_asbuilt_comparison comparison;
   /* The accuracy figures of residual_before and residual_after over the
    * effective sets (meas_set), worst_poses per set: owned. */
   twf_accuracy_summary *accuracy_before;
@@ -142,8 +180,38 @@ typedef struct twf_calib_result {
    * with reweighting). */
   twf_stats fit_screened;
   size_t n_dropped;
+  /* Which measurements the figures of accuracy_before and accuracy_after
+   * leave out (n_meas): 0 kept, TWF_EXCLUDED_DROPPED a fit row the screen
+   * dropped (weight 0), TWF_EXCLUDED_FLAGGED a check row whose error after
+   * calibration is beyond the screen's threshold against the fit's robust
+   * scale (a gross error such as a broken beam; never with robust OFF).
+   * The summaries are over the kept rows, so before and after compare the
+   * same measurements. */
+  unsigned char *excluded;
+  size_t n_check_flagged;
+  twf_outlier *check_flagged;  /* n_check_flagged: meas, error after (m), score; weight 1 */
+  /* Position errors of the left-out rows, before and after calibration:
+   * [TWF_SET_FIT] the dropped fit rows, [TWF_SET_CHECK] the flagged check
+   * rows (count 0 when none). */
+  twf_stats excluded_before[2], excluded_after[2];
+  /* The check set with every row, flagged ones included. */
+  twf_stats check_all_before, check_all_after;
+  /* The verdict and the figures it used (same measurements before and
+   * after): see twf_calib_verdict. */
+  twf_calib_verdict verdict;
+  twf_verdict_basis verdict_basis;
+  twf_stats verdict_before, verdict_after;
+  unsigned groups;             /* the groups fitted (the options' mask) */
+  /* n_joints: per joint, TWF_GROUP_BIT of each group with a parameter of
+   * this joint fixed because the fit poses cannot determine it
+   * (TWF_PARAM_FIXED_DATA, e.g. a joint that did not move): its figures
+   * in a report are not determined. */
+  unsigned *joint_undetermined;
   twf_trace trace;            /* stage timings and solver steps, for a verbose report */
 } twf_calib_result;
+
+#define TWF_EXCLUDED_DROPPED 1
+#define TWF_EXCLUDED_FLAGGED 2
 
 void twf_calib_result_free(twf_calib_result *r);
 

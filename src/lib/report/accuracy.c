@@ -241,6 +241,7 @@ static int cmp_worst(const void *pa, const void *pb)
  * or the angles (1, NaN rows skipped). */
 static twf_status summary_stats(const twf_campaign *c, size_t nt,
                                 const double *pos_err, const double *angle_err,
+                                const unsigned char *excluded,
                                 int which, twf_stats *overall,
                                 twf_stats *per_target)
 {
@@ -258,6 +259,8 @@ static twf_status summary_stats(const twf_campaign *c, size_t nt,
   for (i = 0; i < c->n_meas; i++) {
     const twf_measurement *me = &c->meas[i];
     size_t set = (size_t)me->set;
+    if (excluded != NULL && excluded[i])
+      continue;
     if (which == 1 && (angle_err == NULL || isnan(angle_err[i])))
       continue;
     count[set * (nt + 1) + me->target]++;
@@ -270,6 +273,8 @@ static twf_status summary_stats(const twf_campaign *c, size_t nt,
     const twf_measurement *me = &c->meas[i];
     size_t set = (size_t)me->set, keys[2], q;
     double v;
+    if (excluded != NULL && excluded[i])
+      continue;
     if (which == 1) {
       if (angle_err == NULL || isnan(angle_err[i]))
         continue;
@@ -299,6 +304,7 @@ done:
 }
 
 static twf_status summary_worst(const twf_campaign *c, const double *pos_err,
+                                const unsigned char *excluded,
                                 size_t k_worst, twf_accuracy_summary *s)
 {
   worst_item *items = malloc((c->n_poses ? c->n_poses : 1) * sizeof *items);
@@ -314,7 +320,7 @@ static twf_status summary_worst(const twf_campaign *c, const double *pos_err,
     for (i = 0; i < c->n_meas; i++) {
       const twf_measurement *me = &c->meas[i];
       double l;
-      if ((size_t)me->set != set)
+      if ((size_t)me->set != set || (excluded != NULL && excluded[i]))
         continue;
       l = twf_v3_norm(pos_err + 3 * i);
       if (l > items[me->pose].err) {
@@ -351,6 +357,17 @@ twf_accuracy_summary *twf_accuracy_summarize(const twf_campaign *campaign,
                                              const double *angle_err,
                                              size_t k_worst, twf_error *err)
 {
+  return twf_accuracy_summarize_kept(campaign, n_targets, pos_err, angle_err, NULL,
+                                     k_worst, err);
+}
+
+twf_accuracy_summary *twf_accuracy_summarize_kept(const twf_campaign *campaign,
+                                                  size_t n_targets,
+                                                  const double *pos_err,
+                                                  const double *angle_err,
+                                                  const unsigned char *excluded,
+                                                  size_t k_worst, twf_error *err)
+{
   twf_accuracy_summary *s;
   size_t i;
   if (campaign == NULL || (pos_err == NULL && campaign->n_meas > 0)) {
@@ -367,6 +384,8 @@ twf_accuracy_summary *twf_accuracy_summarize(const twf_campaign *campaign,
                     "out of range", i, me->target, me->pose, (int)me->set);
       return NULL;
     }
+    if (excluded != NULL && excluded[i])
+      continue;
     if (!isfinite(pos_err[3 * i]) || !isfinite(pos_err[3 * i + 1])
         || !isfinite(pos_err[3 * i + 2])) {
       twf_error_set(err, TWF_ERR_VALUE, NULL, me->line, 0, NULL,
@@ -382,11 +401,11 @@ twf_accuracy_summary *twf_accuracy_summarize(const twf_campaign *campaign,
   s->target_orientation = calloc(n_targets ? 2 * n_targets : 1, sizeof *s->target_orientation);
   if (!s->target_position || !s->target_orientation)
     goto nomem;
-  if (summary_stats(campaign, n_targets, pos_err, angle_err, 0, s->position,
+  if (summary_stats(campaign, n_targets, pos_err, angle_err, excluded, 0, s->position,
                     s->target_position) != TWF_OK
-      || summary_stats(campaign, n_targets, pos_err, angle_err, 1,
+      || summary_stats(campaign, n_targets, pos_err, angle_err, excluded, 1,
                        s->orientation, s->target_orientation) != TWF_OK
-      || summary_worst(campaign, pos_err, k_worst, s) != TWF_OK)
+      || summary_worst(campaign, pos_err, excluded, k_worst, s) != TWF_OK)
     goto nomem;
   return s;
 nomem:

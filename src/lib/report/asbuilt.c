@@ -155,9 +155,9 @@ static double offset_deviation(const twf_model *nm, size_t i,
   return atan2(twf_v3_dot(da, cr), twf_v3_dot(vn, fa));
 }
 
-twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
-                             twf_pose *base_in_tracker, int full_pose,
-                             twf_asbuilt_comparison *out, twf_error *err)
+static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
+                          twf_pose *base_in_tracker, int full_pose, int align,
+                          twf_asbuilt_comparison *out, twf_error *err)
 {
   size_t n = nominal->n_joints, nt = nominal->n_targets, i, np = 0, k;
   double *a = NULL, *b = NULL, L = 0.25 * twf_model_reach(nominal);
@@ -198,7 +198,7 @@ twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
   /* The points slide along the lines as the frame moves, so the rule is a
    * fixed point: iterate until the correction is at rounding level (it
    * converges linearly: some tens to hundreds of 2n-point registrations). */
-  for (round = 0; round < 2000; round++) {
+  for (round = 0; align && round < 2000; round++) {
     np = 0;
     lines_at_logged_zero(asbuilt, ad, aq);
     for (i = 0; i < n; i++) {
@@ -307,4 +307,20 @@ done:
   if (st != TWF_OK)
     twf_asbuilt_comparison_clear(out);
   return st;
+}
+
+twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
+                             twf_pose *base_in_tracker, int full_pose,
+                             twf_asbuilt_comparison *out, twf_error *err)
+{
+  return compare(nominal, asbuilt, base_in_tracker, full_pose, 1, out, err);
+}
+
+twf_status twf_asbuilt_compare(const twf_model *nominal, const twf_model *asbuilt,
+                               int full_pose, twf_asbuilt_comparison *out, twf_error *err)
+{
+  twf_pose B;
+  twf_pose_identity(&B);
+  /* without alignment neither the model nor the base pose is touched */
+  return compare(nominal, (twf_model *)asbuilt, &B, full_pose, 0, out, err);
 }

@@ -120,6 +120,11 @@ int cli_parse_bounded(const char *command, const char *option, const char *arg, 
 
 /* The safety cautions every report that proposes parameters prints. */
 extern const char cli_safety_text[];
+/* one or many by the count */
+const char *cli_plural(size_t n, const char *one, const char *many);
+/* Why a solver stopped, in plain words ("converged (the cost stopped
+ * decreasing)"). */
+const char *cli_stop_words(twf_stop s);
 
 /* Long-option codes shared by the commands that read a campaign. */
 enum {
@@ -167,6 +172,9 @@ int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, 
 void cli_inputs_free(cli_inputs *in);
 /* Add one more input file (a base pose file) to in->paths. */
 void cli_inputs_add_path(cli_inputs *in, const char *path);
+/* "FILE:LINE" of a measurement: the campaign file, or in the two-file
+ * form the points file. */
+void cli_meas_where(const cli_inputs *in, const twf_measurement *ms, char *buf, size_t n);
 
 /* The units reports use: the model's declared ones. */
 typedef struct cli_units {

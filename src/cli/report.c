@@ -13,8 +13,41 @@ const char cli_safety_text[] =
   "Safety: a changed kinematic model moves the real arm differently. Keep the\n"
   "previous parameters; verify the new ones at reduced speed with the cell's\n"
   "safety functions active; validate on held-out poses before production use.\n"
+  "Re-check the cell's safety settings that depend on the kinematics (safe\n"
+  "zones, joint and Cartesian limits, collision detection) before use.\n"
   "Follow the robot maker's procedures and local codes; the work belongs to\n"
   "qualified personnel.\n";
+
+/* ------------------------------------------------------------ words */
+
+const char *cli_plural(size_t n, const char *one, const char *many)
+{
+  return n == 1 ? one : many;
+}
+
+const char *cli_stop_words(twf_stop s)
+{
+  switch (s) {
+  case TWF_STOP_NONE: return "did not run";
+  case TWF_STOP_STEP: return "converged (the steps became negligible)";
+  case TWF_STOP_GRADIENT: return "converged (the slope of the cost vanished)";
+  case TWF_STOP_COST: return "converged (the cost stopped decreasing)";
+  case TWF_STOP_MAXITER: return "stopped at the iteration limit (not converged)";
+  case TWF_STOP_DIVERGED: return "diverged";
+  case TWF_STOP_SINGULAR: return "stopped: the system could not be solved";
+  }
+  return "?";
+}
+
+void cli_meas_where(const cli_inputs *in, const twf_measurement *ms, char *buf, size_t n)
+{
+  /* in the two-file form the line is in the points file */
+  const char *file = in->data_path ? in->data_path : in->points_path;
+  if (ms->line > 0)
+    snprintf(buf, n, "%s:%ld", file ? file : "?", ms->line);
+  else
+    snprintf(buf, n, "%s", file ? file : "?");
+}
 
 /* ------------------------------------------------------------ hints and trace */
 

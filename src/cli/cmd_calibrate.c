@@ -414,24 +414,30 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     fputc('\n', fp);
     for (j = 0; j < m->n_joints; j++) {
       const twf_joint_deviation *d = &r->comparison.joints[j];
-      int nd = r->joint_undetermined[j] != 0;
+      unsigned und = r->joint_undetermined[j];
+      int nd_tilt = (und & TWF_GROUP_BIT(TWF_GROUP_TILTS)) != 0;
+      int nd_line = (und & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
+      int nd_off = (und & TWF_GROUP_BIT(TWF_GROUP_OFFSETS)) != 0;
       fprintf(fp, "  %-8s", m->joints[j].name);
       if (show_tilt) {
-        if (nd) fprintf(fp, " %14s", "n/d");
+        if (nd_tilt) fprintf(fp, " %14s", "n/d");
         else fprintf(fp, " %14.*f", u->adec, d->angle_rad / u->angle_si);
       }
       if (lines_fitted) {
-        if (nd) fprintf(fp, " %14s", "n/d");
+        if (nd_line) fprintf(fp, " %14s", "n/d");
         else fprintf(fp, " %14.*f", u->ldec, d->distance_m / u->length_si);
       }
       if (show_offset) {
-        if (nd || !isfinite(d->offset)) fprintf(fp, " %14s", nd ? "n/d" : "-");
+        if (nd_off || !isfinite(d->offset)) fprintf(fp, " %14s", nd_off ? "n/d" : "-");
         else fprintf(fp, " %14.*f", u->adec, d->offset / u->angle_si);
       }
-      if (nd)
-        fprintf(fp, "  (not determined: the joint moved through only %.3g %s in the fit poses)",
+      if (und) {
+        char gt[96];
+        groups_text(und, gt, sizeof gt);
+        fprintf(fp, "  (n/d: not determined by these poses (%s; joint range %.3g %s); see the warnings)", gt,
                 r->joint_range[j] / (m->joints[j].type == TWF_JOINT_REVOLUTE ? u->angle_si : u->length_si),
                 m->joints[j].type == TWF_JOINT_REVOLUTE ? u->angle : u->length);
+      }
       else if (m->joints[j].type != TWF_JOINT_REVOLUTE)
         fprintf(fp, "  (prismatic: direction only)");
       else if (show_offset && !isfinite(d->offset))

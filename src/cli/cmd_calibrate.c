@@ -850,6 +850,12 @@ static int run_calibrate(int argc, char **argv)
       (status = cli_parse_bounded("calibrate", "--sigma-angle", sigma_angle_text, u.angle_si, u.angle, 1e-9, 1.0,
                                   &co.sigma_angle)) != 0)
     goto done;
+  /* as verify treats --tol-angle-max: an orientation option without 6-D
+   * rows is a mistake, not a no-op */
+  if (sigma_angle_text != NULL && !in.campaign->has_orientation_any) {
+    status = cli_usage_error("calibrate", "--sigma-angle needs 6-D rows (with a quaternion); the campaign has none");
+    goto done;
+  }
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;
   /* refuse outputs that would fail before the work is done: a failed run

@@ -872,6 +872,33 @@ START_TEST(test_record_history)
 }
 END_TEST
 
+START_TEST(test_check_limits)
+{
+  /* joint 2 put outside its limits: counted, and one warning in the
+   * model's units naming where */
+  twf_model *m = test_arm_model(ARM_TF6S);
+  double q[6] = { 0, 0, 0, 0, 0, 0 };
+  twf_warnings w;
+  twf_warnings_init(&w);
+  m->joints[1].has_limits = 1;
+  m->joints[1].limit_lo = -0.5;
+  m->joints[1].limit_hi = 0.5;
+  ck_assert_uint_eq(twf_model_check_limits(m, q, "the home pose", &w), 0);
+  q[1] = 0.5; /* inclusive */
+  ck_assert_uint_eq(twf_model_check_limits(m, q, "the home pose", &w), 0);
+  q[1] = 0.6;
+  ck_assert_uint_eq(twf_model_check_limits(m, q, "pose p1", &w), 1);
+  ck_assert_uint_eq(w.count, 1);
+  ck_assert_msg(strstr(w.items[0].message, "pose p1: joint") != NULL &&
+                    strstr(w.items[0].message, "is outside its limits") != NULL,
+                "%s", w.items[0].message);
+  ck_assert_uint_eq(twf_model_check_limits(m, q, NULL, NULL), 1);
+  ck_assert_uint_eq(twf_model_check_limits(NULL, q, NULL, NULL), 0);
+  twf_warnings_clear(&w);
+  twf_model_free(m);
+}
+END_TEST
+
 START_TEST(test_trace)
 {
   /* every stage timed once, in order, and the steps of the last fit add
@@ -996,6 +1023,7 @@ int main(void)
   tcase_add_test(fit, test_check_gross_error_flagged);
   tcase_add_test(fit, test_verdict);
   tcase_add_test(fit, test_record_history);
+  tcase_add_test(fit, test_check_limits);
   tcase_add_test(fit, test_trace);
   tcase_add_test(fit, test_hints_without_options);
   suite_add_tcase(s, counts);

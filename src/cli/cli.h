@@ -190,6 +190,11 @@ void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary 
 void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign *c,
                      const twf_model *m, const cli_units *u);
 json_t *cli_json_number(double v);
+/* v, or 0 when |v| < zero (rounding left-overs); never -0. */
+double cli_clean(double v, double zero);
+/* The quaternion w x y z every output prints: w >= 0 (for w = 0, the
+ * first nonzero component positive), components below 1e-12 as 0. */
+void cli_quat_of(const double R[3][3], double q[4]);
 /* {position: [x y z] (length unit), quaternion_wxyz: [...]} */
 json_t *cli_json_pose(const twf_pose *T, const cli_units *u);
 json_t *cli_json_stats(const twf_stats *s, double unit);

@@ -341,7 +341,7 @@ static int run_verify(int argc, char **argv)
     }
     {
       double q[4];
-      twf_rot_to_quat(base.R, q);
+      cli_quat_of(base.R, q);
       fprintf(txt, "base pose in the instrument frame (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
               base_path ? "given" : "registered", u.ldec, base.p[0] / u.length_si, u.ldec,
               base.p[1] / u.length_si, u.ldec, base.p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);

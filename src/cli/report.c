@@ -254,10 +254,33 @@ void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign
 
 /* ------------------------------------------------------------ JSON */
 
+double cli_clean(double v, double zero)
+{
+  /* "+ 0.0" turns -0 into 0 */
+  return fabs(v) < zero ? 0.0 : v + 0.0;
+}
+
+void cli_quat_of(const double R[3][3], double q[4])
+{
+  int k;
+  twf_rot_to_quat(R, q);
+  for (k = 0; k < 4; k++)
+    q[k] = cli_clean(q[k], 1e-12);
+  /* one convention: w > 0, or for w = 0 (a half turn) the first nonzero
+   * component positive, so that one rotation always prints one way */
+  if (q[0] == 0.0) {
+    for (k = 1; k < 4 && q[k] == 0.0; k++)
+      ;
+    if (k < 4 && q[k] < 0)
+      for (k = 1; k < 4; k++)
+        q[k] = cli_clean(-q[k], 1e-12);
+  }
+}
+
 json_t *cli_json_pose(const twf_pose *T, const cli_units *u)
 {
   double q[4];
-  twf_rot_to_quat(T->R, q);
+  cli_quat_of(T->R, q);
   return json_pack("{s:[o,o,o], s:[o,o,o,o]}", "position", cli_json_number(T->p[0] / u->length_si),
                    cli_json_number(T->p[1] / u->length_si), cli_json_number(T->p[2] / u->length_si),
                    "quaternion_wxyz", cli_json_number(q[0]), cli_json_number(q[1]), cli_json_number(q[2]),

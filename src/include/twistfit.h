@@ -29,6 +29,7 @@
 #include "twistfit/common.h"
 #include "twistfit/se3.h"
 #include "twistfit/model.h"
+#include "twistfit/limits.h"
 #include "twistfit/campaign.h"
 #include "twistfit/io.h"
 #include "twistfit/errmodel.h"

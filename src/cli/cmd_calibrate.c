@@ -28,7 +28,7 @@ static const char calibrate_help[] =
   "Options:\n"
   CLI_INPUT_HELP
   "  -o, --output FILE       write the as-built model (model file, axis-and-point form)\n"
-  "      --base-output FILE  write the fitted base pose in the tracker frame\n"
+  "      --base-output FILE  write the fitted base pose in the instrument frame\n"
   "      --json FILE         write the report as JSON ('-': standard output, then the\n"
   "                          text report goes to standard error)\n"
   "      --residuals FILE    write the per-measurement residuals before and after (CSV)\n"
@@ -558,6 +558,10 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                                : r->sigma_source == TWF_SIGMA_FROM_ROWS ? "rows"
                                                                                         : "given",
                                                "estimated", r->sigma_source == TWF_SIGMA_ESTIMATED));
+  /* base_in_tracker: the older name, kept for existing readers */
+  json_object_set_new(root, "base_in_instrument",
+                      json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
+                                cli_json_pose(&r->base_in_tracker, u)));
   json_object_set_new(root, "base_in_tracker",
                       json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
                                 cli_json_pose(&r->base_in_tracker, u)));

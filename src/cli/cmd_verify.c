@@ -26,7 +26,7 @@ static const char verify_help[] =
   "\n"
   "Options:\n"
   CLI_INPUT_HELP
-  "      --base FILE         use this base pose (tracker frame) instead of registering;\n"
+  "      --base FILE         use this base pose (instrument frame) instead of registering;\n"
   "                          every measured target then needs an offset in MODEL\n"
   "      --fit-offsets       fit every target's offset in the registration (default:\n"
   "                          only targets declared without an offset)\n"
@@ -390,6 +390,8 @@ static int run_verify(int argc, char **argv)
       json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
       json_object_set_new(root, "command", json_string("verify"));
       json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
+      /* base_in_tracker: the older name, kept for existing readers */
+      json_object_set_new(root, "base_in_instrument", cli_json_pose(&base, &u));
       json_object_set_new(root, "base_in_tracker", cli_json_pose(&base, &u));
       json_object_set_new(root, "base_source", json_string(base_path ? "given" : "registered"));
       json_object_set_new(root, "accuracy", cli_json_accuracy(summary, in.model, in.campaign, &u));

@@ -14,8 +14,8 @@ fail=0
 
 # options named in text on stdin: --long and -x (a lone letter)
 options() {
-  grep -o -E '(^|[^-a-zA-Z0-9])(--[a-z][a-z-]*|-[a-zA-Z])([^a-zA-Z-]|$)' |
-    grep -o -E -- '--[a-z][a-z-]*|-[a-zA-Z]' | sort -u
+  grep -o -E '(^|[^-a-zA-Z0-9])(--[a-z][a-z0-9-]*|-[a-zA-Z])([^a-zA-Z-]|$)' |
+    grep -o -E -- '--[a-z][a-z0-9-]*|-[a-zA-Z]' | sort -u
 }
 
 # the .TP definitions of a man section, from the line matching $1 to the

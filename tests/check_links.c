@@ -744,6 +744,7 @@ START_TEST(test_reference)
     for (int v = 0; v < NV; v++)
       ck_assert(fabs(value_diff(v, l.rows[k].reference[v], ln.rows[k].value[v])) < 1e-12);
   }
+  twf_links_clear(&ln);
   links_ok(m, 1, 1, NULL, &ln);
   ck_assert(isnan(ln.rows[1].reference[TWF_LINK_A]));
   twf_links_clear(&l);

@@ -19,12 +19,12 @@ twf_status twf_creader_check_nf(creader *r, const twf_csv_row *row)
             "or extra delimiter";
   if (row->nf < r->nh)
     return twf_creader_error(r, row, (long)row->nf + 1, TWF_ERR_SYNTAX, hint,
-                "the row has %zu fields but the header has %zu: column '%s' "
-                "(field %zu) and any after it are missing", row->nf, r->nh,
-                r->hname[row->nf], row->nf + 1);
+                             "the row has %zu fields but the header has %zu: column '%s' "
+                             "(field %zu) and any after it are missing", row->nf, r->nh,
+                             r->hname[row->nf], row->nf + 1);
   if (row->nf > r->nh)
     return twf_creader_error(r, row, (long)r->nh + 1, TWF_ERR_SYNTAX, hint,
-                "the row has %zu fields but the header has %zu", row->nf, r->nh);
+                             "the row has %zu fields but the header has %zu", row->nf, r->nh);
   return TWF_OK;
 }
 
@@ -75,11 +75,11 @@ static twf_status field_number(creader *r, const twf_csv_row *row, long col,
     n--;
   if (n == 0)
     return twf_creader_error(r, row, col, TWF_ERR_MISSING, "fill in the value",
-                "column '%s' is empty; a number is needed", twf_creader_colname(r, col));
+                             "column '%s' is empty; a number is needed", twf_creader_colname(r, col));
   if (n >= sizeof text)
     return twf_creader_error(r, row, col, TWF_ERR_VALUE, "write a plain decimal number",
-                "column '%s': the value is too long to be a number",
-                twf_creader_colname(r, col));
+                             "column '%s': the value is too long to be a number",
+                             twf_creader_colname(r, col));
   memcpy(text, f, n);
   text[n] = '\0';
   comma = strchr(text, ',');
@@ -88,23 +88,23 @@ static twf_status field_number(creader *r, const twf_csv_row *row, long col,
     *comma = '.'; /* a decimal comma */
   if (looks_nonfinite(text))
     return twf_creader_error(r, row, col, TWF_ERR_VALUE,
-                "replace the value by a measured one, or drop the row",
-                "column '%s': '%s' is not a finite number", twf_creader_colname(r, col),
-                text);
+                             "replace the value by a measured one, or drop the row",
+                             "column '%s': '%s' is not a finite number", twf_creader_colname(r, col),
+                             text);
   if (!number_syntax(text))
     return twf_creader_error(r, row, col, TWF_ERR_VALUE,
-                r->delim == ';'
-                    ? "write a decimal number such as 12.5 or 12,5"
-                    : "write a decimal number such as 12.5 (a decimal comma "
-                      "only with ';' as delimiter)",
-                "column '%s': '%s' is not a number", twf_creader_colname(r, col), text);
+                             r->delim == ';'
+                                 ? "write a decimal number such as 12.5 or 12,5"
+                                 : "write a decimal number such as 12.5 (a decimal comma "
+                                   "only with ';' as delimiter)",
+                             "column '%s': '%s' is not a number", twf_creader_colname(r, col), text);
   errno = 0;
   v = strtod(text, &endp);
   if (*endp != '\0' || !isfinite(v))
     return twf_creader_error(r, row, col, TWF_ERR_VALUE,
-                "replace the value by a measured one, or drop the row",
-                "column '%s': '%s' is not a finite number", twf_creader_colname(r, col),
-                text);
+                             "replace the value by a measured one, or drop the row",
+                             "column '%s': '%s' is not a finite number", twf_creader_colname(r, col),
+                             text);
   *out = v;
   return TWF_OK;
 }
@@ -124,18 +124,18 @@ twf_status twf_creader_field_id(creader *r, const twf_csv_row *row, long col,
   const char *s;
   if (f[0] == '\0')
     return twf_creader_error(r, row, col, TWF_ERR_MISSING, "fill in the field",
-                "column '%s' is empty; a %s is needed", twf_creader_colname(r, col), what);
+                             "column '%s' is empty; a %s is needed", twf_creader_colname(r, col), what);
   /* A line break in an id would break every report that prints it. */
   for (s = f; *s; s++)
     if ((unsigned char)*s < 0x20 || *s == 0x7f)
       return twf_creader_error(r, row, col, TWF_ERR_VALUE,
-                  "remove line breaks and tabs from ids (check the quotes)",
-                  "column '%s': the %s contains a control character",
-                  twf_creader_colname(r, col), what);
+                               "remove line breaks and tabs from ids (check the quotes)",
+                               "column '%s': the %s contains a control character",
+                               twf_creader_colname(r, col), what);
   if (twf_strlcpy(out, f, TWF_NAME_MAX) != 0)
     return twf_creader_error(r, row, col, TWF_ERR_VALUE, "shorten it",
-                "column '%s': the %s is longer than %d bytes", twf_creader_colname(r, col),
-                what, TWF_NAME_MAX - 1);
+                             "column '%s': the %s is longer than %d bytes", twf_creader_colname(r, col),
+                             what, TWF_NAME_MAX - 1);
   return TWF_OK;
 }
 
@@ -156,17 +156,17 @@ twf_status twf_creader_field_target(creader *r, const twf_csv_row *row,
   }
   if (r->m->n_targets == 0)
     return twf_creader_error(r, row, col, TWF_ERR_UNKNOWN,
-                "declare the targets in the model file",
-                "target '%s' is not declared: the model declares no targets",
-                name);
+                             "declare the targets in the model file",
+                             "target '%s' is not declared: the model declares no targets",
+                             name);
   list[0] = '\0';
   for (k = 0; k < r->m->n_targets; k++)
     twf_io_appendf(list, sizeof list, "%s%s", k ? ", " : "", r->m->targets[k].name);
   return twf_creader_error(r, row, col, TWF_ERR_UNKNOWN,
-              "name each target as in the model (names are case-sensitive), "
-              "or declare it in the model",
-              "target '%s' is not declared by the model; the declared targets "
-              "are %s", name, list);
+                           "name each target as in the model (names are case-sensitive), "
+                           "or declare it in the model",
+                           "target '%s' is not declared by the model; the declared targets "
+                           "are %s", name, list);
 }
 
 twf_status twf_creader_field_joints(creader *r, const twf_csv_row *row,
@@ -198,8 +198,8 @@ twf_status twf_creader_field_set(creader *r, const twf_csv_row *row, int *set)
     *set = TWF_SET_CHECK;
   else
     return twf_creader_error(r, row, col, TWF_ERR_VALUE,
-                "use 'fit' or 'check', or leave it empty for 'fit'",
-                "column 'set': '%s' is not a set name", f);
+                             "use 'fit' or 'check', or leave it empty for 'fit'",
+                             "column 'set': '%s' is not a set name", f);
   return TWF_OK;
 }
 
@@ -225,10 +225,10 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
       for (i = 0; i < 4 && !field_empty(row, r->col[COL_QW + i]); i++)
         ;
       return twf_creader_error(r, row, r->col[COL_QW + i], TWF_ERR_MISSING,
-                  "give all four of qw qx qy qz, or leave all four empty for "
-                  "a position-only row",
-                  "column '%s' is empty but other quaternion fields are not",
-                  twf_creader_colname(r, r->col[COL_QW + i]));
+                               "give all four of qw qx qy qz, or leave all four empty for "
+                               "a position-only row",
+                               "column '%s' is empty but other quaternion fields are not",
+                               twf_creader_colname(r, r->col[COL_QW + i]));
     }
     if (n_empty == 0) {
       double norm;
@@ -241,11 +241,11 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
                   ms->quat[2] * ms->quat[2] + ms->quat[3] * ms->quat[3]);
       if (!(fabs(norm - 1.0) <= QUAT_NORM_TOL))
         return twf_creader_error(r, row, r->col[COL_QW], TWF_ERR_VALUE,
-                    "check the column order (qw qx qy qz) and write the "
-                    "quaternion with at least 7 significant digits",
-                    "the quaternion (%.9g %.9g %.9g %.9g) has norm %.9g, not 1 "
-                    "within %g", ms->quat[0], ms->quat[1], ms->quat[2],
-                    ms->quat[3], norm, QUAT_NORM_TOL);
+                                 "check the column order (qw qx qy qz) and write the "
+                                 "quaternion with at least 7 significant digits",
+                                 "the quaternion (%.9g %.9g %.9g %.9g) has norm %.9g, not 1 "
+                                 "within %g", ms->quat[0], ms->quat[1], ms->quat[2],
+                                 ms->quat[3], norm, QUAT_NORM_TOL);
       for (i = 0; i < 4; i++)
         ms->quat[i] /= norm;
       ms->has_orientation = 1;
@@ -258,23 +258,23 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
       return st;
     if (s < 0)
       return twf_creader_error(r, row, r->col[COL_SIGMA], TWF_ERR_VALUE,
-                  "give the standard deviation as a positive number",
-                  "column 'sigma': %g is negative", s);
+                               "give the standard deviation as a positive number",
+                               "column 'sigma': %g is negative", s);
     if (s == 0)
       return twf_creader_error(r, row, r->col[COL_SIGMA], TWF_ERR_VALUE,
-                  "leave the field empty when the standard deviation is not "
-                  "known",
-                  "column 'sigma': a standard deviation of 0 gives infinite "
-                  "weight");
+                               "leave the field empty when the standard deviation is not "
+                               "known",
+                               "column 'sigma': a standard deviation of 0 gives infinite "
+                               "weight");
     ms->sigma = s * r->len_si;
     /* 1 nm to 1 m spans every instrument; outside it the value is a slip
      * (a unit, a variance for a standard deviation) and would wreck the
      * weights */
     if (ms->sigma < 1e-9 || ms->sigma > 1.0)
       return twf_creader_error(r, row, r->col[COL_SIGMA], TWF_ERR_VALUE,
-                  "give the standard deviation of one coordinate in the file's length unit "
-                  "(between 1 nm and 1 m)",
-                  "column 'sigma': %g is outside 1 nm to 1 m", s);
+                               "give the standard deviation of one coordinate in the file's length unit "
+                               "(between 1 nm and 1 m)",
+                               "column 'sigma': %g is outside 1 nm to 1 m", s);
   }
   st = twf_creader_field_set(r, row, set);
   if (st != TWF_OK)

@@ -189,8 +189,8 @@ twf_status twf_creader_map_header(creader *r, const twf_csv_in *in,
     long ji = -1;
     if (name[0] == '\0')
       return twf_creader_error(r, row, col, TWF_ERR_SYNTAX,
-                  "give every column a name, or remove the extra delimiter",
-                  "header field %ld has no column name", col);
+                               "give every column a name, or remove the extra delimiter",
+                               "header field %ld has no column name", col);
     if (role < 0) {
       ji = twf_model_joint_index(r->m, name);
       if (ji >= 0)
@@ -207,55 +207,55 @@ twf_status twf_creader_map_header(creader *r, const twf_csv_in *in,
                "or use the one-file form";
       known_columns(r, known, sizeof known);
       return twf_creader_error(r, row, col, TWF_ERR_UNKNOWN, hint,
-                  "unknown column '%s' in the %s; the known columns are %s",
-                  name, kind_label(r->kind), known);
+                               "unknown column '%s' in the %s; the known columns are %s",
+                               name, kind_label(r->kind), known);
     }
     if (role == COL_JOINT) {
       if (r->jcol[ji] != 0)
         return twf_creader_error(r, row, col, TWF_ERR_DUPLICATE, "keep one column per name",
-                    "column '%s' appears twice (fields %ld and %ld)", name,
-                    r->jcol[ji], col);
+                                 "column '%s' appears twice (fields %ld and %ld)", name,
+                                 r->jcol[ji], col);
       r->jcol[ji] = col;
     } else {
       if (r->col[role] != 0)
         return twf_creader_error(r, row, col, TWF_ERR_DUPLICATE, "keep one column per name",
-                    "column '%s' appears twice (fields %ld and %ld)", name,
-                    r->col[role], col);
+                                 "column '%s' appears twice (fields %ld and %ld)", name,
+                                 r->col[role], col);
       r->col[role] = col;
     }
   }
   /* Required columns, in the order a reader of the message expects. */
   if (r->col[COL_POSE] == 0)
     return twf_creader_error(r, row, 0, TWF_ERR_MISSING, "add a 'pose' column of pose ids",
-                "the %s has no 'pose' column", kind_label(r->kind));
+                             "the %s has no 'pose' column", kind_label(r->kind));
   if (r->kind != KIND_JOINTS && r->col[COL_TARGET] == 0)
     return twf_creader_error(r, row, 0, TWF_ERR_MISSING,
-                "add a 'target' column naming the model's target of each row",
-                "the %s has no 'target' column", kind_label(r->kind));
+                             "add a 'target' column naming the model's target of each row",
+                             "the %s has no 'target' column", kind_label(r->kind));
   if (r->kind != KIND_POINTS)
     for (j = 0; j < r->m->n_joints; j++)
       if (r->jcol[j] == 0)
         return twf_creader_error(r, row, 0, TWF_ERR_MISSING,
-                    "add one column per model joint, named as in the model",
-                    "the %s has no column for joint '%s' of the model",
-                    kind_label(r->kind), r->m->joints[j].name);
+                                 "add one column per model joint, named as in the model",
+                                 "the %s has no column for joint '%s' of the model",
+                                 kind_label(r->kind), r->m->joints[j].name);
   if (r->kind != KIND_JOINTS) {
     int i, nq = 0;
     for (i = COL_X; i <= COL_Z; i++)
       if (r->col[i] == 0)
         return twf_creader_error(r, row, 0, TWF_ERR_MISSING,
-                    "add the measured coordinates as columns x, y, z",
-                    "the %s has no '%s' column", kind_label(r->kind),
-                    twf_creader_role_name[i]);
+                                 "add the measured coordinates as columns x, y, z",
+                                 "the %s has no '%s' column", kind_label(r->kind),
+                                 twf_creader_role_name[i]);
     for (i = COL_QW; i <= COL_QZ; i++)
       nq += r->col[i] != 0;
     if (nq != 0 && nq != 4)
       for (i = COL_QW; i <= COL_QZ; i++)
         if (r->col[i] == 0)
           return twf_creader_error(r, row, 0, TWF_ERR_MISSING,
-                      "give all four quaternion columns qw qx qy qz, or none",
-                      "the %s has quaternion columns but no '%s' column",
-                      kind_label(r->kind), twf_creader_role_name[i]);
+                                   "give all four quaternion columns qw qx qy qz, or none",
+                                   "the %s has quaternion columns but no '%s' column",
+                                   kind_label(r->kind), twf_creader_role_name[i]);
   }
   return TWF_OK;
 }

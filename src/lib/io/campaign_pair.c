@@ -18,9 +18,9 @@ twf_status twf_creader_row_joints(creader *r, const twf_csv_row *row)
   pose = twf_idmap_find(&r->poses, r->c->pose_ids, id);
   if (pose != NONE)
     return twf_creader_error(r, row, r->col[COL_POSE], TWF_ERR_DUPLICATE,
-                "give every pose of the joints file its own id",
-                "pose '%s' appears twice in the joints file (first at line %ld)",
-                id, r->c->pose_lines[pose]);
+                             "give every pose of the joints file its own id",
+                             "pose '%s' appears twice in the joints file (first at line %ld)",
+                             id, r->c->pose_lines[pose]);
   if ((st = twf_creader_pose_add(r, id, r->qbuf, row->line, &pose)) != TWF_OK)
     return st;
   r->pose_set[pose] = set;

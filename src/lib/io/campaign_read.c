@@ -75,10 +75,10 @@ twf_status twf_creader_pair_check(creader *r, const twf_csv_row *row,
   long *first = &r->pt_line[pose * r->m->n_targets + target];
   if (*first != 0)
     return twf_creader_error(r, row, r->col[COL_TARGET], TWF_ERR_DUPLICATE,
-                "measure each target once per pose; give repeated visits "
-                "their own pose ids",
-                "pose '%s' target '%s' appears twice (first at line %ld)",
-                r->c->pose_ids[pose], r->m->targets[target].name, *first);
+                             "measure each target once per pose; give repeated visits "
+                             "their own pose ids",
+                             "pose '%s' target '%s' appears twice (first at line %ld)",
+                             r->c->pose_ids[pose], r->m->targets[target].name, *first);
   *first = row->line;
   return TWF_OK;
 }
@@ -112,13 +112,13 @@ static twf_status row_one(creader *r, const twf_csv_row *row)
     for (j = 0; j < nj; j++)
       if (q0[j] != r->qbuf[j])
         return twf_creader_error(r, row, r->jcol[j], TWF_ERR_VALUE,
-                    "every row of a pose repeats its joint values; give "
-                    "different poses different ids",
-                    "pose '%s' repeats with other joint values: '%s' is %.10g "
-                    "%s here but %.10g %s at line %ld", id,
-                    r->m->joints[j].name, r->qbuf[j] / r->joint_si[j],
-                    joint_unit_name(r, j), q0[j] / r->joint_si[j],
-                    joint_unit_name(r, j), r->c->pose_lines[pose]);
+                                 "every row of a pose repeats its joint values; give "
+                                 "different poses different ids",
+                                 "pose '%s' repeats with other joint values: '%s' is %.10g "
+                                 "%s here but %.10g %s at line %ld", id,
+                                 r->m->joints[j].name, r->qbuf[j] / r->joint_si[j],
+                                 joint_unit_name(r, j), q0[j] / r->joint_si[j],
+                                 joint_unit_name(r, j), r->c->pose_lines[pose]);
   }
   if ((st = twf_creader_pair_check(r, row, pose, target)) != TWF_OK)
     return st;

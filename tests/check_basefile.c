@@ -158,6 +158,20 @@ START_TEST(test_strict_lines)
 }
 END_TEST
 
+/* The reader converts with units.c: 3.1 mm is a value where 3.1 / 1e3
+ * and 3.1 * 1e-3 differ in the last bit. */
+START_TEST(test_one_unit_conversion)
+{
+  twf_pose R;
+  twf_error err;
+  write_text("[base]\nlength_unit = mm\nposition = 3.1 0 -3.1\nquaternion_wxyz = 1 0 0 0\n");
+  ck_assert_int_eq(twf_base_read(path, &R, &err), TWF_OK);
+  ck_assert(R.p[0] == twf_length_to_si(3.1, TWF_LENGTH_MM));
+  ck_assert(R.p[2] == twf_length_to_si(-3.1, TWF_LENGTH_MM));
+  unlink(path);
+}
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("basefile");
@@ -166,6 +180,7 @@ int main(void)
   tcase_add_test(tc, test_indented_and_comments);
   tcase_add_test(tc, test_bad_files);
   tcase_add_test(tc, test_strict_lines);
+  tcase_add_test(tc, test_one_unit_conversion);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

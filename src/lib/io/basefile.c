@@ -129,22 +129,23 @@ twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error 
                          "incomplete base pose file");
   twf_quat_to_rot(c.quat, base_in_tracker->R);
   for (a = 0; a < 3; a++)
-    base_in_tracker->p[a] = c.pos[a] * twf_length_unit_si(c.unit);
+    base_in_tracker->p[a] = twf_length_to_si(c.pos[a], c.unit);
   return TWF_OK;
 }
 
 twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,
                           const char *comment, FILE *out, twf_error *err)
 {
-  double q[4], s = twf_length_unit_si(u);
+  double q[4];
   twf_rot_to_quat(base_in_tracker->R, q);
   if (comment != NULL)
     fprintf(out, "; %s\n", comment);
   fprintf(out, "; robot base frame in the tracker frame (x_tracker = R x_base + p)\n"
                "[base]\nlength_unit = %s\nposition = %.17g %.17g %.17g\n"
                "quaternion_wxyz = %.17g %.17g %.17g %.17g\n",
-          twf_length_unit_name(u), base_in_tracker->p[0] / s, base_in_tracker->p[1] / s,
-          base_in_tracker->p[2] / s, q[0], q[1], q[2], q[3]);
+          twf_length_unit_name(u), twf_length_from_si(base_in_tracker->p[0], u),
+          twf_length_from_si(base_in_tracker->p[1], u),
+          twf_length_from_si(base_in_tracker->p[2], u), q[0], q[1], q[2], q[3]);
   if (ferror(out))
     return twf_error_set(err, TWF_ERR_IO, NULL, 0, 0, NULL, "cannot write the base pose");
   return TWF_OK;

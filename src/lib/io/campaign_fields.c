@@ -178,7 +178,7 @@ twf_status twf_creader_field_joints(creader *r, const twf_csv_row *row,
     twf_status st = field_number(r, row, r->jcol[j], &v);
     if (st != TWF_OK)
       return st;
-    q[j] = v * r->joint_si[j];
+    q[j] = twf_creader_joint_to_si(&r->m->joints[j], v, r->lu, r->au);
   }
   return TWF_OK;
 }
@@ -215,7 +215,7 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
     st = field_number(r, row, r->col[COL_X + i], &v);
     if (st != TWF_OK)
       return st;
-    ms->pos[i] = v * r->len_si;
+    ms->pos[i] = twf_length_to_si(v, r->lu);
   }
   if (r->col[COL_QW] != 0) {
     int n_empty = 0;
@@ -266,7 +266,7 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
                                "known",
                                "column 'sigma': a standard deviation of 0 gives infinite "
                                "weight");
-    ms->sigma = s * r->len_si;
+    ms->sigma = twf_length_to_si(s, r->lu);
     /* 1 nm to 1 m spans every instrument; outside it the value is a slip
      * (a unit, a variance for a standard deviation) and would wreck the
      * weights */

@@ -140,7 +140,6 @@ static const char *kind_label(file_kind kind)
  * else mm and deg. */
 static void resolve_units(creader *r)
 {
-  size_t j;
   r->lu = r->decl_length ? r->length_unit : TWF_LENGTH_MM;
   r->au = r->decl_angle ? r->angle_unit : TWF_ANGLE_DEG;
   if (r->opt.length_from_caller) {
@@ -159,11 +158,6 @@ static void resolve_units(creader *r)
                        twf_angle_unit_name(r->opt.angle_unit));
     r->au = r->opt.angle_unit;
   }
-  r->len_si = twf_length_unit_si(r->lu);
-  for (j = 0; j < r->m->n_joints; j++)
-    r->joint_si[j] = r->m->joints[j].type == TWF_JOINT_PRISMATIC
-                         ? r->len_si
-                         : twf_angle_unit_si(r->au);
 }
 
 twf_status twf_creader_map_header(creader *r, const twf_csv_in *in,

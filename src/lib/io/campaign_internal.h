@@ -84,8 +84,6 @@ typedef struct creader {
   /* units the file is read in */
   twf_length_unit lu;
   twf_angle_unit au;
-  double len_si;     /* metres per file length unit */
-  double *joint_si;  /* per joint: SI per file unit */
   size_t nh;
   char **hname;      /* header names */
   long col[COL_N];   /* 1-based field of each role, 0 when absent */
@@ -97,7 +95,6 @@ typedef struct creader {
   twf_angle_unit j_au;
   long *jcol_saved;
   long jpose_col;
-  double *joint_si_saved;
   /* builder */
   size_t cap_ids, cap_q, cap_lines, cap_meas, cap_pt, cap_set, cap_npts;
   twf_idmap poses;
@@ -110,6 +107,23 @@ typedef struct creader {
   twf_idmap unk_map;
   long unk_line;
 } creader;
+
+/* A joint value in the file's units to SI and back (units.c does the
+ * conversion: one rule for every reader and writer). */
+static inline double twf_creader_joint_to_si(const twf_joint *jt, double v,
+                                             twf_length_unit lu,
+                                             twf_angle_unit au)
+{
+  return jt->type == TWF_JOINT_PRISMATIC ? twf_length_to_si(v, lu)
+                                         : twf_angle_to_si(v, au);
+}
+static inline double twf_creader_joint_from_si(const twf_joint *jt, double si,
+                                               twf_length_unit lu,
+                                               twf_angle_unit au)
+{
+  return jt->type == TWF_JOINT_PRISMATIC ? twf_length_from_si(si, lu)
+                                         : twf_angle_from_si(si, au);
+}
 
 /* campaign_read.c: errors, the reader's life, one file, the rows */
 twf_status twf_creader_nomem(creader *r);

@@ -116,8 +116,10 @@ static twf_status row_one(creader *r, const twf_csv_row *row)
                                  "different poses different ids",
                                  "pose '%s' repeats with other joint values: '%s' is %.10g "
                                  "%s here but %.10g %s at line %ld", id,
-                                 r->m->joints[j].name, r->qbuf[j] / r->joint_si[j],
-                                 joint_unit_name(r, j), q0[j] / r->joint_si[j],
+                                 r->m->joints[j].name,
+                                 twf_creader_joint_from_si(&r->m->joints[j], r->qbuf[j], r->lu, r->au),
+                                 joint_unit_name(r, j),
+                                 twf_creader_joint_from_si(&r->m->joints[j], q0[j], r->lu, r->au),
                                  joint_unit_name(r, j), r->c->pose_lines[pose]);
   }
   if ((st = twf_creader_pair_check(r, row, pose, target)) != TWF_OK)
@@ -181,7 +183,6 @@ twf_status twf_creader_read_file(creader *r, const char *path, file_kind kind)
     r->j_au = r->au;
     r->jpose_col = r->col[COL_POSE];
     memcpy(r->jcol_saved, r->jcol, r->m->n_joints * sizeof *r->jcol);
-    memcpy(r->joint_si_saved, r->joint_si, r->m->n_joints * sizeof *r->joint_si);
   }
   return st;
 }
@@ -216,12 +217,10 @@ static twf_status reader_init(creader *r, const twf_model *m,
                            "model joint '%s' has the name of a reserved "
                            "campaign column", m->joints[j].name);
   r->c = calloc(1, sizeof *r->c);
-  r->joint_si = calloc(nj, sizeof *r->joint_si);
-  r->joint_si_saved = calloc(nj, sizeof *r->joint_si_saved);
   r->jcol = calloc(nj, sizeof *r->jcol);
   r->jcol_saved = calloc(nj, sizeof *r->jcol_saved);
   r->qbuf = calloc(nj, sizeof *r->qbuf);
-  if (!r->c || !r->joint_si || !r->joint_si_saved || !r->jcol ||
+  if (!r->c || !r->jcol ||
       !r->jcol_saved || !r->qbuf)
     return twf_creader_nomem(r);
   r->c->n_joints = nj;
@@ -237,8 +236,6 @@ static void reader_clear(creader *r)
   for (k = 0; k < r->nh; k++)
     free(r->hname[k]);
   free(r->hname);
-  free(r->joint_si);
-  free(r->joint_si_saved);
   free(r->jcol);
   free(r->jcol_saved);
   free(r->qbuf);

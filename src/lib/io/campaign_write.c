@@ -28,7 +28,6 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
                               twf_error *err)
 {
   size_t j, k, p, *order = NULL, *count = NULL, nj;
-  double lf, af;
   int any_sigma = 0, any_orient = 0;
   locale_t loc, old = (locale_t)0;
   twf_error_clear(err);
@@ -80,8 +79,6 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
   loc = newlocale(LC_ALL_MASK, "C", (locale_t)0);
   if (loc != (locale_t)0)
     old = uselocale(loc);
-  lf = twf_length_unit_si(length_unit);
-  af = twf_angle_unit_si(angle_unit);
   fprintf(out, "# units: length=%s angle=%s\n", twf_length_unit_name(length_unit),
           twf_angle_unit_name(angle_unit));
   fputs("pose,target", out);
@@ -102,10 +99,11 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
     put_text(out, m->targets[ms->target].name);
     for (j = 0; j < nj; j++)
       fprintf(out, ",%.17g",
-              c->q[ms->pose * nj + j] /
-                  (m->joints[j].type == TWF_JOINT_PRISMATIC ? lf : af));
+              m->joints[j].type == TWF_JOINT_PRISMATIC
+                  ? twf_length_from_si(c->q[ms->pose * nj + j], length_unit)
+                  : twf_angle_from_si(c->q[ms->pose * nj + j], angle_unit));
     for (j = 0; j < 3; j++)
-      fprintf(out, ",%.17g", ms->pos[j] / lf);
+      fprintf(out, ",%.17g", twf_length_from_si(ms->pos[j], length_unit));
     if (any_orient) {
       if (ms->has_orientation)
         fprintf(out, ",%.17g,%.17g,%.17g,%.17g", ms->quat[0], ms->quat[1],
@@ -115,7 +113,7 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
     }
     if (any_sigma) {
       if (ms->sigma > 0)
-        fprintf(out, ",%.17g", ms->sigma / lf);
+        fprintf(out, ",%.17g", twf_length_from_si(ms->sigma, length_unit));
       else
         fputc(',', out);
     }

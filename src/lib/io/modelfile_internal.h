@@ -18,51 +18,6 @@ static inline int twf_mf_is_blank(char ch)
   return ch == ' ' || ch == '\t' || ch == '\v' || ch == '\f' || ch == '\r';
 }
 
-/* Unit conversions. Divide by the exact integers 1000 and 1e6 rather than
- * multiply by their inexact inverses, so that 450 mm reads as the double
- * nearest 0.45 m and writes back as 450. */
-static inline double len_to_si(double v, twf_length_unit u)
-{
-  switch (u) {
-  case TWF_LENGTH_MM: return v / 1e3;
-  case TWF_LENGTH_UM: return v / 1e6;
-  case TWF_LENGTH_M: return v;
-  case TWF_LENGTH_IN: return v * 0.0254;
-  }
-  return v;
-}
-
-static inline double len_from_si(double v, twf_length_unit u)
-{
-  switch (u) {
-  case TWF_LENGTH_MM: return v * 1e3;
-  case TWF_LENGTH_UM: return v * 1e6;
-  case TWF_LENGTH_M: return v;
-  case TWF_LENGTH_IN: return v / 0.0254;
-  }
-  return v;
-}
-
-static inline double ang_to_si(double v, twf_angle_unit u)
-{
-  switch (u) {
-  case TWF_ANGLE_DEG: return v * (TWF_PI / 180.0);
-  case TWF_ANGLE_MRAD: return v / 1e3;
-  case TWF_ANGLE_RAD: return v;
-  }
-  return v;
-}
-
-static inline double ang_from_si(double v, twf_angle_unit u)
-{
-  switch (u) {
-  case TWF_ANGLE_DEG: return v / (TWF_PI / 180.0);
-  case TWF_ANGLE_MRAD: return v * 1e3;
-  case TWF_ANGLE_RAD: return v;
-  }
-  return v;
-}
-
 /* Names of joints, targets and metadata keys: [A-Za-z0-9_.-]+. */
 int twf_mf_name_chars_ok(const char *s);
 extern const char twf_mf_name_hint[];

@@ -99,7 +99,7 @@ static twf_model *build_model(parse_ctx *c)
         if (twf_mf_parse_numbers(c, e, what, t->offset, 3) != 0)
           goto fail;
         for (int k = 0; k < 3; k++)
-          t->offset[k] = len_to_si(t->offset[k], m->length_unit);
+          t->offset[k] = twf_length_to_si(t->offset[k], m->length_unit);
         t->offset_known = 1;
       }
     } else if (s->kind == SEC_ASBUILT) {

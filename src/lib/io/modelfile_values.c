@@ -155,7 +155,7 @@ int twf_mf_parse_pose(parse_ctx *c, const section *s, twf_length_unit lu,
   if (twf_mf_parse_numbers(c, pos, what, T->p, 3) != 0)
     return -1;
   for (int i = 0; i < 3; i++)
-    T->p[i] = len_to_si(T->p[i], lu);
+    T->p[i] = twf_length_to_si(T->p[i], lu);
 
   if (quat != NULL) {
     double q[4], n;
@@ -173,8 +173,8 @@ int twf_mf_parse_pose(parse_ctx *c, const section *s, twf_length_unit lu,
     snprintf(what, sizeof what, "rpy_fixed_xyz in [%s]", sec);
     if (twf_mf_parse_numbers(c, rpy, what, a, 3) != 0)
       return -1;
-    twf_rpy_fixed_xyz_to_rot(ang_to_si(a[0], au), ang_to_si(a[1], au),
-                             ang_to_si(a[2], au), T->R);
+    twf_rpy_fixed_xyz_to_rot(twf_angle_to_si(a[0], au), twf_angle_to_si(a[1], au),
+                             twf_angle_to_si(a[2], au), T->R);
   } else {
     double err, det;
     for (int i = 0; i < 3; i++)
@@ -293,14 +293,14 @@ int twf_mf_parse_joint_common(parse_ctx *c, const section *s,
                           "limits of joint %s: min %.17g is above max %.17g", s->name,
                           l[0], l[1]);
     j->has_limits = 1;
-    j->limit_lo = rev ? ang_to_si(l[0], au) : len_to_si(l[0], lu);
-    j->limit_hi = rev ? ang_to_si(l[1], au) : len_to_si(l[1], lu);
+    j->limit_lo = rev ? twf_angle_to_si(l[0], au) : twf_length_to_si(l[0], lu);
+    j->limit_hi = rev ? twf_angle_to_si(l[1], au) : twf_length_to_si(l[1], lu);
   }
   if ((e = twf_mf_find_entry(s, "offset")) != NULL) {
     snprintf(what, sizeof what, "offset of joint %s", s->name);
     if (twf_mf_parse_numbers(c, e, what, &j->offset, 1) != 0)
       return -1;
-    j->offset = rev ? ang_to_si(j->offset, au) : len_to_si(j->offset, lu);
+    j->offset = rev ? twf_angle_to_si(j->offset, au) : twf_length_to_si(j->offset, lu);
   }
   if ((e = twf_mf_find_entry(s, "scale")) != NULL) {
     snprintf(what, sizeof what, "scale of joint %s", s->name);
@@ -355,7 +355,7 @@ int twf_mf_parse_joint_axis(parse_ctx *c, const section *s,
     if (twf_mf_parse_numbers(c, point, what, q, 3) != 0)
       return -1;
     for (int i = 0; i < 3; i++)
-      q[i] = len_to_si(q[i], lu);
+      q[i] = twf_length_to_si(q[i], lu);
   }
   twf_v3_copy(q, j->point);
   if (j->type == TWF_JOINT_REVOLUTE)
@@ -377,14 +377,14 @@ int twf_mf_parse_joint_dh(parse_ctx *c, const section *s, joint_form form,
   if (twf_mf_parse_numbers(c, e, what, v, 4) != 0)
     return -1;
   if (form == FORM_DH) {         /* a alpha d theta */
-    row->a = len_to_si(v[0], lu);
-    row->alpha = ang_to_si(v[1], au);
+    row->a = twf_length_to_si(v[0], lu);
+    row->alpha = twf_angle_to_si(v[1], au);
   } else {                       /* alpha a d theta */
-    row->alpha = ang_to_si(v[0], au);
-    row->a = len_to_si(v[1], lu);
+    row->alpha = twf_angle_to_si(v[0], au);
+    row->a = twf_length_to_si(v[1], lu);
   }
-  row->d = len_to_si(v[2], lu);
-  row->theta = ang_to_si(v[3], au);
+  row->d = twf_length_to_si(v[2], lu);
+  row->theta = twf_angle_to_si(v[3], au);
   row->type = type;
   return 0;
 }

@@ -16,12 +16,12 @@ typedef struct units {
 
 static double to_si(double v, conv_kind k, const units *u)
 {
-  return k == CONV_LEN ? len_to_si(v, u->lu) : k == CONV_ANG ? ang_to_si(v, u->au) : v;
+  return k == CONV_LEN ? twf_length_to_si(v, u->lu) : k == CONV_ANG ? twf_angle_to_si(v, u->au) : v;
 }
 
 static double from_si(double v, conv_kind k, const units *u)
 {
-  return k == CONV_LEN ? len_from_si(v, u->lu) : k == CONV_ANG ? ang_from_si(v, u->au) : v;
+  return k == CONV_LEN ? twf_length_from_si(v, u->lu) : k == CONV_ANG ? twf_angle_from_si(v, u->au) : v;
 }
 
 /* The shortest decimal (at most 17 significant digits) that the reader

@@ -98,7 +98,7 @@ static int handler(void *user, const char *section, const char *name, const char
   return 1;
 }
 
-twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error *err)
+static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_error *err)
 {
   base_ctx c;
   FILE *fp;
@@ -133,11 +133,26 @@ twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error 
   return TWF_OK;
 }
 
+twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error *err)
+{
+  twf_io_c_locale loc;
+  twf_status st = twf_io_c_locale_enter(&loc, err);
+  if (st != TWF_OK)
+    return st;
+  st = read_base(path, base_in_tracker, err);
+  twf_io_c_locale_leave(&loc);
+  return st;
+}
+
 twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,
                           const char *comment, FILE *out, twf_error *err)
 {
+  twf_io_c_locale loc;
+  twf_status st;
   double q[4];
   twf_rot_to_quat(base_in_tracker->R, q);
+  if ((st = twf_io_c_locale_enter(&loc, err)) != TWF_OK)
+    return st;
   if (comment != NULL)
     fprintf(out, "; %s\n", comment);
   fprintf(out, "; robot base frame in the tracker frame (x_tracker = R x_base + p)\n"
@@ -146,6 +161,7 @@ twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,
           twf_length_unit_name(u), twf_length_from_si(base_in_tracker->p[0], u),
           twf_length_from_si(base_in_tracker->p[1], u),
           twf_length_from_si(base_in_tracker->p[2], u), q[0], q[1], q[2], q[3]);
+  twf_io_c_locale_leave(&loc);
   if (ferror(out))
     return twf_error_set(err, TWF_ERR_IO, NULL, 0, 0, NULL, "cannot write the base pose");
   return TWF_OK;

@@ -8,8 +8,6 @@
 
 #include "csvstrict.h"
 
-#include <locale.h>
-
 /* Accepted deviation of a quaternion's norm from 1 (relative). Exports with
  * 7 significant digits stay within it; anything beyond is a wrong column or
  * a rotation that is not one, and silently normalising would hide that. */
@@ -71,7 +69,7 @@ typedef struct creader {
   twf_warnings *w;
   twf_error *err;
   twf_campaign *c;
-  locale_t c_locale;
+  twf_io_c_locale loc;  /* the C locale while reading */
   /* the file being read */
   const char *path;
   file_kind kind;
@@ -135,12 +133,12 @@ twf_status twf_creader_error(creader *r, const twf_csv_row *row, long col,
 const char *twf_creader_colname(const creader *r, long col);
 /* Every entry point starts with begin (the C locale on this thread, so
  * the caller's cannot change what a number means) and ends with end,
- * which checks the limits, restores the locale and hands over the
- * campaign (NULL on error). */
+ * which checks the limits, restores the caller's locale and hands over
+ * the campaign (NULL on error). */
 twf_status twf_creader_begin(creader *r, const twf_model *m,
                              const twf_campaign_options *opt,
-                             twf_warnings *w, twf_error *err, locale_t *old);
-twf_campaign *twf_creader_end(creader *r, twf_status st, locale_t old);
+                             twf_warnings *w, twf_error *err);
+twf_campaign *twf_creader_end(creader *r, twf_status st);
 /* Reset the per-file state and read path as kind. */
 twf_status twf_creader_read_file(creader *r, const char *path, file_kind kind);
 twf_status twf_creader_pose_add(creader *r, const char *id, const double *q,

@@ -71,7 +71,6 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
                                      twf_warnings *w, twf_error *err)
 {
   creader r;
-  locale_t old;
   twf_status st;
   twf_error_clear(err);
   if (joints_path == NULL || points_path == NULL) {
@@ -79,7 +78,7 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
                   "the two-file form needs a joints file and a points file");
     return NULL;
   }
-  st = twf_creader_begin(&r, m, opt, w, err, &old);
+  st = twf_creader_begin(&r, m, opt, w, err);
   if (st == TWF_OK)
     st = twf_creader_read_file(&r, joints_path, KIND_JOINTS);
   if (st == TWF_OK)
@@ -144,5 +143,5 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
       free(which);
     }
   }
-  return twf_creader_end(&r, st, old);
+  return twf_creader_end(&r, st);
 }

@@ -196,7 +196,6 @@ static twf_status reader_init(creader *r, const twf_model *m,
   r->err = err;
   r->w = w;
   r->m = m;
-  r->c_locale = (locale_t)0;
   if (m == NULL)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "no model given to read the campaign against");
@@ -224,9 +223,6 @@ static twf_status reader_init(creader *r, const twf_model *m,
       !r->jcol_saved || !r->qbuf)
     return twf_creader_nomem(r);
   r->c->n_joints = nj;
-  /* Numbers are read and written in the C locale; uselocale is per thread
-   * and restored before returning, so no global state changes. */
-  r->c_locale = newlocale(LC_ALL_MASK, "C", (locale_t)0);
   return TWF_OK;
 }
 
@@ -245,8 +241,6 @@ static void reader_clear(creader *r)
   free(r->pose_npts);
   free(r->unk);
   free(r->unk_map.slot);
-  if (r->c_locale != (locale_t)0)
-    freelocale(r->c_locale);
   twf_campaign_free(r->c);
 }
 
@@ -268,20 +262,19 @@ static twf_campaign *reader_finish(creader *r, twf_status st)
 
 twf_status twf_creader_begin(creader *r, const twf_model *m,
                              const twf_campaign_options *opt,
-                             twf_warnings *w, twf_error *err, locale_t *old)
+                             twf_warnings *w, twf_error *err)
 {
   twf_status st = reader_init(r, m, opt, w, err);
-  *old = (locale_t)0;
-  if (r->c_locale != (locale_t)0)
-    *old = uselocale(r->c_locale);
+  if (st == TWF_OK)
+    st = twf_io_c_locale_enter(&r->loc, err);
   return st;
 }
 
-twf_campaign *twf_creader_end(creader *r, twf_status st, locale_t old)
+twf_campaign *twf_creader_end(creader *r, twf_status st)
 {
+  /* The limit messages are formatted in the C locale too. */
   twf_campaign *c = reader_finish(r, st);
-  if (old != (locale_t)0)
-    uselocale(old);
+  twf_io_c_locale_leave(&r->loc);
   return c;
 }
 
@@ -290,17 +283,16 @@ twf_campaign *twf_campaign_read(const char *path, const twf_model *m,
                                 twf_warnings *w, twf_error *err)
 {
   creader r;
-  locale_t old;
   twf_status st;
   twf_error_clear(err);
   if (path == NULL) {
     twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "no campaign file given");
     return NULL;
   }
-  st = twf_creader_begin(&r, m, opt, w, err, &old);
+  st = twf_creader_begin(&r, m, opt, w, err);
   if (st == TWF_OK)
     st = twf_creader_read_file(&r, path, KIND_ONE);
-  return twf_creader_end(&r, st, old);
+  return twf_creader_end(&r, st);
 }
 
 twf_campaign *twf_campaign_read_joints(const char *joints_path,
@@ -309,15 +301,14 @@ twf_campaign *twf_campaign_read_joints(const char *joints_path,
                                        twf_warnings *w, twf_error *err)
 {
   creader r;
-  locale_t old;
   twf_status st;
   twf_error_clear(err);
   if (joints_path == NULL) {
     twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "no joints file given");
     return NULL;
   }
-  st = twf_creader_begin(&r, m, opt, w, err, &old);
+  st = twf_creader_begin(&r, m, opt, w, err);
   if (st == TWF_OK)
     st = twf_creader_read_file(&r, joints_path, KIND_JOINTS);
-  return twf_creader_end(&r, st, old);
+  return twf_creader_end(&r, st);
 }

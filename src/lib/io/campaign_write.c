@@ -1,11 +1,10 @@
 /* campaign_write.c: writing a campaign in the one-file form of
  * twistfit-data(5), grouped by pose, every number with 17 significant
  * digits so that reading it back gives the same doubles. */
-#include "internal.h"
+#include "io_internal.h"
 
 #include <csv.h>
 #include <errno.h>
-#include <locale.h>
 #include <stdlib.h>
 
 static int is_blank(char ch) { return ch == ' ' || ch == '\t'; }
@@ -29,7 +28,8 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
 {
   size_t j, k, p, *order = NULL, *count = NULL, nj;
   int any_sigma = 0, any_orient = 0;
-  locale_t loc, old = (locale_t)0;
+  twf_io_c_locale loc;
+  twf_status st;
   twf_error_clear(err);
   if (c == NULL || m == NULL || out == NULL)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
@@ -62,7 +62,7 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
     count[c->meas[k].pose + 1]++;
   for (p = 0; p < c->n_poses; p++)
     if (count[p + 1] == 0) {
-      twf_status st = twf_error_set(
+      st = twf_error_set(
           err, TWF_ERR_INVALID, NULL, 0, 0,
           "drop the pose, or write the two files yourself",
           "pose '%s' has no measurement: the one-file form cannot hold it",
@@ -76,9 +76,11 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
   for (k = 0; k < c->n_meas; k++)
     order[count[c->meas[k].pose]++] = k;
 
-  loc = newlocale(LC_ALL_MASK, "C", (locale_t)0);
-  if (loc != (locale_t)0)
-    old = uselocale(loc);
+  if ((st = twf_io_c_locale_enter(&loc, err)) != TWF_OK) {
+    free(count);
+    free(order);
+    return st;
+  }
   fprintf(out, "# units: length=%s angle=%s\n", twf_length_unit_name(length_unit),
           twf_angle_unit_name(angle_unit));
   fputs("pose,target", out);
@@ -119,10 +121,7 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
     }
     fputs(ms->set == TWF_SET_CHECK ? ",check\n" : ",fit\n", out);
   }
-  if (old != (locale_t)0)
-    uselocale(old);
-  if (loc != (locale_t)0)
-    freelocale(loc);
+  twf_io_c_locale_leave(&loc);
   free(count);
   free(order);
   if (ferror(out))

@@ -184,19 +184,13 @@ fail:
   return NULL;
 }
 
-twf_model *twf_model_read(const char *path, twf_warnings *warnings,
-                          twf_error *err)
+static twf_model *read_model(const char *path, twf_warnings *warnings,
+                             twf_error *err)
 {
   parse_ctx c;
   twf_model *m;
   FILE *fp;
 
-  twf_error_clear(err);
-  if (path == NULL) {
-    twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
-                  "no model file name given");
-    return NULL;
-  }
   memset(&c, 0, sizeof c);
   c.ini.path = path;
   c.ini.err = err;
@@ -217,5 +211,23 @@ twf_model *twf_model_read(const char *path, twf_warnings *warnings,
   }
   m = build_model(&c);
   twf_mf_ctx_clear(&c);
+  return m;
+}
+
+twf_model *twf_model_read(const char *path, twf_warnings *warnings,
+                          twf_error *err)
+{
+  twf_io_c_locale loc;
+  twf_model *m;
+  twf_error_clear(err);
+  if (path == NULL) {
+    twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                  "no model file name given");
+    return NULL;
+  }
+  if (twf_io_c_locale_enter(&loc, err) != TWF_OK)
+    return NULL;
+  m = read_model(path, warnings, err);
+  twf_io_c_locale_leave(&loc);
   return m;
 }

@@ -245,17 +245,13 @@ static twf_status write_check(const twf_model *m, twf_error *err)
   return TWF_OK;
 }
 
-twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err)
+static twf_status write_model(const twf_model *m, FILE *out, twf_error *err)
 {
   twf_status st;
   units u;
   char *buf;
   size_t bufsize = sizeof m->name;
 
-  twf_error_clear(err);
-  if (m == NULL || out == NULL)
-    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
-                         "no model or no output stream given");
   if ((st = write_check(m, err)) != TWF_OK)
     return st;
   for (size_t i = 0; i < m->n_meta; i++)
@@ -334,4 +330,19 @@ twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err)
                          "check the disk space and permissions",
                          "writing the model file failed: %s", strerror(errno));
   return TWF_OK;
+}
+
+twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err)
+{
+  twf_io_c_locale loc;
+  twf_status st;
+  twf_error_clear(err);
+  if (m == NULL || out == NULL)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "no model or no output stream given");
+  if ((st = twf_io_c_locale_enter(&loc, err)) != TWF_OK)
+    return st;
+  st = write_model(m, out, err);
+  twf_io_c_locale_leave(&loc);
+  return st;
 }

@@ -103,9 +103,12 @@ typedef struct twf_outlier {
 /* The conclusion of a calibration (twf_calib_result.verdict). The rule,
  * on the basis set (twf_verdict_basis) and with the RMS position error
  * over the same measurements before (registered starting model) and after:
- *   TWF_VERDICT_DO_NOT_USE    after > before: the calibrated model predicts
- *                             worse than the start (it learnt the noise, or
- *                             the data and the model do not match);
+ *   TWF_VERDICT_DO_NOT_USE    after > (1 + TWF_VERDICT_WORSE_MARGIN) x before:
+ *                             the calibrated model predicts worse than the
+ *                             start (it learnt the noise, or the data and the
+ *                             model do not match); the margin keeps a change
+ *                             in the last digits (a re-fit on the same data)
+ *                             out of it;
  *   TWF_VERDICT_NOT_IMPROVED  after > TWF_VERDICT_IMPROVED_RATIO x before:
  *                             less than a tenth better, not worth the
  *                             change (keep the previous model);
@@ -117,6 +120,7 @@ typedef enum twf_calib_verdict {
   TWF_VERDICT_DO_NOT_USE
 } twf_calib_verdict;
 #define TWF_VERDICT_IMPROVED_RATIO 0.9
+#define TWF_VERDICT_WORSE_MARGIN 1e-3
 
 /* Which figures the verdict used. */
 typedef enum twf_verdict_basis {

@@ -806,7 +806,7 @@ static void verdict(twf_calib_result *res)
   }
   res->verdict_before = res->accuracy_before->position[set];
   res->verdict_after = res->accuracy_after->position[set];
-  if (!(res->verdict_after.rms <= res->verdict_before.rms))
+  if (!(res->verdict_after.rms <= (1.0 + TWF_VERDICT_WORSE_MARGIN) * res->verdict_before.rms))
     res->verdict = TWF_VERDICT_DO_NOT_USE;
   else if (res->verdict_after.rms > TWF_VERDICT_IMPROVED_RATIO * res->verdict_before.rms)
     res->verdict = TWF_VERDICT_NOT_IMPROVED;

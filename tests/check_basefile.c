@@ -155,6 +155,20 @@ START_TEST(test_strict_lines)
   ck_assert_ptr_nonnull(strstr(err.message, "NUL"));
   ck_assert_ptr_nonnull(strstr(err.hint, "base pose file"));
   unlink(path);
+
+  /* An endless line stops the reading at the read stage's limit. */
+  strcpy(path, "/tmp/twf-base-XXXXXX");
+  fd = mkstemp(path);
+  ck_assert_int_ge(fd, 0);
+  fp = fdopen(fd, "w");
+  fputs("[base]\nposition = 1", fp);
+  for (size_t k = 0; k < 2 * (size_t)TWF_CAMPAIGN_LINE_MAX; k++)
+    fputc('0', fp);
+  fclose(fp);
+  ck_assert_int_eq(twf_base_read(path, &R, &err), TWF_ERR_SYNTAX);
+  ck_assert_int_eq(err.line, 2);
+  ck_assert_ptr_nonnull(strstr(err.message, "longer than 65536 characters"));
+  unlink(path);
 }
 END_TEST
 

@@ -1000,6 +1000,67 @@ START_TEST(test_many_poses)
 END_TEST
 
 /* ------------------------------------------------------------------ */
+/* Input limits: lines, size, encodings                                */
+/* ------------------------------------------------------------------ */
+
+/* A campaign file with a comment line of n characters above the data of
+ * tests/data/campaign-one.csv, with LF or CR LF line ends. */
+static void write_with_long_comment(const char *path, size_t n, int crlf)
+{
+  char *text = slurp(data("tests/data/campaign-one.csv"));
+  FILE *f = fopen(path, "wb");
+  size_t k;
+  ck_assert_ptr_nonnull(f);
+  fputc('#', f);
+  for (k = 1; k < n; k++)
+    fputc('-', f);
+  fputs(crlf ? "\r\n" : "\n", f);
+  fputs(text, f);
+  ck_assert_int_eq(fclose(f), 0);
+  free(text);
+}
+
+/* A line longer than TWF_CAMPAIGN_LINE_MAX stops the reading at that line
+ * (an endless line would otherwise spin or grow memory); a line of exactly
+ * the limit, with either line end, is read. */
+START_TEST(test_line_limit)
+{
+  twf_model *m = tf6s();
+  twf_campaign *c;
+  twf_error err;
+  make_tmpdir();
+  write_with_long_comment(tmppath("at-limit.csv"), TWF_CAMPAIGN_LINE_MAX, 0);
+  c = read_ok(tmppath("at-limit.csv"), m, NULL, NULL);
+  twf_campaign_free(c);
+  write_with_long_comment(tmppath("at-limit-crlf.csv"), TWF_CAMPAIGN_LINE_MAX, 1);
+  c = read_ok(tmppath("at-limit-crlf.csv"), m, NULL, NULL);
+  twf_campaign_free(c);
+  write_with_long_comment(tmppath("over.csv"), TWF_CAMPAIGN_LINE_MAX + 1, 0);
+  ck_assert_ptr_null(twf_campaign_read(tmppath("over.csv"), m, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
+  ck_assert_int_eq(err.line, 1);
+  ck_assert_str_eq(err.message, "line is longer than 65536 characters: reading stopped there");
+  ck_assert(err.hint[0] != '\0');
+  /* A long data line after good ones: its own line number. */
+  {
+    FILE *f = fopen(tmppath("long-row.csv"), "wb");
+    size_t k;
+    fputs("pose,target,j1,j2,j3,j4,j5,j6,x,y,z\n"
+          "p01,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1503.2871,-212.4409,987.1153\n"
+          "p02,T1,1", f);
+    for (k = 0; k < 3 * (size_t)TWF_CAMPAIGN_LINE_MAX; k++)
+      fputc('0', f);
+    fclose(f);
+  }
+  ck_assert_ptr_null(twf_campaign_read(tmppath("long-row.csv"), m, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
+  ck_assert_int_eq(err.line, 3);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
 /* The examples of twistfit-data(5) are read as they stand             */
 /* ------------------------------------------------------------------ */
 
@@ -1078,6 +1139,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_bad_campaigns);
   tcase_add_test(tc, test_arguments);
   tcase_add_test(tc, test_many_poses);
+  tcase_add_test(tc, test_line_limit);
   tcase_add_test(tc, test_man_examples);
   suite_add_tcase(s, tc);
   tc = tcase_create("write");

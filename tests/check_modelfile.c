@@ -779,6 +779,31 @@ START_TEST(test_long_names_and_limit_line)
 }
 END_TEST
 
+/* A line beyond the read stage's stop (TWF_CAMPAIGN_LINE_MAX) ends the
+ * reading there instead of scanning an endless line. */
+START_TEST(test_endless_line_stops)
+{
+  char path[4096];
+  twf_error err;
+  FILE *f;
+  size_t k;
+  temp_name(path, sizeof path);
+  f = fopen(path, "wb");
+  ck_assert_ptr_nonnull(f);
+  fputs("[robot]\nname = x\n;", f);
+  for (k = 0; k < 2 * (size_t)TWF_CAMPAIGN_LINE_MAX; k++)
+    fputc('-', f);
+  fclose(f);
+  ck_assert_ptr_null(twf_model_read(path, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
+  ck_assert_int_eq(err.line, 3);
+  ck_assert_str_eq(err.message, "line is longer than 65536 characters, more than "
+                                "the limit of 198: reading stopped there");
+  ck_assert(err.hint[0] != '\0');
+  remove(path);
+}
+END_TEST
+
 /* Units: the same arm in m/rad, um/mrad and in/deg; 1 in = 25.4 mm exactly
  * (international inch, 1959: common practice, no source in the project). */
 START_TEST(test_units)
@@ -1085,6 +1110,7 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_null_arguments);
   tcase_add_test(tc, test_reader_tolerates_layout);
   tcase_add_test(tc, test_long_names_and_limit_line);
+  tcase_add_test(tc, test_endless_line_stops);
   tcase_add_test(tc, test_units);
   tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_rotation_rows_polished);

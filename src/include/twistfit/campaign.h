@@ -14,6 +14,20 @@ extern "C" {
 #endif
 
 /* ------------------------------------------------------------------ */
+/* Limits of every reader (campaigns, model files, base pose files)    */
+/* ------------------------------------------------------------------ */
+
+/* Largest input file read by default, in bytes (2 GiB): a campaign of
+ * 200,000 poses and three targets is about 60 MB. Readers refuse larger
+ * files (TWF_ERR_VALUE) before their memory grows without bound, as it
+ * would reading /dev/zero or /dev/urandom; the limit is an option. */
+#define TWF_INPUT_SIZE_DEFAULT (2ULL << 30)
+/* Longest line of a campaign file, in bytes, without its line end.
+ * Reading stops at a longer line (TWF_ERR_SYNTAX), so that an endless line
+ * neither spins nor grows memory. */
+#define TWF_CAMPAIGN_LINE_MAX 65536
+
+/* ------------------------------------------------------------------ */
 /* Measurement campaigns (CSV, see twistfit-data(5))                   */
 /* ------------------------------------------------------------------ */
 
@@ -72,6 +86,9 @@ typedef struct twf_campaign_options {
   int limits_are_errors;
   /* Slack on the limits, SI of the joint (rad or m); default 1e-9. */
   double limit_tolerance;
+  /* Largest file read, bytes, per file; default TWF_INPUT_SIZE_DEFAULT
+   * (0 means the default too). */
+  unsigned long long max_input_size;
 } twf_campaign_options;
 
 twf_campaign_options twf_campaign_default_options(void);

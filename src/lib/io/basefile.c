@@ -101,7 +101,6 @@ static int handler(void *user, const char *section, const char *name, const char
 static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_error *err)
 {
   base_ctx c;
-  FILE *fp;
   int rc, a;
   memset(&c, 0, sizeof c);
   c.ini.path = path;
@@ -112,12 +111,9 @@ static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_err
   c.ini.user = &c;
   c.ini.long_line_message = "line too long";
   c.ini.long_line_hint = "keep lines under 199 characters";
-  fp = fopen(path, "r");
-  if (fp == NULL)
-    return twf_error_set(err, TWF_ERR_IO, path, 0, 0, "check the path and permissions",
-                         "cannot open the base pose file: %s", strerror(errno));
-  rc = twf_ini_parse(&c.ini, fp);
-  fclose(fp);
+  c.ini.name = "the base pose file";
+  c.ini.max_size = TWF_INPUT_SIZE_DEFAULT;
+  rc = twf_ini_parse(&c.ini);
   if (c.ini.status != TWF_OK)
     return c.ini.status;
   if (rc != 0)

@@ -166,6 +166,7 @@ twf_status twf_creader_read_file(creader *r, const char *path, file_kind kind)
   in.row = reader_row;
   in.comment = twf_creader_units_line;
   in.user = r;
+  in.max_size = r->opt.max_input_size ? r->opt.max_input_size : TWF_INPUT_SIZE_DEFAULT;
   st = twf_csv_run(&in);
   if (st == TWF_OK && !in.header_seen)
     st = twf_error_set(r->err, TWF_ERR_MISSING, path, 0, 0,

@@ -33,6 +33,7 @@ struct twf_csv_in {
   twf_csv_row_fn row;
   twf_csv_comment_fn comment;
   void *user;
+  unsigned long long max_size; /* bytes (twf_campaign_options) */
   /* what the callbacks and the caller may read */
   unsigned char delim;  /* , ; or tab, from the header row */
   long cur_line;        /* line being read (1-based) */

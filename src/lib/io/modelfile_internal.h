@@ -55,9 +55,9 @@ typedef struct parse_ctx {
   twf_warnings *warnings;
 } parse_ctx;
 
-/* Run the first pass over fp: sections and keys checked, every value kept
+/* Run the first pass over c->ini.path: sections and keys checked, every value kept
  * as text with its line. Returns c->ini.status. */
-twf_status twf_mf_parse_structure(parse_ctx *c, FILE *fp);
+twf_status twf_mf_parse_structure(parse_ctx *c);
 void twf_mf_ctx_clear(parse_ctx *c);
 
 /* ------------------------------------------------------------------ */

@@ -328,14 +328,14 @@ void twf_mf_ctx_clear(parse_ctx *c)
   c->nsec = c->capsec = 0;
 }
 
-twf_status twf_mf_parse_structure(parse_ctx *c, FILE *fp)
+twf_status twf_mf_parse_structure(parse_ctx *c)
 {
   int rc;
   c->ini.what = "a model file";
   c->ini.line = classify_line;
   c->ini.pair = handle_pair;
   c->ini.user = c;
-  rc = twf_ini_parse(&c->ini, fp);
+  rc = twf_ini_parse(&c->ini);
   if (c->ini.status == TWF_OK && rc == -2)
     twf_ini_fail(&c->ini, TWF_ERR_NOMEM, 0, 0, NULL, "out of memory");
   else if (c->ini.status == TWF_OK && rc != 0)

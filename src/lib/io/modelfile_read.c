@@ -189,22 +189,15 @@ static twf_model *read_model(const char *path, twf_warnings *warnings,
 {
   parse_ctx c;
   twf_model *m;
-  FILE *fp;
 
   memset(&c, 0, sizeof c);
   c.ini.path = path;
   c.ini.err = err;
+  c.ini.name = "model file";
+  c.ini.max_size = TWF_INPUT_SIZE_DEFAULT;
   c.warnings = warnings;
   c.ini.status = TWF_OK;
-  fp = fopen(path, "rb");
-  if (fp == NULL) {
-    twf_error_set(err, TWF_ERR_IO, path, 0, 0,
-                  "check the file name and its permissions",
-                  "cannot open model file '%s': %s", path, strerror(errno));
-    return NULL;
-  }
-  twf_mf_parse_structure(&c, fp);
-  fclose(fp);
+  twf_mf_parse_structure(&c);
   if (c.ini.status != TWF_OK) {
     twf_mf_ctx_clear(&c);
     return NULL;

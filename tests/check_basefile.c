@@ -172,6 +172,25 @@ START_TEST(test_strict_lines)
 }
 END_TEST
 
+/* twf_base_read_with: the size limit. */
+START_TEST(test_size_limit)
+{
+  static const char text[] = "[base]\nlength_unit = mm\nposition = 1 2 3\n"
+                             "quaternion_wxyz = 1 0 0 0\n";
+  twf_read_options o = twf_read_default_options();
+  twf_pose R;
+  twf_error err;
+  write_text(text);
+  o.max_input_size = sizeof text - 1;
+  ck_assert_int_eq(twf_base_read_with(path, &o, &R, &err), TWF_OK);
+  o.max_input_size = sizeof text - 2;
+  ck_assert_int_eq(twf_base_read_with(path, &o, &R, &err), TWF_ERR_VALUE);
+  ck_assert_ptr_nonnull(strstr(err.message, "larger than the input size limit"));
+  ck_assert_int_eq(twf_base_read_with(NULL, &o, &R, &err), TWF_ERR_INVALID);
+  unlink(path);
+}
+END_TEST
+
 /* The reader converts with units.c: 3.1 mm is a value where 3.1 / 1e3
  * and 3.1 * 1e-3 differ in the last bit. */
 START_TEST(test_one_unit_conversion)
@@ -195,6 +214,7 @@ int main(void)
   tcase_add_test(tc, test_bad_files);
   tcase_add_test(tc, test_strict_lines);
   tcase_add_test(tc, test_one_unit_conversion);
+  tcase_add_test(tc, test_size_limit);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

@@ -1060,6 +1060,43 @@ START_TEST(test_line_limit)
 }
 END_TEST
 
+/* max_input_size: a file of exactly the limit is read, one byte more is
+ * refused before memory grows (0 keeps the default). */
+START_TEST(test_size_limit)
+{
+  twf_model *m = tf6s();
+  twf_campaign_options o = twf_campaign_default_options();
+  char *text = slurp(data("tests/data/campaign-one.csv"));
+  size_t n = strlen(text);
+  char want[128];
+  twf_campaign *c;
+  twf_error err;
+  ck_assert(o.max_input_size == TWF_INPUT_SIZE_DEFAULT);
+  ck_assert(TWF_INPUT_SIZE_DEFAULT == 2147483648ULL);
+  o.max_input_size = n;
+  c = read_ok(data("tests/data/campaign-one.csv"), m, &o, NULL);
+  twf_campaign_free(c);
+  o.max_input_size = 0;
+  c = read_ok(data("tests/data/campaign-one.csv"), m, &o, NULL);
+  twf_campaign_free(c);
+  o.max_input_size = n - 1;
+  ck_assert_ptr_null(twf_campaign_read(data("tests/data/campaign-one.csv"), m, &o, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+  ck_assert_int_eq(err.line, 0);
+  snprintf(want, sizeof want, "the file is larger than the input size limit of %zu bytes", n - 1);
+  ck_assert_str_eq(err.message, want);
+  ck_assert_ptr_nonnull(strstr(err.hint, "max_input_size"));
+  /* the two-file form: each file against the limit */
+  o.max_input_size = 1024;
+  ck_assert_ptr_null(twf_campaign_read_pair(data("tests/data/campaign-joints.csv"),
+                                            data("tests/data/campaign-one.csv"), m, &o, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+  ck_assert_ptr_nonnull(strstr(err.message, "limit of 1 KiB"));
+  free(text);
+  twf_model_free(m);
+}
+END_TEST
+
 /* ------------------------------------------------------------------ */
 /* The examples of twistfit-data(5) are read as they stand             */
 /* ------------------------------------------------------------------ */
@@ -1140,6 +1177,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_arguments);
   tcase_add_test(tc, test_many_poses);
   tcase_add_test(tc, test_line_limit);
+  tcase_add_test(tc, test_size_limit);
   tcase_add_test(tc, test_man_examples);
   suite_add_tcase(s, tc);
   tc = tcase_create("write");

@@ -804,6 +804,28 @@ START_TEST(test_endless_line_stops)
 }
 END_TEST
 
+/* twf_model_read_with: a file of exactly max_input_size bytes is read,
+ * one byte more is refused. */
+START_TEST(test_size_limit)
+{
+  char *text = slurp(sample_path("tf6s"));
+  size_t n = strlen(text);
+  twf_read_options o = twf_read_default_options();
+  twf_model *m;
+  twf_error err;
+  ck_assert(o.max_input_size == TWF_INPUT_SIZE_DEFAULT);
+  o.max_input_size = n;
+  m = twf_model_read_with(sample_path("tf6s"), &o, NULL, &err);
+  ck_assert_ptr_nonnull(m);
+  twf_model_free(m);
+  o.max_input_size = n - 1;
+  ck_assert_ptr_null(twf_model_read_with(sample_path("tf6s"), &o, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+  ck_assert_ptr_nonnull(strstr(err.message, "larger than the input size limit"));
+  free(text);
+}
+END_TEST
+
 /* Units: the same arm in m/rad, um/mrad and in/deg; 1 in = 25.4 mm exactly
  * (international inch, 1959: common practice, no source in the project). */
 START_TEST(test_units)
@@ -1111,6 +1133,7 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_reader_tolerates_layout);
   tcase_add_test(tc, test_long_names_and_limit_line);
   tcase_add_test(tc, test_endless_line_stops);
+  tcase_add_test(tc, test_size_limit);
   tcase_add_test(tc, test_units);
   tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_rotation_rows_polished);

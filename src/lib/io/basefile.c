@@ -98,7 +98,8 @@ static int handler(void *user, const char *section, const char *name, const char
   return 1;
 }
 
-static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_error *err)
+static twf_status read_base(const char *path, const twf_read_options *opt,
+                            twf_pose *base_in_tracker, twf_error *err)
 {
   base_ctx c;
   int rc, a;
@@ -112,7 +113,8 @@ static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_err
   c.ini.long_line_message = "line too long";
   c.ini.long_line_hint = "keep lines under 199 characters";
   c.ini.name = "the base pose file";
-  c.ini.max_size = TWF_INPUT_SIZE_DEFAULT;
+  c.ini.max_size = opt && opt->max_input_size ? opt->max_input_size
+                                               : TWF_INPUT_SIZE_DEFAULT;
   rc = twf_ini_parse(&c.ini);
   if (c.ini.status != TWF_OK)
     return c.ini.status;
@@ -131,11 +133,21 @@ static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_err
 
 twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error *err)
 {
+  return twf_base_read_with(path, NULL, base_in_tracker, err);
+}
+
+twf_status twf_base_read_with(const char *path, const twf_read_options *opt,
+                              twf_pose *base_in_tracker, twf_error *err)
+{
   twf_io_c_locale loc;
-  twf_status st = twf_io_c_locale_enter(&loc, err);
+  twf_status st;
+  if (path == NULL || base_in_tracker == NULL)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "no base pose file or no pose to fill given");
+  st = twf_io_c_locale_enter(&loc, err);
   if (st != TWF_OK)
     return st;
-  st = read_base(path, base_in_tracker, err);
+  st = read_base(path, opt, base_in_tracker, err);
   twf_io_c_locale_leave(&loc);
   return st;
 }

@@ -184,8 +184,16 @@ fail:
   return NULL;
 }
 
-static twf_model *read_model(const char *path, twf_warnings *warnings,
-                             twf_error *err)
+twf_read_options twf_read_default_options(void)
+{
+  twf_read_options o;
+  memset(&o, 0, sizeof o);
+  o.max_input_size = TWF_INPUT_SIZE_DEFAULT;
+  return o;
+}
+
+static twf_model *read_model(const char *path, const twf_read_options *opt,
+                             twf_warnings *warnings, twf_error *err)
 {
   parse_ctx c;
   twf_model *m;
@@ -194,7 +202,8 @@ static twf_model *read_model(const char *path, twf_warnings *warnings,
   c.ini.path = path;
   c.ini.err = err;
   c.ini.name = "model file";
-  c.ini.max_size = TWF_INPUT_SIZE_DEFAULT;
+  c.ini.max_size = opt && opt->max_input_size ? opt->max_input_size
+                                               : TWF_INPUT_SIZE_DEFAULT;
   c.warnings = warnings;
   c.ini.status = TWF_OK;
   twf_mf_parse_structure(&c);
@@ -210,6 +219,12 @@ static twf_model *read_model(const char *path, twf_warnings *warnings,
 twf_model *twf_model_read(const char *path, twf_warnings *warnings,
                           twf_error *err)
 {
+  return twf_model_read_with(path, NULL, warnings, err);
+}
+
+twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
+                               twf_warnings *warnings, twf_error *err)
+{
   twf_io_c_locale loc;
   twf_model *m;
   twf_error_clear(err);
@@ -220,7 +235,7 @@ twf_model *twf_model_read(const char *path, twf_warnings *warnings,
   }
   if (twf_io_c_locale_enter(&loc, err) != TWF_OK)
     return NULL;
-  m = read_model(path, warnings, err);
+  m = read_model(path, opt, warnings, err);
   twf_io_c_locale_leave(&loc);
   return m;
 }

@@ -84,6 +84,8 @@ static const struct {
   { "[tool]\nlength_unit = mm\n", TWF_ERR_UNKNOWN, 1, "unknown section" },
   { "[base]\n[base]\n", TWF_ERR_DUPLICATE, 2, "duplicate section" },
   { "length_unit = mm\n", TWF_ERR_SYNTAX, 0, "outside [base]" },
+  { "[base]\nlength_unit = m\nposition = 1 2e3 3\nquaternion_wxyz = 1 0 0 0\n", TWF_ERR_VALUE, 3,
+    "position: 2000 m lies beyond 1000 m" },
 };
 
 START_TEST(test_bad_files)

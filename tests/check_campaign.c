@@ -443,19 +443,31 @@ START_TEST(test_units_override)
   twf_campaign *c;
   twf_warnings_init(&w);
   o.length_from_caller = 1;
-  o.length_unit = TWF_LENGTH_M;
+  o.length_unit = TWF_LENGTH_UM;
   o.angle_from_caller = 1;
   o.angle_unit = TWF_ANGLE_RAD;
   c = read_ok(data("tests/data/campaign-one.csv"), m, &o, &w);
-  /* The file's numbers taken as metres and radians unchanged. */
+  /* The file's numbers taken as micrometres and radians unchanged. */
   ck_assert(c->q[1] == -33.25);
-  ck_assert(c->meas[0].pos[0] == 1503.2871);
-  ck_assert(c->meas[0].sigma == 0.025);
+  ck_assert(c->meas[0].pos[0] == twf_length_to_si(1503.2871, TWF_LENGTH_UM));
+  ck_assert(c->meas[0].sigma == twf_length_to_si(0.025, TWF_LENGTH_UM));
   /* The file declares mm and deg: both overrides are reported. */
-  ck_assert(warned(&w, "declares length=mm; reading m"));
+  ck_assert(warned(&w, "declares length=mm; reading um"));
   ck_assert(warned(&w, "declares angle=deg; reading rad"));
   twf_campaign_free(c);
   twf_warnings_clear(&w);
+
+  /* Millimetres read as metres: 1503 m is beyond the plausible range. */
+  {
+    twf_error err;
+    o = twf_campaign_default_options();
+    o.length_from_caller = 1;
+    o.length_unit = TWF_LENGTH_M;
+    ck_assert_ptr_null(twf_campaign_read(data("tests/data/campaign-one.csv"), m, &o, NULL, &err));
+    ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+    ck_assert_int_eq(err.column, 9);
+    ck_assert_ptr_nonnull(strstr(err.message, "column 'x': 1503.29 m lies beyond 1000 m"));
+  }
 
   /* Only the angle imposed: lengths keep the file's mm. */
   twf_warnings_init(&w);

@@ -475,10 +475,10 @@ START_TEST(test_extreme_values_roundtrip)
   m->length_unit = TWF_LENGTH_UM;
   m->angle_unit = TWF_ANGLE_MRAD;
   m->home.p[0] = -1.2345678901234567e-300;
-  m->home.p[1] = 9.8765432109876543e+250;
+  m->home.p[1] = 9.8765432109876543e+2; /* up to TWF_READ_LENGTH_MAX */
   m->home.p[2] = -2.2250738585072014e-308;
   m->targets[0].offset[0] = -4.9406564584124654e-324; /* subnormal */
-  m->joints[0].limit_lo = -1.7976931348623157e+300;
+  m->joints[0].limit_lo = -9.9999999999999982e+3; /* up to TWF_READ_ANGLE_MAX */
   /* As a file gives it: the double nearest -1.1111111111111111e-197 mrad
    * divided by 1000 (not every double in rad is one of those). */
   m->joints[3].offset = -1.1111111111111111e-197 / 1e3;
@@ -490,6 +490,19 @@ START_TEST(test_extreme_values_roundtrip)
   ck_assert(back->targets[0].offset[0] == m->targets[0].offset[0]);
   ck_assert(back->joints[0].limit_lo == m->joints[0].limit_lo);
   ck_assert(back->joints[3].offset == m->joints[3].offset);
+  /* Beyond the range the reader accepts, the writer refuses too. */
+  {
+    twf_error err;
+    FILE *f = tmpfile();
+    ck_assert_ptr_nonnull(f);
+    m->joints[0].limit_lo = -1.7976931348623157e+300;
+    ck_assert_int_eq(twf_model_write(m, f, &err), TWF_ERR_INVALID);
+    m->joints[0].limit_lo = -1.0;
+    m->home.p[1] = 9.8765432109876543e+250;
+    ck_assert_int_eq(twf_model_write(m, f, &err), TWF_ERR_INVALID);
+    ck_assert_int_eq(ftell(f), 0);
+    fclose(f);
+  }
   free(text);
   twf_model_free(m);
   twf_model_free(back);

@@ -26,6 +26,18 @@ extern "C" {
  * Reading stops at a longer line (TWF_ERR_SYNTAX), so that an endless line
  * neither spins nor grows memory. */
 #define TWF_CAMPAIGN_LINE_MAX 65536
+/* Plausible range of the values every reader accepts (campaigns, model
+ * files, base pose files), in SI: a length (coordinate, joint point,
+ * prismatic value, offset, DH length) beyond 1 km, an angle (joint value,
+ * offset, limit, DH angle, roll-pitch-yaw) beyond 1e4 rad (about 1600
+ * turns) or a joint scale beyond 1e6 in magnitude is a slip (a unit, an
+ * exponent, a column) and is refused at its line and column
+ * (TWF_ERR_VALUE). Far beyond any arm: common practice, no source. Such
+ * values would otherwise reach forward kinematics as non-finite results
+ * or the registration as a singular problem. */
+#define TWF_READ_LENGTH_MAX 1e3
+#define TWF_READ_ANGLE_MAX 1e4
+#define TWF_READ_SCALE_MAX 1e6
 
 /* ------------------------------------------------------------------ */
 /* Measurement campaigns (CSV, see twistfit-data(5))                   */

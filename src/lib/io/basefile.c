@@ -14,6 +14,7 @@ typedef struct base_ctx {
   int have_unit, have_pos, have_quat;
   twf_length_unit unit;
   double pos[3], quat[4];
+  long pos_line;
 } base_ctx;
 
 static int fail_at(base_ctx *c, twf_status st, long line, const char *hint, const char *msg,
@@ -74,6 +75,7 @@ static int handler(void *user, const char *section, const char *name, const char
     if (c->have_pos)
       return fail_at(c, TWF_ERR_DUPLICATE, c->ini.lineno, "give each key once", "duplicate key: ", name);
     c->have_pos = 1;
+    c->pos_line = c->ini.lineno;
     if (parse_vec(value, c->pos, 3) != 0)
       return fail_at(c, TWF_ERR_VALUE, c->ini.lineno, "give three finite numbers x y z",
                      "bad position: ", value);
@@ -125,6 +127,13 @@ static twf_status read_base(const char *path, const twf_read_options *opt,
     return twf_error_set(err, TWF_ERR_MISSING, path, 0, 0,
                          "give [base] with length_unit, position and quaternion_wxyz",
                          "incomplete base pose file");
+  for (a = 0; a < 3; a++)
+    if (!(fabs(twf_length_to_si(c.pos[a], c.unit)) <= TWF_READ_LENGTH_MAX))
+      return twf_error_set(err, TWF_ERR_VALUE, path, c.pos_line, a + 1,
+                           "check the value and the file's length unit: no cell comes "
+                           "near the limit",
+                           "position: %g %s lies beyond %g m, the largest length accepted",
+                           c.pos[a], twf_length_unit_name(c.unit), TWF_READ_LENGTH_MAX);
   twf_quat_to_rot(c.quat, base_in_tracker->R);
   for (a = 0; a < 3; a++)
     base_in_tracker->p[a] = twf_length_to_si(c.pos[a], c.unit);

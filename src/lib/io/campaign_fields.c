@@ -109,6 +109,24 @@ static twf_status field_number(creader *r, const twf_csv_row *row, long col,
   return TWF_OK;
 }
 
+/* A value in file units and its SI value against the plausible range. */
+static twf_status check_range(creader *r, const twf_csv_row *row, long col,
+                              double v, double si, int angle)
+{
+  if (angle ? fabs(si) <= TWF_READ_ANGLE_MAX : fabs(si) <= TWF_READ_LENGTH_MAX)
+    return TWF_OK;
+  return twf_creader_error(r, row, col, TWF_ERR_VALUE,
+                           "check the value, its column and the file's units: no arm "
+                           "comes near the limit",
+                           angle ? "column '%s': %g %s lies beyond %g rad, the largest "
+                                   "angle accepted"
+                                 : "column '%s': %g %s lies beyond %g m, the largest "
+                                   "length accepted",
+                           twf_creader_colname(r, col), v,
+                           angle ? twf_angle_unit_name(r->au) : twf_length_unit_name(r->lu),
+                           angle ? TWF_READ_ANGLE_MAX : TWF_READ_LENGTH_MAX);
+}
+
 static int field_empty(const twf_csv_row *row, long col)
 {
   const char *f = row->f[col - 1];
@@ -179,6 +197,10 @@ twf_status twf_creader_field_joints(creader *r, const twf_csv_row *row,
     if (st != TWF_OK)
       return st;
     q[j] = twf_creader_joint_to_si(&r->m->joints[j], v, r->lu, r->au);
+    st = check_range(r, row, r->jcol[j], v, q[j],
+                     r->m->joints[j].type == TWF_JOINT_REVOLUTE);
+    if (st != TWF_OK)
+      return st;
   }
   return TWF_OK;
 }
@@ -216,6 +238,9 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
     if (st != TWF_OK)
       return st;
     ms->pos[i] = twf_length_to_si(v, r->lu);
+    st = check_range(r, row, r->col[COL_X + i], v, ms->pos[i], 0);
+    if (st != TWF_OK)
+      return st;
   }
   if (r->col[COL_QW] != 0) {
     int n_empty = 0;

@@ -7,6 +7,38 @@
 #include <errno.h>
 #include <stdlib.h>
 
+/* The plausible range of a DH row (a and d lengths, alpha and theta
+ * angles), field by field in the file's order: dh is a alpha d theta, mdh
+ * alpha a d theta. */
+static int check_dh_range(parse_ctx *c, const section *s, joint_form form,
+                          const twf_model *m, const twf_dh_row *row)
+{
+  const entry *e = twf_mf_find_entry(s, form == FORM_DH ? "dh" : "mdh");
+  const char *lu = twf_length_unit_name(m->length_unit);
+  const char *au = twf_angle_unit_name(m->angle_unit);
+  double si[4], v[4];
+  int angle[4];
+  char what[96];
+  snprintf(what, sizeof what, "%s row of joint %s", form == FORM_DH ? "dh" : "mdh",
+           s->name);
+  si[0] = form == FORM_DH ? row->a : row->alpha;
+  si[1] = form == FORM_DH ? row->alpha : row->a;
+  si[2] = row->d;
+  si[3] = row->theta;
+  angle[0] = form != FORM_DH;
+  angle[1] = form == FORM_DH;
+  angle[2] = 0;
+  angle[3] = 1;
+  for (int k = 0; k < 4; k++) {
+    v[k] = angle[k] ? twf_angle_from_si(si[k], m->angle_unit)
+                    : twf_length_from_si(si[k], m->length_unit);
+    if (twf_mf_check_range(c, e, what, angle[k] ? RANGE_ANGLE : RANGE_LENGTH, &v[k],
+                           &si[k], 1, k + 1, angle[k] ? au : lu) != 0)
+      return -1;
+  }
+  return 0;
+}
+
 static twf_model *build_model(parse_ctx *c)
 {
   const section *robot = NULL, *home = NULL, *flange = NULL;
@@ -85,7 +117,8 @@ static twf_model *build_model(parse_ctx *c)
         if (twf_mf_parse_joint_axis(c, s, m->length_unit, j) != 0)
           goto fail;
       } else if (twf_mf_parse_joint_dh(c, s, f, m->length_unit, m->angle_unit,
-                                j->type, &rows[ij]) != 0) {
+                                j->type, &rows[ij]) != 0 ||
+                 check_dh_range(c, s, f, m, &rows[ij]) != 0) {
         goto fail;
       }
       ij++;
@@ -96,10 +129,14 @@ static twf_model *build_model(parse_ctx *c)
       if (e != NULL) {
         char what[96];
         snprintf(what, sizeof what, "offset of target %s", s->name);
-        if (twf_mf_parse_numbers(c, e, what, t->offset, 3) != 0)
+        double v[3];
+        if (twf_mf_parse_numbers(c, e, what, v, 3) != 0)
           goto fail;
         for (int k = 0; k < 3; k++)
-          t->offset[k] = twf_length_to_si(t->offset[k], m->length_unit);
+          t->offset[k] = twf_length_to_si(v[k], m->length_unit);
+        if (twf_mf_check_range(c, e, what, RANGE_LENGTH, v, t->offset, 3, 1,
+                               twf_length_unit_name(m->length_unit)) != 0)
+          goto fail;
         t->offset_known = 1;
       }
     } else if (s->kind == SEC_ASBUILT) {

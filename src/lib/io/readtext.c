@@ -81,8 +81,8 @@ static twf_status encoding_error(const char *path, const twf_io_rules *rules,
              rules->what ? rules->what : "the right file");
     return twf_error_set(err, TWF_ERR_SYNTAX, path, 0, 0, hint, "the file is %s", enc);
   }
-  snprintf(hint, sizeof hint, "save %s as UTF-8 (or plain ASCII) text",
-           rules->what ? rules->what : "the file");
+  snprintf(hint, sizeof hint, "save the file as UTF-8 (or plain ASCII) text, e.g. "
+           "with iconv -f %.6s -t UTF-8", enc);
   return twf_error_set(err, TWF_ERR_SYNTAX, path, 0, 0, hint,
                        "the file is %s text, not UTF-8", enc);
 }

@@ -1109,6 +1109,52 @@ START_TEST(test_size_limit)
 }
 END_TEST
 
+/* A pose id that starts with '#' makes its row a comment by the
+ * documented rule: a comment line with exactly the shape of a data row
+ * gives one warning per file (how many, the first line and id); other
+ * comments, and rows with the id quoted, give none. */
+START_TEST(test_rowlike_comment_warns)
+{
+  static const char head[] = "pose,target,j1,j2,j3,j4,j5,j6,x,y,z\n"
+      "p01,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1503.2871,-212.4409,987.1153\n"
+      "p02,T1,-47.875,15.625,-22.5,61.25,-54.125,-128.75,1219.5532,904.3317,1377.2081\n";
+  static const char row3[] = "p03,T1,1,2,3,4,5,6,1256.0248,877.1194,1354.4487\n";
+  twf_model *m = tf6s();
+  twf_warnings w;
+  twf_campaign *c;
+  char text[2048];
+  make_tmpdir();
+  snprintf(text, sizeof text, "%s# checked by the operator\n# pose,target,x\n"
+           "#p09,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1503.2871,-212.4409\n%s"
+           "\"#p04\",T2,1,2,3,4,5,6,1,2,3\n", head, row3);
+  write_file(tmppath("plain.csv"), text);
+  twf_warnings_init(&w);
+  c = read_ok(tmppath("plain.csv"), m, NULL, &w);
+  ck_assert_uint_eq(c->n_poses, 4);
+  ck_assert_str_eq(c->pose_ids[3], "#p04");
+  ck_assert_uint_eq(w.count, 0);
+  twf_campaign_free(c);
+  twf_warnings_clear(&w);
+
+  snprintf(text, sizeof text, "%s#p05,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1,2,3\n%s"
+           "  # p06 , T2 ,1,2,3,4,5,6, 1 , 2 , 3 \n", head, row3);
+  write_file(tmppath("rowlike.csv"), text);
+  twf_warnings_init(&w);
+  c = read_ok(tmppath("rowlike.csv"), m, NULL, &w);
+  ck_assert_uint_eq(c->n_poses, 3);
+  ck_assert_uint_eq(w.count, 1);
+  ck_assert_int_eq(w.items[0].line, 4);
+  ck_assert_int_eq(w.items[0].column, 1);
+  ck_assert_ptr_nonnull(strstr(w.items[0].message, "2 comment lines below the header have the "
+                                                   "shape of a data row and are skipped, the "
+                                                   "first with pose id '#p05'"));
+  twf_campaign_free(c);
+  twf_warnings_clear(&w);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
 /* ------------------------------------------------------------------ */
 /* The examples of twistfit-data(5) are read as they stand             */
 /* ------------------------------------------------------------------ */
@@ -1190,6 +1236,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_many_poses);
   tcase_add_test(tc, test_line_limit);
   tcase_add_test(tc, test_size_limit);
+  tcase_add_test(tc, test_rowlike_comment_warns);
   tcase_add_test(tc, test_man_examples);
   suite_add_tcase(s, tc);
   tc = tcase_create("write");

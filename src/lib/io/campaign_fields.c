@@ -52,6 +52,75 @@ static int number_syntax(const char *s)
   return *s == '\0';
 }
 
+/* Does the field f..e (blanks trimmed, quotes not removed) read as a
+ * number, a decimal comma allowed with ';'? */
+static int field_is_number(const creader *r, const char *f, const char *e)
+{
+  char text[128];
+  size_t n;
+  char *comma;
+  while (f < e && twf_creader_is_blank(*f))
+    f++;
+  while (e > f && (twf_creader_is_blank(e[-1]) || e[-1] == '\r' || e[-1] == '\n'))
+    e--;
+  n = (size_t)(e - f);
+  if (n == 0 || n >= sizeof text)
+    return 0;
+  memcpy(text, f, n);
+  text[n] = '\0';
+  comma = strchr(text, ',');
+  if (r->delim == ';' && comma != NULL && strchr(text, '.') == NULL)
+    *comma = '.';
+  return number_syntax(text);
+}
+
+void twf_creader_rowlike_comment(creader *r, long line, const char *p,
+                                 const char *le)
+{
+  const char *f = p, *s;
+  size_t nf = 0, j;
+  long k;
+  int quoted = 0, numeric_ok = 1;
+  const char *start[512], *end[512];
+  if (r->nh == 0 || r->nh > sizeof start / sizeof start[0])
+    return;
+  while (f < le && twf_creader_is_blank(*f))
+    f++;
+  for (s = f;; s++) {
+    if (s < le && *s == '"')
+      quoted = !quoted;
+    if (s == le || (!quoted && (unsigned char)*s == r->delim) ||
+        (!quoted && (*s == '\n' || *s == '\r'))) {
+      if (nf == r->nh)
+        return; /* more fields than the header */
+      start[nf] = f;
+      end[nf] = s;
+      nf++;
+      if (s == le || *s == '\n' || *s == '\r')
+        break;
+      f = s + 1;
+    }
+  }
+  if (nf != r->nh)
+    return;
+  for (j = 0; j < r->m->n_joints && numeric_ok; j++)
+    if (r->jcol[j] > 0)
+      numeric_ok = field_is_number(r, start[r->jcol[j] - 1], end[r->jcol[j] - 1]);
+  for (k = COL_X; k <= COL_Z && numeric_ok; k++)
+    if (r->col[k] > 0)
+      numeric_ok = field_is_number(r, start[r->col[k] - 1], end[r->col[k] - 1]);
+  if (!numeric_ok)
+    return;
+  if (r->n_rowlike++ == 0) {
+    size_t n = (size_t)(end[r->col[COL_POSE] - 1] - start[r->col[COL_POSE] - 1]);
+    r->rowlike_line = line;
+    if (n >= TWF_NAME_MAX)
+      n = TWF_NAME_MAX - 1;
+    memcpy(r->rowlike_id, start[r->col[COL_POSE] - 1], n);
+    r->rowlike_id[n] = '\0';
+  }
+}
+
 static int looks_nonfinite(const char *s)
 {
   if (*s == '+' || *s == '-')

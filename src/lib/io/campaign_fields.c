@@ -174,6 +174,11 @@ static twf_status field_number(creader *r, const twf_csv_row *row, long col,
                              "replace the value by a measured one, or drop the row",
                              "column '%s': '%s' is not a finite number", twf_creader_colname(r, col),
                              text);
+  if (v == 0.0 && errno == ERANGE && twf_io_mantissa_nonzero(text))
+    return twf_creader_error(r, row, col, TWF_ERR_VALUE,
+                             "check the exponent; write 0 for zero",
+                             "column '%s': '%s' is too small to be told from 0 (underflow)",
+                             twf_creader_colname(r, col), text);
   *out = v;
   return TWF_OK;
 }

@@ -62,6 +62,12 @@ int twf_mf_parse_numbers(parse_ctx *c, const entry *e, const char *what,
                    "%s: '%s' is not a finite number", what, tok);
       return -1;
     }
+    if (v == 0.0 && errno == ERANGE && twf_io_mantissa_nonzero(tok)) {
+      twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, (long)count,
+                   "check the exponent; write 0 for zero",
+                   "%s: '%s' is too small to be told from 0 (underflow)", what, tok);
+      return -1;
+    }
     if (count <= n)
       out[count - 1] = v;
   }

@@ -486,9 +486,9 @@ START_TEST(test_units_override)
   twf_warnings_init(&w);
   o = twf_campaign_default_options();
   o.length_from_caller = 1;
-  o.length_unit = TWF_LENGTH_IN;
+  o.length_unit = TWF_LENGTH_UM;
   c = read_ok(data("tests/data/campaign-one-semicolon.csv"), m, &o, &w);
-  ck_assert_close(c->meas[0].pos[0], 1503.2871 * 0.0254, 1e-15);
+  ck_assert(c->meas[0].pos[0] == twf_length_to_si(1503.2871, TWF_LENGTH_UM));
   ck_assert_uint_eq(w.count, 0);
   twf_campaign_free(c);
   twf_warnings_clear(&w);
@@ -1155,6 +1155,56 @@ START_TEST(test_rowlike_comment_warns)
 }
 END_TEST
 
+/* Millimetre data declared as metres: the measured points spread a
+ * thousand times farther than the arm reaches. The campaign is simulated
+ * on tf4p and centred on the tracker's origin, so that every coordinate
+ * stays below the 1 km range check and only the spread tells. */
+START_TEST(test_units_against_reach)
+{
+  twf_model *m = test_arm_model(ARM_TF4P);
+  twf_simulate_options so = twf_simulate_default_options();
+  twf_pose I;
+  twf_campaign *c, *back;
+  twf_error err;
+  double mean[3] = { 0, 0, 0 }, maxabs = 0;
+  size_t k;
+  char *text, *u;
+  FILE *f;
+  make_tmpdir();
+  twf_pose_identity(&I);
+  so.n_poses = 20;
+  c = twf_simulate_campaign(m, &I, &so, &err);
+  ck_assert_ptr_nonnull(c);
+  for (k = 0; k < c->n_meas; k++)
+    for (int a = 0; a < 3; a++)
+      mean[a] += c->meas[k].pos[a] / (double)c->n_meas;
+  for (k = 0; k < c->n_meas; k++)
+    for (int a = 0; a < 3; a++) {
+      c->meas[k].pos[a] -= mean[a];
+      maxabs = fmax(maxabs, fabs(c->meas[k].pos[a]));
+    }
+  ck_assert(maxabs < 1.0); /* below 1000 mm */
+  f = fopen(tmppath("mm.csv"), "w");
+  ck_assert_int_eq(twf_campaign_write(c, m, TWF_LENGTH_MM, TWF_ANGLE_DEG, f, &err), TWF_OK);
+  fclose(f);
+  back = read_ok(tmppath("mm.csv"), m, NULL, NULL);
+  twf_campaign_free(back);
+  text = slurp(tmppath("mm.csv"));
+  u = strstr(text, "length=mm");
+  ck_assert_ptr_nonnull(u);
+  memmove(u + 8, u + 9, strlen(u + 9) + 1); /* length=m */
+  write_file(tmppath("as-m.csv"), text);
+  ck_assert_ptr_null(twf_campaign_read(tmppath("as-m.csv"), m, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_UNITS);
+  ck_assert_ptr_nonnull(strstr(err.message, "check the units: the measured points spread over"));
+  ck_assert_ptr_nonnull(strstr(err.hint, "length="));
+  free(text);
+  twf_campaign_free(c);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
 /* ------------------------------------------------------------------ */
 /* The examples of twistfit-data(5) are read as they stand             */
 /* ------------------------------------------------------------------ */
@@ -1237,6 +1287,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_line_limit);
   tcase_add_test(tc, test_size_limit);
   tcase_add_test(tc, test_rowlike_comment_warns);
+  tcase_add_test(tc, test_units_against_reach);
   tcase_add_test(tc, test_man_examples);
   suite_add_tcase(s, tc);
   tc = tcase_create("write");

@@ -187,5 +187,8 @@ twf_status twf_creader_row_points(creader *r, const twf_csv_row *row);
 /* campaign_limits.c: joint values against the model's limits, and the
  * unit slips that put them outside */
 twf_status twf_creader_check_limits(creader *r);
+/* The spread of the measured points against the model's at the logged
+ * joint values: a unit slip of the lengths or angles (TWF_ERR_UNITS). */
+twf_status twf_creader_check_scale(creader *r);
 
 #endif

@@ -261,6 +261,8 @@ static twf_campaign *reader_finish(creader *r, twf_status st)
   size_t k;
   if (st == TWF_OK)
     st = twf_creader_check_limits(r);
+  if (st == TWF_OK)
+    st = twf_creader_check_scale(r);
   if (st == TWF_OK) {
     c = r->c;
     r->c = NULL;

@@ -180,15 +180,20 @@ START_TEST(test_size_limit)
   static const char text[] = "[base]\nlength_unit = mm\nposition = 1 2 3\n"
                              "quaternion_wxyz = 1 0 0 0\n";
   twf_read_options o = twf_read_default_options();
+  twf_input_digest d;
   twf_pose R;
   twf_error err;
   write_text(text);
   o.max_input_size = sizeof text - 1;
-  ck_assert_int_eq(twf_base_read_with(path, &o, &R, &err), TWF_OK);
+  ck_assert_int_eq(twf_base_read_with(path, &o, &R, &d, &err), TWF_OK);
+  /* the digest of the bytes parsed (reference: Python's hashlib) */
+  ck_assert_str_eq(d.sha256, "a14586614f9f5b9321acf8d081c64b87a96a82ab54fa118211904837eaa85159");
+  ck_assert(d.size == sizeof text - 1);
   o.max_input_size = sizeof text - 2;
-  ck_assert_int_eq(twf_base_read_with(path, &o, &R, &err), TWF_ERR_VALUE);
+  ck_assert_int_eq(twf_base_read_with(path, &o, &R, &d, &err), TWF_ERR_VALUE);
   ck_assert_ptr_nonnull(strstr(err.message, "larger than the input size limit"));
-  ck_assert_int_eq(twf_base_read_with(NULL, &o, &R, &err), TWF_ERR_INVALID);
+  ck_assert_str_eq(d.sha256, "");
+  ck_assert_int_eq(twf_base_read_with(NULL, &o, &R, NULL, &err), TWF_ERR_INVALID);
   unlink(path);
 }
 END_TEST

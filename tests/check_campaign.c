@@ -1205,6 +1205,42 @@ START_TEST(test_units_against_reach)
 }
 END_TEST
 
+/* The campaign carries the size and SHA-256 of the bytes each reader
+ * parsed, in the order read (reference digests: Python's hashlib). A
+ * file replaced after reading keeps the digest of what was read. */
+START_TEST(test_input_digests)
+{
+  static const char joints[] = "pose,j1,j2,j3,j4,j5,j6\n"
+                               "p01,12.5,-33.25,41.125,-7.75,28.375,93.5\n";
+  static const char want[] =
+      "7a7632f1e4d3370803b111c3b16a3a294aa0a6ce57478076d784581a94874eb3";
+  twf_model *m = tf6s();
+  twf_campaign *c;
+  make_tmpdir();
+  write_file(tmppath("j.csv"), joints);
+  c = twf_campaign_read_joints(tmppath("j.csv"), m, NULL, NULL, NULL);
+  ck_assert_ptr_nonnull(c);
+  write_file(tmppath("j.csv"), "replaced\n");
+  ck_assert_uint_eq(c->n_inputs, 1);
+  ck_assert_str_eq(c->inputs[0].sha256, want);
+  ck_assert(c->inputs[0].size == 64);
+  twf_campaign_free(c);
+  write_file(tmppath("j.csv"), joints);
+  write_file(tmppath("p.csv"), "pose,target,x,y,z\np01,T1,1,2,3\np01,T2,1,2,4\n");
+  c = read_pair_ok(tmppath("j.csv"), tmppath("p.csv"), m, NULL, NULL);
+  ck_assert_uint_eq(c->n_inputs, 2);
+  ck_assert_str_eq(c->inputs[0].sha256, want);
+  ck_assert_uint_eq(strlen(c->inputs[1].sha256), 64);
+  ck_assert(c->inputs[1].size == 44);
+  twf_campaign_free(c);
+  c = twf_campaign_alloc(6, 1, 1);
+  ck_assert_uint_eq(c->n_inputs, 0);
+  twf_campaign_free(c);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
 /* ------------------------------------------------------------------ */
 /* The examples of twistfit-data(5) are read as they stand             */
 /* ------------------------------------------------------------------ */
@@ -1288,6 +1324,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_size_limit);
   tcase_add_test(tc, test_rowlike_comment_warns);
   tcase_add_test(tc, test_units_against_reach);
+  tcase_add_test(tc, test_input_digests);
   tcase_add_test(tc, test_man_examples);
   suite_add_tcase(s, tc);
   tc = tcase_create("write");

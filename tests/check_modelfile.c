@@ -828,14 +828,39 @@ START_TEST(test_size_limit)
   twf_error err;
   ck_assert(o.max_input_size == TWF_INPUT_SIZE_DEFAULT);
   o.max_input_size = n;
-  m = twf_model_read_with(sample_path("tf6s"), &o, NULL, &err);
+  m = twf_model_read_with(sample_path("tf6s"), &o, NULL, NULL, &err);
   ck_assert_ptr_nonnull(m);
   twf_model_free(m);
   o.max_input_size = n - 1;
-  ck_assert_ptr_null(twf_model_read_with(sample_path("tf6s"), &o, NULL, &err));
+  ck_assert_ptr_null(twf_model_read_with(sample_path("tf6s"), &o, NULL, NULL, &err));
   ck_assert_int_eq(err.status, TWF_ERR_VALUE);
   ck_assert_ptr_nonnull(strstr(err.message, "larger than the input size limit"));
   free(text);
+}
+END_TEST
+
+/* twf_model_read_with hands out the size and SHA-256 of the bytes it
+ * parsed (reference: Python's hashlib); nothing on failure. */
+START_TEST(test_input_digest)
+{
+  static const char text[] = "[robot]\nname = x\n[joint j1]\ntype = revolute\n"
+                             "axis = 0 0 1\npoint = 0 0 0\n[home]\nposition = 0 0 0\n"
+                             "quaternion_wxyz = 1 0 0 0\n";
+  char path[4096];
+  twf_input_digest d;
+  twf_error err;
+  twf_model *m;
+  temp_name(path, sizeof path);
+  write_text(path, text);
+  m = twf_model_read_with(path, NULL, NULL, &d, &err);
+  ck_assert_ptr_nonnull(m);
+  ck_assert_str_eq(d.sha256, "788118a0ca0978a5b21edf1a3c79c432b0e4374dafa624243aba210e9c950858");
+  ck_assert(d.size == 121);
+  twf_model_free(m);
+  write_text(path, "[robot]\n");
+  ck_assert_ptr_null(twf_model_read_with(path, NULL, NULL, &d, &err));
+  ck_assert_str_eq(d.sha256, "");
+  remove(path);
 }
 END_TEST
 
@@ -1147,6 +1172,7 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_long_names_and_limit_line);
   tcase_add_test(tc, test_endless_line_stops);
   tcase_add_test(tc, test_size_limit);
+  tcase_add_test(tc, test_input_digest);
   tcase_add_test(tc, test_units);
   tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_rotation_rows_polished);

@@ -156,6 +156,7 @@ typedef struct cli_inputs {
   const char *paths[6]; /* NULL-terminated list of the input files */
   twf_campaign_options copt;
   twf_read_options ropt; /* model and base pose files */
+  twf_input_digest model_digest; /* of the model file as read */
   twf_model *model;
   twf_campaign *campaign;
   twf_warnings warnings;

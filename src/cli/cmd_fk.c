@@ -176,7 +176,7 @@ static int run_fk(int argc, char **argv)
     return status;
   twf_warnings_init(&warnings);
   twf_error_clear(&err);
-  model = twf_model_read_with(argv[optind], &ropt, &warnings, &err);
+  model = twf_model_read_with(argv[optind], &ropt, &warnings, NULL, &err);
   if (model == NULL) {
     cli_print_warnings(&warnings);
     twf_warnings_clear(&warnings);

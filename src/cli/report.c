@@ -103,7 +103,7 @@ int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, 
   in->paths[1] = in->data_path ? in->data_path : in->joints_path;
   in->paths[2] = in->data_path ? NULL : in->points_path;
   in->paths[3] = NULL;
-  in->model = twf_model_read_with(in->model_path, &in->ropt, &in->warnings, &err);
+  in->model = twf_model_read_with(in->model_path, &in->ropt, &in->warnings, &in->model_digest, &err);
   if (in->model == NULL)
     goto fail;
   if (in->data_path != NULL)

@@ -35,6 +35,15 @@ extern "C" {
  * (TWF_ERR_VALUE). Far beyond any arm: common practice, no source. Such
  * values would otherwise reach forward kinematics as non-finite results
  * or the registration as a singular problem. */
+/* What a reader read: the size and the SHA-256 digest of exactly the
+ * bytes it parsed (not of the file opened again, which may have been
+ * replaced since; pipes and devices get one too). */
+typedef struct twf_input_digest {
+  unsigned long long size;  /* bytes read */
+  char sha256[65];          /* 64 lower-case hex digits and a NUL; "" when
+                               nothing was read */
+} twf_input_digest;
+
 #define TWF_READ_LENGTH_MAX 1e3
 #define TWF_READ_ANGLE_MAX 1e4
 #define TWF_READ_SCALE_MAX 1e6
@@ -81,6 +90,10 @@ typedef struct twf_campaign {
   size_t n_meas;
   twf_measurement *meas;
   int has_orientation_any; /* some measurement has has_orientation */
+  /* The files read, in the order read: the one file, or the joints file
+   * and the points file; n_inputs 0 for a campaign not read from files. */
+  size_t n_inputs;
+  twf_input_digest inputs[2];
 } twf_campaign;
 
 /* How to read a campaign; get the defaults from

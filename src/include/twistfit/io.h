@@ -41,9 +41,12 @@ typedef struct twf_read_options {
 
 twf_read_options twf_read_default_options(void);
 
-/* twf_model_read with options (opt NULL: the defaults). */
+/* twf_model_read with options (opt NULL: the defaults); digest (may be
+ * NULL) receives the size and SHA-256 of the bytes parsed (on failure
+ * it is left with an empty sha256). */
 twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
-                               twf_warnings *warnings, twf_error *err);
+                               twf_warnings *warnings,
+                               twf_input_digest *digest, twf_error *err);
 /* Write m in axis-and-point form with full precision (17 significant
  * digits) in m's declared units, metadata included. */
 twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err);
@@ -103,9 +106,11 @@ twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err);
  * rules and errors as twf_model_read (file, line and a hint). */
 twf_status twf_base_read(const char *path, twf_pose *base_in_tracker,
                          twf_error *err);
-/* twf_base_read with options (opt NULL: the defaults). */
+/* twf_base_read with options (opt NULL: the defaults) and the digest of
+ * the bytes parsed (may be NULL), as twf_model_read_with. */
 twf_status twf_base_read_with(const char *path, const twf_read_options *opt,
-                              twf_pose *base_in_tracker, twf_error *err);
+                              twf_pose *base_in_tracker,
+                              twf_input_digest *digest, twf_error *err);
 /* Write base_in_tracker in that form with 17 significant digits, position
  * in length unit u; comment (may be NULL) becomes a leading ';' line. */
 twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,

@@ -101,7 +101,8 @@ static int handler(void *user, const char *section, const char *name, const char
 }
 
 static twf_status read_base(const char *path, const twf_read_options *opt,
-                            twf_pose *base_in_tracker, twf_error *err)
+                            twf_pose *base_in_tracker, twf_input_digest *digest,
+                            twf_error *err)
 {
   base_ctx c;
   int rc, a;
@@ -137,26 +138,31 @@ static twf_status read_base(const char *path, const twf_read_options *opt,
   twf_quat_to_rot(c.quat, base_in_tracker->R);
   for (a = 0; a < 3; a++)
     base_in_tracker->p[a] = twf_length_to_si(c.pos[a], c.unit);
+  if (digest != NULL)
+    *digest = c.ini.digest;
   return TWF_OK;
 }
 
 twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error *err)
 {
-  return twf_base_read_with(path, NULL, base_in_tracker, err);
+  return twf_base_read_with(path, NULL, base_in_tracker, NULL, err);
 }
 
 twf_status twf_base_read_with(const char *path, const twf_read_options *opt,
-                              twf_pose *base_in_tracker, twf_error *err)
+                              twf_pose *base_in_tracker,
+                              twf_input_digest *digest, twf_error *err)
 {
   twf_io_c_locale loc;
   twf_status st;
+  if (digest != NULL)
+    memset(digest, 0, sizeof *digest);
   if (path == NULL || base_in_tracker == NULL)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "no base pose file or no pose to fill given");
   st = twf_io_c_locale_enter(&loc, err);
   if (st != TWF_OK)
     return st;
-  st = read_base(path, opt, base_in_tracker, err);
+  st = read_base(path, opt, base_in_tracker, digest, err);
   twf_io_c_locale_leave(&loc);
   return st;
 }

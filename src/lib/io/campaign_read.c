@@ -179,6 +179,8 @@ twf_status twf_creader_read_file(creader *r, const char *path, file_kind kind)
                        "add one row per measurement below the header",
                        "no data rows after the header row");
   twf_csv_clear(&in);
+  if (st == TWF_OK && r->c->n_inputs < sizeof r->c->inputs / sizeof r->c->inputs[0])
+    r->c->inputs[r->c->n_inputs++] = in.digest;
   /* '#' starts a comment (twistfit-data(5)), so a row whose pose id
    * starts with it is dropped: say so when it looks like one. */
   if (st == TWF_OK && r->n_rowlike > 0)

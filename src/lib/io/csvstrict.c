@@ -145,6 +145,7 @@ twf_status twf_csv_run(twf_csv_in *in)
   st = twf_io_read_text(in->path, &rules, &text, in->err);
   if (st != TWF_OK)
     return st;
+  in->digest = text.digest;
   p = text.data + text.start;
   end = text.data + text.len;
   nul = text.nul_at != (size_t)-1 ? text.data + text.nul_at : NULL;

@@ -40,6 +40,7 @@ struct twf_csv_in {
   long header_line;
   int header_seen;      /* the header line was fed */
   size_t n_data_rows;   /* records after the header */
+  twf_input_digest digest; /* of the bytes read */
   /* private: the record being assembled, fields packed NUL-separated */
   twf_status status;
   int header_done;      /* the header row was handed over */

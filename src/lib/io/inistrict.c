@@ -112,6 +112,7 @@ int twf_ini_parse(twf_ini_strict *ini)
     ini->status = st;
     return 0;
   }
+  ini->digest = ini->text.digest;
   rc = ini_parse_stream(read_line, ini, ini->pair, ini->user);
   twf_io_text_free(&ini->text);
   return rc;

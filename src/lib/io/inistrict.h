@@ -44,6 +44,7 @@ struct twf_ini_strict {
   size_t pos;              /* offset of the next line in text */
   long lineno;             /* lines read so far: the current line */
   twf_status status;       /* first error, TWF_OK while none */
+  twf_input_digest digest; /* of the bytes read, once read */
 };
 
 /* Record an error unless one is recorded already (later ones are its

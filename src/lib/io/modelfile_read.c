@@ -230,7 +230,8 @@ twf_read_options twf_read_default_options(void)
 }
 
 static twf_model *read_model(const char *path, const twf_read_options *opt,
-                             twf_warnings *warnings, twf_error *err)
+                             twf_warnings *warnings, twf_input_digest *digest,
+                             twf_error *err)
 {
   parse_ctx c;
   twf_model *m;
@@ -250,21 +251,26 @@ static twf_model *read_model(const char *path, const twf_read_options *opt,
   }
   m = build_model(&c);
   twf_mf_ctx_clear(&c);
+  if (m != NULL && digest != NULL)
+    *digest = c.ini.digest;
   return m;
 }
 
 twf_model *twf_model_read(const char *path, twf_warnings *warnings,
                           twf_error *err)
 {
-  return twf_model_read_with(path, NULL, warnings, err);
+  return twf_model_read_with(path, NULL, warnings, NULL, err);
 }
 
 twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
-                               twf_warnings *warnings, twf_error *err)
+                               twf_warnings *warnings,
+                               twf_input_digest *digest, twf_error *err)
 {
   twf_io_c_locale loc;
   twf_model *m;
   twf_error_clear(err);
+  if (digest != NULL)
+    memset(digest, 0, sizeof *digest);
   if (path == NULL) {
     twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                   "no model file name given");
@@ -272,7 +278,7 @@ twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
   }
   if (twf_io_c_locale_enter(&loc, err) != TWF_OK)
     return NULL;
-  m = read_model(path, opt, warnings, err);
+  m = read_model(path, opt, warnings, digest, err);
   twf_io_c_locale_leave(&loc);
   return m;
 }

@@ -5,6 +5,7 @@
 #include "readtext.h"
 
 #include <errno.h>
+#include <sha2.h>
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -105,7 +106,9 @@ twf_status twf_io_read_text(const char *path, const twf_io_rules *rules,
   size_t col = 0;
   int prev_cr = 0, seen_lf = 0, stop = 0;
   twf_status st = TWF_OK;
+  SHA2_CTX sha;
   memset(t, 0, sizeof *t);
+  SHA256Init(&sha);
   t->nul_at = (size_t)-1;
   /* size_t arithmetic below: a limit beyond what memory can hold is no
    * limit at all. */
@@ -179,6 +182,7 @@ twf_status twf_io_read_text(const char *path, const twf_io_rules *rules,
         break;
       }
     }
+    SHA256Update(&sha, (const uint8_t *)buf + n, got);
     n += got;
     if (st != TWF_OK)
       break;
@@ -207,6 +211,10 @@ twf_status twf_io_read_text(const char *path, const twf_io_rules *rules,
   buf[n] = '\0';
   t->data = buf;
   t->len = n;
+  /* With a NUL the reading stopped early and the format refuses the file:
+   * no digest is handed out then. */
+  t->digest.size = n;
+  SHA256End(&sha, t->digest.sha256);
   if (n >= 3 && (unsigned char)buf[0] == 0xEF && (unsigned char)buf[1] == 0xBB &&
       (unsigned char)buf[2] == 0xBF)
     t->start = 3;

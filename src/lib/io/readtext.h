@@ -33,6 +33,7 @@ typedef struct twf_io_text {
    * (size_t)-1 when the file has none. */
   size_t nul_at;
   long nul_line, nul_col;  /* 1-based line and byte column of the NUL */
+  twf_input_digest digest; /* size and SHA-256 of the bytes read */
 } twf_io_text;
 
 /* Read path whole. Refused, with the file, the line and a hint: a file

@@ -15,6 +15,8 @@
  *  - the examples of twistfit-model(5) load and agree with each other. */
 #include "testutil.h"
 #include "twistfit.h"
+/* the first pass's key-comparison counter (test_many_asbuilt_keys) */
+#include "io/modelfile_internal.h"
 
 #include <dirent.h>
 #include <errno.h>
@@ -864,6 +866,50 @@ START_TEST(test_input_digest)
 }
 END_TEST
 
+/* Many [asbuilt] keys read in linear time: the first pass's key
+ * comparisons (a counter of the reader, not a clock) stay within a small
+ * multiple of the number of keys, where a look-up per key would make
+ * n^2 / 2 (800 million for 40,000 keys); every key is kept, in order, and
+ * a repeat at the end is still found with its first line. */
+START_TEST(test_many_asbuilt_keys)
+{
+  enum { N = 40000 };
+  char path[4096];
+  twf_error err;
+  twf_model *m;
+  parse_ctx c;
+  FILE *f;
+  temp_name(path, sizeof path);
+  f = fopen(path, "w");
+  ck_assert_ptr_nonnull(f);
+  fputs("[robot]\nname = x\n[joint j1]\ntype = revolute\naxis = 0 0 1\npoint = 0 0 0\n"
+        "[home]\nposition = 0 0 0\nquaternion_wxyz = 1 0 0 0\n[asbuilt]\n", f);
+  for (int k = 0; k < N; k++)
+    fprintf(f, "key%d = value %d\n", k, k);
+  fclose(f);
+  memset(&c, 0, sizeof c);
+  c.ini.path = path;
+  c.ini.err = &err;
+  ck_assert_int_eq(twf_mf_parse_structure(&c), TWF_OK);
+  ck_assert_uint_le(c.n_key_compares, 2 * (unsigned long)N);
+  twf_mf_ctx_clear(&c);
+  m = read_ok(path, NULL);
+  ck_assert_uint_eq(m->n_meta, N);
+  ck_assert_str_eq(m->meta[0].key, "key0");
+  ck_assert_str_eq(m->meta[N - 1].key, "key39999");
+  ck_assert_str_eq(twf_model_meta_get(m, "key12345"), "value 12345");
+  twf_model_free(m);
+  f = fopen(path, "a");
+  fputs("key17 = again\n", f);
+  fclose(f);
+  ck_assert_ptr_null(twf_model_read(path, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_DUPLICATE);
+  ck_assert_int_eq(err.line, 10 + N + 1);
+  ck_assert_ptr_nonnull(strstr(err.message, "key 'key17' appears twice in [asbuilt] (first at line 28)"));
+  remove(path);
+}
+END_TEST
+
 /* Units: the same arm in m/rad, um/mrad and in/deg; 1 in = 25.4 mm exactly
  * (international inch, 1959: common practice, no source in the project). */
 START_TEST(test_units)
@@ -1173,6 +1219,7 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_endless_line_stops);
   tcase_add_test(tc, test_size_limit);
   tcase_add_test(tc, test_input_digest);
+  tcase_add_test(tc, test_many_asbuilt_keys);
   tcase_add_test(tc, test_units);
   tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_rotation_rows_polished);

@@ -101,7 +101,7 @@ int twf_ini_parse(twf_ini_strict *ini)
   twf_io_rules rules;
   int rc;
   twf_status st;
-  rules.max_size = ini->max_size;
+  rules.max_size = ini->max_size ? ini->max_size : TWF_INPUT_SIZE_DEFAULT;
   rules.format_line_max = TWF_INI_LINE_MAX;
   rules.what = ini->what;
   rules.name = ini->name;

@@ -53,6 +53,12 @@ typedef struct parse_ctx {
   size_t nsec, capsec;
   char key[TWF_MODEL_LINE_MAX + 1]; /* key of the current line */
   twf_warnings *warnings;
+  /* Keys of the current section (index ksec - 1), hashed, so that a
+   * section of many keys ([asbuilt]) reads in linear time: open
+   * addressing, slots hold entry index + 1, load at most 1/2. */
+  size_t *kslot, kcap, ksec;
+  /* key comparisons made (a test hook for the linear time) */
+  unsigned long n_key_compares;
 } parse_ctx;
 
 /* Run the first pass over c->ini.path: sections and keys checked, every value kept

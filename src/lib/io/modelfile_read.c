@@ -139,15 +139,20 @@ static twf_model *build_model(parse_ctx *c)
           goto fail;
         t->offset_known = 1;
       }
-    } else if (s->kind == SEC_ASBUILT) {
+    } else if (s->kind == SEC_ASBUILT && s->n > 0) {
+      /* The first pass checked the keys (valid names, no repeats): fill
+       * the metadata at once rather than through twf_model_meta_set,
+       * whose look-up per key would make many keys quadratic. */
+      m->meta = calloc(s->n, sizeof *m->meta);
+      if (m->meta == NULL) {
+        twf_ini_fail(&c->ini, TWF_ERR_NOMEM, s->line, 0, NULL, "out of memory");
+        goto fail;
+      }
       for (size_t k = 0; k < s->n; k++) {
-        twf_status st = twf_model_meta_set(m, s->entries[k].key,
-                                           s->entries[k].value);
-        if (st != TWF_OK) {
-          twf_ini_fail(&c->ini, st, s->entries[k].line, 0, NULL,
-                       "cannot keep metadata '%s'", s->entries[k].key);
-          goto fail;
-        }
+        twf_strlcpy(m->meta[k].key, s->entries[k].key, sizeof m->meta[k].key);
+        m->meta[k].value = s->entries[k].value;
+        s->entries[k].value = NULL; /* now the model's */
+        m->n_meta = k + 1;
       }
     }
   }

@@ -13,6 +13,8 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/resource.h>
+#include <sys/wait.h>
 #include <unistd.h>
 
 #define PI 3.14159265358979323846
@@ -1241,6 +1243,84 @@ START_TEST(test_input_digests)
 }
 END_TEST
 
+/* Load: a campaign of 200,000 poses and 3 targets (600,000 rows, about
+ * 60 MB) reads within the memory twistfit-data(5) states: the text read
+ * whole plus the campaign, at most 4 times the file's size. The reader
+ * runs in a child process, whose peak resident size (getrusage) is
+ * compared before and after; not under AddressSanitizer, whose shadow
+ * memory and quarantine change the figures (there the reading is
+ * checked only). */
+#if defined(__SANITIZE_ADDRESS__)
+#define TWF_TEST_ASAN 1
+#elif defined(__has_feature)
+#if __has_feature(address_sanitizer)
+#define TWF_TEST_ASAN 1
+#endif
+#endif
+
+START_TEST(test_load_200k_poses)
+{
+  enum { N_POSES = 200000 };
+  twf_model *m = tf6s();
+  FILE *f;
+  size_t p;
+  long size;
+  int fds[2], status;
+  pid_t pid;
+  long grown_kib = -1;
+  make_tmpdir();
+  f = fopen(tmppath("large.csv"), "w");
+  ck_assert_ptr_nonnull(f);
+  fputs("# units: length=mm angle=deg\npose,target,j1,j2,j3,j4,j5,j6,x,y,z\n", f);
+  for (p = 0; p < N_POSES; p++) {
+    double a = -150.0 + 300.0 * (double)(p % 9973) / 9973.0;
+    for (int t = 1; t <= 3; t++)
+      fprintf(f, "p%06zu,T%d,%.4f,%.4f,12.5,-7.75,28.375,%.4f,%.4f,%.4f,%.4f\n", p, t,
+              a, a / 3.0, -a, 1500.0 + a, -200.0 + t, 900.0 - a / 2.0);
+  }
+  size = ftell(f);
+  ck_assert_int_eq(fclose(f), 0);
+  ck_assert(pipe(fds) == 0);
+  pid = fork();
+  ck_assert(pid >= 0);
+  if (pid == 0) {
+    struct rusage before, after;
+    twf_error err;
+    twf_campaign *c;
+    long out[3];
+    close(fds[0]);
+    getrusage(RUSAGE_SELF, &before);
+    c = twf_campaign_read(tmppath("large.csv"), m, NULL, NULL, &err);
+    getrusage(RUSAGE_SELF, &after);
+    out[0] = c != NULL && c->n_poses == N_POSES && c->n_meas == 3 * N_POSES &&
+             strcmp(c->pose_ids[N_POSES - 1], "p199999") == 0;
+    out[1] = after.ru_maxrss - before.ru_maxrss; /* KiB on Linux */
+    out[2] = c != NULL ? 0 : (long)err.line;
+    if (write(fds[1], out, sizeof out) != (ssize_t)sizeof out)
+      _exit(2);
+    _exit(0);
+  }
+  close(fds[1]);
+  {
+    long in[3] = { 0, 0, 0 };
+    ck_assert(read(fds[0], in, sizeof in) == (ssize_t)sizeof in);
+    close(fds[0]);
+    ck_assert(waitpid(pid, &status, 0) == pid);
+    ck_assert_msg(in[0] == 1, "the large campaign was not read (error at line %ld)", in[2]);
+    grown_kib = in[1];
+  }
+#ifndef TWF_TEST_ASAN
+  ck_assert_msg(grown_kib * 1024.0 <= 4.0 * (double)size,
+                "reading %ld bytes grew the peak memory by %ld KiB, more than 4 times the file",
+                size, grown_kib);
+#endif
+  fprintf(stderr, "check_campaign: 200,000 poses: %ld bytes read, peak memory grew by %ld KiB\n",
+          size, grown_kib);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
 /* ------------------------------------------------------------------ */
 /* The examples of twistfit-data(5) are read as they stand             */
 /* ------------------------------------------------------------------ */
@@ -1330,6 +1410,11 @@ static Suite *campaign_suite(void)
   tc = tcase_create("write");
   tcase_add_test(tc, test_roundtrip);
   tcase_add_test(tc, test_write_groups_by_pose);
+  suite_add_tcase(s, tc);
+  /* about 2 s; more under the sanitizers */
+  tc = tcase_create("load");
+  tcase_set_timeout(tc, 300);
+  tcase_add_test(tc, test_load_200k_poses);
   suite_add_tcase(s, tc);
   return s;
 }

@@ -1055,6 +1055,25 @@ START_TEST(test_line_limit)
   ck_assert_int_eq(err.line, 1);
   ck_assert_str_eq(err.message, "line is longer than 65536 characters: reading stopped there");
   ck_assert(err.hint[0] != '\0');
+  /* CR CR LF (a CR LF file converted once more) is not CR-only. */
+  {
+    char *text = slurp(data("tests/data/campaign-one.csv")), *o;
+    char *out = malloc(3 * strlen(text) + 1);
+    const char *s;
+    for (s = text, o = out; *s; s++) {
+      if (*s == '\n') {
+        *o++ = '\r';
+        *o++ = '\r';
+      }
+      *o++ = *s;
+    }
+    *o = '\0';
+    write_file(tmppath("crcrlf.csv"), out);
+    c = read_ok(tmppath("crcrlf.csv"), m, NULL, NULL);
+    twf_campaign_free(c);
+    free(out);
+    free(text);
+  }
   /* A long data line after good ones: its own line number. */
   {
     FILE *f = fopen(tmppath("long-row.csv"), "wb");

@@ -140,7 +140,8 @@ twf_status twf_io_read_text(const char *path, const twf_io_rules *rules,
     }
     for (i = 0; i < got && st == TWF_OK; i++) {
       unsigned char ch = (unsigned char)buf[n + i];
-      if (prev_cr && ch != '\n' && !seen_lf) {
+      /* (CR CR LF, a CR LF file converted once more, is not CR-only) */
+      if (prev_cr && ch != '\n' && ch != '\r' && !seen_lf) {
         st = encoding_error(path, rules, (unsigned char *)buf, n + got, err);
         if (st == TWF_OK)
           st = twf_error_set(err, TWF_ERR_SYNTAX, path, 0, 0,

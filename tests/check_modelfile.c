@@ -15,6 +15,8 @@
  *  - the examples of twistfit-model(5) load and agree with each other. */
 #include "testutil.h"
 #include "twistfit.h"
+/* the first pass's key-comparison counter (test_many_asbuilt_keys) */
+#include "io/modelfile_internal.h"
 
 #include <dirent.h>
 #include <errno.h>
@@ -475,10 +477,10 @@ START_TEST(test_extreme_values_roundtrip)
   m->length_unit = TWF_LENGTH_UM;
   m->angle_unit = TWF_ANGLE_MRAD;
   m->home.p[0] = -1.2345678901234567e-300;
-  m->home.p[1] = 9.8765432109876543e+250;
+  m->home.p[1] = 9.8765432109876543e+2; /* up to TWF_READ_LENGTH_MAX */
   m->home.p[2] = -2.2250738585072014e-308;
   m->targets[0].offset[0] = -4.9406564584124654e-324; /* subnormal */
-  m->joints[0].limit_lo = -1.7976931348623157e+300;
+  m->joints[0].limit_lo = -9.9999999999999982e+3; /* up to TWF_READ_ANGLE_MAX */
   /* As a file gives it: the double nearest -1.1111111111111111e-197 mrad
    * divided by 1000 (not every double in rad is one of those). */
   m->joints[3].offset = -1.1111111111111111e-197 / 1e3;
@@ -490,6 +492,19 @@ START_TEST(test_extreme_values_roundtrip)
   ck_assert(back->targets[0].offset[0] == m->targets[0].offset[0]);
   ck_assert(back->joints[0].limit_lo == m->joints[0].limit_lo);
   ck_assert(back->joints[3].offset == m->joints[3].offset);
+  /* Beyond the range the reader accepts, the writer refuses too. */
+  {
+    twf_error err;
+    FILE *f = tmpfile();
+    ck_assert_ptr_nonnull(f);
+    m->joints[0].limit_lo = -1.7976931348623157e+300;
+    ck_assert_int_eq(twf_model_write(m, f, &err), TWF_ERR_INVALID);
+    m->joints[0].limit_lo = -1.0;
+    m->home.p[1] = 9.8765432109876543e+250;
+    ck_assert_int_eq(twf_model_write(m, f, &err), TWF_ERR_INVALID);
+    ck_assert_int_eq(ftell(f), 0);
+    fclose(f);
+  }
   free(text);
   twf_model_free(m);
   twf_model_free(back);
@@ -775,6 +790,122 @@ START_TEST(test_long_names_and_limit_line)
   free(written);
   twf_model_free(back);
   twf_model_free(m);
+  remove(path);
+}
+END_TEST
+
+/* A line beyond the read stage's stop (TWF_CAMPAIGN_LINE_MAX) ends the
+ * reading there instead of scanning an endless line. */
+START_TEST(test_endless_line_stops)
+{
+  char path[4096];
+  twf_error err;
+  FILE *f;
+  size_t k;
+  temp_name(path, sizeof path);
+  f = fopen(path, "wb");
+  ck_assert_ptr_nonnull(f);
+  fputs("[robot]\nname = x\n;", f);
+  for (k = 0; k < 2 * (size_t)TWF_CAMPAIGN_LINE_MAX; k++)
+    fputc('-', f);
+  fclose(f);
+  ck_assert_ptr_null(twf_model_read(path, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
+  ck_assert_int_eq(err.line, 3);
+  ck_assert_str_eq(err.message, "line is longer than 65536 characters, more than "
+                                "the limit of 198: reading stopped there");
+  ck_assert(err.hint[0] != '\0');
+  remove(path);
+}
+END_TEST
+
+/* twf_model_read_with: a file of exactly max_input_size bytes is read,
+ * one byte more is refused. */
+START_TEST(test_size_limit)
+{
+  char *text = slurp(sample_path("tf6s"));
+  size_t n = strlen(text);
+  twf_read_options o = twf_read_default_options();
+  twf_model *m;
+  twf_error err;
+  ck_assert(o.max_input_size == TWF_INPUT_SIZE_DEFAULT);
+  o.max_input_size = n;
+  m = twf_model_read_with(sample_path("tf6s"), &o, NULL, NULL, &err);
+  ck_assert_ptr_nonnull(m);
+  twf_model_free(m);
+  o.max_input_size = n - 1;
+  ck_assert_ptr_null(twf_model_read_with(sample_path("tf6s"), &o, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+  ck_assert_ptr_nonnull(strstr(err.message, "larger than the input size limit"));
+  free(text);
+}
+END_TEST
+
+/* twf_model_read_with hands out the size and SHA-256 of the bytes it
+ * parsed (reference: Python's hashlib); nothing on failure. */
+START_TEST(test_input_digest)
+{
+  static const char text[] = "[robot]\nname = x\n[joint j1]\ntype = revolute\n"
+                             "axis = 0 0 1\npoint = 0 0 0\n[home]\nposition = 0 0 0\n"
+                             "quaternion_wxyz = 1 0 0 0\n";
+  char path[4096];
+  twf_input_digest d;
+  twf_error err;
+  twf_model *m;
+  temp_name(path, sizeof path);
+  write_text(path, text);
+  m = twf_model_read_with(path, NULL, NULL, &d, &err);
+  ck_assert_ptr_nonnull(m);
+  ck_assert_str_eq(d.sha256, "788118a0ca0978a5b21edf1a3c79c432b0e4374dafa624243aba210e9c950858");
+  ck_assert(d.size == 121);
+  twf_model_free(m);
+  write_text(path, "[robot]\n");
+  ck_assert_ptr_null(twf_model_read_with(path, NULL, NULL, &d, &err));
+  ck_assert_str_eq(d.sha256, "");
+  remove(path);
+}
+END_TEST
+
+/* Many [asbuilt] keys read in linear time: the first pass's key
+ * comparisons (a counter of the reader, not a clock) stay within a small
+ * multiple of the number of keys, where a look-up per key would make
+ * n^2 / 2 (800 million for 40,000 keys); every key is kept, in order, and
+ * a repeat at the end is still found with its first line. */
+START_TEST(test_many_asbuilt_keys)
+{
+  enum { N = 40000 };
+  char path[4096];
+  twf_error err;
+  twf_model *m;
+  parse_ctx c;
+  FILE *f;
+  temp_name(path, sizeof path);
+  f = fopen(path, "w");
+  ck_assert_ptr_nonnull(f);
+  fputs("[robot]\nname = x\n[joint j1]\ntype = revolute\naxis = 0 0 1\npoint = 0 0 0\n"
+        "[home]\nposition = 0 0 0\nquaternion_wxyz = 1 0 0 0\n[asbuilt]\n", f);
+  for (int k = 0; k < N; k++)
+    fprintf(f, "key%d = value %d\n", k, k);
+  fclose(f);
+  memset(&c, 0, sizeof c);
+  c.ini.path = path;
+  c.ini.err = &err;
+  ck_assert_int_eq(twf_mf_parse_structure(&c), TWF_OK);
+  ck_assert_uint_le(c.n_key_compares, 2 * (unsigned long)N);
+  twf_mf_ctx_clear(&c);
+  m = read_ok(path, NULL);
+  ck_assert_uint_eq(m->n_meta, N);
+  ck_assert_str_eq(m->meta[0].key, "key0");
+  ck_assert_str_eq(m->meta[N - 1].key, "key39999");
+  ck_assert_str_eq(twf_model_meta_get(m, "key12345"), "value 12345");
+  twf_model_free(m);
+  f = fopen(path, "a");
+  fputs("key17 = again\n", f);
+  fclose(f);
+  ck_assert_ptr_null(twf_model_read(path, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_DUPLICATE);
+  ck_assert_int_eq(err.line, 10 + N + 1);
+  ck_assert_ptr_nonnull(strstr(err.message, "key 'key17' appears twice in [asbuilt] (first at line 28)"));
   remove(path);
 }
 END_TEST
@@ -1085,6 +1216,10 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_null_arguments);
   tcase_add_test(tc, test_reader_tolerates_layout);
   tcase_add_test(tc, test_long_names_and_limit_line);
+  tcase_add_test(tc, test_endless_line_stops);
+  tcase_add_test(tc, test_size_limit);
+  tcase_add_test(tc, test_input_digest);
+  tcase_add_test(tc, test_many_asbuilt_keys);
   tcase_add_test(tc, test_units);
   tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_rotation_rows_polished);

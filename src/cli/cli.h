@@ -133,6 +133,7 @@ enum {
   CLI_OPT_LENGTH_UNIT,
   CLI_OPT_ANGLE_UNIT,
   CLI_OPT_LIMITS_ERROR,
+  CLI_OPT_MAX_INPUT_SIZE,
   CLI_OPT_FIRST_FREE /* commands number their own options from here */
 };
 #define CLI_INPUT_LONGOPTS                                                     \
@@ -140,7 +141,8 @@ enum {
   { "points", required_argument, NULL, CLI_OPT_POINTS },                       \
   { "length-unit", required_argument, NULL, CLI_OPT_LENGTH_UNIT },             \
   { "angle-unit", required_argument, NULL, CLI_OPT_ANGLE_UNIT },               \
-  { "limits-error", no_argument, NULL, CLI_OPT_LIMITS_ERROR }
+  { "limits-error", no_argument, NULL, CLI_OPT_LIMITS_ERROR },               \
+  { "max-input-size", required_argument, NULL, CLI_OPT_MAX_INPUT_SIZE }
 #define CLI_INPUT_HELP                                                         \
   "      --joints FILE       two-file form: the controller's joint log ...\n"  \
   "      --points FILE       ... and the instrument's points (instead of DATA)\n" \
@@ -149,19 +151,26 @@ enum {
   "      --angle-unit U      angle unit of the joint values (deg, rad, mrad;\n" \
   "                          default: as each file declares, else deg)\n"      \
   "      --limits-error      joint values outside the model's limits are an\n" \
-  "                          error (default: a warning)\n"
+  "                          error (default: a warning)\n"                    \
+  "      --max-input-size N  refuse input files larger than N bytes (suffix\n" \
+  "                          K, M, G, T: binary multiples; default 2G)\n"
 
 /* A model and a campaign read from the command line. */
 typedef struct cli_inputs {
   const char *model_path, *data_path, *joints_path, *points_path;
   const char *paths[6]; /* NULL-terminated list of the input files */
   twf_campaign_options copt;
+  twf_read_options ropt; /* model and base pose files */
+  twf_input_digest model_digest; /* of the model file as read */
   twf_model *model;
   twf_campaign *campaign;
   twf_warnings warnings;
 } cli_inputs;
 
 void cli_inputs_init(cli_inputs *in);
+/* --max-input-size: a byte count with an optional binary suffix K, M, G
+ * or T (KiB... accepted too); returns an exit status. */
+int cli_parse_size(const char *command, const char *value, unsigned long long *out);
 /* Handle one of the CLI_INPUT_LONGOPTS; returns 1 when handled (with
  * *status the exit status of a bad value, else 0). */
 int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *arg,

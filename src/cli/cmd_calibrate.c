@@ -877,14 +877,13 @@ static int run_calibrate(int argc, char **argv)
       goto done;
   }
 
+  /* the digests of the bytes the readers parsed (paths: the model, then
+   * the campaign's files in the order read) */
   for (i = 0; in.paths[i] != NULL; i++) {
-    struct stat st;
+    const twf_input_digest *d = i == 0 ? &in.model_digest
+                                : i - 1 < in.campaign->n_inputs ? &in.campaign->inputs[i - 1] : NULL;
     dg[n_dg].path = in.paths[i];
-    /* a pipe was consumed by the reader: its digest cannot be taken again */
-    if (stat(in.paths[i], &st) != 0 || !S_ISREG(st.st_mode))
-      strcpy(dg[n_dg].hex, "unavailable (not a regular file)");
-    else if (SHA256File(in.paths[i], dg[n_dg].hex) == NULL)
-      strcpy(dg[n_dg].hex, "unreadable");
+    snprintf(dg[n_dg].hex, sizeof dg[n_dg].hex, "%s", d && d->sha256[0] ? d->sha256 : "unavailable");
     n_dg++;
   }
   {

@@ -26,6 +26,8 @@ static const char fk_help[] =
   "      --angle-unit U         unit of revolute joint values (deg, rad, mrad;\n"
   "                             default: as the file declares, else deg)\n"
   "      --output-length-unit U unit of the printed positions (default: the model's)\n"
+  "      --max-input-size N     refuse input files larger than N bytes (suffix\n"
+  "                             K, M, G, T: binary multiples; default 2G)\n"
   "  -h, --help                 show this help\n";
 
 static void write_header(cli_csv *csv, const twf_model *m, const char *lu)
@@ -117,6 +119,7 @@ static int run_fk(int argc, char **argv)
     { "length-unit", required_argument, NULL, 'L' },
     { "angle-unit", required_argument, NULL, 'A' },
     { "output-length-unit", required_argument, NULL, 'U' },
+    { "max-input-size", required_argument, NULL, 'S' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -124,6 +127,7 @@ static int run_fk(int argc, char **argv)
   const char *output = NULL;
   int force = 0, opt, status;
   twf_campaign_options copt = twf_campaign_default_options();
+  twf_read_options ropt = twf_read_default_options();
   int have_out_unit = 0;
   twf_length_unit out_unit = TWF_LENGTH_MM;
   twf_model *model = NULL;
@@ -155,6 +159,11 @@ static int run_fk(int argc, char **argv)
         return status;
       have_out_unit = 1;
       break;
+    case 'S':
+      if ((status = cli_parse_size("fk", optarg, &copt.max_input_size)) != 0)
+        return status;
+      ropt.max_input_size = copt.max_input_size;
+      break;
     case 'h': fputs(fk_help, stdout); return TWF_EXIT_OK;
     default: return cli_bad_option("fk", opt, argv);
     }
@@ -169,7 +178,7 @@ static int run_fk(int argc, char **argv)
     return status;
   twf_warnings_init(&warnings);
   twf_error_clear(&err);
-  model = twf_model_read(argv[optind], &warnings, &err);
+  model = twf_model_read_with(argv[optind], &ropt, &warnings, NULL, &err);
   if (model == NULL) {
     cli_print_warnings(&warnings);
     twf_warnings_clear(&warnings);

@@ -246,7 +246,7 @@ static int run_verify(int argc, char **argv)
   twf_register_offsets_init(in.model, offsets);
   if (base_path != NULL) {
     size_t k;
-    if (twf_base_read(base_path, &base, &err) != TWF_OK) {
+    if (twf_base_read_with(base_path, &in.ropt, &base, NULL, &err) != TWF_OK) {
       status = cli_report_error(&err);
       goto done;
     }

@@ -90,6 +90,7 @@ void cli_inputs_init(cli_inputs *in)
 {
   memset(in, 0, sizeof *in);
   in->copt = twf_campaign_default_options();
+  in->ropt = twf_read_default_options();
   twf_warnings_init(&in->warnings);
 }
 
@@ -108,6 +109,10 @@ int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *
     in->copt.angle_from_caller = 1;
     return 1;
   case CLI_OPT_LIMITS_ERROR: in->copt.limits_are_errors = 1; return 1;
+  case CLI_OPT_MAX_INPUT_SIZE:
+    *status = cli_parse_size(command, arg, &in->copt.max_input_size);
+    in->ropt.max_input_size = in->copt.max_input_size;
+    return 1;
   default: return 0;
   }
 }
@@ -131,7 +136,7 @@ int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, 
   in->paths[1] = in->data_path ? in->data_path : in->joints_path;
   in->paths[2] = in->data_path ? NULL : in->points_path;
   in->paths[3] = NULL;
-  in->model = twf_model_read(in->model_path, &in->warnings, &err);
+  in->model = twf_model_read_with(in->model_path, &in->ropt, &in->warnings, &in->model_digest, &err);
   if (in->model == NULL)
     goto fail;
   if (in->data_path != NULL)

@@ -7,7 +7,7 @@ SRC=${TWF_SRCDIR:-$(cd "$(dirname "$0")/../.." && pwd)}
 BUILD=${TWF_BUILDDIR:-$SRC}
 TWISTFIT="$BUILD/src/twistfit"
 # shellcheck source=/dev/null
-. "$SRC/completion/twistfit"
+. "$SRC/src/cli/completion/twistfit"
 fail=0
 
 # complete the words given (the last one is the word being completed)

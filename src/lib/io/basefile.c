@@ -14,6 +14,7 @@ typedef struct base_ctx {
   int have_unit, have_pos, have_quat;
   twf_length_unit unit;
   double pos[3], quat[4];
+  long pos_line;
 } base_ctx;
 
 static int fail_at(base_ctx *c, twf_status st, long line, const char *hint, const char *msg,
@@ -74,6 +75,7 @@ static int handler(void *user, const char *section, const char *name, const char
     if (c->have_pos)
       return fail_at(c, TWF_ERR_DUPLICATE, c->ini.lineno, "give each key once", "duplicate key: ", name);
     c->have_pos = 1;
+    c->pos_line = c->ini.lineno;
     if (parse_vec(value, c->pos, 3) != 0)
       return fail_at(c, TWF_ERR_VALUE, c->ini.lineno, "give three finite numbers x y z",
                      "bad position: ", value);
@@ -98,10 +100,11 @@ static int handler(void *user, const char *section, const char *name, const char
   return 1;
 }
 
-static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_error *err)
+static twf_status read_base(const char *path, const twf_read_options *opt,
+                            twf_pose *base_in_tracker, twf_input_digest *digest,
+                            twf_error *err)
 {
   base_ctx c;
-  FILE *fp;
   int rc, a;
   memset(&c, 0, sizeof c);
   c.ini.path = path;
@@ -112,12 +115,10 @@ static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_err
   c.ini.user = &c;
   c.ini.long_line_message = "line too long";
   c.ini.long_line_hint = "keep lines under 199 characters";
-  fp = fopen(path, "r");
-  if (fp == NULL)
-    return twf_error_set(err, TWF_ERR_IO, path, 0, 0, "check the path and permissions",
-                         "cannot open the base pose file: %s", strerror(errno));
-  rc = twf_ini_parse(&c.ini, fp);
-  fclose(fp);
+  c.ini.name = "the base pose file";
+  c.ini.max_size = opt && opt->max_input_size ? opt->max_input_size
+                                               : TWF_INPUT_SIZE_DEFAULT;
+  rc = twf_ini_parse(&c.ini);
   if (c.ini.status != TWF_OK)
     return c.ini.status;
   if (rc != 0)
@@ -127,19 +128,41 @@ static twf_status read_base(const char *path, twf_pose *base_in_tracker, twf_err
     return twf_error_set(err, TWF_ERR_MISSING, path, 0, 0,
                          "give [base] with length_unit, position and quaternion_wxyz",
                          "incomplete base pose file");
+  for (a = 0; a < 3; a++)
+    if (!(fabs(twf_length_to_si(c.pos[a], c.unit)) <= TWF_READ_LENGTH_MAX))
+      return twf_error_set(err, TWF_ERR_VALUE, path, c.pos_line, a + 1,
+                           "check the value and the file's length unit: no cell comes "
+                           "near the limit",
+                           "position: %g %s lies beyond %g m, the largest length accepted",
+                           c.pos[a], twf_length_unit_name(c.unit), TWF_READ_LENGTH_MAX);
   twf_quat_to_rot(c.quat, base_in_tracker->R);
   for (a = 0; a < 3; a++)
     base_in_tracker->p[a] = twf_length_to_si(c.pos[a], c.unit);
+  if (digest != NULL)
+    *digest = c.ini.digest;
   return TWF_OK;
 }
 
 twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error *err)
 {
+  return twf_base_read_with(path, NULL, base_in_tracker, NULL, err);
+}
+
+twf_status twf_base_read_with(const char *path, const twf_read_options *opt,
+                              twf_pose *base_in_tracker,
+                              twf_input_digest *digest, twf_error *err)
+{
   twf_io_c_locale loc;
-  twf_status st = twf_io_c_locale_enter(&loc, err);
+  twf_status st;
+  if (digest != NULL)
+    memset(digest, 0, sizeof *digest);
+  if (path == NULL || base_in_tracker == NULL)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "no base pose file or no pose to fill given");
+  st = twf_io_c_locale_enter(&loc, err);
   if (st != TWF_OK)
     return st;
-  st = read_base(path, base_in_tracker, err);
+  st = read_base(path, opt, base_in_tracker, digest, err);
   twf_io_c_locale_leave(&loc);
   return st;
 }

@@ -15,6 +15,7 @@ twf_campaign_options twf_campaign_default_options(void)
   o.angle_unit = TWF_ANGLE_DEG;
   o.limits_are_errors = 0;
   o.limit_tolerance = 1e-9;
+  o.max_input_size = TWF_INPUT_SIZE_DEFAULT;
   return o;
 }
 

@@ -52,6 +52,75 @@ static int number_syntax(const char *s)
   return *s == '\0';
 }
 
+/* Does the field f..e (blanks trimmed, quotes not removed) read as a
+ * number, a decimal comma allowed with ';'? */
+static int field_is_number(const creader *r, const char *f, const char *e)
+{
+  char text[128];
+  size_t n;
+  char *comma;
+  while (f < e && twf_creader_is_blank(*f))
+    f++;
+  while (e > f && (twf_creader_is_blank(e[-1]) || e[-1] == '\r' || e[-1] == '\n'))
+    e--;
+  n = (size_t)(e - f);
+  if (n == 0 || n >= sizeof text)
+    return 0;
+  memcpy(text, f, n);
+  text[n] = '\0';
+  comma = strchr(text, ',');
+  if (r->delim == ';' && comma != NULL && strchr(text, '.') == NULL)
+    *comma = '.';
+  return number_syntax(text);
+}
+
+void twf_creader_rowlike_comment(creader *r, long line, const char *p,
+                                 const char *le)
+{
+  const char *f = p, *s;
+  size_t nf = 0, j;
+  long k;
+  int quoted = 0, numeric_ok = 1;
+  const char *start[512], *end[512];
+  if (r->nh == 0 || r->nh > sizeof start / sizeof start[0])
+    return;
+  while (f < le && twf_creader_is_blank(*f))
+    f++;
+  for (s = f;; s++) {
+    if (s < le && *s == '"')
+      quoted = !quoted;
+    if (s == le || (!quoted && (unsigned char)*s == r->delim) ||
+        (!quoted && (*s == '\n' || *s == '\r'))) {
+      if (nf == r->nh)
+        return; /* more fields than the header */
+      start[nf] = f;
+      end[nf] = s;
+      nf++;
+      if (s == le || *s == '\n' || *s == '\r')
+        break;
+      f = s + 1;
+    }
+  }
+  if (nf != r->nh)
+    return;
+  for (j = 0; j < r->m->n_joints && numeric_ok; j++)
+    if (r->jcol[j] > 0)
+      numeric_ok = field_is_number(r, start[r->jcol[j] - 1], end[r->jcol[j] - 1]);
+  for (k = COL_X; k <= COL_Z && numeric_ok; k++)
+    if (r->col[k] > 0)
+      numeric_ok = field_is_number(r, start[r->col[k] - 1], end[r->col[k] - 1]);
+  if (!numeric_ok)
+    return;
+  if (r->n_rowlike++ == 0) {
+    size_t n = (size_t)(end[r->col[COL_POSE] - 1] - start[r->col[COL_POSE] - 1]);
+    r->rowlike_line = line;
+    if (n >= TWF_NAME_MAX)
+      n = TWF_NAME_MAX - 1;
+    memcpy(r->rowlike_id, start[r->col[COL_POSE] - 1], n);
+    r->rowlike_id[n] = '\0';
+  }
+}
+
 static int looks_nonfinite(const char *s)
 {
   if (*s == '+' || *s == '-')
@@ -105,8 +174,31 @@ static twf_status field_number(creader *r, const twf_csv_row *row, long col,
                              "replace the value by a measured one, or drop the row",
                              "column '%s': '%s' is not a finite number", twf_creader_colname(r, col),
                              text);
+  if (v == 0.0 && errno == ERANGE && twf_io_mantissa_nonzero(text))
+    return twf_creader_error(r, row, col, TWF_ERR_VALUE,
+                             "check the exponent; write 0 for zero",
+                             "column '%s': '%s' is too small to be told from 0 (underflow)",
+                             twf_creader_colname(r, col), text);
   *out = v;
   return TWF_OK;
+}
+
+/* A value in file units and its SI value against the plausible range. */
+static twf_status check_range(creader *r, const twf_csv_row *row, long col,
+                              double v, double si, int angle)
+{
+  if (angle ? fabs(si) <= TWF_READ_ANGLE_MAX : fabs(si) <= TWF_READ_LENGTH_MAX)
+    return TWF_OK;
+  return twf_creader_error(r, row, col, TWF_ERR_VALUE,
+                           "check the value, its column and the file's units: no arm "
+                           "comes near the limit",
+                           angle ? "column '%s': %g %s lies beyond %g rad, the largest "
+                                   "angle accepted"
+                                 : "column '%s': %g %s lies beyond %g m, the largest "
+                                   "length accepted",
+                           twf_creader_colname(r, col), v,
+                           angle ? twf_angle_unit_name(r->au) : twf_length_unit_name(r->lu),
+                           angle ? TWF_READ_ANGLE_MAX : TWF_READ_LENGTH_MAX);
 }
 
 static int field_empty(const twf_csv_row *row, long col)
@@ -179,6 +271,10 @@ twf_status twf_creader_field_joints(creader *r, const twf_csv_row *row,
     if (st != TWF_OK)
       return st;
     q[j] = twf_creader_joint_to_si(&r->m->joints[j], v, r->lu, r->au);
+    st = check_range(r, row, r->jcol[j], v, q[j],
+                     r->m->joints[j].type == TWF_JOINT_REVOLUTE);
+    if (st != TWF_OK)
+      return st;
   }
   return TWF_OK;
 }
@@ -216,6 +312,9 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
     if (st != TWF_OK)
       return st;
     ms->pos[i] = twf_length_to_si(v, r->lu);
+    st = check_range(r, row, r->col[COL_X + i], v, ms->pos[i], 0);
+    if (st != TWF_OK)
+      return st;
   }
   if (r->col[COL_QW] != 0) {
     int n_empty = 0;

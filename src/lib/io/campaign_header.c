@@ -40,6 +40,8 @@ twf_status twf_creader_units_line(void *user, twf_csv_in *in, const char *p,
   int seen_length = 0, seen_angle = 0, any = 0;
   while (p < le && twf_creader_is_blank(*p))
     p++;
+  if (in->header_seen)
+    twf_creader_rowlike_comment(r, in->cur_line, p, le);
   p++; /* the '#' */
   while (p < le && twf_creader_is_blank(*p))
     p++;

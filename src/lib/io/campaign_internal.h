@@ -104,6 +104,11 @@ typedef struct creader {
   size_t n_unk, cap_unk;
   twf_idmap unk_map;
   long unk_line;
+  /* comment lines below the header that have the shape of a data row
+   * (a pose id starting with '#'), for one warning per file */
+  size_t n_rowlike;
+  long rowlike_line;
+  char rowlike_id[TWF_NAME_MAX];
 } creader;
 
 /* A joint value in the file's units to SI and back (units.c does the
@@ -169,6 +174,12 @@ twf_status twf_creader_field_set(creader *r, const twf_csv_row *row, int *set);
 twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
                                   twf_measurement *ms, int *set);
 
+/* A comment line p..le below the header with exactly the shape of a data
+ * row: as many fields as the header, numbers where numbers belong. Counts
+ * it for the warning of twf_creader_read_file. */
+void twf_creader_rowlike_comment(creader *r, long line, const char *p,
+                                 const char *le);
+
 /* campaign_pair.c: rows of the two-file form */
 twf_status twf_creader_row_joints(creader *r, const twf_csv_row *row);
 twf_status twf_creader_row_points(creader *r, const twf_csv_row *row);
@@ -176,5 +187,8 @@ twf_status twf_creader_row_points(creader *r, const twf_csv_row *row);
 /* campaign_limits.c: joint values against the model's limits, and the
  * unit slips that put them outside */
 twf_status twf_creader_check_limits(creader *r);
+/* The spread of the measured points against the model's at the logged
+ * joint values: a unit slip of the lengths or angles (TWF_ERR_UNITS). */
+twf_status twf_creader_check_scale(creader *r);
 
 #endif

@@ -136,3 +136,64 @@ twf_status twf_creader_check_limits(creader *r)
                      "radians", ONE_TURN_RAD, c->n_poses, names);
   return TWF_OK;
 }
+
+/* The spread of the measured points against the size of the arm: no
+ * target can be farther than R = reach + the longest target offset + the
+ * prismatic travel from the base origin, so the measured points lie
+ * within a sphere of diameter 2 R, and the diagonal of their bounding box
+ * (within sqrt(3) of the diameter, whatever the instrument's frame) within
+ * 3.5 R. Millimetre data declared as metres are a thousand times larger;
+ * left alone they end in a singular normal matrix with a hint about
+ * parameters. A factor of 20 on R leaves room for any model a calibration
+ * can fix. (Metres read as millimetres, a thousand times too small, cannot
+ * be told from a campaign that hardly moves, and are not checked.) */
+#define SPREAD_FACTOR 20.0
+
+twf_status twf_creader_check_scale(creader *r)
+{
+  const twf_campaign *c = r->c;
+  const twf_model *m = r->m;
+  double lo[3], hi[3], d2 = 0, reach, spread, offset = 0, travel = 0;
+  size_t k, j;
+  if (c->n_meas < 2)
+    return TWF_OK;
+  for (int a = 0; a < 3; a++) {
+    lo[a] = INFINITY;
+    hi[a] = -INFINITY;
+  }
+  for (k = 0; k < c->n_meas; k++)
+    for (int a = 0; a < 3; a++) {
+      lo[a] = fmin(lo[a], c->meas[k].pos[a]);
+      hi[a] = fmax(hi[a], c->meas[k].pos[a]);
+    }
+  for (int a = 0; a < 3; a++)
+    d2 += (hi[a] - lo[a]) * (hi[a] - lo[a]);
+  spread = sqrt(d2);
+  for (k = 0; k < m->n_targets; k++)
+    if (m->targets[k].offset_known)
+      offset = fmax(offset, twf_v3_norm(m->targets[k].offset));
+  /* the model's travel where it has limits: the campaign's values may
+   * carry the same unit slip as its coordinates */
+  for (j = 0; j < m->n_joints; j++) {
+    const twf_joint *jt = &m->joints[j];
+    if (jt->type != TWF_JOINT_PRISMATIC)
+      continue;
+    if (jt->has_limits)
+      travel += fmax(fabs(jt->limit_lo), fabs(jt->limit_hi));
+    else
+      for (k = 0; k < c->n_poses; k++)
+        travel = fmax(travel, fabs(c->q[k * c->n_joints + j]));
+  }
+  reach = twf_model_reach(m) + offset + travel;
+  if (!(spread > SPREAD_FACTOR * reach))
+    return TWF_OK;
+  return twf_error_set(
+      r->err, TWF_ERR_UNITS, r->path, 0, 0,
+      "declare the unit the instrument exported ('# units: length=mm' above "
+      "the header, or the caller's length unit); a campaign of another arm "
+      "or instrument gives this too",
+      "check the units: the measured points spread over %.4g %s, but the arm "
+      "reaches no farther than %.4g %s from its base",
+      twf_length_from_si(spread, r->lu), twf_length_unit_name(r->lu),
+      twf_length_from_si(reach, r->lu), twf_length_unit_name(r->lu));
+}

@@ -160,12 +160,14 @@ twf_status twf_creader_read_file(creader *r, const char *path, file_kind kind)
   r->kind = kind;
   r->units_line = 0;
   r->decl_length = r->decl_angle = 0;
+  r->n_rowlike = 0;
   memset(&in, 0, sizeof in);
   in.path = path;
   in.err = r->err;
   in.row = reader_row;
   in.comment = twf_creader_units_line;
   in.user = r;
+  in.max_size = r->opt.max_input_size ? r->opt.max_input_size : TWF_INPUT_SIZE_DEFAULT;
   st = twf_csv_run(&in);
   if (st == TWF_OK && !in.header_seen)
     st = twf_error_set(r->err, TWF_ERR_MISSING, path, 0, 0,
@@ -177,6 +179,17 @@ twf_status twf_creader_read_file(creader *r, const char *path, file_kind kind)
                        "add one row per measurement below the header",
                        "no data rows after the header row");
   twf_csv_clear(&in);
+  if (st == TWF_OK && r->c->n_inputs < sizeof r->c->inputs / sizeof r->c->inputs[0])
+    r->c->inputs[r->c->n_inputs++] = in.digest;
+  /* '#' starts a comment (twistfit-data(5)), so a row whose pose id
+   * starts with it is dropped: say so when it looks like one. */
+  if (st == TWF_OK && r->n_rowlike > 0)
+    twf_warnings_add(r->w, path, r->rowlike_line, r->col[COL_POSE],
+                     "%zu comment line%s below the header %s the shape of a data row "
+                     "and %s skipped, the first with pose id '%s': quote a pose id "
+                     "that starts with '#' (\"%s\") to keep its row", r->n_rowlike,
+                     r->n_rowlike == 1 ? "" : "s", r->n_rowlike == 1 ? "has" : "have",
+                     r->n_rowlike == 1 ? "is" : "are", r->rowlike_id, r->rowlike_id);
   if (st == TWF_OK && kind != KIND_POINTS) {
     r->jpath = path;
     r->j_lu = r->lu;
@@ -250,6 +263,8 @@ static twf_campaign *reader_finish(creader *r, twf_status st)
   size_t k;
   if (st == TWF_OK)
     st = twf_creader_check_limits(r);
+  if (st == TWF_OK)
+    st = twf_creader_check_scale(r);
   if (st == TWF_OK) {
     c = r->c;
     r->c = NULL;

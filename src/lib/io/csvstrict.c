@@ -6,6 +6,7 @@
  * keeps the line count right without rewriting the text. libcsv does not
  * count fields: the callers compare each record with the header. */
 #include "csvstrict.h"
+#include "readtext.h"
 
 #include <csv.h>
 #include <errno.h>
@@ -13,6 +14,16 @@
 #include <stdlib.h>
 
 static int is_blank(char ch) { return ch == ' ' || ch == '\t'; }
+
+/* A NUL byte would end the field early for every C string function: the
+ * value after it would be lost silently. */
+static twf_status nul_error(twf_csv_in *in, long field)
+{
+  return twf_error_set(in->err, TWF_ERR_SYNTAX, in->path, in->cur_line, field,
+                       "a campaign file is plain text (ASCII or UTF-8): check "
+                       "the export, or remove the NUL bytes",
+                       "line holds a NUL byte (in field %ld)", field);
+}
 
 static void cb_field(void *s, size_t len, void *data)
 {
@@ -24,6 +35,10 @@ static void cb_field(void *s, size_t len, void *data)
       twf_io_grow((void **)&in->buf, &in->buf_cap, in->buf_len + len + 1, 1)) {
     in->status = twf_error_set(in->err, TWF_ERR_NOMEM, in->path, in->cur_line,
                                0, NULL, "out of memory reading the file");
+    return;
+  }
+  if (len > 0 && memchr(s, '\0', len) != NULL) {
+    in->status = nul_error(in, (long)in->nf + 1);
     return;
   }
   if (len > 0)
@@ -62,44 +77,6 @@ static void cb_row(int c, void *data)
   in->header_done = 1;
   in->nf = 0;
   in->buf_len = 0;
-}
-
-static twf_status read_all(const char *path, char **out, size_t *len,
-                           twf_error *err)
-{
-  FILE *f = fopen(path, "rb");
-  char *buf = NULL;
-  size_t cap = 0, n = 0;
-  if (f == NULL)
-    return twf_error_set(err, TWF_ERR_IO, path, 0, 0,
-                         "check the file name and its permissions",
-                         "cannot open the file: %s", strerror(errno));
-  for (;;) {
-    size_t got;
-    if (twf_io_grow((void **)&buf, &cap, n + 65536 + 1, 1)) {
-      free(buf);
-      fclose(f);
-      return twf_error_set(err, TWF_ERR_NOMEM, path, 0, 0, NULL,
-                           "out of memory reading the file");
-    }
-    got = fread(buf + n, 1, cap - n - 1, f);
-    n += got;
-    if (got == 0)
-      break;
-  }
-  if (ferror(f)) {
-    int e = errno;
-    free(buf);
-    fclose(f);
-    return twf_error_set(err, TWF_ERR_IO, path, 0, 0,
-                         "check the file and the device it is on",
-                         "cannot read the file: %s", strerror(e));
-  }
-  fclose(f);
-  buf[n] = '\0';
-  *out = buf;
-  *len = n;
-  return TWF_OK;
 }
 
 /* The delimiter is the one of , ; tab that occurs (outside quotes) in the
@@ -153,27 +130,38 @@ static int space_tab(unsigned char ch) { return ch == ' ' || ch == '\t'; }
 
 twf_status twf_csv_run(twf_csv_in *in)
 {
-  char *data = NULL;
-  size_t len = 0;
-  const char *p, *end;
+  twf_io_text text;
+  twf_io_rules rules;
+  const char *p, *end, *nul;
   struct csv_parser parser;
   int ready = 0, quoted = 0;
   long quote_line = 0;
   long line = 0;
-  twf_status st = read_all(in->path, &data, &len, in->err);
+  twf_status st;
+  rules.max_size = in->max_size;
+  rules.format_line_max = TWF_IO_LINE_STOP;
+  rules.what = "a campaign file";
+  rules.name = NULL;
+  st = twf_io_read_text(in->path, &rules, &text, in->err);
   if (st != TWF_OK)
     return st;
-  p = data;
-  end = data + len;
-  if (len >= 3 && (unsigned char)p[0] == 0xEF && (unsigned char)p[1] == 0xBB &&
-      (unsigned char)p[2] == 0xBF)
-    p += 3;
+  in->digest = text.digest;
+  p = text.data + text.start;
+  end = text.data + text.len;
+  nul = text.nul_at != (size_t)-1 ? text.data + text.nul_at : NULL;
   while (p < end && in->status == TWF_OK) {
     const char *nl = memchr(p, '\n', (size_t)(end - p));
     const char *le = nl ? nl + 1 : end;
     const char *s;
     size_t n;
+    int has_nul = nul != NULL && nul >= p && nul < le;
     in->cur_line = ++line;
+    if (has_nul && !quoted && (line_is_blank(p, le) || line_is_comment(p, le))) {
+      in->status = twf_error_set(in->err, TWF_ERR_SYNTAX, in->path, line, 0,
+                                 "a campaign file is plain text (ASCII or UTF-8)",
+                                 "line holds a NUL byte");
+      break;
+    }
     if (!quoted) {
       if (line_is_blank(p, le)) {
         p = le;
@@ -221,6 +209,9 @@ twf_status twf_csv_run(twf_csv_in *in)
         in->status = twf_error_set(in->err, TWF_ERR_NOMEM, in->path, line, 0,
                                    NULL, "out of memory reading the file");
     }
+    /* the NUL is in a field that has not ended on this line */
+    if (has_nul && in->status == TWF_OK)
+      in->status = nul_error(in, (long)in->nf + 1);
     p = le;
   }
   if (ready) {
@@ -232,7 +223,7 @@ twf_status twf_csv_run(twf_csv_in *in)
                                  "closed by the end of the file", quote_line);
     csv_free(&parser);
   }
-  free(data);
+  twf_io_text_free(&text);
   return in->status;
 }
 

@@ -33,12 +33,14 @@ struct twf_csv_in {
   twf_csv_row_fn row;
   twf_csv_comment_fn comment;
   void *user;
+  unsigned long long max_size; /* bytes (twf_campaign_options) */
   /* what the callbacks and the caller may read */
   unsigned char delim;  /* , ; or tab, from the header row */
   long cur_line;        /* line being read (1-based) */
   long header_line;
   int header_seen;      /* the header line was fed */
   size_t n_data_rows;   /* records after the header */
+  twf_input_digest digest; /* of the bytes read */
   /* private: the record being assembled, fields packed NUL-separated */
   twf_status status;
   int header_done;      /* the header row was handed over */

@@ -26,15 +26,14 @@ int twf_ini_fail(twf_ini_strict *ini, twf_status st, long line, long column,
   return -1;
 }
 
-/* inih's reader: one physical line per call, checked, shown to the
- * format's line check, then handed to inih. */
+/* inih's reader: one physical line per call from the text read whole,
+ * checked, shown to the format's line check, then handed to inih. */
 static char *read_line(char *str, int num, void *stream)
 {
   twf_ini_strict *ini = stream;
+  const char *p, *le, *nl, *s, *nul;
   char line[TWF_INI_LINE_MAX + 2];
-  size_t len = 0, limit = TWF_INI_LINE_MAX;
-  int ch, prev = 0, nul = 0;
-  const char *s;
+  size_t len, limit = TWF_INI_LINE_MAX;
 
   if (ini->status != TWF_OK)
     return NULL;
@@ -43,34 +42,24 @@ static char *read_line(char *str, int num, void *stream)
     return NULL;
   if ((size_t)num - 2 < limit)
     limit = (size_t)num - 2;
-  /* Keep up to limit + 1 characters: one more than the limit already
-   * makes the line too long; count the rest. */
-  while ((ch = getc(ini->fp)) != EOF && ch != '\n') {
-    if (ch == '\0')
-      nul = 1;
-    if (len < limit + 1)
-      line[len] = (char)ch;
-    len++;
-    prev = ch;
-  }
-  if (ch == EOF && ferror(ini->fp)) {
-    twf_ini_fail(ini, TWF_ERR_IO, ini->lineno + 1, 0,
-                 "check the file and the disk", "read error: %s",
-                 strerror(errno));
+  if (ini->pos >= ini->text.len)
     return NULL;
-  }
-  if (ch == EOF && len == 0)
-    return NULL;
+  p = ini->text.data + ini->pos;
+  nl = memchr(p, '\n', ini->text.len - ini->pos);
+  le = nl ? nl : ini->text.data + ini->text.len;
+  ini->pos = (size_t)(le - ini->text.data) + (nl != NULL);
   ini->lineno++;
+  len = (size_t)(le - p);
   /* CR LF line ends: the CR is not part of the line. */
-  if (prev == '\r')
+  if (len > 0 && p[len - 1] == '\r')
     len--;
-  if (nul) {
+  nul = memchr(p, '\0', len);
+  if (nul != NULL) {
     char hint[96];
     snprintf(hint, sizeof hint, "%s is plain text (ASCII or UTF-8)",
              ini->what ? ini->what : "the file");
     twf_ini_fail(ini, TWF_ERR_SYNTAX, ini->lineno, 0, hint,
-                 "line holds a NUL byte");
+                 "line holds a NUL byte (at character %ld)", (long)(nul - p) + 1);
     return NULL;
   }
   if (len > limit) {
@@ -85,12 +74,13 @@ static char *read_line(char *str, int num, void *stream)
                    len, limit);
     return NULL;
   }
+  memcpy(line, p, len);
   line[len] = '\0';
   s = line;
-  /* A UTF-8 byte order mark: editors on some systems add it. */
-  if (ini->lineno == 1 && (unsigned char)s[0] == 0xEF &&
-      (unsigned char)s[1] == 0xBB && (unsigned char)s[2] == 0xBF)
-    s += 3;
+  /* A UTF-8 byte order mark (the read stage found it): editors on some
+   * systems add it. */
+  if (ini->lineno == 1 && ini->text.start > 0)
+    s += ini->text.start;
   /* inih would take an indented line for the continuation of the
    * previous value. */
   while (is_blank(*s))
@@ -106,9 +96,24 @@ static char *read_line(char *str, int num, void *stream)
   return str;
 }
 
-int twf_ini_parse(twf_ini_strict *ini, FILE *fp)
+int twf_ini_parse(twf_ini_strict *ini)
 {
-  ini->fp = fp;
+  twf_io_rules rules;
+  int rc;
+  twf_status st;
+  rules.max_size = ini->max_size ? ini->max_size : TWF_INPUT_SIZE_DEFAULT;
+  rules.format_line_max = TWF_INI_LINE_MAX;
+  rules.what = ini->what;
+  rules.name = ini->name;
   ini->lineno = 0;
-  return ini_parse_stream(read_line, ini, ini->pair, ini->user);
+  ini->pos = 0;
+  st = twf_io_read_text(ini->path, &rules, &ini->text, ini->err);
+  if (st != TWF_OK) {
+    ini->status = st;
+    return 0;
+  }
+  ini->digest = ini->text.digest;
+  rc = ini_parse_stream(read_line, ini, ini->pair, ini->user);
+  twf_io_text_free(&ini->text);
+  return rc;
 }

@@ -11,7 +11,7 @@
 #ifndef TWF_INISTRICT_H
 #define TWF_INISTRICT_H
 
-#include "io_internal.h"
+#include "readtext.h"
 
 #include <stdio.h>
 
@@ -31,16 +31,20 @@ struct twf_ini_strict {
   const char *path;
   twf_error *err;
   const char *what;        /* "a model file": names the file in hints */
+  const char *name;        /* "model file": "cannot open model file" */
   twf_ini_line_fn line;    /* may be NULL */
   twf_ini_pair_fn pair;
   void *user;
   /* The base pose file kept its own words for a long line; NULL gives
    * the default, which says how long the line is. */
   const char *long_line_message, *long_line_hint;
+  unsigned long long max_size; /* bytes; the read stage refuses larger files */
   /* state */
-  FILE *fp;
+  twf_io_text text;        /* the file, read whole */
+  size_t pos;              /* offset of the next line in text */
   long lineno;             /* lines read so far: the current line */
   twf_status status;       /* first error, TWF_OK while none */
+  twf_input_digest digest; /* of the bytes read, once read */
 };
 
 /* Record an error unless one is recorded already (later ones are its
@@ -50,11 +54,13 @@ int twf_ini_fail(twf_ini_strict *ini, twf_status st, long line, long column,
                  const char *hint, const char *fmt, ...)
     __attribute__((format(printf, 6, 7)));
 
-/* Parse fp (opened by the caller) through inih. Returns inih's result:
- * 0, the first line inih found malformed, or -2 when inih ran out of
- * memory; ini->status tells whether the layer, the line check or the
- * handler recorded an error (it wins over the result). */
-int twf_ini_parse(twf_ini_strict *ini, FILE *fp);
+/* Read ini->path whole through the read stage (readtext.h: size, line
+ * stop, encoding, CR-only line ends) and parse it through inih. Returns
+ * inih's result: 0, the first line inih found malformed, or -2 when inih
+ * ran out of memory; ini->status tells whether the read stage, the layer,
+ * the line check or the handler recorded an error (it wins over the
+ * result). */
+int twf_ini_parse(twf_ini_strict *ini);
 
 /* The longest line accepted, without its line end (TWF_MODEL_LINE_MAX). */
 #define TWF_INI_LINE_MAX TWF_MODEL_LINE_MAX

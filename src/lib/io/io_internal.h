@@ -18,6 +18,11 @@ int twf_io_grow(void **p, size_t *cap, size_t need, size_t sz);
 void twf_io_appendf(char *buf, size_t n, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
 
+/* Whether the mantissa of a number's text (decimal or C hexadecimal) has
+ * a digit other than 0: strtod then returning 0 with ERANGE is an
+ * underflow, which the readers refuse as they refuse overflow. */
+int twf_io_mantissa_nonzero(const char *s);
+
 /* Numbers in files are read and written in the "C" locale whatever the
  * caller's: the file formats define '.' as the decimal point, and strtod
  * and printf follow LC_NUMERIC (C11 7.22.1.3, 7.21.6.1), so a program that

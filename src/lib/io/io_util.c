@@ -33,3 +33,22 @@ void twf_io_appendf(char *buf, size_t n, const char *fmt, ...)
   vsnprintf(buf + len, n - len, fmt, ap);
   va_end(ap);
 }
+
+int twf_io_mantissa_nonzero(const char *s)
+{
+  int hex = 0;
+  if (*s == '+' || *s == '-')
+    s++;
+  if (s[0] == '0' && (s[1] == 'x' || s[1] == 'X')) {
+    hex = 1;
+    s += 2;
+  }
+  for (; *s; s++) {
+    if (hex ? (*s == 'p' || *s == 'P') : (*s == 'e' || *s == 'E'))
+      break;
+    if ((*s >= '1' && *s <= '9') ||
+        (hex && ((*s >= 'a' && *s <= 'f') || (*s >= 'A' && *s <= 'F'))))
+      return 1;
+  }
+  return 0;
+}

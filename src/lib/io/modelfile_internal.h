@@ -53,11 +53,17 @@ typedef struct parse_ctx {
   size_t nsec, capsec;
   char key[TWF_MODEL_LINE_MAX + 1]; /* key of the current line */
   twf_warnings *warnings;
+  /* Keys of the current section (index ksec - 1), hashed, so that a
+   * section of many keys ([asbuilt]) reads in linear time: open
+   * addressing, slots hold entry index + 1, load at most 1/2. */
+  size_t *kslot, kcap, ksec;
+  /* key comparisons made (a test hook for the linear time) */
+  unsigned long n_key_compares;
 } parse_ctx;
 
-/* Run the first pass over fp: sections and keys checked, every value kept
+/* Run the first pass over c->ini.path: sections and keys checked, every value kept
  * as text with its line. Returns c->ini.status. */
-twf_status twf_mf_parse_structure(parse_ctx *c, FILE *fp);
+twf_status twf_mf_parse_structure(parse_ctx *c);
 void twf_mf_ctx_clear(parse_ctx *c);
 
 /* ------------------------------------------------------------------ */
@@ -71,6 +77,14 @@ const entry *twf_mf_find_entry(const section *s, const char *key);
  * messages, e.g. "axis of joint j1". Returns 0 or -1 (error recorded). */
 int twf_mf_parse_numbers(parse_ctx *c, const entry *e, const char *what,
                          double *out, size_t n);
+/* The plausible range of values read (TWF_READ_*_MAX, campaign.h): n
+ * values of entry e, si[k] the SI value of field first + k, v[k] its value
+ * in unit (a unit name, "" for a scale). Returns 0 or -1 (error recorded
+ * at the field). */
+typedef enum mf_range { RANGE_LENGTH, RANGE_ANGLE, RANGE_SCALE } mf_range;
+int twf_mf_check_range(parse_ctx *c, const entry *e, const char *what,
+                       mf_range kind, const double *v, const double *si,
+                       size_t n, long first, const char *unit);
 /* A pose section: position and exactly one rotation form. */
 int twf_mf_parse_pose(parse_ctx *c, const section *s, twf_length_unit lu,
                       twf_angle_unit au, twf_pose *T);

@@ -246,6 +246,65 @@ static void classify_line(void *user, twf_ini_strict *ini, const char *s)
 }
 
 
+static size_t key_hash(const char *s)
+{
+  size_t h = 1469598103934665603ULL & (size_t)-1; /* FNV-1a */
+  for (; *s; s++) {
+    h ^= (unsigned char)*s;
+    h *= (size_t)1099511628211ULL;
+  }
+  return h;
+}
+
+/* The entry of section s (index si) holding key, or NULL. */
+static const entry *key_find(parse_ctx *c, const section *s, size_t si, const char *key)
+{
+  size_t i;
+  if (c->ksec != si + 1 || c->kcap == 0)
+    return NULL;
+  for (i = key_hash(key) & (c->kcap - 1); c->kslot[i] != 0; i = (i + 1) & (c->kcap - 1)) {
+    c->n_key_compares++;
+    if (strcmp(s->entries[c->kslot[i] - 1].key, key) == 0)
+      return &s->entries[c->kslot[i] - 1];
+  }
+  return NULL;
+}
+
+static void key_place(parse_ctx *c, const section *s, size_t k)
+{
+  size_t i = key_hash(s->entries[k].key) & (c->kcap - 1);
+  while (c->kslot[i] != 0)
+    i = (i + 1) & (c->kcap - 1);
+  c->kslot[i] = k + 1;
+}
+
+/* Add entry s->entries[s->n - 1] of section si to the table. */
+static int key_add(parse_ctx *c, const section *s, size_t si)
+{
+  if (c->ksec != si + 1) { /* a new section: start afresh */
+    free(c->kslot);
+    c->kslot = NULL;
+    c->kcap = 0;
+    c->ksec = si + 1;
+  }
+  if (2 * s->n > c->kcap) {
+    size_t cap = c->kcap ? 2 * c->kcap : 16, k;
+    size_t *slot;
+    while (2 * s->n > cap)
+      cap *= 2;
+    slot = calloc(cap, sizeof *slot);
+    if (slot == NULL)
+      return -1;
+    free(c->kslot);
+    c->kslot = slot;
+    c->kcap = cap;
+    for (k = 0; k + 1 < s->n; k++)
+      key_place(c, s, k);
+  }
+  key_place(c, s, s->n - 1);
+  return 0;
+}
+
 static int key_known(const char *const *keys, const char *key)
 {
   for (; *keys; keys++)
@@ -261,7 +320,6 @@ static int handle_pair(void *user, const char *section_name, const char *name,
   section *s;
   const char *key = c->key;
   const char *const *keys;
-  size_t i;
   (void)section_name;
 
   if (c->ini.status != TWF_OK)
@@ -282,14 +340,16 @@ static int handle_pair(void *user, const char *section_name, const char *name,
   }
   if (keys == NULL && check_name(c, "metadata key", key, c->ini.lineno) != 0)
     return 0;
-  for (i = 0; i < s->n; i++)
-    if (strcmp(s->entries[i].key, key) == 0) {
+  {
+    const entry *first = key_find(c, s, c->nsec - 1, key);
+    if (first != NULL) {
       twf_ini_fail(&c->ini, TWF_ERR_DUPLICATE, c->ini.lineno, 0, "keep only one of them",
                    "key '%s' appears twice in [%s%s%s] (first at line %ld)", key,
                    twf_mf_kind_names[s->kind], s->name[0] ? " " : "", s->name,
-                   s->entries[i].line);
+                   first->line);
       return 0;
     }
+  }
   if (s->n == s->cap) {
     size_t cap = s->cap ? 2 * s->cap : 8;
     entry *g = realloc(s->entries, cap * sizeof *g);
@@ -312,6 +372,10 @@ static int handle_pair(void *user, const char *section_name, const char *name,
     twf_strlcpy(e->key, key, sizeof e->key);
     e->line = c->ini.lineno;
     s->n++;
+    if (key_add(c, s, c->nsec - 1) != 0) {
+      twf_ini_fail(&c->ini, TWF_ERR_NOMEM, c->ini.lineno, 0, NULL, "out of memory");
+      return 0;
+    }
   }
   return 1;
 }
@@ -326,16 +390,19 @@ void twf_mf_ctx_clear(parse_ctx *c)
   free(c->secs);
   c->secs = NULL;
   c->nsec = c->capsec = 0;
+  free(c->kslot);
+  c->kslot = NULL;
+  c->kcap = c->ksec = 0;
 }
 
-twf_status twf_mf_parse_structure(parse_ctx *c, FILE *fp)
+twf_status twf_mf_parse_structure(parse_ctx *c)
 {
   int rc;
   c->ini.what = "a model file";
   c->ini.line = classify_line;
   c->ini.pair = handle_pair;
   c->ini.user = c;
-  rc = twf_ini_parse(&c->ini, fp);
+  rc = twf_ini_parse(&c->ini);
   if (c->ini.status == TWF_OK && rc == -2)
     twf_ini_fail(&c->ini, TWF_ERR_NOMEM, 0, 0, NULL, "out of memory");
   else if (c->ini.status == TWF_OK && rc != 0)

@@ -7,6 +7,38 @@
 #include <errno.h>
 #include <stdlib.h>
 
+/* The plausible range of a DH row (a and d lengths, alpha and theta
+ * angles), field by field in the file's order: dh is a alpha d theta, mdh
+ * alpha a d theta. */
+static int check_dh_range(parse_ctx *c, const section *s, joint_form form,
+                          const twf_model *m, const twf_dh_row *row)
+{
+  const entry *e = twf_mf_find_entry(s, form == FORM_DH ? "dh" : "mdh");
+  const char *lu = twf_length_unit_name(m->length_unit);
+  const char *au = twf_angle_unit_name(m->angle_unit);
+  double si[4], v[4];
+  int angle[4];
+  char what[96];
+  snprintf(what, sizeof what, "%s row of joint %s", form == FORM_DH ? "dh" : "mdh",
+           s->name);
+  si[0] = form == FORM_DH ? row->a : row->alpha;
+  si[1] = form == FORM_DH ? row->alpha : row->a;
+  si[2] = row->d;
+  si[3] = row->theta;
+  angle[0] = form != FORM_DH;
+  angle[1] = form == FORM_DH;
+  angle[2] = 0;
+  angle[3] = 1;
+  for (int k = 0; k < 4; k++) {
+    v[k] = angle[k] ? twf_angle_from_si(si[k], m->angle_unit)
+                    : twf_length_from_si(si[k], m->length_unit);
+    if (twf_mf_check_range(c, e, what, angle[k] ? RANGE_ANGLE : RANGE_LENGTH, &v[k],
+                           &si[k], 1, k + 1, angle[k] ? au : lu) != 0)
+      return -1;
+  }
+  return 0;
+}
+
 static twf_model *build_model(parse_ctx *c)
 {
   const section *robot = NULL, *home = NULL, *flange = NULL;
@@ -85,7 +117,8 @@ static twf_model *build_model(parse_ctx *c)
         if (twf_mf_parse_joint_axis(c, s, m->length_unit, j) != 0)
           goto fail;
       } else if (twf_mf_parse_joint_dh(c, s, f, m->length_unit, m->angle_unit,
-                                j->type, &rows[ij]) != 0) {
+                                j->type, &rows[ij]) != 0 ||
+                 check_dh_range(c, s, f, m, &rows[ij]) != 0) {
         goto fail;
       }
       ij++;
@@ -96,21 +129,30 @@ static twf_model *build_model(parse_ctx *c)
       if (e != NULL) {
         char what[96];
         snprintf(what, sizeof what, "offset of target %s", s->name);
-        if (twf_mf_parse_numbers(c, e, what, t->offset, 3) != 0)
+        double v[3];
+        if (twf_mf_parse_numbers(c, e, what, v, 3) != 0)
           goto fail;
         for (int k = 0; k < 3; k++)
-          t->offset[k] = twf_length_to_si(t->offset[k], m->length_unit);
+          t->offset[k] = twf_length_to_si(v[k], m->length_unit);
+        if (twf_mf_check_range(c, e, what, RANGE_LENGTH, v, t->offset, 3, 1,
+                               twf_length_unit_name(m->length_unit)) != 0)
+          goto fail;
         t->offset_known = 1;
       }
-    } else if (s->kind == SEC_ASBUILT) {
+    } else if (s->kind == SEC_ASBUILT && s->n > 0) {
+      /* The first pass checked the keys (valid names, no repeats): fill
+       * the metadata at once rather than through twf_model_meta_set,
+       * whose look-up per key would make many keys quadratic. */
+      m->meta = calloc(s->n, sizeof *m->meta);
+      if (m->meta == NULL) {
+        twf_ini_fail(&c->ini, TWF_ERR_NOMEM, s->line, 0, NULL, "out of memory");
+        goto fail;
+      }
       for (size_t k = 0; k < s->n; k++) {
-        twf_status st = twf_model_meta_set(m, s->entries[k].key,
-                                           s->entries[k].value);
-        if (st != TWF_OK) {
-          twf_ini_fail(&c->ini, st, s->entries[k].line, 0, NULL,
-                       "cannot keep metadata '%s'", s->entries[k].key);
-          goto fail;
-        }
+        twf_strlcpy(m->meta[k].key, s->entries[k].key, sizeof m->meta[k].key);
+        m->meta[k].value = s->entries[k].value;
+        s->entries[k].value = NULL; /* now the model's */
+        m->n_meta = k + 1;
       }
     }
   }
@@ -184,42 +226,56 @@ fail:
   return NULL;
 }
 
-static twf_model *read_model(const char *path, twf_warnings *warnings,
+twf_read_options twf_read_default_options(void)
+{
+  twf_read_options o;
+  memset(&o, 0, sizeof o);
+  o.max_input_size = TWF_INPUT_SIZE_DEFAULT;
+  return o;
+}
+
+static twf_model *read_model(const char *path, const twf_read_options *opt,
+                             twf_warnings *warnings, twf_input_digest *digest,
                              twf_error *err)
 {
   parse_ctx c;
   twf_model *m;
-  FILE *fp;
 
   memset(&c, 0, sizeof c);
   c.ini.path = path;
   c.ini.err = err;
+  c.ini.name = "model file";
+  c.ini.max_size = opt && opt->max_input_size ? opt->max_input_size
+                                               : TWF_INPUT_SIZE_DEFAULT;
   c.warnings = warnings;
   c.ini.status = TWF_OK;
-  fp = fopen(path, "rb");
-  if (fp == NULL) {
-    twf_error_set(err, TWF_ERR_IO, path, 0, 0,
-                  "check the file name and its permissions",
-                  "cannot open model file '%s': %s", path, strerror(errno));
-    return NULL;
-  }
-  twf_mf_parse_structure(&c, fp);
-  fclose(fp);
+  twf_mf_parse_structure(&c);
   if (c.ini.status != TWF_OK) {
     twf_mf_ctx_clear(&c);
     return NULL;
   }
   m = build_model(&c);
   twf_mf_ctx_clear(&c);
+  if (m != NULL && digest != NULL)
+    *digest = c.ini.digest;
   return m;
 }
 
 twf_model *twf_model_read(const char *path, twf_warnings *warnings,
                           twf_error *err)
 {
+  return twf_model_read_with(path, NULL, warnings, NULL, err);
+}
+
+twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
+                               twf_warnings *warnings,
+                               twf_input_digest *digest, twf_error *err)
+{
   twf_io_c_locale loc;
   twf_model *m;
   twf_error_clear(err);
+  if (digest != NULL)
+    memset(digest, 0, sizeof *digest);
   if (path == NULL) {
     twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                   "no model file name given");
@@ -227,7 +283,7 @@ twf_model *twf_model_read(const char *path, twf_warnings *warnings,
   }
   if (twf_io_c_locale_enter(&loc, err) != TWF_OK)
     return NULL;
-  m = read_model(path, warnings, err);
+  m = read_model(path, opt, warnings, digest, err);
   twf_io_c_locale_leave(&loc);
   return m;
 }

@@ -62,6 +62,12 @@ int twf_mf_parse_numbers(parse_ctx *c, const entry *e, const char *what,
                    "%s: '%s' is not a finite number", what, tok);
       return -1;
     }
+    if (v == 0.0 && errno == ERANGE && twf_io_mantissa_nonzero(tok)) {
+      twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, (long)count,
+                   "check the exponent; write 0 for zero",
+                   "%s: '%s' is too small to be told from 0 (underflow)", what, tok);
+      return -1;
+    }
     if (count <= n)
       out[count - 1] = v;
   }
@@ -71,6 +77,25 @@ int twf_mf_parse_numbers(parse_ctx *c, const entry *e, const char *what,
                  count);
     return -1;
   }
+  return 0;
+}
+
+int twf_mf_check_range(parse_ctx *c, const entry *e, const char *what,
+                       mf_range kind, const double *v, const double *si,
+                       size_t n, long first, const char *unit)
+{
+  static const double max[] = { TWF_READ_LENGTH_MAX, TWF_READ_ANGLE_MAX,
+                                TWF_READ_SCALE_MAX };
+  static const char *const what_max[] = { " m, the largest length accepted",
+                                          " rad, the largest angle accepted",
+                                          ", the largest scale accepted" };
+  for (size_t k = 0; k < n; k++)
+    if (!(fabs(si[k]) <= max[kind]))
+      return twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, first + (long)k,
+                          "check the value and the file's units: no arm comes "
+                          "near the limit",
+                          "%s: %g%s%s lies beyond %g%s", what, v[k],
+                          unit[0] ? " " : "", unit, max[kind], what_max[kind]);
   return 0;
 }
 
@@ -152,10 +177,16 @@ int twf_mf_parse_pose(parse_ctx *c, const section *s, twf_length_unit lu,
                         form_names[0], forms[0]->line, form_names[1]);
 
   snprintf(what, sizeof what, "position in [%s]", sec);
-  if (twf_mf_parse_numbers(c, pos, what, T->p, 3) != 0)
-    return -1;
-  for (int i = 0; i < 3; i++)
-    T->p[i] = twf_length_to_si(T->p[i], lu);
+  {
+    double v[3];
+    if (twf_mf_parse_numbers(c, pos, what, v, 3) != 0)
+      return -1;
+    for (int i = 0; i < 3; i++)
+      T->p[i] = twf_length_to_si(v[i], lu);
+    if (twf_mf_check_range(c, pos, what, RANGE_LENGTH, v, T->p, 3, 1,
+                           twf_length_unit_name(lu)) != 0)
+      return -1;
+  }
 
   if (quat != NULL) {
     double q[4], n;
@@ -171,10 +202,15 @@ int twf_mf_parse_pose(parse_ctx *c, const section *s, twf_length_unit lu,
   } else if (rpy != NULL) {
     double a[3];
     snprintf(what, sizeof what, "rpy_fixed_xyz in [%s]", sec);
+    double si[3];
     if (twf_mf_parse_numbers(c, rpy, what, a, 3) != 0)
       return -1;
-    twf_rpy_fixed_xyz_to_rot(twf_angle_to_si(a[0], au), twf_angle_to_si(a[1], au),
-                             twf_angle_to_si(a[2], au), T->R);
+    for (int i = 0; i < 3; i++)
+      si[i] = twf_angle_to_si(a[i], au);
+    if (twf_mf_check_range(c, rpy, what, RANGE_ANGLE, a, si, 3, 1,
+                           twf_angle_unit_name(au)) != 0)
+      return -1;
+    twf_rpy_fixed_xyz_to_rot(si[0], si[1], si[2], T->R);
   } else {
     double err, det;
     for (int i = 0; i < 3; i++)
@@ -295,12 +331,22 @@ int twf_mf_parse_joint_common(parse_ctx *c, const section *s,
     j->has_limits = 1;
     j->limit_lo = rev ? twf_angle_to_si(l[0], au) : twf_length_to_si(l[0], lu);
     j->limit_hi = rev ? twf_angle_to_si(l[1], au) : twf_length_to_si(l[1], lu);
+    {
+      double si[2] = { j->limit_lo, j->limit_hi };
+      if (twf_mf_check_range(c, e, what, rev ? RANGE_ANGLE : RANGE_LENGTH, l, si, 2, 1,
+                             rev ? twf_angle_unit_name(au) : twf_length_unit_name(lu)) != 0)
+        return -1;
+    }
   }
   if ((e = twf_mf_find_entry(s, "offset")) != NULL) {
     snprintf(what, sizeof what, "offset of joint %s", s->name);
-    if (twf_mf_parse_numbers(c, e, what, &j->offset, 1) != 0)
+    double v;
+    if (twf_mf_parse_numbers(c, e, what, &v, 1) != 0)
       return -1;
-    j->offset = rev ? twf_angle_to_si(j->offset, au) : twf_length_to_si(j->offset, lu);
+    j->offset = rev ? twf_angle_to_si(v, au) : twf_length_to_si(v, lu);
+    if (twf_mf_check_range(c, e, what, rev ? RANGE_ANGLE : RANGE_LENGTH, &v, &j->offset, 1, 1,
+                           rev ? twf_angle_unit_name(au) : twf_length_unit_name(lu)) != 0)
+      return -1;
   }
   if ((e = twf_mf_find_entry(s, "scale")) != NULL) {
     snprintf(what, sizeof what, "scale of joint %s", s->name);
@@ -310,6 +356,8 @@ int twf_mf_parse_joint_common(parse_ctx *c, const section *s,
       return twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, 0,
                           "scale multiplies the logged joint value; nominal is 1",
                           "scale of joint %s is zero", s->name);
+    if (twf_mf_check_range(c, e, what, RANGE_SCALE, &j->scale, &j->scale, 1, 1, "") != 0)
+      return -1;
   }
   return 0;
 }
@@ -352,10 +400,14 @@ int twf_mf_parse_joint_axis(parse_ctx *c, const section *s,
                         "revolute joint %s has no point", s->name);
   if (point != NULL) {
     snprintf(what, sizeof what, "point of joint %s", s->name);
-    if (twf_mf_parse_numbers(c, point, what, q, 3) != 0)
+    double v[3];
+    if (twf_mf_parse_numbers(c, point, what, v, 3) != 0)
       return -1;
     for (int i = 0; i < 3; i++)
-      q[i] = twf_length_to_si(q[i], lu);
+      q[i] = twf_length_to_si(v[i], lu);
+    if (twf_mf_check_range(c, point, what, RANGE_LENGTH, v, q, 3, 1,
+                           twf_length_unit_name(lu)) != 0)
+      return -1;
   }
   twf_v3_copy(q, j->point);
   if (j->type == TWF_JOINT_REVOLUTE)

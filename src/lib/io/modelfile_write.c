@@ -117,6 +117,16 @@ static int finite_n(const double *v, size_t n)
   return 1;
 }
 
+/* Values the reader refuses as implausible (TWF_READ_*_MAX) are not
+ * written either: every file written reads back. */
+static int within_n(const double *v, size_t n, double max)
+{
+  for (size_t i = 0; i < n; i++)
+    if (!(fabs(v[i]) <= max))
+      return 0;
+  return 1;
+}
+
 /* What the writer puts in a revolute joint's file: the unit axis and a
  * point of the twist's line. The stored reference point is kept when it
  * lies on the line (so 450 mm stays 450), else it is projected onto it. */
@@ -175,6 +185,16 @@ static twf_status write_check(const twf_model *m, twf_error *err)
     if (j->scale == 0.0)
       return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                            "joint %s has scale zero", j->name);
+    {
+      double q_max = j->type == TWF_JOINT_REVOLUTE ? TWF_READ_ANGLE_MAX : TWF_READ_LENGTH_MAX;
+      double lim[2] = { j->limit_lo, j->limit_hi };
+      if (!within_n(j->point, 3, TWF_READ_LENGTH_MAX) || !within_n(&j->scale, 1, TWF_READ_SCALE_MAX) ||
+          !within_n(&j->offset, 1, q_max) || (j->has_limits && !within_n(lim, 2, q_max)))
+        return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+                             "lengths up to 1 km, angles up to 1e4 rad and scales up to 1e6 "
+                             "are read back (twistfit-model(5))",
+                             "joint %s has a value beyond the range the reader accepts", j->name);
+    }
     if (j->has_limits && j->limit_lo > j->limit_hi)
       return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                            "joint %s has lower limit above upper limit",
@@ -208,6 +228,9 @@ static twf_status write_check(const twf_model *m, twf_error *err)
     if (t->offset_known && !finite_n(t->offset, 3))
       return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                            "target %s has a non-finite offset", t->name);
+    if (t->offset_known && !within_n(t->offset, 3, TWF_READ_LENGTH_MAX))
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                           "target %s has an offset beyond 1 km", t->name);
   }
   /* A local copy: GCC 12 misjudges the size of m->home.R as an argument
    * (-Wstringop-overflow false positive). */
@@ -218,6 +241,9 @@ static twf_status write_check(const twf_model *m, twf_error *err)
       det < 0.0)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "home pose is not a finite rigid motion");
+  if (!within_n(home.p, 3, TWF_READ_LENGTH_MAX))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "home position lies beyond 1 km");
   for (size_t i = 0; i < m->n_meta; i++) {
     const char *k = m->meta[i].key, *v = m->meta[i].value ? m->meta[i].value : "";
     if (!twf_mf_name_chars_ok(k) || strlen(k) >= TWF_NAME_MAX)

@@ -46,8 +46,16 @@ const char *twf_fuzz_file(int slot, const uint8_t *data, size_t size);
  * would otherwise hit within seconds, so that a run can look past it; the
  * replay of make check leaves it unset, and there the bug's regression
  * input is an expected failure (known.txt). Names: "control-chars" (a
- * control character in an error report or in an accepted name or value). */
+ * control character in an error report or in an accepted name or value),
+ * "nul-accepted" (see twf_fuzz_check_no_nul), "nonfinite-model" (an accepted
+ * model with an infinite or NaN value: not checked further),
+ * "write-overflow" (no base pose round trip beyond 1e300 m). */
 int twf_fuzz_tolerated(const char *check);
+
+/* A file with a NUL byte is not text: every reader must refuse it, not read
+ * up to the NUL. Fails the check when data holds one and the reader
+ * accepted it (tolerated as "nul-accepted"). */
+void twf_fuzz_check_no_nul(const uint8_t *data, size_t size);
 
 /* Checks every reader's error report must pass. */
 void twf_fuzz_check_error(const twf_error *e, int need_hint);

@@ -67,7 +67,11 @@ void twf_fuzz_base(const uint8_t *data, size_t size)
     twf_fuzz_check_error(&err, 0);
     return;
   }
+  twf_fuzz_check_no_nul(data, size);
   check_pose(&T);
+  if (twf_fuzz_tolerated("write-overflow") &&
+      (fabs(T.p[0]) > 1e300 || fabs(T.p[1]) > 1e300 || fabs(T.p[2]) > 1e300))
+    return;
   if (twf_fuzz_failures == before)
     round_trip(&T);
 }

@@ -85,8 +85,9 @@ static void round_trip(const twf_campaign *c, const twf_model *m)
   twf_campaign_free(back);
 }
 
-static void read_one(const char *path, const twf_model *m,
-                     const twf_campaign_options *opt, int write_back)
+static void read_one(const uint8_t *data, size_t size, const char *path,
+                     const twf_model *m, const twf_campaign_options *opt,
+                     int write_back)
 {
   twf_warnings w;
   twf_error err;
@@ -101,6 +102,7 @@ static void read_one(const char *path, const twf_model *m,
     return;
   }
   twf_warnings_clear(&w);
+  twf_fuzz_check_no_nul(data, size);
   twf_fuzz_check_campaign(c, m, 1);
   if (write_back && twf_fuzz_failures == before)
     round_trip(c, m);
@@ -113,14 +115,14 @@ void twf_fuzz_campaign(const uint8_t *data, size_t size)
   twf_campaign_options strict = twf_campaign_default_options();
   if (path == NULL)
     return;
-  read_one(path, twf_fuzz_arm(0), NULL, 1);
+  read_one(data, size, path, twf_fuzz_arm(0), NULL, 1);
   strict.length_from_caller = 1;
   strict.length_unit = TWF_LENGTH_IN;
   strict.angle_from_caller = 1;
   strict.angle_unit = TWF_ANGLE_MRAD;
   strict.limits_are_errors = 1;
-  read_one(path, twf_fuzz_arm(0), &strict, 0);
-  read_one(path, twf_fuzz_arm(1), NULL, 1);
+  read_one(data, size, path, twf_fuzz_arm(0), &strict, 0);
+  read_one(data, size, path, twf_fuzz_arm(1), NULL, 1);
 }
 
 #ifdef TWF_FUZZER

@@ -37,6 +37,7 @@ void twf_fuzz_pair(const uint8_t *data, size_t size)
     FUZZ_CHECK(strcmp(err.file, jpath) == 0 || strcmp(err.file, ppath) == 0 ||
                err.status == TWF_ERR_NOMEM);
   } else {
+    twf_fuzz_check_no_nul(data, size);
     twf_fuzz_check_campaign(c, m, 1);
     twf_campaign_free(c);
   }
@@ -48,6 +49,7 @@ void twf_fuzz_pair(const uint8_t *data, size_t size)
   if (c == NULL) {
     twf_fuzz_check_error(&err, 1);
   } else {
+    twf_fuzz_check_no_nul(data, cut);
     twf_fuzz_check_campaign(c, m, 0);
     twf_campaign_free(c);
   }

@@ -100,6 +100,12 @@ const char *twf_fuzz_file(int slot, const uint8_t *data, size_t size)
 
 /* --------------------------------------------------------- checks */
 
+void twf_fuzz_check_no_nul(const uint8_t *data, size_t size)
+{
+  if (!twf_fuzz_tolerated("nul-accepted"))
+    FUZZ_CHECK(memchr(data, '\0', size) == NULL);
+}
+
 /* A text field of a report: terminated inside its array, and free of
  * control characters, since the command line prints it as one line to a
  * terminal (a quoted input byte must not move the cursor or end the line). */

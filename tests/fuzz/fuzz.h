@@ -49,7 +49,9 @@ const char *twf_fuzz_file(int slot, const uint8_t *data, size_t size);
  * control character in an error report or in an accepted name or value),
  * "nul-accepted" (see twf_fuzz_check_no_nul), "nonfinite-model" (an accepted
  * model with an infinite or NaN value: not checked further),
- * "write-overflow" (no base pose round trip beyond 1e300 m). */
+ * "write-overflow" (no round trip of a base pose beyond 1e300 m or of a
+ * model with a length beyond 1e6 m), "name-comment" (a model name with ';'
+ * or '#' is not compared after the round trip). */
 int twf_fuzz_tolerated(const char *check);
 
 /* A file with a NUL byte is not text: every reader must refuse it, not read

@@ -20,9 +20,10 @@ out=$(cd "$out" && pwd)
 command -v "$CC" >/dev/null 2>&1 ||
   { echo "build.sh: $CC not found (apt-get install clang libclang-rt-14-dev)" >&2; exit 2; }
 
-# Every .c of src_libtwistfit_la_SOURCES, continuation lines and += too.
+# Every .c of src_libtwistfit_core_la_SOURCES (the convenience library that
+# holds all library sources), continuation lines and += too.
 lib_sources=$(awk '
-  /^src_libtwistfit_la_SOURCES[ \t]*\+?=/ { on = 1; sub(/^[^=]*=/, "") }
+  /^src_libtwistfit_core_la_SOURCES[ \t]*\+?=/ { on = 1; sub(/^[^=]*=/, "") }
   on { line = $0; more = sub(/\\[ \t]*$/, "", line); print line; if (!more) on = 0 }
 ' "$top/Makefile.am" | tr -s ' \t' '\n\n' | grep '\.c$' || true)
 [ -n "$lib_sources" ] ||
@@ -43,7 +44,7 @@ else
   mv "$out/obj/config.h.new" "$out/obj/config.h"
 fi
 
-pkgs="gsl inih jansson"
+pkgs="gsl inih jansson libmd"
 PKG_CFLAGS=$(pkg-config --cflags $pkgs)
 PKG_LIBS=$(pkg-config --libs $pkgs)
 SAN="-fsanitize=address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer"

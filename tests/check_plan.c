@@ -183,6 +183,155 @@ START_TEST(test_prediction_matches_truth_7)
 }
 END_TEST
 
+/* ------------------------------------------------------------ assessment */
+
+START_TEST(test_assess_agrees_with_calibrate)
+{
+  /* The assessment's predicted standard deviations are the ones calibrate
+   * reports on the same poses with the same noise: within 5 %, the
+   * difference being the linearisation at the nominal rather than the
+   * as-built model (common practice, no source). The kept and fixed
+   * parameters are the same. */
+  twf_model *nominal = test_arm_model(ARM_TF6S), *truth = twf_model_copy(nominal);
+  twf_simulate_options so = twf_simulate_default_options();
+  twf_calib_options co = twf_calib_default_options();
+  twf_assess_options ao = twf_assess_default_options();
+  twf_calib_result *res = NULL;
+  twf_assessment *a = NULL;
+  twf_campaign *c;
+  twf_error err;
+  twf_pose B;
+  size_t k, compared = 0;
+  twf_model_perturb(truth, &typical, 31);
+  test_tracker_base(&B);
+  so.n_poses = 40;
+  so.sigma_m = 2e-5;
+  so.seed = 32;
+  c = twf_simulate_campaign(truth, &B, &so, &err);
+  co.sigma_length = 2e-5;
+  co.robust = TWF_ROBUST_OFF;
+  ck_assert_msg(twf_calibrate(nominal, c, &co, &res, NULL, &err) == TWF_OK, "%s", err.message);
+  ao.calib = co;
+  ck_assert_int_eq(twf_assess(nominal, c->q, c->n_poses, &ao, &a, NULL, &err), TWF_OK);
+  ck_assert_uint_eq(a->n_params, res->n_params);
+  ck_assert_uint_eq(a->n_kept, res->n_kept);
+  ck_assert_uint_eq(a->structural_count, res->structural_count);
+  ck_assert_uint_eq(a->n_rows, 3 * c->n_meas);
+  for (k = 0; k < a->n_params; k++) {
+    ck_assert_int_eq(a->params[k].status, res->params[k].status);
+    if (a->params[k].status == TWF_PARAM_KEPT) {
+      ck_assert_msg(fabs(a->params[k].std / res->params[k].std - 1.0) < 0.05, "%s: %g against %g",
+                    a->params[k].param.name, a->params[k].std, res->params[k].std);
+      compared++;
+    }
+  }
+  ck_assert_uint_eq(compared, a->n_kept);
+  /* the same definitions of the indices as calibrate's (within 5 %) */
+  for (k = 0; k < 4; k++)
+    ck_assert_msg(fabs(a->observability[k] / res->observability[k] - 1.0) < 0.05, "O%zu %g against %g", k + 1,
+                  a->observability[k], res->observability[k]);
+  ck_assert(isfinite(a->workspace->position_stats.rms) && a->workspace->position_stats.rms > 0);
+  twf_assessment_free(a);
+  twf_calib_result_free(res);
+  twf_campaign_free(c);
+  twf_model_free(truth);
+  twf_model_free(nominal);
+}
+END_TEST
+
+/* The predicted accuracy does not depend on which redundant parameters
+ * were fixed: two walk orders, one figure (calibration-model.md: the
+ * choice changes raw values, not predictions). */
+START_TEST(test_assess_prediction_independent_of_order)
+{
+  twf_model *m = test_arm_model(ARM_TF7);
+  twf_assess_options ao = twf_assess_default_options();
+  twf_assessment *a = NULL, *b = NULL;
+  twf_error err;
+  double q[50 * 7];
+  unsigned long long st = 12;
+  size_t i;
+  const twf_group other[TWF_GROUP_COUNT] = { TWF_GROUP_TILTS, TWF_GROUP_SHIFTS, TWF_GROUP_HOME, TWF_GROUP_OFFSETS,
+                                             TWF_GROUP_TARGETS, TWF_GROUP_BASE, TWF_GROUP_SCALE };
+  for (i = 0; i < 50; i++)
+    twf_simulate_joints(m, 0.05, &st, q + 7 * i);
+  ao.workspace.n_configs = 200;
+  ck_assert_int_eq(twf_assess(m, q, 50, &ao, &a, NULL, &err), TWF_OK);
+  memcpy(ao.calib.priority, other, sizeof other);
+  ck_assert_int_eq(twf_assess(m, q, 50, &ao, &b, NULL, &err), TWF_OK);
+  ck_assert_uint_eq(a->n_kept, b->n_kept);
+  /* different parameters were kept ... */
+  {
+    int differ = 0;
+    for (i = 0; i < a->n_params; i++)
+      differ |= a->params[i].status != b->params[i].status;
+    ck_assert(differ);
+  }
+  /* ... and the predictions are the same (rounding of two inversions) */
+  for (i = 0; i < a->workspace->n; i++)
+    ck_assert_close(a->workspace->position[i], b->workspace->position[i], 1e-6);
+  twf_assessment_free(a);
+  twf_assessment_free(b);
+  twf_model_free(m);
+}
+END_TEST
+
+static int warned(const twf_warnings *w, const char *text)
+{
+  size_t k;
+  for (k = 0; k < w->count; k++)
+    if (strstr(w->items[k].message, text) != NULL)
+      return 1;
+  return 0;
+}
+
+/* A joint that never moves leaves parameters undetermined (fixed on these
+ * poses, with calibrate's warning naming the joint); one moved through
+ * 2 degrees leaves them weak with the warning naming it; too few poses
+ * give the degrees-of-freedom warning. */
+START_TEST(test_assess_warnings)
+{
+  twf_model *m = test_arm_model(ARM_TF6S);
+  twf_assess_options ao = twf_assess_default_options();
+  twf_assessment *a = NULL;
+  twf_warnings w;
+  twf_error err;
+  double q[40 * 6];
+  unsigned long long st = 21;
+  size_t i;
+  for (i = 0; i < 40; i++) {
+    twf_simulate_joints(m, 0.05, &st, q + 6 * i);
+    q[6 * i + 4] = 0.3; /* j5 never moves */
+  }
+  twf_warnings_init(&w);
+  ck_assert_int_eq(twf_assess(m, q, 40, &ao, &a, &w, &err), TWF_OK);
+  ck_assert(a->n_fixed_data > 0);
+  ck_assert(a->joint_max[4] - a->joint_min[4] == 0.0);
+  ck_assert_msg(warned(&w, "joint j5 moved through 0"), "%s", w.count ? w.items[0].message : "no warning");
+  twf_assessment_free(a);
+  twf_warnings_clear(&w);
+  for (i = 0; i < 40; i++)
+    q[6 * i + 4] = 0.3 + 0.035 * (double)(i % 2); /* 2 degrees */
+  twf_warnings_init(&w);
+  ck_assert_int_eq(twf_assess(m, q, 40, &ao, &a, &w, &err), TWF_OK);
+  ck_assert_uint_eq(a->n_fixed_data, 0);
+  ck_assert(a->n_weak > 0);
+  ck_assert(warned(&w, "joint j5 moved through only 2"));
+  twf_assessment_free(a);
+  twf_warnings_clear(&w);
+  twf_warnings_init(&w);
+  ck_assert_int_eq(twf_assess(m, q, 3, &ao, &a, &w, &err), TWF_OK);
+  ck_assert(warned(&w, "coordinates for"));
+  twf_assessment_free(a);
+  twf_warnings_clear(&w);
+  /* a noise of zero is refused: the figures need it */
+  ao.calib.sigma_length = 0;
+  ck_assert_int_eq(twf_assess(m, q, 40, &ao, &a, NULL, &err), TWF_ERR_INVALID);
+  ck_assert_ptr_null(a);
+  twf_model_free(m);
+}
+END_TEST
+
 /* ------------------------------------------------------------ simulation */
 
 /* RMS over random configurations within the limits of the distance
@@ -325,6 +474,12 @@ int main(void)
   tcase_set_timeout(tc, 120);
   tcase_add_test(tc, test_prediction_matches_truth_6);
   tcase_add_test(tc, test_prediction_matches_truth_7);
+  suite_add_tcase(s, tc);
+  tc = tcase_create("assessment");
+  tcase_set_timeout(tc, 120);
+  tcase_add_test(tc, test_assess_agrees_with_calibrate);
+  tcase_add_test(tc, test_assess_prediction_independent_of_order);
+  tcase_add_test(tc, test_assess_warnings);
   suite_add_tcase(s, tc);
   tc = tcase_create("simulation");
   tcase_set_timeout(tc, 120);

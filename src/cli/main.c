@@ -13,6 +13,7 @@ static const cli_command *const commands[] = {
   &cli_cmd_verify,
   &cli_cmd_calibrate,
   &cli_cmd_simulate,
+  &cli_cmd_assess,
 };
 static const size_t n_commands = sizeof commands / sizeof commands[0];
 

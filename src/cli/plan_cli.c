@@ -311,12 +311,12 @@ void pcli_print_assessment(FILE *fp, const twf_assessment *a, const twf_model *m
     const char *unit;
     if (p->status == TWF_PARAM_KEPT) {
       double v = param_shown(&p->param, p->std, u, &unit);
-      fprintf(fp, "  %-14s %-26s %.*f %s\n", p->param.name, status_text(p),
+      fprintf(fp, "  %-14s %-28s %.*f %s\n", p->param.name, status_text(p),
               p->param.kind == TWF_PARAM_LENGTH ? u->ldec + 1 : p->param.kind == TWF_PARAM_ANGLE ? u->adec : 3, v,
               unit);
     } else {
       size_t e;
-      fprintf(fp, "  %-14s %-26s", p->param.name, status_text(p));
+      fprintf(fp, "  %-14s %-28s", p->param.name, status_text(p));
       for (e = 0; e < p->n_explain; e++)
         fprintf(fp, "%s%s %+.3g", e ? ", " : " explained by ", a->params[p->explain[e]].param.name,
                 p->explain_coef[e]);
@@ -349,7 +349,7 @@ void pcli_print_assessment(FILE *fp, const twf_assessment *a, const twf_model *m
   }
   fputc('\n', fp);
   if (a->workspace != NULL)
-    pcli_print_prediction(fp, "Predicted accuracy over the workspace (random configurations within the limits)",
+    pcli_print_prediction(fp, "Predicted accuracy over the workspace, random configurations within the limits",
                           a->workspace, m, u);
 }
 

@@ -200,12 +200,16 @@ twf_status twf_assess(const twf_model *m, const double *q, size_t n, const twf_a
     view.n_fixed_data = a->n_fixed_data;
     twf_calib_warn_fixed_on_data(m, &view, w);
 
-    if (a->n_rows < a->n_kept + 3) {
-      size_t more = d.r ? (a->n_kept + 3 - a->n_rows + d.r - 1) / d.r : 0;
+    /* the calibration's degrees-of-freedom rule (3 coordinates more than
+     * parameters), against the independent parameters of the arm: the walk
+     * on too few poses keeps only what they can carry */
+    if (a->n_rows < a->structural_count + 3) {
+      size_t need = a->structural_count + 3;
+      size_t more = d.r ? (need - a->n_rows + d.r - 1) / d.r : 0;
       twf_warnings_add(w, NULL, 0, 0,
-                       "these poses give %zu coordinates for %zu parameters: at least %zu are needed to check "
-                       "the fit (about %zu more poses)",
-                       a->n_rows, a->n_kept, a->n_kept + 3, more);
+                       "these poses give %zu coordinates for the %zu independent parameters: at least %zu are "
+                       "needed to determine and check them (about %zu more poses)",
+                       a->n_rows, a->structural_count, need, more);
     }
     if (a->n_kept > 0 && twf_ident_inverse(As, p, keep, cov) == 0) {
       for (k = 0; k < p; k++) {
@@ -232,9 +236,11 @@ twf_status twf_assess(const twf_model *m, const double *q, size_t n, const twf_a
           if (fabs(rho) > 0.9)
             correlation_insert(a, i, j, rho);
         }
-      /* a correlation this close to 1 leaves the pair to the noise
-       * (common practice, no source) */
-      if (a->n_correlations > 0 && fabs(a->correlations[0].rho) > 0.99)
+      /* the report lists the correlations above 0.9 as calibrate does (a
+       * full arm has dozens, some with any pose set); a warning only where
+       * the pair's standard deviations are inflated seventy-fold, 1 /
+       * sqrt(1 - rho^2) (common practice, no source) */
+      if (a->n_correlations > 0 && fabs(a->correlations[0].rho) > 0.9999)
         twf_warnings_add(w, NULL, 0, 0,
                          "parameters %s and %s are correlated at %.4f on these poses: add poses that separate "
                          "them (more joints moved together, more of their ranges)",

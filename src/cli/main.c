@@ -14,6 +14,7 @@ static const cli_command *const commands[] = {
   &cli_cmd_calibrate,
   &cli_cmd_simulate,
   &cli_cmd_assess,
+  &cli_cmd_plan,
 };
 static const size_t n_commands = sizeof commands / sizeof commands[0];
 

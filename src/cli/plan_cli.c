@@ -443,7 +443,10 @@ int pcli_put_joints(FILE *fp, void *ctx, twf_error *err)
     fprintf(fp, ",%s", m->joints[k].name);
   fputc('\n', fp);
   for (i = 0; i < j->n; i++) {
-    fprintf(fp, "%s%04zu", j->id_prefix, i + 1);
+    if (j->ids != NULL)
+      fprintf(fp, "%s", j->ids[j->id_index[i]]);
+    else
+      fprintf(fp, "%s%04zu", j->id_prefix, i + 1);
     for (k = 0; k < m->n_joints; k++)
       fprintf(fp, ",%.10g",
               j->q[i * m->n_joints + k] / (m->joints[k].type == TWF_JOINT_REVOLUTE ? asi : lsi));

@@ -89,7 +89,9 @@ typedef struct pcli_joints {
   const twf_model *m;
   const double *q;
   size_t n;
-  const char *id_prefix;       /* ids PREFIX0001, ... */
+  const char *id_prefix;       /* ids PREFIX0001, ... unless ids is given */
+  const char (*ids)[TWF_NAME_MAX]; /* NULL, or the ids of a pool ... */
+  const size_t *id_index;      /* ... and each pose's index into it */
   twf_length_unit length_unit; /* of prismatic joints */
   twf_angle_unit angle_unit;   /* of revolute joints */
   const char *comment;         /* "# ..." line(s) above the units line, may be NULL */

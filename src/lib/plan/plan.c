@@ -706,7 +706,7 @@ twf_status twf_plan(const twf_model *m, const twf_plan_options *o, twf_plan_resu
   search s;
   twf_plan_result *res = NULL;
   size_t nj, nc_all, c, k, i, t;
-  double *qc = NULL, *A = NULL, ridge = 0.0, reach;
+  double *qc = NULL, *A = NULL, *greedy = NULL, ridge = 0.0, reach;
   size_t *ord = NULL, *cand_index = NULL;
   twf_status st;
   unsigned long long rng;
@@ -809,7 +809,12 @@ twf_status twf_plan(const twf_model *m, const twf_plan_options *o, twf_plan_resu
     if (planner_refresh(&pl) != 0)
       goto singular;
   }
-  res->score_greedy = pl.f;
+  /* the greedy set, scored exactly (without the ridge) below */
+  greedy = malloc(o->count * (nj ? nj : 1) * sizeof *greedy);
+  if (greedy == NULL)
+    goto nomem;
+  for (i = 0; i < o->count; i++)
+    memcpy(greedy + i * nj, qc + s.chosen[i] * nj, nj * sizeof *greedy);
 
   /* exchange excursions */
   {
@@ -877,14 +882,8 @@ twf_status twf_plan(const twf_model *m, const twf_plan_options *o, twf_plan_resu
     }
     free(qs);
   }
-  {
-    /* the greedy figure in twf_plan_score's terms (the ridge is far below
-     * rounding of the final ones) */
-    double fg = res->score_greedy;
-    res->score_greedy = pl.crit == TWF_PLAN_WORKSPACE ? sqrt(fg)
-                        : pl.crit == TWF_PLAN_D       ? -fg / (double)pl.nk
-                                                      : -fg;
-  }
+  if ((st = twf_plan_score(m, greedy, o->count, o, &res->score_greedy, err)) != TWF_OK)
+    goto fail;
   if ((st = twf_plan_score(m, res->q, res->n, o, &res->score, err)) != TWF_OK)
     goto fail;
   if ((st = twf_assess(m, res->q, res->n, &o->assess, &res->assessment, w, err)) != TWF_OK)
@@ -903,7 +902,7 @@ fail:
 done:
   twf_plan_result_free(res);
   planner_free(&pl);
-  free(qc); free(A); free(ord); free(cand_index);
+  free(qc); free(A); free(greedy); free(ord); free(cand_index);
   free(s.avail); free(s.pos); free(s.chosen); free(s.scratch);
   return st;
 }

@@ -5,6 +5,7 @@
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
+#include "plan_cli.h"
 
 #include <errno.h>
 #include <getopt.h>
@@ -327,6 +328,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     for (i = 0; i < w->count; i++)
       fprintf(fp, "  - %s\n", w->items[i].message);
   }
+  cli_print_predicted(fp, r, m, view, co, u);
   fprintf(fp, "\n%s", cli_safety_text);
 }
 
@@ -712,6 +714,7 @@ static int run_calibrate(int argc, char **argv)
       weights[res->outliers[k].meas] = res->outliers[k].weight;
     if (json_path != NULL)
       root = report_json(&in, res, &co, &u, dg, n_dg, created, &warnings);
+    cli_json_add_predicted(root, res, in.model, in.campaign, &co, &u);
     memset(&rr, 0, sizeof rr);
     rr.m = in.model;
     rr.c = in.campaign;

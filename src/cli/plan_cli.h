@@ -98,10 +98,12 @@ typedef struct pcli_joints {
 } pcli_joints;
 int pcli_put_joints(FILE *fp, void *ctx, twf_error *err);
 
-/* calibrate's predicted accuracy (predicted.c). */
-void cli_print_predicted(FILE *fp, const twf_calib_prediction *p, const twf_calib_result *r,
-                         const twf_model *m, const twf_campaign *c, const cli_units *u);
-json_t *cli_json_predicted(const twf_calib_prediction *p, const twf_model *m, const twf_campaign *c,
-                           const cli_units *u);
+/* calibrate's predicted accuracy (predicted.c): the text section and the
+ * JSON member "predicted_accuracy" (root may be NULL: nothing). Each
+ * computes twf_calib_predict itself; a failure is reported in place. */
+void cli_print_predicted(FILE *fp, const twf_calib_result *r, const twf_model *m, const twf_campaign *c,
+                         const twf_calib_options *co, const cli_units *u);
+void cli_json_add_predicted(json_t *root, const twf_calib_result *r, const twf_model *m, const twf_campaign *c,
+                            const twf_calib_options *co, const cli_units *u);
 
 #endif

@@ -5,6 +5,7 @@
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
+#include "plan_cli.h"
 
 #include <errno.h>
 #include <getopt.h>
@@ -529,6 +530,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
                   ? "fixed (target not measured)"
                   : status_name(p->status));
   }
+  cli_print_predicted(fp, r, m, in->campaign, co, u);
 }
 
 static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
@@ -1016,6 +1018,7 @@ static int run_calibrate(int argc, char **argv)
       weights[res->outliers[k].meas] = res->outliers[k].weight;
     if (json_path != NULL)
       root = report_json(&in, res, &co, &u, dg, n_dg, created, &warnings);
+    cli_json_add_predicted(root, res, in.model, in.campaign, &co, &u);
     memset(&rr, 0, sizeof rr);
     rr.m = in.model;
     rr.c = in.campaign;

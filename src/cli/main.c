@@ -1,6 +1,7 @@
 /* main.c: twistfit's entry point: global options and command dispatch. */
 #include "config.h"
 #include "cli.h"
+#include "plan_cli.h"
 
 #include <gsl/gsl_errno.h>
 #include <string.h>
@@ -11,6 +12,9 @@ static const cli_command *const commands[] = {
   &cli_cmd_fk,
   &cli_cmd_verify,
   &cli_cmd_calibrate,
+  &cli_cmd_simulate,
+  &cli_cmd_assess,
+  &cli_cmd_plan,
 };
 static const size_t n_commands = sizeof commands / sizeof commands[0];
 

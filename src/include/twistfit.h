@@ -39,5 +39,6 @@
 #include "twistfit/links.h"
 #include "twistfit/calib.h"
 #include "twistfit/simulate.h"
+#include "twistfit/plan.h"
 
 #endif /* TWISTFIT_H */

@@ -73,7 +73,7 @@ static char *slurp(const char *path)
   fseek(f, 0, SEEK_SET);
   buf = malloc((size_t)n + 1);
   ck_assert_ptr_nonnull(buf);
-  ck_assert_int_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
+  ck_assert_uint_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
   buf[n] = '\0';
   fclose(f);
   return buf;
@@ -1329,7 +1329,7 @@ START_TEST(test_load_200k_poses)
     grown_kib = in[1];
   }
 #ifndef TWF_TEST_ASAN
-  ck_assert_msg(grown_kib * 1024.0 <= 4.0 * (double)size,
+  ck_assert_msg((double)grown_kib * 1024.0 <= 4.0 * (double)size,
                 "reading %ld bytes grew the peak memory by %ld KiB, more than 4 times the file",
                 size, grown_kib);
 #endif

@@ -86,7 +86,7 @@ static char *slurp(const char *path)
   fseek(f, 0, SEEK_SET);
   buf = malloc((size_t)n + 1);
   ck_assert_ptr_nonnull(buf);
-  ck_assert_int_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
+  ck_assert_uint_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
   buf[n] = '\0';
   fclose(f);
   return buf;
@@ -1183,7 +1183,7 @@ START_TEST(test_man_page_examples)
     temp_name(paths[k], sizeof paths[k]);
     write_text(paths[k], blocks[k]);
     m[k] = read_ok(paths[k], &w);
-    ck_assert_int_eq(w.count, 0);
+    ck_assert_uint_eq(w.count, 0);
     remove(paths[k]);
     free(blocks[k]);
   }

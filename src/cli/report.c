@@ -227,10 +227,10 @@ void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary 
   for (set = 0; set < 2; set++)
     for (k = 0; k < s->n_targets; k++) {
       char label[TWF_NAME_MAX + 16];
-      if (s->target_position[2 * k + set].count == 0 || s->n_targets < 2)
+      if (s->target_position[2 * k + (size_t)set].count == 0 || s->n_targets < 2)
         continue;
       snprintf(label, sizeof label, "%s %s", set_name(set), m->targets[k].name);
-      print_stats_row(fp, label, &s->target_position[2 * k + set], u->length_si, u->ldec, c, 1);
+      print_stats_row(fp, label, &s->target_position[2 * k + (size_t)set], u->length_si, u->ldec, c, 1);
     }
   if (s->orientation[0].count + s->orientation[1].count > 0) {
     fprintf(fp, "  orientation error, %s\n", u->angle);
@@ -321,9 +321,9 @@ json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
     if (s->orientation[set].count > 0)
       json_object_set_new(so, "orientation", cli_json_stats(&s->orientation[set], u->angle_si));
     for (k = 0; k < s->n_targets; k++)
-      if (s->target_position[2 * k + set].count > 0)
+      if (s->target_position[2 * k + (size_t)set].count > 0)
         json_object_set_new(targets, m->targets[k].name,
-                            cli_json_stats(&s->target_position[2 * k + set], u->length_si));
+                            cli_json_stats(&s->target_position[2 * k + (size_t)set], u->length_si));
     json_object_set_new(so, "targets", targets);
     for (i = 0; i < s->n_worst[set]; i++) {
       const twf_accuracy_worst *w = &s->worst[set][i];

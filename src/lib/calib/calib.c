@@ -553,7 +553,7 @@ static twf_status list_outliers(job *j)
   twf_calib_result *res = j->res;
   size_t i, k;
   for (i = 0; i < j->c->n_meas; i++)
-    res->n_outliers += twf_robust_listed(&j->pr, j->opt.robust, j->opt.robust_threshold, j->score, i);
+    res->n_outliers += (size_t)twf_robust_listed(&j->pr, j->opt.robust, j->opt.robust_threshold, j->score, i);
   res->outliers = calloc(res->n_outliers ? res->n_outliers : 1, sizeof *res->outliers);
   if (res->outliers == NULL)
     return nomem(j);

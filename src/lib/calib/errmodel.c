@@ -306,7 +306,7 @@ void twf_errmodel_point(const twf_errmodel *em, const twf_model *m,
     if (par->group == TWF_GROUP_TARGETS) {
       int r;
       for (r = 0; r < 3; r++)
-        rows[r * p + j] = par->target == (long)target ? em->flange.R[r][par->component] : 0.0;
+        rows[(size_t)r * p + j] = par->target == (long)target ? em->flange.R[r][par->component] : 0.0;
     } else {
       /* a spatial twist (w, v) moves the point y by w x y + v */
       const double *t = em->twists + 6 * j;
@@ -356,7 +356,7 @@ void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
       continue;
     }
     for (a = 0; a < 3; a++)
-      rows[a * p + j] = Jinv[a][0] * t[0] + Jinv[a][1] * t[1] + Jinv[a][2] * t[2];
+      rows[(size_t)a * p + j] = Jinv[a][0] * t[0] + Jinv[a][1] * t[1] + Jinv[a][2] * t[2];
   }
 }
 

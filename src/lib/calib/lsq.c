@@ -208,7 +208,7 @@ static void visit_factor(twf_lsq_problem *pr, void *vctx, const double *rows, co
   (void)r;
   for (k = 0; k < 3; k++) {
     for (a = 0; a < x->nc; a++)
-      row[a] = sw * rows[k * p + (x->cols ? x->cols[a] : a)];
+      row[a] = sw * rows[(size_t)k * p + (x->cols ? x->cols[a] : a)];
     twf_ident_qr_add_row(x->M, x->nc, row);
   }
 }

@@ -31,7 +31,7 @@ static void robust_scales(const twf_lsq_problem *pr, const double *pos, const do
     if (!pr->use[i])
       continue;
     for (k = 0; k < 3; k++)
-      comp[n++] = pos[3 * i + k] * pr->inv_sigma[i];
+      comp[n++] = pos[3 * i + (size_t)k] * pr->inv_sigma[i];
     if (c->meas[i].has_orientation)
       rs[nr++] = rot[i] * pr->inv_sigma_rot;
   }

@@ -593,12 +593,12 @@ static twf_status iso_orientation(const twf_campaign *c, const twf_pose *B, cons
   e->n = m;
   for (a = 0; a < m; a++)
     for (k = 0; k < 3; k++)
-      sum[k] += abc[3 * a + k];
+      sum[k] += abc[3 * a + (size_t)k];
   for (k = 0; k < 3; k++)
     e->ap[k] = sum[k] / (double)m;
   for (a = 0; a < m; a++)
     for (k = 0; k < 3; k++)
-      ss[k] += (abc[3 * a + k] - e->ap[k]) * (abc[3 * a + k] - e->ap[k]);
+      ss[k] += (abc[3 * a + (size_t)k] - e->ap[k]) * (abc[3 * a + (size_t)k] - e->ap[k]);
   for (k = 0; k < 3; k++)
     e->rp[k] = 3.0 * sqrt(ss[k] / (double)(m - 1));
   free(abc);

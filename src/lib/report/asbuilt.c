@@ -129,7 +129,7 @@ static double offset_deviation(const twf_model *nm, size_t i,
     closest_on_line(aq + 3 * i, da, nq + 3 * i, pi);
     closest_on_line(aq + 3 * j, ad + 3 * j, nq + 3 * j, pj);
     for (a = 0; a < 3; a++) {
-      v[a] = nq[3 * j + a] - nq[3 * i + a];
+      v[a] = nq[3 * j + (size_t)a] - nq[3 * i + (size_t)a];
       w[a] = pj[a] - pi[a];
     }
     perpendicular(dn, v, fn);
@@ -209,10 +209,10 @@ static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
         continue;
       closest_on_line(aq + 3 * i, da, nq + 3 * i, qa);
       for (c = 0; c < 3; c++) {
-        a[3 * np + c] = qa[c];
-        b[3 * np + c] = nq[3 * i + c];
-        a[3 * (np + 1) + c] = qa[c] + L * da[c];
-        b[3 * (np + 1) + c] = nq[3 * i + c] + L * dn[c];
+        a[3 * np + (size_t)c] = qa[c];
+        b[3 * np + (size_t)c] = nq[3 * i + (size_t)c];
+        a[3 * (np + 1) + (size_t)c] = qa[c] + L * da[c];
+        b[3 * (np + 1) + (size_t)c] = nq[3 * i + (size_t)c] + L * dn[c];
       }
       np += 2;
     }
@@ -294,7 +294,7 @@ static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
     twf_pose_apply(&Fa, asbuilt->targets[k].offset, ya);
     twf_pose_apply(&Fn, nominal->targets[k].offset, yn);
     for (c = 0; c < 3; c++)
-      out->target_change_m[3 * k + c] = nominal->targets[k].offset_known ? ya[c] - yn[c] : NAN;
+      out->target_change_m[3 * k + (size_t)c] = nominal->targets[k].offset_known ? ya[c] - yn[c] : NAN;
   }
 done:
   free(a);

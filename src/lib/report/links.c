@@ -662,7 +662,7 @@ twf_status twf_links_jacobian(const twf_model *m, unsigned groups,
         double dv = vp[r][v] - vm[r][v];
         if (v == TWF_LINK_THETA || v == TWF_LINK_ALPHA || v == TWF_LINK_BETA)
           dv = wrap(dv);
-        J[(r * TWF_LINK_NVALUES + v) * p + j] = dv / (2.0 * h);
+        J[((size_t)r * TWF_LINK_NVALUES + (size_t)v) * p + j] = dv / (2.0 * h);
       }
   }
 done:

@@ -42,30 +42,31 @@ START_TEST(test_observability_by_hand)
    * singular value), O4 = 2 / (2 sqrt 2) = 1 / sqrt 2 (Nahvi and Hollerbach
    * 1996). */
   const double J[6] = { 2, 2, 1, -1, 0, 0 };
-  double sv[2], o[4];
+  double sv[2];
+  twf_observability ob;
   svd_of(J, 3, 2, sv);
-  twf_observability_indices(sv, 2, 3, o);
-  ck_assert_close(o[0], 2.0 / sqrt(3.0), 1e-12);
-  ck_assert_close(o[1], 0.5, 1e-12);
-  ck_assert_close(o[2], sqrt(2.0), 1e-12);
-  ck_assert_close(o[3], 1.0 / sqrt(2.0), 1e-12);
+  twf_observability_indices(sv, 2, 3, &ob);
+  ck_assert_close(ob.o1, 2.0 / sqrt(3.0), 1e-12);
+  ck_assert_close(ob.o2, 0.5, 1e-12);
+  ck_assert_close(ob.o3, sqrt(2.0), 1e-12);
+  ck_assert_close(ob.o4, 1.0 / sqrt(2.0), 1e-12);
   {
     /* J = diag(3, 1, 0.5) over 4 rows (the last zero): O1 = (1.5)^(1/3) / 2,
      * O2 = 0.5 / 3, O3 = 0.5, O4 = 0.25 / 3, by hand */
     const double D[12] = { 3, 0, 0, 0, 1, 0, 0, 0, 0.5, 0, 0, 0 };
     double s3[3];
     svd_of(D, 4, 3, s3);
-    twf_observability_indices(s3, 3, 4, o);
-    ck_assert_close(o[0], cbrt(1.5) / 2.0, 1e-12);
-    ck_assert_close(o[1], 0.5 / 3.0, 1e-12);
-    ck_assert_close(o[2], 0.5, 1e-12);
-    ck_assert_close(o[3], 0.25 / 3.0, 1e-12);
+    twf_observability_indices(s3, 3, 4, &ob);
+    ck_assert_close(ob.o1, cbrt(1.5) / 2.0, 1e-12);
+    ck_assert_close(ob.o2, 0.5 / 3.0, 1e-12);
+    ck_assert_close(ob.o3, 0.5, 1e-12);
+    ck_assert_close(ob.o4, 0.25 / 3.0, 1e-12);
   }
   {
     /* a zero singular value: nothing observable (common practice, no source) */
     const double z[2] = { 1.0, 0.0 };
-    twf_observability_indices(z, 2, 3, o);
-    ck_assert(o[0] == 0 && o[1] == 0 && o[2] == 0 && o[3] == 0);
+    twf_observability_indices(z, 2, 3, &ob);
+    ck_assert(ob.o1 == 0 && ob.o2 == 0 && ob.o3 == 0 && ob.o4 == 0);
   }
 }
 END_TEST
@@ -227,9 +228,13 @@ START_TEST(test_assess_agrees_with_calibrate)
   }
   ck_assert_uint_eq(compared, a->n_kept);
   /* the same definitions of the indices as calibrate's (within 5 %) */
-  for (k = 0; k < 4; k++)
-    ck_assert_msg(fabs(a->observability[k] / res->observability[k] - 1.0) < 0.05, "O%zu %g against %g", k + 1,
-                  a->observability[k], res->observability[k]);
+  {
+    const double oa[4] = { a->observability.o1, a->observability.o2, a->observability.o3, a->observability.o4 };
+    const double oc[4] = { res->observability.o1, res->observability.o2, res->observability.o3,
+                           res->observability.o4 };
+    for (k = 0; k < 4; k++)
+      ck_assert_msg(fabs(oa[k] / oc[k] - 1.0) < 0.05, "O%zu %g against %g", k + 1, oa[k], oc[k]);
+  }
   ck_assert(isfinite(a->workspace->position_stats.rms) && a->workspace->position_stats.rms > 0);
   twf_assessment_free(a);
   twf_calib_result_free(res);
@@ -371,7 +376,7 @@ static void planned_beats_random(twf_plan_criterion crit)
   if (crit == TWF_PLAN_D)
     ck_assert_close(r->score, r->assessment->log_det, 1e-6);
   if (crit == TWF_PLAN_O4)
-    ck_assert_close(r->score, r->assessment->observability[3], 1e-6);
+    ck_assert_close(r->score, r->assessment->observability.o4, 1e-6);
   for (k = 0; k < 50; k++) {
     random_set(m, 20, &st, q);
     ck_assert_int_eq(twf_plan_score(m, q, 20, &o, &s, &err), TWF_OK);

@@ -477,8 +477,8 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
               "  weak %zu\n",
           r->n_params, r->structural_count, r->n_kept, r->n_fixed_structural, r->n_fixed_data, r->n_weak);
   fprintf(fp, "  condition number of the scaled Jacobian %.4g; observability O1 %.4g, O2 %.4g, O3 %.4g, O4 %.4g\n",
-          r->condition_number, r->observability[0], r->observability[1], r->observability[2],
-          r->observability[3]);
+          r->condition_number, r->observability.o1, r->observability.o2, r->observability.o3,
+          r->observability.o4);
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     if (p->status == TWF_PARAM_KEPT ||
@@ -517,7 +517,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     const char *unit;
-    double v = param_shown(&p->param, p->value, u, &unit);
+    double v = param_shown(&p->param, p->change, u, &unit);
     double s = param_shown(&p->param, p->std, u, &unit);
     if (p->status == TWF_PARAM_KEPT)
       fprintf(fp, "  %-8s %-14s %14.*f %12.*f %-5s %s%s\n", twf_group_name(p->param.group), p->param.name,
@@ -644,7 +644,7 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     const char *unit;
-    double v = param_shown(&p->param, p->value, u, &unit);
+    double v = param_shown(&p->param, p->change, u, &unit);
     double s = param_shown(&p->param, p->std, u, &unit);
     json_t *o = json_pack("{s:s, s:s, s:s, s:s, s:b}", "group", twf_group_name(p->param.group), "name",
                           p->param.name, "unit", unit, "status", status_name(p->status), "weak", p->weak);
@@ -669,8 +669,8 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                     (json_int_t)r->n_kept, "fixed_redundant", (json_int_t)r->n_fixed_structural,
                     "fixed_by_data", (json_int_t)r->n_fixed_data, "weak", (json_int_t)r->n_weak,
                     "condition_number", cli_json_number(r->condition_number), "observability",
-                    cli_json_number(r->observability[0]), cli_json_number(r->observability[1]),
-                    cli_json_number(r->observability[2]), cli_json_number(r->observability[3]),
+                    cli_json_number(r->observability.o1), cli_json_number(r->observability.o2),
+                    cli_json_number(r->observability.o3), cli_json_number(r->observability.o4),
                     "correlations", corr);
   json_object_set_new(root, "identifiability", ident);
   for (i = 0; i < w->count; i++)

@@ -326,7 +326,7 @@ void pcli_print_assessment(FILE *fp, const twf_assessment *a, const twf_model *m
   fputc('\n', fp);
   fprintf(fp, "Observability (scaled, weighted Jacobian of the identifiable parameters):\n");
   fprintf(fp, "  O1 %.4g  O2 (inverse condition number) %.4g  O3 (minimum singular value) %.4g  O4 %.4g\n",
-          a->observability[0], a->observability[1], a->observability[2], a->observability[3]);
+          a->observability.o1, a->observability.o2, a->observability.o3, a->observability.o4);
   fprintf(fp, "  condition number %.4g\n", a->condition_number);
   if (a->n_correlations > 0) {
     fprintf(fp, "  strongest correlations:");
@@ -390,10 +390,10 @@ json_t *pcli_json_assessment(const twf_assessment *a, const twf_model *m, const 
     json_array_append_new(params, j);
   }
   json_object_set_new(o, "parameters", params);
-  json_object_set_new(obs, "O1", cli_json_number(a->observability[0]));
-  json_object_set_new(obs, "O2", cli_json_number(a->observability[1]));
-  json_object_set_new(obs, "O3", cli_json_number(a->observability[2]));
-  json_object_set_new(obs, "O4", cli_json_number(a->observability[3]));
+  json_object_set_new(obs, "O1", cli_json_number(a->observability.o1));
+  json_object_set_new(obs, "O2", cli_json_number(a->observability.o2));
+  json_object_set_new(obs, "O3", cli_json_number(a->observability.o3));
+  json_object_set_new(obs, "O4", cli_json_number(a->observability.o4));
   json_object_set_new(obs, "condition_number", cli_json_number(a->condition_number));
   json_object_set_new(obs, "mean_log_eigenvalue", cli_json_number(a->log_det));
   json_object_set_new(o, "observability", obs);

@@ -76,7 +76,7 @@ typedef enum twf_param_status {
 typedef struct twf_param_result {
   twf_param param;
   twf_param_status status;
-  double value;    /* total change from the starting model, SI (m, rad, ratio) */
+  double change;   /* total change from the starting model, SI (m, rad, ratio) */
   double std;      /* predicted standard deviation, SI; NAN when fixed */
   int weak;        /* 1: poorly determined by these poses (see warnings) */
   /* For a fixed parameter: the kept parameters whose columns explain it,
@@ -135,6 +135,20 @@ typedef enum twf_verdict_basis {
 const char *twf_calib_verdict_name(twf_calib_verdict v);
 const char *twf_verdict_basis_name(twf_verdict_basis b);
 
+/* The observability indices of a scaled, weighted Jacobian (Sun and
+ * Hollerbach 2008 compare them). All larger is better. */
+typedef struct twf_observability {
+  double o1;   /* (sv_1 ... sv_n)^(1/n) / sqrt(m), Borm and Menq 1991 */
+  double o2;   /* sv_n / sv_1, the inverse condition number */
+  double o3;   /* sv_n, the minimum singular value */
+  double o4;   /* sv_n^2 / sv_1, the noise amplification index, Nahvi and
+                  Hollerbach 1996 */
+} twf_observability;
+
+/* The indices from the singular values sv[0..n) (descending) of a Jacobian
+ * with m rows. A zero smallest value (or n = 0) gives all four 0. */
+void twf_observability_indices(const double *sv, size_t n, size_t m, twf_observability *out);
+
 typedef struct twf_calib_result {
   twf_model *asbuilt;         /* owned: the calibrated model (datum frame, see DEVELOPERS.md) */
   twf_pose base_in_tracker;   /* fitted base pose in the tracker frame */
@@ -145,8 +159,7 @@ typedef struct twf_calib_result {
   size_t n_kept, n_fixed_structural, n_fixed_data, n_weak;
   size_t structural_count;    /* independent parameters of the rich synthetic set */
   double condition_number;    /* of the scaled, weighted Jacobian of the kept columns */
-  double observability[4];    /* O1 (Borm-Menq), O2 (inverse condition), O3 (min singular value),
-                                 O4 (noise amplification), Sun and Hollerbach 2008 */
+  twf_observability observability; /* of the same Jacobian, twf_observability_indices */
   size_t n_correlations;
   twf_correlation correlations[TWF_CORRELATIONS_MAX];
   size_t n_outliers;

@@ -28,21 +28,6 @@
 extern "C" {
 #endif
 
-/* ------------------------------------------------------------------ */
-/* Observability indices                                               */
-/* ------------------------------------------------------------------ */
-
-/* The observability indices of a scaled, weighted Jacobian from its
- * singular values sv[0..n) (descending, n >= 1) and its row count m
- * (Sun and Hollerbach 2008 compare them):
- *   out[0] O1 = (sv_1 ... sv_n)^(1/n) / sqrt(m)   (Borm and Menq 1991)
- *   out[1] O2 = sv_n / sv_1, the inverse condition number
- *   out[2] O3 = sv_n, the minimum singular value
- *   out[3] O4 = sv_n^2 / sv_1, the noise amplification index
- *          (Nahvi and Hollerbach 1996).
- * All larger is better; the same definitions as twf_calib_result's. A zero
- * smallest value gives O1 = O2 = O3 = O4 = 0. */
-void twf_observability_indices(const double *sv, size_t n, size_t m, double out[4]);
 
 /* ------------------------------------------------------------------ */
 /* Predicted accuracy                                                  */
@@ -147,11 +132,11 @@ typedef struct twf_assessment {
   size_t n_poses;
   size_t n_rows;                 /* measured coordinates */
   size_t n_params;
-  twf_param_result *params;      /* status, predicted std (SI), weak, explanation; value 0 */
+  twf_param_result *params;      /* status, predicted std (SI), weak, explanation; change 0 */
   size_t n_kept, n_fixed_structural, n_fixed_data, n_weak;
   size_t structural_count;       /* independent parameters of the rich synthetic set */
   double condition_number;       /* of the scaled, weighted Jacobian of the kept columns */
-  double observability[4];       /* O1 to O4, twf_observability_indices */
+  twf_observability observability; /* O1 to O4, twf_observability_indices */
   size_t n_correlations;
   twf_correlation correlations[TWF_CORRELATIONS_MAX];
   size_t n_joints;

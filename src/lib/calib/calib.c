@@ -665,18 +665,12 @@ static void conditioning(job *j)
 {
   twf_calib_result *res = j->res;
   double *sv = j->ratio;
-  size_t ns, k;
+  size_t ns;
   twf_lsq_scale_normal(&j->pr, j->pr.A, j->As);
   ns = twf_ident_singular_values(j->As, j->p, j->keep, sv);
+  twf_observability_indices(sv, ns, j->n_rows, &res->observability);
   if (ns > 0 && sv[ns - 1] > 0) {
-    double logsum = 0.0;
-    for (k = 0; k < ns; k++)
-      logsum += log(sv[k]);
     res->condition_number = sv[0] / sv[ns - 1];
-    res->observability[0] = exp(logsum / (double)ns) / sqrt((double)(j->n_rows ? j->n_rows : 1));
-    res->observability[1] = sv[ns - 1] / sv[0];
-    res->observability[2] = sv[ns - 1];
-    res->observability[3] = sv[ns - 1] * sv[ns - 1] / sv[0];
   } else {
     res->condition_number = INFINITY;
   }
@@ -693,11 +687,11 @@ static twf_status stage_identifiability(job *j)
   for (a = 0; a < p; a++) {
     twf_param_result *pa = &res->params[a];
     double scaled;
-    pa->value = j->value[a];
+    pa->change = j->value[a];
     pa->std = j->keep[a] ? sqrt(j->cov[a * p + a]) : NAN;
     j->ratio[a] = 0.0; /* the weak parameters' std over sigma */
     if (!j->keep[a]) {
-      pa->value = 0.0;
+      pa->change = 0.0;
       continue;
     }
     scaled = pa->std * j->scales[a];

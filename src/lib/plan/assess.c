@@ -249,7 +249,7 @@ twf_status twf_assess(const twf_model *m, const double *q, size_t n, const twf_a
       ns = twf_ident_singular_values(As, p, keep, sv);
       if (ns > 0 && sv[ns - 1] > 0) {
         double logsum = 0.0;
-        twf_observability_indices(sv, ns, a->n_rows, a->observability);
+        twf_observability_indices(sv, ns, a->n_rows, &a->observability);
         a->condition_number = sv[0] / sv[ns - 1];
         for (k = 0; k < ns; k++)
           logsum += 2.0 * log(sv[k]);

@@ -5,11 +5,11 @@
  * Hollerbach 1996. */
 #include "internal.h"
 
-void twf_observability_indices(const double *sv, size_t n, size_t m, double out[4])
+void twf_observability_indices(const double *sv, size_t n, size_t m, twf_observability *out)
 {
   double logsum = 0.0, smin, smax;
   size_t k;
-  out[0] = out[1] = out[2] = out[3] = 0.0;
+  out->o1 = out->o2 = out->o3 = out->o4 = 0.0;
   if (n == 0 || sv == NULL)
     return;
   smax = sv[0];
@@ -20,8 +20,8 @@ void twf_observability_indices(const double *sv, size_t n, size_t m, double out[
    * singular values of 1e3 to 1e6 overflows */
   for (k = 0; k < n; k++)
     logsum += log(sv[k]);
-  out[0] = exp(logsum / (double)n) / sqrt((double)(m ? m : 1));
-  out[1] = smin / smax;
-  out[2] = smin;
-  out[3] = smin * smin / smax;
+  out->o1 = exp(logsum / (double)n) / sqrt((double)(m ? m : 1));
+  out->o2 = smin / smax;
+  out->o3 = smin;
+  out->o4 = smin * smin / smax;
 }

@@ -163,9 +163,9 @@ START_TEST(test_recovery_noise_free)
     ck_assert(twf_stop_converged(s.res->solve.stop));
     rms = prediction_rms(s.res->asbuilt, &s.res->base_in_tracker, s.truth, &s.base, 1000, 77);
     ck_assert_msg(rms < 1e-9, "%s: prediction RMS %.3g m", s.nominal->name, rms);
-    ck_assert(rms_of(s.res->residual_after, s.res->meas_set, s.res->n_meas, TWF_SET_CHECK) < 1e-9);
+    ck_assert(rms_of(s.res->pos_err_after, s.res->meas_set, s.res->n_meas, TWF_SET_CHECK) < 1e-9);
     /* the errors were real: before calibration they were far larger */
-    ck_assert(rms_of(s.res->residual_before, s.res->meas_set, s.res->n_meas, TWF_SET_FIT) > 1e-4);
+    ck_assert(rms_of(s.res->pos_err_before, s.res->meas_set, s.res->n_meas, TWF_SET_FIT) > 1e-4);
     free_scenario(&s);
   }
 }
@@ -180,7 +180,7 @@ START_TEST(test_recovery_with_noise)
   scenario s;
   double check, pred;
   ck_assert_int_eq(run_scenario(&s, ARM_TF6S, 200, sigma, 31, NULL), TWF_OK);
-  check = rms_of(s.res->residual_after, s.res->meas_set, s.res->n_meas, TWF_SET_CHECK);
+  check = rms_of(s.res->pos_err_after, s.res->meas_set, s.res->n_meas, TWF_SET_CHECK);
   pred = prediction_rms(s.res->asbuilt, &s.res->base_in_tracker, s.truth, &s.base, 1000, 78);
   ck_assert_msg(check <= 1.2 * sigma * sqrt(3.0), "check RMS %.4g mm", check * 1e3);
   ck_assert_msg(pred <= 3 * sigma, "prediction RMS %.4g mm", pred * 1e3);
@@ -609,7 +609,7 @@ START_TEST(test_parallel_axes_well_conditioned)
                 sp.res->condition_number < 2 * ss.res->condition_number,
                 "condition number %.4g (tf6s %.4g)", sp.res->condition_number, ss.res->condition_number);
   ck_assert_uint_eq(sp.res->n_kept, 4 * 6 + 3 * 2);
-  check = rms_of(sp.res->residual_after, sp.res->meas_set, sp.res->n_meas, TWF_SET_CHECK);
+  check = rms_of(sp.res->pos_err_after, sp.res->meas_set, sp.res->n_meas, TWF_SET_CHECK);
   ck_assert_msg(check <= 1.2 * sigma * sqrt(3.0), "check RMS %.4g mm", check * 1e3);
   free_scenario(&sp);
   free_scenario(&ss);
@@ -708,7 +708,7 @@ START_TEST(test_fit_screened_figures)
     dropped += s.res->outliers[k].weight == 0.0;
   for (i = 0; i < s.c->n_meas; i++) {
     int out = 0;
-    const double *e = s.res->residual_after + 3 * i;
+    const double *e = s.res->pos_err_after + 3 * i;
     if (s.res->meas_set[i] != TWF_SET_FIT)
       continue;
     n_fit++;
@@ -781,7 +781,7 @@ START_TEST(test_check_gross_error_flagged)
   ck_assert_int_eq(s.res->excluded[bad], TWF_EXCLUDED_FLAGGED);
   for (i = 0; i < s.c->n_meas; i++)
     if (s.res->meas_set[i] == TWF_SET_CHECK && i != bad) {
-      const double *e = s.res->residual_after + 3 * i;
+      const double *e = s.res->pos_err_after + 3 * i;
       ss += e[0] * e[0] + e[1] * e[1] + e[2] * e[2];
       n_check++;
     }

@@ -221,7 +221,7 @@ static void left_out_errors(FILE *fp, const twf_calib_result *r, unsigned char k
   }
   for (i = 0, n = 0; i < r->n_meas; i++)
     if (r->excluded[i] == kind)
-      fprintf(fp, "%s%.*f", n++ ? ", " : "", u->ldec, len_shown(norm3(r->residual_after + 3 * i), u));
+      fprintf(fp, "%s%.*f", n++ ? ", " : "", u->ldec, len_shown(norm3(r->pos_err_after + 3 * i), u));
   fprintf(fp, " %s", u->length);
 }
 
@@ -377,7 +377,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
       cli_meas_where(in, ms, where, sizeof where);
       fprintf(fp, "    %s: pose %s target %s: %.*f (%.1f robust sd), after %.*f, %s\n", where,
               view->pose_ids[ms->pose], m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score,
-              u->ldec, len_shown(norm3(r->residual_after + 3 * o->meas), u),
+              u->ldec, len_shown(norm3(r->pos_err_after + 3 * o->meas), u),
               o->weight == 0.0 ? "dropped" : "down-weighted");
     }
   }
@@ -1023,10 +1023,10 @@ static int run_calibrate(int argc, char **argv)
     rr.m = in.model;
     rr.c = in.campaign;
     rr.sets = res->meas_set;
-    rr.pos[0] = res->residual_before;
-    rr.pos[1] = res->residual_after;
-    rr.rot[0] = res->rot_before;
-    rr.rot[1] = res->rot_after;
+    rr.pos[0] = res->pos_err_before;
+    rr.pos[1] = res->pos_err_after;
+    rr.rot[0] = res->angle_err_before;
+    rr.rot[1] = res->angle_err_after;
     rr.labels[0] = "before_";
     rr.labels[1] = "after_";
     rr.weights = weights;

@@ -166,10 +166,12 @@ typedef struct twf_calib_result {
   twf_outlier *outliers;
   size_t n_meas;
   twf_meas_set *meas_set;     /* effective set of each measurement (held-out fraction applied) */
-  double *residual_before;    /* n_meas x 3, measured - model, m, tracker frame */
-  double *residual_after;
-  double *rot_before;         /* n_meas orientation error angles, rad (NAN for point rows) */
-  double *rot_after;
+  /* the same quantities, in the same layout, as twf_accuracy_residuals's
+   * pos_err and angle_err */
+  double *pos_err_before;     /* n_meas x 3, measured - model, m, instrument frame */
+  double *pos_err_after;
+  double *angle_err_before;   /* n_meas orientation error angles, rad (NAN for point rows) */
+  double *angle_err_after;
   twf_solve_report registration;  /* refinement of base and targets on the starting model */
   twf_solve_report solve;         /* the calibration fit (last robust round) */
   int robust_rounds;
@@ -187,7 +189,7 @@ typedef struct twf_calib_result {
    * model's) and the offset is the fitted offset change (offset_raw; NaN
    * where that parameter was fixed). */
   twf_asbuilt_comparison comparison;
-  /* The accuracy figures of residual_before and residual_after over the
+  /* The accuracy figures of pos_err_before and pos_err_after over the
    * effective sets (meas_set), worst_poses per set: owned. */
   twf_accuracy_summary *accuracy_before;
   twf_accuracy_summary *accuracy_after;

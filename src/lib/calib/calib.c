@@ -93,10 +93,10 @@ void twf_calib_result_free(twf_calib_result *r)
   free(r->params);
   free(r->outliers);
   free(r->meas_set);
-  free(r->residual_before);
-  free(r->residual_after);
-  free(r->rot_before);
-  free(r->rot_after);
+  free(r->pos_err_before);
+  free(r->pos_err_after);
+  free(r->angle_err_before);
+  free(r->angle_err_after);
   free(r->joint_range);
   free(r->target_in_fit);
   twf_asbuilt_comparison_clear(&r->comparison);
@@ -195,13 +195,13 @@ static twf_status job_alloc_result(job *j)
   twf_trace_init(&res->trace);
   res->n_meas = c->n_meas;
   res->meas_set = calloc(nm, sizeof *res->meas_set);
-  res->residual_before = calloc(3 * nm, sizeof(double));
-  res->residual_after = calloc(3 * nm, sizeof(double));
-  res->rot_before = calloc(nm, sizeof(double));
-  res->rot_after = calloc(nm, sizeof(double));
+  res->pos_err_before = calloc(3 * nm, sizeof(double));
+  res->pos_err_after = calloc(3 * nm, sizeof(double));
+  res->angle_err_before = calloc(nm, sizeof(double));
+  res->angle_err_after = calloc(nm, sizeof(double));
   res->joint_range = calloc(j->start->n_joints ? j->start->n_joints : 1, sizeof(double));
-  if (!res->meas_set || !res->residual_before || !res->residual_after || !res->rot_before ||
-      !res->rot_after || !res->joint_range)
+  if (!res->meas_set || !res->pos_err_before || !res->pos_err_after || !res->angle_err_before ||
+      !res->angle_err_after || !res->joint_range)
     return nomem(j);
   return TWF_OK;
 }
@@ -310,8 +310,8 @@ static twf_status stage_registration(job *j)
   }
   if (st != TWF_OK)
     return st;
-  return twf_lsq_residuals(j->reg, &j->res->base_before, j->c, j->res->residual_before,
-                           j->res->rot_before, j->err);
+  return twf_lsq_residuals(j->reg, &j->res->base_before, j->c, j->res->pos_err_before,
+                           j->res->angle_err_before, j->err);
 }
 
 /* ------------------------------------------------------------ stage: the problem */
@@ -859,7 +859,7 @@ static twf_status stage_asbuilt(job *j)
   twf_calib_result *res = j->res;
   int lines_fitted = (j->opt.groups & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
   int set;
-  twf_status st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->residual_after, res->rot_after, j->err);
+  twf_status st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
   if (st != TWF_OK)
     return st;
   res->groups = j->opt.groups;
@@ -888,23 +888,23 @@ static twf_status stage_asbuilt(job *j)
   comparison_restrict(j, lines_fitted);
   if ((st = mark_excluded(j)) != TWF_OK)
     return st;
-  res->accuracy_before = twf_accuracy_summarize_kept(&j->view, j->start->n_targets, res->residual_before,
-                                                     res->rot_before, res->excluded, j->opt.worst_poses, j->err);
+  res->accuracy_before = twf_accuracy_summarize_kept(&j->view, j->start->n_targets, res->pos_err_before,
+                                                     res->angle_err_before, res->excluded, j->opt.worst_poses, j->err);
   if (res->accuracy_before == NULL)
     return j->err ? j->err->status : TWF_ERR_NOMEM;
-  res->accuracy_after = twf_accuracy_summarize_kept(&j->view, j->start->n_targets, res->residual_after,
-                                                    res->rot_after, res->excluded, j->opt.worst_poses, j->err);
+  res->accuracy_after = twf_accuracy_summarize_kept(&j->view, j->start->n_targets, res->pos_err_after,
+                                                    res->angle_err_after, res->excluded, j->opt.worst_poses, j->err);
   if (res->accuracy_after == NULL)
     return j->err ? j->err->status : TWF_ERR_NOMEM;
   res->fit_screened = res->accuracy_after->position[TWF_SET_FIT];
   for (set = 0; set < 2; set++) {
     unsigned char want = set == TWF_SET_FIT ? TWF_EXCLUDED_DROPPED : TWF_EXCLUDED_FLAGGED;
-    if ((st = stats_where(j, res->residual_before, set, want, &res->excluded_before[set])) != TWF_OK ||
-        (st = stats_where(j, res->residual_after, set, want, &res->excluded_after[set])) != TWF_OK)
+    if ((st = stats_where(j, res->pos_err_before, set, want, &res->excluded_before[set])) != TWF_OK ||
+        (st = stats_where(j, res->pos_err_after, set, want, &res->excluded_after[set])) != TWF_OK)
       return st;
   }
-  if ((st = stats_where(j, res->residual_before, TWF_SET_CHECK, 0xff, &res->check_all_before)) != TWF_OK ||
-      (st = stats_where(j, res->residual_after, TWF_SET_CHECK, 0xff, &res->check_all_after)) != TWF_OK)
+  if ((st = stats_where(j, res->pos_err_before, TWF_SET_CHECK, 0xff, &res->check_all_before)) != TWF_OK ||
+      (st = stats_where(j, res->pos_err_after, TWF_SET_CHECK, 0xff, &res->check_all_after)) != TWF_OK)
     return st;
   verdict(res);
   return TWF_OK;

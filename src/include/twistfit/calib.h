@@ -22,7 +22,7 @@ extern "C" {
 /* Calibration: Levenberg-Marquardt fit of the error model             */
 /* ------------------------------------------------------------------ */
 
-/* Outlier screen after a first fit (calibration-model.md "Outliers"). */
+/* Outlier screen after a first fit (DEVELOPERS.md, "The maths"). */
 typedef enum twf_robust {
   TWF_ROBUST_OFF = 0,  /* every measurement keeps full weight */
   TWF_ROBUST_DROP,     /* measurements beyond the threshold are dropped (listed) */

@@ -15,8 +15,7 @@ extern "C" {
 #endif
 
 /* ------------------------------------------------------------------ */
-/* Link parameters (calibration-model.md, "Reporting the as-built      */
-/* geometry: link parameters, not lines at zero")                      */
+/* Link parameters (DEVELOPERS.md, "The maths")                      */
 /* ------------------------------------------------------------------ */
 
 /* The joint lines are taken at logged zero (q = 0, theta = offset), line 0

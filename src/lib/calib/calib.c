@@ -1,4 +1,4 @@
-/* calib.c: the calibration job (calibration-model.md). twf_calibrate is a
+/* calib.c: the calibration job (DEVELOPERS.md, "The maths"). twf_calibrate is a
  * driver that runs named stages in order on one job: the sets and joint
  * ranges, the registration and its refinement, the problem at the
  * registered model, the structural redundancy and the redundancy on the

@@ -1,6 +1,6 @@
 /* errmodel.c: the calibration parameters of a PoE model and the exact
  * first-order effect of each on one measurement (the adjoint error model,
- * calibration-model.md "Error parameters"; Okamura and Park 1996, He, Zhao,
+ * DEVELOPERS.md, "The maths"; Okamura and Park 1996, He, Zhao,
  * Yang and Yang 2010, Li, Wu, Loewe and others 2016).
  *
  * Each parameter is a small perturbation of the current model; its effect
@@ -191,7 +191,7 @@ double twf_errmodel_param_scale(const twf_errmodel *em, size_t j)
 
 /* u1: the component of base x perpendicular to the joint direction (base y
  * when x is within 30 degrees of it), u2 = d x u1: reproducible names and
- * values for the axis errors (calibration-model.md). */
+ * values for the axis errors (DEVELOPERS.md, "The maths"). */
 void twf_errmodel_update(twf_errmodel *em, const twf_model *m)
 {
   size_t i;

@@ -1,4 +1,4 @@
-/* lsq.c: the least-squares machinery (calibration-model.md, "Solver").
+/* lsq.c: the least-squares machinery (DEVELOPERS.md, "The maths").
  *
  * The normal matrix J^T W J and gradient J^T W r are accumulated pose by
  * pose (twf_errmodel_eval_pose once, then every target of that pose):

@@ -1,4 +1,4 @@
-/* robust.c: the gross-error screen (calibration-model.md "Outliers"). The
+/* robust.c: the gross-error screen (DEVELOPERS.md, "The maths"). The
  * scale is 1.4826 MAD of the weighted residual components (the factor makes
  * it the standard deviation for normal noise), so that a few gross errors
  * cannot inflate it as they inflate the RMS. */

@@ -1,6 +1,5 @@
 /* design.c: Jacobian rows of a pose before it is measured, and the
- * structural redundancy walk on a rich synthetic set (calibration-model.md
- * "Redundant and weak parameters"), built on the error model and the
+ * structural redundancy walk on a rich synthetic set (DEVELOPERS.md, "The maths"), built on the error model and the
  * identifiability routines the calibration uses. */
 #include "design.h"
 #include "calib/ident.h"

@@ -1,6 +1,6 @@
 /* asbuilt.c: report the as-built geometry in a base frame fixed by a
  * stated datum rule, not by the calibration's choice of redundant
- * parameters (calibration-model.md, "Reporting the as-built geometry").
+ * parameters (DEVELOPERS.md, "The maths").
  *
  * Everything here works on the joint lines at logged zero (q = 0, so
  * theta = offset): those, not the stored twists and offsets, are what the

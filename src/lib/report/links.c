@@ -1,6 +1,5 @@
 /* links.c: intrinsic link parameters of a model and the model -> DH /
- * modified DH conversion (calibration-model.md, "Reporting the as-built
- * geometry: link parameters, not lines at zero").
+ * modified DH conversion (DEVELOPERS.md, "The maths").
  *
  * The joint lines are taken at logged zero, where the data determine them
  * whichever redundant parameters a calibration fixed. Frames are built

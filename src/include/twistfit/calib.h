@@ -55,6 +55,8 @@ typedef struct twf_calib_options {
   int accept_large;        /* 0 (default): refuse results beyond any calibration (noise over
                               1 mm, a joint line over 5 deg or 50 mm from the model's) */
   size_t worst_poses;      /* poses listed per set in the accuracy summaries (default 5) */
+  int threads;             /* threads of the passes over the measurements (0, the default:
+                              one per online core); every count gives the same bits */
 } twf_calib_options;
 
 /* Where the sigma of the covariance came from. */

@@ -156,7 +156,8 @@ static twf_status check_options(const twf_calib_options *o, twf_error *err)
 {
   if (!(o->robust_threshold > 0) || !(o->check_fraction >= 0 && o->check_fraction < 1) ||
       o->max_iterations < 1 || !(o->redundancy_tol > 0 && o->redundancy_tol < 1) ||
-      !(o->sigma_length >= 0) || !(o->sigma_angle >= 0) || !(o->weak_ratio > 0) || o->groups == 0)
+      !(o->sigma_length >= 0) || !(o->sigma_angle >= 0) || !(o->weak_ratio > 0) || o->groups == 0 ||
+      o->threads < 0)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
                          "use positive thresholds, a held-out fraction in [0, 1) and at least one iteration",
                          "invalid calibration options");
@@ -339,6 +340,7 @@ static twf_status stage_problem(job *j)
   if (st != TWF_OK)
     return st;
   j->pr.base = j->res->base_before;
+  j->pr.n_threads = twf_lsq_threads(j->opt.threads);
   p = j->p = j->pr.p;
   j->res->n_params = p;
   j->res->params = calloc(p ? p : 1, sizeof *j->res->params);

@@ -9,6 +9,7 @@
  * measured at that pose reuses them, so assembling a campaign is linear in
  * the number of measurements. */
 #include "internal.h"
+#include "errmodel_internal.h"
 
 #include <stdlib.h>
 
@@ -239,9 +240,32 @@ static void axis_basis_twist(const twf_errmodel *em, const twf_model *m,
   }
 }
 
-void twf_errmodel_eval_pose(twf_errmodel *em, const twf_model *m,
-                            const twf_pose *base_in_tracker, const double *q,
-                            twf_pose *flange_in_tracker)
+/* twf_se3_adjoint_apply, inline: the same operations in the same order
+ * (so the same bits) without a call through the library's symbol table
+ * for each of the pose's seventy-odd twists. */
+static inline void ad_apply(const twf_pose *T, const double S[6], double out[6])
+{
+  const double (*R)[3] = T->R;
+  double rw0 = R[0][0] * S[0] + R[0][1] * S[1] + R[0][2] * S[2];
+  double rw1 = R[1][0] * S[0] + R[1][1] * S[1] + R[1][2] * S[2];
+  double rw2 = R[2][0] * S[0] + R[2][1] * S[1] + R[2][2] * S[2];
+  double rv0 = R[0][0] * S[3] + R[0][1] * S[4] + R[0][2] * S[5];
+  double rv1 = R[1][0] * S[3] + R[1][1] * S[4] + R[1][2] * S[5];
+  double rv2 = R[2][0] * S[3] + R[2][1] * S[4] + R[2][2] * S[5];
+  const double *p = T->p;
+  double px = p[1] * rw2 - p[2] * rw1;
+  double py = p[2] * rw0 - p[0] * rw2;
+  double pz = p[0] * rw1 - p[1] * rw0;
+  out[0] = rw0;
+  out[1] = rw1;
+  out[2] = rw2;
+  out[3] = px + rv0;
+  out[4] = py + rv1;
+  out[5] = pz + rv2;
+}
+
+void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf_pose *base_in_tracker,
+                                 const double *q, const unsigned char *need)
 {
   size_t i, j, n = m->n_joints;
   em->prefix[0] = *base_in_tracker;
@@ -253,28 +277,28 @@ void twf_errmodel_eval_pose(twf_errmodel *em, const twf_model *m,
   }
   twf_pose_mul(&em->prefix[n], &m->home, &em->flange);
   em->q = q;
-  if (flange_in_tracker != NULL)
-    *flange_in_tracker = em->flange;
 
   for (j = 0; j < em->n_params; j++) {
     const twf_param *p = &em->params[j];
     double *t = em->twists + 6 * j;
     double e[6] = { 0, 0, 0, 0, 0, 0 }, a[6], b[6];
     int c;
+    if (need != NULL && !need[j])
+      continue;
     switch (p->group) {
     case TWF_GROUP_BASE:
       e[p->component] = 1.0;
-      twf_se3_adjoint_apply(base_in_tracker, e, t);
+      ad_apply(base_in_tracker, e, t);
       break;
     case TWF_GROUP_HOME:
       e[p->component] = 1.0;
-      twf_se3_adjoint_apply(&em->flange, e, t);
+      ad_apply(&em->flange, e, t);
       break;
     case TWF_GROUP_OFFSETS:
-      twf_se3_adjoint_apply(&em->prefix[p->joint], m->joints[p->joint].twist, t);
+      ad_apply(&em->prefix[p->joint], m->joints[p->joint].twist, t);
       break;
     case TWF_GROUP_SCALE:
-      twf_se3_adjoint_apply(&em->prefix[p->joint], m->joints[p->joint].twist, t);
+      ad_apply(&em->prefix[p->joint], m->joints[p->joint].twist, t);
       for (c = 0; c < 6; c++)
         t[c] *= q[p->joint];
       break;
@@ -282,8 +306,8 @@ void twf_errmodel_eval_pose(twf_errmodel *em, const twf_model *m,
     case TWF_GROUP_TILTS:
       /* Ad_{B P_(i-1)} (I - Ad_{exp(S_i theta_i)}) e = Ad_{B P_(i-1)} e - Ad_{B P_i} e */
       axis_basis_twist(em, m, p, e);
-      twf_se3_adjoint_apply(&em->prefix[p->joint], e, a);
-      twf_se3_adjoint_apply(&em->prefix[p->joint + 1], e, b);
+      ad_apply(&em->prefix[p->joint], e, a);
+      ad_apply(&em->prefix[p->joint + 1], e, b);
       for (c = 0; c < 6; c++)
         t[c] = a[c] - b[c];
       break;
@@ -292,6 +316,15 @@ void twf_errmodel_eval_pose(twf_errmodel *em, const twf_model *m,
       break; /* targets move the point only: handled in twf_errmodel_point */
     }
   }
+}
+
+void twf_errmodel_eval_pose(twf_errmodel *em, const twf_model *m,
+                            const twf_pose *base_in_tracker, const double *q,
+                            twf_pose *flange_in_tracker)
+{
+  twf_errmodel_eval_pose_some(em, m, base_in_tracker, q, NULL);
+  if (flange_in_tracker != NULL)
+    *flange_in_tracker = em->flange;
 }
 
 void twf_errmodel_point(const twf_errmodel *em, const twf_model *m,
@@ -319,11 +352,13 @@ void twf_errmodel_point(const twf_errmodel *em, const twf_model *m,
   }
 }
 
-void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
-                              double r[3], double *rows)
+const double *twf_errmodel_twists(const twf_errmodel *em) { return em->twists; }
+const twf_pose *twf_errmodel_flange(const twf_errmodel *em) { return &em->flange; }
+
+void twf_errmodel_orientation_jinv(const twf_errmodel *em, const double R_meas[3][3], double r[3],
+                                   double Jinv[3][3])
 {
-  double E[3][3], Jinv[3][3], H[3][3], H2[3][3], theta, coef;
-  size_t j, p = em->n_params;
+  double E[3][3], H[3][3], H2[3][3], theta, coef;
   int a, b, k;
   for (a = 0; a < 3; a++)
     for (b = 0; b < 3; b++) {
@@ -332,7 +367,7 @@ void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
         E[a][b] += R_meas[a][k] * em->flange.R[b][k];
     }
   twf_so3_log(E, r);
-  if (rows == NULL)
+  if (Jinv == NULL)
     return;
   /* r(a) = log(E exp(-hat a)) ~ r - Jr^-1(r) a, with the inverse right
    * Jacobian Jr^-1(phi) = I + hat(phi)/2 + (1/t^2 - (1 + cos t)/(2 t sin t)) hat(phi)^2. */
@@ -349,6 +384,17 @@ void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
   for (a = 0; a < 3; a++)
     for (b = 0; b < 3; b++)
       Jinv[a][b] = (a == b ? 1.0 : 0.0) + 0.5 * H[a][b] + coef * H2[a][b];
+}
+
+void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
+                              double r[3], double *rows)
+{
+  double Jinv[3][3];
+  size_t j, p = em->n_params;
+  int a;
+  twf_errmodel_orientation_jinv(em, R_meas, r, rows ? Jinv : NULL);
+  if (rows == NULL)
+    return;
   for (j = 0; j < p; j++) {
     const double *t = em->twists + 6 * j;
     if (em->params[j].group == TWF_GROUP_TARGETS) {

@@ -193,6 +193,76 @@ void twf_ident_qr_add_row(double *R, size_t p, double *row)
   }
 }
 
+/* x . y over n entries with two partial sums (even and odd entries),
+ * added at the end, and y -= d x: written as two-lane vector loops where
+ * GCC's vector extension is there, as the same scalar operations
+ * elsewhere (the same bits either way). */
+#if defined(__GNUC__)
+typedef double v2d __attribute__((vector_size(16)));
+static inline v2d ld2(const double *p) { v2d v; memcpy(&v, p, sizeof v); return v; }
+static inline void st2(double *p, v2d v) { memcpy(p, &v, sizeof v); }
+#endif
+
+static double dot2(const double *x, const double *y, size_t n)
+{
+  double d0 = 0.0, d1 = 0.0;
+  size_t i = 0;
+#if defined(__GNUC__)
+  v2d acc = { 0.0, 0.0 };
+  for (; i + 2 <= n; i += 2)
+    acc += ld2(x + i) * ld2(y + i);
+  d0 = acc[0];
+  d1 = acc[1];
+#else
+  for (; i + 2 <= n; i += 2) {
+    d0 += x[i] * y[i];
+    d1 += x[i + 1] * y[i + 1];
+  }
+#endif
+  if (i < n)
+    d0 += x[i] * y[i];
+  return d0 + d1;
+}
+
+static void axpy2(double d, const double *x, double *y, size_t n)
+{
+  size_t i = 0;
+#if defined(__GNUC__)
+  for (; i + 2 <= n; i += 2)
+    st2(y + i, ld2(y + i) - d * ld2(x + i));
+#endif
+  for (; i < n; i++)
+    y[i] -= d * x[i];
+}
+
+void twf_ident_qr_add_block(double *R, size_t p, double *B, size_t m, int tri)
+{
+  size_t k, j, i;
+  for (k = 0; k < p; k++) {
+    size_t mk = tri ? (k + 1 < m ? k + 1 : m) : m;
+    double *x = B + k * m, alpha = R[k * p + k], sigma, norm, beta, tau, scale;
+    sigma = dot2(x, x, mk);
+    if (sigma == 0.0)
+      continue;
+    /* H = I - tau v v^T with v = (1, x / (alpha - beta)) maps (alpha, x)
+     * onto (beta, 0); beta takes the sign opposite to alpha so that
+     * alpha - beta does not cancel (LAPACK's dlarfg) */
+    norm = sqrt(alpha * alpha + sigma);
+    beta = alpha > 0.0 ? -norm : norm;
+    tau = (beta - alpha) / beta;
+    scale = 1.0 / (alpha - beta);
+    for (i = 0; i < mk; i++)
+      x[i] *= scale;
+    R[k * p + k] = beta;
+    for (j = k + 1; j < p; j++) {
+      double *y = B + j * m, d = R[k * p + j] + dot2(x, y, mk);
+      d *= tau;
+      R[k * p + j] -= d;
+      axpy2(d, x, y, mk);
+    }
+  }
+}
+
 int twf_ident_walk_r(const double *R, size_t p, const double *scale, const size_t *order,
                      size_t n_order, double tol, unsigned char *keep, double *rel_out)
 {

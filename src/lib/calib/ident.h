@@ -42,6 +42,17 @@ size_t twf_ident_singular_values(const double *A, size_t p,
  * margins at rounding level (1e-14) rather than at its square root. */
 void twf_ident_qr_add_row(double *R, size_t p, double *row);
 
+/* Stream a block of m rows into the upper-triangular p x p factor R
+ * (row-major) so that R^T R gains B^T B: one Householder reflection per
+ * column over the stacked [R; B] (Golub and Van Loan, "Matrix
+ * Computations", 5.2, the structured update of a triangular factor). B is
+ * column-major (column j at B[j m]) and is destroyed. tri: B is itself
+ * upper triangular (column j has rows 0..j only, as a factor of another
+ * block of rows), which the reflections keep. Same R^T R as m calls of
+ * twf_ident_qr_add_row, at two thirds of the work and in contiguous
+ * loops; the diagonal of R may come out negative (R^T R does not care). */
+void twf_ident_qr_add_block(double *R, size_t p, double *B, size_t m, int tri);
+
 /* The walk of twf_ident_walk on the columns of R D (D = diag(scale), NULL
  * for none): modified Gram-Schmidt with one re-orthogonalisation. Same
  * outputs. Returns 0, or -1 when out of memory. */

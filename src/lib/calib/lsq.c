@@ -6,11 +6,15 @@
  * matrices are the only thing that grows with the parameter count. */
 #include "lsq.h"
 #include "ident.h"
+#include "errmodel_internal.h"
 
 #include <gsl/gsl_linalg.h>
 #include <gsl/gsl_matrix.h>
+#include <pthread.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <time.h>
+#include <unistd.h>
 
 /* ------------------------------------------------------------ stop reasons */
 
@@ -35,6 +39,25 @@ int twf_stop_converged(twf_stop s)
 
 /* ------------------------------------------------------------ the problem */
 
+/* Per-thread workspace: an error model of its own (its evaluated pose is
+ * state) and the blocks of one chunk. Sized once for p columns. */
+struct twf_lsq_ws {
+  twf_errmodel *em;     /* thread 0: the problem's own */
+  twf_pose *prefix;     /* n_joints + 1 */
+  double *X, *Y;        /* row batches (3 NB x p; X at least p x p) */
+  double *B;            /* factor block, column-major, max_chunk_rows x p */
+};
+
+/* A column of a pass: its parameter and, for a target's, which. */
+typedef struct lsq_col {
+  size_t j;
+  long target;  /* -1: not a target parameter */
+  int comp;
+} lsq_col;
+
+static void ws_free(twf_lsq_ws *w, int own_em);
+static int pass_resources(twf_lsq_problem *pr);
+
 /* Copy the geometry of src into dst of the same shape (no metadata). */
 void twf_lsq_model_assign(twf_model *dst, const twf_model *src)
 {
@@ -45,6 +68,18 @@ void twf_lsq_model_assign(twf_model *dst, const twf_model *src)
 
 void twf_lsq_free(twf_lsq_problem *pr)
 {
+  int t;
+  for (t = 0; pr->ws != NULL && t < pr->n_ws; t++)
+    ws_free(&pr->ws[t], t != 0);
+  free(pr->ws);
+  free(pr->slot1);
+  free(pr->acc);
+  free(pr->coldesc);
+  free(pr->cacheA);
+  free(pr->cacheg);
+  free(pr->cache_cols);
+  twf_model_free(pr->snap);
+  free(pr->need);
   twf_model_free(pr->m);
   twf_model_free(pr->trial);
   twf_errmodel_free(pr->em);
@@ -65,6 +100,8 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
   size_t i, n_poses = c->n_poses;
   memset(pr, 0, sizeof *pr);
   pr->c = c;
+  pr->groups = groups;
+  pr->n_threads = 1;
   pr->n_joints = m->n_joints;
   pr->use = use;
   pr->m = twf_model_copy(m);
@@ -108,10 +145,23 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
   }
   pr->inv_sigma_rot = 1.0 / (sigma_angle > 0 ? sigma_angle : sigma_length / twf_model_reach(m));
   pr->sigma_len = sigma_length;
+  if (pass_resources(pr) != 0)
+    goto nomem;
   return TWF_OK;
 nomem:
   twf_lsq_free(pr);
   return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+}
+
+int twf_lsq_threads(int n)
+{
+  long cores;
+  if (n > 0)
+    return n < TWF_LSQ_THREADS_MAX ? n : TWF_LSQ_THREADS_MAX;
+  cores = sysconf(_SC_NPROCESSORS_ONLN);
+  if (cores < 1)
+    return 1;
+  return cores < TWF_LSQ_THREADS_MAX ? (int)cores : TWF_LSQ_THREADS_MAX;
 }
 
 int twf_lsq_active(const twf_lsq_problem *pr, size_t i)
@@ -119,146 +169,606 @@ int twf_lsq_active(const twf_lsq_problem *pr, size_t i)
   return pr->use[i] && pr->weight[i] > 0.0;
 }
 
-/* Visit every weighted 3-row block of the Jacobian over the active
- * measurements at the working model: pose by pose (one evaluation of the
- * prefixes and parameter twists), then each target of the pose, its
- * position rows and, for a 6-D row, its orientation rows. visit receives
- * the 3 x p rows (derivative of the prediction, so r ~ r0 - J delta), the
- * residual and the weight (robust weight / sigma^2). Returns the cost
- * 0.5 r^T W r. */
-typedef void (*row_visitor)(twf_lsq_problem *pr, void *ctx, const double *rows, const double r[3], double w);
+/* ------------------------------------------------------------ chunked passes */
 
-static double visit_rows(twf_lsq_problem *pr, row_visitor visit, void *ctx)
+/* Every pass over the measurements (the normal matrix, the factor, the
+ * cost) cuts the poses into chunks of TWF_LSQ_CHUNK_POSES, computes each
+ * chunk on its own from zero, and adds (or merges) the chunk results in
+ * chunk order. The chunks do not depend on the number of threads, nor does
+ * the order of the reduction, so every thread count gives the same bits. */
+#define TWF_LSQ_CHUNK_POSES 64
+/* Chunks computed ahead of the reduction, per thread. */
+#define SLOTS_PER_THREAD 4
+/* Row blocks per batch of the normal matrix's kernel. */
+#define NB 8
+
+
+static void ws_free(twf_lsq_ws *w, int own_em)
 {
+  if (own_em)
+    twf_errmodel_free(w->em);
+  free(w->prefix);
+  free(w->X);
+  free(w->Y);
+  free(w->B);
+  memset(w, 0, sizeof *w);
+}
+
+static int ws_alloc(twf_lsq_problem *pr, twf_lsq_ws *w, int thread)
+{
+  size_t p = pr->p ? pr->p : 1, nx = 3 * NB * ((p + 3) & ~(size_t)3);
+  memset(w, 0, sizeof *w);
+  w->em = thread == 0 ? pr->em : twf_errmodel_alloc(pr->m, pr->groups, NULL);
+  w->prefix = calloc(pr->n_joints + 1, sizeof *w->prefix);
+  w->X = calloc(nx > p * p ? nx : p * p, sizeof *w->X); /* padding stays zero */
+  w->Y = calloc(nx, sizeof *w->Y);
+  w->B = calloc((pr->max_chunk_rows ? pr->max_chunk_rows : 1) * p, sizeof *w->B);
+  if (w->em == NULL || !w->prefix || !w->X || !w->Y || !w->B) {
+    ws_free(w, thread != 0);
+    return -1;
+  }
+  return 0;
+}
+
+/* What every pass needs, made with the problem so that a pass cannot
+ * fail: the first thread's workspace, one slot, the reduction. */
+static int pass_resources(twf_lsq_problem *pr)
+{
+  size_t p = pr->p ? pr->p : 1, pose, rows, slot;
   const twf_campaign *c = pr->c;
-  size_t pose, t;
-  double cost = 0.0;
-  for (pose = 0; pose < c->n_poses; pose++) {
-    int any = 0;
-    for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++)
-      any |= twf_lsq_active(pr, pr->pose_meas[t]);
-    if (!any)
+  /* rows of the largest chunk (3 per point, 6 per 6-D measurement) */
+  for (pose = 0; pose < c->n_poses; pose += TWF_LSQ_CHUNK_POSES) {
+    size_t end = pose + TWF_LSQ_CHUNK_POSES < c->n_poses ? pose + TWF_LSQ_CHUNK_POSES : c->n_poses, t;
+    rows = 0;
+    for (t = pr->pose_start[pose]; t < pr->pose_start[end]; t++)
+      rows += c->meas[pr->pose_meas[t]].has_orientation ? 6 : 3;
+    if (rows > pr->max_chunk_rows)
+      pr->max_chunk_rows = rows;
+  }
+  {
+    size_t ld = (p + 3) & ~(size_t)3;
+    slot = ld * ld + ld + 1;
+  }
+  pr->ws = calloc(TWF_LSQ_THREADS_MAX, sizeof *pr->ws);
+  pr->slot1 = calloc(slot, sizeof *pr->slot1);
+  pr->acc = calloc(slot, sizeof *pr->acc);
+  pr->coldesc = calloc(p, sizeof(lsq_col));
+  pr->cacheA = calloc(p * p, sizeof *pr->cacheA);
+  pr->cacheg = calloc(p, sizeof *pr->cacheg);
+  pr->cache_cols = calloc(p, sizeof *pr->cache_cols);
+  pr->snap = twf_model_copy(pr->m);
+  pr->need = calloc(p, 1);
+  if (!pr->ws || !pr->slot1 || !pr->acc || !pr->coldesc || !pr->need || !pr->cacheA || !pr->cacheg || !pr->cache_cols || !pr->snap || ws_alloc(pr, &pr->ws[0], 0) != 0)
+    return -1;
+  pr->n_ws = 1;
+  return 0;
+}
+
+/* Workspaces for up to n threads; returns how many exist (at least 1:
+ * the first is made with the problem). A thread count that cannot be served
+ * falls back to fewer threads: the results do not depend on it. */
+static int ws_ensure(twf_lsq_problem *pr, int n)
+{
+  if (n < 1)
+    n = 1;
+  if (n > TWF_LSQ_THREADS_MAX)
+    n = TWF_LSQ_THREADS_MAX;
+  while (pr->n_ws < n) {
+    if (ws_alloc(pr, &pr->ws[pr->n_ws], pr->n_ws) != 0)
+      break;
+    pr->n_ws++;
+  }
+  /* the threads' error models follow the working model's joints */
+  {
+    int t;
+    for (t = 1; t < pr->n_ws; t++)
+      twf_errmodel_update(pr->ws[t].em, pr->m);
+  }
+  return pr->n_ws;
+}
+
+typedef struct pass pass;
+struct pass {
+  twf_lsq_problem *pr;
+  size_t n_chunks, slot_size;
+  /* compute chunk c from zero into slot (slot_size doubles) */
+  void (*compute)(pass *ps, twf_lsq_ws *ws, size_t c, double *slot);
+  /* fold chunk c's slot into the pass result (called in chunk order) */
+  void (*reduce)(pass *ps, size_t c, double *slot);
+  /* the pass's own data */
+  const size_t *cols;
+  size_t nc, ld;        /* columns, and nc padded to a multiple of 4 */
+  const lsq_col *cd;    /* the columns' descriptions */
+  const unsigned char *need; /* p: the parameters among the columns */
+  double *acc;          /* the reduction */
+  const twf_model *m;   /* cost pass */
+  const twf_pose *B;
+  /* scheduling */
+  pthread_mutex_t mu;
+  pthread_cond_t cv;
+  size_t next_claim, next_reduce, n_slots;
+  size_t *slot_chunk;   /* chunk held by a slot, SIZE_MAX when free */
+  unsigned char *slot_ready;
+  double *slots;
+};
+
+typedef struct worker {
+  pass *ps;
+  twf_lsq_ws *ws;
+} worker;
+
+/* Claim chunks, compute them, reduce what is ready in chunk order. */
+static void *pass_worker(void *arg)
+{
+  worker *wk = arg;
+  pass *ps = wk->ps;
+  pthread_mutex_lock(&ps->mu);
+  for (;;) {
+    size_t c, s;
+    while (ps->next_reduce < ps->n_chunks) {
+      s = ps->next_reduce % ps->n_slots;
+      if (!ps->slot_ready[s] || ps->slot_chunk[s] != ps->next_reduce)
+        break;
+      ps->reduce(ps, ps->next_reduce, ps->slots + s * ps->slot_size);
+      ps->slot_ready[s] = 0;
+      ps->slot_chunk[s] = SIZE_MAX;
+      ps->next_reduce++;
+      pthread_cond_broadcast(&ps->cv);
+    }
+    if (ps->next_claim >= ps->n_chunks)
+      break;
+    if (ps->next_claim - ps->next_reduce >= ps->n_slots) {
+      pthread_cond_wait(&ps->cv, &ps->mu);
       continue;
-    twf_errmodel_eval_pose(pr->em, pr->m, &pr->base, c->q + pose * pr->n_joints, NULL);
+    }
+    c = ps->next_claim++;
+    s = c % ps->n_slots;
+    ps->slot_chunk[s] = c;
+    pthread_mutex_unlock(&ps->mu);
+    ps->compute(ps, wk->ws, c, ps->slots + s * ps->slot_size);
+    pthread_mutex_lock(&ps->mu);
+    ps->slot_ready[s] = 1;
+  }
+  pthread_mutex_unlock(&ps->mu);
+  return NULL;
+}
+
+/* One thread: chunk after chunk through the problem's own slot. */
+static void pass_serial(pass *ps)
+{
+  size_t c;
+  for (c = 0; c < ps->n_chunks; c++) {
+    ps->compute(ps, &ps->pr->ws[0], c, ps->pr->slot1);
+    ps->reduce(ps, c, ps->pr->slot1);
+  }
+}
+
+/* Run a pass on up to pr->n_threads threads (this one included). Memory
+ * short for the threads' workspaces means fewer threads, never another
+ * result. */
+static void pass_run(pass *ps)
+{
+  twf_lsq_problem *pr = ps->pr;
+  int n_threads = pr->n_threads > 1 ? pr->n_threads : 1, t, started = 1;
+  pthread_t tid[TWF_LSQ_THREADS_MAX];
+  worker wk[TWF_LSQ_THREADS_MAX];
+  size_t s;
+  if (n_threads > TWF_LSQ_THREADS_MAX)
+    n_threads = TWF_LSQ_THREADS_MAX;
+  /* a few chunks per thread at least, or threads cost more than they save */
+  if ((size_t)n_threads > ps->n_chunks / 2)
+    n_threads = ps->n_chunks / 2 > 1 ? (int)(ps->n_chunks / 2) : 1;
+  n_threads = ws_ensure(pr, n_threads);
+  if (n_threads == 1) {
+    pass_serial(ps);
+    return;
+  }
+  ps->n_slots = (size_t)n_threads * SLOTS_PER_THREAD;
+  ps->slots = malloc(ps->n_slots * (ps->slot_size ? ps->slot_size : 1) * sizeof *ps->slots);
+  ps->slot_chunk = malloc(ps->n_slots * sizeof *ps->slot_chunk);
+  ps->slot_ready = calloc(ps->n_slots, 1);
+  if (ps->slots == NULL || ps->slot_chunk == NULL || ps->slot_ready == NULL) {
+    free(ps->slots);
+    free(ps->slot_chunk);
+    free(ps->slot_ready);
+    pass_serial(ps);
+    return;
+  }
+  for (s = 0; s < ps->n_slots; s++)
+    ps->slot_chunk[s] = SIZE_MAX;
+  ps->next_claim = ps->next_reduce = 0;
+  pthread_mutex_init(&ps->mu, NULL);
+  pthread_cond_init(&ps->cv, NULL);
+  for (t = 0; t < n_threads; t++) {
+    wk[t].ps = ps;
+    wk[t].ws = &pr->ws[t];
+  }
+  for (t = 1; t < n_threads; t++) {
+    if (pthread_create(&tid[t], NULL, pass_worker, &wk[t]) != 0)
+      break;
+    started++;
+  }
+  pass_worker(&wk[0]);
+  for (t = 1; t < started; t++)
+    pthread_join(tid[t], NULL);
+  pthread_mutex_destroy(&ps->mu);
+  pthread_cond_destroy(&ps->cv);
+  free(ps->slots);
+  free(ps->slot_chunk);
+  free(ps->slot_ready);
+  ps->slots = NULL;
+}
+
+/* The columns of a pass (cols NULL: all p), described once. */
+static void pass_columns(pass *ps, const size_t *cols, size_t nc)
+{
+  lsq_col *cd = (lsq_col *)ps->pr->coldesc;
+  size_t a;
+  unsigned char *need = ps->pr->need;
+  ps->cols = cols;
+  ps->nc = nc;
+  ps->ld = (nc + 3) & ~(size_t)3;
+  memset(need, 0, ps->pr->p);
+  for (a = 0; a < nc; a++)
+    need[cols ? cols[a] : a] = 1;
+  ps->need = need;
+  for (a = 0; a < nc; a++) {
+    const twf_param *par = twf_errmodel_param(ps->pr->em, cols ? cols[a] : a);
+    cd[a].j = cols ? cols[a] : a;
+    cd[a].target = par->group == TWF_GROUP_TARGETS ? par->target : -1;
+    cd[a].comp = par->component;
+  }
+  ps->cd = cd;
+}
+
+static size_t pass_chunks(const twf_lsq_problem *pr)
+{
+  return (pr->c->n_poses + TWF_LSQ_CHUNK_POSES - 1) / TWF_LSQ_CHUNK_POSES;
+}
+
+/* 1 when some measurement of the pose enters the fit. */
+static int pose_active(const twf_lsq_problem *pr, size_t pose)
+{
+  size_t t;
+  for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++)
+    if (twf_lsq_active(pr, pr->pose_meas[t]))
+      return 1;
+  return 0;
+}
+
+/* ------------------------------------------------------------ the normal matrix */
+
+/* Row blocks of a chunk are batched NB at a time: each entry of the
+ * chunk's A is loaded once per batch and gains the batch's rank-3 updates
+ * one after the other, in the order of the measurements. That is the same
+ * sequence of floating-point operations as one update after another (so a
+ * campaign of one chunk gives the bits of a plain row-by-row loop), with
+ * a fraction of the loads and stores. */
+
+/* The weighted rows of one measurement's block over the pass's columns:
+ * c (3 x ld, ld = nc padded to a multiple of 4 with zeros) as
+ * twf_errmodel_point / twf_errmodel_orientation form them, wc = w c, and
+ * the residual. */
+typedef struct row_batch {
+  size_t n, ld;
+  double *c, *wc;  /* NB x 3 x ld */
+  double r[NB][3];
+} row_batch;
+
+#if defined(__GNUC__)
+/* Two lanes of the same scalar operations (GCC's vector extension):
+ * the bits of the scalar loop, two entries at a time. */
+typedef double v2d __attribute__((vector_size(16)));
+static inline v2d ld2(const double *p) { v2d v; memcpy(&v, p, sizeof v); return v; }
+static inline void st2(double *p, v2d v) { memcpy(p, &v, sizeof v); }
+#endif
+
+/* Rows a, a + 1 of A (stride ld), columns b .. b + w (w = 2 or 4), gain
+ * the batch's updates in order. */
+static void batch_tile(const row_batch *bt, size_t a, size_t b, size_t w, double *A)
+{
+  size_t ld = bt->ld, k;
+  double *A0 = A + a * ld + b, *A1 = A0 + ld;
+#if defined(__GNUC__)
+  if (w == 4) {
+    v2d s00 = ld2(A0), s01 = ld2(A0 + 2), s10 = ld2(A1), s11 = ld2(A1 + 2);
+    for (k = 0; k < bt->n; k++) {
+      const double *c = bt->c + 3 * k * ld + b, *wc = bt->wc + 3 * k * ld + a;
+      double u0 = wc[0], u1 = wc[ld], u2 = wc[2 * ld], v0 = wc[1], v1 = wc[ld + 1], v2 = wc[2 * ld + 1];
+      v2d c0l = ld2(c), c0h = ld2(c + 2), c1l = ld2(c + ld), c1h = ld2(c + ld + 2);
+      v2d c2l = ld2(c + 2 * ld), c2h = ld2(c + 2 * ld + 2);
+      s00 += u0 * c0l + u1 * c1l + u2 * c2l;
+      s01 += u0 * c0h + u1 * c1h + u2 * c2h;
+      s10 += v0 * c0l + v1 * c1l + v2 * c2l;
+      s11 += v0 * c0h + v1 * c1h + v2 * c2h;
+    }
+    st2(A0, s00); st2(A0 + 2, s01); st2(A1, s10); st2(A1 + 2, s11);
+    return;
+  }
+  {
+    v2d s00 = ld2(A0), s10 = ld2(A1);
+    for (k = 0; k < bt->n; k++) {
+      const double *c = bt->c + 3 * k * ld + b, *wc = bt->wc + 3 * k * ld + a;
+      v2d c0l = ld2(c), c1l = ld2(c + ld), c2l = ld2(c + 2 * ld);
+      s00 += wc[0] * c0l + wc[ld] * c1l + wc[2 * ld] * c2l;
+      s10 += wc[1] * c0l + wc[ld + 1] * c1l + wc[2 * ld + 1] * c2l;
+    }
+    st2(A0, s00); st2(A1, s10);
+  }
+#else
+  {
+    size_t i, e;
+    for (i = 0; i < 2; i++)
+      for (e = 0; e < w; e++) {
+        double *s = (i ? A1 : A0) + e;
+        for (k = 0; k < bt->n; k++) {
+          const double *c = bt->c + 3 * k * ld + b + e, *wc = bt->wc + 3 * k * ld + a + i;
+          *s += wc[0] * c[0] + wc[ld] * c[ld] + wc[2 * ld] * c[2 * ld];
+        }
+      }
+  }
+#endif
+}
+
+/* A (nc rows of stride ld, upper triangle) and g gain the batch's updates
+ * in order: entry by entry the operations of one update after another
+ * (the tiles also fill a few entries below the diagonal, unused). */
+static void batch_flush(row_batch *bt, size_t nc, double *A, double *g)
+{
+  size_t a, b, k, ld = bt->ld, n = bt->n;
+  for (a = 0; a < nc; a += 2) {
+    for (k = 0; k < n; k++) {
+      const double *wc = bt->wc + 3 * k * ld;
+      g[a] += wc[a] * bt->r[k][0] + wc[ld + a] * bt->r[k][1] + wc[2 * ld + a] * bt->r[k][2];
+      g[a + 1] += wc[a + 1] * bt->r[k][0] + wc[ld + a + 1] * bt->r[k][1] + wc[2 * ld + a + 1] * bt->r[k][2];
+    }
+    for (b = a; b + 4 <= ld; b += 4)
+      batch_tile(bt, a, b, 4, A);
+    if (b < ld)
+      batch_tile(bt, a, b, 2, A);
+  }
+  bt->n = 0;
+}
+
+/* Slot of the normal pass: A (ld x ld, upper triangle), g (ld), the cost. */
+static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
+{
+  twf_lsq_problem *pr = ps->pr;
+  const twf_campaign *c = pr->c;
+  const twf_model *m = pr->m;
+  const lsq_col *cd = ps->cd;
+  size_t nc = ps->nc, ld = ps->ld, pose0 = chunk * TWF_LSQ_CHUNK_POSES, pose1 = pose0 + TWF_LSQ_CHUNK_POSES;
+  size_t pose, a;
+  double *A = slot, *g = slot + ld * ld, *cost = g + ld;
+  row_batch bt;
+  if (pose1 > c->n_poses)
+    pose1 = c->n_poses;
+  memset(slot, 0, ps->slot_size * sizeof *slot);
+  bt.n = 0;
+  bt.ld = ld;
+  bt.c = ws->X;
+  bt.wc = ws->Y;
+  for (pose = pose0; pose < pose1; pose++) {
+    const double *tw;
+    const twf_pose *F;
+    size_t t;
+    if (!pose_active(pr, pose))
+      continue;
+    twf_errmodel_eval_pose_some(ws->em, m, &pr->base, c->q + pose * pr->n_joints, ps->need);
+    tw = twf_errmodel_twists(ws->em);
+    F = twf_errmodel_flange(ws->em);
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
       size_t i = pr->pose_meas[t];
       const twf_measurement *ms = &c->meas[i];
-      double y[3], r[3], w;
-      int pass, k;
+      double y[3], w, *c0, *w0, *r;
+      int k;
       if (!twf_lsq_active(pr, i))
         continue;
-      for (pass = 0; pass < (ms->has_orientation ? 2 : 1); pass++) {
-        if (pass == 0) {
-          twf_errmodel_point(pr->em, pr->m, ms->target, y, pr->rows);
+      /* position rows (twf_errmodel_point over the pass's columns) */
+      twf_pose_apply(F, m->targets[ms->target].offset, y);
+      c0 = bt.c + 3 * bt.n * ld;
+      w0 = bt.wc + 3 * bt.n * ld;
+      r = bt.r[bt.n];
+      for (k = 0; k < 3; k++)
+        r[k] = ms->pos[k] - y[k];
+      w = pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i];
+      *cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
+      for (a = 0; a < nc; a++) {
+        if (cd[a].target >= 0) {
           for (k = 0; k < 3; k++)
-            r[k] = ms->pos[k] - y[k];
-          w = pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i];
+            c0[k * ld + a] = cd[a].target == (long)ms->target ? F->R[k][cd[a].comp] : 0.0;
         } else {
-          double R[3][3];
-          twf_quat_to_rot(ms->quat, R);
-          twf_errmodel_orientation(pr->em, R, r, pr->rows);
-          w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
+          /* a spatial twist (w, v) moves the point y by w x y + v */
+          const double *e = tw + 6 * cd[a].j;
+          double wxy[3];
+          twf_v3_cross(e, y, wxy);
+          c0[a] = wxy[0] + e[3];
+          c0[ld + a] = wxy[1] + e[4];
+          c0[2 * ld + a] = wxy[2] + e[5];
         }
-        cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
-        visit(pr, ctx, pr->rows, r, w);
+      }
+      for (a = 0; a < 3 * ld; a++)
+        w0[a] = w * c0[a];
+      if (++bt.n == NB)
+        batch_flush(&bt, nc, A, g);
+      if (ms->has_orientation) {
+        double Rm[3][3], Ji[3][3];
+        c0 = bt.c + 3 * bt.n * ld;
+        w0 = bt.wc + 3 * bt.n * ld;
+        r = bt.r[bt.n];
+        twf_quat_to_rot(ms->quat, Rm);
+        twf_errmodel_orientation_jinv(ws->em, Rm, r, Ji);
+        w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
+        *cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
+        for (a = 0; a < nc; a++) {
+          const double *e = tw + 6 * cd[a].j;
+          if (cd[a].target >= 0) {
+            c0[a] = c0[ld + a] = c0[2 * ld + a] = 0.0;
+          } else {
+            for (k = 0; k < 3; k++)
+              c0[k * ld + a] = Ji[k][0] * e[0] + Ji[k][1] * e[1] + Ji[k][2] * e[2];
+          }
+        }
+        for (a = 0; a < 3 * ld; a++)
+          w0[a] = w * c0[a];
+        if (++bt.n == NB)
+          batch_flush(&bt, nc, A, g);
       }
     }
   }
-  return cost;
+  if (bt.n > 0)
+    batch_flush(&bt, nc, A, g);
 }
 
-/* Columns of the Jacobian a visitor works on (NULL: all p). */
-typedef struct col_ctx {
-  const size_t *cols;
-  size_t nc;
-  double *M;  /* nc x nc: the normal matrix, or the triangular factor */
-  double *g;  /* nc: the gradient (normal matrix only) */
-} col_ctx;
-
-/* rank-3 update of the upper triangle of A and of g */
-static void visit_normal(twf_lsq_problem *pr, void *vctx, const double *rows, const double r[3], double w)
+static void sum_reduce(pass *ps, size_t chunk, double *slot)
 {
-  col_ctx *x = vctx;
-  size_t p = pr->p, nc = x->nc, a, b;
-  double *c0 = pr->rows + 3 * p, *c1 = c0 + p, *c2 = c1 + p;
-  for (a = 0; a < nc; a++) {
-    size_t j = x->cols ? x->cols[a] : a;
-    c0[a] = rows[j];
-    c1[a] = rows[p + j];
-    c2[a] = rows[2 * p + j];
-  }
-  for (a = 0; a < nc; a++) {
-    double wa0 = w * c0[a], wa1 = w * c1[a], wa2 = w * c2[a];
-    double *Arow = x->M + a * nc;
-    x->g[a] += wa0 * r[0] + wa1 * r[1] + wa2 * r[2];
-    if (wa0 == 0.0 && wa1 == 0.0 && wa2 == 0.0)
-      continue;
-    for (b = a; b < nc; b++)
-      Arow[b] += wa0 * c0[b] + wa1 * c1[b] + wa2 * c2[b];
-  }
+  size_t k;
+  (void)chunk;
+  for (k = 0; k < ps->slot_size; k++)
+    ps->acc[k] += slot[k];
 }
 
-/* three Givens row updates of the factor */
-static void visit_factor(twf_lsq_problem *pr, void *vctx, const double *rows, const double r[3], double w)
+/* The normal matrix by chunks, and the cost. */
+static double normal_pass(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *A, double *g)
 {
-  col_ctx *x = vctx;
-  size_t p = pr->p, a;
-  double sw = sqrt(w), *row = pr->rows + 3 * p;
-  int k;
-  (void)r;
-  for (k = 0; k < 3; k++) {
-    for (a = 0; a < x->nc; a++)
-      row[a] = sw * rows[(size_t)k * p + (x->cols ? x->cols[a] : a)];
-    twf_ident_qr_add_row(x->M, x->nc, row);
-  }
-}
-
-/* The normal matrix A = J^T W J (nc x nc) and gradient g = J^T W r (nc)
- * over the columns cols[0..nc) (NULL: all p), and the cost. Restricting to
- * the kept columns in the solver saves the rank-3 updates of the fixed
- * ones, which dominate the cost of an iteration. */
-double twf_lsq_normal(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *A, double *g)
-{
-  col_ctx x;
-  double cost;
+  pass ps;
   size_t a, b;
-  x.cols = cols;
-  x.nc = cols ? nc : pr->p;
-  x.M = A;
-  x.g = g;
-  memset(A, 0, x.nc * x.nc * sizeof *A);
-  memset(g, 0, x.nc * sizeof *g);
-  cost = visit_rows(pr, visit_normal, &x);
-  for (a = 0; a < x.nc; a++)
-    for (b = 0; b < a; b++)
-      A[a * x.nc + b] = A[b * x.nc + a];
-  return cost;
+  memset(&ps, 0, sizeof ps);
+  ps.pr = pr;
+  pass_columns(&ps, cols, nc);
+  ps.slot_size = ps.ld * ps.ld + ps.ld + 1;
+  ps.n_chunks = pass_chunks(pr);
+  ps.compute = normal_compute;
+  ps.reduce = sum_reduce;
+  ps.acc = pr->acc;
+  memset(ps.acc, 0, ps.slot_size * sizeof *ps.acc);
+  pass_run(&ps);
+  for (a = 0; a < nc; a++) {
+    for (b = a; b < nc; b++)
+      A[a * nc + b] = A[b * nc + a] = ps.acc[a * ps.ld + b];
+    g[a] = ps.acc[ps.ld * ps.ld + a];
+  }
+  return ps.acc[ps.ld * ps.ld + ps.ld];
 }
 
-/* The triangular factor R of the weighted Jacobian (R^T R = J^T W J) over
- * the columns cols[0..nc) (R is nc x nc), streamed row by row with Givens
- * rotations: the redundancy walks run on it. */
-void twf_lsq_factor(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *R)
+/* ------------------------------------------------------------ the factor */
+
+/* The weighted rows of a chunk into the column-major block B (rows x nc),
+ * formed as twf_errmodel_point and twf_errmodel_orientation form them;
+ * returns the row count. */
+static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, double *B, size_t ldb)
 {
-  col_ctx x;
-  x.cols = cols;
-  x.nc = nc;
-  x.M = R;
-  x.g = NULL;
-  memset(R, 0, nc * nc * sizeof *R);
-  visit_rows(pr, visit_factor, &x);
+  twf_lsq_problem *pr = ps->pr;
+  const twf_campaign *c = pr->c;
+  const twf_model *m = pr->m;
+  size_t pose, n = 0, a;
+  for (pose = pose0; pose < pose1; pose++) {
+    const double *tw;
+    const twf_pose *F;
+    size_t t;
+    if (!pose_active(pr, pose))
+      continue;
+    twf_errmodel_eval_pose_some(ws->em, m, &pr->base, c->q + pose * pr->n_joints, ps->need);
+    tw = twf_errmodel_twists(ws->em);
+    F = twf_errmodel_flange(ws->em);
+    for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
+      size_t i = pr->pose_meas[t];
+      const twf_measurement *ms = &c->meas[i];
+      double y[3], sw;
+      int r;
+      if (!twf_lsq_active(pr, i))
+        continue;
+      twf_pose_apply(F, m->targets[ms->target].offset, y);
+      sw = sqrt(pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i]);
+      for (a = 0; a < ps->nc; a++) {
+        const lsq_col *cd = &ps->cd[a];
+        double *col = B + a * ldb + n;
+        if (cd->target >= 0) {
+          for (r = 0; r < 3; r++)
+            col[r] = sw * (cd->target == (long)ms->target ? F->R[r][cd->comp] : 0.0);
+        } else {
+          /* a spatial twist (w, v) moves the point y by w x y + v */
+          const double *e = tw + 6 * cd->j;
+          double wxy[3];
+          twf_v3_cross(e, y, wxy);
+          col[0] = sw * (wxy[0] + e[3]);
+          col[1] = sw * (wxy[1] + e[4]);
+          col[2] = sw * (wxy[2] + e[5]);
+        }
+      }
+      n += 3;
+      if (ms->has_orientation) {
+        double Rm[3][3], Ji[3][3], ro[3];
+        sw = sqrt(pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot);
+        twf_quat_to_rot(ms->quat, Rm);
+        twf_errmodel_orientation_jinv(ws->em, Rm, ro, Ji);
+        for (a = 0; a < ps->nc; a++) {
+          const double *e = tw + 6 * ps->cd[a].j;
+          double *col = B + a * ldb + n;
+          if (ps->cd[a].target >= 0) {
+            col[0] = col[1] = col[2] = 0.0;
+            continue;
+          }
+          for (r = 0; r < 3; r++)
+            col[r] = sw * (Ji[r][0] * e[0] + Ji[r][1] * e[1] + Ji[r][2] * e[2]);
+        }
+        n += 3;
+      }
+    }
+  }
+  return n;
 }
+
+/* Poses whose rows form one block of the factor: a block of a few dozen
+ * rows stays in the first-level cache through its reflections. */
+#define FACTOR_BLOCK_POSES 8
+
+/* Slot of the factor pass: the chunk's own factor, column-major (as a
+ * triangular block of rows for the merge). */
+static void factor_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
+{
+  size_t nc = ps->nc, ldb = ps->pr->max_chunk_rows, n, a, b;
+  size_t pose0 = chunk * TWF_LSQ_CHUNK_POSES, pose1 = pose0 + TWF_LSQ_CHUNK_POSES, p0;
+  double *Rc = ws->X; /* nc x nc, free during the factor pass */
+  if (pose1 > ps->pr->c->n_poses)
+    pose1 = ps->pr->c->n_poses;
+  memset(Rc, 0, nc * nc * sizeof *Rc);
+  for (p0 = pose0; p0 < pose1; p0 += FACTOR_BLOCK_POSES) {
+    n = factor_rows(ps, ws, p0, p0 + FACTOR_BLOCK_POSES < pose1 ? p0 + FACTOR_BLOCK_POSES : pose1, ws->B, ldb);
+    if (n == 0)
+      continue;
+    /* the block's columns are ldb apart: compact them to n rows */
+    if (n < ldb)
+      for (a = 1; a < nc; a++)
+        memmove(ws->B + a * n, ws->B + a * ldb, n * sizeof *ws->B);
+    twf_ident_qr_add_block(Rc, nc, ws->B, n, 0);
+  }
+  for (a = 0; a < nc; a++)
+    for (b = 0; b < nc; b++)
+      slot[b * nc + a] = Rc[a * nc + b];
+}
+
+static void factor_reduce(pass *ps, size_t chunk, double *slot)
+{
+  (void)chunk;
+  twf_ident_qr_add_block(ps->acc, ps->nc, slot, ps->nc, 1);
+}
+
+/* ------------------------------------------------------------ the cost */
 
 /* The cost only (no Jacobian), at model m and base B: the same rows, the
- * same order and the same residuals (twf_meas_residual) as visit_rows, so
- * that a trial's cost compares exactly with the linearisation's. */
-static double cost_at(const twf_lsq_problem *pr, const twf_model *m, const twf_pose *B,
-                      twf_pose *prefix_ws)
+ * same order and the same residuals (twf_meas_residual) as the normal
+ * pass's chunks, so that a trial's cost compares with the linearisation's. */
+static void cost_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
 {
+  const twf_lsq_problem *pr = ps->pr;
   const twf_campaign *c = pr->c;
-  size_t pose, t;
+  const twf_model *m = ps->m;
+  size_t pose0 = chunk * TWF_LSQ_CHUNK_POSES, pose1 = pose0 + TWF_LSQ_CHUNK_POSES, pose, t;
   double cost = 0.0;
-  for (pose = 0; pose < c->n_poses; pose++) {
+  if (pose1 > c->n_poses)
+    pose1 = c->n_poses;
+  for (pose = pose0; pose < pose1; pose++) {
     twf_pose F, T;
     int done = 0;
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
@@ -268,8 +778,8 @@ static double cost_at(const twf_lsq_problem *pr, const twf_model *m, const twf_p
       if (!twf_lsq_active(pr, i))
         continue;
       if (!done) {
-        twf_model_fk(m, c->q + pose * pr->n_joints, prefix_ws, &F);
-        twf_pose_mul(B, &F, &T);
+        twf_model_fk(m, c->q + pose * pr->n_joints, ws->prefix, &F);
+        twf_pose_mul(ps->B, &F, &T);
         done = 1;
       }
       w = pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i];
@@ -282,7 +792,90 @@ static double cost_at(const twf_lsq_problem *pr, const twf_model *m, const twf_p
       }
     }
   }
-  return cost;
+  slot[0] = cost;
+}
+
+static double cost_at(twf_lsq_problem *pr, const twf_model *m, const twf_pose *B)
+{
+  pass ps;
+  double acc = 0.0;
+  memset(&ps, 0, sizeof ps);
+  ps.pr = pr;
+  ps.m = m;
+  ps.B = B;
+  ps.slot_size = 1;
+  ps.n_chunks = pass_chunks(pr);
+  ps.compute = cost_compute;
+  ps.reduce = sum_reduce;
+  ps.acc = &acc;
+  pass_run(&ps);
+  return acc;
+}
+
+/* ------------------------------------------------------------ entry points */
+
+/* The normal matrix A = J^T W J (nc x nc) and gradient g = J^T W r (nc)
+ * over the columns cols[0..nc) (NULL: all p), and the cost. Restricting to
+ * the kept columns in the solver saves the updates of the fixed ones. */
+/* 1 when the last normal matrix was made over these columns at this
+ * model, base and weights: the covariance asks again for the one the
+ * solver ended on. */
+static int normal_cached(const twf_lsq_problem *pr, const size_t *cols, size_t nc)
+{
+  const twf_model *a = pr->m, *b = pr->snap;
+  if (!pr->cache_valid || pr->cache_nc != nc || pr->cache_weight_gen != pr->weight_gen ||
+      (cols == NULL) != (pr->cache_all != 0))
+    return 0;
+  if (cols != NULL && memcmp(cols, pr->cache_cols, nc * sizeof *cols) != 0)
+    return 0;
+  return memcmp(&pr->base, &pr->cache_base, sizeof pr->base) == 0 &&
+         memcmp(a->joints, b->joints, a->n_joints * sizeof *a->joints) == 0 &&
+         memcmp(a->targets, b->targets, a->n_targets * sizeof *a->targets) == 0 &&
+         memcmp(&a->home, &b->home, sizeof a->home) == 0;
+}
+
+double twf_lsq_normal(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *A, double *g)
+{
+  size_t n = cols ? nc : pr->p;
+  if (!normal_cached(pr, cols, n)) {
+    pr->cache_cost = normal_pass(pr, cols, n, pr->cacheA, pr->cacheg);
+    pr->cache_valid = 1;
+    pr->cache_nc = n;
+    pr->cache_all = cols == NULL;
+    if (cols != NULL)
+      memcpy(pr->cache_cols, cols, n * sizeof *cols);
+    pr->cache_base = pr->base;
+    pr->cache_weight_gen = pr->weight_gen;
+    twf_lsq_model_assign(pr->snap, pr->m);
+  }
+  memcpy(A, pr->cacheA, n * n * sizeof *A);
+  memcpy(g, pr->cacheg, n * sizeof *g);
+  return pr->cache_cost;
+}
+
+/* The triangular factor R of the weighted Jacobian (R^T R = J^T W J) over
+ * the columns cols[0..nc) (R is nc x nc): each chunk's rows are reduced
+ * by Householder reflections to a factor of their own, and the chunks'
+ * factors are merged in chunk order (a tall-skinny QR). Rows are then
+ * signed so that the diagonal is not negative. */
+void twf_lsq_factor(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *R)
+{
+  pass ps;
+  size_t a, b;
+  memset(&ps, 0, sizeof ps);
+  ps.pr = pr;
+  pass_columns(&ps, cols, nc);
+  ps.slot_size = nc * nc;
+  ps.n_chunks = pass_chunks(pr);
+  ps.compute = factor_compute;
+  ps.reduce = factor_reduce;
+  ps.acc = R;
+  memset(R, 0, nc * nc * sizeof *R);
+  pass_run(&ps);
+  for (a = 0; a < nc; a++)
+    if (R[a * nc + a] < 0.0)
+      for (b = a; b < nc; b++)
+        R[a * nc + b] = -R[a * nc + b];
 }
 
 twf_status twf_lsq_residuals(const twf_model *m, const twf_pose *B, const twf_campaign *c,
@@ -310,7 +903,6 @@ typedef struct lm_state {
   const twf_lsq_run *run;
   size_t nk, *idx;
   double *delta;       /* p: the trial step, zero outside the kept columns */
-  twf_pose *prefix;    /* n_joints + 1: workspace of cost_at */
   gsl_matrix *M;
   gsl_vector *rhs, *x;
   double cost, lambda, nu;
@@ -369,7 +961,7 @@ static double lm_trial(lm_state *s, double *step_max, double *pred)
   twf_lsq_model_assign(pr->trial, pr->m);
   s->trial_base = pr->base;
   twf_errmodel_fold(pr->em, s->delta, pr->trial, &s->trial_base);
-  return cost_at(pr, pr->trial, &s->trial_base, s->prefix);
+  return cost_at(pr, pr->trial, &s->trial_base);
 }
 
 static void lm_record(const lm_state *s, int iteration, double cost, int accepted)
@@ -474,14 +1066,13 @@ twf_status twf_lsq_solve(twf_lsq_problem *pr, const unsigned char *keep, const t
   s.run = run;
   s.idx = calloc(p ? p : 1, sizeof *s.idx);
   s.delta = calloc(p ? p : 1, sizeof *s.delta);
-  s.prefix = calloc(pr->n_joints + 1, sizeof *s.prefix);
   /* start close to Gauss-Newton: with Marquardt's diagonal scaling a
    * damping of 1e-3 held back the weak directions (the normal matrix's
    * condition number is the square of the Jacobian's) and the fit crept on
    * linearly; a rejected step raises the damping quickly (Nielsen) */
   s.lambda = 1e-9;
   s.nu = 2.0;
-  if (s.idx == NULL || s.delta == NULL || s.prefix == NULL)
+  if (s.idx == NULL || s.delta == NULL)
     goto nomem;
   for (a = 0; a < p; a++)
     if (keep[a])
@@ -514,7 +1105,6 @@ done:
   if (s.x) gsl_vector_free(s.x);
   free(s.idx);
   free(s.delta);
-  free(s.prefix);
   return st;
 }
 

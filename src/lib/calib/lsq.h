@@ -8,8 +8,14 @@
 
 #include "internal.h"
 
+/* Threads of one pass at most. */
+#define TWF_LSQ_THREADS_MAX 64
+
+typedef struct twf_lsq_ws twf_lsq_ws;
+
 typedef struct twf_lsq_problem {
   const twf_campaign *c;
+  unsigned groups;
   size_t n_joints;
   twf_model *m;            /* working model (owned) */
   twf_model *trial;        /* trial copy (owned) */
@@ -21,10 +27,28 @@ typedef struct twf_lsq_problem {
   double *inv_sigma;       /* per measurement, 1/m */
   double inv_sigma_rot;    /* 1/rad */
   double sigma_len;        /* typical sigma of a coordinate, m */
-  double *weight;          /* robust weight, 0 = dropped */
+  double *weight;          /* robust weight, 0 = dropped (a writer bumps weight_gen) */
   const unsigned char *use;/* 1: enters the fit */
   double *rows;            /* 3 x p rows, then 3 x p gathered columns */
   double *A, *g;           /* p x p, p */
+  /* The passes over the measurements (lsq.c, "chunked passes"): threads
+   * used (1 after init; any count gives the same bits), their workspaces,
+   * and what every pass needs, made with the problem. */
+  int n_threads;
+  twf_lsq_ws *ws;          /* TWF_LSQ_THREADS_MAX entries, n_ws made */
+  int n_ws;
+  size_t max_chunk_rows;   /* weighted rows of the largest chunk */
+  double *slot1, *acc;     /* one chunk's result, the reduction */
+  void *coldesc;           /* p: the columns of a pass */
+  unsigned char *need;     /* p: the parameters of a pass */
+  /* The last normal matrix, and what it was made at (twf_lsq_normal). A
+   * writer of weight[] bumps weight_gen. */
+  unsigned long weight_gen, cache_weight_gen;
+  int cache_valid, cache_all;
+  size_t cache_nc, *cache_cols;
+  double *cacheA, *cacheg, cache_cost;
+  twf_pose cache_base;
+  twf_model *snap;
 } twf_lsq_problem;
 
 /* Set up the problem at model m (copied) for the parameter groups, over
@@ -36,6 +60,10 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
                         unsigned groups, const unsigned char *use, double sigma_length,
                         double sigma_angle, twf_error *err);
 void twf_lsq_free(twf_lsq_problem *pr);
+
+/* The thread count of a request: n itself, or for 0 one per online core
+ * (at most TWF_LSQ_THREADS_MAX). */
+int twf_lsq_threads(int n);
 
 /* Copy the geometry of src into dst of the same shape (no metadata). */
 void twf_lsq_model_assign(twf_model *dst, const twf_model *src);
@@ -49,8 +77,9 @@ int twf_lsq_active(const twf_lsq_problem *pr, size_t i);
 double twf_lsq_normal(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *A, double *g);
 
 /* The triangular factor R of the weighted Jacobian (R^T R = J^T W J) over
- * the columns cols[0..nc) (R is nc x nc), streamed row by row with Givens
- * rotations: the redundancy walks run on it. */
+ * the columns cols[0..nc) (R is nc x nc, diagonal not negative), streamed
+ * by blocks of rows (Householder) and merged chunk by chunk: the
+ * redundancy walks run on it. */
 void twf_lsq_factor(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *R);
 
 /* Scale A (p x p) into length units: As = D A D. */

@@ -3,16 +3,14 @@
  * it the standard deviation for normal noise), so that a few gross errors
  * cannot inflate it as they inflate the RMS. */
 #include "robust.h"
+#include "select.h"
 
-#include <gsl/gsl_sort.h>
 #include <stdlib.h>
 
+/* The median by selection (linear time; the same value as sorting). */
 static double median_of(double *v, size_t n)
 {
-  if (n == 0)
-    return 0.0;
-  gsl_sort(v, 1, n);
-  return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+  return twf_select_median(v, n);
 }
 
 /* The robust scales of the position components (1.4826 MAD) and, for 6-D
@@ -96,6 +94,8 @@ twf_status twf_robust_screen(twf_lsq_problem *pr, twf_robust mode, double k, dou
     w = robust_weight(mode, u, k);
     if (fabs(w - pr->weight[i]) > 1e-3 * fmax(w, pr->weight[i]))
       (*changed)++;
+    if (w != pr->weight[i])
+      pr->weight_gen++; /* the normal matrix made with the old weights is stale */
     pr->weight[i] = w;
   }
   st = TWF_OK;

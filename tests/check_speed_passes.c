@@ -1,0 +1,247 @@
+/* check_speed_passes.c: the chunked passes over the measurements.
+ *  - Threads: the normal matrix, the gradient, the cost and the factor of
+ *    1, 2 and 3 threads are the same bits (memcmp), and so is a whole
+ *    calibration (parameters, standard deviations, base pose, residuals,
+ *    the calibrated model, the solver's report).
+ *  - The blocked factor (Householder by blocks, merged chunk by chunk)
+ *    keeps and fixes the same parameters as the row-by-row Givens factor
+ *    it replaced (twf_ident_qr_add_row, kept as the reference), on every
+ *    sample arm, with points and with 6-D rows, with every joint moving and
+ *    with one joint never moved (a data redundancy); and R^T R agrees. */
+#include "testutil.h"
+#include "arms.h"
+#include "calib/lsq.h"
+#include "calib/ident.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static twf_campaign *campaign(const twf_model *nominal, test_arm arm, size_t n_poses, int six_d,
+                              long frozen_joint, twf_pose *B)
+{
+  const twf_perturbation mag = { 1e-3, 0.5e-3, 2e-3, 1e-3, 0.0 };
+  twf_model *truth = twf_model_copy(nominal);
+  twf_simulate_options so = twf_simulate_default_options();
+  twf_campaign *c;
+  twf_error err;
+  size_t i;
+  ck_assert(truth != NULL);
+  twf_model_perturb(truth, &mag, 11 + (unsigned long long)arm);
+  test_tracker_base(B);
+  so.n_poses = n_poses;
+  so.sigma_m = 2e-5;
+  so.orientation = six_d;
+  so.sigma_rad = 2e-5;
+  so.seed = 5 + (unsigned long long)arm;
+  so.check_fraction = 0.1;
+  c = twf_simulate_campaign(truth, B, &so, &err);
+  ck_assert_msg(c != NULL, "simulation: %s", err.message);
+  if (frozen_joint >= 0)
+    for (i = 0; i < c->n_poses; i++)
+      c->q[i * c->n_joints + (size_t)frozen_joint] = 0.3;
+  twf_model_free(truth);
+  return c;
+}
+
+/* ------------------------------------------------------------ threads */
+
+START_TEST(test_passes_same_bits_for_any_thread_count)
+{
+  twf_model *m = test_arm_model(ARM_TF7);
+  twf_pose B;
+  twf_campaign *c = campaign(m, ARM_TF7, 700, _i, -1, &B); /* 11 chunks */
+  unsigned char *use = malloc(c->n_meas);
+  double *A[3], *g[3], *R[3], cost[3];
+  size_t i, p, nc = 0, *cols;
+  int t;
+  twf_error err;
+  for (i = 0; i < c->n_meas; i++)
+    use[i] = c->meas[i].set == TWF_SET_FIT;
+  for (t = 0; t < 3; t++) {
+    twf_lsq_problem pr;
+    ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
+    pr.base = B;
+    pr.n_threads = t + 1;
+    p = pr.p;
+    cols = malloc(p * sizeof *cols);
+    nc = 0;
+    for (i = 0; i < p; i++)
+      if (i % 3 != 1) /* a column subset, as the solver uses */
+        cols[nc++] = i;
+    A[t] = malloc(p * p * sizeof(double));
+    g[t] = malloc(p * sizeof(double));
+    R[t] = malloc(p * p * sizeof(double));
+    cost[t] = twf_lsq_normal(&pr, cols, nc, A[t], g[t]);
+    twf_lsq_factor(&pr, cols, nc, R[t]);
+    ck_assert(isfinite(cost[t]) && cost[t] > 0);
+    free(cols);
+    twf_lsq_free(&pr);
+  }
+  for (t = 1; t < 3; t++) {
+    ck_assert_msg(memcmp(A[0], A[t], nc * nc * sizeof(double)) == 0, "normal matrix, %d threads", t + 1);
+    ck_assert_msg(memcmp(g[0], g[t], nc * sizeof(double)) == 0, "gradient, %d threads", t + 1);
+    ck_assert_msg(memcmp(&cost[0], &cost[t], sizeof(double)) == 0, "cost, %d threads", t + 1);
+    ck_assert_msg(memcmp(R[0], R[t], nc * nc * sizeof(double)) == 0, "factor, %d threads", t + 1);
+  }
+  for (t = 0; t < 3; t++) {
+    free(A[t]);
+    free(g[t]);
+    free(R[t]);
+  }
+  free(use);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
+static void same_bits(const void *a, const void *b, size_t n, const char *what, int threads)
+{
+  ck_assert_msg(memcmp(a, b, n) == 0, "%s differs with %d threads", what, threads);
+}
+
+START_TEST(test_calibration_same_bits_for_any_thread_count)
+{
+  twf_model *m = test_arm_model(_i ? ARM_TF6S : ARM_TF7);
+  twf_pose B;
+  twf_campaign *c = campaign(m, _i ? ARM_TF6S : ARM_TF7, 400, _i, -1, &B);
+  twf_calib_options o = twf_calib_default_options();
+  twf_calib_result *res[3];
+  twf_error err;
+  int t;
+  size_t k;
+  /* a gross error in a fit row, so that the screen and a refit run too */
+  for (k = 7; c->meas[k].set != TWF_SET_FIT; k++)
+    ;
+  c->meas[k].pos[0] += 0.01;
+  o.sigma_length = 2e-5;
+  for (t = 0; t < 3; t++) {
+    o.threads = t + 1;
+    ck_assert_msg(twf_calibrate(m, c, &o, &res[t], NULL, &err) == TWF_OK, "%s", err.message);
+  }
+  ck_assert(res[0]->n_outliers >= 1 && res[0]->robust_rounds >= 1);
+  for (t = 1; t < 3; t++) {
+    const twf_calib_result *a = res[0], *b = res[t];
+    ck_assert(a->n_params == b->n_params && a->n_kept == b->n_kept && a->n_outliers == b->n_outliers);
+    for (k = 0; k < a->n_params; k++) {
+      same_bits(&a->params[k].change, &b->params[k].change, sizeof(double), "a value", t + 1);
+      same_bits(&a->params[k].std, &b->params[k].std, sizeof(double), "a standard deviation", t + 1);
+      ck_assert(a->params[k].status == b->params[k].status && a->params[k].weak == b->params[k].weak);
+    }
+    same_bits(&a->base_in_tracker, &b->base_in_tracker, sizeof a->base_in_tracker, "the base", t + 1);
+    same_bits(a->pos_err_after, b->pos_err_after, 3 * c->n_meas * sizeof(double), "residuals", t + 1);
+    same_bits(a->asbuilt->joints, b->asbuilt->joints, m->n_joints * sizeof *m->joints, "the joints", t + 1);
+    same_bits(&a->solve, &b->solve, sizeof a->solve, "the solver's report", t + 1);
+    same_bits(&a->registration, &b->registration, sizeof a->registration, "the registration", t + 1);
+    same_bits(&a->condition_number, &b->condition_number, sizeof(double), "the condition number", t + 1);
+    same_bits(&a->sigma_length, &b->sigma_length, sizeof(double), "sigma", t + 1);
+  }
+  for (t = 0; t < 3; t++)
+    twf_calib_result_free(res[t]);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
+/* ------------------------------------------------------------ blocked factor */
+
+/* The reference: the rows of twf_errmodel_point and _orientation, weighted,
+ * one Givens update at a time. */
+static void givens_factor(twf_lsq_problem *pr, double *R)
+{
+  const twf_campaign *c = pr->c;
+  size_t p = pr->p, i, k;
+  double *rows = malloc(3 * p * sizeof *rows);
+  memset(R, 0, p * p * sizeof *R);
+  for (i = 0; i < c->n_meas; i++) {
+    const twf_measurement *ms = &c->meas[i];
+    double y[3], sw = sqrt(pr->weight[i]) * pr->inv_sigma[i];
+    if (!twf_lsq_active(pr, i))
+      continue;
+    twf_errmodel_eval_pose(pr->em, pr->m, &pr->base, c->q + ms->pose * c->n_joints, NULL);
+    twf_errmodel_point(pr->em, pr->m, ms->target, y, rows);
+    for (k = 0; k < 3 * p; k++)
+      rows[k] *= sw;
+    for (k = 0; k < 3; k++)
+      twf_ident_qr_add_row(R, p, rows + k * p);
+    if (ms->has_orientation) {
+      double Rm[3][3], r[3];
+      twf_quat_to_rot(ms->quat, Rm);
+      twf_errmodel_orientation(pr->em, Rm, r, rows);
+      for (k = 0; k < 3 * p; k++)
+        rows[k] *= sqrt(pr->weight[i]) * pr->inv_sigma_rot;
+      for (k = 0; k < 3; k++)
+        twf_ident_qr_add_row(R, p, rows + k * p);
+    }
+  }
+  free(rows);
+}
+
+START_TEST(test_blocked_factor_keeps_what_givens_kept)
+{
+  int arm = _i / 4, six_d = (_i / 2) % 2, frozen = _i % 2;
+  twf_model *m = test_arm_model((test_arm)arm);
+  twf_pose B;
+  twf_campaign *c = campaign(m, (test_arm)arm, 300, six_d, frozen ? 2 : -1, &B);
+  unsigned char *use = malloc(c->n_meas), *keep_b, *keep_g;
+  double *Rb, *Rg, *Ab, *Ag, *scale, *rel_b, *rel_g;
+  size_t i, p, *order, a, n_fixed = 0;
+  twf_lsq_problem pr;
+  twf_error err;
+  for (i = 0; i < c->n_meas; i++)
+    use[i] = c->meas[i].set == TWF_SET_FIT;
+  ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
+  pr.base = B;
+  p = pr.p;
+  Rb = malloc(p * p * sizeof *Rb);
+  Rg = malloc(p * p * sizeof *Rg);
+  Ab = malloc(p * p * sizeof *Ab);
+  Ag = malloc(p * p * sizeof *Ag);
+  scale = malloc(p * sizeof *scale);
+  rel_b = malloc(p * sizeof *rel_b);
+  rel_g = malloc(p * sizeof *rel_g);
+  keep_b = malloc(p);
+  keep_g = malloc(p);
+  order = malloc(p * sizeof *order);
+  for (i = 0; i < p; i++) {
+    order[i] = i;
+    scale[i] = twf_errmodel_param_scale(pr.em, i);
+  }
+  twf_lsq_factor(&pr, NULL, p, Rb);
+  givens_factor(&pr, Rg);
+  ck_assert(twf_ident_walk_r(Rb, p, scale, order, p, TWF_REDUNDANCY_TOL_DEFAULT, keep_b, rel_b) == 0);
+  ck_assert(twf_ident_walk_r(Rg, p, scale, order, p, TWF_REDUNDANCY_TOL_DEFAULT, keep_g, rel_g) == 0);
+  for (a = 0; a < p; a++) {
+    ck_assert_msg(keep_b[a] == keep_g[a], "arm %d, 6-D %d, frozen %d: %s kept %d by the blocked factor, %d by Givens",
+                  arm, six_d, frozen, twf_errmodel_param(pr.em, a)->name, keep_b[a], keep_g[a]);
+    n_fixed += !keep_b[a];
+    /* the kept ones' independent parts agree closely; the fixed ones sit at rounding level in both */
+    if (keep_b[a])
+      ck_assert_close(rel_b[a], rel_g[a], 1e-6);
+    else
+      ck_assert(rel_b[a] < 1e-9 && rel_g[a] < 1e-9);
+  }
+  ck_assert(n_fixed > 0); /* the walk had something to fix */
+  twf_ident_normal_from_r(Rb, p, scale, Ab);
+  twf_ident_normal_from_r(Rg, p, scale, Ag);
+  for (a = 0; a < p * p; a++)
+    ck_assert(fabs(Ab[a] - Ag[a]) <= 1e-10 * sqrt(Ag[(a / p) * p + a / p] * Ag[(a % p) * p + a % p]) + 1e-300);
+  free(Rb); free(Rg); free(Ab); free(Ag); free(scale); free(rel_b); free(rel_g);
+  free(keep_b); free(keep_g); free(order); free(use);
+  twf_lsq_free(&pr);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
+int main(void)
+{
+  Suite *s = suite_create("speed-passes");
+  TCase *tc = tcase_create("passes");
+  tcase_set_timeout(tc, 120);
+  tcase_add_loop_test(tc, test_passes_same_bits_for_any_thread_count, 0, 2);
+  tcase_add_loop_test(tc, test_calibration_same_bits_for_any_thread_count, 0, 2);
+  tcase_add_loop_test(tc, test_blocked_factor_keeps_what_givens_kept, 0, 4 * ARM_COUNT);
+  suite_add_tcase(s, tc);
+  return twf_test_run(s);
+}

@@ -37,5 +37,6 @@
 #include "twistfit/asbuilt.h"
 #include "twistfit/calib.h"
 #include "twistfit/simulate.h"
+#include "twistfit/apply.h"
 
 #endif /* TWISTFIT_H */

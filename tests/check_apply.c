@@ -384,6 +384,107 @@ START_TEST(test_ik_point_least_change)
 END_TEST
 
 /* ------------------------------------------------------------------ */
+/* Against Orocos KDL                                                  */
+/* ------------------------------------------------------------------ */
+
+#define KDL_ROWS 60
+
+/* The fixtures of tests/gen/gen_kdl_compensate.py: a nominal tf6s and a
+ * DH-perturbed as-built tf6s built in Orocos KDL (python3-pykdl), a
+ * program, and KDL's flange poses of both arms at the program rows. The
+ * generator cannot see the compensation: this test compensates the program
+ * with the two model files and compares the as-built forward kinematics at
+ * the compensated joints with KDL's nominal poses, to 1e-9 m and 1e-9 rad
+ * (common practice, no source) on the rows not flagged; the flagged rows
+ * are the ones near a singularity (the program keeps rows near the elbow
+ * and shoulder singularities, where the as-built arm may not even reach the
+ * nominal pose). First, the as-built model file must mean the arm KDL
+ * built: our forward kinematics of it at the program rows against KDL's, to
+ * 1e-12 m (rounding; common practice, no source). */
+START_TEST(test_kdl_compensation)
+{
+  twf_error err;
+  twf_model *nom = twf_model_read(twf_test_srcpath("tests/fixtures/kdl_comp_nominal.ini"), NULL, &err);
+  twf_model *asb = nom ? twf_model_read(twf_test_srcpath("tests/fixtures/kdl_comp_asbuilt.ini"), NULL, &err) : NULL;
+  twf_campaign *prog = NULL;
+  twf_pose kdl_nom[KDL_ROWS], kdl_asb[KDL_ROWS];
+  twf_ik_result res[KDL_ROWS];
+  twf_compensate_summary sum;
+  double qc[KDL_ROWS * 6];
+  char line[2048];
+  FILE *f;
+  size_t r, good = 0, n_nom = 0, n_asb = 0;
+  ck_assert_msg(asb != NULL, "%s", err.message);
+  prog = twf_campaign_read_joints(twf_test_srcpath("tests/fixtures/kdl_comp_program.csv"), nom, NULL, NULL, &err);
+  ck_assert_msg(prog != NULL, "%s", err.message);
+  ck_assert_uint_eq(prog->n_poses, KDL_ROWS);
+  f = fopen(twf_test_srcpath("tests/fixtures/kdl_comp_fk.csv"), "r");
+  ck_assert_ptr_nonnull(f);
+  while (fgets(line, sizeof line, f) != NULL) {
+    char *save = NULL, *which, *pose, *tok;
+    double v[12];
+    int k = 0;
+    twf_pose *T;
+    if (line[0] == '#')
+      continue;
+    which = strtok_r(line, ",\n", &save);
+    pose = strtok_r(NULL, ",\n", &save);
+    while (k < 12 && (tok = strtok_r(NULL, ",\n", &save)) != NULL)
+      v[k++] = strtod(tok, NULL);
+    ck_assert_int_eq(k, 12);
+    if (strcmp(which, "nominal") == 0) {
+      ck_assert_uint_lt(n_nom, KDL_ROWS);
+      ck_assert_str_eq(pose, prog->pose_ids[n_nom]);
+      T = &kdl_nom[n_nom++];
+    } else {
+      ck_assert_str_eq(which, "asbuilt");
+      ck_assert_uint_lt(n_asb, KDL_ROWS);
+      T = &kdl_asb[n_asb++];
+    }
+    for (k = 0; k < 3; k++) {
+      T->p[k] = v[k];
+      T->R[k][0] = v[3 + 3 * k];
+      T->R[k][1] = v[4 + 3 * k];
+      T->R[k][2] = v[5 + 3 * k];
+    }
+  }
+  fclose(f);
+  ck_assert_uint_eq(n_nom, KDL_ROWS);
+  ck_assert_uint_eq(n_asb, KDL_ROWS);
+  for (r = 0; r < KDL_ROWS; r++) {
+    twf_pose T;
+    twf_model_fk(asb, prog->q + 6 * r, NULL, &T);
+    ck_assert_msg(dist3(T.p, kdl_asb[r].p) <= 1e-12, "row %zu: as-built model vs KDL %g m", r,
+                  dist3(T.p, kdl_asb[r].p));
+    ck_assert(twf_rot_angle_between(T.R, kdl_asb[r].R) <= 1e-12);
+  }
+
+  ck_assert_int_eq(twf_compensate_program(nom, asb, prog->q, KDL_ROWS, NULL, qc, res, &sum, &err), TWF_OK);
+  for (r = 0; r < KDL_ROWS; r++) {
+    twf_pose T;
+    if (res[r].flags != 0) {
+      ck_assert_msg(res[r].flags & TWF_IK_NEAR_SINGULAR, "row %s flags %u", prog->pose_ids[r], res[r].flags);
+      continue;
+    }
+    good++;
+    twf_model_fk(asb, qc + 6 * r, NULL, &T);
+    ck_assert_msg(dist3(T.p, kdl_nom[r].p) <= 1e-9, "row %s: %g m from KDL's nominal pose", prog->pose_ids[r],
+                  dist3(T.p, kdl_nom[r].p));
+    ck_assert_msg(twf_rot_angle_between(T.R, kdl_nom[r].R) <= 1e-9, "row %s: %g rad", prog->pose_ids[r],
+                  twf_rot_angle_between(T.R, kdl_nom[r].R));
+    /* and the compensation did something: the as-built arm at the
+     * original joints is off by the DH deviations (0.1 mm or more) */
+    ck_assert(dist3(kdl_asb[r].p, kdl_nom[r].p) > 1e-4);
+  }
+  ck_assert_msg(good >= 50, "only %zu of %d rows unflagged", good, KDL_ROWS);
+  ck_assert_uint_eq(sum.n_flagged, KDL_ROWS - good);
+  twf_campaign_free(prog);
+  twf_model_free(asb);
+  twf_model_free(nom);
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
 /* Comparison of two models                                            */
 /* ------------------------------------------------------------------ */
 
@@ -655,6 +756,7 @@ static Suite *apply_suite(void)
   tcase_add_test(tc, test_refusals);
   tcase_add_test(tc, test_ik_cartesian);
   tcase_add_test(tc, test_ik_point_least_change);
+  tcase_add_test(tc, test_kdl_compensation);
   tcase_add_test(tc, test_compare_self);
   tcase_add_test(tc, test_compare_tilted_joint);
   tcase_add_test(tc, test_compare_rigid_copy);

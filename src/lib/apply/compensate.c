@@ -12,8 +12,6 @@
  * null-space metric and the singularity measure are dimensionless. */
 #include "internal.h"
 
-#include <gsl/gsl_linalg.h>
-#include <gsl/gsl_matrix.h>
 #include <stdlib.h>
 
 #define MAX_ROWS 6
@@ -24,8 +22,6 @@ struct twf_ik {
   double *J;                       /* 6 x cap spatial Jacobian (model.c layout) */
   double *Js;                      /* m x n scaled task Jacobian, row-major */
   double *x, *x0, *xt, *xprev, *g, *qt, *scale;
-  gsl_matrix *svd_a, *svd_v;       /* cap x 6 and 6 x 6 */
-  gsl_vector *svd_s, *svd_work;    /* 6 */
 };
 
 twf_ik_options twf_ik_default_options(void)
@@ -58,10 +54,6 @@ void twf_ik_free(twf_ik *w)
   free(w->J);
   free(w->Js);
   free(w->x);
-  gsl_matrix_free(w->svd_a);
-  gsl_matrix_free(w->svd_v);
-  gsl_vector_free(w->svd_s);
-  gsl_vector_free(w->svd_work);
   free(w);
 }
 
@@ -77,14 +69,7 @@ twf_ik *twf_ik_alloc(size_t n_joints)
   w->J = malloc(6 * n * sizeof *w->J);
   w->Js = malloc(6 * n * sizeof *w->Js);
   w->x = malloc(7 * n * sizeof *w->x); /* x, x0, xt, xprev, g, qt, scale */
-  /* the SVD takes rows >= columns: the transposed Jacobian, n x m with
-   * n >= m (goals with more conditions than joints are refused) */
-  w->svd_a = gsl_matrix_alloc(n > 6 ? n : 6, 6);
-  w->svd_v = gsl_matrix_alloc(6, 6);
-  w->svd_s = gsl_vector_alloc(6);
-  w->svd_work = gsl_vector_alloc(6);
-  if (w->prefix == NULL || w->prefix_trial == NULL || w->J == NULL || w->Js == NULL || w->x == NULL ||
-      w->svd_a == NULL || w->svd_v == NULL || w->svd_s == NULL || w->svd_work == NULL) {
+  if (w->prefix == NULL || w->prefix_trial == NULL || w->J == NULL || w->Js == NULL || w->x == NULL) {
     twf_ik_free(w);
     return NULL;
   }
@@ -281,12 +266,16 @@ static void set_current(solve_ctx *c, eval *cur)
  * accepted when it lowers |e|, lambda divided by 10 on success and
  * multiplied by 10 on failure (Marquardt 1963), starting near
  * Gauss-Newton. Returns 1 when within the tolerances, 0 when the budget ran
- * out or no step lowers the error any more. */
+ * out, no step lowers the error any more, or the error stalls: four
+ * accepted steps in a row that did not halve it (a goal the arm cannot
+ * reach, next to a singularity, where the steps only creep; measured on
+ * tf6s such rows otherwise used the whole budget for nothing). */
 static int lm_converge(solve_ctx *c, eval *cur)
 {
   twf_ik *w = c->w;
   size_t n = c->m->n_joints, i;
-  double lambda = 1e-9, z[MAX_ROWS];
+  double lambda = 1e-9, z[MAX_ROWS], past[4];
+  unsigned accepted = 0;
   eval trial;
   while (!within(cur, c->goal, c->o)) {
     int k;
@@ -311,6 +300,9 @@ static int lm_converge(solve_ctx *c, eval *cur)
         task_jacobian(w, c->m, c->goal, c->L, cur->y, c->rows);
         c->r->iterations++;
         lambda = lambda * 0.1 > 1e-15 ? lambda * 0.1 : 1e-15;
+        if (accepted >= 4 && cur->cost > 0.25 * past[accepted % 4])
+          return 0; /* |e| did not halve over four steps */
+        past[accepted++ % 4] = cur->cost;
         continue;
       }
     }
@@ -365,24 +357,60 @@ static void least_change(solve_ctx *c, eval *cur)
   }
 }
 
-static double sigma_min(twf_ik *w, size_t n, int rows)
+/* Smallest singular value of the m x n scaled Jacobian (m <= n): the
+ * square root of the smallest eigenvalue of J J^T, by the cyclic Jacobi
+ * method (Golub and Van Loan, 8.5) on that m x m matrix, m <= 6. Its
+ * absolute error is about 1e-16 of the largest eigenvalue, so values near
+ * the thresholds (1e-3 and up) are exact to many digits; a GSL SVD per row
+ * cost more than the whole solve. */
+static double sigma_min(const twf_ik *w, size_t n, int m)
 {
-  gsl_matrix_view A = gsl_matrix_submatrix(w->svd_a, 0, 0, n, (size_t)rows);
-  gsl_matrix_view V = gsl_matrix_submatrix(w->svd_v, 0, 0, (size_t)rows, (size_t)rows);
-  gsl_vector_view S = gsl_vector_subvector(w->svd_s, 0, (size_t)rows);
+  double A[MAX_ROWS][MAX_ROWS], lo;
+  int r, c, p, q, sweep;
   size_t i;
-  int r;
-  double s = INFINITY;
-  for (i = 0; i < n; i++)
-    for (r = 0; r < rows; r++)
-      gsl_matrix_set(&A.matrix, i, (size_t)r, w->Js[(size_t)r * n + i]);
-  /* one-sided Jacobi: accurate small singular values */
-  if (gsl_linalg_SV_decomp_jacobi(&A.matrix, &V.matrix, &S.vector) != 0)
-    return 0.0;
-  for (r = 0; r < rows; r++)
-    if (gsl_vector_get(&S.vector, (size_t)r) < s)
-      s = gsl_vector_get(&S.vector, (size_t)r);
-  return s;
+  for (r = 0; r < m; r++)
+    for (c = 0; c <= r; c++) {
+      double s = 0.0;
+      for (i = 0; i < n; i++)
+        s += w->Js[(size_t)r * n + i] * w->Js[(size_t)c * n + i];
+      A[r][c] = A[c][r] = s;
+    }
+  for (sweep = 0; sweep < 50; sweep++) {
+    double off = 0.0, diag = 0.0;
+    for (p = 0; p < m; p++) {
+      diag += A[p][p] * A[p][p];
+      for (q = p + 1; q < m; q++)
+        off += A[p][q] * A[p][q];
+    }
+    if (off <= 1e-36 * diag || off == 0.0)
+      break;
+    for (p = 0; p < m; p++)
+      for (q = p + 1; q < m; q++) {
+        double theta, t, cs, sn;
+        int k;
+        if (A[p][q] == 0.0)
+          continue;
+        theta = (A[q][q] - A[p][p]) / (2.0 * A[p][q]);
+        t = (theta >= 0 ? 1.0 : -1.0) / (fabs(theta) + sqrt(theta * theta + 1.0));
+        cs = 1.0 / sqrt(t * t + 1.0);
+        sn = t * cs;
+        for (k = 0; k < m; k++) {
+          double akp = A[k][p], akq = A[k][q];
+          A[k][p] = cs * akp - sn * akq;
+          A[k][q] = sn * akp + cs * akq;
+        }
+        for (k = 0; k < m; k++) {
+          double apk = A[p][k], aqk = A[q][k];
+          A[p][k] = cs * apk - sn * aqk;
+          A[q][k] = sn * apk + cs * aqk;
+        }
+      }
+  }
+  lo = A[0][0];
+  for (p = 1; p < m; p++)
+    if (A[p][p] < lo)
+      lo = A[p][p];
+  return lo > 0.0 ? sqrt(lo) : 0.0;
 }
 
 twf_status twf_ik_solve(twf_ik *w, const twf_model *model, const twf_ik_goal *goal,

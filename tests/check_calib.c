@@ -17,7 +17,7 @@ static double prediction_rms(const twf_model *m, const twf_pose *B, const twf_mo
 {
   double *q = calloc(m->n_joints, sizeof *q), sum = 0.0;
   size_t i, k, count = 0;
-  unsigned long long s = seed;
+  unsigned long long s = twf_test_seed(seed);
   for (i = 0; i < n; i++) {
     twf_pose F, T, Ft, Tt;
     twf_simulate_joints(truth, 0.05, &s, q);
@@ -75,7 +75,7 @@ static void check_count(test_arm arm, size_t n_targets, int full_pose, size_t ex
   /* targets of unknown offset: they enter as fitted parameters */
   test_tracker_base(&B);
   so.n_poses = 60;
-  so.seed = 5;
+  so.seed = twf_test_seed(5);
   so.targets = sel;
   so.orientation = full_pose;
   so.sigma_rad = 0.0;
@@ -129,11 +129,11 @@ static twf_status run_scenario(scenario *s, test_arm arm, size_t n_poses, double
   memset(s, 0, sizeof *s);
   s->nominal = test_arm_model(arm);
   s->truth = twf_model_copy(s->nominal);
-  twf_model_perturb(s->truth, &typical, seed);
+  twf_model_perturb(s->truth, &typical, twf_test_seed(seed));
   test_tracker_base(&s->base);
   so.n_poses = n_poses;
   so.sigma_m = sigma;
-  so.seed = seed + 100;
+  so.seed = twf_test_seed(seed + 100);
   so.check_fraction = 0.25;
   s->c = twf_simulate_campaign(s->truth, &s->base, &so, &err);
   ck_assert_ptr_nonnull(s->c);
@@ -280,14 +280,14 @@ START_TEST(test_offsets_only_remaster)
   twf_error err;
   twf_pose B;
   size_t i;
-  twf_model_perturb(previous, &typical, 51);
+  twf_model_perturb(previous, &typical, twf_test_seed(51));
   truth = twf_model_copy(previous);
   for (i = 0; i < 6; i++)
     truth->joints[i].offset += injected[i];
   test_tracker_base(&B);
   so.n_poses = 24;
   so.sigma_m = sigma;
-  so.seed = 52;
+  so.seed = twf_test_seed(52);
   c = twf_simulate_campaign(truth, &B, &so, &err);
   co.groups = TWF_GROUPS_REMASTER;
   co.sigma_length = sigma;
@@ -327,10 +327,10 @@ START_TEST(test_joint_never_moves)
   twf_pose B;
   size_t i, fixed = 0;
   int named = 0;
-  twf_model_perturb(truth, &typical, 61);
+  twf_model_perturb(truth, &typical, twf_test_seed(61));
   test_tracker_base(&B);
   so.n_poses = 60;
-  so.seed = 62;
+  so.seed = twf_test_seed(62);
   so.sigma_m = 2e-5;
   c = twf_simulate_campaign(truth, &B, &so, &err);
   /* re-measure with joint 6 frozen */
@@ -382,12 +382,12 @@ START_TEST(test_narrow_joint_warning)
   twf_error err;
   twf_pose B;
   size_t i, hits = 0;
-  twf_model_perturb(truth, &typical, 95);
+  twf_model_perturb(truth, &typical, twf_test_seed(95));
   truth->joints[5].limit_lo = -6.6 * 3.14159265358979323846 / 180.0;
   truth->joints[5].limit_hi = 6.6 * 3.14159265358979323846 / 180.0;
   test_tracker_base(&B);
   so.n_poses = 60;
-  so.seed = 195;
+  so.seed = 195; /* fixed: the message checked below names the 11.7 deg this stream covers */
   so.sigma_m = 3e-5;
   c = twf_simulate_campaign(truth, &B, &so, &err);
   co.sigma_length = 3e-5;
@@ -424,11 +424,11 @@ START_TEST(test_gross_outliers)
     memset(&s, 0, sizeof s);
     s.nominal = test_arm_model(ARM_TF6S);
     s.truth = twf_model_copy(s.nominal);
-    twf_model_perturb(s.truth, &typical, 71);
+    twf_model_perturb(s.truth, &typical, twf_test_seed(71));
     test_tracker_base(&s.base);
     so.n_poses = 120;
     so.sigma_m = sigma;
-    so.seed = 72;
+    so.seed = twf_test_seed(72);
     s.c = twf_simulate_campaign(s.truth, &s.base, &so, &err);
     for (k = 0; k < 3; k++)
       s.c->meas[bad[k]].pos[k] += size[k];
@@ -468,14 +468,14 @@ START_TEST(test_orientation_outliers)
   memset(&s, 0, sizeof s);
   s.nominal = test_arm_model(ARM_TF6S);
   s.truth = twf_model_copy(s.nominal);
-  twf_model_perturb(s.truth, &typical, 73);
+  twf_model_perturb(s.truth, &typical, twf_test_seed(73));
   test_tracker_base(&s.base);
   so.n_poses = 300;
   so.sigma_m = sigma;
   so.sigma_rad = sigma_rad;
   so.orientation = 1;
   so.targets = sel;
-  so.seed = 74;
+  so.seed = twf_test_seed(74);
   s.c = twf_simulate_campaign(s.truth, &s.base, &so, &err);
   for (k = 0; k < 4; k++) {
     double R[3][3], E[3][3], Rn[3][3];

@@ -401,6 +401,40 @@ START_TEST(test_units_declared)
 }
 END_TEST
 
+/* The reader converts with units.c (twf_length_to_si), the arithmetic of
+ * the reports that divide by twf_length_unit_si: 3.1 is a value where
+ * 3.1 / 1e3 and 3.1 * 1e-3 differ in the last bit, so a reader with a
+ * conversion of its own shows here. */
+START_TEST(test_one_unit_conversion)
+{
+  twf_model *m = tf6s();
+  twf_campaign *c;
+  char text[1024];
+  size_t j;
+  make_tmpdir();
+  snprintf(text, sizeof text, "# units: length=mm angle=mrad\npose,target");
+  for (j = 0; j < m->n_joints; j++)
+    snprintf(text + strlen(text), sizeof text - strlen(text), ",%s", m->joints[j].name);
+  snprintf(text + strlen(text), sizeof text - strlen(text), ",x,y,z,sigma\np1,%s",
+           m->targets[0].name);
+  for (j = 0; j < m->n_joints; j++)
+    snprintf(text + strlen(text), sizeof text - strlen(text), ",3.1");
+  snprintf(text + strlen(text), sizeof text - strlen(text), ",3.1,0,-3.1,0.0031\n");
+  write_file(tmppath("u.csv"), text);
+  c = read_ok(tmppath("u.csv"), m, NULL, NULL);
+  for (j = 0; j < m->n_joints; j++)
+    ck_assert(c->q[j] == (m->joints[j].type == TWF_JOINT_PRISMATIC
+                              ? twf_length_to_si(3.1, TWF_LENGTH_MM)
+                              : twf_angle_to_si(3.1, TWF_ANGLE_MRAD)));
+  ck_assert(c->meas[0].pos[0] == twf_length_to_si(3.1, TWF_LENGTH_MM));
+  ck_assert(c->meas[0].pos[2] == twf_length_to_si(-3.1, TWF_LENGTH_MM));
+  ck_assert(c->meas[0].sigma == twf_length_to_si(0.0031, TWF_LENGTH_MM));
+  twf_campaign_free(c);
+  twf_model_free(m);
+  remove_tmpdir();
+}
+END_TEST
+
 START_TEST(test_units_override)
 {
   twf_model *m = tf6s();
@@ -1034,6 +1068,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_bom_crlf_comments);
   tcase_add_test(tc, test_units_declared);
   tcase_add_test(tc, test_units_override);
+  tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_six_d);
   tcase_add_test(tc, test_limit_warning);
   tcase_add_test(tc, test_limit_error_and_tolerance);

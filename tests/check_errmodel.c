@@ -44,7 +44,7 @@ static void check_arm(test_arm arm, unsigned groups, unsigned long long seed)
   size_t p, j, k, trial;
   double q[8];
   ck_assert_ptr_nonnull(m);
-  twf_model_perturb(m, &mag, seed);
+  twf_model_perturb(m, &mag, twf_test_seed(seed));
   test_tracker_base(&B);
   em = twf_errmodel_alloc(m, groups, NULL);
   ck_assert_ptr_nonnull(em);

@@ -35,6 +35,7 @@
 #include "twistfit/register.h"
 #include "twistfit/accuracy.h"
 #include "twistfit/asbuilt.h"
+#include "twistfit/links.h"
 #include "twistfit/calib.h"
 #include "twistfit/simulate.h"
 #include "twistfit/apply.h"

@@ -122,6 +122,10 @@ twf_campaign *twf_campaign_read_joints(const char *joints_path,
                                        const twf_campaign_options *opt,
                                        twf_warnings *w, twf_error *err);
 
+/* Numbers are read and written in the "C" locale whatever the caller's
+ * (see "Locale" in io.h); the decimal comma of a ';'-delimited file is
+ * the format's, not the locale's. */
+
 /* Write c in the one-file form, in the given units (declared in a
  * "# units:" line), numbers with 17 significant digits so that reading
  * back gives the same values to rounding. Rows are grouped by pose in pose

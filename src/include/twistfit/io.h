@@ -17,6 +17,13 @@ extern "C" {
 /* Model files (INI, see twistfit-model(5))                            */
 /* ------------------------------------------------------------------ */
 
+/* Locale: every reader and writer of this header and of campaign.h reads
+ * and writes numbers with '.' as the decimal point whatever the caller's
+ * locale (a program may call setlocale(LC_ALL, "") under any locale). The
+ * calling thread is switched to the "C" locale for the span of the call
+ * and given its own locale back before the call returns; no other thread
+ * and no global state sees a change. */
+
 /* Read a model file. On failure returns NULL and fills err with the file,
  * line and what to do. Recoverable oddities (an axis normalised within
  * 1e-3 of unit length, ...) go to warnings. */
@@ -28,7 +35,7 @@ twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err);
 
 
 /* ------------------------------------------------------------------ */
-/* Model files: limits and return codes (modelfile.c)                  */
+/* Model files: limits and return codes (modelfile_read/_write.c)     */
 /* ------------------------------------------------------------------ */
 
 /* Longest line of a model file, in bytes, not counting the line end: one

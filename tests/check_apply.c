@@ -664,6 +664,54 @@ START_TEST(test_compare_tilted_joint)
 }
 END_TEST
 
+/* Link by link: the copy with joint 3's line tilted by 0.05 degrees about
+ * the base z axis through its reference point. Lines 2 and 3 of tf6s are
+ * parallel (both along y, their connecting line along z), so the tilt is a
+ * twist of line 3 against line 2 about their connecting line: row 2's
+ * alpha changes by exactly the tilt, row 3's alpha (line 3 against line 4,
+ * which the tilt did not move) by minus the tilt, and nothing else changes
+ * (the other values within 1e-12; a theta that reads pi in one model and
+ * -pi in the other is the same angle). Reference: the geometry of the
+ * construction (the twist of two lines about their common perpendicular
+ * is the angle between their directions); tolerance 1e-12 rad: common
+ * practice, no source. The same model with itself: all zeros. */
+START_TEST(test_compare_links_tilt)
+{
+  twf_model *a = test_arm_model(ARM_TF6S), *b = twf_model_copy(a);
+  const double u[3] = { 0.0, 0.0, 1.0 }, tilt = 0.05 * DEG;
+  double diff[5 * 8];
+  twf_links l;
+  twf_error err;
+  size_t r;
+  int v;
+  ck_assert_int_eq(twf_compare_links(a, a, 0, &l, diff, &err), TWF_OK);
+  for (r = 0; r < 8; r++)
+    for (v = 0; v < 5; v++)
+      ck_assert(isnan(diff[5 * r + v]) || fabs(diff[5 * r + v]) <= 1e-12);
+  twf_links_clear(&l);
+  tilt_joint(b, 2, u, tilt);
+  ck_assert_int_eq(twf_compare_links(a, b, 0, &l, diff, &err), TWF_OK);
+  ck_assert_uint_eq(l.n_rows, 8);
+  for (r = 0; r < 8; r++)
+    for (v = 0; v < 5; v++) {
+      double want = 0.0, d = diff[5 * r + v];
+      if (l.rows[r].why[v] == TWF_LINK_NOT_IN_FORM) {
+        ck_assert(isnan(d));
+        continue;
+      }
+      if (v == TWF_LINK_ALPHA && r == 2)
+        want = tilt;
+      if (v == TWF_LINK_ALPHA && r == 3)
+        want = -tilt;
+      ck_assert_msg(fabs(d - want) <= 1e-12, "row %zu %s: %.17g, expected %.17g", r,
+                    twf_link_value_name((twf_link_value)v), d, want);
+    }
+  twf_links_clear(&l);
+  twf_model_free(b);
+  twf_model_free(a);
+}
+END_TEST
+
 /* A rigidly moved copy (every twist and the home pose carried by a known
  * motion G) compares to zero once aligned, and the alignment found is
  * G^-1; as written, the distances are |G y - y|. Reference: Ad_G S is the
@@ -759,6 +807,7 @@ static Suite *apply_suite(void)
   tcase_add_test(tc, test_kdl_compensation);
   tcase_add_test(tc, test_compare_self);
   tcase_add_test(tc, test_compare_tilted_joint);
+  tcase_add_test(tc, test_compare_links_tilt);
   tcase_add_test(tc, test_compare_rigid_copy);
   tcase_add_test(tc, test_compare_flange_and_degenerate);
   tcase_set_timeout(tc, 60);

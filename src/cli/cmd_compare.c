@@ -24,7 +24,9 @@ static const char compare_help[] =
   "and the worst configuration. By default B's base frame is first aligned to\n"
   "A's by the best rigid fit of the predicted tool points (two as-built models\n"
   "of different dates live in different base frames); --no-align compares in\n"
-  "the frames as written. Lengths and angles in A's units.\n"
+  "the frames as written. Then, link by link, the intrinsic link parameters\n"
+  "(DH a, alpha, d, theta or Hayati's beta, in A's forms) of A and B and their\n"
+  "differences. Lengths and angles in A's units.\n"
   "\n"
   "Options:\n"
   "      --joints FILE       configurations from a joints file (pose id and one\n"
@@ -36,6 +38,9 @@ static const char compare_help[] =
   "      --angle-unit U      unit of revolute joint values in FILE (default: as\n"
   "                          the file declares, else deg)\n"
   "      --no-align          compare in the frames as written\n"
+  "      --full-pose         the models come from 6-D data: the flange link is\n"
+  "                          determined (default: points only, the targets\n"
+  "                          absorb it, and the table says so)\n"
   "      --tol-rms X         acceptance: RMS distance at most X (length unit)\n"
   "      --tol-max X         acceptance: largest distance at most X\n"
   "      --tol-angle-max X   acceptance: largest angle at most X (angle unit);\n"
@@ -47,7 +52,7 @@ static const char compare_help[] =
 
 enum {
   OPT_JOINTS = CLI_OPT_FIRST_FREE, OPT_COUNT, OPT_SEED, OPT_LENGTH_UNIT, OPT_ANGLE_UNIT, OPT_NO_ALIGN,
-  OPT_TOL_RMS, OPT_TOL_MAX, OPT_TOL_ANGLE, OPT_JSON
+  OPT_TOL_RMS, OPT_TOL_MAX, OPT_TOL_ANGLE, OPT_JSON, OPT_FULL_POSE
 };
 
 typedef struct tolerance {
@@ -76,6 +81,70 @@ static void print_row(FILE *fp, const char *label, const twf_stats *s, double un
           s->rms / unit, dec, s->p95 / unit, dec, s->max / unit);
 }
 
+static int link_is_angle(int v)
+{
+  return v == TWF_LINK_THETA || v == TWF_LINK_ALPHA || v == TWF_LINK_BETA;
+}
+
+/* The note of a value: why a calibration would not determine it (the
+ * difference then reflects a frame or target convention, not the arm). */
+static const char *link_note(const twf_link_row *row, int v)
+{
+  return row->why[v] == TWF_LINK_DETERMINED ? "" : twf_link_why_text(row->why[v]);
+}
+
+static void print_links(FILE *fp, const twf_links *l, const double *diff, const cli_units *u, int full_pose)
+{
+  size_t r;
+  int v;
+  fprintf(fp, "\nLink parameters, link by link: A and B in A's forms (row k: joint k's line and the link to\n"
+              "line k+1; row 0 the base, the last row the flange), %s and %s\n", u->length, u->angle);
+  fprintf(fp, "  %4s %-5s %-6s %14s %14s %14s  %s\n", "row", "form", "value", "A", "B", "B - A", "note");
+  for (r = 0; r < l->n_rows; r++) {
+    const twf_link_row *row = &l->rows[r];
+    for (v = 0; v < TWF_LINK_NVALUES; v++) {
+      double unit = link_is_angle(v) ? u->angle_si : u->length_si;
+      int dec = link_is_angle(v) ? u->adec : u->ldec;
+      if (row->why[v] == TWF_LINK_NOT_IN_FORM)
+        continue;
+      fprintf(fp, "  %4zu %-5s %-6s %14.*f %14.*f %14.*f  %s\n", r, row->form == TWF_LINK_FORM_BETA ? "beta" : "dh",
+              twf_link_value_name((twf_link_value)v), dec, row->reference[v] / unit, dec, row->value[v] / unit, dec,
+              diff[5 * r + (size_t)v] / unit, link_note(row, v));
+    }
+  }
+  fprintf(fp, "  notes: %s; standard deviations: none (a model file carries no covariance)\n",
+          full_pose ? "the models come from 6-D data (--full-pose)"
+                    : "points-only calibration assumed: the targets absorb the flange link (--full-pose if not)");
+}
+
+static json_t *json_links(const twf_links *l, const double *diff, const cli_units *u, int full_pose)
+{
+  json_t *o = json_object(), *rows = json_array();
+  size_t r;
+  int v;
+  for (r = 0; r < l->n_rows; r++) {
+    const twf_link_row *row = &l->rows[r];
+    json_t *vals = json_object();
+    for (v = 0; v < TWF_LINK_NVALUES; v++) {
+      double unit = link_is_angle(v) ? u->angle_si : u->length_si;
+      if (row->why[v] == TWF_LINK_NOT_IN_FORM)
+        continue;
+      json_object_set_new(vals, twf_link_value_name((twf_link_value)v),
+                          json_pack("{s:o, s:o, s:o, s:o, s:b, s:s*}", "a", cli_json_number(row->reference[v] / unit),
+                                    "b", cli_json_number(row->value[v] / unit), "difference",
+                                    cli_json_number(diff[5 * r + (size_t)v] / unit), "std", json_null(),
+                                    "determined", row->why[v] == TWF_LINK_DETERMINED, "note",
+                                    row->why[v] == TWF_LINK_DETERMINED ? NULL : twf_link_why_text(row->why[v])));
+    }
+    json_array_append_new(rows, json_pack("{s:I, s:s, s:o}", "row", (json_int_t)r, "form",
+                                          row->form == TWF_LINK_FORM_BETA ? "beta" : "dh", "values", vals));
+  }
+  json_object_set_new(o, "forms_from", json_string("a"));
+  json_object_set_new(o, "full_pose", json_boolean(full_pose));
+  json_object_set_new(o, "rows", rows);
+  return o;
+}
+
 static int run_compare(int argc, char **argv)
 {
   static const struct option longopts[] = {
@@ -85,6 +154,7 @@ static int run_compare(int argc, char **argv)
     { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
     { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
     { "no-align", no_argument, NULL, OPT_NO_ALIGN },
+    { "full-pose", no_argument, NULL, OPT_FULL_POSE },
     { "tol-rms", required_argument, NULL, OPT_TOL_RMS },
     { "tol-max", required_argument, NULL, OPT_TOL_MAX },
     { "tol-angle-max", required_argument, NULL, OPT_TOL_ANGLE },
@@ -100,7 +170,9 @@ static int run_compare(int argc, char **argv)
   tolerance tol[3] = { { "rms", 0, 0, 0 }, { "max", 0, 0, 0 }, { "angle-max", 0, 0, 1 } };
   unsigned long long seed = 1;
   long count = 1000;
-  int force = 0, opt, status = TWF_EXIT_OK, i, have_count = 0, have_seed = 0;
+  int force = 0, opt, status = TWF_EXIT_OK, i, have_count = 0, have_seed = 0, full_pose = 0;
+  twf_links links;
+  double *ldiff = NULL;
   twf_campaign_options copt = twf_campaign_default_options();
   twf_compare_options co = twf_compare_default_options();
   twf_model *a = NULL, *b = NULL;
@@ -116,6 +188,7 @@ static int run_compare(int argc, char **argv)
 
   twf_warnings_init(&warnings);
   twf_error_clear(&err);
+  memset(&links, 0, sizeof links);
   optind = 0;
   opterr = 0;
   while ((opt = getopt_long(argc, argv, ":fh", longopts, NULL)) != -1) {
@@ -154,6 +227,7 @@ static int run_compare(int argc, char **argv)
       copt.angle_from_caller = 1;
       break;
     case OPT_NO_ALIGN: co.align = 0; break;
+    case OPT_FULL_POSE: full_pose = 1; break;
     case OPT_TOL_RMS: tol_text[0] = optarg; break;
     case OPT_TOL_MAX: tol_text[1] = optarg; break;
     case OPT_TOL_ANGLE: tol_text[2] = optarg; break;
@@ -215,6 +289,14 @@ static int run_compare(int argc, char **argv)
     goto fail;
   }
 
+  ldiff = malloc(5 * (a->n_joints + 2) * sizeof *ldiff);
+  if (ldiff == NULL) {
+    status = TWF_EXIT_INTERNAL;
+    goto done;
+  }
+  if (twf_compare_links(a, b, full_pose, &links, ldiff, &err) != TWF_OK)
+    goto fail;
+
   tol[0].value = res->position.rms;
   tol[1].value = res->position.max;
   tol[2].value = res->angle.max;
@@ -273,6 +355,7 @@ static int run_compare(int argc, char **argv)
     fputc('\n', txt);
     config_id(joints, res->angle.max_index, id, sizeof id);
     fprintf(txt, "largest angle: %.*f %s at %s\n", u.adec, res->angle.max / u.angle_si, u.angle, id);
+    print_links(txt, &links, ldiff, &u, full_pose);
     {
       int any = 0;
       for (i = 0; i < 3; i++)
@@ -322,6 +405,7 @@ static int run_compare(int argc, char **argv)
                                   "point", point_name(res, a, res->worst_point), "distance",
                                   cli_json_number(res->position.max / u.length_si), "angle",
                                   cli_json_number(res->worst_angle_rad / u.angle_si), "joints", wj));
+    json_object_set_new(root, "links", json_links(&links, ldiff, &u, full_pose));
     for (i = 0; i < 3; i++)
       if (tol[i].limit > 0)
         json_object_set_new(tols, tol[i].name,
@@ -352,6 +436,8 @@ fail:
   status = cli_report_error(&err);
 done:
   json_decref(root);
+  twf_links_clear(&links);
+  free(ldiff);
   twf_compare_result_free(res);
   if (joints == NULL)
     free(q);

@@ -11,6 +11,7 @@
 #include "twistfit/se3.h"
 #include "twistfit/model.h"
 #include "twistfit/accuracy.h"
+#include "twistfit/links.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -227,6 +228,23 @@ twf_status twf_compare_models(const twf_model *a, const twf_model *b, const doub
                               size_t n_configs, const twf_compare_options *opt,
                               twf_compare_result **out, twf_error *err);
 void twf_compare_result_free(twf_compare_result *r);
+
+/* Link by link: the intrinsic link parameters (twistfit/links.h) of B with
+ * A as the reference, in A's forms (A's lines choose DH or Hayati's form per
+ * link, so that both are read in one convention): twf_links_compute(b,
+ * {reference = a, full_pose}) into *links (clear with twf_links_clear), and
+ * diff[5 * row + value] = B - A, SI, angles wrapped to [-pi, pi) (theta of
+ * two models may differ by a turn that means nothing); NAN where the value
+ * is not in the row's form (TWF_LINK_NOT_IN_FORM). Where a DH link's x
+ * axis has a free sign (lines that nearly intersect, a near 0) and B's came
+ * out opposite to A's, B's values of that row and the next row's theta are
+ * re-expressed in A's sign (theta + pi, -a, -alpha; next theta - pi: the
+ * same motion). diff holds
+ * 5 * (n_joints + 2) values. links->rows[].std stays NAN: a model file
+ * carries no covariance. Errors as twf_links_compute (TWF_ERR_VALUE for
+ * different joints). */
+twf_status twf_compare_links(const twf_model *a, const twf_model *b, int full_pose,
+                             twf_links *links, double *diff, twf_error *err);
 
 /* TWF_OK when a and b have the same joints (count, names and types), else
  * TWF_ERR_VALUE naming the first difference (a_name, b_name name the

@@ -163,3 +163,61 @@ fail:
   twf_compare_result_free(r);
   return st;
 }
+
+/* An angle in [-pi, pi). */
+static double wrap_angle(double x)
+{
+  return x - 2.0 * TWF_PI * floor((x + TWF_PI) / (2.0 * TWF_PI));
+}
+
+twf_status twf_compare_links(const twf_model *a, const twf_model *b, int full_pose,
+                             twf_links *links, double *diff, twf_error *err)
+{
+  twf_links_options o = twf_links_default_options();
+  twf_status st;
+  size_t r;
+  int v;
+  if (a == NULL || b == NULL || links == NULL || diff == NULL)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "twf_compare_links: NULL argument");
+  if ((st = twf_models_same_joints(a, b, "model A", "model B", err)) != TWF_OK)
+    return st;
+  o.full_pose = full_pose;
+  o.reference = a;
+  if ((st = twf_links_compute(b, &o, links, err)) != TWF_OK)
+    return st;
+  /* The x axis of a DH link whose lines (nearly) intersect has a free sign:
+   * Rz(theta + pi) Tz(d) Tx(-a) Rx(-alpha) = Rz(theta) Tz(d) Tx(a) Rx(alpha)
+   * Rz(pi), the next row's theta taking -pi. Where B's link came out with
+   * the other sign than A's (measured on the demo arm: the wrist link, a =
+   * 0 in A, showed theta and alpha 180 degrees apart), re-express B's
+   * values in A's sign, which brings them closer: a real link (a far from
+   * 0) never gains from it. */
+  for (r = 1; r + 1 < links->n_rows; r++) {
+    twf_link_row *row = &links->rows[r], *next = &links->rows[r + 1];
+    double L = links->reach > 0 ? links->reach : 1.0, keep, flip;
+    if (row->form != TWF_LINK_FORM_DH || row->why[TWF_LINK_A] == TWF_LINK_NOT_IN_FORM)
+      continue;
+    keep = fabs(wrap_angle(row->value[TWF_LINK_ALPHA] - row->reference[TWF_LINK_ALPHA])) +
+           fabs(row->value[TWF_LINK_A] - row->reference[TWF_LINK_A]) / L;
+    flip = fabs(wrap_angle(-row->value[TWF_LINK_ALPHA] - row->reference[TWF_LINK_ALPHA])) +
+           fabs(-row->value[TWF_LINK_A] - row->reference[TWF_LINK_A]) / L;
+    if (flip < keep) {
+      row->value[TWF_LINK_THETA] = wrap_angle(row->value[TWF_LINK_THETA] + TWF_PI);
+      row->value[TWF_LINK_A] = -row->value[TWF_LINK_A];
+      row->value[TWF_LINK_ALPHA] = wrap_angle(-row->value[TWF_LINK_ALPHA]);
+      next->value[TWF_LINK_THETA] = wrap_angle(next->value[TWF_LINK_THETA] - TWF_PI);
+    }
+  }
+  for (r = 0; r < links->n_rows; r++)
+    for (v = 0; v < TWF_LINK_NVALUES; v++) {
+      const twf_link_row *row = &links->rows[r];
+      double d = row->value[v] - row->reference[v];
+      if (row->why[v] == TWF_LINK_NOT_IN_FORM) {
+        d = NAN;
+      } else if (v == TWF_LINK_THETA || v == TWF_LINK_ALPHA || v == TWF_LINK_BETA) {
+        d = wrap_angle(d);
+      }
+      diff[5 * r + (size_t)v] = d;
+    }
+  return TWF_OK;
+}

@@ -8,6 +8,10 @@
 
 int cli_verbosity = 1;
 
+/* Using a calibration (cmd_compensate.c, cmd_compare.c). */
+extern const cli_command cli_cmd_compensate;
+extern const cli_command cli_cmd_compare;
+
 static const cli_command *const commands[] = {
   &cli_cmd_fk,
   &cli_cmd_verify,
@@ -15,6 +19,8 @@ static const cli_command *const commands[] = {
   &cli_cmd_simulate,
   &cli_cmd_assess,
   &cli_cmd_plan,
+  &cli_cmd_compensate,
+  &cli_cmd_compare,
 };
 static const size_t n_commands = sizeof commands / sizeof commands[0];
 

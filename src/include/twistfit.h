@@ -40,5 +40,6 @@
 #include "twistfit/calib.h"
 #include "twistfit/simulate.h"
 #include "twistfit/plan.h"
+#include "twistfit/apply.h"
 
 #endif /* TWISTFIT_H */

@@ -58,6 +58,8 @@ check_all() { # command-or-empty
   done
 }
 check_all ""
-for c in fk verify calibrate; do check_all "$c"; done
+commands=$("$TWISTFIT" --help | sed -n '/^Commands:/,/^$/p' | awk 'NR > 1 && $1 != "help" {print $1}')
+[ -n "$commands" ] || { echo "FAIL: no commands in --help"; exit 1; }
+for c in $commands; do check_all "$c"; done
 [ $fail = 0 ] && echo "PASS: completion"
 exit $fail

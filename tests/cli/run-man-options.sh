@@ -38,11 +38,19 @@ compare() { # name help-file man-file
 "$TWISTFIT" --help | sed -n '/^Options:/,$p' | options >"$dir/global.help"
 man_defs '^\.SH GLOBAL OPTIONS' '^\.SH COMMANDS' >"$dir/global.man"
 compare global "$dir/global.help" "$dir/global.man"
-for c in fk verify calibrate; do
+# every command that --help lists; a command with a page of its own
+# (twistfit-COMMAND(1)) is checked against that page's OPTIONS
+commands=$("$TWISTFIT" --help | sed -n '/^Commands:/,/^$/p' | awk 'NR > 1 && $1 != "help" {print $1}')
+[ -n "$commands" ] || { echo "FAIL: no commands in --help"; exit 1; }
+for c in $commands; do
   # the command's own options: its help less the global ones it repeats
   "$TWISTFIT" "$c" --help | sed -n '/^Options:/,$p' | options >"$dir/$c.all"
   comm -23 "$dir/$c.all" "$dir/global.help" >"$dir/$c.help"
-  man_defs "^\.SS $c " '^\.S[SH] ' >"$dir/$c.man0"
+  if [ -f "$SRC/man/twistfit-$c.1" ]; then
+    MAN="$SRC/man/twistfit-$c.1" man_defs '^\.SH OPTIONS' '^\.SH ' >"$dir/$c.man0"
+  else
+    man_defs "^\.SS $c " '^\.S[SH] ' >"$dir/$c.man0"
+  fi
   comm -23 "$dir/$c.man0" "$dir/global.help" >"$dir/$c.man"
   [ -s "$dir/$c.help" ] || { echo "FAIL: $c: no options found in --help"; fail=1; }
   compare "$c" "$dir/$c.help" "$dir/$c.man"

@@ -49,6 +49,8 @@ static const char calibrate_help[] =
   "      --check-fraction F  also hold out this fraction of the poses as check data\n"
   "      --seed N            seed of the held-out draw and of the synthetic pose set\n"
   "      --max-iterations N  solver iterations per fit (default 100)\n"
+  "      --threads N         threads for the passes over the measurements\n"
+  "                          (default: one per core; the result is the same)\n"
   "      --accept-large      accept a result beyond any calibration (noise over 1 mm,\n"
   "                          a joint line over 5 deg or 50 mm from the model's);\n"
   "                          without it such a run fails (exit 5): the data and the\n"
@@ -65,7 +67,7 @@ static const char calibrate_help[] =
 
 enum {
   OPT_BASE_OUT = CLI_OPT_FIRST_FREE, OPT_JSON, OPT_RESIDUALS, OPT_FIT, OPT_PRIORITY, OPT_SIGMA,
-  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_ACCEPT_LARGE,
+  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_THREADS, OPT_ACCEPT_LARGE,
   OPT_WRITE_ANYWAY
 };
 
@@ -737,6 +739,7 @@ static int run_calibrate(int argc, char **argv)
     { "check-fraction", required_argument, NULL, OPT_CHECK_FRACTION },
     { "seed", required_argument, NULL, OPT_SEED },
     { "max-iterations", required_argument, NULL, OPT_MAXIT },
+    { "threads", required_argument, NULL, OPT_THREADS },
     { "accept-large", no_argument, NULL, OPT_ACCEPT_LARGE },
     { "write-anyway", no_argument, NULL, OPT_WRITE_ANYWAY },
     { "force", no_argument, NULL, 'f' },
@@ -827,6 +830,16 @@ static int run_calibrate(int argc, char **argv)
         goto done;
       }
       co.max_iterations = (int)v;
+      break;
+    }
+    case OPT_THREADS: {
+      char *end;
+      long v = strtol(optarg, &end, 10);
+      if (*end != '\0' || v < 1 || v > 256) {
+        status = cli_usage_error("calibrate", "--threads takes a count from 1 to 256");
+        goto done;
+      }
+      co.threads = (int)v;
       break;
     }
     case OPT_ACCEPT_LARGE: co.accept_large = 1; break;

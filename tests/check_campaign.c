@@ -1329,9 +1329,12 @@ START_TEST(test_load_200k_poses)
     grown_kib = in[1];
   }
 #ifndef TWF_TEST_ASAN
-  ck_assert_msg((double)grown_kib * 1024.0 <= 4.0 * (double)size,
-                "reading %ld bytes grew the peak memory by %ld KiB, more than 4 times the file",
-                size, grown_kib);
+  /* valgrind's own bookkeeping counts in the peak (CI's valgrind step and
+   * configure --enable-valgrind set this): there only correctness holds */
+  if (getenv("TWF_TEST_UNDER_VALGRIND") == NULL)
+    ck_assert_msg((double)grown_kib * 1024.0 <= 4.0 * (double)size,
+                  "reading %ld bytes grew the peak memory by %ld KiB, more than 4 times the file",
+                  size, grown_kib);
 #endif
   fprintf(stderr, "check_campaign: 200,000 poses: %ld bytes read, peak memory grew by %ld KiB\n",
           size, grown_kib);

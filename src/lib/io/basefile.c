@@ -1,5 +1,5 @@
 /* basefile.c: the small file that holds a base pose (robot base frame in
- * the tracker frame), written by calibrate and read by verify --base. INI
+ * the measuring instrument's frame), written by calibrate and read by verify --base. INI
  * read through the strict INI layer of the model file (inistrict.c):
  * unknown or repeated keys, missing keys, bad numbers and a non-unit
  * quaternion are refused. */
@@ -178,7 +178,7 @@ twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,
     return st;
   if (comment != NULL)
     fprintf(out, "; %s\n", comment);
-  fprintf(out, "; robot base frame in the tracker frame (x_tracker = R x_base + p)\n"
+  fprintf(out, "; robot base frame in the measuring instrument's frame (x_instrument = R x_base + p)\n"
                "[base]\nlength_unit = %s\nposition = %.17g %.17g %.17g\n"
                "quaternion_wxyz = %.17g %.17g %.17g %.17g\n",
           twf_length_unit_name(u), twf_length_from_si(base_in_tracker->p[0], u),

@@ -469,6 +469,137 @@ START_TEST(test_iso9283_worked_example)
 }
 END_TEST
 
+/* The summary row and the orientation figures, by hand. The formulas are
+ * ISO 9283:1998 7.2.1 and 7.2.3 as recalled from memory (the text was not
+ * at hand): AP_a = mean a_j - a_c, RP_a = 3 S_a, likewise b and c, with
+ * a, b, c rotations about the base frame's x, y, z axes.
+ * Commanded pose A, q = (0.3, 0.2, 0.4), three visits, 6-D rows whose
+ * orientation relative to the commanded one is D_j = rpy(a_j, b_j, c_j):
+ *   a = (1, 2, 3) mrad: AP_a = 2 mrad, S_a = 1 mrad, RP_a = 3 mrad
+ *   b = (-2, 0, -1) mrad: AP_b = -1 mrad, S_b = 1 mrad, RP_b = 3 mrad
+ *   c = 0.5 mrad each: AP_c = 0.5 mrad, RP_c = 0
+ * and T1 at the commanded position plus (+0.1, -0.1, 0) mm along x:
+ *   AP_P = 0; l = (0.1, 0.1, 0) mm, lbar = 0.0667 mm,
+ *   S_l = sqrt(((1/3)^2 2 + (2/3)^2) / 2) 0.1 mm = 0.057735 mm,
+ *   RP_l = 0.0667 + 3 x 0.057735 = 0.239871 mm.
+ * Commanded pose B, q = (0.6, -0.1, -0.5), two visits at +0.2 mm along x:
+ *   AP_P = 0.2 mm, RP_l = 0; points only, no orientation figures.
+ * Summary: worst AP_P 0.2 mm (entry 1), worst RP_l 0.239871 mm (entry 0),
+ * cycles 2 to 3, worst |AP| angle 2 mrad, worst RP angle 3 mrad. The base
+ * and home pose are turned, so that the frames matter. */
+START_TEST(test_iso9283_summary_and_orientation)
+{
+  const double rpy[3] = { 0.317, -0.208, 1.093 }, hp[3] = { 0.412, -0.133, 0.287 };
+  const double qa[3] = { 0.3, 0.2, 0.4 }, qb[3] = { 0.6, -0.1, -0.5 };
+  const double a[3] = { 1e-3, 2e-3, 3e-3 }, b[3] = { -2e-3, 0.0, -1e-3 }, dx[5] = { 1e-4, -1e-4, 0, 2e-4, 2e-4 };
+  twf_model *m = make_model(rpy, hp);
+  twf_campaign *c = twf_campaign_alloc(3, 5, 5);
+  twf_pose B, F, T;
+  twf_iso9283 *r;
+  twf_error err;
+  size_t i;
+  int k;
+  B.p[0] = 2.1; B.p[1] = -0.4; B.p[2] = 0.3;
+  twf_rpy_fixed_xyz_to_rot(0.3, -0.2, 1.1, B.R);
+  for (i = 0; i < 5; i++) {
+    const double *q = i < 3 ? qa : qb;
+    snprintf(c->pose_ids[i], TWF_NAME_MAX, "v%zu", i);
+    memcpy(c->q + 3 * i, q, 3 * sizeof *q);
+    fk_by_hand(m, q, &F);
+    twf_pose_mul(&B, &F, &T);
+    c->meas[i].pose = i;
+    c->meas[i].target = 0;
+    c->meas[i].set = TWF_SET_FIT;
+    twf_pose_apply(&T, m->targets[0].offset, c->meas[i].pos);
+    /* along the tracker's x: the distances are what the figures see */
+    c->meas[i].pos[0] += dx[i];
+    c->meas[i].quat[0] = 1.0;
+    if (i < 3) {
+      double D[3][3], Rb[3][3], Rt[3][3];
+      int u, v, w;
+      twf_rpy_fixed_xyz_to_rot(a[i], b[i], 0.5e-3, D);
+      for (u = 0; u < 3; u++)
+        for (v = 0; v < 3; v++) {
+          Rb[u][v] = 0.0;
+          for (w = 0; w < 3; w++)
+            Rb[u][v] += D[u][w] * F.R[w][v];
+        }
+      for (u = 0; u < 3; u++)
+        for (v = 0; v < 3; v++) {
+          Rt[u][v] = 0.0;
+          for (w = 0; w < 3; w++)
+            Rt[u][v] += B.R[u][w] * Rb[w][v];
+        }
+      c->meas[i].has_orientation = 1;
+      twf_rot_to_quat(Rt, c->meas[i].quat);
+    }
+  }
+  c->has_orientation_any = 1;
+  r = twf_accuracy_iso9283(m, &B, NULL, c, NULL, &err);
+  ck_assert_msg(r != NULL, "%s", err.message);
+  ck_assert_uint_eq(r->n_groups, 2);
+  ck_assert_uint_eq(r->n_entries, 2);
+  ck_assert(fabs(r->entries[0].ap_p) < 1e-12);
+  ck_assert_close(r->entries[0].rp, 2.398717e-4, 1e-6);
+  ck_assert_close(r->entries[1].ap_p, 2e-4, 1e-9);
+  ck_assert(fabs(r->entries[1].rp) < 1e-12);
+  ck_assert_close(r->ap_p_max, 2e-4, 1e-9);
+  ck_assert_uint_eq(r->ap_p_worst, 1);
+  ck_assert_close(r->rp_max, 2.398717e-4, 1e-6);
+  ck_assert_uint_eq(r->rp_worst, 0);
+  ck_assert_uint_eq(r->min_cycles, 2);
+  ck_assert_uint_eq(r->max_cycles, 3);
+  ck_assert_uint_eq(r->n_orientation, 1);
+  ck_assert_uint_eq(r->orientation[0].group, 0);
+  ck_assert_uint_eq(r->orientation[0].n, 3);
+  {
+    const double ap[3] = { 2e-3, -1e-3, 0.5e-3 }, rp[3] = { 3e-3, 3e-3, 0.0 };
+    for (k = 0; k < 3; k++) {
+      ck_assert_msg(fabs(r->orientation[0].ap[k] - ap[k]) < 1e-12, "AP %d: %.15g", k, r->orientation[0].ap[k]);
+      ck_assert_msg(fabs(r->orientation[0].rp[k] - rp[k]) < 1e-11, "RP %d: %.15g", k, r->orientation[0].rp[k]);
+    }
+  }
+  ck_assert_close(r->ap_angle_max, 2e-3, 1e-9);
+  ck_assert_close(r->rp_angle_max, 3e-3, 1e-8);
+  ck_assert_int_eq(TWF_ISO9283_CYCLES, 30);
+  twf_iso9283_free(r);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
+START_TEST(test_acceptance)
+{
+  /* the check set when it has rows, else the fit set; a NaN angle fails */
+  twf_accuracy_summary s;
+  twf_acceptance_limits lim = { 1e-4, 0, 3e-4, 0 };
+  twf_acceptance a;
+  twf_error err;
+  memset(&s, 0, sizeof s);
+  s.position[TWF_SET_FIT].count = 10;
+  s.position[TWF_SET_FIT].rms = 0.9e-4;
+  s.position[TWF_SET_FIT].max = 2e-4;
+  s.orientation[TWF_SET_FIT].max = NAN;
+  ck_assert_int_eq(twf_accuracy_accept(&s, &lim, &a, &err), TWF_OK);
+  ck_assert_int_eq(a.set, TWF_SET_FIT);
+  ck_assert_uint_eq(a.n_limits, 2);
+  ck_assert(a.accepted && a.pass[TWF_ACCEPT_RMS] && a.pass[TWF_ACCEPT_MAX] && !a.pass[TWF_ACCEPT_P95]);
+  s.position[TWF_SET_CHECK].count = 3;
+  s.position[TWF_SET_CHECK].rms = 1.1e-4;
+  s.position[TWF_SET_CHECK].max = 2e-4;
+  ck_assert_int_eq(twf_accuracy_accept(&s, &lim, &a, &err), TWF_OK);
+  ck_assert_int_eq(a.set, TWF_SET_CHECK);
+  ck_assert(!a.accepted && !a.pass[TWF_ACCEPT_RMS] && a.pass[TWF_ACCEPT_MAX]);
+  lim.angle_max_rad = 1e-3;
+  s.orientation[TWF_SET_CHECK].max = NAN;
+  lim.rms_m = 0;
+  ck_assert_int_eq(twf_accuracy_accept(&s, &lim, &a, &err), TWF_OK);
+  ck_assert(!a.accepted && !a.pass[TWF_ACCEPT_ANGLE_MAX]);
+  lim.max_m = -1;
+  ck_assert_int_eq(twf_accuracy_accept(&s, &lim, &a, &err), TWF_ERR_INVALID);
+}
+END_TEST
+
 /* 100,000 poses, each commanded pose visited twice far apart in the
  * campaign: grouping by sorting, not pairwise comparison (which would take
  * 5e9 comparisons and time out). Every visit pair gives one entry with
@@ -543,6 +674,8 @@ static Suite *accuracy_suite(void)
   tcase_add_test(tc, test_summary_by_hand);
   tcase_add_test(tc, test_iso9283_worked_example);
   tcase_add_test(tc, test_iso9283_large);
+  tcase_add_test(tc, test_iso9283_summary_and_orientation);
+  tcase_add_test(tc, test_acceptance);
   tcase_set_timeout(tc, 30);
   suite_add_tcase(s, tc);
   return s;

@@ -17,7 +17,7 @@ static double prediction_rms(const twf_model *m, const twf_pose *B, const twf_mo
 {
   double *q = calloc(m->n_joints, sizeof *q), sum = 0.0;
   size_t i, k, count = 0;
-  unsigned long long s = seed;
+  unsigned long long s = twf_test_seed(seed);
   for (i = 0; i < n; i++) {
     twf_pose F, T, Ft, Tt;
     twf_simulate_joints(truth, 0.05, &s, q);
@@ -75,7 +75,7 @@ static void check_count(test_arm arm, size_t n_targets, int full_pose, size_t ex
   /* targets of unknown offset: they enter as fitted parameters */
   test_tracker_base(&B);
   so.n_poses = 60;
-  so.seed = 5;
+  so.seed = twf_test_seed(5);
   so.targets = sel;
   so.orientation = full_pose;
   so.sigma_rad = 0.0;
@@ -129,11 +129,11 @@ static twf_status run_scenario(scenario *s, test_arm arm, size_t n_poses, double
   memset(s, 0, sizeof *s);
   s->nominal = test_arm_model(arm);
   s->truth = twf_model_copy(s->nominal);
-  twf_model_perturb(s->truth, &typical, seed);
+  twf_model_perturb(s->truth, &typical, twf_test_seed(seed));
   test_tracker_base(&s->base);
   so.n_poses = n_poses;
   so.sigma_m = sigma;
-  so.seed = seed + 100;
+  so.seed = twf_test_seed(seed + 100);
   so.check_fraction = 0.25;
   s->c = twf_simulate_campaign(s->truth, &s->base, &so, &err);
   ck_assert_ptr_nonnull(s->c);
@@ -163,9 +163,9 @@ START_TEST(test_recovery_noise_free)
     ck_assert(twf_stop_converged(s.res->solve.stop));
     rms = prediction_rms(s.res->asbuilt, &s.res->base_in_tracker, s.truth, &s.base, 1000, 77);
     ck_assert_msg(rms < 1e-9, "%s: prediction RMS %.3g m", s.nominal->name, rms);
-    ck_assert(rms_of(s.res->residual_after, s.res->meas_set, s.res->n_meas, TWF_SET_CHECK) < 1e-9);
+    ck_assert(rms_of(s.res->pos_err_after, s.res->meas_set, s.res->n_meas, TWF_SET_CHECK) < 1e-9);
     /* the errors were real: before calibration they were far larger */
-    ck_assert(rms_of(s.res->residual_before, s.res->meas_set, s.res->n_meas, TWF_SET_FIT) > 1e-4);
+    ck_assert(rms_of(s.res->pos_err_before, s.res->meas_set, s.res->n_meas, TWF_SET_FIT) > 1e-4);
     free_scenario(&s);
   }
 }
@@ -180,7 +180,7 @@ START_TEST(test_recovery_with_noise)
   scenario s;
   double check, pred;
   ck_assert_int_eq(run_scenario(&s, ARM_TF6S, 200, sigma, 31, NULL), TWF_OK);
-  check = rms_of(s.res->residual_after, s.res->meas_set, s.res->n_meas, TWF_SET_CHECK);
+  check = rms_of(s.res->pos_err_after, s.res->meas_set, s.res->n_meas, TWF_SET_CHECK);
   pred = prediction_rms(s.res->asbuilt, &s.res->base_in_tracker, s.truth, &s.base, 1000, 78);
   ck_assert_msg(check <= 1.2 * sigma * sqrt(3.0), "check RMS %.4g mm", check * 1e3);
   ck_assert_msg(pred <= 3 * sigma, "prediction RMS %.4g mm", pred * 1e3);
@@ -280,14 +280,14 @@ START_TEST(test_offsets_only_remaster)
   twf_error err;
   twf_pose B;
   size_t i;
-  twf_model_perturb(previous, &typical, 51);
+  twf_model_perturb(previous, &typical, twf_test_seed(51));
   truth = twf_model_copy(previous);
   for (i = 0; i < 6; i++)
     truth->joints[i].offset += injected[i];
   test_tracker_base(&B);
   so.n_poses = 24;
   so.sigma_m = sigma;
-  so.seed = 52;
+  so.seed = twf_test_seed(52);
   c = twf_simulate_campaign(truth, &B, &so, &err);
   co.groups = TWF_GROUPS_REMASTER;
   co.sigma_length = sigma;
@@ -302,10 +302,27 @@ START_TEST(test_offsets_only_remaster)
     snprintf(name, sizeof name, "j%zu.offset", i + 1);
     pr = find_param(res, name);
     ck_assert_int_eq(pr->status, TWF_PARAM_KEPT);
-    ck_assert_msg(fabs(pr->value - injected[i]) < 4 * pr->std,
-                  "%s: %.6g rad recovered, %.6g injected, std %.3g", name, pr->value,
+    ck_assert_msg(fabs(pr->change - injected[i]) < 4 * pr->std,
+                  "%s: %.6g rad recovered, %.6g injected, std %.3g", name, pr->change,
                   injected[i], pr->std);
   }
+  /* no joint line was fitted: the lines stay the starting model's (no
+   * datum rule), the comparison shows no tilt or shift, and its offsets
+   * are the fitted offset changes (NaN where the offset was fixed) */
+  for (i = 0; i < 6; i++) {
+    int k;
+    for (k = 0; k < 6; k++)
+      ck_assert_double_eq(res->asbuilt->joints[i].twist[k], previous->joints[i].twist[k]);
+    for (k = 0; k < 3; k++)
+      ck_assert_double_eq(res->asbuilt->joints[i].point[k], previous->joints[i].point[k]);
+    ck_assert(isnan(res->comparison.joints[i].angle_rad));
+    ck_assert(isnan(res->comparison.joints[i].distance_m));
+    if (i == 0 || i == 5)
+      ck_assert(isnan(res->comparison.joints[i].offset));
+    else
+      ck_assert_double_eq(res->comparison.joints[i].offset, res->comparison.joints[i].offset_raw);
+  }
+  ck_assert_uint_eq(res->groups, TWF_GROUPS_REMASTER);
   twf_calib_result_free(res);
   twf_campaign_free(c);
   twf_model_free(previous);
@@ -327,10 +344,10 @@ START_TEST(test_joint_never_moves)
   twf_pose B;
   size_t i, fixed = 0;
   int named = 0;
-  twf_model_perturb(truth, &typical, 61);
+  twf_model_perturb(truth, &typical, twf_test_seed(61));
   test_tracker_base(&B);
   so.n_poses = 60;
-  so.seed = 62;
+  so.seed = twf_test_seed(62);
   so.sigma_m = 2e-5;
   c = twf_simulate_campaign(truth, &B, &so, &err);
   /* re-measure with joint 6 frozen */
@@ -360,6 +377,17 @@ START_TEST(test_joint_never_moves)
     if (strstr(w.items[i].message, "joint j6 moved through 0 deg in the fit poses") != NULL)
       named = 1;
   ck_assert_msg(named, "no warning names joint j6 (%zu warnings)", w.count);
+  /* the joints whose parameters were fixed on these poses are marked, the
+   * others not */
+  for (i = 0; i < 6; i++) {
+    unsigned want = 0;
+    size_t k;
+    for (k = 0; k < res->n_params; k++)
+      if (res->params[k].status == TWF_PARAM_FIXED_DATA && res->params[k].param.joint == (long)i)
+        want |= TWF_GROUP_BIT(res->params[k].param.group);
+    ck_assert_uint_eq(res->joint_undetermined[i], want);
+  }
+  ck_assert_uint_ne(res->joint_undetermined[5] | res->joint_undetermined[4], 0);
   twf_warnings_clear(&w);
   twf_calib_result_free(res);
   twf_campaign_free(c);
@@ -382,12 +410,12 @@ START_TEST(test_narrow_joint_warning)
   twf_error err;
   twf_pose B;
   size_t i, hits = 0;
-  twf_model_perturb(truth, &typical, 95);
+  twf_model_perturb(truth, &typical, twf_test_seed(95));
   truth->joints[5].limit_lo = -6.6 * 3.14159265358979323846 / 180.0;
   truth->joints[5].limit_hi = 6.6 * 3.14159265358979323846 / 180.0;
   test_tracker_base(&B);
   so.n_poses = 60;
-  so.seed = 195;
+  so.seed = 195; /* fixed: the message checked below names the 11.7 deg this stream covers */
   so.sigma_m = 3e-5;
   c = twf_simulate_campaign(truth, &B, &so, &err);
   co.sigma_length = 3e-5;
@@ -424,11 +452,11 @@ START_TEST(test_gross_outliers)
     memset(&s, 0, sizeof s);
     s.nominal = test_arm_model(ARM_TF6S);
     s.truth = twf_model_copy(s.nominal);
-    twf_model_perturb(s.truth, &typical, 71);
+    twf_model_perturb(s.truth, &typical, twf_test_seed(71));
     test_tracker_base(&s.base);
     so.n_poses = 120;
     so.sigma_m = sigma;
-    so.seed = 72;
+    so.seed = twf_test_seed(72);
     s.c = twf_simulate_campaign(s.truth, &s.base, &so, &err);
     for (k = 0; k < 3; k++)
       s.c->meas[bad[k]].pos[k] += size[k];
@@ -468,14 +496,14 @@ START_TEST(test_orientation_outliers)
   memset(&s, 0, sizeof s);
   s.nominal = test_arm_model(ARM_TF6S);
   s.truth = twf_model_copy(s.nominal);
-  twf_model_perturb(s.truth, &typical, 73);
+  twf_model_perturb(s.truth, &typical, twf_test_seed(73));
   test_tracker_base(&s.base);
   so.n_poses = 300;
   so.sigma_m = sigma;
   so.sigma_rad = sigma_rad;
   so.orientation = 1;
   so.targets = sel;
-  so.seed = 74;
+  so.seed = twf_test_seed(74);
   s.c = twf_simulate_campaign(s.truth, &s.base, &so, &err);
   for (k = 0; k < 4; k++) {
     double R[3][3], E[3][3], Rn[3][3];
@@ -581,7 +609,7 @@ START_TEST(test_parallel_axes_well_conditioned)
                 sp.res->condition_number < 2 * ss.res->condition_number,
                 "condition number %.4g (tf6s %.4g)", sp.res->condition_number, ss.res->condition_number);
   ck_assert_uint_eq(sp.res->n_kept, 4 * 6 + 3 * 2);
-  check = rms_of(sp.res->residual_after, sp.res->meas_set, sp.res->n_meas, TWF_SET_CHECK);
+  check = rms_of(sp.res->pos_err_after, sp.res->meas_set, sp.res->n_meas, TWF_SET_CHECK);
   ck_assert_msg(check <= 1.2 * sigma * sqrt(3.0), "check RMS %.4g mm", check * 1e3);
   free_scenario(&sp);
   free_scenario(&ss);
@@ -680,7 +708,7 @@ START_TEST(test_fit_screened_figures)
     dropped += s.res->outliers[k].weight == 0.0;
   for (i = 0; i < s.c->n_meas; i++) {
     int out = 0;
-    const double *e = s.res->residual_after + 3 * i;
+    const double *e = s.res->pos_err_after + 3 * i;
     if (s.res->meas_set[i] != TWF_SET_FIT)
       continue;
     n_fit++;
@@ -700,16 +728,174 @@ START_TEST(test_fit_screened_figures)
   ck_assert_uint_ge(dropped, 3);
   ck_assert_uint_eq(s.res->n_dropped, dropped);
   ck_assert_uint_eq(s.res->fit_screened.count, n);
-  ck_assert_uint_eq(s.res->accuracy_after->position[TWF_SET_FIT].count, n_fit);
+  /* the main figures are over the rows the fit kept; the dropped ones
+   * are figures of their own */
+  ck_assert_uint_eq(s.res->accuracy_after->position[TWF_SET_FIT].count, n);
+  ck_assert_uint_eq(s.res->accuracy_before->position[TWF_SET_FIT].count, n);
+  ck_assert_uint_eq(s.res->excluded_after[TWF_SET_FIT].count, dropped);
+  ck_assert_uint_eq(s.res->excluded_before[TWF_SET_FIT].count, dropped);
   ck_assert_uint_eq(n_fit, s.res->n_fit_meas);
+  ck_assert_double_eq(s.res->accuracy_after->position[TWF_SET_FIT].rms, s.res->fit_screened.rms);
   ck_assert_close(s.res->fit_screened.mean, sum / (double)n, 1e-12);
   ck_assert_close(s.res->fit_screened.rms, sqrt(ss / (double)n), 1e-12);
   ck_assert_close(s.res->fit_screened.max, mx, 1e-15);
   ck_assert_close(s.res->fit_screened.p95, p95, 1e-12);
   /* the dropped rows are what makes the difference */
-  ck_assert(s.res->fit_screened.max < s.res->accuracy_after->position[TWF_SET_FIT].max);
+  ck_assert(s.res->fit_screened.max < s.res->excluded_after[TWF_SET_FIT].max);
+  for (i = 0; i < s.c->n_meas; i++) {
+    int out = 0;
+    for (k = 0; k < s.res->n_outliers; k++)
+      out |= s.res->outliers[k].meas == i && s.res->outliers[k].weight == 0.0;
+    ck_assert_int_eq(s.res->excluded[i] == TWF_EXCLUDED_DROPPED, out);
+  }
   free(len);
   free_scenario(&s);
+}
+END_TEST
+
+START_TEST(test_check_gross_error_flagged)
+{
+  /* a 3 mm gross error in a check row: flagged against the fit's robust
+   * scale, left out of the check figures (which then describe the arm),
+   * kept in the every-row figures, and the verdict says it used the
+   * screened check set */
+  scenario s;
+  twf_calib_options co = twf_calib_default_options();
+  twf_warnings w;
+  twf_error err;
+  size_t i, bad = SIZE_MAX, n_check = 0;
+  double ss = 0.0;
+  co.sigma_length = 4e-5;
+  gross_scenario(&s, &co);
+  for (i = 0; i < s.c->n_meas && bad == SIZE_MAX; i++)
+    if (s.res->meas_set[i] == TWF_SET_CHECK)
+      bad = i;
+  twf_calib_result_free(s.res);
+  s.res = NULL;
+  s.c->meas[bad].pos[1] += 3e-3;
+  twf_warnings_init(&w);
+  ck_assert_int_eq(twf_calibrate(s.nominal, s.c, &co, &s.res, &w, &err), TWF_OK);
+  ck_assert_uint_eq(s.res->n_check_flagged, 1);
+  ck_assert_uint_eq(s.res->check_flagged[0].meas, bad);
+  ck_assert(s.res->check_flagged[0].score > co.robust_threshold);
+  ck_assert_int_eq(s.res->excluded[bad], TWF_EXCLUDED_FLAGGED);
+  for (i = 0; i < s.c->n_meas; i++)
+    if (s.res->meas_set[i] == TWF_SET_CHECK && i != bad) {
+      const double *e = s.res->pos_err_after + 3 * i;
+      ss += e[0] * e[0] + e[1] * e[1] + e[2] * e[2];
+      n_check++;
+    }
+  ck_assert_uint_eq(s.res->accuracy_after->position[TWF_SET_CHECK].count, n_check);
+  ck_assert_close(s.res->accuracy_after->position[TWF_SET_CHECK].rms, sqrt(ss / (double)n_check), 1e-12);
+  ck_assert_uint_eq(s.res->check_all_after.count, n_check + 1);
+  ck_assert(s.res->check_all_after.rms > 3 * s.res->accuracy_after->position[TWF_SET_CHECK].rms);
+  ck_assert_uint_eq(s.res->excluded_after[TWF_SET_CHECK].count, 1);
+  ck_assert_int_eq(s.res->verdict_basis, TWF_BASIS_CHECK_SCREENED);
+  ck_assert_int_eq(s.res->verdict, TWF_VERDICT_IMPROVED);
+  ck_assert_double_eq(s.res->verdict_after.rms, s.res->accuracy_after->position[TWF_SET_CHECK].rms);
+  {
+    int named = 0;
+    for (i = 0; i < w.count; i++)
+      named |= strstr(w.items[i].message, "check-set measurement") != NULL;
+    ck_assert(named);
+  }
+  /* with the screen off nothing is flagged */
+  twf_calib_result_free(s.res);
+  s.res = NULL;
+  co.robust = TWF_ROBUST_OFF;
+  ck_assert_int_eq(twf_calibrate(s.nominal, s.c, &co, &s.res, NULL, &err), TWF_OK);
+  ck_assert_uint_eq(s.res->n_check_flagged, 0);
+  ck_assert_int_eq(s.res->verdict_basis, TWF_BASIS_CHECK);
+  twf_warnings_clear(&w);
+  free_scenario(&s);
+}
+END_TEST
+
+/* The documented verdict rule, on the figures the result carries. */
+static twf_calib_verdict verdict_rule(const twf_calib_result *r)
+{
+  if (!(r->verdict_after.rms <= (1.0 + TWF_VERDICT_WORSE_MARGIN) * r->verdict_before.rms))
+    return TWF_VERDICT_DO_NOT_USE;
+  return r->verdict_after.rms > TWF_VERDICT_IMPROVED_RATIO * r->verdict_before.rms ? TWF_VERDICT_NOT_IMPROVED
+                                                                                  : TWF_VERDICT_IMPROVED;
+}
+
+START_TEST(test_verdict)
+{
+  /* a full calibration of a perturbed arm improves the check set; fitting
+   * the base alone (what the registration did already) does not; the
+   * verdict follows the rule on the check figures of the same rows */
+  scenario s;
+  twf_calib_options co = twf_calib_default_options();
+  twf_error err;
+  co.sigma_length = 4e-5;
+  gross_scenario(&s, &co);
+  ck_assert_int_eq(s.res->verdict, TWF_VERDICT_IMPROVED);
+  ck_assert_int_eq(s.res->verdict, verdict_rule(s.res));
+  ck_assert_int_eq(s.res->verdict_basis, TWF_BASIS_CHECK);
+  ck_assert_double_eq(s.res->verdict_before.rms, s.res->accuracy_before->position[TWF_SET_CHECK].rms);
+  ck_assert_str_eq(twf_calib_verdict_name(TWF_VERDICT_DO_NOT_USE), "do not use");
+  twf_calib_result_free(s.res);
+  s.res = NULL;
+  co.groups = TWF_GROUP_BIT(TWF_GROUP_BASE);
+  ck_assert_int_eq(twf_calibrate(s.nominal, s.c, &co, &s.res, NULL, &err), TWF_OK);
+  ck_assert_int_ne(s.res->verdict, TWF_VERDICT_IMPROVED);
+  ck_assert_int_eq(s.res->verdict, verdict_rule(s.res));
+  free_scenario(&s);
+}
+END_TEST
+
+START_TEST(test_record_history)
+{
+  /* a model's as-built record moves under record1., then record2., in
+   * place; a model without a record is left alone */
+  twf_model *m = test_arm_model(ARM_TF6S);
+  twf_error err;
+  long n = -1;
+  ck_assert_int_eq(twf_asbuilt_record_push(m, &n, &err), TWF_OK);
+  ck_assert_int_eq(n, 0);
+  ck_assert_uint_eq(m->n_meta, 0);
+  twf_model_meta_set(m, "created", "2026-01-01");
+  twf_model_meta_set(m, "rms_after_fit", "0.03 mm");
+  ck_assert_int_eq(twf_asbuilt_record_push(m, &n, &err), TWF_OK);
+  ck_assert_int_eq(n, 1);
+  ck_assert_str_eq(twf_model_meta_get(m, "record1.created"), "2026-01-01");
+  ck_assert_ptr_null(twf_model_meta_get(m, "created"));
+  twf_model_meta_set(m, "created", "2026-02-01");
+  ck_assert_int_eq(twf_asbuilt_record_push(m, &n, &err), TWF_OK);
+  ck_assert_int_eq(n, 2);
+  ck_assert_str_eq(twf_model_meta_get(m, "record1.created"), "2026-01-01");
+  ck_assert_str_eq(twf_model_meta_get(m, "record2.created"), "2026-02-01");
+  ck_assert_str_eq(m->meta[0].key, "record1.created");
+  ck_assert_uint_eq(m->n_meta, 3);
+  twf_model_free(m);
+}
+END_TEST
+
+START_TEST(test_check_limits)
+{
+  /* joint 2 put outside its limits: counted, and one warning in the
+   * model's units naming where */
+  twf_model *m = test_arm_model(ARM_TF6S);
+  double q[6] = { 0, 0, 0, 0, 0, 0 };
+  twf_warnings w;
+  twf_warnings_init(&w);
+  m->joints[1].has_limits = 1;
+  m->joints[1].limit_lo = -0.5;
+  m->joints[1].limit_hi = 0.5;
+  ck_assert_uint_eq(twf_model_check_limits(m, q, "the home pose", &w), 0);
+  q[1] = 0.5; /* inclusive */
+  ck_assert_uint_eq(twf_model_check_limits(m, q, "the home pose", &w), 0);
+  q[1] = 0.6;
+  ck_assert_uint_eq(twf_model_check_limits(m, q, "pose p1", &w), 1);
+  ck_assert_uint_eq(w.count, 1);
+  ck_assert_msg(strstr(w.items[0].message, "pose p1: joint") != NULL &&
+                    strstr(w.items[0].message, "is outside its limits") != NULL,
+                "%s", w.items[0].message);
+  ck_assert_uint_eq(twf_model_check_limits(m, q, NULL, NULL), 1);
+  ck_assert_uint_eq(twf_model_check_limits(NULL, q, NULL, NULL), 0);
+  twf_warnings_clear(&w);
+  twf_model_free(m);
 }
 END_TEST
 
@@ -834,6 +1020,10 @@ int main(void)
   tcase_add_test(fit, test_bad_calls);
   tcase_add_test(fit, test_registration_matches_verify_sequence);
   tcase_add_test(fit, test_fit_screened_figures);
+  tcase_add_test(fit, test_check_gross_error_flagged);
+  tcase_add_test(fit, test_verdict);
+  tcase_add_test(fit, test_record_history);
+  tcase_add_test(fit, test_check_limits);
   tcase_add_test(fit, test_trace);
   tcase_add_test(fit, test_hints_without_options);
   suite_add_tcase(s, counts);

@@ -128,9 +128,9 @@ START_TEST(test_kdl_campaign_with_noise)
   ref_run r;
   double before, check, fit, pred;
   run_ref(&r, "tests/fixtures/kdl_campaign.csv");
-  before = rms_of(r.res, r.res->residual_before, TWF_SET_CHECK);
-  check = rms_of(r.res, r.res->residual_after, TWF_SET_CHECK);
-  fit = rms_of(r.res, r.res->residual_after, TWF_SET_FIT);
+  before = rms_of(r.res, r.res->pos_err_before, TWF_SET_CHECK);
+  check = rms_of(r.res, r.res->pos_err_after, TWF_SET_CHECK);
+  fit = rms_of(r.res, r.res->pos_err_after, TWF_SET_FIT);
   pred = truth_rms(r.res, r.truth);
   fprintf(stderr, "check_calib_ref: noisy: check RMS before %.4f mm, after %.5f mm "
           "(limit %.5f), fit %.5f mm, prediction %.5f mm (limit %.5f), outliers %zu\n",
@@ -157,7 +157,7 @@ START_TEST(test_kdl_campaign_noise_free)
   ref_run r;
   double check, pred;
   run_ref(&r, "tests/fixtures/kdl_campaign_nonoise.csv");
-  check = rms_of(r.res, r.res->residual_after, TWF_SET_CHECK);
+  check = rms_of(r.res, r.res->pos_err_after, TWF_SET_CHECK);
   pred = truth_rms(r.res, r.truth);
   fprintf(stderr, "check_calib_ref: noise-free: check RMS %.3g mm, prediction %.3g mm "
           "(limit 1e-6 mm)\n", check * 1e3, pred * 1e3);

@@ -13,6 +13,8 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/resource.h>
+#include <sys/wait.h>
 #include <unistd.h>
 
 #define PI 3.14159265358979323846
@@ -71,7 +73,7 @@ static char *slurp(const char *path)
   fseek(f, 0, SEEK_SET);
   buf = malloc((size_t)n + 1);
   ck_assert_ptr_nonnull(buf);
-  ck_assert_int_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
+  ck_assert_uint_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
   buf[n] = '\0';
   fclose(f);
   return buf;
@@ -401,6 +403,40 @@ START_TEST(test_units_declared)
 }
 END_TEST
 
+/* The reader converts with units.c (twf_length_to_si), the arithmetic of
+ * the reports that divide by twf_length_unit_si: 3.1 is a value where
+ * 3.1 / 1e3 and 3.1 * 1e-3 differ in the last bit, so a reader with a
+ * conversion of its own shows here. */
+START_TEST(test_one_unit_conversion)
+{
+  twf_model *m = tf6s();
+  twf_campaign *c;
+  char text[1024];
+  size_t j;
+  make_tmpdir();
+  snprintf(text, sizeof text, "# units: length=mm angle=mrad\npose,target");
+  for (j = 0; j < m->n_joints; j++)
+    snprintf(text + strlen(text), sizeof text - strlen(text), ",%s", m->joints[j].name);
+  snprintf(text + strlen(text), sizeof text - strlen(text), ",x,y,z,sigma\np1,%s",
+           m->targets[0].name);
+  for (j = 0; j < m->n_joints; j++)
+    snprintf(text + strlen(text), sizeof text - strlen(text), ",3.1");
+  snprintf(text + strlen(text), sizeof text - strlen(text), ",3.1,0,-3.1,0.0031\n");
+  write_file(tmppath("u.csv"), text);
+  c = read_ok(tmppath("u.csv"), m, NULL, NULL);
+  for (j = 0; j < m->n_joints; j++)
+    ck_assert(c->q[j] == (m->joints[j].type == TWF_JOINT_PRISMATIC
+                              ? twf_length_to_si(3.1, TWF_LENGTH_MM)
+                              : twf_angle_to_si(3.1, TWF_ANGLE_MRAD)));
+  ck_assert(c->meas[0].pos[0] == twf_length_to_si(3.1, TWF_LENGTH_MM));
+  ck_assert(c->meas[0].pos[2] == twf_length_to_si(-3.1, TWF_LENGTH_MM));
+  ck_assert(c->meas[0].sigma == twf_length_to_si(0.0031, TWF_LENGTH_MM));
+  twf_campaign_free(c);
+  twf_model_free(m);
+  remove_tmpdir();
+}
+END_TEST
+
 START_TEST(test_units_override)
 {
   twf_model *m = tf6s();
@@ -409,19 +445,31 @@ START_TEST(test_units_override)
   twf_campaign *c;
   twf_warnings_init(&w);
   o.length_from_caller = 1;
-  o.length_unit = TWF_LENGTH_M;
+  o.length_unit = TWF_LENGTH_UM;
   o.angle_from_caller = 1;
   o.angle_unit = TWF_ANGLE_RAD;
   c = read_ok(data("tests/data/campaign-one.csv"), m, &o, &w);
-  /* The file's numbers taken as metres and radians unchanged. */
+  /* The file's numbers taken as micrometres and radians unchanged. */
   ck_assert(c->q[1] == -33.25);
-  ck_assert(c->meas[0].pos[0] == 1503.2871);
-  ck_assert(c->meas[0].sigma == 0.025);
+  ck_assert(c->meas[0].pos[0] == twf_length_to_si(1503.2871, TWF_LENGTH_UM));
+  ck_assert(c->meas[0].sigma == twf_length_to_si(0.025, TWF_LENGTH_UM));
   /* The file declares mm and deg: both overrides are reported. */
-  ck_assert(warned(&w, "declares length=mm; reading m"));
+  ck_assert(warned(&w, "declares length=mm; reading um"));
   ck_assert(warned(&w, "declares angle=deg; reading rad"));
   twf_campaign_free(c);
   twf_warnings_clear(&w);
+
+  /* Millimetres read as metres: 1503 m is beyond the plausible range. */
+  {
+    twf_error err;
+    o = twf_campaign_default_options();
+    o.length_from_caller = 1;
+    o.length_unit = TWF_LENGTH_M;
+    ck_assert_ptr_null(twf_campaign_read(data("tests/data/campaign-one.csv"), m, &o, NULL, &err));
+    ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+    ck_assert_int_eq(err.column, 9);
+    ck_assert_ptr_nonnull(strstr(err.message, "column 'x': 1503.29 m lies beyond 1000 m"));
+  }
 
   /* Only the angle imposed: lengths keep the file's mm. */
   twf_warnings_init(&w);
@@ -440,9 +488,9 @@ START_TEST(test_units_override)
   twf_warnings_init(&w);
   o = twf_campaign_default_options();
   o.length_from_caller = 1;
-  o.length_unit = TWF_LENGTH_IN;
+  o.length_unit = TWF_LENGTH_UM;
   c = read_ok(data("tests/data/campaign-one-semicolon.csv"), m, &o, &w);
-  ck_assert_close(c->meas[0].pos[0], 1503.2871 * 0.0254, 1e-15);
+  ck_assert(c->meas[0].pos[0] == twf_length_to_si(1503.2871, TWF_LENGTH_UM));
   ck_assert_uint_eq(w.count, 0);
   twf_campaign_free(c);
   twf_warnings_clear(&w);
@@ -966,6 +1014,336 @@ START_TEST(test_many_poses)
 END_TEST
 
 /* ------------------------------------------------------------------ */
+/* Input limits: lines, size, encodings                                */
+/* ------------------------------------------------------------------ */
+
+/* A campaign file with a comment line of n characters above the data of
+ * tests/data/campaign-one.csv, with LF or CR LF line ends. */
+static void write_with_long_comment(const char *path, size_t n, int crlf)
+{
+  char *text = slurp(data("tests/data/campaign-one.csv"));
+  FILE *f = fopen(path, "wb");
+  size_t k;
+  ck_assert_ptr_nonnull(f);
+  fputc('#', f);
+  for (k = 1; k < n; k++)
+    fputc('-', f);
+  fputs(crlf ? "\r\n" : "\n", f);
+  fputs(text, f);
+  ck_assert_int_eq(fclose(f), 0);
+  free(text);
+}
+
+/* A line longer than TWF_CAMPAIGN_LINE_MAX stops the reading at that line
+ * (an endless line would otherwise spin or grow memory); a line of exactly
+ * the limit, with either line end, is read. */
+START_TEST(test_line_limit)
+{
+  twf_model *m = tf6s();
+  twf_campaign *c;
+  twf_error err;
+  make_tmpdir();
+  write_with_long_comment(tmppath("at-limit.csv"), TWF_CAMPAIGN_LINE_MAX, 0);
+  c = read_ok(tmppath("at-limit.csv"), m, NULL, NULL);
+  twf_campaign_free(c);
+  write_with_long_comment(tmppath("at-limit-crlf.csv"), TWF_CAMPAIGN_LINE_MAX, 1);
+  c = read_ok(tmppath("at-limit-crlf.csv"), m, NULL, NULL);
+  twf_campaign_free(c);
+  write_with_long_comment(tmppath("over.csv"), TWF_CAMPAIGN_LINE_MAX + 1, 0);
+  ck_assert_ptr_null(twf_campaign_read(tmppath("over.csv"), m, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
+  ck_assert_int_eq(err.line, 1);
+  ck_assert_str_eq(err.message, "line is longer than 65536 characters: reading stopped there");
+  ck_assert(err.hint[0] != '\0');
+  /* CR CR LF (a CR LF file converted once more) is not CR-only. */
+  {
+    char *text = slurp(data("tests/data/campaign-one.csv")), *o;
+    char *out = malloc(3 * strlen(text) + 1);
+    const char *s;
+    for (s = text, o = out; *s; s++) {
+      if (*s == '\n') {
+        *o++ = '\r';
+        *o++ = '\r';
+      }
+      *o++ = *s;
+    }
+    *o = '\0';
+    write_file(tmppath("crcrlf.csv"), out);
+    c = read_ok(tmppath("crcrlf.csv"), m, NULL, NULL);
+    twf_campaign_free(c);
+    free(out);
+    free(text);
+  }
+  /* A long data line after good ones: its own line number. */
+  {
+    FILE *f = fopen(tmppath("long-row.csv"), "wb");
+    size_t k;
+    fputs("pose,target,j1,j2,j3,j4,j5,j6,x,y,z\n"
+          "p01,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1503.2871,-212.4409,987.1153\n"
+          "p02,T1,1", f);
+    for (k = 0; k < 3 * (size_t)TWF_CAMPAIGN_LINE_MAX; k++)
+      fputc('0', f);
+    fclose(f);
+  }
+  ck_assert_ptr_null(twf_campaign_read(tmppath("long-row.csv"), m, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
+  ck_assert_int_eq(err.line, 3);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
+/* max_input_size: a file of exactly the limit is read, one byte more is
+ * refused before memory grows (0 keeps the default). */
+START_TEST(test_size_limit)
+{
+  twf_model *m = tf6s();
+  twf_campaign_options o = twf_campaign_default_options();
+  char *text = slurp(data("tests/data/campaign-one.csv"));
+  size_t n = strlen(text);
+  char want[128];
+  twf_campaign *c;
+  twf_error err;
+  ck_assert(o.max_input_size == TWF_INPUT_SIZE_DEFAULT);
+  ck_assert(TWF_INPUT_SIZE_DEFAULT == 2147483648ULL);
+  o.max_input_size = n;
+  c = read_ok(data("tests/data/campaign-one.csv"), m, &o, NULL);
+  twf_campaign_free(c);
+  o.max_input_size = 0;
+  c = read_ok(data("tests/data/campaign-one.csv"), m, &o, NULL);
+  twf_campaign_free(c);
+  o.max_input_size = n - 1;
+  ck_assert_ptr_null(twf_campaign_read(data("tests/data/campaign-one.csv"), m, &o, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+  ck_assert_int_eq(err.line, 0);
+  snprintf(want, sizeof want, "the file is larger than the input size limit of %zu bytes", n - 1);
+  ck_assert_str_eq(err.message, want);
+  ck_assert_ptr_nonnull(strstr(err.hint, "max_input_size"));
+  /* the two-file form: each file against the limit */
+  o.max_input_size = 1024;
+  ck_assert_ptr_null(twf_campaign_read_pair(data("tests/data/campaign-joints.csv"),
+                                            data("tests/data/campaign-one.csv"), m, &o, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+  ck_assert_ptr_nonnull(strstr(err.message, "limit of 1 KiB"));
+  free(text);
+  twf_model_free(m);
+}
+END_TEST
+
+/* A pose id that starts with '#' makes its row a comment by the
+ * documented rule: a comment line with exactly the shape of a data row
+ * gives one warning per file (how many, the first line and id); other
+ * comments, and rows with the id quoted, give none. */
+START_TEST(test_rowlike_comment_warns)
+{
+  static const char head[] = "pose,target,j1,j2,j3,j4,j5,j6,x,y,z\n"
+      "p01,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1503.2871,-212.4409,987.1153\n"
+      "p02,T1,-47.875,15.625,-22.5,61.25,-54.125,-128.75,1219.5532,904.3317,1377.2081\n";
+  static const char row3[] = "p03,T1,1,2,3,4,5,6,1256.0248,877.1194,1354.4487\n";
+  twf_model *m = tf6s();
+  twf_warnings w;
+  twf_campaign *c;
+  char text[2048];
+  make_tmpdir();
+  snprintf(text, sizeof text, "%s# checked by the operator\n# pose,target,x\n"
+           "#p09,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1503.2871,-212.4409\n%s"
+           "\"#p04\",T2,1,2,3,4,5,6,1,2,3\n", head, row3);
+  write_file(tmppath("plain.csv"), text);
+  twf_warnings_init(&w);
+  c = read_ok(tmppath("plain.csv"), m, NULL, &w);
+  ck_assert_uint_eq(c->n_poses, 4);
+  ck_assert_str_eq(c->pose_ids[3], "#p04");
+  ck_assert_uint_eq(w.count, 0);
+  twf_campaign_free(c);
+  twf_warnings_clear(&w);
+
+  snprintf(text, sizeof text, "%s#p05,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1,2,3\n%s"
+           "  # p06 , T2 ,1,2,3,4,5,6, 1 , 2 , 3 \n", head, row3);
+  write_file(tmppath("rowlike.csv"), text);
+  twf_warnings_init(&w);
+  c = read_ok(tmppath("rowlike.csv"), m, NULL, &w);
+  ck_assert_uint_eq(c->n_poses, 3);
+  ck_assert_uint_eq(w.count, 1);
+  ck_assert_int_eq(w.items[0].line, 4);
+  ck_assert_int_eq(w.items[0].column, 1);
+  ck_assert_ptr_nonnull(strstr(w.items[0].message, "2 comment lines below the header have the "
+                                                   "shape of a data row and are skipped, the "
+                                                   "first with pose id '#p05'"));
+  twf_campaign_free(c);
+  twf_warnings_clear(&w);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
+/* Millimetre data declared as metres: the measured points spread a
+ * thousand times farther than the arm reaches. The campaign is simulated
+ * on tf4p and centred on the tracker's origin, so that every coordinate
+ * stays below the 1 km range check and only the spread tells. */
+START_TEST(test_units_against_reach)
+{
+  twf_model *m = test_arm_model(ARM_TF4P);
+  twf_simulate_options so = twf_simulate_default_options();
+  twf_pose I;
+  twf_campaign *c, *back;
+  twf_error err;
+  double mean[3] = { 0, 0, 0 }, maxabs = 0;
+  size_t k;
+  char *text, *u;
+  FILE *f;
+  make_tmpdir();
+  twf_pose_identity(&I);
+  so.n_poses = 20;
+  c = twf_simulate_campaign(m, &I, &so, &err);
+  ck_assert_ptr_nonnull(c);
+  for (k = 0; k < c->n_meas; k++)
+    for (int a = 0; a < 3; a++)
+      mean[a] += c->meas[k].pos[a] / (double)c->n_meas;
+  for (k = 0; k < c->n_meas; k++)
+    for (int a = 0; a < 3; a++) {
+      c->meas[k].pos[a] -= mean[a];
+      maxabs = fmax(maxabs, fabs(c->meas[k].pos[a]));
+    }
+  ck_assert(maxabs < 1.0); /* below 1000 mm */
+  f = fopen(tmppath("mm.csv"), "w");
+  ck_assert_int_eq(twf_campaign_write(c, m, TWF_LENGTH_MM, TWF_ANGLE_DEG, f, &err), TWF_OK);
+  fclose(f);
+  back = read_ok(tmppath("mm.csv"), m, NULL, NULL);
+  twf_campaign_free(back);
+  text = slurp(tmppath("mm.csv"));
+  u = strstr(text, "length=mm");
+  ck_assert_ptr_nonnull(u);
+  memmove(u + 8, u + 9, strlen(u + 9) + 1); /* length=m */
+  write_file(tmppath("as-m.csv"), text);
+  ck_assert_ptr_null(twf_campaign_read(tmppath("as-m.csv"), m, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_UNITS);
+  ck_assert_ptr_nonnull(strstr(err.message, "check the units: the measured points spread over"));
+  ck_assert_ptr_nonnull(strstr(err.hint, "length="));
+  free(text);
+  twf_campaign_free(c);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
+/* The campaign carries the size and SHA-256 of the bytes each reader
+ * parsed, in the order read (reference digests: Python's hashlib). A
+ * file replaced after reading keeps the digest of what was read. */
+START_TEST(test_input_digests)
+{
+  static const char joints[] = "pose,j1,j2,j3,j4,j5,j6\n"
+                               "p01,12.5,-33.25,41.125,-7.75,28.375,93.5\n";
+  static const char want[] =
+      "7a7632f1e4d3370803b111c3b16a3a294aa0a6ce57478076d784581a94874eb3";
+  twf_model *m = tf6s();
+  twf_campaign *c;
+  make_tmpdir();
+  write_file(tmppath("j.csv"), joints);
+  c = twf_campaign_read_joints(tmppath("j.csv"), m, NULL, NULL, NULL);
+  ck_assert_ptr_nonnull(c);
+  write_file(tmppath("j.csv"), "replaced\n");
+  ck_assert_uint_eq(c->n_inputs, 1);
+  ck_assert_str_eq(c->inputs[0].sha256, want);
+  ck_assert(c->inputs[0].size == 64);
+  twf_campaign_free(c);
+  write_file(tmppath("j.csv"), joints);
+  write_file(tmppath("p.csv"), "pose,target,x,y,z\np01,T1,1,2,3\np01,T2,1,2,4\n");
+  c = read_pair_ok(tmppath("j.csv"), tmppath("p.csv"), m, NULL, NULL);
+  ck_assert_uint_eq(c->n_inputs, 2);
+  ck_assert_str_eq(c->inputs[0].sha256, want);
+  ck_assert_uint_eq(strlen(c->inputs[1].sha256), 64);
+  ck_assert(c->inputs[1].size == 44);
+  twf_campaign_free(c);
+  c = twf_campaign_alloc(6, 1, 1);
+  ck_assert_uint_eq(c->n_inputs, 0);
+  twf_campaign_free(c);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
+/* Load: a campaign of 200,000 poses and 3 targets (600,000 rows, about
+ * 60 MB) reads within the memory twistfit-data(5) states: the text read
+ * whole plus the campaign, at most 4 times the file's size. The reader
+ * runs in a child process, whose peak resident size (getrusage) is
+ * compared before and after; not under AddressSanitizer, whose shadow
+ * memory and quarantine change the figures (there the reading is
+ * checked only). */
+#if defined(__SANITIZE_ADDRESS__)
+#define TWF_TEST_ASAN 1
+#elif defined(__has_feature)
+#if __has_feature(address_sanitizer)
+#define TWF_TEST_ASAN 1
+#endif
+#endif
+
+START_TEST(test_load_200k_poses)
+{
+  enum { N_POSES = 200000 };
+  twf_model *m = tf6s();
+  FILE *f;
+  size_t p;
+  long size;
+  int fds[2], status;
+  pid_t pid;
+  long grown_kib = -1;
+  make_tmpdir();
+  f = fopen(tmppath("large.csv"), "w");
+  ck_assert_ptr_nonnull(f);
+  fputs("# units: length=mm angle=deg\npose,target,j1,j2,j3,j4,j5,j6,x,y,z\n", f);
+  for (p = 0; p < N_POSES; p++) {
+    double a = -150.0 + 300.0 * (double)(p % 9973) / 9973.0;
+    for (int t = 1; t <= 3; t++)
+      fprintf(f, "p%06zu,T%d,%.4f,%.4f,12.5,-7.75,28.375,%.4f,%.4f,%.4f,%.4f\n", p, t,
+              a, a / 3.0, -a, 1500.0 + a, -200.0 + t, 900.0 - a / 2.0);
+  }
+  size = ftell(f);
+  ck_assert_int_eq(fclose(f), 0);
+  ck_assert(pipe(fds) == 0);
+  pid = fork();
+  ck_assert(pid >= 0);
+  if (pid == 0) {
+    struct rusage before, after;
+    twf_error err;
+    twf_campaign *c;
+    long out[3];
+    close(fds[0]);
+    getrusage(RUSAGE_SELF, &before);
+    c = twf_campaign_read(tmppath("large.csv"), m, NULL, NULL, &err);
+    getrusage(RUSAGE_SELF, &after);
+    out[0] = c != NULL && c->n_poses == N_POSES && c->n_meas == 3 * N_POSES &&
+             strcmp(c->pose_ids[N_POSES - 1], "p199999") == 0;
+    out[1] = after.ru_maxrss - before.ru_maxrss; /* KiB on Linux */
+    out[2] = c != NULL ? 0 : (long)err.line;
+    if (write(fds[1], out, sizeof out) != (ssize_t)sizeof out)
+      _exit(2);
+    _exit(0);
+  }
+  close(fds[1]);
+  {
+    long in[3] = { 0, 0, 0 };
+    ck_assert(read(fds[0], in, sizeof in) == (ssize_t)sizeof in);
+    close(fds[0]);
+    ck_assert(waitpid(pid, &status, 0) == pid);
+    ck_assert_msg(in[0] == 1, "the large campaign was not read (error at line %ld)", in[2]);
+    grown_kib = in[1];
+  }
+#ifndef TWF_TEST_ASAN
+  /* valgrind's own bookkeeping counts in the peak (CI's valgrind step and
+   * configure --enable-valgrind set this): there only correctness holds */
+  if (getenv("TWF_TEST_UNDER_VALGRIND") == NULL)
+    ck_assert_msg((double)grown_kib * 1024.0 <= 4.0 * (double)size,
+                  "reading %ld bytes grew the peak memory by %ld KiB, more than 4 times the file",
+                  size, grown_kib);
+#endif
+  fprintf(stderr, "check_campaign: 200,000 poses: %ld bytes read, peak memory grew by %ld KiB\n",
+          size, grown_kib);
+  remove_tmpdir();
+  twf_model_free(m);
+}
+END_TEST
+
+/* ------------------------------------------------------------------ */
 /* The examples of twistfit-data(5) are read as they stand             */
 /* ------------------------------------------------------------------ */
 
@@ -1034,6 +1412,7 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_bom_crlf_comments);
   tcase_add_test(tc, test_units_declared);
   tcase_add_test(tc, test_units_override);
+  tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_six_d);
   tcase_add_test(tc, test_limit_warning);
   tcase_add_test(tc, test_limit_error_and_tolerance);
@@ -1043,11 +1422,21 @@ static Suite *campaign_suite(void)
   tcase_add_test(tc, test_bad_campaigns);
   tcase_add_test(tc, test_arguments);
   tcase_add_test(tc, test_many_poses);
+  tcase_add_test(tc, test_line_limit);
+  tcase_add_test(tc, test_size_limit);
+  tcase_add_test(tc, test_rowlike_comment_warns);
+  tcase_add_test(tc, test_units_against_reach);
+  tcase_add_test(tc, test_input_digests);
   tcase_add_test(tc, test_man_examples);
   suite_add_tcase(s, tc);
   tc = tcase_create("write");
   tcase_add_test(tc, test_roundtrip);
   tcase_add_test(tc, test_write_groups_by_pose);
+  suite_add_tcase(s, tc);
+  /* about 2 s; more under the sanitizers */
+  tc = tcase_create("load");
+  tcase_set_timeout(tc, 300);
+  tcase_add_test(tc, test_load_200k_poses);
   suite_add_tcase(s, tc);
   return s;
 }

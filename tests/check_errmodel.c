@@ -44,7 +44,7 @@ static void check_arm(test_arm arm, unsigned groups, unsigned long long seed)
   size_t p, j, k, trial;
   double q[8];
   ck_assert_ptr_nonnull(m);
-  twf_model_perturb(m, &mag, seed);
+  twf_model_perturb(m, &mag, twf_test_seed(seed));
   test_tracker_base(&B);
   em = twf_errmodel_alloc(m, groups, NULL);
   ck_assert_ptr_nonnull(em);
@@ -87,12 +87,12 @@ static void check_arm(test_arm arm, unsigned groups, unsigned long long seed)
         for (a = 0; a < 3; a++) {
           double fd = (yp[a] - ym[a]) / (2 * h);
           double fdr = -(rp[a] - rm[a]) / (2 * h); /* rows hold G = -dr/dp */
-          ck_assert_msg(twf_test_close(rows[a * p + j], fd, 1e-7),
+          ck_assert_msg(twf_test_close(rows[(size_t)a * p + j], fd, 1e-7),
                         "%s: point row %d of %s: analytic %.12g, finite difference %.12g (seed %llu)",
-                        m->name, a, twf_errmodel_param(em, j)->name, rows[a * p + j], fd, seed);
-          ck_assert_msg(fabs(fdr - orows[a * p + j]) <= 1e-7 * fmax(1.0, fabs(fdr)),
+                        m->name, a, twf_errmodel_param(em, j)->name, rows[(size_t)a * p + j], fd, seed);
+          ck_assert_msg(fabs(fdr - orows[(size_t)a * p + j]) <= 1e-7 * fmax(1.0, fabs(fdr)),
                         "%s: orientation row %d of %s: analytic %.12g, finite difference %.12g",
-                        m->name, a, twf_errmodel_param(em, j)->name, orows[a * p + j], fdr);
+                        m->name, a, twf_errmodel_param(em, j)->name, orows[(size_t)a * p + j], fdr);
         }
       }
     }

@@ -15,6 +15,8 @@
  *  - the examples of twistfit-model(5) load and agree with each other. */
 #include "testutil.h"
 #include "twistfit.h"
+/* the first pass's key-comparison counter (test_many_asbuilt_keys) */
+#include "io/modelfile_internal.h"
 
 #include <dirent.h>
 #include <errno.h>
@@ -84,7 +86,7 @@ static char *slurp(const char *path)
   fseek(f, 0, SEEK_SET);
   buf = malloc((size_t)n + 1);
   ck_assert_ptr_nonnull(buf);
-  ck_assert_int_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
+  ck_assert_uint_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
   buf[n] = '\0';
   fclose(f);
   return buf;
@@ -311,7 +313,7 @@ END_TEST
 
 START_TEST(test_dh_files_match_axis_files)
 {
-  uint64_t seed = twf_test_seed(SEED);
+  uint64_t seed = twf_test_seed(SEED + 1);
   twf_test_rng rng;
   const char *pairs[2][2] = { { "tf6s-dh", "tf6s" }, { "tf7-mdh", "tf7" } };
   twf_test_rng_init(&rng, seed);
@@ -369,7 +371,7 @@ static const arm arms[] = {
 
 START_TEST(test_dh_tables_match_axis_files)
 {
-  uint64_t seed = twf_test_seed(SEED);
+  uint64_t seed = twf_test_seed(SEED + 2);
   twf_test_rng rng;
   twf_test_rng_init(&rng, seed);
   for (size_t k = 0; k < sizeof arms / sizeof arms[0]; k++) {
@@ -443,7 +445,7 @@ static void perturb(twf_test_rng *rng, twf_model *m)
 
 START_TEST(test_random_models_roundtrip)
 {
-  uint64_t seed = twf_test_seed(SEED);
+  uint64_t seed = twf_test_seed(SEED + 3);
   twf_test_rng rng;
   twf_test_rng_init(&rng, seed);
   for (int trial = 0; trial < 240; trial++) {
@@ -475,10 +477,10 @@ START_TEST(test_extreme_values_roundtrip)
   m->length_unit = TWF_LENGTH_UM;
   m->angle_unit = TWF_ANGLE_MRAD;
   m->home.p[0] = -1.2345678901234567e-300;
-  m->home.p[1] = 9.8765432109876543e+250;
+  m->home.p[1] = 9.8765432109876543e+2; /* up to TWF_READ_LENGTH_MAX */
   m->home.p[2] = -2.2250738585072014e-308;
   m->targets[0].offset[0] = -4.9406564584124654e-324; /* subnormal */
-  m->joints[0].limit_lo = -1.7976931348623157e+300;
+  m->joints[0].limit_lo = -9.9999999999999982e+3; /* up to TWF_READ_ANGLE_MAX */
   /* As a file gives it: the double nearest -1.1111111111111111e-197 mrad
    * divided by 1000 (not every double in rad is one of those). */
   m->joints[3].offset = -1.1111111111111111e-197 / 1e3;
@@ -490,6 +492,19 @@ START_TEST(test_extreme_values_roundtrip)
   ck_assert(back->targets[0].offset[0] == m->targets[0].offset[0]);
   ck_assert(back->joints[0].limit_lo == m->joints[0].limit_lo);
   ck_assert(back->joints[3].offset == m->joints[3].offset);
+  /* Beyond the range the reader accepts, the writer refuses too. */
+  {
+    twf_error err;
+    FILE *f = tmpfile();
+    ck_assert_ptr_nonnull(f);
+    m->joints[0].limit_lo = -1.7976931348623157e+300;
+    ck_assert_int_eq(twf_model_write(m, f, &err), TWF_ERR_INVALID);
+    m->joints[0].limit_lo = -1.0;
+    m->home.p[1] = 9.8765432109876543e+250;
+    ck_assert_int_eq(twf_model_write(m, f, &err), TWF_ERR_INVALID);
+    ck_assert_int_eq(ftell(f), 0);
+    fclose(f);
+  }
   free(text);
   twf_model_free(m);
   twf_model_free(back);
@@ -779,6 +794,122 @@ START_TEST(test_long_names_and_limit_line)
 }
 END_TEST
 
+/* A line beyond the read stage's stop (TWF_CAMPAIGN_LINE_MAX) ends the
+ * reading there instead of scanning an endless line. */
+START_TEST(test_endless_line_stops)
+{
+  char path[4096];
+  twf_error err;
+  FILE *f;
+  size_t k;
+  temp_name(path, sizeof path);
+  f = fopen(path, "wb");
+  ck_assert_ptr_nonnull(f);
+  fputs("[robot]\nname = x\n;", f);
+  for (k = 0; k < 2 * (size_t)TWF_CAMPAIGN_LINE_MAX; k++)
+    fputc('-', f);
+  fclose(f);
+  ck_assert_ptr_null(twf_model_read(path, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
+  ck_assert_int_eq(err.line, 3);
+  ck_assert_str_eq(err.message, "line is longer than 65536 characters, more than "
+                                "the limit of 198: reading stopped there");
+  ck_assert(err.hint[0] != '\0');
+  remove(path);
+}
+END_TEST
+
+/* twf_model_read_with: a file of exactly max_input_size bytes is read,
+ * one byte more is refused. */
+START_TEST(test_size_limit)
+{
+  char *text = slurp(sample_path("tf6s"));
+  size_t n = strlen(text);
+  twf_read_options o = twf_read_default_options();
+  twf_model *m;
+  twf_error err;
+  ck_assert(o.max_input_size == TWF_INPUT_SIZE_DEFAULT);
+  o.max_input_size = n;
+  m = twf_model_read_with(sample_path("tf6s"), &o, NULL, NULL, &err);
+  ck_assert_ptr_nonnull(m);
+  twf_model_free(m);
+  o.max_input_size = n - 1;
+  ck_assert_ptr_null(twf_model_read_with(sample_path("tf6s"), &o, NULL, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+  ck_assert_ptr_nonnull(strstr(err.message, "larger than the input size limit"));
+  free(text);
+}
+END_TEST
+
+/* twf_model_read_with hands out the size and SHA-256 of the bytes it
+ * parsed (reference: Python's hashlib); nothing on failure. */
+START_TEST(test_input_digest)
+{
+  static const char text[] = "[robot]\nname = x\n[joint j1]\ntype = revolute\n"
+                             "axis = 0 0 1\npoint = 0 0 0\n[home]\nposition = 0 0 0\n"
+                             "quaternion_wxyz = 1 0 0 0\n";
+  char path[4096];
+  twf_input_digest d;
+  twf_error err;
+  twf_model *m;
+  temp_name(path, sizeof path);
+  write_text(path, text);
+  m = twf_model_read_with(path, NULL, NULL, &d, &err);
+  ck_assert_ptr_nonnull(m);
+  ck_assert_str_eq(d.sha256, "788118a0ca0978a5b21edf1a3c79c432b0e4374dafa624243aba210e9c950858");
+  ck_assert(d.size == 121);
+  twf_model_free(m);
+  write_text(path, "[robot]\n");
+  ck_assert_ptr_null(twf_model_read_with(path, NULL, NULL, &d, &err));
+  ck_assert_str_eq(d.sha256, "");
+  remove(path);
+}
+END_TEST
+
+/* Many [asbuilt] keys read in linear time: the first pass's key
+ * comparisons (a counter of the reader, not a clock) stay within a small
+ * multiple of the number of keys, where a look-up per key would make
+ * n^2 / 2 (800 million for 40,000 keys); every key is kept, in order, and
+ * a repeat at the end is still found with its first line. */
+START_TEST(test_many_asbuilt_keys)
+{
+  enum { N = 40000 };
+  char path[4096];
+  twf_error err;
+  twf_model *m;
+  parse_ctx c;
+  FILE *f;
+  temp_name(path, sizeof path);
+  f = fopen(path, "w");
+  ck_assert_ptr_nonnull(f);
+  fputs("[robot]\nname = x\n[joint j1]\ntype = revolute\naxis = 0 0 1\npoint = 0 0 0\n"
+        "[home]\nposition = 0 0 0\nquaternion_wxyz = 1 0 0 0\n[asbuilt]\n", f);
+  for (int k = 0; k < N; k++)
+    fprintf(f, "key%d = value %d\n", k, k);
+  fclose(f);
+  memset(&c, 0, sizeof c);
+  c.ini.path = path;
+  c.ini.err = &err;
+  ck_assert_int_eq(twf_mf_parse_structure(&c), TWF_OK);
+  ck_assert_uint_le(c.n_key_compares, 2 * (unsigned long)N);
+  twf_mf_ctx_clear(&c);
+  m = read_ok(path, NULL);
+  ck_assert_uint_eq(m->n_meta, N);
+  ck_assert_str_eq(m->meta[0].key, "key0");
+  ck_assert_str_eq(m->meta[N - 1].key, "key39999");
+  ck_assert_str_eq(twf_model_meta_get(m, "key12345"), "value 12345");
+  twf_model_free(m);
+  f = fopen(path, "a");
+  fputs("key17 = again\n", f);
+  fclose(f);
+  ck_assert_ptr_null(twf_model_read(path, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_DUPLICATE);
+  ck_assert_int_eq(err.line, 10 + N + 1);
+  ck_assert_ptr_nonnull(strstr(err.message, "key 'key17' appears twice in [asbuilt] (first at line 28)"));
+  remove(path);
+}
+END_TEST
+
 /* Units: the same arm in m/rad, um/mrad and in/deg; 1 in = 25.4 mm exactly
  * (international inch, 1959: common practice, no source in the project). */
 START_TEST(test_units)
@@ -818,6 +949,33 @@ START_TEST(test_units)
   ck_assert(m->joints[0].offset == 0.01);
   ck_assert(m->joints[0].scale == -1.0001);
   ck_assert(m->joints[0].limit_lo == -2.0);
+  twf_model_free(m);
+  remove(path);
+}
+END_TEST
+
+/* Every reader converts with units.c (twf_length_to_si), the arithmetic
+ * of the reports that divide by twf_length_unit_si: 3.1 is a value where
+ * 3.1 / 1e3 and 3.1 * 1e-3 differ in the last bit, so a reader with a
+ * conversion of its own shows here. */
+START_TEST(test_one_unit_conversion)
+{
+  char path[4096];
+  twf_model *m;
+  temp_name(path, sizeof path);
+  ck_assert(3.1 / 1e3 != 3.1 * 1e-3);
+  write_text(path,
+             "[robot]\nlength_unit = mm\nangle_unit = mrad\n"
+             "[joint a]\ntype = revolute\naxis = 1 0 0\npoint = 0 3.1 0\n"
+             "offset = 3.1\n"
+             "[home]\nposition = 3.1 0 0\nquaternion_wxyz = 1 0 0 0\n"
+             "[target T]\noffset = 0 0 3.1\n");
+  m = read_ok(path, NULL);
+  ck_assert(m->joints[0].point[1] == twf_length_to_si(3.1, TWF_LENGTH_MM));
+  ck_assert(m->joints[0].point[1] == 3.1 * twf_length_unit_si(TWF_LENGTH_MM));
+  ck_assert(m->joints[0].offset == twf_angle_to_si(3.1, TWF_ANGLE_MRAD));
+  ck_assert(m->home.p[0] == twf_length_to_si(3.1, TWF_LENGTH_MM));
+  ck_assert(m->targets[0].offset[2] == twf_length_to_si(3.1, TWF_LENGTH_MM));
   twf_model_free(m);
   remove(path);
 }
@@ -989,7 +1147,7 @@ START_TEST(test_man_page_examples)
   char paths[2][4096];
   twf_model *m[2];
   int nb = 0;
-  uint64_t seed = twf_test_seed(SEED);
+  uint64_t seed = twf_test_seed(SEED + 4);
   twf_test_rng rng;
   ck_assert_ptr_nonnull(sec);
   end = strstr(sec + 1, "\n.SH ");
@@ -1025,7 +1183,7 @@ START_TEST(test_man_page_examples)
     temp_name(paths[k], sizeof paths[k]);
     write_text(paths[k], blocks[k]);
     m[k] = read_ok(paths[k], &w);
-    ck_assert_int_eq(w.count, 0);
+    ck_assert_uint_eq(w.count, 0);
     remove(paths[k]);
     free(blocks[k]);
   }
@@ -1058,7 +1216,12 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_null_arguments);
   tcase_add_test(tc, test_reader_tolerates_layout);
   tcase_add_test(tc, test_long_names_and_limit_line);
+  tcase_add_test(tc, test_endless_line_stops);
+  tcase_add_test(tc, test_size_limit);
+  tcase_add_test(tc, test_input_digest);
+  tcase_add_test(tc, test_many_asbuilt_keys);
   tcase_add_test(tc, test_units);
+  tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_rotation_rows_polished);
   tcase_add_test(tc, test_writer_refuses);
   tcase_add_test(tc, test_writer_metadata_and_points);

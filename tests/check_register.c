@@ -113,7 +113,7 @@ static void load_fixtures(void)
     k->n++;
   }
   fclose(fp);
-  ck_assert_int_ge(n_cases, 8);
+  ck_assert_uint_ge(n_cases, 8);
   for (size_t i = 0; i < n_cases; i++)
     ck_assert_msg(cases[i].n == cases[i].n_expected && cases[i].n >= 3,
                   "case %s: %zu points, results say %zu", cases[i].name,
@@ -212,8 +212,8 @@ START_TEST(test_align_reference)
       ck_assert(rot_angle(T.R, k->Rt) > 1e-9);
     }
   }
-  ck_assert_int_ge(n_exact, 4);
-  ck_assert_int_ge(n_noisy, 3);
+  ck_assert_uint_ge(n_exact, 4);
+  ck_assert_uint_ge(n_noisy, 3);
 }
 END_TEST
 
@@ -544,7 +544,7 @@ START_TEST(test_campaign_sigma)
   make_base(&B);
   c = make_campaign(m, &B, 20, NULL, 0, 303);
   for (i = 0; i < c->n_meas; i++)
-    c->meas[i].sigma = (i % 3 == 0) ? 0.0 : 2.5e-5 * (1 + i % 4);
+    c->meas[i].sigma = (i % 3 == 0) ? 0.0 : 2.5e-5 * (double)(1 + i % 4);
   twf_register_offsets_init(m, t);
   ck_assert_int_eq(twf_register_campaign(m, c, NULL, &Bf, t, &rep, NULL), TWF_OK);
   assert_pose_close(&Bf, &B, 1e-9, 1.5);

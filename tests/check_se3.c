@@ -702,10 +702,5 @@ static Suite *se3_suite(void)
 
 int main(void)
 {
-  unsigned long long seed = twf_test_seed(SEED);
-  int rc = twf_test_run(se3_suite());
-  if (rc != 0)
-    fprintf(stderr, "check_se3: failed with base seed %#llx (set TWF_TEST_SEED "
-                    "to repeat)\n", seed);
-  return rc;
+  return twf_test_run(se3_suite());
 }

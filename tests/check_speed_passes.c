@@ -124,12 +124,12 @@ START_TEST(test_calibration_same_bits_for_any_thread_count)
     const twf_calib_result *a = res[0], *b = res[t];
     ck_assert(a->n_params == b->n_params && a->n_kept == b->n_kept && a->n_outliers == b->n_outliers);
     for (k = 0; k < a->n_params; k++) {
-      same_bits(&a->params[k].value, &b->params[k].value, sizeof(double), "a value", t + 1);
+      same_bits(&a->params[k].change, &b->params[k].change, sizeof(double), "a value", t + 1);
       same_bits(&a->params[k].std, &b->params[k].std, sizeof(double), "a standard deviation", t + 1);
       ck_assert(a->params[k].status == b->params[k].status && a->params[k].weak == b->params[k].weak);
     }
     same_bits(&a->base_in_tracker, &b->base_in_tracker, sizeof a->base_in_tracker, "the base", t + 1);
-    same_bits(a->residual_after, b->residual_after, 3 * c->n_meas * sizeof(double), "residuals", t + 1);
+    same_bits(a->pos_err_after, b->pos_err_after, 3 * c->n_meas * sizeof(double), "residuals", t + 1);
     same_bits(a->asbuilt->joints, b->asbuilt->joints, m->n_joints * sizeof *m->joints, "the joints", t + 1);
     same_bits(&a->solve, &b->solve, sizeof a->solve, "the solver's report", t + 1);
     same_bits(&a->registration, &b->registration, sizeof a->registration, "the registration", t + 1);

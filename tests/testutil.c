@@ -17,12 +17,35 @@ int twf_test_close(double a, double b, double tol)
   return fabs(a - b) <= tol * scale;
 }
 
-uint64_t twf_test_seed(uint64_t fallback)
+/* The finalizer of splitmix64 (Steele, Lea and Flood, "Fast splittable
+ * pseudorandom number generators", OOPSLA 2014): a bijection of 64-bit
+ * words in which every input bit moves every output bit, so that nearby
+ * defaults (SEED, SEED + 1) and nearby TWF_TEST_SEED values give unrelated
+ * seeds. */
+static uint64_t mix64(uint64_t z)
+{
+  z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
+  z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
+  return z ^ (z >> 31);
+}
+
+/* TWF_TEST_SEED as given (any strtoull base), or NULL when unset or empty. */
+static const char *env_seed(void)
 {
   const char *s = getenv("TWF_TEST_SEED");
-  if (s != NULL && *s != '\0')
-    return strtoull(s, NULL, 0);
-  return fallback;
+  return s != NULL && *s != '\0' ? s : NULL;
+}
+
+uint64_t twf_test_seed(uint64_t fallback)
+{
+  const char *s = env_seed();
+  uint64_t seed;
+  if (s == NULL)
+    return fallback;
+  /* hash the pair, not the sum: default + value would make test A under
+   * TWF_TEST_SEED=1 repeat test B (default A + 1) under 0 */
+  seed = mix64(mix64((uint64_t)strtoull(s, NULL, 0) ^ 0x9e3779b97f4a7c15ULL) ^ fallback);
+  return seed != 0 ? seed : 0x9e3779b97f4a7c15ULL;
 }
 
 void twf_test_rng_init(twf_test_rng *rng, uint64_t seed)
@@ -70,5 +93,13 @@ int twf_test_run(Suite *s)
   srunner_run_all(sr, CK_NORMAL);
   failed = srunner_ntests_failed(sr);
   srunner_free(sr);
+  if (failed != 0) {
+    const char *seed = env_seed();
+    if (seed != NULL)
+      fprintf(stderr, "random streams: TWF_TEST_SEED=%s (each test's seed a hash of it and the "
+                      "test's default): set it again to repeat\n", seed);
+    else
+      fprintf(stderr, "random streams: the fixed defaults (TWF_TEST_SEED unset)\n");
+  }
   return failed == 0 ? 0 : 1;
 }

@@ -17,8 +17,13 @@ int twf_test_close(double a, double b, double tol);
                   #b, ck_b_, (double)(tol));                                  \
   } while (0)
 
-/* Seeded random numbers (xorshift64*): the seed comes from TWF_TEST_SEED
- * when set, else the given default; printed on failure by the caller. */
+/* Seeded random numbers (xorshift64*). Every random stream of a test starts
+ * from twf_test_seed(its own fixed default): that default itself when
+ * TWF_TEST_SEED is unset, so that a plain run repeats the committed streams;
+ * else a hash of the default and TWF_TEST_SEED, so that setting it gives
+ * every stream a new seed of its own (for one TWF_TEST_SEED, distinct
+ * defaults give distinct seeds). Never 0. twf_test_run prints
+ * the TWF_TEST_SEED in force when a test fails: set it again to repeat. */
 typedef struct twf_test_rng { uint64_t state; } twf_test_rng;
 uint64_t twf_test_seed(uint64_t fallback);
 void twf_test_rng_init(twf_test_rng *rng, uint64_t seed);

@@ -120,6 +120,11 @@ int cli_parse_bounded(const char *command, const char *option, const char *arg, 
 
 /* The safety cautions every report that proposes parameters prints. */
 extern const char cli_safety_text[];
+/* one or many by the count */
+const char *cli_plural(size_t n, const char *one, const char *many);
+/* Why a solver stopped, in plain words ("converged (the cost stopped
+ * decreasing)"). */
+const char *cli_stop_words(twf_stop s);
 
 /* Long-option codes shared by the commands that read a campaign. */
 enum {
@@ -128,6 +133,7 @@ enum {
   CLI_OPT_LENGTH_UNIT,
   CLI_OPT_ANGLE_UNIT,
   CLI_OPT_LIMITS_ERROR,
+  CLI_OPT_MAX_INPUT_SIZE,
   CLI_OPT_FIRST_FREE /* commands number their own options from here */
 };
 #define CLI_INPUT_LONGOPTS                                                     \
@@ -135,7 +141,8 @@ enum {
   { "points", required_argument, NULL, CLI_OPT_POINTS },                       \
   { "length-unit", required_argument, NULL, CLI_OPT_LENGTH_UNIT },             \
   { "angle-unit", required_argument, NULL, CLI_OPT_ANGLE_UNIT },               \
-  { "limits-error", no_argument, NULL, CLI_OPT_LIMITS_ERROR }
+  { "limits-error", no_argument, NULL, CLI_OPT_LIMITS_ERROR },               \
+  { "max-input-size", required_argument, NULL, CLI_OPT_MAX_INPUT_SIZE }
 #define CLI_INPUT_HELP                                                         \
   "      --joints FILE       two-file form: the controller's joint log ...\n"  \
   "      --points FILE       ... and the instrument's points (instead of DATA)\n" \
@@ -144,19 +151,26 @@ enum {
   "      --angle-unit U      angle unit of the joint values (deg, rad, mrad;\n" \
   "                          default: as each file declares, else deg)\n"      \
   "      --limits-error      joint values outside the model's limits are an\n" \
-  "                          error (default: a warning)\n"
+  "                          error (default: a warning)\n"                    \
+  "      --max-input-size N  refuse input files larger than N bytes (suffix\n" \
+  "                          K, M, G, T: binary multiples; default 2G)\n"
 
 /* A model and a campaign read from the command line. */
 typedef struct cli_inputs {
   const char *model_path, *data_path, *joints_path, *points_path;
   const char *paths[6]; /* NULL-terminated list of the input files */
   twf_campaign_options copt;
+  twf_read_options ropt; /* model and base pose files */
+  twf_input_digest model_digest; /* of the model file as read */
   twf_model *model;
   twf_campaign *campaign;
   twf_warnings warnings;
 } cli_inputs;
 
 void cli_inputs_init(cli_inputs *in);
+/* --max-input-size: a byte count with an optional binary suffix K, M, G
+ * or T (KiB... accepted too); returns an exit status. */
+int cli_parse_size(const char *command, const char *value, unsigned long long *out);
 /* Handle one of the CLI_INPUT_LONGOPTS; returns 1 when handled (with
  * *status the exit status of a bad value, else 0). */
 int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *arg,
@@ -167,6 +181,9 @@ int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, 
 void cli_inputs_free(cli_inputs *in);
 /* Add one more input file (a base pose file) to in->paths. */
 void cli_inputs_add_path(cli_inputs *in, const char *path);
+/* "FILE:LINE" of a measurement: the campaign file, or in the two-file
+ * form the points file. */
+void cli_meas_where(const cli_inputs *in, const twf_measurement *ms, char *buf, size_t n);
 
 /* The units reports use: the model's declared ones. */
 typedef struct cli_units {
@@ -182,6 +199,11 @@ void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary 
 void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign *c,
                      const twf_model *m, const cli_units *u);
 json_t *cli_json_number(double v);
+/* v, or 0 when |v| < zero (rounding left-overs); never -0. */
+double cli_clean(double v, double zero);
+/* The quaternion w x y z every output prints: w >= 0 (for w = 0, the
+ * first nonzero component positive), components below 1e-12 as 0. */
+void cli_quat_of(const double R[3][3], double q[4]);
 /* {position: [x y z] (length unit), quaternion_wxyz: [...]} */
 json_t *cli_json_pose(const twf_pose *T, const cli_units *u);
 json_t *cli_json_stats(const twf_stats *s, double unit);

@@ -5,6 +5,7 @@
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
+#include "plan_cli.h"
 
 #include <errno.h>
 #include <getopt.h>
@@ -28,7 +29,7 @@ static const char calibrate_help[] =
   "Options:\n"
   CLI_INPUT_HELP
   "  -o, --output FILE       write the as-built model (model file, axis-and-point form)\n"
-  "      --base-output FILE  write the fitted base pose in the tracker frame\n"
+  "      --base-output FILE  write the fitted base pose in the instrument frame\n"
   "      --json FILE         write the report as JSON ('-': standard output, then the\n"
   "                          text report goes to standard error)\n"
   "      --residuals FILE    write the per-measurement residuals before and after (CSV)\n"
@@ -48,10 +49,16 @@ static const char calibrate_help[] =
   "      --check-fraction F  also hold out this fraction of the poses as check data\n"
   "      --seed N            seed of the held-out draw and of the synthetic pose set\n"
   "      --max-iterations N  solver iterations per fit (default 100)\n"
+  "      --threads N         threads for the passes over the measurements\n"
+  "                          (default: one per core; the result is the same)\n"
   "      --accept-large      accept a result beyond any calibration (noise over 1 mm,\n"
   "                          a joint line over 5 deg or 50 mm from the model's);\n"
   "                          without it such a run fails (exit 5): the data and the\n"
   "                          model then rarely describe the same arm\n"
+  "      --write-anyway      write the model (and base pose) even when the report's\n"
+  "                          conclusion is 'do not use' (worse than the starting model\n"
+  "                          on the check set); recorded in the model's [asbuilt] section;\n"
+  "                          without it such a run writes nothing (exit 5)\n"
   "  -f, --force             replace output files that exist\n"
   "  -h, --help              show this help\n"
   "\n"
@@ -60,7 +67,8 @@ static const char calibrate_help[] =
 
 enum {
   OPT_BASE_OUT = CLI_OPT_FIRST_FREE, OPT_JSON, OPT_RESIDUALS, OPT_FIT, OPT_PRIORITY, OPT_SIGMA,
-  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_ACCEPT_LARGE
+  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_THREADS, OPT_ACCEPT_LARGE,
+  OPT_WRITE_ANYWAY
 };
 
 /* Split a comma list of group names into one mask per name; returns the
@@ -171,6 +179,120 @@ static void explain_text(const twf_calib_result *r, const twf_param_result *p, c
 
 typedef struct digest { const char *path; char hex[40 > SHA256_DIGEST_STRING_LENGTH ? 40 : SHA256_DIGEST_STRING_LENGTH]; } digest;
 
+/* "base, targets, offsets": the groups of a mask, in the default order. */
+static void groups_text(unsigned mask, char *buf, size_t n)
+{
+  size_t used = 0;
+  int g;
+  buf[0] = '\0';
+  for (g = 0; g < TWF_GROUP_COUNT; g++)
+    if (mask & TWF_GROUP_BIT(g)) {
+      int w = snprintf(buf + used, n - used, "%s%s", used ? ", " : "", twf_group_name((twf_group)g));
+      if (w < 0 || used + (size_t)w >= n)
+        break;
+      used += (size_t)w;
+    }
+}
+
+static double len_shown(double v, const cli_units *u) { return v / u->length_si; }
+
+static double norm3(const double *v) { return sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]); }
+
+static void summary_row(FILE *fp, const char *label, const twf_stats *s, const cli_units *u)
+{
+  if (s->count == 0) {
+    fprintf(fp, "    %-34s %7zu %10s %10s %10s\n", label, s->count, "-", "-", "-");
+    return;
+  }
+  fprintf(fp, "    %-34s %7zu %10.*f %10.*f %10.*f\n", label, s->count, u->ldec, len_shown(s->rms, u), u->ldec,
+          len_shown(s->p95, u), u->ldec, len_shown(s->max, u));
+}
+
+/* The errors after calibration of the left-out rows of one kind, listed
+ * when few. */
+static void left_out_errors(FILE *fp, const twf_calib_result *r, unsigned char kind, const cli_units *u)
+{
+  size_t i, n = 0;
+  for (i = 0; i < r->n_meas; i++)
+    if (r->excluded[i] == kind)
+      n++;
+  if (n > 5) {
+    const twf_stats *s = &r->excluded_after[kind == TWF_EXCLUDED_DROPPED ? TWF_SET_FIT : TWF_SET_CHECK];
+    fprintf(fp, "rms %.*f, max %.*f %s", u->ldec, len_shown(s->rms, u), u->ldec, len_shown(s->max, u), u->length);
+    return;
+  }
+  for (i = 0, n = 0; i < r->n_meas; i++)
+    if (r->excluded[i] == kind)
+      fprintf(fp, "%s%.*f", n++ ? ", " : "", u->ldec, len_shown(norm3(r->pos_err_after + 3 * i), u));
+  fprintf(fp, " %s", u->length);
+}
+
+static void print_summary(FILE *fp, const twf_calib_result *r, const cli_units *u, const twf_warnings *w,
+                          const char *fitted)
+{
+  const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
+  int have_check = r->n_check_meas > 0;
+  char label[96];
+  fprintf(fp, "Summary\n");
+  fprintf(fp, "  fitted: %s (%zu parameters estimated)\n", fitted, r->n_kept);
+  fprintf(fp, "  position error |measured - model|, %s:\n", u->length);
+  fprintf(fp, "    %-34s %7s %10s %10s %10s\n", "", "count", "rms", "p95", "max");
+  if (have_check) {
+    const char *which = r->n_check_flagged ? "check, without flagged rows" : "check";
+    snprintf(label, sizeof label, "%s, before", which);
+    summary_row(fp, label, &before->position[TWF_SET_CHECK], u);
+    snprintf(label, sizeof label, "%s, after", which);
+    summary_row(fp, label, &after->position[TWF_SET_CHECK], u);
+    if (r->n_check_flagged) {
+      summary_row(fp, "check, every row, before", &r->check_all_before, u);
+      summary_row(fp, "check, every row, after", &r->check_all_after, u);
+    }
+  } else {
+    summary_row(fp, "fit (no check data), before", &before->position[TWF_SET_FIT], u);
+  }
+  if (have_check)
+    summary_row(fp, "fit, before", &before->position[TWF_SET_FIT], u);
+  summary_row(fp, have_check ? "fit, after" : "fit (no check data), after", &after->position[TWF_SET_FIT], u);
+  fprintf(fp, "  left out of the figures: %zu fit %s dropped by the outlier screen", r->n_dropped,
+          cli_plural(r->n_dropped, "measurement", "measurements"));
+  if (r->n_dropped) {
+    fprintf(fp, "\n    (errors after calibration ");
+    left_out_errors(fp, r, TWF_EXCLUDED_DROPPED, u);
+    fputc(')', fp);
+  }
+  fprintf(fp, ";\n    %zu check %s flagged as gross %s", r->n_check_flagged,
+          cli_plural(r->n_check_flagged, "measurement", "measurements"),
+          cli_plural(r->n_check_flagged, "error", "errors"));
+  if (r->n_check_flagged) {
+    fprintf(fp, " (");
+    left_out_errors(fp, r, TWF_EXCLUDED_FLAGGED, u);
+    fputc(')', fp);
+  }
+  fprintf(fp, "\n");
+  fprintf(fp, "  parameters: %zu estimated, %zu weak, %zu not determined by these poses, %zu fixed as redundant\n",
+          r->n_kept, r->n_weak, r->n_fixed_data, r->n_fixed_structural);
+  fprintf(fp, "  warnings: %zu\n", w->count);
+  fprintf(fp, "  conclusion: %s: %s RMS %.*f -> %.*f %s", twf_calib_verdict_name(r->verdict),
+          twf_verdict_basis_name(r->verdict_basis), u->ldec, len_shown(r->verdict_before.rms, u), u->ldec,
+          len_shown(r->verdict_after.rms, u), u->length);
+  switch (r->verdict) {
+  case TWF_VERDICT_IMPROVED:
+    fprintf(fp, "%s\n", r->verdict_basis == TWF_BASIS_FIT
+                            ? ";\n    no check data, so not validated on held-out poses: hold out poses\n"
+                              "    (--check-fraction) or verify on a new campaign before use"
+                            : "");
+    break;
+  case TWF_VERDICT_NOT_IMPROVED:
+    fprintf(fp, ",\n    less than a tenth better: keep the previous model\n");
+    break;
+  case TWF_VERDICT_DO_NOT_USE:
+    fprintf(fp, ",\n    worse than the starting model: do not use it (no model file is written\n"
+                "    without --write-anyway)\n");
+    break;
+  }
+  fprintf(fp, "\n%s", cli_safety_text);
+}
+
 static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result *r,
                          const twf_calib_options *co, const cli_units *u, const digest *dg, size_t n_dg,
                          const char *created, const twf_warnings *w)
@@ -179,8 +301,11 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   const twf_model *m = in->model;
   const twf_campaign *view = in->campaign;
   const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
-  const twf_stats *screened = &r->fit_screened;
-  char expl[256];
+  int lines_fitted = (r->groups & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
+  int show_tilt = (r->groups & TWF_GROUP_BIT(TWF_GROUP_TILTS)) != 0;
+  int show_offset = (r->groups & TWF_GROUP_BIT(TWF_GROUP_OFFSETS)) != 0;
+  char expl[256], fitted[160], where[TWF_ERROR_TEXT_MAX];
+  groups_text(r->groups, fitted, sizeof fitted);
   fprintf(fp, "twistfit %s calibrate, %s\n", twf_version(), created);
   for (i = 0; i < n_dg; i++)
     fprintf(fp, "input: %s (SHA-256 %s)\n", dg[i].path, dg[i].hex);
@@ -193,55 +318,138 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
           : r->sigma_source == TWF_SIGMA_FROM_ROWS ? "from the rows' sigma column"
                                                    : "given with --sigma");
   fputc('\n', fp);
+  print_summary(fp, r, u, w, fitted);
+
+  if (w->count > 0) {
+    fprintf(fp, "\nWarnings\n");
+    for (i = 0; i < w->count; i++)
+      fprintf(fp, "  - %s\n", w->items[i].message);
+  } else {
+    fprintf(fp, "\nwarnings: none\n");
+  }
+
+  fputc('\n', fp);
   cli_print_accuracy(fp, "Accuracy before calibration (starting model, registered)", before, m, view, u);
   fputc('\n', fp);
-  cli_print_accuracy(fp, "Accuracy after calibration (as-built model)", after, m, view, u);
-  if (screened->count > 0 && r->n_dropped > 0)
-    fprintf(fp, "  fit set without the %zu dropped measurements: count %zu, mean %.*f, rms %.*f, p95 %.*f, max %.*f %s\n",
-            r->n_dropped, screened->count, u->ldec,
-            screened->mean / u->length_si, u->ldec, screened->rms / u->length_si, u->ldec,
-            screened->p95 / u->length_si, u->ldec, screened->max / u->length_si, u->length);
+  {
+    char title[256];
+    snprintf(title, sizeof title, "Accuracy after calibration (calibrated model; fitted: %s)", fitted);
+    cli_print_accuracy(fp, title, after, m, view, u);
+  }
   cli_print_worst(fp, after, view, m, u);
-
-  fprintf(fp, "\nSolver\n");
-  fprintf(fp, "  registration refinement: %d iterations, stop: %s\n", r->registration.iterations,
-          twf_stop_name(r->registration.stop));
-  fprintf(fp, "  calibration: %d iterations, cost %.6g -> %.6g, stop: %s%s\n", r->solve.iterations,
-          r->solve.cost_start, r->solve.cost_end, twf_stop_name(r->solve.stop),
-          twf_stop_converged(r->solve.stop) ? " (converged)" : "");
-  fprintf(fp, "  outlier screen: %s, threshold %.3g robust standard deviations, %d refits\n",
-          robust_name(co->robust), co->robust_threshold, r->robust_rounds);
-  if (r->n_outliers > 0) {
-    fprintf(fp, "  %zu measurements affected (error at the first fit, %s):\n", r->n_outliers, u->length);
-    for (i = 0; i < r->n_outliers; i++) {
-      const twf_outlier *o = &r->outliers[i];
-      const twf_measurement *ms = &view->meas[o->meas];
-      fprintf(fp, "    line %ld: pose %s target %s: %.*f (%.1f robust sd), %s\n", ms->line,
-              view->pose_ids[ms->pose], m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score,
-              o->weight == 0.0 ? "dropped" : "down-weighted");
+  if (r->n_dropped > 0 || r->n_check_flagged > 0) {
+    fprintf(fp, "  left out of both tables (position error, %s):\n", u->length);
+    fprintf(fp, "    %-34s %7s %10s %10s %10s %10s\n", "", "count", "rms before", "max before", "rms after",
+            "max after");
+    for (i = 0; i < 2; i++) {
+      const twf_stats *b = &r->excluded_before[i], *a = &r->excluded_after[i];
+      if (b->count == 0)
+        continue;
+      fprintf(fp, "    %-34s %7zu %10.*f %10.*f %10.*f %10.*f\n",
+              i == TWF_SET_FIT ? "fit, dropped by the outlier screen" : "check, flagged as gross errors", b->count,
+              u->ldec, len_shown(b->rms, u), u->ldec, len_shown(b->max, u), u->ldec, len_shown(a->rms, u), u->ldec,
+              len_shown(a->max, u));
     }
   }
 
-  fprintf(fp, "\nAs-built geometry against the starting model\n");
-  fprintf(fp, "  datum: the base frame that best aligns the as-built joint lines with the\n"
-              "  starting model's (lines at logged zero; RMS misfit %.*f %s)\n",
-          u->ldec, r->comparison.datum_rms_m / u->length_si, u->length);
-  fprintf(fp, "  %-8s %14s %14s %14s\n", "joint", "tilt", "line shift", "offset");
-  fprintf(fp, "  %-8s %14s %14s %14s\n", "", u->angle, u->length, u->angle);
-  for (j = 0; j < m->n_joints; j++) {
-    const twf_joint_deviation *d = &r->comparison.joints[j];
-    char off[32];
-    if (isfinite(d->offset))
-      snprintf(off, sizeof off, "%14.*f", u->adec, d->offset / u->angle_si);
-    else
-      snprintf(off, sizeof off, "%14s", "-");
-    fprintf(fp, "  %-8s %14.*f %14.*f %s%s\n", m->joints[j].name, u->adec, d->angle_rad / u->angle_si,
-            u->ldec, d->distance_m / u->length_si, off,
-            m->joints[j].type != TWF_JOINT_REVOLUTE ? "  (prismatic: direction only)"
-            : isfinite(d->offset)                   ? ""
-                                                    : "  (not shown by the data: absorbed by the targets)");
+  fprintf(fp, "\nSolver\n");
+  fprintf(fp, "  registration refinement: %d %s, %s\n", r->registration.iterations,
+          cli_plural((size_t)r->registration.iterations, "iteration", "iterations"),
+          cli_stop_words(r->registration.stop));
+  fprintf(fp, "  calibration: %d %s, cost %.6g -> %.6g, %s\n", r->solve.iterations,
+          cli_plural((size_t)r->solve.iterations, "iteration", "iterations"), r->solve.cost_start,
+          r->solve.cost_end, cli_stop_words(r->solve.stop));
+  if (co->robust == TWF_ROBUST_OFF)
+    fprintf(fp, "  outlier screen: off\n");
+  else if (r->robust_rounds == 0)
+    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; nothing to screen, no refit\n",
+            robust_name(co->robust), co->robust_threshold);
+  else if (r->robust_rounds == 1)
+    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; refitted once\n",
+            robust_name(co->robust), co->robust_threshold);
+  else
+    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; refitted %d times\n",
+            robust_name(co->robust), co->robust_threshold, r->robust_rounds);
+  if (r->n_outliers > 0) {
+    fprintf(fp, "  %zu fit %s affected (error at the first fit and after calibration, %s):\n", r->n_outliers,
+            cli_plural(r->n_outliers, "measurement", "measurements"), u->length);
+    for (i = 0; i < r->n_outliers; i++) {
+      const twf_outlier *o = &r->outliers[i];
+      const twf_measurement *ms = &view->meas[o->meas];
+      cli_meas_where(in, ms, where, sizeof where);
+      fprintf(fp, "    %s: pose %s target %s: %.*f (%.1f robust sd), after %.*f, %s\n", where,
+              view->pose_ids[ms->pose], m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score,
+              u->ldec, len_shown(norm3(r->pos_err_after + 3 * o->meas), u),
+              o->weight == 0.0 ? "dropped" : "down-weighted");
+    }
   }
-  for (j = 0; j < m->n_targets; j++) {
+  if (r->n_check_flagged > 0) {
+    fprintf(fp, "  %zu check %s flagged (error after calibration, %s; against the fit's robust scale):\n",
+            r->n_check_flagged, cli_plural(r->n_check_flagged, "measurement", "measurements"), u->length);
+    for (i = 0; i < r->n_check_flagged; i++) {
+      const twf_outlier *o = &r->check_flagged[i];
+      const twf_measurement *ms = &view->meas[o->meas];
+      cli_meas_where(in, ms, where, sizeof where);
+      fprintf(fp, "    %s: pose %s target %s: %.*f (%.1f robust sd)\n", where, view->pose_ids[ms->pose],
+              m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score);
+    }
+  }
+
+  if (lines_fitted)
+    fprintf(fp, "\nAs-built joint lines against the starting model (fitted: %s)\n"
+                "  datum: the base frame that best aligns the as-built joint lines with the\n"
+                "  starting model's (lines at logged zero; RMS misfit %.*f %s)\n",
+            fitted, u->ldec, r->comparison.datum_rms_m / u->length_si, u->length);
+  else
+    fprintf(fp, "\nChanges against the starting model (fitted: %s)\n"
+                "  no joint line was fitted: the lines are the starting model's, no tilt or\n"
+                "  line shift is shown%s\n",
+            fitted, show_offset ? "; the offsets are the fitted offset changes" : "");
+  if (show_tilt || lines_fitted || show_offset) {
+    fprintf(fp, "  %-8s", "joint");
+    if (show_tilt) fprintf(fp, " %14s", "tilt");
+    if (lines_fitted) fprintf(fp, " %14s", "line shift");
+    if (show_offset) fprintf(fp, " %14s", "offset");
+    fprintf(fp, "\n  %-8s", "");
+    if (show_tilt) fprintf(fp, " %14s", u->angle);
+    if (lines_fitted) fprintf(fp, " %14s", u->length);
+    if (show_offset) fprintf(fp, " %14s", u->angle);
+    fputc('\n', fp);
+    for (j = 0; j < m->n_joints; j++) {
+      const twf_joint_deviation *d = &r->comparison.joints[j];
+      unsigned und = r->joint_undetermined[j];
+      int nd_tilt = (und & TWF_GROUP_BIT(TWF_GROUP_TILTS)) != 0;
+      int nd_line = (und & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
+      int nd_off = (und & TWF_GROUP_BIT(TWF_GROUP_OFFSETS)) != 0;
+      fprintf(fp, "  %-8s", m->joints[j].name);
+      if (show_tilt) {
+        if (nd_tilt) fprintf(fp, " %14s", "n/d");
+        else fprintf(fp, " %14.*f", u->adec, d->angle_rad / u->angle_si);
+      }
+      if (lines_fitted) {
+        if (nd_line) fprintf(fp, " %14s", "n/d");
+        else fprintf(fp, " %14.*f", u->ldec, d->distance_m / u->length_si);
+      }
+      if (show_offset) {
+        if (nd_off || !isfinite(d->offset)) fprintf(fp, " %14s", nd_off ? "n/d" : "-");
+        else fprintf(fp, " %14.*f", u->adec, d->offset / u->angle_si);
+      }
+      if (und) {
+        char gt[96];
+        groups_text(und, gt, sizeof gt);
+        fprintf(fp, "  (n/d: not determined by these poses (%s; joint range %.3g %s); see the warnings)", gt,
+                r->joint_range[j] / (m->joints[j].type == TWF_JOINT_REVOLUTE ? u->angle_si : u->length_si),
+                m->joints[j].type == TWF_JOINT_REVOLUTE ? u->angle : u->length);
+      }
+      else if (m->joints[j].type != TWF_JOINT_REVOLUTE)
+        fprintf(fp, "  (prismatic: direction only)");
+      else if (show_offset && !isfinite(d->offset))
+        fprintf(fp, "  (offset not shown by the data: absorbed by the %s)",
+                lines_fitted || j + 1 == m->n_joints ? "targets" : "base");
+      fputc('\n', fp);
+    }
+  }
+  for (j = 0; j < m->n_targets && lines_fitted; j++) {
     const double *t = r->comparison.target_change_m + 3 * j;
     if (isnan(t[0]) || !r->target_in_fit[j])
       continue;
@@ -260,9 +468,10 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   if (isfinite(r->comparison.home_distance_m))
     fprintf(fp, "  flange at logged zero: moved %.*f %s\n", u->ldec, r->comparison.home_distance_m / u->length_si,
             u->length);
-  fprintf(fp, "  (tilt, line shift and offset are rotations and shifts of the joint lines at\n"
-              "  logged zero: they do not depend on which redundant parameters were fixed;\n"
-              "  the raw parameters below do)\n");
+  if (lines_fitted)
+    fprintf(fp, "  (tilt, line shift and offset are rotations and shifts of the joint lines at\n"
+                "  logged zero: they do not depend on which redundant parameters were fixed;\n"
+                "  the raw parameters below do)\n");
 
   fprintf(fp, "\nIdentifiability\n");
   fprintf(fp, "  requested %zu parameters; identifiable for this arm and measurement kind %zu;\n"
@@ -270,8 +479,8 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
               "  weak %zu\n",
           r->n_params, r->structural_count, r->n_kept, r->n_fixed_structural, r->n_fixed_data, r->n_weak);
   fprintf(fp, "  condition number of the scaled Jacobian %.4g; observability O1 %.4g, O2 %.4g, O3 %.4g, O4 %.4g\n",
-          r->condition_number, r->observability[0], r->observability[1], r->observability[2],
-          r->observability[3]);
+          r->condition_number, r->observability.o1, r->observability.o2, r->observability.o3,
+          r->observability.o4);
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     if (p->status == TWF_PARAM_KEPT ||
@@ -304,12 +513,13 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     fputc('\n', fp);
   }
 
-  fprintf(fp, "\nParameters (raw, in the error model's coordinates; change from the starting model)\n");
+  fprintf(fp, "\nParameters fitted (%s; raw, in the error model's coordinates; change from the\n"
+              "starting model)\n", fitted);
   fprintf(fp, "  %-8s %-14s %14s %12s %-5s %s\n", "group", "name", "value", "std", "unit", "status");
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     const char *unit;
-    double v = param_shown(&p->param, p->value, u, &unit);
+    double v = param_shown(&p->param, p->change, u, &unit);
     double s = param_shown(&p->param, p->std, u, &unit);
     if (p->status == TWF_PARAM_KEPT)
       fprintf(fp, "  %-8s %-14s %14.*f %12.*f %-5s %s%s\n", twf_group_name(p->param.group), p->param.name,
@@ -322,12 +532,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
                   ? "fixed (target not measured)"
                   : status_name(p->status));
   }
-  if (w->count > 0) {
-    fprintf(fp, "\nWarnings\n");
-    for (i = 0; i < w->count; i++)
-      fprintf(fp, "  - %s\n", w->items[i].message);
-  }
-  fprintf(fp, "\n%s", cli_safety_text);
+  cli_print_predicted(fp, r, m, in->campaign, co, u);
 }
 
 static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
@@ -357,6 +562,10 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                                : r->sigma_source == TWF_SIGMA_FROM_ROWS ? "rows"
                                                                                         : "given",
                                                "estimated", r->sigma_source == TWF_SIGMA_ESTIMATED));
+  /* base_in_tracker: the older name, kept for existing readers */
+  json_object_set_new(root, "base_in_instrument",
+                      json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
+                                cli_json_pose(&r->base_in_tracker, u)));
   json_object_set_new(root, "base_in_tracker",
                       json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
                                 cli_json_pose(&r->base_in_tracker, u)));
@@ -373,6 +582,36 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   json_object_set_new(root, "accuracy_before", cli_json_accuracy(before, m, view, u));
   json_object_set_new(root, "accuracy_after", cli_json_accuracy(after, m, view, u));
   json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(&r->fit_screened, u->length_si));
+  {
+    /* the summary: the verdict and the figures it used, the left-out rows */
+    json_t *flagged = json_array();
+    char gtext[160];
+    groups_text(r->groups, gtext, sizeof gtext);
+    json_object_set_new(root, "fitted", json_string(gtext));
+    json_object_set_new(root, "verdict",
+                        json_pack("{s:s, s:s, s:o, s:o}", "conclusion", twf_calib_verdict_name(r->verdict), "basis",
+                                  twf_verdict_basis_name(r->verdict_basis), "before",
+                                  cli_json_stats(&r->verdict_before, u->length_si), "after",
+                                  cli_json_stats(&r->verdict_after, u->length_si)));
+    json_object_set_new(root, "left_out",
+                        json_pack("{s:{s:o, s:o}, s:{s:o, s:o}}", "fit_dropped", "before",
+                                  cli_json_stats(&r->excluded_before[TWF_SET_FIT], u->length_si), "after",
+                                  cli_json_stats(&r->excluded_after[TWF_SET_FIT], u->length_si), "check_flagged",
+                                  "before", cli_json_stats(&r->excluded_before[TWF_SET_CHECK], u->length_si), "after",
+                                  cli_json_stats(&r->excluded_after[TWF_SET_CHECK], u->length_si)));
+    json_object_set_new(root, "check_every_row",
+                        json_pack("{s:o, s:o}", "before", cli_json_stats(&r->check_all_before, u->length_si),
+                                  "after", cli_json_stats(&r->check_all_after, u->length_si)));
+    for (i = 0; i < r->n_check_flagged; i++) {
+      const twf_outlier *o = &r->check_flagged[i];
+      const twf_measurement *ms = &view->meas[o->meas];
+      json_array_append_new(flagged, json_pack("{s:I, s:s, s:s, s:o, s:o}", "line", (json_int_t)ms->line, "pose",
+                                               view->pose_ids[ms->pose], "target", m->targets[ms->target].name,
+                                               "error", cli_json_number(o->error_m / u->length_si), "score",
+                                               cli_json_number(o->score)));
+    }
+    json_object_set_new(root, "check_flagged", flagged);
+  }
   json_object_set_new(root, "solver",
                       json_pack("{s:{s:i, s:s}, s:{s:i, s:o, s:o, s:s, s:b}, s:{s:s, s:o, s:i}}",
                                 "registration", "iterations", r->registration.iterations, "stop",
@@ -407,7 +646,7 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     const char *unit;
-    double v = param_shown(&p->param, p->value, u, &unit);
+    double v = param_shown(&p->param, p->change, u, &unit);
     double s = param_shown(&p->param, p->std, u, &unit);
     json_t *o = json_pack("{s:s, s:s, s:s, s:s, s:b}", "group", twf_group_name(p->param.group), "name",
                           p->param.name, "unit", unit, "status", status_name(p->status), "weak", p->weak);
@@ -432,8 +671,8 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                     (json_int_t)r->n_kept, "fixed_redundant", (json_int_t)r->n_fixed_structural,
                     "fixed_by_data", (json_int_t)r->n_fixed_data, "weak", (json_int_t)r->n_weak,
                     "condition_number", cli_json_number(r->condition_number), "observability",
-                    cli_json_number(r->observability[0]), cli_json_number(r->observability[1]),
-                    cli_json_number(r->observability[2]), cli_json_number(r->observability[3]),
+                    cli_json_number(r->observability.o1), cli_json_number(r->observability.o2),
+                    cli_json_number(r->observability.o3), cli_json_number(r->observability.o4),
                     "correlations", corr);
   json_object_set_new(root, "identifiability", ident);
   for (i = 0; i < w->count; i++)
@@ -445,10 +684,17 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
 
 static int put_model(FILE *fp, void *ctx, twf_error *err)
 {
-  fprintf(fp, "; As-built model written by twistfit calibrate. A changed model moves the real\n"
-              "; arm differently: keep the previous parameters, verify at reduced speed with\n"
-              "; the cell's safety functions active, and validate on held-out poses first.\n"
-              "; run_id: %s\n", cli_run_id());
+  const char *t = cli_safety_text;
+  fprintf(fp, "; Calibrated model written by twistfit calibrate (the [asbuilt] section says\n"
+              "; how it came about).\n");
+  /* the report's cautions in full, as comment lines */
+  while (*t != '\0') {
+    const char *nl = strchr(t, '\n');
+    size_t len = nl ? (size_t)(nl - t) : strlen(t);
+    fprintf(fp, "; %.*s\n", (int)len, t);
+    t += len + (nl ? 1 : 0);
+  }
+  fprintf(fp, "; run_id: %s\n", cli_run_id());
   return twf_model_write((const twf_model *)ctx, fp, err) == TWF_OK ? 0 : -1;
 }
 
@@ -493,14 +739,16 @@ static int run_calibrate(int argc, char **argv)
     { "check-fraction", required_argument, NULL, OPT_CHECK_FRACTION },
     { "seed", required_argument, NULL, OPT_SEED },
     { "max-iterations", required_argument, NULL, OPT_MAXIT },
+    { "threads", required_argument, NULL, OPT_THREADS },
     { "accept-large", no_argument, NULL, OPT_ACCEPT_LARGE },
+    { "write-anyway", no_argument, NULL, OPT_WRITE_ANYWAY },
     { "force", no_argument, NULL, 'f' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
   const char *model_out = NULL, *base_out = NULL, *json_path = NULL, *residuals_path = NULL;
   const char *sigma_text = NULL, *sigma_angle_text = NULL, *fit_text = NULL, *priority_text = NULL;
-  int force = 0, opt, status = TWF_EXIT_OK;
+  int force = 0, write_anyway = 0, opt, status = TWF_EXIT_OK;
   cli_inputs in;
   cli_units u;
   twf_calib_options co = twf_calib_default_options();
@@ -584,7 +832,18 @@ static int run_calibrate(int argc, char **argv)
       co.max_iterations = (int)v;
       break;
     }
+    case OPT_THREADS: {
+      char *end;
+      long v = strtol(optarg, &end, 10);
+      if (*end != '\0' || v < 1 || v > 256) {
+        status = cli_usage_error("calibrate", "--threads takes a count from 1 to 256");
+        goto done;
+      }
+      co.threads = (int)v;
+      break;
+    }
     case OPT_ACCEPT_LARGE: co.accept_large = 1; break;
+    case OPT_WRITE_ANYWAY: write_anyway = 1; break;
     case 'f': force = 1; break;
     case 'h': fputs(calibrate_help, stdout); goto done;
     default: status = cli_bad_option("calibrate", opt, argv); goto done;
@@ -610,6 +869,12 @@ static int run_calibrate(int argc, char **argv)
       (status = cli_parse_bounded("calibrate", "--sigma-angle", sigma_angle_text, u.angle_si, u.angle, 1e-9, 1.0,
                                   &co.sigma_angle)) != 0)
     goto done;
+  /* as verify treats --tol-angle-max: an orientation option without 6-D
+   * rows is a mistake, not a no-op */
+  if (sigma_angle_text != NULL && !in.campaign->has_orientation_any) {
+    status = cli_usage_error("calibrate", "--sigma-angle needs 6-D rows (with a quaternion); the campaign has none");
+    goto done;
+  }
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;
   /* refuse outputs that would fail before the work is done: a failed run
@@ -627,14 +892,13 @@ static int run_calibrate(int argc, char **argv)
       goto done;
   }
 
+  /* the digests of the bytes the readers parsed (paths: the model, then
+   * the campaign's files in the order read) */
   for (i = 0; in.paths[i] != NULL; i++) {
-    struct stat st;
+    const twf_input_digest *d = i == 0 ? &in.model_digest
+                                : i - 1 < in.campaign->n_inputs ? &in.campaign->inputs[i - 1] : NULL;
     dg[n_dg].path = in.paths[i];
-    /* a pipe was consumed by the reader: its digest cannot be taken again */
-    if (stat(in.paths[i], &st) != 0 || !S_ISREG(st.st_mode))
-      strcpy(dg[n_dg].hex, "unavailable (not a regular file)");
-    else if (SHA256File(in.paths[i], dg[n_dg].hex) == NULL)
-      strcpy(dg[n_dg].hex, "unreadable");
+    snprintf(dg[n_dg].hex, sizeof dg[n_dg].hex, "%s", d && d->sha256[0] ? d->sha256 : "unavailable");
     n_dg++;
   }
   {
@@ -664,36 +928,91 @@ static int run_calibrate(int argc, char **argv)
   before = res->accuracy_before;
   after = res->accuracy_after;
 
-  /* metadata of the as-built model */
+  /* metadata of the as-built model: the earlier records of a model that
+   * was itself calibrated stay, numbered, and this run's is added */
   {
-    char key[TWF_NAME_MAX], val[64];
+    char key[TWF_NAME_MAX], val[256];
+    long record_no = 0;
+    if (twf_asbuilt_record_push(res->asbuilt, &record_no, &err) != TWF_OK) {
+      status = cli_report_error(&err);
+      goto done;
+    }
     twf_model_meta_set(res->asbuilt, "created", created);
     twf_model_meta_set(res->asbuilt, "tool", "twistfit " PACKAGE_VERSION);
     meta_set_short(res->asbuilt, "command", cmdline);
+    if (record_no > 0) {
+      snprintf(val, sizeof val, "record%ld (the starting model's own record)", record_no);
+      twf_model_meta_set(res->asbuilt, "started_from", val);
+    }
     for (i = 0; i < n_dg; i++) {
       snprintf(key, sizeof key, "input%zu", i + 1);
       meta_set_short(res->asbuilt, key, dg[i].path);
       snprintf(key, sizeof key, "input%zu_sha256", i + 1);
       twf_model_meta_set(res->asbuilt, key, dg[i].hex);
     }
+    groups_text(res->groups, val, sizeof val);
+    twf_model_meta_set(res->asbuilt, "fitted", val);
+    /* the figures over the measurements the fit kept (the report's) */
     snprintf(val, sizeof val, "%.6g %s", before->position[TWF_SET_FIT].rms / u.length_si, u.length);
     twf_model_meta_set(res->asbuilt, "rms_before_fit", val);
     snprintf(val, sizeof val, "%.6g %s", after->position[TWF_SET_FIT].rms / u.length_si, u.length);
     twf_model_meta_set(res->asbuilt, "rms_after_fit", val);
+    snprintf(val, sizeof val, "%zu", res->n_dropped);
+    twf_model_meta_set(res->asbuilt, "outliers_dropped", val);
     if (after->position[TWF_SET_CHECK].count > 0) {
       snprintf(val, sizeof val, "%.6g %s", before->position[TWF_SET_CHECK].rms / u.length_si, u.length);
       twf_model_meta_set(res->asbuilt, "rms_before_check", val);
       snprintf(val, sizeof val, "%.6g %s", after->position[TWF_SET_CHECK].rms / u.length_si, u.length);
       twf_model_meta_set(res->asbuilt, "rms_after_check", val);
+      snprintf(val, sizeof val, "%zu", res->n_check_flagged);
+      twf_model_meta_set(res->asbuilt, "check_flagged", val);
     }
+    snprintf(val, sizeof val, "%s (%s RMS %.6g -> %.6g %s)", twf_calib_verdict_name(res->verdict),
+             twf_verdict_basis_name(res->verdict_basis), res->verdict_before.rms / u.length_si,
+             res->verdict_after.rms / u.length_si, u.length);
+    twf_model_meta_set(res->asbuilt, "verdict", val);
+    {
+      /* the weak parameters by name, and those the poses could not determine */
+      size_t used = 0, k, nw = 0, nd = 0;
+      int pass;
+      for (pass = 0; pass < 2; pass++) {
+        used = 0;
+        val[0] = '\0';
+        for (k = 0; k < res->n_params; k++) {
+          const twf_param_result *p = &res->params[k];
+          int w;
+          if (pass == 0 ? !p->weak : p->status != TWF_PARAM_FIXED_DATA)
+            continue;
+          pass == 0 ? nw++ : nd++;
+          w = snprintf(val + used, sizeof val - used, "%s%s", used ? ", " : "", p->param.name);
+          if (w < 0 || used + (size_t)w >= sizeof val - 8) {
+            snprintf(val + used, sizeof val - used, ", ...");
+            break;
+          }
+          used += (size_t)w;
+        }
+        if ((pass == 0 ? nw : nd) > 0)
+          meta_set_short(res->asbuilt, pass == 0 ? "weak_parameters" : "undetermined_parameters", val);
+      }
+    }
+    if (res->verdict == TWF_VERDICT_DO_NOT_USE && write_anyway)
+      twf_model_meta_set(res->asbuilt, "written_anyway",
+                         "yes: the report said do not use this model (--write-anyway)");
   }
 
-  {
-    char val[64];
-    snprintf(val, sizeof val, "%.6g %s", res->fit_screened.rms / u.length_si, u.length);
-    twf_model_meta_set(res->asbuilt, "rms_after_fit_screened", val);
-    snprintf(val, sizeof val, "%zu", res->n_dropped);
-    twf_model_meta_set(res->asbuilt, "outliers_dropped", val);
+  /* a model the report calls worse than the start is not written unless
+   * asked for by name */
+  if (res->verdict == TWF_VERDICT_DO_NOT_USE && !write_anyway && (model_out != NULL || base_out != NULL)) {
+    print_report(txt, &in, res, &co, &u, dg, n_dg, created, &warnings);
+    fflush(txt);
+    fprintf(stderr, "twistfit: error: the calibrated model predicts the %s worse than the starting model: "
+                    "not written\n"
+                    "twistfit: hint: keep the previous model and measure more, and more varied, poses; "
+                    "--write-anyway writes it regardless (recorded in its [asbuilt] section)\n"
+                    "twistfit: no output file was written\n",
+            twf_verdict_basis_name(res->verdict_basis));
+    status = TWF_EXIT_COMPUTE;
+    goto done;
   }
   print_report(txt, &in, res, &co, &u, dg, n_dg, created, &warnings);
   {
@@ -712,14 +1031,15 @@ static int run_calibrate(int argc, char **argv)
       weights[res->outliers[k].meas] = res->outliers[k].weight;
     if (json_path != NULL)
       root = report_json(&in, res, &co, &u, dg, n_dg, created, &warnings);
+    cli_json_add_predicted(root, res, in.model, in.campaign, &co, &u);
     memset(&rr, 0, sizeof rr);
     rr.m = in.model;
     rr.c = in.campaign;
     rr.sets = res->meas_set;
-    rr.pos[0] = res->residual_before;
-    rr.pos[1] = res->residual_after;
-    rr.rot[0] = res->rot_before;
-    rr.rot[1] = res->rot_after;
+    rr.pos[0] = res->pos_err_before;
+    rr.pos[1] = res->pos_err_after;
+    rr.rot[0] = res->angle_err_before;
+    rr.rot[1] = res->angle_err_after;
     rr.labels[0] = "before_";
     rr.labels[1] = "after_";
     rr.weights = weights;

@@ -26,6 +26,8 @@ static const char fk_help[] =
   "      --angle-unit U         unit of revolute joint values (deg, rad, mrad;\n"
   "                             default: as the file declares, else deg)\n"
   "      --output-length-unit U unit of the printed positions (default: the model's)\n"
+  "      --max-input-size N     refuse input files larger than N bytes (suffix\n"
+  "                             K, M, G, T: binary multiples; default 2G)\n"
   "  -h, --help                 show this help\n";
 
 static void write_header(cli_csv *csv, const twf_model *m, const char *lu)
@@ -62,10 +64,12 @@ static void write_row(cli_csv *csv, const twf_model *m, const char *id,
   size_t k;
   int a;
   twf_model_fk(m, q, NULL, &flange);
-  twf_rot_to_quat(flange.R, quat);
+  cli_quat_of(flange.R, quat);
   cli_csv_text(csv, id);
+  /* positions below 1 pm are rounding left-overs (a DH chain's 1e-15 mm):
+   * printed as 0 */
   for (a = 0; a < 3; a++)
-    cli_csv_number(csv, flange.p[a] / per_unit);
+    cli_csv_number(csv, cli_clean(flange.p[a], 1e-12) / per_unit);
   for (a = 0; a < 4; a++)
     cli_csv_number(csv, quat[a]);
   for (k = 0; k < m->n_targets; k++) {
@@ -73,7 +77,7 @@ static void write_row(cli_csv *csv, const twf_model *m, const char *id,
       continue;
     twf_pose_apply(&flange, m->targets[k].offset, y);
     for (a = 0; a < 3; a++)
-      cli_csv_number(csv, y[a] / per_unit);
+      cli_csv_number(csv, cli_clean(y[a], 1e-12) / per_unit);
   }
   cli_csv_end_row(csv);
 }
@@ -115,6 +119,7 @@ static int run_fk(int argc, char **argv)
     { "length-unit", required_argument, NULL, 'L' },
     { "angle-unit", required_argument, NULL, 'A' },
     { "output-length-unit", required_argument, NULL, 'U' },
+    { "max-input-size", required_argument, NULL, 'S' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -122,6 +127,7 @@ static int run_fk(int argc, char **argv)
   const char *output = NULL;
   int force = 0, opt, status;
   twf_campaign_options copt = twf_campaign_default_options();
+  twf_read_options ropt = twf_read_default_options();
   int have_out_unit = 0;
   twf_length_unit out_unit = TWF_LENGTH_MM;
   twf_model *model = NULL;
@@ -153,6 +159,11 @@ static int run_fk(int argc, char **argv)
         return status;
       have_out_unit = 1;
       break;
+    case 'S':
+      if ((status = cli_parse_size("fk", optarg, &copt.max_input_size)) != 0)
+        return status;
+      ropt.max_input_size = copt.max_input_size;
+      break;
     case 'h': fputs(fk_help, stdout); return TWF_EXIT_OK;
     default: return cli_bad_option("fk", opt, argv);
     }
@@ -167,7 +178,7 @@ static int run_fk(int argc, char **argv)
     return status;
   twf_warnings_init(&warnings);
   twf_error_clear(&err);
-  model = twf_model_read(argv[optind], &warnings, &err);
+  model = twf_model_read_with(argv[optind], &ropt, &warnings, NULL, &err);
   if (model == NULL) {
     cli_print_warnings(&warnings);
     twf_warnings_clear(&warnings);
@@ -176,9 +187,25 @@ static int run_fk(int argc, char **argv)
   if (inputs[1] != NULL) {
     joints = twf_campaign_read_joints(inputs[1], model, &copt, &warnings, &err);
     if (joints == NULL) {
+      /* the reader's hint speaks of the two-file form, which fk does not
+       * have */
+      if (err.status == TWF_ERR_UNKNOWN && strstr(err.hint, "give the joints file first") != NULL)
+        snprintf(err.hint, sizeof err.hint, "%s",
+                 "fk reads joint rows only (a pose column and the model's joint columns, see "
+                 "twistfit-data(5)); this file has measurement columns: give fk a joints file, or use "
+                 "verify or calibrate for a campaign");
+      cli_print_warnings(&warnings);
       status = cli_report_error(&err);
       goto done;
     }
+  }
+  /* the home pose against the model's own limits (the joint rows of a
+   * file are checked by the reader, which names the file and line) */
+  if (joints == NULL) {
+    double *zero = calloc(model->n_joints ? model->n_joints : 1, sizeof *zero);
+    if (zero != NULL)
+      twf_model_check_limits(model, zero, "the home pose (all joints 0)", &warnings);
+    free(zero);
   }
   cli_print_warnings(&warnings);
   if (!have_out_unit)

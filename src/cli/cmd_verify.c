@@ -26,7 +26,7 @@ static const char verify_help[] =
   "\n"
   "Options:\n"
   CLI_INPUT_HELP
-  "      --base FILE         use this base pose (tracker frame) instead of registering;\n"
+  "      --base FILE         use this base pose (instrument frame) instead of registering;\n"
   "                          every measured target then needs an offset in MODEL\n"
   "      --fit-offsets       fit every target's offset in the registration (default:\n"
   "                          only targets declared without an offset)\n"
@@ -56,13 +56,14 @@ typedef struct tolerance {
   double limit; /* SI; 0 = not set */
   double value;
   int is_angle;
+  int pass;
 } tolerance;
 
 static void print_iso9283(FILE *fp, const twf_iso9283 *iso, const twf_model *m,
-                          const twf_campaign *c, const cli_units *u)
+                          const twf_campaign *c, const cli_units *u, int registered)
 {
   size_t i;
-  if (iso == NULL || iso->n_entries == 0) {
+  if (iso == NULL || (iso->n_entries == 0 && iso->n_orientation == 0)) {
     fprintf(fp, "ISO 9283 pose accuracy and repeatability: no commanded pose is repeated\n");
     return;
   }
@@ -77,6 +78,37 @@ static void print_iso9283(FILE *fp, const twf_iso9283 *iso, const twf_model *m,
             u->ldec, e->ap[0] / u->length_si, u->ldec, e->ap[1] / u->length_si, u->ldec,
             e->ap[2] / u->length_si, u->ldec, e->rp / u->length_si);
   }
+  if (iso->n_entries > 0)
+    fprintf(fp, "  %-12s %-8s %6s %10.*f %10s %10s %10s %10.*f\n", "worst", "", "", u->ldec,
+            iso->ap_p_max / u->length_si, "", "", "", u->ldec, iso->rp_max / u->length_si);
+  if (iso->n_orientation > 0) {
+    fprintf(fp, "  orientation (6-D rows; about the base frame's x, y, z, relative to the commanded\n"
+                "  orientation), %s:\n", u->angle);
+    fprintf(fp, "  %-12s %6s %10s %10s %10s %10s %10s %10s\n", "pose", "visits", "AP_a", "AP_b", "AP_c", "RP_a",
+            "RP_b", "RP_c");
+    for (i = 0; i < iso->n_orientation; i++) {
+      const twf_iso9283_orientation *e = &iso->orientation[i];
+      fprintf(fp, "  %-12s %6zu %10.*f %10.*f %10.*f %10.*f %10.*f %10.*f\n", c->pose_ids[e->first_pose], e->n,
+              u->adec, e->ap[0] / u->angle_si, u->adec, e->ap[1] / u->angle_si, u->adec, e->ap[2] / u->angle_si,
+              u->adec, e->rp[0] / u->angle_si, u->adec, e->rp[1] / u->angle_si, u->adec, e->rp[2] / u->angle_si);
+    }
+    fprintf(fp, "  %-12s %6s %10.*f %10s %10s %10.*f\n", "worst", "", u->adec, iso->ap_angle_max / u->angle_si,
+            "(|AP|)", "", u->adec, iso->rp_angle_max / u->angle_si);
+  }
+  if (iso->n_entries > 0 && iso->min_cycles < TWF_ISO9283_CYCLES) {
+    char cyc[64];
+    if (iso->min_cycles == iso->max_cycles)
+      snprintf(cyc, sizeof cyc, "%zu", iso->min_cycles);
+    else
+      snprintf(cyc, sizeof cyc, "%zu to %zu", iso->min_cycles, iso->max_cycles);
+    fprintf(fp, "  note: %s cycles per pose; the standard's pose test uses %d, so these figures\n"
+                "  are indicative, not a test to ISO 9283\n",
+            cyc, TWF_ISO9283_CYCLES);
+  }
+  fprintf(fp, "  note: AP is against the model's prediction at the commanded joint values, with the base\n"
+              "  pose %s\n",
+          registered ? "registered to these same measurements (which pulls AP towards zero)"
+                     : "of --base (not fitted to these measurements)");
 }
 
 static json_t *json_iso9283(const twf_iso9283 *iso, const twf_model *m, const twf_campaign *c,
@@ -128,8 +160,8 @@ static int run_verify(int argc, char **argv)
   unsigned char *excluded = NULL;
   twf_accuracy_summary *summary = NULL;
   twf_iso9283 *iso = NULL;
-  tolerance tol[4] = { { "rms", 0, 0, 0 }, { "p95", 0, 0, 0 }, { "max", 0, 0, 0 },
-                       { "angle-max", 0, 0, 1 } };
+  tolerance tol[4] = { { "rms", 0, 0, 0, 0 }, { "p95", 0, 0, 0, 0 }, { "max", 0, 0, 0, 0 },
+                       { "angle-max", 0, 0, 1, 0 } };
   twf_registration_report rrep;
   twf_trace trace;
   FILE *txt = stdout;
@@ -214,7 +246,7 @@ static int run_verify(int argc, char **argv)
   twf_register_offsets_init(in.model, offsets);
   if (base_path != NULL) {
     size_t k;
-    if (twf_base_read(base_path, &base, &err) != TWF_OK) {
+    if (twf_base_read_with(base_path, &in.ropt, &base, NULL, &err) != TWF_OK) {
       status = cli_report_error(&err);
       goto done;
     }
@@ -265,16 +297,26 @@ static int run_verify(int argc, char **argv)
     }
   }
 
-  /* acceptance on the check set when it has rows */
+  /* acceptance (library): the check set when it has rows */
   {
-    int set = summary->position[TWF_SET_CHECK].count > 0 ? TWF_SET_CHECK : TWF_SET_FIT;
-    tol[0].value = summary->position[set].rms;
-    tol[1].value = summary->position[set].p95;
-    tol[2].value = summary->position[set].max;
-    tol[3].value = summary->orientation[set].max;
-    for (i = 0; i < 4; i++)
-      if (tol[i].limit > 0 && !(tol[i].value <= tol[i].limit))
-        status = TWF_EXIT_REJECTED;
+    twf_acceptance_limits lim;
+    twf_acceptance acc;
+    int set;
+    lim.rms_m = tol[0].limit;
+    lim.p95_m = tol[1].limit;
+    lim.max_m = tol[2].limit;
+    lim.angle_max_rad = tol[3].limit;
+    if (twf_accuracy_accept(summary, &lim, &acc, &err) != TWF_OK) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+    set = acc.set;
+    for (i = 0; i < 4; i++) {
+      tol[i].value = acc.value[i];
+      tol[i].pass = acc.pass[i];
+    }
+    if (acc.n_limits > 0 && !acc.accepted)
+      status = TWF_EXIT_REJECTED;
 
     /* text report */
     fprintf(txt, "twistfit %s verify\n", twf_version());
@@ -284,26 +326,43 @@ static int run_verify(int argc, char **argv)
     else
       fprintf(txt, "data: %s + %s\n", in.joints_path, in.points_path);
     fprintf(txt, "campaign: %zu poses, %zu measurements\n", in.campaign->n_poses, in.campaign->n_meas);
+    if (acc.n_limits > 0) {
+      /* the verdict first */
+      fprintf(txt, "verdict: %s on the %s set\n", acc.accepted ? "ACCEPTED" : "REJECTED",
+              set == TWF_SET_CHECK ? "check" : "fit");
+      for (i = 0; i < 4; i++)
+        if (tol[i].limit > 0)
+          fprintf(txt, "  %-10s %10.*f %s  limit %10.*f  %s\n", tol[i].name,
+                  tol[i].is_angle ? u.adec : u.ldec,
+                  tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si),
+                  tol[i].is_angle ? u.angle : u.length, tol[i].is_angle ? u.adec : u.ldec,
+                  tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si), tol[i].pass ? "PASS" : "FAIL");
+      fputc('\n', txt);
+    }
     {
       double q[4];
-      twf_rot_to_quat(base.R, q);
-      fprintf(txt, "base pose in the tracker frame (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
+      cli_quat_of(base.R, q);
+      fprintf(txt, "base pose in the instrument frame (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
               base_path ? "given" : "registered", u.ldec, base.p[0] / u.length_si, u.ldec,
               base.p[1] / u.length_si, u.ldec, base.p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
     }
     if (base_path == NULL) {
       size_t k, n_ex = rrep.n_excluded;
-      fprintf(txt, "registration: %u alternations%s, refinement %d iterations (%s)\n",
-              rrep.alternation.iterations, rrep.alternation.converged ? "" : " (not converged)",
-              rrep.refinement.iterations, twf_stop_name(rrep.refinement.stop));
+      fprintf(txt, "registration: closed form, %u %s with the target offsets%s; refinement %d %s, %s\n",
+              rrep.alternation.iterations, cli_plural(rrep.alternation.iterations, "round", "rounds"),
+              rrep.alternation.converged ? "" : " (not settled)", rrep.refinement.iterations,
+              cli_plural((size_t)rrep.refinement.iterations, "iteration", "iterations"),
+              cli_stop_words(rrep.refinement.stop));
       if (n_ex > 0) {
-        fprintf(txt, "registration left out %zu fit-set measurement%s as gross errors (beyond %g robust "
-                     "standard deviations; they stay in the figures below):\n", n_ex, n_ex == 1 ? "" : "s",
-                rrep.robust_threshold);
+        fprintf(txt, "registration left out %zu fit-set measurement%s as gross error%s (beyond %g robust "
+                     "standard deviations; %s in the figures below):\n", n_ex, n_ex == 1 ? "" : "s",
+                n_ex == 1 ? "" : "s", rrep.robust_threshold, n_ex == 1 ? "it stays" : "they stay");
         for (k = 0; k < in.campaign->n_meas; k++)
           if (excluded[k]) {
             const twf_measurement *ms = &in.campaign->meas[k];
-            fprintf(txt, "  line %ld: pose %s target %s: %.*f %s\n", ms->line,
+            char where[TWF_ERROR_TEXT_MAX];
+            cli_meas_where(&in, ms, where, sizeof where);
+            fprintf(txt, "  %s: pose %s target %s: %.*f %s\n", where,
                     in.campaign->pose_ids[ms->pose], in.model->targets[ms->target].name, u.ldec,
                     sqrt(pos[3 * k] * pos[3 * k] + pos[3 * k + 1] * pos[3 * k + 1] + pos[3 * k + 2] * pos[3 * k + 2]) /
                         u.length_si,
@@ -324,35 +383,43 @@ static int run_verify(int argc, char **argv)
                        in.campaign, &u);
     cli_print_worst(txt, summary, in.campaign, in.model, &u);
     fputc('\n', txt);
-    print_iso9283(txt, iso, in.model, in.campaign, &u);
-    {
-      int any = 0;
-      for (i = 0; i < 4; i++)
-        any |= tol[i].limit > 0;
-      if (any) {
-        fprintf(txt, "\nAcceptance on the %s set:\n", set == TWF_SET_CHECK ? "check" : "fit");
-        for (i = 0; i < 4; i++)
-          if (tol[i].limit > 0)
-            fprintf(txt, "  %-10s %10.*f %s  limit %10.*f  %s\n", tol[i].name,
-                    tol[i].is_angle ? u.adec : u.ldec,
-                    tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si),
-                    tol[i].is_angle ? u.angle : u.length, tol[i].is_angle ? u.adec : u.ldec,
-                    tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si),
-                    tol[i].value <= tol[i].limit ? "pass" : "FAIL");
-        fprintf(txt, "verdict: %s\n", status == TWF_EXIT_REJECTED ? "REJECTED" : "ACCEPTED");
-      }
-    }
-
+    print_iso9283(txt, iso, in.model, in.campaign, &u, base_path == NULL);
     if (json_path != NULL) {
       json_t *tols = json_object();
       root = json_object();
       json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
       json_object_set_new(root, "command", json_string("verify"));
       json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
+      /* base_in_tracker: the older name, kept for existing readers */
+      json_object_set_new(root, "base_in_instrument", cli_json_pose(&base, &u));
       json_object_set_new(root, "base_in_tracker", cli_json_pose(&base, &u));
       json_object_set_new(root, "base_source", json_string(base_path ? "given" : "registered"));
       json_object_set_new(root, "accuracy", cli_json_accuracy(summary, in.model, in.campaign, &u));
       json_object_set_new(root, "iso9283", json_iso9283(iso, in.model, in.campaign, &u));
+      {
+        json_t *ori = json_array();
+        size_t k;
+        for (k = 0; k < iso->n_orientation; k++) {
+          const twf_iso9283_orientation *e = &iso->orientation[k];
+          json_array_append_new(ori, json_pack("{s:s, s:I, s:[o,o,o], s:[o,o,o]}", "pose",
+                                               in.campaign->pose_ids[e->first_pose], "visits", (json_int_t)e->n,
+                                               "ap_abc", cli_json_number(e->ap[0] / u.angle_si),
+                                               cli_json_number(e->ap[1] / u.angle_si),
+                                               cli_json_number(e->ap[2] / u.angle_si), "rp_abc",
+                                               cli_json_number(e->rp[0] / u.angle_si),
+                                               cli_json_number(e->rp[1] / u.angle_si),
+                                               cli_json_number(e->rp[2] / u.angle_si)));
+        }
+        json_object_set_new(root, "iso9283_orientation", ori);
+        json_object_set_new(root, "iso9283_summary",
+                            json_pack("{s:o, s:o, s:o, s:o, s:I, s:I, s:I}", "ap_p_max",
+                                      cli_json_number(iso->ap_p_max / u.length_si), "rp_max",
+                                      cli_json_number(iso->rp_max / u.length_si), "ap_angle_max",
+                                      cli_json_number(iso->ap_angle_max / u.angle_si), "rp_angle_max",
+                                      cli_json_number(iso->rp_angle_max / u.angle_si), "min_cycles",
+                                      (json_int_t)iso->min_cycles, "max_cycles", (json_int_t)iso->max_cycles,
+                                      "standard_cycles", (json_int_t)TWF_ISO9283_CYCLES));
+      }
       for (i = 0; i < 4; i++)
         if (tol[i].limit > 0)
           json_object_set_new(tols, tol[i].name,
@@ -360,12 +427,12 @@ static int run_verify(int argc, char **argv)
                                         cli_json_number(tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si)),
                                         "value",
                                         cli_json_number(tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si)),
-                                        "pass", tol[i].value <= tol[i].limit));
+                                        "pass", tol[i].pass));
       json_object_set_new(root, "acceptance",
                           json_pack("{s:s, s:o, s:s}", "set", set == TWF_SET_CHECK ? "check" : "fit",
                                     "tolerances", tols, "verdict",
                                     json_object_size(tols) == 0 ? "none"
-                                    : status == TWF_EXIT_REJECTED ? "rejected" : "accepted"));
+                                    : acc.accepted ? "accepted" : "rejected"));
       {
         json_t *wa = json_array();
         size_t k;

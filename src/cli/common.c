@@ -5,6 +5,8 @@
 #include "config.h"
 #include "cli.h"
 
+#include <ctype.h>
+
 #include <errno.h>
 #include <fcntl.h>
 #include <float.h>
@@ -59,7 +61,9 @@ int cli_report_error(const twf_error *err)
   fputs("twistfit: error: ", stderr);
   print_location(stderr, err->file, err->line, err->column);
   fprintf(stderr, "%s\n", err->message[0] ? err->message : twf_strerror(err->status));
-  if (err->hint[0] != '\0')
+  if (err->hint[0] != '\0' && strstr(err->hint, "(max_input_size)") != NULL)
+    fputs("twistfit: hint: check that this is the right file; if it is, raise --max-input-size\n", stderr);
+  else if (err->hint[0] != '\0')
     fprintf(stderr, "twistfit: hint: %s\n", err->hint);
   return cli_exit_status(err->status);
 }
@@ -749,6 +753,35 @@ int cli_parse_length_unit(const char *command, const char *value, twf_length_uni
   if (twf_length_unit_parse(value, u) != TWF_OK)
     return cli_usage_error(command, "unknown length unit '%s' (use mm, m, um or in)", value);
   return TWF_EXIT_OK;
+}
+
+int cli_parse_size(const char *command, const char *value, unsigned long long *out)
+{
+  static const char suffix[] = "KMGT";
+  const char *p = value, *s;
+  unsigned long long v = 0, mul = 1;
+  for (; *p >= '0' && *p <= '9'; p++) {
+    if (v > (~0ULL - 9) / 10)
+      goto bad;
+    v = 10 * v + (unsigned long long)(*p - '0');
+  }
+  if (p == value)
+    goto bad;
+  if (*p != '\0' && (s = strchr(suffix, toupper((unsigned char)*p))) != NULL) {
+    mul = 1ULL << (10 * (s - suffix + 1));
+    p++;
+    if (*p == 'i' && p[1] == 'B')
+      p += 2;
+  } else if (*p == 'B') {
+    p++;
+  }
+  if (*p != '\0' || v == 0 || v > ~0ULL / mul)
+    goto bad;
+  *out = v * mul;
+  return TWF_EXIT_OK;
+bad:
+  return cli_usage_error(command, "--max-input-size takes a positive byte count with an optional "
+                         "suffix K, M, G or T (e.g. 4G), not '%s'", value);
 }
 
 int cli_parse_angle_unit(const char *command, const char *value, twf_angle_unit *u)

@@ -1,16 +1,26 @@
 /* main.c: twistfit's entry point: global options and command dispatch. */
 #include "config.h"
 #include "cli.h"
+#include "plan_cli.h"
 
 #include <gsl/gsl_errno.h>
 #include <string.h>
 
 int cli_verbosity = 1;
 
+/* Using a calibration (cmd_compensate.c, cmd_compare.c). */
+extern const cli_command cli_cmd_compensate;
+extern const cli_command cli_cmd_compare;
+
 static const cli_command *const commands[] = {
   &cli_cmd_fk,
   &cli_cmd_verify,
   &cli_cmd_calibrate,
+  &cli_cmd_simulate,
+  &cli_cmd_assess,
+  &cli_cmd_plan,
+  &cli_cmd_compensate,
+  &cli_cmd_compare,
 };
 static const size_t n_commands = sizeof commands / sizeof commands[0];
 

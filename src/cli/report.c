@@ -13,8 +13,41 @@ const char cli_safety_text[] =
   "Safety: a changed kinematic model moves the real arm differently. Keep the\n"
   "previous parameters; verify the new ones at reduced speed with the cell's\n"
   "safety functions active; validate on held-out poses before production use.\n"
+  "Re-check the cell's safety settings that depend on the kinematics (safe\n"
+  "zones, joint and Cartesian limits, collision detection) before use.\n"
   "Follow the robot maker's procedures and local codes; the work belongs to\n"
   "qualified personnel.\n";
+
+/* ------------------------------------------------------------ words */
+
+const char *cli_plural(size_t n, const char *one, const char *many)
+{
+  return n == 1 ? one : many;
+}
+
+const char *cli_stop_words(twf_stop s)
+{
+  switch (s) {
+  case TWF_STOP_NONE: return "did not run";
+  case TWF_STOP_STEP: return "converged (the steps became negligible)";
+  case TWF_STOP_GRADIENT: return "converged (the slope of the cost vanished)";
+  case TWF_STOP_COST: return "converged (the cost stopped decreasing)";
+  case TWF_STOP_MAXITER: return "stopped at the iteration limit (not converged)";
+  case TWF_STOP_DIVERGED: return "diverged";
+  case TWF_STOP_SINGULAR: return "stopped: the system could not be solved";
+  }
+  return "?";
+}
+
+void cli_meas_where(const cli_inputs *in, const twf_measurement *ms, char *buf, size_t n)
+{
+  /* in the two-file form the line is in the points file */
+  const char *file = in->data_path ? in->data_path : in->points_path;
+  if (ms->line > 0)
+    snprintf(buf, n, "%s:%ld", file ? file : "?", ms->line);
+  else
+    snprintf(buf, n, "%s", file ? file : "?");
+}
 
 /* ------------------------------------------------------------ hints and trace */
 
@@ -57,6 +90,7 @@ void cli_inputs_init(cli_inputs *in)
 {
   memset(in, 0, sizeof *in);
   in->copt = twf_campaign_default_options();
+  in->ropt = twf_read_default_options();
   twf_warnings_init(&in->warnings);
 }
 
@@ -75,6 +109,10 @@ int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *
     in->copt.angle_from_caller = 1;
     return 1;
   case CLI_OPT_LIMITS_ERROR: in->copt.limits_are_errors = 1; return 1;
+  case CLI_OPT_MAX_INPUT_SIZE:
+    *status = cli_parse_size(command, arg, &in->copt.max_input_size);
+    in->ropt.max_input_size = in->copt.max_input_size;
+    return 1;
   default: return 0;
   }
 }
@@ -98,7 +136,7 @@ int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, 
   in->paths[1] = in->data_path ? in->data_path : in->joints_path;
   in->paths[2] = in->data_path ? NULL : in->points_path;
   in->paths[3] = NULL;
-  in->model = twf_model_read(in->model_path, &in->warnings, &err);
+  in->model = twf_model_read_with(in->model_path, &in->ropt, &in->warnings, &in->model_digest, &err);
   if (in->model == NULL)
     goto fail;
   if (in->data_path != NULL)
@@ -189,10 +227,10 @@ void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary 
   for (set = 0; set < 2; set++)
     for (k = 0; k < s->n_targets; k++) {
       char label[TWF_NAME_MAX + 16];
-      if (s->target_position[2 * k + set].count == 0 || s->n_targets < 2)
+      if (s->target_position[2 * k + (size_t)set].count == 0 || s->n_targets < 2)
         continue;
       snprintf(label, sizeof label, "%s %s", set_name(set), m->targets[k].name);
-      print_stats_row(fp, label, &s->target_position[2 * k + set], u->length_si, u->ldec, c, 1);
+      print_stats_row(fp, label, &s->target_position[2 * k + (size_t)set], u->length_si, u->ldec, c, 1);
     }
   if (s->orientation[0].count + s->orientation[1].count > 0) {
     fprintf(fp, "  orientation error, %s\n", u->angle);
@@ -221,10 +259,33 @@ void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign
 
 /* ------------------------------------------------------------ JSON */
 
+double cli_clean(double v, double zero)
+{
+  /* "+ 0.0" turns -0 into 0 */
+  return fabs(v) < zero ? 0.0 : v + 0.0;
+}
+
+void cli_quat_of(const double R[3][3], double q[4])
+{
+  int k;
+  twf_rot_to_quat(R, q);
+  for (k = 0; k < 4; k++)
+    q[k] = cli_clean(q[k], 1e-12);
+  /* one convention: w > 0, or for w = 0 (a half turn) the first nonzero
+   * component positive, so that one rotation always prints one way */
+  if (q[0] == 0.0) {
+    for (k = 1; k < 4 && q[k] == 0.0; k++)
+      ;
+    if (k < 4 && q[k] < 0)
+      for (k = 1; k < 4; k++)
+        q[k] = cli_clean(-q[k], 1e-12);
+  }
+}
+
 json_t *cli_json_pose(const twf_pose *T, const cli_units *u)
 {
   double q[4];
-  twf_rot_to_quat(T->R, q);
+  cli_quat_of(T->R, q);
   return json_pack("{s:[o,o,o], s:[o,o,o,o]}", "position", cli_json_number(T->p[0] / u->length_si),
                    cli_json_number(T->p[1] / u->length_si), cli_json_number(T->p[2] / u->length_si),
                    "quaternion_wxyz", cli_json_number(q[0]), cli_json_number(q[1]), cli_json_number(q[2]),
@@ -260,9 +321,9 @@ json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
     if (s->orientation[set].count > 0)
       json_object_set_new(so, "orientation", cli_json_stats(&s->orientation[set], u->angle_si));
     for (k = 0; k < s->n_targets; k++)
-      if (s->target_position[2 * k + set].count > 0)
+      if (s->target_position[2 * k + (size_t)set].count > 0)
         json_object_set_new(targets, m->targets[k].name,
-                            cli_json_stats(&s->target_position[2 * k + set], u->length_si));
+                            cli_json_stats(&s->target_position[2 * k + (size_t)set], u->length_si));
     json_object_set_new(so, "targets", targets);
     for (i = 0; i < s->n_worst[set]; i++) {
       const twf_accuracy_worst *w = &s->worst[set][i];

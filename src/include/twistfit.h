@@ -29,13 +29,17 @@
 #include "twistfit/common.h"
 #include "twistfit/se3.h"
 #include "twistfit/model.h"
+#include "twistfit/limits.h"
 #include "twistfit/campaign.h"
 #include "twistfit/io.h"
 #include "twistfit/errmodel.h"
 #include "twistfit/register.h"
 #include "twistfit/accuracy.h"
 #include "twistfit/asbuilt.h"
+#include "twistfit/links.h"
 #include "twistfit/calib.h"
 #include "twistfit/simulate.h"
+#include "twistfit/plan.h"
+#include "twistfit/apply.h"
 
 #endif /* TWISTFIT_H */

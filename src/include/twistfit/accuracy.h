@@ -95,7 +95,39 @@ twf_accuracy_summary *
 twf_accuracy_summarize(const struct twf_campaign *campaign, size_t n_targets,
                        const double *pos_err, const double *angle_err,
                        size_t k_worst, twf_error *err);
+/* The same over the measurements i with excluded[i] == 0 only (excluded
+ * NULL: every one); the excluded rows' errors are not read. */
+twf_accuracy_summary *
+twf_accuracy_summarize_kept(const struct twf_campaign *campaign, size_t n_targets,
+                            const double *pos_err, const double *angle_err,
+                            const unsigned char *excluded, size_t k_worst,
+                            twf_error *err);
 void twf_accuracy_summary_free(twf_accuracy_summary *s);
+
+/* Acceptance of a model against tolerances. */
+typedef struct twf_acceptance_limits {
+  double rms_m, p95_m, max_m; /* position error limits, m; 0: not set */
+  double angle_max_rad;       /* orientation error limit, rad; 0: not set */
+} twf_acceptance_limits;
+
+enum { TWF_ACCEPT_RMS = 0, TWF_ACCEPT_P95, TWF_ACCEPT_MAX, TWF_ACCEPT_ANGLE_MAX, TWF_ACCEPT_COUNT };
+
+typedef struct twf_acceptance {
+  int set;                       /* the set judged: TWF_SET_CHECK when it has
+                                    rows, else TWF_SET_FIT */
+  size_t n_limits;               /* limits set */
+  double limit[TWF_ACCEPT_COUNT];/* as given (0: not set) */
+  double value[TWF_ACCEPT_COUNT];/* the set's RMS, p95, max (m), max angle (rad) */
+  int pass[TWF_ACCEPT_COUNT];    /* 1: within the limit (value <= limit); 0 for
+                                    a limit not set */
+  int accepted;                  /* 1 when every limit set passes (1 with none) */
+} twf_acceptance;
+
+/* Judge the summary s against lim: the check set when it has position
+ * rows, else the fit set; a value that is NaN (no 6-D rows for an angle
+ * limit) fails. TWF_ERR_INVALID for NULL or a negative limit. */
+twf_status twf_accuracy_accept(const twf_accuracy_summary *s, const twf_acceptance_limits *lim,
+                               twf_acceptance *out, twf_error *err);
 
 /* ISO 9283:1998 pose accuracy (7.2.1) and pose repeatability (7.2.3) where
  * a campaign revisits a commanded pose. */
@@ -139,10 +171,44 @@ typedef struct twf_iso9283_entry {
                             single linkage chained nearby poses */
 } twf_iso9283_entry;
 
+/* Orientation figures of one commanded pose from its 6-D rows (recalled
+ * from ISO 9283:1998 7.2.1 and 7.2.3, not checked against the text): with
+ * (a_j, b_j, c_j) the rotations of the j-th attained flange orientation
+ * about the robot base frame's fixed x, y, z axes relative to the
+ * commanded one (roll-pitch-yaw of D_j = R_attained R_commanded^T, both in
+ * the base frame; to first order the standard's a_j - a_c, b_j - b_c,
+ * c_j - c_c, without its wrap-around at +-180 deg):
+ *   AP_a = mean a_j (likewise b, c)                              (7.2.1)
+ *   RP_a = 3 S_a, S_a = sqrt(sum (a_j - mean a)^2 / (n - 1))     (7.2.3)
+ * all in radians. */
+typedef struct twf_iso9283_orientation {
+  size_t group;          /* as in the entries */
+  size_t first_pose;
+  size_t n;              /* visits with a 6-D row */
+  double ap[3];          /* AP_a, AP_b, AP_c */
+  double rp[3];          /* RP_a, RP_b, RP_c (the +- half-width) */
+} twf_iso9283_orientation;
+
+/* The number of cycles of the standard's pose test (ISO 9283:1998 7.2.1:
+ * each pose visited 30 times; recalled from memory). */
+#define TWF_ISO9283_CYCLES 30
+
 typedef struct twf_iso9283 {
   size_t n_groups;             /* commanded poses with at least one entry */
   size_t n_entries;
   twf_iso9283_entry *entries;  /* by group, then target; NULL when none */
+  /* Summary over the entries: the worst AP_P and RP_l and where they are
+   * (entry indices; SIZE_MAX and NaN when there are no entries), and the
+   * fewest and most visits of an entry (its cycles). */
+  double ap_p_max, rp_max;
+  size_t ap_p_worst, rp_worst;
+  size_t min_cycles, max_cycles;
+  /* Orientation figures per commanded pose with at least min_visits 6-D
+   * visits, and the worst |AP| and RP component over them (rad; NaN when
+   * none). */
+  size_t n_orientation;
+  twf_iso9283_orientation *orientation;
+  double ap_angle_max, rp_angle_max;
 } twf_iso9283;
 
 /* Group the campaign's poses by commanded joint values (sorting joint by

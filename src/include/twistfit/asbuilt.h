@@ -82,6 +82,22 @@ twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
                              twf_asbuilt_comparison *out, twf_error *err);
 
 
+/* The same comparison in the as-built model's own base frame, without the
+ * datum rule (datum identity, asbuilt not modified): for a fit that
+ * changed no joint line (neither tilts nor shifts), where the frame is
+ * already fixed by the unchanged lines. */
+twf_status twf_asbuilt_compare(const twf_model *nominal, const twf_model *asbuilt,
+                               int full_pose, twf_asbuilt_comparison *out, twf_error *err);
+
+/* Keep the history of an as-built model's record: move the metadata keys
+ * without a record prefix (the record of the run that wrote the file) to
+ * "recordN.KEY", N one more than the highest record already kept, in
+ * place (the order stays: earlier records first), so that a new run can
+ * set its own unprefixed record. *record_no (may be NULL) receives N, or 0
+ * when there was nothing to keep. TWF_ERR_INVALID (model unchanged) when a
+ * prefixed key would not fit TWF_NAME_MAX. */
+twf_status twf_asbuilt_record_push(twf_model *m, long *record_no, twf_error *err);
+
 #ifdef __cplusplus
 }
 #endif

@@ -22,7 +22,7 @@ extern "C" {
 /* Calibration: Levenberg-Marquardt fit of the error model             */
 /* ------------------------------------------------------------------ */
 
-/* Outlier screen after a first fit (calibration-model.md "Outliers"). */
+/* Outlier screen after a first fit (DEVELOPERS.md, "The maths"). */
 typedef enum twf_robust {
   TWF_ROBUST_OFF = 0,  /* every measurement keeps full weight */
   TWF_ROBUST_DROP,     /* measurements beyond the threshold are dropped (listed) */
@@ -78,7 +78,7 @@ typedef enum twf_param_status {
 typedef struct twf_param_result {
   twf_param param;
   twf_param_status status;
-  double value;    /* total change from the starting model, SI (m, rad, ratio) */
+  double change;   /* total change from the starting model, SI (m, rad, ratio) */
   double std;      /* predicted standard deviation, SI; NAN when fixed */
   int weak;        /* 1: poorly determined by these poses (see warnings) */
   /* For a fixed parameter: the kept parameters whose columns explain it,
@@ -102,6 +102,55 @@ typedef struct twf_outlier {
 
 #define TWF_CORRELATIONS_MAX 8
 
+/* The conclusion of a calibration (twf_calib_result.verdict). The rule,
+ * on the basis set (twf_verdict_basis) and with the RMS position error
+ * over the same measurements before (registered starting model) and after:
+ *   TWF_VERDICT_DO_NOT_USE    after > (1 + TWF_VERDICT_WORSE_MARGIN) x before:
+ *                             the calibrated model predicts worse than the
+ *                             start (it learnt the noise, or the data and the
+ *                             model do not match); the margin keeps a change
+ *                             in the last digits (a re-fit on the same data)
+ *                             out of it;
+ *   TWF_VERDICT_NOT_IMPROVED  after > TWF_VERDICT_IMPROVED_RATIO x before:
+ *                             less than a tenth better, not worth the
+ *                             change (keep the previous model);
+ *   TWF_VERDICT_IMPROVED      otherwise.
+ * The ratio is our own choice (no standard sets one). */
+typedef enum twf_calib_verdict {
+  TWF_VERDICT_IMPROVED = 0,
+  TWF_VERDICT_NOT_IMPROVED,
+  TWF_VERDICT_DO_NOT_USE
+} twf_calib_verdict;
+#define TWF_VERDICT_IMPROVED_RATIO 0.9
+#define TWF_VERDICT_WORSE_MARGIN 1e-3
+
+/* Which figures the verdict used. */
+typedef enum twf_verdict_basis {
+  TWF_BASIS_CHECK = 0,       /* the check set, every row (none flagged) */
+  TWF_BASIS_CHECK_SCREENED,  /* the check set without its flagged gross errors */
+  TWF_BASIS_FIT              /* no check rows: the fit set the fit kept (not a
+                                validation: a fit always improves its own data) */
+} twf_verdict_basis;
+
+/* Name of a verdict ("improved", "not improved", "do not use") and of a
+ * basis ("check set", "check set without flagged rows", "fit set"). */
+const char *twf_calib_verdict_name(twf_calib_verdict v);
+const char *twf_verdict_basis_name(twf_verdict_basis b);
+
+/* The observability indices of a scaled, weighted Jacobian (Sun and
+ * Hollerbach 2008 compare them). All larger is better. */
+typedef struct twf_observability {
+  double o1;   /* (sv_1 ... sv_n)^(1/n) / sqrt(m), Borm and Menq 1991 */
+  double o2;   /* sv_n / sv_1, the inverse condition number */
+  double o3;   /* sv_n, the minimum singular value */
+  double o4;   /* sv_n^2 / sv_1, the noise amplification index, Nahvi and
+                  Hollerbach 1996 */
+} twf_observability;
+
+/* The indices from the singular values sv[0..n) (descending) of a Jacobian
+ * with m rows. A zero smallest value (or n = 0) gives all four 0. */
+void twf_observability_indices(const double *sv, size_t n, size_t m, twf_observability *out);
+
 typedef struct twf_calib_result {
   twf_model *asbuilt;         /* owned: the calibrated model (datum frame, see DEVELOPERS.md) */
   twf_pose base_in_tracker;   /* fitted base pose in the tracker frame */
@@ -112,18 +161,19 @@ typedef struct twf_calib_result {
   size_t n_kept, n_fixed_structural, n_fixed_data, n_weak;
   size_t structural_count;    /* independent parameters of the rich synthetic set */
   double condition_number;    /* of the scaled, weighted Jacobian of the kept columns */
-  double observability[4];    /* O1 (Borm-Menq), O2 (inverse condition), O3 (min singular value),
-                                 O4 (noise amplification), Sun and Hollerbach 2008 */
+  twf_observability observability; /* of the same Jacobian, twf_observability_indices */
   size_t n_correlations;
   twf_correlation correlations[TWF_CORRELATIONS_MAX];
   size_t n_outliers;
   twf_outlier *outliers;
   size_t n_meas;
   twf_meas_set *meas_set;     /* effective set of each measurement (held-out fraction applied) */
-  double *residual_before;    /* n_meas x 3, measured - model, m, tracker frame */
-  double *residual_after;
-  double *rot_before;         /* n_meas orientation error angles, rad (NAN for point rows) */
-  double *rot_after;
+  /* the same quantities, in the same layout, as twf_accuracy_residuals's
+   * pos_err and angle_err */
+  double *pos_err_before;     /* n_meas x 3, measured - model, m, instrument frame */
+  double *pos_err_after;
+  double *angle_err_before;   /* n_meas orientation error angles, rad (NAN for point rows) */
+  double *angle_err_after;
   twf_solve_report registration;  /* refinement of base and targets on the starting model */
   twf_solve_report solve;         /* the calibration fit (last robust round) */
   int robust_rounds;
@@ -133,8 +183,15 @@ typedef struct twf_calib_result {
   double *joint_range;        /* n_joints: range of each joint over the fit poses, SI */
   unsigned char *target_in_fit; /* n_targets: 1 for a target with fit-set rows (only those are
                                    determined) */
-  twf_asbuilt_comparison comparison; /* as-built lines against the starting model's */
-  /* The accuracy figures of residual_before and residual_after over the
+  /* As-built lines against the starting model's. Only what the fit could
+   * change is given: without tilts the angles, without tilts and shifts
+   * the distances, without offsets the offsets are NaN, and when no joint
+   * line was fitted (neither tilts nor shifts) the model keeps its own
+   * frame (no datum alignment, so the lines stay exactly the starting
+   * model's) and the offset is the fitted offset change (offset_raw; NaN
+   * where that parameter was fixed). */
+  twf_asbuilt_comparison comparison;
+  /* The accuracy figures of pos_err_before and pos_err_after over the
    * effective sets (meas_set), worst_poses per set: owned. */
   twf_accuracy_summary *accuracy_before;
   twf_accuracy_summary *accuracy_after;
@@ -144,8 +201,38 @@ typedef struct twf_calib_result {
    * with reweighting). */
   twf_stats fit_screened;
   size_t n_dropped;
+  /* Which measurements the figures of accuracy_before and accuracy_after
+   * leave out (n_meas): 0 kept, TWF_EXCLUDED_DROPPED a fit row the screen
+   * dropped (weight 0), TWF_EXCLUDED_FLAGGED a check row whose error after
+   * calibration is beyond the screen's threshold against the fit's robust
+   * scale (a gross error such as a broken beam; never with robust OFF).
+   * The summaries are over the kept rows, so before and after compare the
+   * same measurements. */
+  unsigned char *excluded;
+  size_t n_check_flagged;
+  twf_outlier *check_flagged;  /* n_check_flagged: meas, error after (m), score; weight 1 */
+  /* Position errors of the left-out rows, before and after calibration:
+   * [TWF_SET_FIT] the dropped fit rows, [TWF_SET_CHECK] the flagged check
+   * rows (count 0 when none). */
+  twf_stats excluded_before[2], excluded_after[2];
+  /* The check set with every row, flagged ones included. */
+  twf_stats check_all_before, check_all_after;
+  /* The verdict and the figures it used (same measurements before and
+   * after): see twf_calib_verdict. */
+  twf_calib_verdict verdict;
+  twf_verdict_basis verdict_basis;
+  twf_stats verdict_before, verdict_after;
+  unsigned groups;             /* the groups fitted (the options' mask) */
+  /* n_joints: per joint, TWF_GROUP_BIT of each group with a parameter of
+   * this joint fixed because the fit poses cannot determine it
+   * (TWF_PARAM_FIXED_DATA, e.g. a joint that did not move): its figures
+   * in a report are not determined. */
+  unsigned *joint_undetermined;
   twf_trace trace;            /* stage timings and solver steps, for a verbose report */
 } twf_calib_result;
+
+#define TWF_EXCLUDED_DROPPED 1
+#define TWF_EXCLUDED_FLAGGED 2
 
 void twf_calib_result_free(twf_calib_result *r);
 

@@ -14,6 +14,41 @@ extern "C" {
 #endif
 
 /* ------------------------------------------------------------------ */
+/* Limits of every reader (campaigns, model files, base pose files)    */
+/* ------------------------------------------------------------------ */
+
+/* Largest input file read by default, in bytes (2 GiB): a campaign of
+ * 200,000 poses and three targets is about 60 MB. Readers refuse larger
+ * files (TWF_ERR_VALUE) before their memory grows without bound, as it
+ * would reading /dev/zero or /dev/urandom; the limit is an option. */
+#define TWF_INPUT_SIZE_DEFAULT (2ULL << 30)
+/* Longest line of a campaign file, in bytes, without its line end.
+ * Reading stops at a longer line (TWF_ERR_SYNTAX), so that an endless line
+ * neither spins nor grows memory. */
+#define TWF_CAMPAIGN_LINE_MAX 65536
+/* Plausible range of the values every reader accepts (campaigns, model
+ * files, base pose files), in SI: a length (coordinate, joint point,
+ * prismatic value, offset, DH length) beyond 1 km, an angle (joint value,
+ * offset, limit, DH angle, roll-pitch-yaw) beyond 1e4 rad (about 1600
+ * turns) or a joint scale beyond 1e6 in magnitude is a slip (a unit, an
+ * exponent, a column) and is refused at its line and column
+ * (TWF_ERR_VALUE). Far beyond any arm: common practice, no source. Such
+ * values would otherwise reach forward kinematics as non-finite results
+ * or the registration as a singular problem. */
+/* What a reader read: the size and the SHA-256 digest of exactly the
+ * bytes it parsed (not of the file opened again, which may have been
+ * replaced since; pipes and devices get one too). */
+typedef struct twf_input_digest {
+  unsigned long long size;  /* bytes read */
+  char sha256[65];          /* 64 lower-case hex digits and a NUL; "" when
+                               nothing was read */
+} twf_input_digest;
+
+#define TWF_READ_LENGTH_MAX 1e3
+#define TWF_READ_ANGLE_MAX 1e4
+#define TWF_READ_SCALE_MAX 1e6
+
+/* ------------------------------------------------------------------ */
 /* Measurement campaigns (CSV, see twistfit-data(5))                   */
 /* ------------------------------------------------------------------ */
 
@@ -55,6 +90,10 @@ typedef struct twf_campaign {
   size_t n_meas;
   twf_measurement *meas;
   int has_orientation_any; /* some measurement has has_orientation */
+  /* The files read, in the order read: the one file, or the joints file
+   * and the points file; n_inputs 0 for a campaign not read from files. */
+  size_t n_inputs;
+  twf_input_digest inputs[2];
 } twf_campaign;
 
 /* How to read a campaign; get the defaults from
@@ -72,6 +111,9 @@ typedef struct twf_campaign_options {
   int limits_are_errors;
   /* Slack on the limits, SI of the joint (rad or m); default 1e-9. */
   double limit_tolerance;
+  /* Largest file read, bytes, per file; default TWF_INPUT_SIZE_DEFAULT
+   * (0 means the default too). */
+  unsigned long long max_input_size;
 } twf_campaign_options;
 
 twf_campaign_options twf_campaign_default_options(void);
@@ -121,6 +163,10 @@ twf_campaign *twf_campaign_read_joints(const char *joints_path,
                                        const twf_model *m,
                                        const twf_campaign_options *opt,
                                        twf_warnings *w, twf_error *err);
+
+/* Numbers are read and written in the "C" locale whatever the caller's
+ * (see "Locale" in io.h); the decimal comma of a ';'-delimited file is
+ * the format's, not the locale's. */
 
 /* Write c in the one-file form, in the given units (declared in a
  * "# units:" line), numbers with 17 significant digits so that reading

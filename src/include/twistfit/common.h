@@ -109,6 +109,15 @@ const char *twf_angle_unit_name(twf_angle_unit u);
 /* SI value of one unit: metres per unit, radians per unit. */
 double twf_length_unit_si(twf_length_unit u);
 double twf_angle_unit_si(twf_angle_unit u);
+/* Convert a value in unit u to SI (metres, radians) and back: the one
+ * conversion that every reader and writer of the library uses, v times
+ * the unit's SI value on the way in and si divided by it on the way out
+ * (the arithmetic of x / twf_length_unit_si(u), so that reports that
+ * divide by the SI value agree with the files bit for bit). */
+double twf_length_to_si(double v, twf_length_unit u);
+double twf_length_from_si(double si, twf_length_unit u);
+double twf_angle_to_si(double v, twf_angle_unit u);
+double twf_angle_from_si(double si, twf_angle_unit u);
 
 
 /* ------------------------------------------------------------------ */

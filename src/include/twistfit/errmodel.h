@@ -17,7 +17,7 @@ extern "C" {
 /* Error model: calibration parameters and their Jacobian              */
 /* ------------------------------------------------------------------ */
 
-/* Parameter groups (calibration-model.md, "Error parameters"). The enum
+/* Parameter groups (DEVELOPERS.md, "The maths"). The enum
  * order is the default priority of the redundancy walk: the parameters a
  * user cares about first. */
 typedef enum twf_group {

@@ -8,6 +8,7 @@
 #include "twistfit/common.h"
 #include "twistfit/se3.h"
 #include "twistfit/model.h"
+#include "twistfit/campaign.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -17,18 +18,42 @@ extern "C" {
 /* Model files (INI, see twistfit-model(5))                            */
 /* ------------------------------------------------------------------ */
 
+/* Locale: every reader and writer of this header and of campaign.h reads
+ * and writes numbers with '.' as the decimal point whatever the caller's
+ * locale (a program may call setlocale(LC_ALL, "") under any locale). The
+ * calling thread is switched to the "C" locale for the span of the call
+ * and given its own locale back before the call returns; no other thread
+ * and no global state sees a change. */
+
 /* Read a model file. On failure returns NULL and fills err with the file,
  * line and what to do. Recoverable oddities (an axis normalised within
  * 1e-3 of unit length, ...) go to warnings. */
 twf_model *twf_model_read(const char *path, twf_warnings *warnings,
                           twf_error *err);
+
+/* How to read a model file or a base pose file; get the defaults from
+ * twf_read_default_options() and change fields. */
+typedef struct twf_read_options {
+  /* Largest file read, bytes; default TWF_INPUT_SIZE_DEFAULT (campaign.h;
+   * 0 means the default too). A larger file is refused (TWF_ERR_VALUE). */
+  unsigned long long max_input_size;
+} twf_read_options;
+
+twf_read_options twf_read_default_options(void);
+
+/* twf_model_read with options (opt NULL: the defaults); digest (may be
+ * NULL) receives the size and SHA-256 of the bytes parsed (on failure
+ * it is left with an empty sha256). */
+twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
+                               twf_warnings *warnings,
+                               twf_input_digest *digest, twf_error *err);
 /* Write m in axis-and-point form with full precision (17 significant
  * digits) in m's declared units, metadata included. */
 twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err);
 
 
 /* ------------------------------------------------------------------ */
-/* Model files: limits and return codes (modelfile.c)                  */
+/* Model files: limits and return codes (modelfile_read/_write.c)     */
 /* ------------------------------------------------------------------ */
 
 /* Longest line of a model file, in bytes, not counting the line end: one
@@ -39,7 +64,9 @@ twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err);
  * twf_model_read (declared above) returns NULL with err->status:
  *   TWF_ERR_IO         the file cannot be opened or read (line 0);
  *   TWF_ERR_SYNTAX     a malformed line, section header or name, a line
- *                      longer than TWF_MODEL_LINE_MAX, joints in different
+ *                      longer than TWF_MODEL_LINE_MAX (reading stops at a
+ *                      line longer than TWF_CAMPAIGN_LINE_MAX), a NUL
+ *                      byte, joints in different
  *                      forms, [home] in a DH file or [flange] in an
  *                      axis-and-point file;
  *   TWF_ERR_UNKNOWN    an unknown section, key or joint type;
@@ -47,7 +74,8 @@ twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err);
  *                      two rotation forms or two joint geometries;
  *   TWF_ERR_MISSING    no [robot], no joint, no [home], a missing type,
  *                      axis, point, position or rotation, an empty file;
- *   TWF_ERR_VALUE      a value that is not a finite number, a wrong count,
+ *   TWF_ERR_VALUE      a file larger than the input size limit (line 0),
+ *                      a value that is not a finite number, a wrong count,
  *                      a zero or non-unit axis (beyond 1e-3), min > max,
  *                      a zero scale, a rotation not orthonormal to 1e-6 or
  *                      a reflection, a quaternion norm beyond 1e-6 of 1;
@@ -78,6 +106,11 @@ twf_status twf_model_write(const twf_model *m, FILE *out, twf_error *err);
  * rules and errors as twf_model_read (file, line and a hint). */
 twf_status twf_base_read(const char *path, twf_pose *base_in_tracker,
                          twf_error *err);
+/* twf_base_read with options (opt NULL: the defaults) and the digest of
+ * the bytes parsed (may be NULL), as twf_model_read_with. */
+twf_status twf_base_read_with(const char *path, const twf_read_options *opt,
+                              twf_pose *base_in_tracker,
+                              twf_input_digest *digest, twf_error *err);
 /* Write base_in_tracker in that form with 17 significant digits, position
  * in length unit u; comment (may be NULL) becomes a leading ';' line. */
 twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,

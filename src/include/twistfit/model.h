@@ -101,13 +101,21 @@ void twf_model_jacobian_spatial(const twf_model *m, const twf_pose *prefix,
                                 double *J);
 
 /* A Denavit-Hartenberg row, SI units. Standard (distal) DH:
- *   A_i = Rz(theta_i + q_i) Tz(d_i) Tx(a_i) Rx(alpha_i), joint axis z_(i-1);
- * modified (proximal, Craig) DH, where a and alpha are a_(i-1), alpha_(i-1):
- *   A_i = Rx(alpha_i) Tx(a_i) Rz(theta_i + q_i) Tz(d_i), joint axis z_i.
- * For a prismatic joint q adds to d instead of theta. */
+ *   A_i = Rz(theta_i + q_i) Tz(d_i) Tx(a_i) Rx(alpha_i) Ry(beta_i),
+ *   joint axis z_(i-1);
+ * modified (proximal, Craig) DH, where a, alpha and beta are a_(i-1),
+ * alpha_(i-1) and beta_(i-1):
+ *   A_i = Rx(alpha_i) Tx(a_i) Ry(beta_i) Rz(theta_i + q_i) Tz(d_i),
+ *   joint axis z_i.
+ * For a prismatic joint q adds to d instead of theta. beta is Hayati's
+ * rotation about the link's y axis (Hayati 1983; Veitschegger and Wu 1986),
+ * used instead of d where consecutive axes are nearly parallel; 0 for a
+ * plain DH row. Since Tx(a) and Rx(alpha) commute, a row of either
+ * convention describes the same link motion Tx(a) Rx(alpha) Ry(beta). */
 typedef struct twf_dh_row {
   double a, alpha, d, theta;
   twf_joint_type type;
+  double beta;
 } twf_dh_row;
 
 typedef enum twf_dh_convention {
@@ -118,11 +126,24 @@ typedef enum twf_dh_convention {
 /* Convert a DH table into the joints and home pose of m (m->n_joints must
  * equal n). flange_in_last (may be NULL for identity) is the flange pose in
  * the last DH frame. Names and limits of m's joints are left unchanged;
- * scale and offset are reset to 1 and 0. */
+ * scale and offset are reset to 1 and 0. Reads a, alpha, d, theta and type
+ * only: beta is taken as 0, so that callers that fill only those fields
+ * keep their exact behaviour (use twf_model_set_from_dh_beta for beta). */
 twf_status twf_model_set_from_dh(twf_model *m, const twf_dh_row *rows,
                                  size_t n, twf_dh_convention conv,
                                  const twf_pose *flange_in_last,
                                  twf_error *err);
+
+/* As twf_model_set_from_dh, honouring each row's beta (every field of
+ * every row must be set; beta = 0 everywhere gives twf_model_set_from_dh's
+ * result exactly), with the model's base frame at base_to_first (may be
+ * NULL for identity): the pose of DH frame 0 in the model's base frame,
+ * so that T(q) = base_to_first A_1 ... A_n flange_in_last. */
+twf_status twf_model_set_from_dh_beta(twf_model *m, const twf_dh_row *rows,
+                                      size_t n, twf_dh_convention conv,
+                                      const twf_pose *base_to_first,
+                                      const twf_pose *flange_in_last,
+                                      twf_error *err);
 
 
 #ifdef __cplusplus

@@ -27,6 +27,16 @@ typedef struct twf_simulate_options {
   double limit_margin;     /* fraction of each joint's span kept clear of its limits (default 0.05) */
   const unsigned char *targets; /* n_targets flags of targets to measure, NULL: every known one */
   unsigned long long seed; /* default 1 */
+  /* Given poses instead of random ones: n_poses x n_joints logged joint
+   * values, SI (borrowed); NULL (default): drawn within the limits. */
+  const double *q;
+  /* Gross errors: each measurement is, with this probability (default 0),
+   * displaced by outlier_m (default 1 mm) in a random direction (a broken
+   * beam, a reflector in the wrong nest). The draws happen only when the
+   * fraction is positive, so that campaigns without them keep their
+   * values. */
+  double outlier_fraction;
+  double outlier_m;
 } twf_simulate_options;
 
 twf_simulate_options twf_simulate_default_options(void);
@@ -38,7 +48,7 @@ void twf_simulate_joints(const twf_model *m, double margin,
                          unsigned long long *state, double *q);
 
 /* A campaign measured on the arm truth seen from the tracker at
- * base_in_tracker: random poses, every selected target with a known offset
+ * base_in_tracker: random (or the given) poses, every selected target with a known offset
  * at every pose, Gaussian noise. Pose ids P0001, P0002, ... NULL with err
  * filled on failure. */
 twf_campaign *twf_simulate_campaign(const twf_model *truth,

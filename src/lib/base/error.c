@@ -51,6 +51,37 @@ void twf_error_clear(twf_error *err)
   err->status = TWF_OK;
 }
 
+/* Input bytes are quoted in messages ("unknown column '...'"); a control
+ * character among them (an escape sequence, a carriage return) would act on
+ * the user's terminal. Rewrite each control byte in place as \xNN, cutting
+ * the text at a whole escape when the buffer is full. */
+static void escape_controls(char *text, size_t size)
+{
+  char tmp[1024];
+  size_t n = 0;
+  const unsigned char *p;
+  int any = 0;
+  for (p = (const unsigned char *)text; *p; p++)
+    if (*p < 0x20 || *p == 0x7f)
+      any = 1;
+  if (!any || size == 0)
+    return;
+  if (size > sizeof tmp)
+    size = sizeof tmp;
+  for (p = (const unsigned char *)text; *p && n + 1 < size; p++) {
+    if (*p < 0x20 || *p == 0x7f) {
+      if (n + 5 > size)
+        break;
+      snprintf(tmp + n, 5, "\\x%02x", (unsigned)*p);
+      n += 4;
+    } else {
+      tmp[n++] = (char)*p;
+    }
+  }
+  tmp[n] = '\0';
+  twf_strlcpy(text, tmp, size);
+}
+
 twf_status twf_error_set(twf_error *err, twf_status status, const char *file,
                          long line, long column, const char *hint,
                          const char *fmt, ...)
@@ -65,7 +96,9 @@ twf_status twf_error_set(twf_error *err, twf_status status, const char *file,
   va_start(ap, fmt);
   vsnprintf(err->message, sizeof err->message, fmt, ap);
   va_end(ap);
+  escape_controls(err->message, sizeof err->message);
   twf_strlcpy(err->hint, hint ? hint : "", sizeof err->hint);
+  escape_controls(err->hint, sizeof err->hint);
   return status;
 }
 
@@ -105,6 +138,7 @@ void twf_warnings_add(twf_warnings *w, const char *file, long line,
   va_start(ap, fmt);
   vsnprintf(item->message, sizeof item->message, fmt, ap);
   va_end(ap);
+  escape_controls(item->message, sizeof item->message);
 }
 
 const char *twf_version(void)

@@ -1,4 +1,4 @@
-/* calib.c: the calibration job (calibration-model.md). twf_calibrate is a
+/* calib.c: the calibration job (DEVELOPERS.md, "The maths"). twf_calibrate is a
  * driver that runs named stages in order on one job: the sets and joint
  * ranges, the registration and its refinement, the problem at the
  * registered model, the structural redundancy and the redundancy on the
@@ -60,6 +60,28 @@ twf_advice twf_advice_of(const twf_error *err)
   return TWF_ADVICE_NONE;
 }
 
+/* ------------------------------------------------------------ the verdict */
+
+const char *twf_calib_verdict_name(twf_calib_verdict v)
+{
+  switch (v) {
+  case TWF_VERDICT_IMPROVED: return "improved";
+  case TWF_VERDICT_NOT_IMPROVED: return "not improved";
+  case TWF_VERDICT_DO_NOT_USE: return "do not use";
+  }
+  return "?";
+}
+
+const char *twf_verdict_basis_name(twf_verdict_basis b)
+{
+  switch (b) {
+  case TWF_BASIS_CHECK: return "check set";
+  case TWF_BASIS_CHECK_SCREENED: return "check set without flagged rows";
+  case TWF_BASIS_FIT: return "fit set";
+  }
+  return "?";
+}
+
 /* ------------------------------------------------------------ the result */
 
 void twf_calib_result_free(twf_calib_result *r)
@@ -71,15 +93,18 @@ void twf_calib_result_free(twf_calib_result *r)
   free(r->params);
   free(r->outliers);
   free(r->meas_set);
-  free(r->residual_before);
-  free(r->residual_after);
-  free(r->rot_before);
-  free(r->rot_after);
+  free(r->pos_err_before);
+  free(r->pos_err_after);
+  free(r->angle_err_before);
+  free(r->angle_err_after);
   free(r->joint_range);
   free(r->target_in_fit);
   twf_asbuilt_comparison_clear(&r->comparison);
   twf_accuracy_summary_free(r->accuracy_before);
   twf_accuracy_summary_free(r->accuracy_after);
+  free(r->excluded);
+  free(r->check_flagged);
+  free(r->joint_undetermined);
   twf_trace_clear(&r->trace);
   free(r);
 }
@@ -171,13 +196,13 @@ static twf_status job_alloc_result(job *j)
   twf_trace_init(&res->trace);
   res->n_meas = c->n_meas;
   res->meas_set = calloc(nm, sizeof *res->meas_set);
-  res->residual_before = calloc(3 * nm, sizeof(double));
-  res->residual_after = calloc(3 * nm, sizeof(double));
-  res->rot_before = calloc(nm, sizeof(double));
-  res->rot_after = calloc(nm, sizeof(double));
+  res->pos_err_before = calloc(3 * nm, sizeof(double));
+  res->pos_err_after = calloc(3 * nm, sizeof(double));
+  res->angle_err_before = calloc(nm, sizeof(double));
+  res->angle_err_after = calloc(nm, sizeof(double));
   res->joint_range = calloc(j->start->n_joints ? j->start->n_joints : 1, sizeof(double));
-  if (!res->meas_set || !res->residual_before || !res->residual_after || !res->rot_before ||
-      !res->rot_after || !res->joint_range)
+  if (!res->meas_set || !res->pos_err_before || !res->pos_err_after || !res->angle_err_before ||
+      !res->angle_err_after || !res->joint_range)
     return nomem(j);
   return TWF_OK;
 }
@@ -286,8 +311,8 @@ static twf_status stage_registration(job *j)
   }
   if (st != TWF_OK)
     return st;
-  return twf_lsq_residuals(j->reg, &j->res->base_before, j->c, j->res->residual_before,
-                           j->res->rot_before, j->err);
+  return twf_lsq_residuals(j->reg, &j->res->base_before, j->c, j->res->pos_err_before,
+                           j->res->angle_err_before, j->err);
 }
 
 /* ------------------------------------------------------------ stage: the problem */
@@ -530,7 +555,7 @@ static twf_status list_outliers(job *j)
   twf_calib_result *res = j->res;
   size_t i, k;
   for (i = 0; i < j->c->n_meas; i++)
-    res->n_outliers += twf_robust_listed(&j->pr, j->opt.robust, j->opt.robust_threshold, j->score, i);
+    res->n_outliers += (size_t)twf_robust_listed(&j->pr, j->opt.robust, j->opt.robust_threshold, j->score, i);
   res->outliers = calloc(res->n_outliers ? res->n_outliers : 1, sizeof *res->outliers);
   if (res->outliers == NULL)
     return nomem(j);
@@ -642,18 +667,12 @@ static void conditioning(job *j)
 {
   twf_calib_result *res = j->res;
   double *sv = j->ratio;
-  size_t ns, k;
+  size_t ns;
   twf_lsq_scale_normal(&j->pr, j->pr.A, j->As);
   ns = twf_ident_singular_values(j->As, j->p, j->keep, sv);
+  twf_observability_indices(sv, ns, j->n_rows, &res->observability);
   if (ns > 0 && sv[ns - 1] > 0) {
-    double logsum = 0.0;
-    for (k = 0; k < ns; k++)
-      logsum += log(sv[k]);
     res->condition_number = sv[0] / sv[ns - 1];
-    res->observability[0] = exp(logsum / (double)ns) / sqrt((double)(j->n_rows ? j->n_rows : 1));
-    res->observability[1] = sv[ns - 1] / sv[0];
-    res->observability[2] = sv[ns - 1];
-    res->observability[3] = sv[ns - 1] * sv[ns - 1] / sv[0];
   } else {
     res->condition_number = INFINITY;
   }
@@ -670,11 +689,11 @@ static twf_status stage_identifiability(job *j)
   for (a = 0; a < p; a++) {
     twf_param_result *pa = &res->params[a];
     double scaled;
-    pa->value = j->value[a];
+    pa->change = j->value[a];
     pa->std = j->keep[a] ? sqrt(j->cov[a * p + a]) : NAN;
     j->ratio[a] = 0.0; /* the weak parameters' std over sigma */
     if (!j->keep[a]) {
-      pa->value = 0.0;
+      pa->change = 0.0;
       continue;
     }
     scaled = pa->std * j->scales[a];
@@ -700,43 +719,152 @@ static twf_status stage_identifiability(job *j)
 
 /* ------------------------------------------------------------ stage: as-built summary */
 
-/* The fit set without the dropped measurements: what the fit achieved on
- * the rows it kept. */
-static twf_status fit_screened(job *j)
+/* Statistics of the position error lengths of res (after or before) over
+ * the measurements of one set with excluded == want. */
+static twf_status stats_where(job *j, const double *resid, int set, unsigned char want, twf_stats *out)
 {
-  twf_calib_result *res = j->res;
-  size_t n = j->c->n_meas, i, k, m = 0;
+  const twf_calib_result *res = j->res;
+  size_t n = j->c->n_meas, i, m = 0;
   double *len = malloc((n ? n : 1) * sizeof *len);
-  unsigned char *dropped = calloc(n ? n : 1, 1);
   twf_status st;
-  if (len == NULL || dropped == NULL) {
-    free(len);
-    free(dropped);
+  if (len == NULL)
     return nomem(j);
-  }
-  for (k = 0; k < res->n_outliers; k++)
-    if (res->outliers[k].weight == 0.0) {
-      dropped[res->outliers[k].meas] = 1;
-      res->n_dropped++;
-    }
   for (i = 0; i < n; i++)
-    if (res->meas_set[i] == TWF_SET_FIT && !dropped[i])
-      len[m++] = twf_v3_norm(res->residual_after + 3 * i);
-  st = twf_accuracy_stats(len, m, &res->fit_screened, j->err);
+    if ((int)res->meas_set[i] == set && (want == 0xff || res->excluded[i] == want))
+      len[m++] = twf_v3_norm(resid + 3 * i);
+  st = twf_accuracy_stats(len, m, out, j->err);
   free(len);
-  free(dropped);
   return st;
 }
 
+/* Which rows the figures leave out: the fit rows the screen dropped, and
+ * the check rows whose error after calibration is beyond the threshold
+ * against the fit's robust scale (scored at the final model; the weights
+ * of the fit are kept as they are). */
+static twf_status mark_excluded(job *j)
+{
+  twf_calib_result *res = j->res;
+  size_t n = j->c->n_meas, i, k;
+  double *score = NULL, *len = NULL, *w = NULL;
+  size_t changed;
+  res->excluded = calloc(n ? n : 1, 1);
+  if (res->excluded == NULL)
+    return nomem(j);
+  for (k = 0; k < res->n_outliers; k++)
+    if (res->outliers[k].weight == 0.0) {
+      res->excluded[res->outliers[k].meas] = TWF_EXCLUDED_DROPPED;
+      res->n_dropped++;
+    }
+  if (j->opt.robust == TWF_ROBUST_OFF || res->n_check_meas == 0)
+    return TWF_OK;
+  score = malloc((n ? n : 1) * sizeof *score);
+  len = malloc((n ? n : 1) * sizeof *len);
+  w = malloc((n ? n : 1) * sizeof *w);
+  if (score == NULL || len == NULL || w == NULL)
+    goto nomem;
+  memcpy(w, j->pr.weight, n * sizeof *w);
+  if (twf_robust_screen(&j->pr, j->opt.robust, j->opt.robust_threshold, score, len, &changed) != TWF_OK)
+    goto nomem;
+  memcpy(j->pr.weight, w, n * sizeof *w);
+  for (i = 0; i < n; i++)
+    if (res->meas_set[i] == TWF_SET_CHECK && score[i] > j->opt.robust_threshold) {
+      res->excluded[i] = TWF_EXCLUDED_FLAGGED;
+      res->n_check_flagged++;
+    }
+  res->check_flagged = calloc(res->n_check_flagged ? res->n_check_flagged : 1, sizeof *res->check_flagged);
+  if (res->check_flagged == NULL)
+    goto nomem;
+  for (i = 0, k = 0; i < n; i++)
+    if (res->excluded[i] == TWF_EXCLUDED_FLAGGED) {
+      res->check_flagged[k].meas = i;
+      res->check_flagged[k].error_m = len[i];
+      res->check_flagged[k].score = score[i];
+      res->check_flagged[k].weight = 1.0;
+      k++;
+    }
+  free(score); free(len); free(w);
+  return TWF_OK;
+nomem:
+  free(score); free(len); free(w);
+  return nomem(j);
+}
+
+/* The verdict (twf_calib_verdict) on the check set without its flagged
+ * rows, else the fit set the fit kept. */
+static void verdict(twf_calib_result *res)
+{
+  int set = TWF_SET_FIT;
+  if (res->accuracy_after->position[TWF_SET_CHECK].count > 0) {
+    set = TWF_SET_CHECK;
+    res->verdict_basis = res->n_check_flagged > 0 ? TWF_BASIS_CHECK_SCREENED : TWF_BASIS_CHECK;
+  } else {
+    res->verdict_basis = TWF_BASIS_FIT;
+  }
+  res->verdict_before = res->accuracy_before->position[set];
+  res->verdict_after = res->accuracy_after->position[set];
+  if (!(res->verdict_after.rms <= (1.0 + TWF_VERDICT_WORSE_MARGIN) * res->verdict_before.rms))
+    res->verdict = TWF_VERDICT_DO_NOT_USE;
+  else if (res->verdict_after.rms > TWF_VERDICT_IMPROVED_RATIO * res->verdict_before.rms)
+    res->verdict = TWF_VERDICT_NOT_IMPROVED;
+  else
+    res->verdict = TWF_VERDICT_IMPROVED;
+}
+
+/* Per joint, the groups with a parameter the poses could not determine. */
+static twf_status joints_undetermined(job *j)
+{
+  twf_calib_result *res = j->res;
+  size_t k;
+  res->joint_undetermined = calloc(j->start->n_joints ? j->start->n_joints : 1, sizeof *res->joint_undetermined);
+  if (res->joint_undetermined == NULL)
+    return nomem(j);
+  for (k = 0; k < res->n_params; k++) {
+    const twf_param *pa = &res->params[k].param;
+    if (res->params[k].status == TWF_PARAM_FIXED_DATA && pa->joint >= 0 &&
+        (size_t)pa->joint < j->start->n_joints)
+      res->joint_undetermined[pa->joint] |= TWF_GROUP_BIT(pa->group);
+  }
+  return TWF_OK;
+}
+
+/* Leave out of the comparison what the fit could not change (see
+ * twf_calib_result.comparison). */
+static void comparison_restrict(job *j, int lines_fitted)
+{
+  twf_calib_result *res = j->res;
+  unsigned g = j->opt.groups;
+  size_t i, k;
+  for (i = 0; i < res->comparison.n_joints; i++) {
+    twf_joint_deviation *d = &res->comparison.joints[i];
+    if (!(g & TWF_GROUP_BIT(TWF_GROUP_TILTS)))
+      d->angle_rad = NAN;
+    if (!lines_fitted)
+      d->distance_m = NAN;
+    if (!(g & TWF_GROUP_BIT(TWF_GROUP_OFFSETS))) {
+      d->offset = NAN;
+    } else if (!lines_fitted) {
+      d->offset = NAN;
+      if (j->start->joints[i].type == TWF_JOINT_REVOLUTE)
+        for (k = 0; k < res->n_params; k++)
+          if (res->params[k].param.group == TWF_GROUP_OFFSETS && res->params[k].param.joint == (long)i &&
+              res->params[k].status == TWF_PARAM_KEPT)
+            d->offset = d->offset_raw;
+    }
+  }
+}
+
 /* The outputs: residuals after, the as-built model and its comparison with
- * the start in the datum frame, the accuracy figures over the effective
- * sets. */
+ * the start (in the datum frame when joint lines were fitted), the
+ * accuracy figures over the kept rows, the left-out rows, the verdict. */
 static twf_status stage_asbuilt(job *j)
 {
   twf_calib_result *res = j->res;
-  twf_status st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->residual_after, res->rot_after, j->err);
+  int lines_fitted = (j->opt.groups & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
+  int set;
+  twf_status st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
   if (st != TWF_OK)
     return st;
+  res->groups = j->opt.groups;
   res->base_in_tracker = j->pr.base;
   res->asbuilt = twf_model_copy(j->pr.m);
   res->registered = j->reg;
@@ -745,8 +873,11 @@ static twf_status stage_asbuilt(job *j)
   j->target_seen = NULL;
   if (res->asbuilt == NULL)
     return nomem(j);
-  st = twf_asbuilt_align(j->start, res->asbuilt, &res->base_in_tracker, j->with_orientation,
-                         &res->comparison, j->err);
+  /* without a fitted joint line the frame is fixed by the unchanged lines:
+   * no datum rule, so that the written model keeps them exactly */
+  st = lines_fitted ? twf_asbuilt_align(j->start, res->asbuilt, &res->base_in_tracker, j->with_orientation,
+                                        &res->comparison, j->err)
+                    : twf_asbuilt_compare(j->start, res->asbuilt, j->with_orientation, &res->comparison, j->err);
   if (st != TWF_OK)
     return st;
   /* what the data cannot tell about the flange at logged zero */
@@ -754,15 +885,31 @@ static twf_status stage_asbuilt(job *j)
     res->comparison.home_angle_rad = NAN;
   if (j->opt.groups & TWF_GROUP_BIT(TWF_GROUP_TARGETS))
     res->comparison.home_distance_m = NAN;
-  res->accuracy_before = twf_accuracy_summarize(&j->view, j->start->n_targets, res->residual_before,
-                                                res->rot_before, j->opt.worst_poses, j->err);
+  if ((st = joints_undetermined(j)) != TWF_OK)
+    return st;
+  comparison_restrict(j, lines_fitted);
+  if ((st = mark_excluded(j)) != TWF_OK)
+    return st;
+  res->accuracy_before = twf_accuracy_summarize_kept(&j->view, j->start->n_targets, res->pos_err_before,
+                                                     res->angle_err_before, res->excluded, j->opt.worst_poses, j->err);
   if (res->accuracy_before == NULL)
     return j->err ? j->err->status : TWF_ERR_NOMEM;
-  res->accuracy_after = twf_accuracy_summarize(&j->view, j->start->n_targets, res->residual_after,
-                                               res->rot_after, j->opt.worst_poses, j->err);
+  res->accuracy_after = twf_accuracy_summarize_kept(&j->view, j->start->n_targets, res->pos_err_after,
+                                                    res->angle_err_after, res->excluded, j->opt.worst_poses, j->err);
   if (res->accuracy_after == NULL)
     return j->err ? j->err->status : TWF_ERR_NOMEM;
-  return fit_screened(j);
+  res->fit_screened = res->accuracy_after->position[TWF_SET_FIT];
+  for (set = 0; set < 2; set++) {
+    unsigned char want = set == TWF_SET_FIT ? TWF_EXCLUDED_DROPPED : TWF_EXCLUDED_FLAGGED;
+    if ((st = stats_where(j, res->pos_err_before, set, want, &res->excluded_before[set])) != TWF_OK ||
+        (st = stats_where(j, res->pos_err_after, set, want, &res->excluded_after[set])) != TWF_OK)
+      return st;
+  }
+  if ((st = stats_where(j, res->pos_err_before, TWF_SET_CHECK, 0xff, &res->check_all_before)) != TWF_OK ||
+      (st = stats_where(j, res->pos_err_after, TWF_SET_CHECK, 0xff, &res->check_all_after)) != TWF_OK)
+    return st;
+  verdict(res);
+  return TWF_OK;
 }
 
 /* ------------------------------------------------------------ stage: plausibility */
@@ -802,8 +949,6 @@ static twf_status stage_plausibility(job *j)
 {
   const twf_calib_result *res = j->res;
   const twf_model *start = j->start;
-  const twf_stats *before = &res->accuracy_before->position[TWF_SET_CHECK];
-  const twf_stats *after = &res->accuracy_after->position[TWF_SET_CHECK];
   twf_status st;
   if (!j->opt.accept_large && (st = beyond_any_calibration(j)) != TWF_OK)
     return st;
@@ -812,12 +957,22 @@ static twf_status stage_plausibility(job *j)
                          "the kept parameters are not independent on these poses (condition number infinite)");
   /* a calibrated model that predicts the held-out poses worse than the
    * starting one has learnt the noise, not the arm */
-  if (after->count > 0 && after->rms > before->rms)
+  if (res->verdict == TWF_VERDICT_DO_NOT_USE)
     twf_warnings_add(j->warnings, NULL, 0, 0,
-                     "the calibrated model predicts the check set worse than the starting model "
+                     "the calibrated model predicts the %s worse than the starting model "
                      "(RMS %.4g against %.4g %s): do not use it; measure more, and more varied, poses",
-                     after->rms / twf_length_unit_si(start->length_unit),
-                     before->rms / twf_length_unit_si(start->length_unit),
+                     twf_verdict_basis_name(res->verdict_basis),
+                     res->verdict_after.rms / twf_length_unit_si(start->length_unit),
+                     res->verdict_before.rms / twf_length_unit_si(start->length_unit),
+                     twf_length_unit_name(start->length_unit));
+  if (res->n_check_flagged > 0)
+    twf_warnings_add(j->warnings, NULL, 0, 0,
+                     "%zu check-set measurement%s beyond %.3g robust standard deviations of the fit "
+                     "(gross errors such as a broken beam?) %s left out of the check figures; with %s the "
+                     "check RMS is %.4g %s",
+                     res->n_check_flagged, res->n_check_flagged == 1 ? "" : "s", j->opt.robust_threshold,
+                     res->n_check_flagged == 1 ? "is" : "are", res->n_check_flagged == 1 ? "it" : "them",
+                     res->check_all_after.rms / twf_length_unit_si(start->length_unit),
                      twf_length_unit_name(start->length_unit));
   if (!res->comparison.settled)
     twf_warnings_add(j->warnings, NULL, 0, 0,

@@ -1,6 +1,6 @@
 /* errmodel.c: the calibration parameters of a PoE model and the exact
  * first-order effect of each on one measurement (the adjoint error model,
- * calibration-model.md "Error parameters"; Okamura and Park 1996, He, Zhao,
+ * DEVELOPERS.md, "The maths"; Okamura and Park 1996, He, Zhao,
  * Yang and Yang 2010, Li, Wu, Loewe and others 2016).
  *
  * Each parameter is a small perturbation of the current model; its effect
@@ -192,7 +192,7 @@ double twf_errmodel_param_scale(const twf_errmodel *em, size_t j)
 
 /* u1: the component of base x perpendicular to the joint direction (base y
  * when x is within 30 degrees of it), u2 = d x u1: reproducible names and
- * values for the axis errors (calibration-model.md). */
+ * values for the axis errors (DEVELOPERS.md, "The maths"). */
 void twf_errmodel_update(twf_errmodel *em, const twf_model *m)
 {
   size_t i;
@@ -339,7 +339,7 @@ void twf_errmodel_point(const twf_errmodel *em, const twf_model *m,
     if (par->group == TWF_GROUP_TARGETS) {
       int r;
       for (r = 0; r < 3; r++)
-        rows[r * p + j] = par->target == (long)target ? em->flange.R[r][par->component] : 0.0;
+        rows[(size_t)r * p + j] = par->target == (long)target ? em->flange.R[r][par->component] : 0.0;
     } else {
       /* a spatial twist (w, v) moves the point y by w x y + v */
       const double *t = em->twists + 6 * j;
@@ -402,7 +402,7 @@ void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
       continue;
     }
     for (a = 0; a < 3; a++)
-      rows[a * p + j] = Jinv[a][0] * t[0] + Jinv[a][1] * t[1] + Jinv[a][2] * t[2];
+      rows[(size_t)a * p + j] = Jinv[a][0] * t[0] + Jinv[a][1] * t[1] + Jinv[a][2] * t[2];
   }
 }
 

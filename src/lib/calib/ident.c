@@ -1,7 +1,6 @@
 /* ident.c: which parameters a pose set determines, and how well: the
  * redundancy walk, the explanation of fixed parameters, covariance and
- * singular values, all from the normal matrix (calibration-model.md
- * "Redundant and weak parameters"). */
+ * singular values, on the normal matrix or its triangular factor (DEVELOPERS.md, "The maths"). */
 #include "ident.h"
 
 #include <gsl/gsl_eigen.h>

@@ -1,4 +1,4 @@
-/* lsq.c: the least-squares machinery (calibration-model.md, "Solver").
+/* lsq.c: the least-squares machinery (DEVELOPERS.md, "The maths").
  *
  * The normal matrix J^T W J and gradient J^T W r are accumulated pose by
  * pose (twf_errmodel_eval_pose once, then every target of that pose):
@@ -576,7 +576,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
       for (a = 0; a < nc; a++) {
         if (cd[a].target >= 0) {
           for (k = 0; k < 3; k++)
-            c0[k * ld + a] = cd[a].target == (long)ms->target ? F->R[k][cd[a].comp] : 0.0;
+            c0[(size_t)k * ld + a] = cd[a].target == (long)ms->target ? F->R[k][cd[a].comp] : 0.0;
         } else {
           /* a spatial twist (w, v) moves the point y by w x y + v */
           const double *e = tw + 6 * cd[a].j;
@@ -606,7 +606,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
             c0[a] = c0[ld + a] = c0[2 * ld + a] = 0.0;
           } else {
             for (k = 0; k < 3; k++)
-              c0[k * ld + a] = Ji[k][0] * e[0] + Ji[k][1] * e[1] + Ji[k][2] * e[2];
+              c0[(size_t)k * ld + a] = Ji[k][0] * e[0] + Ji[k][1] * e[1] + Ji[k][2] * e[2];
           }
         }
         for (a = 0; a < 3 * ld; a++)

@@ -56,7 +56,7 @@ static int cloud_shape(const double *x, const double *w, size_t n,
   for (i = 0; i < n; i++) {
     double wi = w ? w[i] : 1.0;
     for (c = 0; c < 3; c++)
-      centroid[c] += wi * x[3 * i + c];
+      centroid[c] += wi * x[3 * i + (size_t)c];
   }
   for (c = 0; c < 3; c++)
     centroid[c] /= sumw;
@@ -65,8 +65,8 @@ static int cloud_shape(const double *x, const double *w, size_t n,
     if (wi == 0.0)
       continue;
     for (c = 0; c < 3; c++) {
-      d[c] = x[3 * i + c] - centroid[c];
-      ss += wi * x[3 * i + c] * x[3 * i + c];
+      d[c] = x[3 * i + (size_t)c] - centroid[c];
+      ss += wi * x[3 * i + (size_t)c] * x[3 * i + (size_t)c];
     }
     for (r = 0; r < 3; r++)
       for (c = 0; c < 3; c++)
@@ -139,8 +139,8 @@ static reg_outcome register_core(const double *a, const double *b,
     if (wi == 0.0)
       continue;
     for (c = 0; c < 3; c++) {
-      da[c] = a[3 * i + c] - ca[c];
-      db[c] = b[3 * i + c] - cb[c];
+      da[c] = a[3 * i + (size_t)c] - ca[c];
+      db[c] = b[3 * i + (size_t)c] - cb[c];
     }
     for (r = 0; r < 3; r++)
       for (c = 0; c < 3; c++)
@@ -426,13 +426,13 @@ static void solve_offsets(reg_work *wk, const twf_campaign *c,
       z[r] = B->R[0][r] * d[0] + B->R[1][r] * d[1] + B->R[2][r] * d[2] - F->p[r];
     for (r = 0; r < 3; r++)
       for (s = 0; s < 3; s++)
-        wk->t_sum[3 * k + r] += wk->w[i] * F->R[s][r] * z[s];
+        wk->t_sum[3 * k + (size_t)r] += wk->w[i] * F->R[s][r] * z[s];
     wk->t_w[k] += wk->w[i];
   }
   for (k = 0; k < n_targets; k++)
     if (wk->fitted[k] && wk->t_w[k] > 0.0)
       for (r = 0; r < 3; r++)
-        offsets[3 * k + r] = wk->t_sum[3 * k + r] / wk->t_w[k];
+        offsets[3 * k + (size_t)r] = wk->t_sum[3 * k + (size_t)r] / wk->t_w[k];
 }
 
 static void predict_points(reg_work *wk, const twf_campaign *c,

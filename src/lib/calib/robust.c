@@ -1,4 +1,4 @@
-/* robust.c: the gross-error screen (calibration-model.md "Outliers"). The
+/* robust.c: the gross-error screen (DEVELOPERS.md, "The maths"). The
  * scale is 1.4826 MAD of the weighted residual components (the factor makes
  * it the standard deviation for normal noise), so that a few gross errors
  * cannot inflate it as they inflate the RMS. */
@@ -29,7 +29,7 @@ static void robust_scales(const twf_lsq_problem *pr, const double *pos, const do
     if (!pr->use[i])
       continue;
     for (k = 0; k < 3; k++)
-      comp[n++] = pos[3 * i + k] * pr->inv_sigma[i];
+      comp[n++] = pos[3 * i + (size_t)k] * pr->inv_sigma[i];
     if (c->meas[i].has_orientation)
       rs[nr++] = rot[i] * pr->inv_sigma_rot;
   }

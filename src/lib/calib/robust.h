@@ -1,5 +1,5 @@
 /* robust.h: the gross-error screen of the calibration and of the
- * registration refinement (internal; calibration-model.md "Outliers"). */
+ * registration refinement (internal; DEVELOPERS.md, "The maths"). */
 #ifndef TWF_ROBUST_H
 #define TWF_ROBUST_H
 

@@ -13,6 +13,7 @@ twf_simulate_options twf_simulate_default_options(void)
   o.sigma_m = 0.0;
   o.seed = 1;
   o.limit_margin = 0.05;
+  o.outlier_m = 1e-3;
   return o;
 }
 
@@ -45,6 +46,11 @@ twf_campaign *twf_simulate_campaign(const twf_model *truth, const twf_pose *base
   for (k = 0; k < truth->n_targets; k++)
     if (truth->targets[k].offset_known && (opt.targets == NULL || opt.targets[k]))
       n_targets++;
+  if (!(opt.outlier_fraction >= 0 && opt.outlier_fraction <= 1) || !(opt.outlier_m >= 0) ||
+      !(opt.sigma_m >= 0) || !(opt.sigma_rad >= 0) || !(opt.check_fraction >= 0 && opt.check_fraction <= 1))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+                         "use non-negative noise and fractions from 0 to 1",
+                         "invalid simulation options"), NULL;
   if (n_targets == 0 || opt.n_poses == 0)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
                          "give targets with known offsets and at least one pose",
@@ -56,7 +62,10 @@ twf_campaign *twf_simulate_campaign(const twf_model *truth, const twf_pose *base
     double *q = c->q + i * truth->n_joints;
     int check = opt.check_fraction > 0 && twf_rng_uniform(&state) < opt.check_fraction;
     snprintf(c->pose_ids[i], TWF_NAME_MAX, "P%04zu", i + 1);
-    twf_simulate_joints(truth, opt.limit_margin, &state, q);
+    if (opt.q != NULL)
+      memcpy(q, opt.q + i * truth->n_joints, truth->n_joints * sizeof *q);
+    else
+      twf_simulate_joints(truth, opt.limit_margin, &state, q);
     twf_model_fk(truth, q, NULL, &F);
     twf_pose_mul(base_in_tracker, &F, &T);
     for (k = 0; k < truth->n_targets; k++) {
@@ -70,6 +79,16 @@ twf_campaign *twf_simulate_campaign(const twf_model *truth, const twf_pose *base
       twf_pose_apply(&T, truth->targets[k].offset, ms->pos);
       for (a = 0; a < 3; a++)
         ms->pos[a] += opt.sigma_m * twf_rng_gauss(&state);
+      if (opt.outlier_fraction > 0 && twf_rng_uniform(&state) < opt.outlier_fraction) {
+        double d[3], n;
+        do {
+          for (a = 0; a < 3; a++)
+            d[a] = twf_rng_gauss(&state);
+          n = twf_v3_norm(d);
+        } while (n < 1e-6);
+        for (a = 0; a < 3; a++)
+          ms->pos[a] += opt.outlier_m * d[a] / n;
+      }
       ms->sigma = 0.0;
       ms->set = check ? TWF_SET_CHECK : TWF_SET_FIT;
       ms->has_orientation = opt.orientation;

@@ -1,30 +1,26 @@
 /* basefile.c: the small file that holds a base pose (robot base frame in
- * the tracker frame), written by calibrate and read by verify --base. INI
- * read with libinih, strict like the model file: unknown or repeated keys,
- * missing keys, bad numbers and a non-unit quaternion are refused. */
-#include "internal.h"
+ * the measuring instrument's frame), written by calibrate and read by verify --base. INI
+ * read through the strict INI layer of the model file (inistrict.c):
+ * unknown or repeated keys, missing keys, bad numbers and a non-unit
+ * quaternion are refused. */
+#include "inistrict.h"
 
 #include <errno.h>
-#include <ini.h>
 #include <stdlib.h>
 
 typedef struct base_ctx {
-  const char *path;
-  twf_error *err;
-  int failed;
+  twf_ini_strict ini;     /* path, error, line number, first status */
   int seen_base;
   int have_unit, have_pos, have_quat;
   twf_length_unit unit;
   double pos[3], quat[4];
-  long line;
+  long pos_line;
 } base_ctx;
 
 static int fail_at(base_ctx *c, twf_status st, long line, const char *hint, const char *msg,
                    const char *detail)
 {
-  if (!c->failed)
-    twf_error_set(c->err, st, c->path, line, 0, hint, "%s%s", msg, detail ? detail : "");
-  c->failed = 1;
+  twf_ini_fail(&c->ini, st, line, 0, hint, "%s%s", msg, detail ? detail : "");
   return 0;
 }
 
@@ -45,106 +41,86 @@ static int parse_vec(const char *text, double *out, int n)
   return *s == '\0' ? 0 : -1;
 }
 
-/* inih gives no line to the handler; count through the reader instead */
-static char *reader(char *str, int num, void *stream)
+/* The strict layer has stripped the indentation (inih would take an
+ * indented line for a continuation of the previous value). inih does not
+ * report sections, empty ones included: check section lines here. */
+static void check_line(void *user, twf_ini_strict *ini, const char *p)
 {
-  base_ctx *c = ((void **)stream)[1];
-  FILE *fp = ((void **)stream)[0];
-  size_t len;
-  if (fgets(str, num, fp) == NULL)
-    return NULL;
-  c->line++;
-  /* a UTF-8 byte-order mark at the start of the file */
-  if (c->line == 1 && (unsigned char)str[0] == 0xEF && (unsigned char)str[1] == 0xBB &&
-      (unsigned char)str[2] == 0xBF)
-    memmove(str, str + 3, strlen(str + 3) + 1);
-  len = strlen(str);
-  if (len > 0 && str[len - 1] != '\n' && !feof(fp))
-    fail_at(c, TWF_ERR_SYNTAX, c->line, "keep lines under 199 characters",
-            "line too long", NULL);
-  /* inih would take an indented line for a continuation of the previous
-   * value: strip the indentation. It does not report empty sections
-   * either: check section lines here. */
-  {
-    const char *p = str;
-    while (*p == ' ' || *p == '\t')
-      p++;
-    if (p != str)
-      memmove(str, p, strlen(p) + 1);
-    p = str;
-    if (*p == '[') {
-      if (strncmp(p, "[base]", 6) != 0)
-        fail_at(c, TWF_ERR_UNKNOWN, c->line, "a base pose file holds one [base] section",
-                "unknown section", NULL);
-      else if (c->seen_base)
-        fail_at(c, TWF_ERR_DUPLICATE, c->line, "keep one [base] section",
-                "duplicate section [base]", NULL);
-      c->seen_base = 1;
-    }
+  base_ctx *c = user;
+  if (*p == '[') {
+    if (strncmp(p, "[base]", 6) != 0)
+      fail_at(c, TWF_ERR_UNKNOWN, ini->lineno, "a base pose file holds one [base] section",
+              "unknown section", NULL);
+    else if (c->seen_base)
+      fail_at(c, TWF_ERR_DUPLICATE, ini->lineno, "keep one [base] section",
+              "duplicate section [base]", NULL);
+    c->seen_base = 1;
   }
-  return str;
 }
 
 static int handler(void *user, const char *section, const char *name, const char *value)
 {
   base_ctx *c = user;
-  if (c->failed)
+  if (c->ini.status != TWF_OK)
     return 1;
   if (strcmp(section, "base") != 0)
-    return fail_at(c, TWF_ERR_SYNTAX, c->line, "put the keys under [base]", "key outside [base]: ", name);
+    return fail_at(c, TWF_ERR_SYNTAX, c->ini.lineno, "put the keys under [base]", "key outside [base]: ", name);
   if (strcmp(name, "length_unit") == 0) {
     if (c->have_unit)
-      return fail_at(c, TWF_ERR_DUPLICATE, c->line, "give each key once", "duplicate key: ", name);
+      return fail_at(c, TWF_ERR_DUPLICATE, c->ini.lineno, "give each key once", "duplicate key: ", name);
     c->have_unit = 1;
     if (twf_length_unit_parse(value, &c->unit) != TWF_OK)
-      return fail_at(c, TWF_ERR_UNITS, c->line, "use mm, m, um or in", "unknown length unit: ", value);
+      return fail_at(c, TWF_ERR_UNITS, c->ini.lineno, "use mm, m, um or in", "unknown length unit: ", value);
   } else if (strcmp(name, "position") == 0) {
     if (c->have_pos)
-      return fail_at(c, TWF_ERR_DUPLICATE, c->line, "give each key once", "duplicate key: ", name);
+      return fail_at(c, TWF_ERR_DUPLICATE, c->ini.lineno, "give each key once", "duplicate key: ", name);
     c->have_pos = 1;
+    c->pos_line = c->ini.lineno;
     if (parse_vec(value, c->pos, 3) != 0)
-      return fail_at(c, TWF_ERR_VALUE, c->line, "give three finite numbers x y z",
+      return fail_at(c, TWF_ERR_VALUE, c->ini.lineno, "give three finite numbers x y z",
                      "bad position: ", value);
   } else if (strcmp(name, "quaternion_wxyz") == 0) {
     if (c->have_quat)
-      return fail_at(c, TWF_ERR_DUPLICATE, c->line, "give each key once", "duplicate key: ", name);
+      return fail_at(c, TWF_ERR_DUPLICATE, c->ini.lineno, "give each key once", "duplicate key: ", name);
     c->have_quat = 1;
     if (parse_vec(value, c->quat, 4) != 0)
-      return fail_at(c, TWF_ERR_VALUE, c->line, "give four finite numbers w x y z",
+      return fail_at(c, TWF_ERR_VALUE, c->ini.lineno, "give four finite numbers w x y z",
                      "bad quaternion: ", value);
     {
       double n = sqrt(c->quat[0] * c->quat[0] + c->quat[1] * c->quat[1] +
                       c->quat[2] * c->quat[2] + c->quat[3] * c->quat[3]);
       if (fabs(n - 1.0) > 1e-6)
-        return fail_at(c, TWF_ERR_VALUE, c->line, "give a unit quaternion (norm 1 within 1e-6)",
+        return fail_at(c, TWF_ERR_VALUE, c->ini.lineno, "give a unit quaternion (norm 1 within 1e-6)",
                        "quaternion is not unit length", NULL);
     }
   } else {
-    return fail_at(c, TWF_ERR_UNKNOWN, c->line,
+    return fail_at(c, TWF_ERR_UNKNOWN, c->ini.lineno,
                    "the keys are length_unit, position and quaternion_wxyz", "unknown key: ", name);
   }
   return 1;
 }
 
-twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error *err)
+static twf_status read_base(const char *path, const twf_read_options *opt,
+                            twf_pose *base_in_tracker, twf_input_digest *digest,
+                            twf_error *err)
 {
   base_ctx c;
-  FILE *fp;
-  void *stream[2];
   int rc, a;
   memset(&c, 0, sizeof c);
-  c.path = path;
-  c.err = err;
-  fp = fopen(path, "r");
-  if (fp == NULL)
-    return twf_error_set(err, TWF_ERR_IO, path, 0, 0, "check the path and permissions",
-                         "cannot open the base pose file: %s", strerror(errno));
-  stream[0] = fp;
-  stream[1] = &c;
-  rc = ini_parse_stream(reader, stream, handler, &c);
-  fclose(fp);
-  if (c.failed)
-    return err ? err->status : TWF_ERR_SYNTAX;
+  c.ini.path = path;
+  c.ini.err = err;
+  c.ini.what = "a base pose file";
+  c.ini.line = check_line;
+  c.ini.pair = handler;
+  c.ini.user = &c;
+  c.ini.long_line_message = "line too long";
+  c.ini.long_line_hint = "keep lines under 199 characters";
+  c.ini.name = "the base pose file";
+  c.ini.max_size = opt && opt->max_input_size ? opt->max_input_size
+                                               : TWF_INPUT_SIZE_DEFAULT;
+  rc = twf_ini_parse(&c.ini);
+  if (c.ini.status != TWF_OK)
+    return c.ini.status;
   if (rc != 0)
     return twf_error_set(err, TWF_ERR_SYNTAX, path, rc, 0, "write 'key = value' lines under [base]",
                          "malformed line");
@@ -152,24 +128,63 @@ twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error 
     return twf_error_set(err, TWF_ERR_MISSING, path, 0, 0,
                          "give [base] with length_unit, position and quaternion_wxyz",
                          "incomplete base pose file");
+  for (a = 0; a < 3; a++)
+    if (!(fabs(twf_length_to_si(c.pos[a], c.unit)) <= TWF_READ_LENGTH_MAX))
+      return twf_error_set(err, TWF_ERR_VALUE, path, c.pos_line, a + 1,
+                           "check the value and the file's length unit: no cell comes "
+                           "near the limit",
+                           "position: %g %s lies beyond %g m, the largest length accepted",
+                           c.pos[a], twf_length_unit_name(c.unit), TWF_READ_LENGTH_MAX);
   twf_quat_to_rot(c.quat, base_in_tracker->R);
   for (a = 0; a < 3; a++)
-    base_in_tracker->p[a] = c.pos[a] * twf_length_unit_si(c.unit);
+    base_in_tracker->p[a] = twf_length_to_si(c.pos[a], c.unit);
+  if (digest != NULL)
+    *digest = c.ini.digest;
   return TWF_OK;
+}
+
+twf_status twf_base_read(const char *path, twf_pose *base_in_tracker, twf_error *err)
+{
+  return twf_base_read_with(path, NULL, base_in_tracker, NULL, err);
+}
+
+twf_status twf_base_read_with(const char *path, const twf_read_options *opt,
+                              twf_pose *base_in_tracker,
+                              twf_input_digest *digest, twf_error *err)
+{
+  twf_io_c_locale loc;
+  twf_status st;
+  if (digest != NULL)
+    memset(digest, 0, sizeof *digest);
+  if (path == NULL || base_in_tracker == NULL)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "no base pose file or no pose to fill given");
+  st = twf_io_c_locale_enter(&loc, err);
+  if (st != TWF_OK)
+    return st;
+  st = read_base(path, opt, base_in_tracker, digest, err);
+  twf_io_c_locale_leave(&loc);
+  return st;
 }
 
 twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,
                           const char *comment, FILE *out, twf_error *err)
 {
-  double q[4], s = twf_length_unit_si(u);
+  twf_io_c_locale loc;
+  twf_status st;
+  double q[4];
   twf_rot_to_quat(base_in_tracker->R, q);
+  if ((st = twf_io_c_locale_enter(&loc, err)) != TWF_OK)
+    return st;
   if (comment != NULL)
     fprintf(out, "; %s\n", comment);
-  fprintf(out, "; robot base frame in the tracker frame (x_tracker = R x_base + p)\n"
+  fprintf(out, "; robot base frame in the measuring instrument's frame (x_instrument = R x_base + p)\n"
                "[base]\nlength_unit = %s\nposition = %.17g %.17g %.17g\n"
                "quaternion_wxyz = %.17g %.17g %.17g %.17g\n",
-          twf_length_unit_name(u), base_in_tracker->p[0] / s, base_in_tracker->p[1] / s,
-          base_in_tracker->p[2] / s, q[0], q[1], q[2], q[3]);
+          twf_length_unit_name(u), twf_length_from_si(base_in_tracker->p[0], u),
+          twf_length_from_si(base_in_tracker->p[1], u),
+          twf_length_from_si(base_in_tracker->p[2], u), q[0], q[1], q[2], q[3]);
+  twf_io_c_locale_leave(&loc);
   if (ferror(out))
     return twf_error_set(err, TWF_ERR_IO, NULL, 0, 0, NULL, "cannot write the base pose");
   return TWF_OK;

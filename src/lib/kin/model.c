@@ -1,6 +1,5 @@
 /* model.c: the kinematic model object, its metadata, forward kinematics
- * by prefix products and the spatial Jacobian (calibration-model.md,
- * "Forward kinematics of one measurement"). */
+ * by prefix products and the spatial Jacobian (DEVELOPERS.md, "The maths"). */
 #include "internal.h"
 
 #include <stdlib.h>

@@ -236,6 +236,7 @@ static int cmp_worst(const void *pa, const void *pb)
  * or the angles (1, NaN rows skipped). */
 static twf_status summary_stats(const twf_campaign *c, size_t nt,
                                 const double *pos_err, const double *angle_err,
+                                const unsigned char *excluded,
                                 int which, twf_stats *overall,
                                 twf_stats *per_target)
 {
@@ -253,6 +254,8 @@ static twf_status summary_stats(const twf_campaign *c, size_t nt,
   for (i = 0; i < c->n_meas; i++) {
     const twf_measurement *me = &c->meas[i];
     size_t set = (size_t)me->set;
+    if (excluded != NULL && excluded[i])
+      continue;
     if (which == 1 && (angle_err == NULL || isnan(angle_err[i])))
       continue;
     count[set * (nt + 1) + me->target]++;
@@ -265,6 +268,8 @@ static twf_status summary_stats(const twf_campaign *c, size_t nt,
     const twf_measurement *me = &c->meas[i];
     size_t set = (size_t)me->set, keys[2], q;
     double v;
+    if (excluded != NULL && excluded[i])
+      continue;
     if (which == 1) {
       if (angle_err == NULL || isnan(angle_err[i]))
         continue;
@@ -294,6 +299,7 @@ done:
 }
 
 static twf_status summary_worst(const twf_campaign *c, const double *pos_err,
+                                const unsigned char *excluded,
                                 size_t k_worst, twf_accuracy_summary *s)
 {
   worst_item *items = malloc((c->n_poses ? c->n_poses : 1) * sizeof *items);
@@ -309,7 +315,7 @@ static twf_status summary_worst(const twf_campaign *c, const double *pos_err,
     for (i = 0; i < c->n_meas; i++) {
       const twf_measurement *me = &c->meas[i];
       double l;
-      if ((size_t)me->set != set)
+      if ((size_t)me->set != set || (excluded != NULL && excluded[i]))
         continue;
       l = twf_v3_norm(pos_err + 3 * i);
       if (l > items[me->pose].err) {
@@ -346,6 +352,17 @@ twf_accuracy_summary *twf_accuracy_summarize(const twf_campaign *campaign,
                                              const double *angle_err,
                                              size_t k_worst, twf_error *err)
 {
+  return twf_accuracy_summarize_kept(campaign, n_targets, pos_err, angle_err, NULL,
+                                     k_worst, err);
+}
+
+twf_accuracy_summary *twf_accuracy_summarize_kept(const twf_campaign *campaign,
+                                                  size_t n_targets,
+                                                  const double *pos_err,
+                                                  const double *angle_err,
+                                                  const unsigned char *excluded,
+                                                  size_t k_worst, twf_error *err)
+{
   twf_accuracy_summary *s;
   size_t i;
   if (campaign == NULL || (pos_err == NULL && campaign->n_meas > 0)) {
@@ -362,6 +379,8 @@ twf_accuracy_summary *twf_accuracy_summarize(const twf_campaign *campaign,
                     "out of range", i, me->target, me->pose, (int)me->set);
       return NULL;
     }
+    if (excluded != NULL && excluded[i])
+      continue;
     if (!isfinite(pos_err[3 * i]) || !isfinite(pos_err[3 * i + 1])
         || !isfinite(pos_err[3 * i + 2])) {
       twf_error_set(err, TWF_ERR_VALUE, NULL, me->line, 0, NULL,
@@ -377,11 +396,11 @@ twf_accuracy_summary *twf_accuracy_summarize(const twf_campaign *campaign,
   s->target_orientation = calloc(n_targets ? 2 * n_targets : 1, sizeof *s->target_orientation);
   if (!s->target_position || !s->target_orientation)
     goto nomem;
-  if (summary_stats(campaign, n_targets, pos_err, angle_err, 0, s->position,
+  if (summary_stats(campaign, n_targets, pos_err, angle_err, excluded, 0, s->position,
                     s->target_position) != TWF_OK
-      || summary_stats(campaign, n_targets, pos_err, angle_err, 1,
+      || summary_stats(campaign, n_targets, pos_err, angle_err, excluded, 1,
                        s->orientation, s->target_orientation) != TWF_OK
-      || summary_worst(campaign, pos_err, k_worst, s) != TWF_OK)
+      || summary_worst(campaign, pos_err, excluded, k_worst, s) != TWF_OK)
     goto nomem;
   return s;
 nomem:
@@ -389,6 +408,40 @@ nomem:
   twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL,
                 "out of memory for the accuracy summary");
   return NULL;
+}
+
+/* ------------------------------------------------------------------ */
+/* Acceptance                                                          */
+/* ------------------------------------------------------------------ */
+
+twf_status twf_accuracy_accept(const twf_accuracy_summary *s, const twf_acceptance_limits *lim,
+                               twf_acceptance *out, twf_error *err)
+{
+  int k;
+  if (s == NULL || lim == NULL || out == NULL || !(lim->rms_m >= 0) || !(lim->p95_m >= 0) ||
+      !(lim->max_m >= 0) || !(lim->angle_max_rad >= 0))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "acceptance: summary, limits (>= 0) and output are needed");
+  memset(out, 0, sizeof *out);
+  out->set = s->position[TWF_SET_CHECK].count > 0 ? TWF_SET_CHECK : TWF_SET_FIT;
+  out->limit[TWF_ACCEPT_RMS] = lim->rms_m;
+  out->limit[TWF_ACCEPT_P95] = lim->p95_m;
+  out->limit[TWF_ACCEPT_MAX] = lim->max_m;
+  out->limit[TWF_ACCEPT_ANGLE_MAX] = lim->angle_max_rad;
+  out->value[TWF_ACCEPT_RMS] = s->position[out->set].rms;
+  out->value[TWF_ACCEPT_P95] = s->position[out->set].p95;
+  out->value[TWF_ACCEPT_MAX] = s->position[out->set].max;
+  out->value[TWF_ACCEPT_ANGLE_MAX] = s->orientation[out->set].max;
+  out->accepted = 1;
+  for (k = 0; k < TWF_ACCEPT_COUNT; k++) {
+    if (!(out->limit[k] > 0))
+      continue;
+    out->n_limits++;
+    out->pass[k] = out->value[k] <= out->limit[k];
+    if (!out->pass[k])
+      out->accepted = 0;
+  }
+  return TWF_OK;
 }
 
 /* ------------------------------------------------------------------ */
@@ -411,6 +464,7 @@ void twf_iso9283_free(twf_iso9283 *r)
   if (r == NULL)
     return;
   free(r->entries);
+  free(r->orientation);
   free(r);
 }
 
@@ -470,6 +524,115 @@ static void group_segment(grouper *g, size_t *poses, size_t n, size_t j)
   }
 }
 
+/* The orientation figures of one commanded pose (see
+ * twf_iso9283_orientation): its visits gp[0..n) with their measurements
+ * pose_meas[pose_start[p] .. pose_start[p + 1]), F the commanded flange
+ * pose in the base frame. Appends an entry when at least min_visits
+ * visits have a 6-D row. */
+static twf_status iso_orientation(const twf_campaign *c, const twf_pose *B, const twf_pose *F,
+                                  const size_t *gp, size_t n, const size_t *pose_start,
+                                  const size_t *pose_meas, size_t min_visits, size_t group,
+                                  size_t first_pose, twf_iso9283 *res, size_t *cap)
+{
+  double sum[3] = { 0, 0, 0 }, ss[3] = { 0, 0, 0 }, *abc;
+  size_t a, j, m = 0;
+  int k;
+  twf_iso9283_orientation *e;
+  abc = malloc((n ? 3 * n : 1) * sizeof *abc);
+  if (abc == NULL)
+    return TWF_ERR_NOMEM;
+  for (a = 0; a < n; a++)
+    for (j = pose_start[gp[a]]; j < pose_start[gp[a] + 1]; j++) {
+      const twf_measurement *me = &c->meas[pose_meas[j]];
+      double Rt[3][3], Rb[3][3], D[3][3];
+      int r, q, t;
+      if (!me->has_orientation)
+        continue;
+      /* the attained orientation in the base frame, R_B^T R_tracker, then
+       * relative to the commanded one */
+      twf_quat_to_rot(me->quat, Rt);
+      for (r = 0; r < 3; r++)
+        for (q = 0; q < 3; q++) {
+          Rb[r][q] = 0.0;
+          for (t = 0; t < 3; t++)
+            Rb[r][q] += B->R[t][r] * Rt[t][q];
+        }
+      for (r = 0; r < 3; r++)
+        for (q = 0; q < 3; q++) {
+          D[r][q] = 0.0;
+          for (t = 0; t < 3; t++)
+            D[r][q] += Rb[r][t] * F->R[q][t];
+        }
+      twf_rot_to_rpy_fixed_xyz(D, &abc[3 * m], &abc[3 * m + 1], &abc[3 * m + 2]);
+      m++;
+      break;
+    }
+  if (m < min_visits) {
+    free(abc);
+    return TWF_OK;
+  }
+  if (res->n_orientation == *cap) {
+    size_t ncap = *cap ? 2 * *cap : 8;
+    twf_iso9283_orientation *grown = realloc(res->orientation, ncap * sizeof *grown);
+    if (grown == NULL) {
+      free(abc);
+      return TWF_ERR_NOMEM;
+    }
+    res->orientation = grown;
+    *cap = ncap;
+  }
+  e = &res->orientation[res->n_orientation++];
+  memset(e, 0, sizeof *e);
+  e->group = group;
+  e->first_pose = first_pose;
+  e->n = m;
+  for (a = 0; a < m; a++)
+    for (k = 0; k < 3; k++)
+      sum[k] += abc[3 * a + (size_t)k];
+  for (k = 0; k < 3; k++)
+    e->ap[k] = sum[k] / (double)m;
+  for (a = 0; a < m; a++)
+    for (k = 0; k < 3; k++)
+      ss[k] += (abc[3 * a + (size_t)k] - e->ap[k]) * (abc[3 * a + (size_t)k] - e->ap[k]);
+  for (k = 0; k < 3; k++)
+    e->rp[k] = 3.0 * sqrt(ss[k] / (double)(m - 1));
+  free(abc);
+  return TWF_OK;
+}
+
+/* The worst figures over the entries, and the cycles. */
+static void iso_summary(twf_iso9283 *r)
+{
+  size_t i;
+  int k;
+  r->ap_p_max = r->rp_max = r->ap_angle_max = r->rp_angle_max = NAN;
+  r->ap_p_worst = r->rp_worst = SIZE_MAX;
+  r->min_cycles = r->max_cycles = 0;
+  for (i = 0; i < r->n_entries; i++) {
+    const twf_iso9283_entry *e = &r->entries[i];
+    if (r->ap_p_worst == SIZE_MAX || e->ap_p > r->ap_p_max) {
+      r->ap_p_max = e->ap_p;
+      r->ap_p_worst = i;
+    }
+    if (r->rp_worst == SIZE_MAX || e->rp > r->rp_max) {
+      r->rp_max = e->rp;
+      r->rp_worst = i;
+    }
+    if (i == 0 || e->n < r->min_cycles)
+      r->min_cycles = e->n;
+    if (e->n > r->max_cycles)
+      r->max_cycles = e->n;
+  }
+  for (i = 0; i < r->n_orientation; i++)
+    for (k = 0; k < 3; k++) {
+      const twf_iso9283_orientation *e = &r->orientation[i];
+      if (!(fabs(e->ap[k]) <= r->ap_angle_max))
+        r->ap_angle_max = isnan(r->ap_angle_max) ? fabs(e->ap[k]) : fmax(r->ap_angle_max, fabs(e->ap[k]));
+      if (!(e->rp[k] <= r->rp_angle_max))
+        r->rp_angle_max = isnan(r->rp_angle_max) ? e->rp[k] : fmax(r->rp_angle_max, e->rp[k]);
+    }
+}
+
 twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
                                   const twf_pose *base_in_tracker,
                                   const double *target_offsets,
@@ -484,7 +647,7 @@ twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
   size_t np, nj, nt, i, gi, k;
   size_t *poses = NULL, *pose_count = NULL, *pose_start = NULL, *pose_meas = NULL;
   size_t *group_size = NULL, *group_start = NULL, *group_poses = NULL, *first_pose = NULL;
-  size_t *order = NULL, *tcount = NULL, n_used = 0, cap = 0;
+  size_t *order = NULL, *tcount = NULL, n_used = 0, cap = 0, ocap = 0;
   double *scratch = NULL, *tsum = NULL, *lsum = NULL, *qmean = NULL;
   const double *t;
 
@@ -686,10 +849,16 @@ twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
       e->rp = e->l_mean + 3.0 * e->s_l;
       e->joint_spread = spread;
     }
+    /* orientation: one 6-D row per visit (the flange's, whichever target) */
+    if (iso_orientation(campaign, base_in_tracker, &F, gp, n, pose_start, pose_meas, o->min_visits,
+                        res->n_groups, first_pose[gr], res, &ocap) != TWF_OK)
+      goto nomem;
     /* a group counts once, whether one target or several qualified */
-    if (res->n_entries > 0 && res->entries[res->n_entries - 1].group == res->n_groups)
+    if ((res->n_entries > 0 && res->entries[res->n_entries - 1].group == res->n_groups) ||
+        (res->n_orientation > 0 && res->orientation[res->n_orientation - 1].group == res->n_groups))
       res->n_groups++;
   }
+  iso_summary(res);
   goto done;
 nomem:
   twf_iso9283_free(res);

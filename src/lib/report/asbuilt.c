@@ -1,6 +1,6 @@
 /* asbuilt.c: report the as-built geometry in a base frame fixed by a
  * stated datum rule, not by the calibration's choice of redundant
- * parameters (calibration-model.md, "Reporting the as-built geometry").
+ * parameters (DEVELOPERS.md, "The maths").
  *
  * Everything here works on the joint lines at logged zero (q = 0, so
  * theta = offset): those, not the stored twists and offsets, are what the
@@ -129,7 +129,7 @@ static double offset_deviation(const twf_model *nm, size_t i,
     closest_on_line(aq + 3 * i, da, nq + 3 * i, pi);
     closest_on_line(aq + 3 * j, ad + 3 * j, nq + 3 * j, pj);
     for (a = 0; a < 3; a++) {
-      v[a] = nq[3 * j + a] - nq[3 * i + a];
+      v[a] = nq[3 * j + (size_t)a] - nq[3 * i + (size_t)a];
       w[a] = pj[a] - pi[a];
     }
     perpendicular(dn, v, fn);
@@ -155,9 +155,9 @@ static double offset_deviation(const twf_model *nm, size_t i,
   return atan2(twf_v3_dot(da, cr), twf_v3_dot(vn, fa));
 }
 
-twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
-                             twf_pose *base_in_tracker, int full_pose,
-                             twf_asbuilt_comparison *out, twf_error *err)
+static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
+                          twf_pose *base_in_tracker, int full_pose, int align,
+                          twf_asbuilt_comparison *out, twf_error *err)
 {
   size_t n = nominal->n_joints, nt = nominal->n_targets, i, np = 0, k;
   double *a = NULL, *b = NULL, L = 0.25 * twf_model_reach(nominal);
@@ -198,7 +198,7 @@ twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
   /* The points slide along the lines as the frame moves, so the rule is a
    * fixed point: iterate until the correction is at rounding level (it
    * converges linearly: some tens to hundreds of 2n-point registrations). */
-  for (round = 0; round < 2000; round++) {
+  for (round = 0; align && round < 2000; round++) {
     np = 0;
     lines_at_logged_zero(asbuilt, ad, aq);
     for (i = 0; i < n; i++) {
@@ -209,10 +209,10 @@ twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
         continue;
       closest_on_line(aq + 3 * i, da, nq + 3 * i, qa);
       for (c = 0; c < 3; c++) {
-        a[3 * np + c] = qa[c];
-        b[3 * np + c] = nq[3 * i + c];
-        a[3 * (np + 1) + c] = qa[c] + L * da[c];
-        b[3 * (np + 1) + c] = nq[3 * i + c] + L * dn[c];
+        a[3 * np + (size_t)c] = qa[c];
+        b[3 * np + (size_t)c] = nq[3 * i + (size_t)c];
+        a[3 * (np + 1) + (size_t)c] = qa[c] + L * da[c];
+        b[3 * (np + 1) + (size_t)c] = nq[3 * i + (size_t)c] + L * dn[c];
       }
       np += 2;
     }
@@ -294,7 +294,7 @@ twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
     twf_pose_apply(&Fa, asbuilt->targets[k].offset, ya);
     twf_pose_apply(&Fn, nominal->targets[k].offset, yn);
     for (c = 0; c < 3; c++)
-      out->target_change_m[3 * k + c] = nominal->targets[k].offset_known ? ya[c] - yn[c] : NAN;
+      out->target_change_m[3 * k + (size_t)c] = nominal->targets[k].offset_known ? ya[c] - yn[c] : NAN;
   }
 done:
   free(a);
@@ -307,4 +307,20 @@ done:
   if (st != TWF_OK)
     twf_asbuilt_comparison_clear(out);
   return st;
+}
+
+twf_status twf_asbuilt_align(const twf_model *nominal, twf_model *asbuilt,
+                             twf_pose *base_in_tracker, int full_pose,
+                             twf_asbuilt_comparison *out, twf_error *err)
+{
+  return compare(nominal, asbuilt, base_in_tracker, full_pose, 1, out, err);
+}
+
+twf_status twf_asbuilt_compare(const twf_model *nominal, const twf_model *asbuilt,
+                               int full_pose, twf_asbuilt_comparison *out, twf_error *err)
+{
+  twf_pose B;
+  twf_pose_identity(&B);
+  /* without alignment neither the model nor the base pose is touched */
+  return compare(nominal, (twf_model *)asbuilt, &B, full_pose, 0, out, err);
 }

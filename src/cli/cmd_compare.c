@@ -1,0 +1,453 @@
+/* cmd_compare.c: `twistfit compare A B`: how far apart two models of one
+ * arm put the tool points and flange orientations over the workspace
+ * (nominal against as-built, or as-built models of two dates), with an
+ * optional acceptance verdict. Figures come from twf_compare_models. */
+#define _GNU_SOURCE
+#include "config.h"
+#include "cli.h"
+
+#include <errno.h>
+#include <getopt.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static const char compare_help[] =
+  "Usage: twistfit compare [OPTIONS] A B\n"
+  "\n"
+  "Compare two models of the same arm (nominal and as-built, or as-built models\n"
+  "of two dates) over configurations: random ones within A's joint limits\n"
+  "(--count, --seed) or the rows of a joints file (--joints). Reports the mean,\n"
+  "RMS, 95th percentile and maximum distance between the tool points that A and\n"
+  "B predict (each target with an offset in both, else the flange origin) and\n"
+  "of the angle between their flange orientations, per tool point and overall,\n"
+  "and the worst configuration. By default B's base frame is first aligned to\n"
+  "A's by the best rigid fit of the predicted tool points (two as-built models\n"
+  "of different dates live in different base frames); --no-align compares in\n"
+  "the frames as written. Then, link by link, the intrinsic link parameters\n"
+  "(DH a, alpha, d, theta or Hayati's beta, in A's forms) of A and B and their\n"
+  "differences. Lengths and angles in A's units.\n"
+  "\n"
+  "Options:\n"
+  "      --joints FILE       configurations from a joints file (pose id and one\n"
+  "                          column per joint, as fk reads it)\n"
+  "      --count N           random configurations (default 1000)\n"
+  "      --seed N            seed of the random configurations (default 1)\n"
+  "      --length-unit U     unit of prismatic joint values in FILE (default: as\n"
+  "                          the file declares, else mm)\n"
+  "      --angle-unit U      unit of revolute joint values in FILE (default: as\n"
+  "                          the file declares, else deg)\n"
+  "      --no-align          compare in the frames as written\n"
+  "      --full-pose         the models come from 6-D data: the flange link is\n"
+  "                          determined (default: points only, the targets\n"
+  "                          absorb it, and the table says so)\n"
+  "      --tol-rms X         acceptance: RMS distance at most X (length unit)\n"
+  "      --tol-max X         acceptance: largest distance at most X\n"
+  "      --tol-angle-max X   acceptance: largest angle at most X (angle unit);\n"
+  "                          exit status 1 when a tolerance is exceeded\n"
+  "      --json FILE         write the figures as JSON ('-' for standard output,\n"
+  "                          then the text report goes to standard error)\n"
+  "  -f, --force             replace an output file that exists\n"
+  "  -h, --help              show this help\n";
+
+enum {
+  OPT_JOINTS = CLI_OPT_FIRST_FREE, OPT_COUNT, OPT_SEED, OPT_LENGTH_UNIT, OPT_ANGLE_UNIT, OPT_NO_ALIGN,
+  OPT_TOL_RMS, OPT_TOL_MAX, OPT_TOL_ANGLE, OPT_JSON, OPT_FULL_POSE
+};
+
+typedef struct tolerance {
+  const char *name;
+  double limit; /* SI; 0 = not set */
+  double value;
+  int is_angle;
+} tolerance;
+
+static const char *point_name(const twf_compare_result *r, const twf_model *a, size_t k)
+{
+  return r->point_target[k] >= 0 ? a->targets[r->point_target[k]].name : "flange origin";
+}
+
+static void config_id(const twf_campaign *joints, size_t c, char *buf, size_t n)
+{
+  if (joints != NULL)
+    snprintf(buf, n, "%s", joints->pose_ids[c]);
+  else
+    snprintf(buf, n, "R%04zu", c + 1);
+}
+
+static void print_row(FILE *fp, const char *label, const twf_stats *s, double unit, int dec)
+{
+  fprintf(fp, "  %-16s %7zu %12.*f %12.*f %12.*f %12.*f\n", label, s->count, dec, s->mean / unit, dec,
+          s->rms / unit, dec, s->p95 / unit, dec, s->max / unit);
+}
+
+static int link_is_angle(int v)
+{
+  return v == TWF_LINK_THETA || v == TWF_LINK_ALPHA || v == TWF_LINK_BETA;
+}
+
+/* The note of a value: why a calibration would not determine it (the
+ * difference then reflects a frame or target convention, not the arm). */
+static const char *link_note(const twf_link_row *row, int v)
+{
+  return row->why[v] == TWF_LINK_DETERMINED ? "" : twf_link_why_text(row->why[v]);
+}
+
+static void print_links(FILE *fp, const twf_links *l, const double *diff, const cli_units *u, int full_pose)
+{
+  size_t r;
+  int v;
+  fprintf(fp, "\nLink parameters, link by link: A and B in A's forms (row k: joint k's line and the link to\n"
+              "line k+1; row 0 the base, the last row the flange), %s and %s\n", u->length, u->angle);
+  fprintf(fp, "  %4s %-5s %-6s %14s %14s %14s  %s\n", "row", "form", "value", "A", "B", "B - A", "note");
+  for (r = 0; r < l->n_rows; r++) {
+    const twf_link_row *row = &l->rows[r];
+    for (v = 0; v < TWF_LINK_NVALUES; v++) {
+      double unit = link_is_angle(v) ? u->angle_si : u->length_si;
+      int dec = link_is_angle(v) ? u->adec : u->ldec;
+      if (row->why[v] == TWF_LINK_NOT_IN_FORM)
+        continue;
+      fprintf(fp, "  %4zu %-5s %-6s %14.*f %14.*f %14.*f  %s\n", r, row->form == TWF_LINK_FORM_BETA ? "beta" : "dh",
+              twf_link_value_name((twf_link_value)v), dec, row->reference[v] / unit, dec, row->value[v] / unit, dec,
+              diff[5 * r + (size_t)v] / unit, link_note(row, v));
+    }
+  }
+  fprintf(fp, "  notes: %s; standard deviations: none (a model file carries no covariance)\n",
+          full_pose ? "the models come from 6-D data (--full-pose)"
+                    : "points-only calibration assumed: the targets absorb the flange link (--full-pose if not)");
+}
+
+static json_t *json_links(const twf_links *l, const double *diff, const cli_units *u, int full_pose)
+{
+  json_t *o = json_object(), *rows = json_array();
+  size_t r;
+  int v;
+  for (r = 0; r < l->n_rows; r++) {
+    const twf_link_row *row = &l->rows[r];
+    json_t *vals = json_object();
+    for (v = 0; v < TWF_LINK_NVALUES; v++) {
+      double unit = link_is_angle(v) ? u->angle_si : u->length_si;
+      if (row->why[v] == TWF_LINK_NOT_IN_FORM)
+        continue;
+      json_object_set_new(vals, twf_link_value_name((twf_link_value)v),
+                          json_pack("{s:o, s:o, s:o, s:o, s:b, s:s*}", "a", cli_json_number(row->reference[v] / unit),
+                                    "b", cli_json_number(row->value[v] / unit), "difference",
+                                    cli_json_number(diff[5 * r + (size_t)v] / unit), "std", json_null(),
+                                    "determined", row->why[v] == TWF_LINK_DETERMINED, "note",
+                                    row->why[v] == TWF_LINK_DETERMINED ? NULL : twf_link_why_text(row->why[v])));
+    }
+    json_array_append_new(rows, json_pack("{s:I, s:s, s:o}", "row", (json_int_t)r, "form",
+                                          row->form == TWF_LINK_FORM_BETA ? "beta" : "dh", "values", vals));
+  }
+  json_object_set_new(o, "forms_from", json_string("a"));
+  json_object_set_new(o, "full_pose", json_boolean(full_pose));
+  json_object_set_new(o, "rows", rows);
+  return o;
+}
+
+static int run_compare(int argc, char **argv)
+{
+  static const struct option longopts[] = {
+    { "joints", required_argument, NULL, OPT_JOINTS },
+    { "count", required_argument, NULL, OPT_COUNT },
+    { "seed", required_argument, NULL, OPT_SEED },
+    { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
+    { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
+    { "no-align", no_argument, NULL, OPT_NO_ALIGN },
+    { "full-pose", no_argument, NULL, OPT_FULL_POSE },
+    { "tol-rms", required_argument, NULL, OPT_TOL_RMS },
+    { "tol-max", required_argument, NULL, OPT_TOL_MAX },
+    { "tol-angle-max", required_argument, NULL, OPT_TOL_ANGLE },
+    { "json", required_argument, NULL, OPT_JSON },
+    { "force", no_argument, NULL, 'f' },
+    { "help", no_argument, NULL, 'h' },
+    { NULL, 0, NULL, 0 }
+  };
+  static const char *const tol_opt[3] = { "--tol-rms", "--tol-max", "--tol-angle-max" };
+  static const char *const names[1] = { "--json" };
+  const char *joints_path = NULL, *json_path = NULL, *tol_text[3] = { NULL, NULL, NULL };
+  const char *inputs[4] = { NULL, NULL, NULL, NULL };
+  tolerance tol[3] = { { "rms", 0, 0, 0 }, { "max", 0, 0, 0 }, { "angle-max", 0, 0, 1 } };
+  unsigned long long seed = 1;
+  long count = 1000;
+  int force = 0, opt, status = TWF_EXIT_OK, i, have_count = 0, have_seed = 0, full_pose = 0;
+  twf_links links;
+  double *ldiff = NULL;
+  twf_campaign_options copt = twf_campaign_default_options();
+  twf_compare_options co = twf_compare_default_options();
+  twf_model *a = NULL, *b = NULL;
+  twf_campaign *joints = NULL;
+  twf_compare_result *res = NULL;
+  twf_warnings warnings;
+  twf_error err;
+  double *q = NULL;
+  size_t n_cfg = 0, k;
+  cli_units u;
+  FILE *txt = stdout;
+  json_t *root = NULL;
+
+  twf_warnings_init(&warnings);
+  twf_error_clear(&err);
+  memset(&links, 0, sizeof links);
+  optind = 0;
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":fh", longopts, NULL)) != -1) {
+    switch (opt) {
+    case OPT_JOINTS: joints_path = optarg; break;
+    case OPT_COUNT: {
+      char *end;
+      errno = 0;
+      count = strtol(optarg, &end, 10);
+      if (*optarg == '\0' || *end != '\0' || errno != 0 || count < 1 || count > 10000000) {
+        status = cli_usage_error("compare", "--count takes a number of configurations from 1 to 10000000");
+        goto done;
+      }
+      have_count = 1;
+      break;
+    }
+    case OPT_SEED: {
+      char *end;
+      errno = 0;
+      seed = strtoull(optarg, &end, 10);
+      if (*optarg == '\0' || *optarg == '-' || *end != '\0' || errno != 0) {
+        status = cli_usage_error("compare", "--seed takes a non-negative whole number");
+        goto done;
+      }
+      have_seed = 1;
+      break;
+    }
+    case OPT_LENGTH_UNIT:
+      if ((status = cli_parse_length_unit("compare", optarg, &copt.length_unit)) != 0)
+        goto done;
+      copt.length_from_caller = 1;
+      break;
+    case OPT_ANGLE_UNIT:
+      if ((status = cli_parse_angle_unit("compare", optarg, &copt.angle_unit)) != 0)
+        goto done;
+      copt.angle_from_caller = 1;
+      break;
+    case OPT_NO_ALIGN: co.align = 0; break;
+    case OPT_FULL_POSE: full_pose = 1; break;
+    case OPT_TOL_RMS: tol_text[0] = optarg; break;
+    case OPT_TOL_MAX: tol_text[1] = optarg; break;
+    case OPT_TOL_ANGLE: tol_text[2] = optarg; break;
+    case OPT_JSON: json_path = optarg; break;
+    case 'f': force = 1; break;
+    case 'h': fputs(compare_help, stdout); goto done;
+    default: status = cli_bad_option("compare", opt, argv); goto done;
+    }
+  }
+  if (argc - optind != 2) {
+    status = cli_usage_error("compare", "expected two models, A and B");
+    goto done;
+  }
+  if (joints_path != NULL && (have_count || have_seed)) {
+    status = cli_usage_error("compare", "--joints gives the configurations: --count and --seed do not apply");
+    goto done;
+  }
+  inputs[0] = argv[optind];
+  inputs[1] = argv[optind + 1];
+  inputs[2] = joints_path;
+  if ((status = cli_outputs_check("compare", &json_path, names, 1, force, inputs)) != 0)
+    goto done;
+  if (json_path != NULL && strcmp(json_path, "-") == 0)
+    txt = stderr;
+
+  if ((a = twf_model_read(inputs[0], &warnings, &err)) == NULL ||
+      (b = twf_model_read(inputs[1], &warnings, &err)) == NULL)
+    goto fail;
+  if (twf_models_same_joints(a, b, inputs[0], inputs[1], &err) != TWF_OK)
+    goto fail;
+  cli_units_of(&u, a);
+  for (i = 0; i < 3; i++)
+    if (tol_text[i] != NULL &&
+        (status = cli_parse_tolerance("compare", tol_opt[i], tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
+                                      &tol[i].limit)) != 0)
+      goto done;
+  if (joints_path != NULL) {
+    if ((joints = twf_campaign_read_joints(joints_path, a, &copt, &warnings, &err)) == NULL)
+      goto fail;
+    n_cfg = joints->n_poses;
+    q = joints->q;
+  } else {
+    unsigned long long state = seed;
+    size_t c;
+    n_cfg = (size_t)count;
+    q = malloc(n_cfg * (a->n_joints ? a->n_joints : 1) * sizeof *q);
+    if (q == NULL) {
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    for (c = 0; c < n_cfg; c++)
+      twf_simulate_joints(a, 0.0, &state, q + c * a->n_joints);
+  }
+  cli_print_warnings(&warnings);
+  twf_warnings_clear(&warnings);
+  if (twf_compare_models(a, b, q, n_cfg, &co, &res, &err) != TWF_OK) {
+    if (err.status == TWF_ERR_DEGENERATE)
+      snprintf(err.hint, sizeof err.hint, "give more varied configurations, or pass --no-align");
+    goto fail;
+  }
+
+  ldiff = malloc(5 * (a->n_joints + 2) * sizeof *ldiff);
+  if (ldiff == NULL) {
+    status = TWF_EXIT_INTERNAL;
+    goto done;
+  }
+  if (twf_compare_links(a, b, full_pose, &links, ldiff, &err) != TWF_OK)
+    goto fail;
+
+  tol[0].value = res->position.rms;
+  tol[1].value = res->position.max;
+  tol[2].value = res->angle.max;
+  for (i = 0; i < 3; i++)
+    if (tol[i].limit > 0 && !(tol[i].value <= tol[i].limit))
+      status = TWF_EXIT_REJECTED;
+
+  /* text report */
+  {
+    char id[TWF_NAME_MAX];
+    size_t wc = res->worst_config, j;
+    double qa[4];
+    fprintf(txt, "twistfit %s compare\n", twf_version());
+    fprintf(txt, "model A: %s (%s, %zu joints)\n", inputs[0], a->name, a->n_joints);
+    fprintf(txt, "model B: %s (%s)\n", inputs[1], b->name);
+    if (joints != NULL)
+      fprintf(txt, "configurations: %zu, the rows of %s\n", n_cfg, joints_path);
+    else
+      fprintf(txt, "configurations: %zu, uniformly random within A's joint limits (seed %llu)\n", n_cfg, seed);
+    fprintf(txt, "tool points:");
+    for (k = 0; k < res->n_points; k++)
+      fprintf(txt, "%s %s", k ? "," : "", point_name(res, a, k));
+    fprintf(txt, res->point_target[0] < 0 ? " (no target has an offset in both models)\n"
+                                          : " (the targets with an offset in both models)\n");
+    if (res->aligned) {
+      double w[3];
+      twf_so3_log(res->b_to_a.R, w);
+      twf_rot_to_quat(res->b_to_a.R, qa);
+      fprintf(txt, "frames: B aligned to A by the best rigid fit of the predicted tool points: rotation %.*f %s, "
+                   "translation %.*f %s (quaternion_wxyz %.9f %.9f %.9f %.9f, position %.*f %.*f %.*f)\n",
+              u.adec, sqrt(w[0] * w[0] + w[1] * w[1] + w[2] * w[2]) / u.angle_si, u.angle, u.ldec,
+              sqrt(res->b_to_a.p[0] * res->b_to_a.p[0] + res->b_to_a.p[1] * res->b_to_a.p[1] +
+                   res->b_to_a.p[2] * res->b_to_a.p[2]) / u.length_si,
+              u.length, qa[0], qa[1], qa[2], qa[3], u.ldec, res->b_to_a.p[0] / u.length_si, u.ldec,
+              res->b_to_a.p[1] / u.length_si, u.ldec, res->b_to_a.p[2] / u.length_si);
+    } else {
+      fprintf(txt, "frames: as written (no alignment)\n");
+    }
+    fputc('\n', txt);
+    fprintf(txt, "Effect in the workspace: A against %sB\n", res->aligned ? "aligned " : "");
+    fprintf(txt, "  distance between the tool points, %s\n", u.length);
+    fprintf(txt, "  %-16s %7s %12s %12s %12s %12s\n", "point", "count", "mean", "rms", "p95", "max");
+    print_row(txt, "all", &res->position, u.length_si, u.ldec);
+    if (res->n_points > 1)
+      for (k = 0; k < res->n_points; k++)
+        print_row(txt, point_name(res, a, k), &res->point_position[k], u.length_si, u.ldec);
+    fprintf(txt, "  angle between the flange orientations, %s\n", u.angle);
+    print_row(txt, "flange", &res->angle, u.angle_si, u.adec);
+    config_id(joints, wc, id, sizeof id);
+    fprintf(txt, "worst configuration: %s: distance %.*f %s at %s, angle %.*f %s; joints (%s, %s):", id, u.ldec,
+            res->position.max / u.length_si, u.length, point_name(res, a, res->worst_point), u.adec,
+            res->worst_angle_rad / u.angle_si, u.angle, u.angle, u.length);
+    for (j = 0; j < a->n_joints; j++)
+      fprintf(txt, " %s %.6g", a->joints[j].name,
+              q[wc * a->n_joints + j] / (a->joints[j].type == TWF_JOINT_PRISMATIC ? u.length_si : u.angle_si));
+    fputc('\n', txt);
+    config_id(joints, res->angle.max_index, id, sizeof id);
+    fprintf(txt, "largest angle: %.*f %s at %s\n", u.adec, res->angle.max / u.angle_si, u.angle, id);
+    print_links(txt, &links, ldiff, &u, full_pose);
+    {
+      int any = 0;
+      for (i = 0; i < 3; i++)
+        any |= tol[i].limit > 0;
+      if (any) {
+        fprintf(txt, "\nAcceptance:\n");
+        for (i = 0; i < 3; i++)
+          if (tol[i].limit > 0)
+            fprintf(txt, "  %-10s %12.*f %s  limit %12.*f  %s\n", tol[i].name, tol[i].is_angle ? u.adec : u.ldec,
+                    tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si), tol[i].is_angle ? u.angle : u.length,
+                    tol[i].is_angle ? u.adec : u.ldec, tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si),
+                    tol[i].value <= tol[i].limit ? "pass" : "FAIL");
+        fprintf(txt, "verdict: %s\n", status == TWF_EXIT_REJECTED ? "REJECTED" : "ACCEPTED");
+      }
+    }
+  }
+
+  if (json_path != NULL) {
+    json_t *pts = json_object(), *tols = json_object(), *wj = json_array();
+    char id[TWF_NAME_MAX];
+    size_t j, wc = res->worst_config;
+    root = json_object();
+    json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
+    json_object_set_new(root, "command", json_string("compare"));
+    json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
+    json_object_set_new(root, "models", json_pack("{s:s, s:s}", "a", inputs[0], "b", inputs[1]));
+    json_object_set_new(root, "configurations",
+                        joints != NULL
+                            ? json_pack("{s:s, s:s, s:I}", "source", "joints", "file", joints_path, "count",
+                                        (json_int_t)n_cfg)
+                            : json_pack("{s:s, s:I, s:I}", "source", "random", "seed", (json_int_t)seed, "count",
+                                        (json_int_t)n_cfg));
+    json_object_set_new(root, "alignment",
+                        json_pack("{s:b, s:o}", "aligned", res->aligned, "b_to_a", cli_json_pose(&res->b_to_a, &u)));
+    for (k = 0; k < res->n_points; k++)
+      json_object_set_new(pts, point_name(res, a, k), cli_json_stats(&res->point_position[k], u.length_si));
+    json_object_set_new(root, "position", cli_json_stats(&res->position, u.length_si));
+    json_object_set_new(root, "points", pts);
+    json_object_set_new(root, "orientation", cli_json_stats(&res->angle, u.angle_si));
+    for (j = 0; j < a->n_joints; j++)
+      json_array_append_new(
+          wj, cli_json_number(q[wc * a->n_joints + j] /
+                              (a->joints[j].type == TWF_JOINT_PRISMATIC ? u.length_si : u.angle_si)));
+    config_id(joints, wc, id, sizeof id);
+    json_object_set_new(root, "worst",
+                        json_pack("{s:s, s:I, s:s, s:o, s:o, s:o}", "configuration", id, "index", (json_int_t)wc,
+                                  "point", point_name(res, a, res->worst_point), "distance",
+                                  cli_json_number(res->position.max / u.length_si), "angle",
+                                  cli_json_number(res->worst_angle_rad / u.angle_si), "joints", wj));
+    json_object_set_new(root, "links", json_links(&links, ldiff, &u, full_pose));
+    for (i = 0; i < 3; i++)
+      if (tol[i].limit > 0)
+        json_object_set_new(tols, tol[i].name,
+                            json_pack("{s:o, s:o, s:b}", "limit",
+                                      cli_json_number(tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si)),
+                                      "value",
+                                      cli_json_number(tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si)),
+                                      "pass", tol[i].value <= tol[i].limit));
+    json_object_set_new(root, "acceptance",
+                        json_pack("{s:o, s:s}", "tolerances", tols, "verdict",
+                                  json_object_size(tols) == 0 ? "none"
+                                  : status == TWF_EXIT_REJECTED ? "rejected" : "accepted"));
+    {
+      cli_put put;
+      int w;
+      put.path = json_path;
+      put.put = cli_put_json;
+      put.ctx = root;
+      w = cli_write_outputs(&put, 1, force, inputs);
+      if (w != 0)
+        status = w;
+    }
+  }
+  goto done;
+
+fail:
+  cli_print_warnings(&warnings);
+  status = cli_report_error(&err);
+done:
+  json_decref(root);
+  twf_links_clear(&links);
+  free(ldiff);
+  twf_compare_result_free(res);
+  if (joints == NULL)
+    free(q);
+  twf_campaign_free(joints);
+  twf_model_free(a);
+  twf_model_free(b);
+  twf_warnings_clear(&warnings);
+  return status;
+}
+
+const cli_command cli_cmd_compare = {
+  "compare", run_compare, "compare two models of one arm over the workspace", compare_help
+};

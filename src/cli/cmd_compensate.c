@@ -1,0 +1,509 @@
+/* cmd_compensate.c: `twistfit compensate NOMINAL ASBUILT PROGRAM.csv`: the
+ * joint values with which the as-built arm reaches what the nominal model
+ * gives for each row of a joint program; and `--cartesian FILE`: inverse
+ * kinematics of the as-built arm for Cartesian goals. CSV out, with a
+ * status per row. */
+#define _GNU_SOURCE
+#include "config.h"
+#include "cli.h"
+
+#include <getopt.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static const char compensate_help[] =
+  "Usage: twistfit compensate [OPTIONS] NOMINAL ASBUILT PROGRAM.csv\n"
+  "       twistfit compensate [OPTIONS] ASBUILT --cartesian TARGETS.csv\n"
+  "\n"
+  "For each row of PROGRAM.csv (a pose id and one column per joint, as fk reads\n"
+  "them), find the joint values with which the ASBUILT arm puts the flange at\n"
+  "the pose that NOMINAL gives for the row's values, taken in the as-built\n"
+  "model's base frame; damped least squares started from the row's values.\n"
+  "With --cartesian, solve the goals of TARGETS.csv (positions and quaternions\n"
+  "in the as-built base frame, with seed joint values) on ASBUILT directly.\n"
+  "Writes the rows with the compensated joint values in the program's units and\n"
+  "a status per row (ok, near-singular, outside-limits, not-converged); a\n"
+  "summary goes to standard error. Exit status 1 when any row is flagged.\n"
+  "\n"
+  "Safety: a compensated program moves the real arm elsewhere than the original.\n"
+  "Run it first at reduced speed with the cell's safety functions active, look\n"
+  "for new collisions near the workspace limits, follow the robot maker's\n"
+  "procedures, and keep the original program.\n"
+  "\n"
+  "Options:\n"
+  "  -o, --output FILE          write the CSV to FILE (atomically) instead of stdout\n"
+  "  -f, --force                replace FILE when it exists\n"
+  "      --point T              match the position of target T only (3 conditions);\n"
+  "                             the spare freedom keeps the joint change least\n"
+  "      --cartesian FILE       Cartesian goals instead of a program (see\n"
+  "                             twistfit-compensate(1) for the columns)\n"
+  "      --length-unit U        unit of prismatic joint values and positions in the\n"
+  "                             input (default: as the file declares, else mm)\n"
+  "      --angle-unit U         unit of revolute joint values (default: as the file\n"
+  "                             declares, else deg)\n"
+  "      --tol-position X       converged when the position error is at most X\n"
+  "                             (the input's length unit; default 1e-10 m)\n"
+  "      --tol-angle X          ... and the angle error at most X (the input's angle\n"
+  "                             unit; default 1e-10 rad)\n"
+  "      --max-iter N           forward-kinematics evaluations per row (default 100)\n"
+  "      --singular-threshold X flag rows where the smallest singular value of the\n"
+  "                             scaled Jacobian is below X (default 0.01)\n"
+  "      --allow-flagged        exit status 0 even when rows are flagged\n"
+  "  -h, --help                 show this help\n";
+
+enum {
+  OPT_POINT = CLI_OPT_FIRST_FREE, OPT_CARTESIAN, OPT_LENGTH_UNIT, OPT_ANGLE_UNIT, OPT_TOL_POS,
+  OPT_TOL_ANG, OPT_MAX_ITER, OPT_SINGULAR, OPT_ALLOW
+};
+
+/* The units a campaign-style file declares in its "# units:" line (above
+ * the header row), as the reader took them: the caller's override, else
+ * the declaration, else mm and deg. The reader has accepted the file, so
+ * the declaration is well formed. */
+static void declared_units(const char *path, const twf_campaign_options *copt, twf_length_unit *lu,
+                           twf_angle_unit *au)
+{
+  FILE *fp = fopen(path, "r");
+  char line[1024];
+  int first = 1;
+  *lu = TWF_LENGTH_MM;
+  *au = TWF_ANGLE_DEG;
+  while (fp != NULL && fgets(line, sizeof line, fp) != NULL) {
+    char *p = line, *tok, *save = NULL;
+    if (first && (unsigned char)p[0] == 0xEF && (unsigned char)p[1] == 0xBB && (unsigned char)p[2] == 0xBF)
+      p += 3;
+    first = 0;
+    while (*p == ' ' || *p == '\t')
+      p++;
+    if (*p == '\0' || *p == '\n' || *p == '\r')
+      continue;
+    if (*p != '#')
+      break; /* the header row */
+    p++;
+    while (*p == ' ' || *p == '\t')
+      p++;
+    if (strncmp(p, "units", 5) != 0)
+      continue;
+    p += 5;
+    while (*p == ' ' || *p == '\t')
+      p++;
+    if (*p != ':')
+      continue;
+    for (tok = strtok_r(p + 1, " \t,;\r\n", &save); tok != NULL; tok = strtok_r(NULL, " \t,;\r\n", &save)) {
+      char *eq = strchr(tok, '=');
+      if (eq == NULL)
+        continue;
+      *eq = '\0';
+      if (strcmp(tok, "length") == 0)
+        twf_length_unit_parse(eq + 1, lu);
+      else if (strcmp(tok, "angle") == 0)
+        twf_angle_unit_parse(eq + 1, au);
+    }
+    break;
+  }
+  if (fp != NULL)
+    fclose(fp);
+  if (copt->length_from_caller)
+    *lu = copt->length_unit;
+  if (copt->angle_from_caller)
+    *au = copt->angle_unit;
+}
+
+static void status_text(unsigned flags, char *buf, size_t n)
+{
+  buf[0] = '\0';
+  if (flags == 0) {
+    snprintf(buf, n, "ok");
+    return;
+  }
+  if (flags & TWF_IK_NEAR_SINGULAR)
+    snprintf(buf + strlen(buf), n - strlen(buf), "%snear-singular", buf[0] ? "+" : "");
+  if (flags & TWF_IK_OUTSIDE_LIMITS)
+    snprintf(buf + strlen(buf), n - strlen(buf), "%soutside-limits", buf[0] ? "+" : "");
+  if (flags & TWF_IK_NOT_CONVERGED)
+    snprintf(buf + strlen(buf), n - strlen(buf), "%snot-converged", buf[0] ? "+" : "");
+}
+
+typedef struct comp_out {
+  const twf_model *model;     /* the as-built model: joint names and types */
+  const twf_campaign *input;  /* poses (program) or goals (Cartesian) */
+  const twf_model *goal_model;/* Cartesian: the model the goal file was read with */
+  int cartesian;
+  size_t n_rows;
+  const double *q;            /* n_rows x n_joints, SI */
+  const twf_ik_result *res;
+  twf_length_unit lu;
+  twf_angle_unit au;
+  const char *nominal_path, *asbuilt_path, *input_path;
+  const char *point;          /* --point target, or NULL */
+} comp_out;
+
+static int put_compensated(FILE *fp, void *ctx, twf_error *err)
+{
+  const comp_out *c = ctx;
+  const twf_model *m = c->model;
+  const char *lu = twf_length_unit_name(c->lu), *au = twf_angle_unit_name(c->au);
+  double lsi = twf_length_unit_si(c->lu), asi = twf_angle_unit_si(c->au);
+  int any_prismatic = 0;
+  cli_csv csv;
+  char name[TWF_NAME_MAX + 32];
+  size_t r, j;
+  (void)err;
+  for (j = 0; j < m->n_joints; j++)
+    any_prismatic |= m->joints[j].type == TWF_JOINT_PRISMATIC;
+  if (c->cartesian)
+    fprintf(fp, "# twistfit %s compensate: inverse kinematics of the as-built model %s for the goals of %s\n",
+            twf_version(), c->asbuilt_path, c->input_path);
+  else
+    fprintf(fp, "# twistfit %s compensate: program %s, nominal model %s, as-built model %s%s%s\n", twf_version(),
+            c->input_path, c->nominal_path, c->asbuilt_path, c->point != NULL ? ", position of target " : "",
+            c->point != NULL ? c->point : "");
+  fprintf(fp, "# run_id: %s\n", cli_run_id());
+  fprintf(fp, "# safety: run first at reduced speed with the cell's safety functions active; keep the original\n");
+  fprintf(fp, "# units: length=%s angle=%s\n", lu, au);
+  cli_csv_init(&csv, fp);
+  cli_csv_text(&csv, "pose");
+  if (c->cartesian)
+    cli_csv_text(&csv, "target");
+  for (j = 0; j < m->n_joints; j++)
+    cli_csv_text(&csv, m->joints[j].name);
+  cli_csv_text(&csv, "status");
+  snprintf(name, sizeof name, "position_error_%s", lu);
+  cli_csv_text(&csv, name);
+  snprintf(name, sizeof name, "angle_error_%s", au);
+  cli_csv_text(&csv, name);
+  cli_csv_text(&csv, "iterations");
+  snprintf(name, sizeof name, "max_change_%s", au);
+  cli_csv_text(&csv, name);
+  if (any_prismatic) {
+    snprintf(name, sizeof name, "max_change_%s", lu);
+    cli_csv_text(&csv, name);
+  }
+  cli_csv_text(&csv, "sigma_min");
+  cli_csv_end_row(&csv);
+  for (r = 0; r < c->n_rows; r++) {
+    const twf_ik_result *res = &c->res[r];
+    char st[64];
+    if (c->cartesian) {
+      const twf_measurement *ms = &c->input->meas[r];
+      cli_csv_text(&csv, c->input->pose_ids[ms->pose]);
+      cli_csv_text(&csv, c->goal_model->targets[ms->target].name);
+    } else {
+      cli_csv_text(&csv, c->input->pose_ids[r]);
+    }
+    for (j = 0; j < m->n_joints; j++)
+      cli_csv_number(&csv, c->q[r * m->n_joints + j] /
+                               (m->joints[j].type == TWF_JOINT_PRISMATIC ? lsi : asi));
+    status_text(res->flags, st, sizeof st);
+    cli_csv_text(&csv, st);
+    cli_csv_number(&csv, res->position_error_m / lsi);
+    cli_csv_number(&csv, res->angle_error_rad / asi);
+    cli_csv_number(&csv, (double)res->iterations);
+    cli_csv_number(&csv, res->max_change_rad / asi);
+    if (any_prismatic)
+      cli_csv_number(&csv, res->max_change_m / lsi);
+    cli_csv_number(&csv, res->sigma_min);
+    cli_csv_end_row(&csv);
+  }
+  return 0;
+}
+
+static void print_summary(const twf_compensate_summary *s, const comp_out *c, int allow)
+{
+  double lsi = twf_length_unit_si(c->lu), asi = twf_angle_unit_si(c->au);
+  const char *lu = twf_length_unit_name(c->lu), *au = twf_angle_unit_name(c->au);
+  const char *row_id = "-";
+  if (cli_verbosity == 0)
+    return;
+  if (s->n_rows > 0)
+    row_id = c->cartesian ? c->input->pose_ids[c->input->meas[s->max_change_row].pose]
+                          : c->input->pose_ids[s->max_change_row];
+  fprintf(stderr, "twistfit: compensated %zu row%s: %zu ok, %zu flagged", s->n_rows, s->n_rows == 1 ? "" : "s",
+          s->n_rows - s->n_flagged, s->n_flagged);
+  if (s->n_flagged > 0)
+    fprintf(stderr, " (%zu near a singularity, %zu outside the joint limits, %zu not converged)",
+            s->n_near_singular, s->n_outside_limits, s->n_not_converged);
+  fputc('\n', stderr);
+  if (c->point != NULL)
+    fprintf(stderr, "twistfit: largest remaining position error of a converged row: %.3g %s; the flange "
+                    "orientation, not a condition with --point, turned by up to %.3g %s\n",
+            s->max_position_error_m / lsi, lu, s->max_angle_error_rad / asi, au);
+  else
+    fprintf(stderr, "twistfit: largest remaining error of a converged row: %.3g %s, %.3g %s\n",
+            s->max_position_error_m / lsi, lu, s->max_angle_error_rad / asi, au);
+  fprintf(stderr, "twistfit: largest joint change: %.6g %s", s->max_change_rad / asi, au);
+  if (s->max_change_m > 0)
+    fprintf(stderr, ", %.6g %s", s->max_change_m / lsi, lu);
+  fprintf(stderr, " (largest in row %s)\n", row_id);
+  if (s->n_flagged > 0 && !allow)
+    fprintf(stderr, "twistfit: flagged rows are marked in the status column and must not be run as they "
+                    "are; exit status 1 (--allow-flagged: 0)\n");
+  fprintf(stderr, "twistfit: safety: run the compensated program first at reduced speed with the cell's "
+                  "safety functions active, check for new collisions near the workspace limits, follow the "
+                  "robot maker's procedures and keep the original program\n");
+}
+
+/* A copy of the as-built model with a target "flange" at the flange
+ * origin (unless it has one of that name), to read Cartesian goals in the
+ * campaign form. */
+static twf_model *with_flange_target(const twf_model *m)
+{
+  twf_model *c;
+  if (twf_model_target_index(m, "flange") >= 0)
+    return twf_model_copy(m);
+  c = twf_model_alloc(m->n_joints, m->n_targets + 1);
+  if (c == NULL)
+    return NULL;
+  /* joints and targets hold no pointers: plain copies */
+  memcpy(c->joints, m->joints, m->n_joints * sizeof *c->joints);
+  memcpy(c->targets, m->targets, m->n_targets * sizeof *c->targets);
+  c->home = m->home;
+  c->length_unit = m->length_unit;
+  c->angle_unit = m->angle_unit;
+  snprintf(c->name, sizeof c->name, "%s", m->name);
+  snprintf(c->targets[m->n_targets].name, TWF_NAME_MAX, "flange");
+  c->targets[m->n_targets].offset_known = 1;
+  return c;
+}
+
+static int run_compensate(int argc, char **argv)
+{
+  static const struct option longopts[] = {
+    { "output", required_argument, NULL, 'o' },
+    { "force", no_argument, NULL, 'f' },
+    { "point", required_argument, NULL, OPT_POINT },
+    { "cartesian", required_argument, NULL, OPT_CARTESIAN },
+    { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
+    { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
+    { "tol-position", required_argument, NULL, OPT_TOL_POS },
+    { "tol-angle", required_argument, NULL, OPT_TOL_ANG },
+    { "max-iter", required_argument, NULL, OPT_MAX_ITER },
+    { "singular-threshold", required_argument, NULL, OPT_SINGULAR },
+    { "allow-flagged", no_argument, NULL, OPT_ALLOW },
+    { "help", no_argument, NULL, 'h' },
+    { NULL, 0, NULL, 0 }
+  };
+  static const char *const names[1] = { "--output" };
+  const char *output = NULL, *point = NULL, *cartesian = NULL, *tol_pos = NULL, *tol_ang = NULL;
+  const char *inputs[4] = { NULL, NULL, NULL, NULL };
+  int force = 0, allow = 0, warned = 0, opt, status = TWF_EXIT_OK, n_pos;
+  twf_campaign_options copt = twf_campaign_default_options();
+  twf_compensate_options co = twf_compensate_default_options();
+  twf_compensate_summary sum;
+  twf_model *nominal = NULL, *asbuilt = NULL, *goal_model = NULL;
+  twf_campaign *input = NULL;
+  twf_ik_result *res = NULL;
+  double *qout = NULL;
+  twf_warnings warnings;
+  twf_error err;
+  comp_out out;
+  cli_put put;
+
+  twf_warnings_init(&warnings);
+  twf_error_clear(&err);
+  optind = 0;
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
+    switch (opt) {
+    case 'o': output = optarg; break;
+    case 'f': force = 1; break;
+    case OPT_POINT: point = optarg; break;
+    case OPT_CARTESIAN: cartesian = optarg; break;
+    case OPT_LENGTH_UNIT:
+      if ((status = cli_parse_length_unit("compensate", optarg, &copt.length_unit)) != 0)
+        goto done;
+      copt.length_from_caller = 1;
+      break;
+    case OPT_ANGLE_UNIT:
+      if ((status = cli_parse_angle_unit("compensate", optarg, &copt.angle_unit)) != 0)
+        goto done;
+      copt.angle_from_caller = 1;
+      break;
+    case OPT_TOL_POS: tol_pos = optarg; break;
+    case OPT_TOL_ANG: tol_ang = optarg; break;
+    case OPT_MAX_ITER: {
+      char *end;
+      long v = strtol(optarg, &end, 10);
+      if (*optarg == '\0' || *end != '\0' || v < 1 || v > 100000) {
+        status = cli_usage_error("compensate", "--max-iter takes a count from 1 to 100000");
+        goto done;
+      }
+      co.ik.max_iter = (unsigned)v;
+      break;
+    }
+    case OPT_SINGULAR:
+      if (cli_parse_double(optarg, &co.ik.singular_threshold) != 0 || co.ik.singular_threshold < 0 ||
+          co.ik.singular_threshold > 1) {
+        status = cli_usage_error("compensate", "--singular-threshold takes a number from 0 to 1, not '%s'", optarg);
+        goto done;
+      }
+      break;
+    case OPT_ALLOW: allow = 1; break;
+    case 'h': fputs(compensate_help, stdout); goto done;
+    default: status = cli_bad_option("compensate", opt, argv); goto done;
+    }
+  }
+  n_pos = argc - optind;
+  if (cartesian != NULL ? n_pos != 1 : n_pos != 3) {
+    status = cli_usage_error("compensate", cartesian != NULL ? "with --cartesian, give ASBUILT only"
+                                                             : "expected NOMINAL, ASBUILT and PROGRAM.csv");
+    goto done;
+  }
+  if (cartesian != NULL && point != NULL) {
+    status = cli_usage_error("compensate", "--point and --cartesian exclude each other (a Cartesian row names "
+                                           "its point in the target column)");
+    goto done;
+  }
+  if (cartesian != NULL) {
+    inputs[0] = argv[optind];
+    inputs[1] = cartesian;
+  } else {
+    inputs[0] = argv[optind];
+    inputs[1] = argv[optind + 1];
+    inputs[2] = argv[optind + 2];
+  }
+  if ((status = cli_outputs_check("compensate", &output, names, 1, force, inputs)) != 0)
+    goto done;
+
+  /* the models and the input */
+  if (cartesian == NULL) {
+    nominal = twf_model_read(inputs[0], &warnings, &err);
+    if (nominal == NULL)
+      goto fail;
+  }
+  asbuilt = twf_model_read(inputs[cartesian ? 0 : 1], &warnings, &err);
+  if (asbuilt == NULL)
+    goto fail;
+  if (nominal != NULL && twf_models_same_joints(nominal, asbuilt, inputs[0], inputs[1], &err) != TWF_OK)
+    goto fail;
+  if (cartesian == NULL) {
+    input = twf_campaign_read_joints(inputs[2], nominal, &copt, &warnings, &err);
+  } else {
+    goal_model = with_flange_target(asbuilt);
+    if (goal_model == NULL) {
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    input = twf_campaign_read(cartesian, goal_model, &copt, &warnings, &err);
+  }
+  if (input == NULL)
+    goto fail;
+  cli_print_warnings(&warnings);
+  warned = 1;
+  memset(&out, 0, sizeof out);
+  declared_units(cartesian ? cartesian : inputs[2], &copt, &out.lu, &out.au);
+  if (tol_pos != NULL &&
+      (status = cli_parse_tolerance("compensate", "--tol-position", tol_pos, twf_length_unit_si(out.lu),
+                                    &co.ik.tol_position_m)) != 0)
+    goto done;
+  if (tol_ang != NULL &&
+      (status = cli_parse_tolerance("compensate", "--tol-angle", tol_ang, twf_angle_unit_si(out.au),
+                                    &co.ik.tol_angle_rad)) != 0)
+    goto done;
+  if (point != NULL) {
+    co.kind = TWF_IK_POINT;
+    co.target = point;
+  }
+
+  /* the work */
+  out.n_rows = cartesian ? input->n_meas : input->n_poses;
+  res = calloc(out.n_rows ? out.n_rows : 1, sizeof *res);
+  qout = calloc((out.n_rows ? out.n_rows : 1) * asbuilt->n_joints, sizeof *qout);
+  if (res == NULL || qout == NULL) {
+    status = TWF_EXIT_INTERNAL;
+    goto done;
+  }
+  if (cartesian == NULL) {
+    if (twf_compensate_program(nominal, asbuilt, input->q, input->n_poses, &co, qout, res, &sum, &err) != TWF_OK) {
+      if (err.line > 0) {
+        /* the row's line in the program */
+        err.line = input->pose_lines[err.line - 1];
+        snprintf(err.file, sizeof err.file, "%s", inputs[2]);
+      }
+      goto fail;
+    }
+  } else {
+    twf_ik *w = twf_ik_alloc(asbuilt->n_joints);
+    size_t r;
+    if (w == NULL) {
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    for (r = 0; r < input->n_meas; r++) {
+      const twf_measurement *ms = &input->meas[r];
+      twf_ik_goal g;
+      g.kind = ms->has_orientation ? TWF_IK_POSE : TWF_IK_POINT;
+      if (ms->has_orientation) {
+        twf_quat_to_rot(ms->quat, g.R);
+      } else {
+        /* no orientation given: the seed's orientation is the reference of
+         * the reported angle */
+        twf_pose T;
+        twf_model_fk(asbuilt, input->q + ms->pose * asbuilt->n_joints, NULL, &T);
+        memcpy(g.R, T.R, sizeof g.R);
+      }
+      memcpy(g.p, ms->pos, sizeof g.p);
+      memcpy(g.point, goal_model->targets[ms->target].offset, sizeof g.point);
+      if (!goal_model->targets[ms->target].offset_known) {
+        twf_error_set(&err, TWF_ERR_MISSING, cartesian, ms->line, 0,
+                      "give the target an offset in the as-built model, or use 'flange'",
+                      "target %s has no offset in the as-built model", goal_model->targets[ms->target].name);
+        twf_ik_free(w);
+        goto fail;
+      }
+      if (twf_ik_solve(w, asbuilt, &g, input->q + ms->pose * asbuilt->n_joints, &co.ik,
+                       qout + r * asbuilt->n_joints, &res[r], &err) != TWF_OK) {
+        snprintf(err.file, sizeof err.file, "%s", cartesian);
+        err.line = ms->line;
+        twf_ik_free(w);
+        goto fail;
+      }
+    }
+    twf_ik_free(w);
+    twf_compensate_summarize(asbuilt, res, input->n_meas, &sum);
+  }
+
+  out.model = asbuilt;
+  out.input = input;
+  out.goal_model = goal_model;
+  out.cartesian = cartesian != NULL;
+  out.q = qout;
+  out.res = res;
+  out.nominal_path = inputs[0];
+  out.asbuilt_path = inputs[cartesian ? 0 : 1];
+  out.input_path = cartesian ? cartesian : inputs[2];
+  out.point = point;
+  put.path = output != NULL ? output : "-";
+  put.put = put_compensated;
+  put.ctx = &out;
+  status = cli_write_outputs(&put, 1, force, inputs);
+  if (status == TWF_EXIT_OK) {
+    print_summary(&sum, &out, allow);
+    if (sum.n_flagged > 0 && !allow)
+      status = TWF_EXIT_REJECTED;
+  }
+  goto done;
+
+fail:
+  if (!warned)
+    cli_print_warnings(&warnings);
+  if (err.status == TWF_ERR_DEGENERATE && cartesian == NULL)
+    snprintf(err.hint, sizeof err.hint, "match one target's position with --point T");
+  else if (err.status == TWF_ERR_DEGENERATE)
+    snprintf(err.hint, sizeof err.hint, "leave out the quaternion: the row then asks for the position only");
+  status = cli_report_error(&err);
+done:
+  free(res);
+  free(qout);
+  twf_campaign_free(input);
+  twf_model_free(goal_model);
+  twf_model_free(asbuilt);
+  twf_model_free(nominal);
+  twf_warnings_clear(&warnings);
+  return status;
+}
+
+const cli_command cli_cmd_compensate = {
+  "compensate", run_compensate, "compensate a joint program for the as-built arm (CSV)", compensate_help
+};

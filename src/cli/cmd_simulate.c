@@ -1,0 +1,362 @@
+/* cmd_simulate.c: `twistfit simulate MODEL -o CAMPAIGN.csv`: a synthetic
+ * campaign in the normal data format, measured on a true arm (a model
+ * file, or MODEL with drawn errors) from a base pose, with noise, gross
+ * errors and a check fraction on request; the true arm and base pose can
+ * be written too. Deterministic for a seed. */
+#define _GNU_SOURCE
+#include "config.h"
+#include "plan_cli.h"
+
+#include <getopt.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static const char simulate_help[] =
+  "Usage: twistfit simulate [OPTIONS] MODEL -o CAMPAIGN.csv\n"
+  "\n"
+  "A synthetic campaign in the normal data format (twistfit-data(5)): the poses\n"
+  "of a joints file or drawn within MODEL's limits, measured on a true arm (a\n"
+  "model file, or MODEL with errors drawn at the sizes given) seen from a base\n"
+  "pose, with noise per coordinate, optional gross errors and a check fraction.\n"
+  "Lengths are in MODEL's length unit, angles in its angle unit. The same seed\n"
+  "gives the same files.\n"
+  "\n"
+  "Options:\n"
+  "  -o, --output FILE       the campaign (required)\n"
+  "      --true-output FILE  the true arm as a model file\n"
+  "      --base-output FILE  the true base pose (robot base in the instrument frame)\n"
+  "      --joints FILE       the poses of a joints file (ids kept) ...\n"
+  "      --poses N           ... or N poses drawn within the limits (default 100)\n"
+  "      --limit-margin F    fraction of each joint's travel kept clear (default 0.05)\n"
+  "      --true FILE         the true arm: a model file with MODEL's joints and targets\n"
+  "      --angle-sd X        ... or MODEL with drawn errors: axis tilts and home rotation\n"
+  "      --length-sd X       axis shifts, home translation, prismatic joint offsets\n"
+  "      --offset-sd X       revolute joint offsets (angle unit)\n"
+  "      --scale-sd X        joint scale (a ratio, e.g. 1e-4; default 0)\n"
+  "      --target-sd X       target offsets\n"
+  "                          (each a standard deviation; default 0)\n"
+  "      --base FILE         the base pose file (default: the identity)\n"
+  "      --sigma X           measurement noise per coordinate (default 0)\n"
+  "      --orientation       6-D rows: the flange orientation is measured too\n"
+  "      --sigma-angle X     its noise per axis (default 0)\n"
+  "      --targets LIST      the targets measured (default: every target with an offset)\n"
+  "      --outliers F        fraction of rows with a gross error (default 0) ...\n"
+  "      --outlier-size X    ... of this length, random direction (default 1 mm)\n"
+  "      --check-fraction F  fraction of the poses tagged as check data (default 0)\n"
+  "      --seed N            seed of the draws (default 1)\n"
+  "      --length-unit U     length unit of the campaign file (default MODEL's)\n"
+  "      --angle-unit U      angle unit of the campaign file (default MODEL's)\n"
+  "  -f, --force             replace output files that exist\n"
+  "  -h, --help              show this help\n";
+
+enum {
+  OPT_TRUE_OUT = PCLI_OPT_FIRST_FREE, OPT_BASE_OUT, OPT_JOINTS, OPT_POSES, OPT_MARGIN, OPT_TRUE, OPT_ANGLE_SD,
+  OPT_LENGTH_SD, OPT_OFFSET_SD, OPT_SCALE_SD, OPT_TARGET_SD, OPT_BASE, OPT_SIGMA, OPT_ORIENTATION,
+  OPT_SIGMA_ANGLE, OPT_TARGETS, OPT_OUTLIERS, OPT_OUTLIER_SIZE, OPT_CHECK, OPT_SEED, OPT_LUNIT, OPT_AUNIT
+};
+
+typedef struct sim_text {
+  const char *angle_sd, *length_sd, *offset_sd, *target_sd, *sigma, *sigma_angle, *outlier_size;
+} sim_text;
+
+typedef struct campaign_ctx {
+  const twf_campaign *c;
+  const twf_model *m;
+  twf_length_unit lu;
+  twf_angle_unit au;
+  unsigned long long seed;
+} campaign_ctx;
+
+static int put_campaign(FILE *fp, void *ctx, twf_error *err)
+{
+  const campaign_ctx *x = ctx;
+  fprintf(fp, "# Simulated campaign written by twistfit simulate (seed %llu): not measured data.\n"
+              "# run: %s\n", x->seed, cli_run_id());
+  return twf_campaign_write(x->c, x->m, x->lu, x->au, fp, err) == TWF_OK ? 0 : -1;
+}
+
+static int put_true(FILE *fp, void *ctx, twf_error *err)
+{
+  fprintf(fp, "; The true arm of a campaign simulated by twistfit simulate: not a calibrated model.\n"
+              "; run_id: %s\n", cli_run_id());
+  return twf_model_write((const twf_model *)ctx, fp, err) == TWF_OK ? 0 : -1;
+}
+
+typedef struct base_ctx { const twf_pose *B; twf_length_unit lu; } base_ctx;
+
+static int put_base(FILE *fp, void *ctx, twf_error *err)
+{
+  const base_ctx *b = ctx;
+  fprintf(fp, "; run_id: %s\n", cli_run_id());
+  return twf_base_write(b->B, b->lu, "true base pose of a campaign simulated by twistfit simulate", fp, err) ==
+                 TWF_OK
+             ? 0
+             : -1;
+}
+
+/* A length or angle option given as text, in the model's units. */
+static int unit_value(const char *text, const char *option, double unit_si, const char *unit, double hi_si,
+                      double *out)
+{
+  if (text == NULL)
+    return 0;
+  return cli_parse_bounded("simulate", option, text, unit_si, unit, 0.0, hi_si, out);
+}
+
+/* The true arm must be MODEL's arm: the same joints (names, types) and
+ * targets (names). */
+static int same_shape(const twf_model *a, const twf_model *b, const char *path)
+{
+  size_t k;
+  int ok = a->n_joints == b->n_joints && a->n_targets == b->n_targets;
+  for (k = 0; ok && k < a->n_joints; k++)
+    ok = strcmp(a->joints[k].name, b->joints[k].name) == 0 && a->joints[k].type == b->joints[k].type;
+  for (k = 0; ok && k < a->n_targets; k++)
+    ok = strcmp(a->targets[k].name, b->targets[k].name) == 0 && b->targets[k].offset_known;
+  if (!ok) {
+    twf_error e;
+    twf_error_set(&e, TWF_ERR_VALUE, path, 0, 0,
+                  "give a true arm with MODEL's joints (names and types, in order) and targets with offsets",
+                  "the true arm does not match MODEL");
+    return cli_report_error(&e);
+  }
+  return 0;
+}
+
+static int run_simulate(int argc, char **argv)
+{
+  static const struct option longopts[] = {
+    { "output", required_argument, NULL, 'o' },
+    { "true-output", required_argument, NULL, OPT_TRUE_OUT },
+    { "base-output", required_argument, NULL, OPT_BASE_OUT },
+    { "joints", required_argument, NULL, OPT_JOINTS },
+    { "poses", required_argument, NULL, OPT_POSES },
+    { "limit-margin", required_argument, NULL, OPT_MARGIN },
+    { "true", required_argument, NULL, OPT_TRUE },
+    { "angle-sd", required_argument, NULL, OPT_ANGLE_SD },
+    { "length-sd", required_argument, NULL, OPT_LENGTH_SD },
+    { "offset-sd", required_argument, NULL, OPT_OFFSET_SD },
+    { "scale-sd", required_argument, NULL, OPT_SCALE_SD },
+    { "target-sd", required_argument, NULL, OPT_TARGET_SD },
+    { "base", required_argument, NULL, OPT_BASE },
+    { "sigma", required_argument, NULL, OPT_SIGMA },
+    { "orientation", no_argument, NULL, OPT_ORIENTATION },
+    { "sigma-angle", required_argument, NULL, OPT_SIGMA_ANGLE },
+    { "targets", required_argument, NULL, OPT_TARGETS },
+    { "outliers", required_argument, NULL, OPT_OUTLIERS },
+    { "outlier-size", required_argument, NULL, OPT_OUTLIER_SIZE },
+    { "check-fraction", required_argument, NULL, OPT_CHECK },
+    { "seed", required_argument, NULL, OPT_SEED },
+    { "length-unit", required_argument, NULL, OPT_LUNIT },
+    { "angle-unit", required_argument, NULL, OPT_AUNIT },
+    { "force", no_argument, NULL, 'f' },
+    { "help", no_argument, NULL, 'h' },
+    { NULL, 0, NULL, 0 }
+  };
+  static const char *const names[3] = { "--output", "--true-output", "--base-output" };
+  const char *outputs[3] = { NULL, NULL, NULL };
+  const char *joints_path = NULL, *true_path = NULL, *base_path = NULL, *targets_text = NULL;
+  const char *inputs[5] = { NULL, NULL, NULL, NULL, NULL };
+  sim_text tx;
+  int force = 0, opt, status = TWF_EXIT_OK, have_lu = 0, have_au = 0, have_poses = 0, drawn = 0;
+  twf_simulate_options so = twf_simulate_default_options();
+  twf_perturbation mag = { 0, 0, 0, 0, 0 };
+  twf_length_unit lu = TWF_LENGTH_MM;
+  twf_angle_unit au = TWF_ANGLE_DEG;
+  twf_model *model = NULL, *truth = NULL;
+  twf_campaign *joints = NULL, *c = NULL;
+  unsigned char *mask = NULL;
+  twf_warnings warnings;
+  twf_error err;
+  twf_pose B;
+  cli_units u;
+  size_t n = 0;
+
+  memset(&tx, 0, sizeof tx);
+  twf_warnings_init(&warnings);
+  twf_error_clear(&err);
+  optind = 0;
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
+    switch (opt) {
+    case 'o': outputs[0] = optarg; break;
+    case OPT_TRUE_OUT: outputs[1] = optarg; break;
+    case OPT_BASE_OUT: outputs[2] = optarg; break;
+    case OPT_JOINTS: joints_path = optarg; break;
+    case OPT_POSES:
+      if ((status = pcli_parse_count("simulate", "--poses", optarg, 1, 10000000, &so.n_poses)) != 0)
+        return status;
+      have_poses = 1;
+      break;
+    case OPT_MARGIN:
+      if ((status = pcli_parse_fraction("simulate", "--limit-margin", optarg, 0.0, 0.45, &so.limit_margin)) != 0)
+        return status;
+      break;
+    case OPT_TRUE: true_path = optarg; break;
+    case OPT_ANGLE_SD: tx.angle_sd = optarg; drawn = 1; break;
+    case OPT_LENGTH_SD: tx.length_sd = optarg; drawn = 1; break;
+    case OPT_OFFSET_SD: tx.offset_sd = optarg; drawn = 1; break;
+    case OPT_SCALE_SD:
+      if ((status = pcli_parse_fraction("simulate", "--scale-sd", optarg, 0.0, 0.1, &mag.scale)) != 0)
+        return status;
+      drawn = 1;
+      break;
+    case OPT_TARGET_SD: tx.target_sd = optarg; drawn = 1; break;
+    case OPT_BASE: base_path = optarg; break;
+    case OPT_SIGMA: tx.sigma = optarg; break;
+    case OPT_ORIENTATION: so.orientation = 1; break;
+    case OPT_SIGMA_ANGLE: tx.sigma_angle = optarg; break;
+    case OPT_TARGETS: targets_text = optarg; break;
+    case OPT_OUTLIERS:
+      if ((status = pcli_parse_fraction("simulate", "--outliers", optarg, 0.0, 1.0, &so.outlier_fraction)) != 0)
+        return status;
+      break;
+    case OPT_OUTLIER_SIZE: tx.outlier_size = optarg; break;
+    case OPT_CHECK:
+      if ((status = pcli_parse_fraction("simulate", "--check-fraction", optarg, 0.0, 0.9, &so.check_fraction)) !=
+          0)
+        return status;
+      break;
+    case OPT_SEED:
+      if ((status = pcli_parse_seed("simulate", optarg, &so.seed)) != 0)
+        return status;
+      break;
+    case OPT_LUNIT:
+      if ((status = cli_parse_length_unit("simulate", optarg, &lu)) != 0)
+        return status;
+      have_lu = 1;
+      break;
+    case OPT_AUNIT:
+      if ((status = cli_parse_angle_unit("simulate", optarg, &au)) != 0)
+        return status;
+      have_au = 1;
+      break;
+    case 'f': force = 1; break;
+    case 'h': fputs(simulate_help, stdout); return TWF_EXIT_OK;
+    default: return cli_bad_option("simulate", opt, argv);
+    }
+  }
+  if (argc - optind != 1)
+    return cli_usage_error("simulate", "expected one MODEL");
+  if (outputs[0] == NULL)
+    return cli_usage_error("simulate", "give the campaign file with -o FILE");
+  if (joints_path != NULL && have_poses)
+    return cli_usage_error("simulate", "give --joints or --poses, not both");
+  if (true_path != NULL && drawn)
+    return cli_usage_error("simulate", "give the true arm (--true) or error sizes (--angle-sd ...), not both");
+  if (tx.sigma_angle != NULL && !so.orientation)
+    return cli_usage_error("simulate", "--sigma-angle needs --orientation");
+  if (outputs[0] != NULL && strcmp(outputs[0], "-") == 0 && (outputs[1] != NULL || outputs[2] != NULL) &&
+      ((outputs[1] && strcmp(outputs[1], "-") == 0) || (outputs[2] && strcmp(outputs[2], "-") == 0)))
+    return cli_usage_error("simulate", "only one output can go to standard output");
+  inputs[0] = argv[optind];
+  inputs[1] = joints_path;
+  inputs[2] = true_path;
+  inputs[3] = base_path;
+  if ((status = cli_outputs_check("simulate", outputs, names, 3, force, inputs)) != 0)
+    return status;
+
+  model = twf_model_read(argv[optind], &warnings, &err);
+  if (model == NULL) {
+    status = cli_report_error(&err);
+    goto done;
+  }
+  cli_units_of(&u, model);
+  if ((status = unit_value(tx.angle_sd, "--angle-sd", u.angle_si, u.angle, 0.1, &mag.tilt_rad)) != 0 ||
+      (status = unit_value(tx.length_sd, "--length-sd", u.length_si, u.length, 0.1, &mag.shift_m)) != 0 ||
+      (status = unit_value(tx.offset_sd, "--offset-sd", u.angle_si, u.angle, 0.1, &mag.offset_rad)) != 0 ||
+      (status = unit_value(tx.target_sd, "--target-sd", u.length_si, u.length, 0.1, &mag.target_m)) != 0 ||
+      (status = unit_value(tx.sigma, "--sigma", u.length_si, u.length, 0.01, &so.sigma_m)) != 0 ||
+      (status = unit_value(tx.sigma_angle, "--sigma-angle", u.angle_si, u.angle, 0.1, &so.sigma_rad)) != 0 ||
+      (status = unit_value(tx.outlier_size, "--outlier-size", u.length_si, u.length, 1.0, &so.outlier_m)) != 0)
+    goto done;
+  if (targets_text != NULL) {
+    mask = calloc(model->n_targets ? model->n_targets : 1, 1);
+    if (mask == NULL) {
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    if ((status = pcli_parse_targets("simulate", model, targets_text, mask)) != 0)
+      goto done;
+    so.targets = mask;
+  }
+  if (true_path != NULL) {
+    truth = twf_model_read(true_path, &warnings, &err);
+    if (truth == NULL) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+    if ((status = same_shape(model, truth, true_path)) != 0)
+      goto done;
+  } else {
+    char note[128];
+    truth = twf_model_copy(model);
+    if (truth == NULL) {
+      status = TWF_EXIT_INTERNAL;
+      goto done;
+    }
+    /* the errors are drawn from their own stream of the seed */
+    twf_model_perturb(truth, &mag, so.seed ^ 0x6a09e667f3bcc909ULL);
+    snprintf(note, sizeof note, "drawn by twistfit simulate, seed %llu", so.seed);
+    twf_model_meta_set(truth, "simulated", note);
+  }
+  if (base_path != NULL) {
+    if (twf_base_read(base_path, &B, &err) != TWF_OK) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+  } else {
+    twf_pose_identity(&B);
+  }
+  if (joints_path != NULL) {
+    joints = twf_campaign_read_joints(joints_path, model, NULL, &warnings, &err);
+    if (joints == NULL) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+    so.n_poses = joints->n_poses;
+    so.q = joints->q;
+  }
+  cli_print_warnings(&warnings);
+  c = twf_simulate_campaign(truth, &B, &so, &err);
+  if (c == NULL) {
+    status = cli_report_error(&err);
+    goto done;
+  }
+  if (joints != NULL)
+    for (n = 0; n < c->n_poses; n++)
+      memcpy(c->pose_ids[n], joints->pose_ids[n], TWF_NAME_MAX);
+  {
+    campaign_ctx cc = { c, model, have_lu ? lu : model->length_unit, have_au ? au : model->angle_unit, so.seed };
+    base_ctx bc = { &B, have_lu ? lu : model->length_unit };
+    cli_put puts[3];
+    puts[0] = (cli_put){ outputs[0], put_campaign, &cc };
+    puts[1] = (cli_put){ outputs[1], put_true, truth };
+    puts[2] = (cli_put){ outputs[2], put_base, &bc };
+    status = cli_write_outputs(puts, 3, force, inputs);
+  }
+  if (status == TWF_EXIT_OK && cli_verbosity > 0 && strcmp(outputs[0], "-") != 0) {
+    size_t i, n_check = 0;
+    for (i = 0; i < c->n_meas; i++)
+      n_check += c->meas[i].set == TWF_SET_CHECK;
+    fprintf(stderr, "twistfit: simulated %zu poses, %zu measurements (%zu check) into %s\n", c->n_poses,
+            c->n_meas, n_check, outputs[0]);
+  }
+
+done:
+  twf_campaign_free(c);
+  twf_campaign_free(joints);
+  twf_model_free(truth);
+  twf_model_free(model);
+  free(mask);
+  twf_warnings_clear(&warnings);
+  return status;
+}
+
+const cli_command cli_cmd_simulate = {
+  "simulate",
+  run_simulate,
+  "a synthetic campaign on a true arm (before the measuring day)",
+  simulate_help,
+};

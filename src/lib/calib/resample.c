@@ -83,7 +83,7 @@ static void refit(boot *b, size_t k)
   b->ok[k] = 1;
   for (a = 0; a < b->p && a < res->n_params; a++)
     if (res->params[a].status == TWF_PARAM_KEPT)
-      v[a] = res->params[a].value;
+      v[a] = res->params[a].change;
   if (res->accuracy_after->position[TWF_SET_CHECK].count > 0) {
     f[0] = res->accuracy_after->position[TWF_SET_CHECK].rms;
     f[1] = res->accuracy_after->position[TWF_SET_CHECK].p95;

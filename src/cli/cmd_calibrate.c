@@ -51,6 +51,8 @@ static const char calibrate_help[] =
   "      --max-iterations N  solver iterations per fit (default 100)\n"
   "      --threads N         threads for the passes over the measurements\n"
   "                          (default: one per core; the result is the same)\n"
+  "      --resample N        N refits on poses drawn with replacement (seeded by\n"
+  "                          --seed): each parameter's spread beside its std\n"
   "      --accept-large      accept a result beyond any calibration (noise over 1 mm,\n"
   "                          a joint line over 5 deg or 50 mm from the model's);\n"
   "                          without it such a run fails (exit 5): the data and the\n"
@@ -67,7 +69,7 @@ static const char calibrate_help[] =
 
 enum {
   OPT_BASE_OUT = CLI_OPT_FIRST_FREE, OPT_JSON, OPT_RESIDUALS, OPT_FIT, OPT_PRIORITY, OPT_SIGMA,
-  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_THREADS, OPT_ACCEPT_LARGE,
+  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_THREADS, OPT_RESAMPLE, OPT_ACCEPT_LARGE,
   OPT_WRITE_ANYWAY
 };
 
@@ -535,6 +537,41 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   cli_print_predicted(fp, r, m, in->campaign, co, u);
 }
 
+/* --resample: the bootstrap's spreads beside the covariance figures. */
+static int print_resample(FILE *fp, const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
+                          const cli_units *u, size_t n)
+{
+  twf_resample_result *rs = NULL;
+  twf_warnings w;
+  twf_error err;
+  size_t k;
+  twf_warnings_init(&w);
+  if (twf_calibrate_resample(in->model, in->campaign, co, r, n, co->seed, &rs, &w, &err) != TWF_OK) {
+    twf_warnings_clear(&w);
+    return cli_report_error(&err);
+  }
+  fprintf(fp, "\nResampling: %zu refits on the fit poses drawn with replacement (seed %llu), %zu refused\n",
+          rs->n_refits, rs->seed, rs->n_refits - rs->n_ok);
+  fprintf(fp, "  %-16s %14s %14s %7s\n", "parameter", "std", "resampled", "ratio");
+  for (k = 0; k < rs->n_params; k++) {
+    const twf_param_result *p = &r->params[k];
+    double sc = p->param.kind == TWF_PARAM_LENGTH ? u->length_si : p->param.kind == TWF_PARAM_ANGLE ? u->angle_si : 1.0;
+    const char *un = p->param.kind == TWF_PARAM_LENGTH ? u->length : p->param.kind == TWF_PARAM_ANGLE ? u->angle : "";
+    if (p->status != TWF_PARAM_KEPT)
+      continue;
+    fprintf(fp, "  %-16s %10.4g %-3s %10.4g %-3s %7.2f%s\n", p->param.name, p->std / sc, un, rs->params[k].std / sc, un,
+            rs->params[k].ratio, rs->params[k].disagree ? "  disagree" : "");
+  }
+  if (rs->n_check > 0)
+    fprintf(fp, "  check set: RMS %.4g %s (resampled %.4g +- %.4g), max %.4g %s (resampled %.4g +- %.4g)\n",
+            rs->check_base[0] / u->length_si, u->length, rs->check_mean[0] / u->length_si, rs->check_std[0] / u->length_si,
+            rs->check_base[2] / u->length_si, u->length, rs->check_mean[2] / u->length_si, rs->check_std[2] / u->length_si);
+  cli_print_warnings(&w);
+  twf_warnings_clear(&w);
+  twf_resample_result_free(rs);
+  return TWF_EXIT_OK;
+}
+
 static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
                            const cli_units *u, const digest *dg, size_t n_dg, const char *created,
                            const twf_warnings *w)
@@ -740,6 +777,7 @@ static int run_calibrate(int argc, char **argv)
     { "seed", required_argument, NULL, OPT_SEED },
     { "max-iterations", required_argument, NULL, OPT_MAXIT },
     { "threads", required_argument, NULL, OPT_THREADS },
+    { "resample", required_argument, NULL, OPT_RESAMPLE },
     { "accept-large", no_argument, NULL, OPT_ACCEPT_LARGE },
     { "write-anyway", no_argument, NULL, OPT_WRITE_ANYWAY },
     { "force", no_argument, NULL, 'f' },
@@ -758,7 +796,7 @@ static int run_calibrate(int argc, char **argv)
   const twf_accuracy_summary *before, *after;
   json_t *root = NULL;
   digest dg[6];
-  size_t n_dg = 0, i, n_reader_warnings = 0;
+  size_t n_dg = 0, i, n_reader_warnings = 0, n_resample = 0;
   char created[64], cmdline[1024];
   FILE *txt = stdout;
 
@@ -840,6 +878,16 @@ static int run_calibrate(int argc, char **argv)
         goto done;
       }
       co.threads = (int)v;
+      break;
+    }
+    case OPT_RESAMPLE: {
+      char *end;
+      long v = strtol(optarg, &end, 10);
+      if (*end != '\0' || v < 1 || v > 100000) {
+        status = cli_usage_error("calibrate", "--resample takes a count from 1 to 100000");
+        goto done;
+      }
+      n_resample = (size_t)v;
       break;
     }
     case OPT_ACCEPT_LARGE: co.accept_large = 1; break;
@@ -1015,6 +1063,8 @@ static int run_calibrate(int argc, char **argv)
     goto done;
   }
   print_report(txt, &in, res, &co, &u, dg, n_dg, created, &warnings);
+  if (n_resample > 0 && (status = print_resample(txt, &in, res, &co, &u, n_resample)) != TWF_EXIT_OK)
+    goto done;
   {
     cli_put puts[4];
     cli_residuals rr;

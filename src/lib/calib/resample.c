@@ -81,9 +81,38 @@ static void refit(boot *b, size_t k)
   if (twf_calibrate(b->start, rc, &b->opt, &res, NULL, &err) != TWF_OK)
     goto done;
   b->ok[k] = 1;
-  for (a = 0; a < b->p && a < res->n_params; a++)
-    if (res->params[a].status == TWF_PARAM_KEPT)
-      v[a] = res->params[a].change;
+  /* Each refit registers anew, so its changes start from its own
+   * registration: express the base and the registered target offsets
+   * against the base result's registration, where they compare. */
+  {
+    double step[6] = { 0, 0, 0, 0, 0, 0 }, xi[6] = { 0, 0, 0, 0, 0, 0 };
+    twf_pose E, Bk, B0inv, D;
+    int any_base = 0;
+    for (a = 0; a < b->p && a < res->n_params; a++)
+      if (res->params[a].param.group == TWF_GROUP_BASE) {
+        step[res->params[a].param.component] = res->params[a].change;
+        any_base = 1;
+      }
+    if (any_base) {
+      twf_se3_exp(step, 1.0, &E);
+      twf_pose_mul(&res->base_before, &E, &Bk);
+      twf_pose_inv(&b->base->base_before, &B0inv);
+      twf_pose_mul(&B0inv, &Bk, &D);
+      twf_se3_log(&D, xi);
+    }
+    for (a = 0; a < b->p && a < res->n_params; a++) {
+      const twf_param *par = &res->params[a].param;
+      if (res->params[a].status != TWF_PARAM_KEPT)
+        continue;
+      if (par->group == TWF_GROUP_BASE)
+        v[a] = xi[par->component];
+      else if (par->group == TWF_GROUP_TARGETS)
+        v[a] = res->params[a].change + res->registered->targets[par->target].offset[par->component] -
+               b->base->registered->targets[par->target].offset[par->component];
+      else
+        v[a] = res->params[a].change;
+    }
+  }
   if (res->accuracy_after->position[TWF_SET_CHECK].count > 0) {
     f[0] = res->accuracy_after->position[TWF_SET_CHECK].rms;
     f[1] = res->accuracy_after->position[TWF_SET_CHECK].p95;

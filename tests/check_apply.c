@@ -687,14 +687,14 @@ START_TEST(test_compare_links_tilt)
   ck_assert_int_eq(twf_compare_links(a, a, 0, &l, diff, &err), TWF_OK);
   for (r = 0; r < 8; r++)
     for (v = 0; v < 5; v++)
-      ck_assert(isnan(diff[5 * r + v]) || fabs(diff[5 * r + v]) <= 1e-12);
+      ck_assert(isnan(diff[5 * r + (size_t)v]) || fabs(diff[5 * r + (size_t)v]) <= 1e-12);
   twf_links_clear(&l);
   tilt_joint(b, 2, u, tilt);
   ck_assert_int_eq(twf_compare_links(a, b, 0, &l, diff, &err), TWF_OK);
   ck_assert_uint_eq(l.n_rows, 8);
   for (r = 0; r < 8; r++)
     for (v = 0; v < 5; v++) {
-      double want = 0.0, d = diff[5 * r + v];
+      double want = 0.0, d = diff[5 * r + (size_t)v];
       if (l.rows[r].why[v] == TWF_LINK_NOT_IN_FORM) {
         ck_assert(isnan(d));
         continue;

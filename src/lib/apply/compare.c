@@ -113,7 +113,7 @@ twf_status twf_compare_models(const twf_model *a, const twf_model *b, const doub
       double p[3], d[3];
       twf_pose_apply(&r->b_to_a, yb + 3 * (c * np + k), p);
       for (x = 0; x < 3; x++)
-        d[x] = ya[3 * (c * np + k) + x] - p[x];
+        d[x] = ya[3 * (c * np + k) + (size_t)x] - p[x];
       dist[c * np + k] = twf_v3_norm(d);
     }
     for (x = 0; x < 3; x++)

@@ -75,7 +75,7 @@ static const struct {
   const char *fragment;
 } bad[] = {
   { "[base]\nlength_unit = mm\nposition = 1 2 3\n", TWF_ERR_MISSING, 0, "incomplete" },
-  { "[base]\nlength_unit = mm\nposition = 1 2 3\nquaternion_wxyz = 1 0 0 0.1\n", TWF_ERR_VALUE, 4, "not unit" },
+  { "[base]\nlength_unit = mm\nposition = 1 2 3\nquaternion_wxyz = 1 0 0 0.1\n", TWF_ERR_VALUE, 4, "has norm 1.00498756, not 1 within 1e-06" },
   { "[base]\nlength_unit = mm\nposition = 1 2\nquaternion_wxyz = 1 0 0 0\n", TWF_ERR_VALUE, 3, "bad position" },
   { "[base]\nlength_unit = mm\nposition = 1 2 nan\nquaternion_wxyz = 1 0 0 0\n", TWF_ERR_VALUE, 3, "bad position" },
   { "[base]\nlength_unit = furlong\n", TWF_ERR_UNITS, 2, "unknown length unit" },

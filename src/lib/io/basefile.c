@@ -4,6 +4,7 @@
  * unknown or repeated keys, missing keys, bad numbers and a non-unit
  * quaternion are refused. */
 #include "inistrict.h"
+#include "io_internal.h"
 
 #include <errno.h>
 #include <stdlib.h>
@@ -87,11 +88,11 @@ static int handler(void *user, const char *section, const char *name, const char
       return fail_at(c, TWF_ERR_VALUE, c->ini.lineno, "give four finite numbers w x y z",
                      "bad quaternion: ", value);
     {
-      double n = sqrt(c->quat[0] * c->quat[0] + c->quat[1] * c->quat[1] +
-                      c->quat[2] * c->quat[2] + c->quat[3] * c->quat[3]);
-      if (fabs(n - 1.0) > 1e-6)
-        return fail_at(c, TWF_ERR_VALUE, c->ini.lineno, "give a unit quaternion (norm 1 within 1e-6)",
-                       "quaternion is not unit length", NULL);
+      double n;
+      char msg[TWF_ERROR_TEXT_MAX], hint[TWF_ERROR_TEXT_MAX];
+      if (!twf_io_quat_is_unit(c->quat, &n))
+        return fail_at(c, TWF_ERR_VALUE, c->ini.lineno, twf_io_quat_norm_hint(hint, sizeof hint, ""),
+                       twf_io_quat_norm_message(msg, sizeof msg, "quaternion_wxyz", n), NULL);
     }
   } else {
     return fail_at(c, TWF_ERR_UNKNOWN, c->ini.lineno,

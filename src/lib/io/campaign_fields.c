@@ -336,15 +336,15 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
         if (st != TWF_OK)
           return st;
       }
-      norm = sqrt(ms->quat[0] * ms->quat[0] + ms->quat[1] * ms->quat[1] +
-                  ms->quat[2] * ms->quat[2] + ms->quat[3] * ms->quat[3]);
-      if (!(fabs(norm - 1.0) <= QUAT_NORM_TOL))
+      if (!twf_io_quat_is_unit(ms->quat, &norm)) {
+        char what[160], msg[TWF_ERROR_TEXT_MAX];
+        snprintf(what, sizeof what, "the quaternion (%.9g %.9g %.9g %.9g)", ms->quat[0], ms->quat[1],
+                 ms->quat[2], ms->quat[3]);
         return twf_creader_error(r, row, r->col[COL_QW], TWF_ERR_VALUE,
                                  "check the column order (qw qx qy qz) and write the "
                                  "quaternion with at least 7 significant digits",
-                                 "the quaternion (%.9g %.9g %.9g %.9g) has norm %.9g, not 1 "
-                                 "within %g", ms->quat[0], ms->quat[1], ms->quat[2],
-                                 ms->quat[3], norm, QUAT_NORM_TOL);
+                                 "%s", twf_io_quat_norm_message(msg, sizeof msg, what, norm));
+      }
       for (i = 0; i < 4; i++)
         ms->quat[i] /= norm;
       ms->has_orientation = 1;

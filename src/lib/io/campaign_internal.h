@@ -8,10 +8,8 @@
 
 #include "csvstrict.h"
 
-/* Accepted deviation of a quaternion's norm from 1 (relative). Exports with
- * 7 significant digits stay within it; anything beyond is a wrong column or
- * a rotation that is not one, and silently normalising would hide that. */
-#define QUAT_NORM_TOL 1e-6
+/* Accepted deviation of a quaternion's norm from 1: TWF_IO_QUAT_NORM_TOL
+ * of io_internal.h, shared with the model and base pose readers. */
 /* How many ids an error message lists before "and N more". */
 #define LIST_IDS 5
 

@@ -23,6 +23,23 @@ void twf_io_appendf(char *buf, size_t n, const char *fmt, ...)
  * underflow, which the readers refuse as they refuse overflow. */
 int twf_io_mantissa_nonzero(const char *s);
 
+/* Accepted deviation of a quaternion's norm from 1, for every reader
+ * (model file, base pose file, campaign): exports with 7 significant
+ * digits stay within it; anything beyond is a wrong column or a rotation
+ * that is not one, and silently normalising would hide that. Documented
+ * in twistfit-model(5) and twistfit-campaign(5). */
+#define TWF_IO_QUAT_NORM_TOL 1e-6
+
+/* The norm of q, and whether it is within TWF_IO_QUAT_NORM_TOL of 1 (a
+ * NaN norm is not). */
+int twf_io_quat_is_unit(const double q[4], double *norm);
+/* The one message for a quaternion that is not unit: "WHAT has norm N,
+ * not 1 within TOL" into buf (size n). Returns buf. */
+const char *twf_io_quat_norm_message(char *buf, size_t n, const char *what, double norm);
+/* The hint "give a unit quaternion w x y z (norm within TOL of 1)" plus
+ * an optional tail ("", or "; " and more advice) into buf. Returns buf. */
+const char *twf_io_quat_norm_hint(char *buf, size_t n, const char *tail);
+
 /* Numbers in files are read and written in the "C" locale whatever the
  * caller's: the file formats define '.' as the decimal point, and strtod
  * and printf follow LC_NUMERIC (C11 7.22.1.3, 7.21.6.1), so a program that

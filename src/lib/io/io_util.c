@@ -34,6 +34,25 @@ void twf_io_appendf(char *buf, size_t n, const char *fmt, ...)
   va_end(ap);
 }
 
+int twf_io_quat_is_unit(const double q[4], double *norm)
+{
+  *norm = sqrt(q[0] * q[0] + q[1] * q[1] + q[2] * q[2] + q[3] * q[3]);
+  return fabs(*norm - 1.0) <= TWF_IO_QUAT_NORM_TOL;
+}
+
+const char *twf_io_quat_norm_message(char *buf, size_t n, const char *what, double norm)
+{
+  snprintf(buf, n, "%s has norm %.9g, not 1 within %g", what, norm, TWF_IO_QUAT_NORM_TOL);
+  return buf;
+}
+
+const char *twf_io_quat_norm_hint(char *buf, size_t n, const char *tail)
+{
+  snprintf(buf, n, "give a unit quaternion w x y z (norm within %g of 1)%s", TWF_IO_QUAT_NORM_TOL,
+           tail != NULL ? tail : "");
+  return buf;
+}
+
 int twf_io_mantissa_nonzero(const char *s)
 {
   int hex = 0;

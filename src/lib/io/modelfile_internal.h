@@ -10,7 +10,7 @@
 /* Tolerances of the format, documented in twistfit-model(5). */
 #define AXIS_UNIT_TOL 1e-3    /* axis length accepted (and normalised) */
 #define AXIS_QUIET_TOL 1e-12  /* below this, normalised without a warning */
-#define QUAT_UNIT_TOL 1e-6    /* quaternion norm */
+/* quaternion norm: TWF_IO_QUAT_NORM_TOL of io_internal.h */
 #define ROT_ORTHO_TOL 1e-6    /* max |R^T R - I| of rotation rows */
 
 static inline int twf_mf_is_blank(char ch)

@@ -2,6 +2,7 @@
  * values of a section, numbers in the declared units converted to SI,
  * rotations in their three forms, joints in their three forms. Every
  * failure stops at the first error with its line and a hint. */
+#include "io_internal.h"
 #include "modelfile_internal.h"
 
 #include <errno.h>
@@ -193,11 +194,11 @@ int twf_mf_parse_pose(parse_ctx *c, const section *s, twf_length_unit lu,
     snprintf(what, sizeof what, "quaternion_wxyz in [%s]", sec);
     if (twf_mf_parse_numbers(c, quat, what, q, 4) != 0)
       return -1;
-    n = sqrt(q[0] * q[0] + q[1] * q[1] + q[2] * q[2] + q[3] * q[3]);
-    if (!(fabs(n - 1.0) <= QUAT_UNIT_TOL))
-      return twf_ini_fail(&c->ini, TWF_ERR_VALUE, quat->line, 0,
-                          "give a unit quaternion w x y z (norm within 1e-6 of 1)",
-                          "quaternion_wxyz in [%s] has norm %.9g, not 1", sec, n);
+    if (!twf_io_quat_is_unit(q, &n)) {
+      char msg[TWF_ERROR_TEXT_MAX], hint[TWF_ERROR_TEXT_MAX];
+      return twf_ini_fail(&c->ini, TWF_ERR_VALUE, quat->line, 0, twf_io_quat_norm_hint(hint, sizeof hint, ""),
+                          "%s", twf_io_quat_norm_message(msg, sizeof msg, what, n));
+    }
     twf_quat_to_rot(q, T->R);
   } else if (rpy != NULL) {
     double a[3];

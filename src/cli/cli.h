@@ -83,7 +83,9 @@ typedef struct cli_put {
  * the error and returns an exit status. */
 int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs);
 
-/* Record the command line and the start time (call first in main). */
+/* Record the command line and the start time (call first in main); puts
+ * standard output on a stream that keeps the reason of its first failed
+ * write (reported by cli_finish_stdout and the output set). */
 void cli_run_start(int argc, char **argv);
 /* The run id written into every output of a set: 16 hex digits of a
  * SHA-256 over the command line, the start time, the process id and the

@@ -260,8 +260,11 @@ static struct {
   char id[17];
 } run;
 
+static void stdout_wrap(void);
+
 void cli_run_start(int argc, char **argv)
 {
+  stdout_wrap();
   run.argc = argc;
   run.argv = argv;
   clock_gettime(CLOCK_REALTIME, &run.start);
@@ -317,6 +320,60 @@ const char *cli_run_id(void)
 /* ------------------------------------------------------- standard output */
 
 static int stdout_reported;
+/* The reason of the first write to standard output that failed: the C
+ * library drops a buffer whose write failed and keeps only the error flag,
+ * so a later flush with nothing pending succeeds and the reason (ENOSPC,
+ * EPIPE, EIO) would be lost. */
+static int stdout_first_errno;
+
+#if defined(__GLIBC__)
+/* Standard output goes through a stream of our own over descriptor 1
+ * (fopencookie; glibc lets a program set stdout) whose write function
+ * records the reason of the first failure. */
+static ssize_t stdout_cookie_write(void *cookie, const char *buf, size_t n)
+{
+  size_t done = 0;
+  (void)cookie;
+  while (done < n) {
+    ssize_t w = write(STDOUT_FILENO, buf + done, n - done);
+    if (w < 0 && errno == EINTR)
+      continue;
+    if (w <= 0) {
+      if (stdout_first_errno == 0)
+        stdout_first_errno = w < 0 ? errno : EIO;
+      break; /* a short count marks the stream's error flag */
+    }
+    done += (size_t)w;
+  }
+  return (ssize_t)done;
+}
+
+static int stdout_cookie_close(void *cookie)
+{
+  (void)cookie;
+  return close(STDOUT_FILENO);
+}
+
+static void stdout_wrap(void)
+{
+  static int wrapped;
+  cookie_io_functions_t io = { NULL, stdout_cookie_write, NULL, stdout_cookie_close };
+  FILE *fp;
+  if (wrapped)
+    return;
+  fp = fopencookie(NULL, "w", io);
+  if (fp == NULL)
+    return; /* keep the library's stream: only the reason may be lost */
+  /* a terminal sees each line as it is complete, as with the library's
+   * stream; anything else gets full buffering */
+  setvbuf(fp, NULL, isatty(STDOUT_FILENO) ? _IOLBF : _IOFBF, BUFSIZ);
+  fflush(stdout);
+  stdout = fp;
+  wrapped = 1;
+}
+#else
+static void stdout_wrap(void) {}
+#endif
 
 /* Flush standard output; 1 when a write failed, with the reason in *e (0
  * when unknown). */
@@ -334,6 +391,9 @@ static int stdout_failed(int *e)
 
 static int report_stdout(int e)
 {
+  /* the first failure is the cause; later ones follow from it */
+  if (stdout_first_errno != 0)
+    e = stdout_first_errno;
   if (!stdout_reported)
     fprintf(stderr, "twistfit: error: cannot write to standard output: %s\n",
             e != 0 ? strerror(e) : "an earlier write failed");

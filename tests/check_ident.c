@@ -154,6 +154,42 @@ START_TEST(test_explain_and_inverse)
 }
 END_TEST
 
+/* Ties: column 7 = c0 - c1 + c2 - c3 + c4 + c6 exactly (all six
+ * coefficients +-1, products exact in binary). Only the rounding of the
+ * solve separates them, so the three listed must be the lowest indices, in
+ * index order, on every draw. */
+START_TEST(test_explain_ties_by_index)
+{
+  static double J[ROWS * P];
+  double A[P * P], coef[3];
+  unsigned char keep[P] = { 1, 1, 1, 1, 1, 0, 1, 0 };
+  size_t idx[3], i, a, b, n;
+  int d;
+  twf_test_rng rng;
+  twf_test_rng_init(&rng, twf_test_seed(78));
+  for (d = 0; d < 16; d++) {
+    for (i = 0; i < ROWS; i++) {
+      double *r = J + i * P;
+      for (a = 0; a < P; a++)
+        r[a] = twf_test_uniform(&rng, -1.0, 1.0);
+      r[5] = 0.0;
+      r[7] = r[0] - r[1] + r[2] - r[3] + r[4] + r[6];
+    }
+    memset(A, 0, sizeof A);
+    for (i = 0; i < ROWS; i++)
+      for (a = 0; a < P; a++)
+        for (b = 0; b < P; b++)
+          A[a * P + b] += J[i * P + a] * J[i * P + b];
+    n = twf_ident_explain(A, P, keep, 7, 3, idx, coef);
+    ck_assert_uint_eq(n, 3);
+    for (i = 0; i < 3; i++) {
+      ck_assert_msg(idx[i] == i, "draw %d: place %zu lists column %zu (%.17g), not %zu", d, i, idx[i], coef[i], i);
+      ck_assert_close(coef[i], i == 1 ? -1.0 : 1.0, 1e-9);
+    }
+  }
+}
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("ident");
@@ -161,6 +197,7 @@ int main(void)
   tcase_add_test(tc, test_walk_fixes_dependent_columns);
   tcase_add_test(tc, test_walk_margin_over_draws);
   tcase_add_test(tc, test_explain_and_inverse);
+  tcase_add_test(tc, test_explain_ties_by_index);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

@@ -91,8 +91,15 @@ size_t twf_ident_explain(const double *A, size_t p, const unsigned char *keep,
     gsl_vector_set(rhs, a, A[idx[a] * p + j]);
   if (gsl_linalg_cholesky_solve(K, rhs, c) != 0)
     goto done;
-  /* a simple selection of the largest |c| */
+  /* a simple selection of the largest |c|. Dependencies of a model are
+   * often exact sums (a base offset against a joint offset: +1, -1), so
+   * several coefficients tie and rounding alone would pick among them:
+   * coefficients within TIE_REL of each other are a tie, taken in the
+   * order of the parameter index (idx is ascending, so the first of a tie
+   * stays best). TIE_REL is far above the solve's rounding and far below
+   * the 3 digits a report prints. */
   for (n = 0; n < max_out && n < nk; n++) {
+    const double TIE_REL = 1e-6;
     size_t best = nk;
     double bv = 0.0;
     for (a = 0; a < nk; a++) {
@@ -102,7 +109,7 @@ size_t twf_ident_explain(const double *A, size_t p, const unsigned char *keep,
       for (k = 0; k < n; k++)
         if (idx_out[k] == idx[a])
           used = 1;
-      if (!used && v > bv) {
+      if (!used && (best == nk ? v > 0.0 : v > bv + TIE_REL * bv)) {
         bv = v;
         best = a;
       }

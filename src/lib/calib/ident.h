@@ -20,7 +20,10 @@ int twf_ident_walk(const double *A, size_t p, const size_t *order,
 
 /* Least-squares coefficients of column j on the kept columns: c solves
  * A_KK c = A_Kj. idx/coef receive the up to max_out kept columns with the
- * largest |c| (coefficients in scaled units). Returns how many. */
+ * largest |c| (coefficients in scaled units), largest first; |c| within
+ * 1e-6 relative of each other tie and go by column index, so that exact
+ * dependencies (sums with coefficients +-1) list the same columns in the
+ * same order whatever the rounding. Returns how many. */
 size_t twf_ident_explain(const double *A, size_t p, const unsigned char *keep,
                          size_t j, size_t max_out, size_t *idx, double *coef);
 

@@ -1134,6 +1134,80 @@ START_TEST(test_writer_metadata_and_points)
 }
 END_TEST
 
+/* Free text (the robot's name, [asbuilt] values) round-trips or is
+ * refused, the same way by reader and writer: a control character inside
+ * is refused at reading with its line and column, and by the writer for
+ * the name (a space for it would read back as another name); a text that
+ * starts with ';' is written right after the '=' and reads back whole. */
+START_TEST(test_free_text_round_trip)
+{
+  static const struct {
+    const char *line; /* after "[robot]\n" */
+    long col;          /* of the control character, 0: accepted */
+    const char *name;  /* read name when accepted */
+  } cases[] = {
+    { "name = tf6s\x1b[2J\n", 12, NULL },
+    { "  name = a\tb\n", 11, NULL },
+    { "name = tf6s\x7f\n", 12, NULL },
+    { "name =\ttf6s\t ; comment \x01 kept out\n", 0, "tf6s" },
+    { "name =;tf6s\n", 0, ";tf6s" },
+    { "name = a;b\n", 0, "a;b" },
+  };
+  static const char tail[] = "length_unit = mm\nangle_unit = deg\n[joint j1]\ntype = revolute\n"
+                             "axis = 0 0 1\npoint = 0 0 0\n[home]\nposition = 0 0 1\n"
+                             "quaternion_wxyz = 1 0 0 0\n";
+  char path[4096], text[512];
+  twf_error err;
+  size_t i;
+  temp_name(path, sizeof path);
+  for (i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+    twf_model *m, *back;
+    char *out;
+    snprintf(text, sizeof text, "[robot]\n%s%s", cases[i].line, tail);
+    write_text(path, text);
+    m = twf_model_read(path, NULL, &err);
+    if (cases[i].col != 0) {
+      ck_assert_msg(m == NULL, "case %zu accepted", i);
+      ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+      ck_assert_int_eq(err.line, 2);
+      ck_assert_int_eq(err.column, cases[i].col);
+      ck_assert_ptr_nonnull(strstr(err.message, "control character"));
+      continue;
+    }
+    ck_assert_msg(m != NULL, "case %zu: %s", i, err.message);
+    ck_assert_str_eq(m->name, cases[i].name);
+    out = roundtrip(m, &back);
+    ck_assert_msg(strcmp(back->name, m->name) == 0, "case %zu: '%s' read back as '%s':\n%s", i, m->name,
+                  back->name, out);
+    free(out);
+    twf_model_free(back);
+    twf_model_free(m);
+  }
+  /* [asbuilt] values: the same rule, and a value starting with ';' */
+  snprintf(text, sizeof text, "[robot]\n%s[asbuilt]\nnote = a\x01b\n", tail);
+  write_text(path, text);
+  ck_assert_ptr_null(twf_model_read(path, NULL, &err));
+  ck_assert_int_eq(err.line, 12);
+  ck_assert_int_eq(err.column, 9);
+  {
+    twf_model *m = read_ok(sample_path("tf6s"), NULL), *back;
+    char *out;
+    ck_assert_int_eq(twf_model_meta_set(m, "note", "  ;starts with a semicolon"), TWF_OK);
+    out = roundtrip(m, &back);
+    ck_assert_str_eq(twf_model_meta_get(back, "note"), ";starts with a semicolon");
+    free(out);
+    twf_model_free(back);
+    /* the writer refuses a name it cannot give back */
+    snprintf(m->name, sizeof m->name, "tf6s\nsecond line");
+    ck_assert_int_eq(write_to(m, &out, &err), TWF_ERR_INVALID);
+    ck_assert_ptr_nonnull(strstr(err.message, "control character (byte 0x0A) at character 5"));
+    free(out);
+    twf_model_free(m);
+  }
+  remove(path);
+}
+END_TEST
+
 /* ------------------------------------------------ man page examples */
 
 /* The two example files of twistfit-model(5) (the .nf/.fi blocks of its
@@ -1225,6 +1299,7 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_rotation_rows_polished);
   tcase_add_test(tc, test_writer_refuses);
   tcase_add_test(tc, test_writer_metadata_and_points);
+  tcase_add_test(tc, test_free_text_round_trip);
   tcase_add_test(tc, test_man_page_examples);
   suite_add_tcase(s, tc);
   return s;

@@ -85,6 +85,7 @@ static char *read_line(char *str, int num, void *stream)
    * previous value. */
   while (is_blank(*s))
     s++;
+  ini->indent = (long)(s - line);
   if (ini->line != NULL)
     ini->line(ini->user, ini, s);
   if (ini->status != TWF_OK)

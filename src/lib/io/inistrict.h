@@ -43,6 +43,7 @@ struct twf_ini_strict {
   twf_io_text text;        /* the file, read whole */
   size_t pos;              /* offset of the next line in text */
   long lineno;             /* lines read so far: the current line */
+  long indent;             /* blanks removed before the text given to line */
   twf_status status;       /* first error, TWF_OK while none */
   twf_input_digest digest; /* of the bytes read, once read */
 };

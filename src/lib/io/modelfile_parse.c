@@ -167,6 +167,43 @@ static void open_section(parse_ctx *c, char *inner)
     twf_strlcpy(s->name, rest, sizeof s->name);
 }
 
+/* The robot's name and the [asbuilt] values are free text, printed in
+ * reports and written back on one line: a control character inside one
+ * (an escape sequence, a tab) is refused, since the writer could not give
+ * it back (it writes spaces for them; twistfit-model(5)). s is the line,
+ * v the text after its '='; the blanks inih trims at the ends and an end
+ * comment are not part of the value. */
+static void check_text_value(parse_ctx *c, const char *s, const char *v)
+{
+  const section *sec = &c->secs[c->nsec - 1];
+  const char *end;
+  int was_space = 0;
+  if (!(sec->kind == SEC_ROBOT && strcmp(c->key, "name") == 0) && sec->kind != SEC_ASBUILT)
+    return;
+  /* as inih: the end comment is found on the text right after '=' */
+  for (end = v; *end != '\0' && !(was_space && *end == ';'); end++)
+    was_space = twf_mf_is_blank(*end);
+  while (v < end && twf_mf_is_blank(*v))
+    v++;
+  while (end > v && twf_mf_is_blank(end[-1]))
+    end--;
+  for (; v < end; v++) {
+    unsigned char ch = (unsigned char)*v;
+    if (ch < 0x20 || ch == 0x7f) {
+      char what[TWF_MODEL_LINE_MAX + 40];
+      if (sec->kind == SEC_ROBOT)
+        snprintf(what, sizeof what, "the robot name");
+      else
+        snprintf(what, sizeof what, "the value of '%s' in [asbuilt]", c->key);
+      twf_ini_fail(&c->ini, TWF_ERR_VALUE, c->ini.lineno, c->ini.indent + (long)(v - s) + 1,
+                   "names and metadata values are printable text on one line: remove the "
+                   "control character (write a space for a tab)",
+                   "control character (byte 0x%02X) in %s", ch, what);
+      return;
+    }
+  }
+}
+
 /* Classify one line (leading blanks already removed) as inih will see it,
  * and catch what inih would accept silently or report without a reason.
  * The rules mirror inih 55: start-of-line comments with ';' or '#', inline
@@ -242,6 +279,8 @@ static void classify_line(void *user, twf_ini_strict *ini, const char *s)
       twf_ini_fail(&c->ini, TWF_ERR_SYNTAX, c->ini.lineno, 0,
                    "put keys under a section header such as [robot]",
                    "key '%s' comes before any section", c->key);
+    else
+      check_text_value(c, s, p + 1);
   }
 }
 

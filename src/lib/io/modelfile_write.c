@@ -86,6 +86,14 @@ static void put_nums(FILE *out, const char *key, const double *si, size_t n,
   fputc('\n', out);
 }
 
+/* "key = text" for a text made by text_for_file. A ';' after a blank
+ * starts an end comment, so a text that begins with ';' is written right
+ * after the '=' ("name =;x"), where the reader takes it as the value. */
+static void put_text(FILE *out, const char *key, const char *text)
+{
+  fprintf(out, text[0] == ';' ? "%s =%s\n" : "%s = %s\n", key, text);
+}
+
 /* A text value as the reader will give it back, where possible: control
  * characters (line ends included) become spaces, blanks before ';' are
  * dropped (the reader would cut a comment there), and the ends are
@@ -244,6 +252,14 @@ static twf_status write_check(const twf_model *m, twf_error *err)
   if (!within_n(home.p, 3, TWF_READ_LENGTH_MAX))
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "home position lies beyond 1 km");
+  /* the reader refuses control characters in the name (a space for
+   * them would read back as another name) */
+  for (size_t i = 0; i < sizeof m->name && m->name[i] != '\0'; i++)
+    if ((unsigned char)m->name[i] < 0x20 || m->name[i] == 0x7f)
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+                           "give the robot a name of printable text on one line",
+                           "the robot name has a control character (byte 0x%02X) at "
+                           "character %zu", (unsigned)(unsigned char)m->name[i], i + 1);
   for (size_t i = 0; i < m->n_meta; i++) {
     const char *k = m->meta[i].key, *v = m->meta[i].value ? m->meta[i].value : "";
     if (!twf_mf_name_chars_ok(k) || strlen(k) >= TWF_NAME_MAX)
@@ -296,7 +312,7 @@ static twf_status write_model(const twf_model *m, FILE *out, twf_error *err)
   buf[sizeof m->name - 1] = '\0';
   text_for_file(buf, buf);
   if (buf[0] != '\0')
-    fprintf(out, "name = %s\n", buf);
+    put_text(out, "name", buf);
   fprintf(out, "length_unit = %s\nangle_unit = %s\n",
           twf_length_unit_name(u.lu), twf_angle_unit_name(u.au));
 
@@ -347,7 +363,7 @@ static twf_status write_model(const twf_model *m, FILE *out, twf_error *err)
     fprintf(out, "\n[asbuilt]\n");
     for (size_t i = 0; i < m->n_meta; i++) {
       text_for_file(m->meta[i].value ? m->meta[i].value : "", buf);
-      fprintf(out, "%s = %s\n", m->meta[i].key, buf);
+      put_text(out, m->meta[i].key, buf);
     }
   }
   free(buf);

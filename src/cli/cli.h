@@ -93,6 +93,19 @@ void cli_run_start(int argc, char **argv);
  * that outputs of two runs mixed in one folder can be told apart. Set by
  * cli_write_outputs before the contents are written. */
 const char *cli_run_id(void);
+/* The run id that an output of twistfit carries in its leading comment
+ * lines ("; run_id: ID", "# run_id: ID" or "# run: ID"), into id (16 hex
+ * digits and a NUL). Returns 1 when found, 0 when the file has none
+ * (written by hand or by another tool), -1 when it cannot be opened (the
+ * reader of the file reports that). */
+int cli_file_run_id(const char *path, char id[17]);
+/* Two inputs that belong together (the model and the base pose file of
+ * verify --base): when both carry a run id and the ids differ, an error
+ * (status 3: inputs of different runs) unless allow (--allow-mixed-runs)
+ * or !is_error, else a warning. Files without a run id are not checked.
+ * Prints and returns an exit status. */
+int cli_check_same_run(const char *command, const char *path_a, const char *what_a, const char *path_b,
+                       const char *what_b, int allow, int is_error);
 /* Flush and close standard output at the end of main; on a write error
  * print the reason (once) and turn a success or a rejection into
  * TWF_EXIT_IO. Returns the final exit status. */

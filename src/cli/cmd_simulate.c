@@ -306,6 +306,10 @@ static int run_simulate(int argc, char **argv)
       status = cli_report_error(&err);
       goto done;
     }
+    /* any base pose places a simulated arm, but a true arm and a base
+     * pose that different runs wrote are more likely a slip: a warning */
+    if (true_path != NULL)
+      cli_check_same_run("simulate", true_path, "the true arm", base_path, "the base pose file", 0, 0);
   } else {
     twf_pose_identity(&B);
   }

@@ -28,6 +28,8 @@ static const char verify_help[] =
   CLI_INPUT_HELP
   "      --base FILE         use this base pose (instrument frame) instead of registering;\n"
   "                          every measured target then needs an offset in MODEL\n"
+  "      --allow-mixed-runs  use a --base file and a MODEL that different runs wrote\n"
+  "                          (default: refused when both carry a run id and they differ)\n"
   "      --fit-offsets       fit every target's offset in the registration (default:\n"
   "                          only targets declared without an offset)\n"
   "      --tol-rms X         acceptance: RMS position error at most X (length unit)\n"
@@ -48,7 +50,7 @@ static const char verify_help[] =
 
 enum {
   OPT_BASE = CLI_OPT_FIRST_FREE, OPT_FIT_OFFSETS, OPT_TOL_RMS, OPT_TOL_P95, OPT_TOL_MAX,
-  OPT_TOL_ANGLE, OPT_REPEAT_TOL, OPT_WORST, OPT_RESIDUALS, OPT_JSON
+  OPT_TOL_ANGLE, OPT_REPEAT_TOL, OPT_WORST, OPT_RESIDUALS, OPT_JSON, OPT_ALLOW_MIXED
 };
 
 typedef struct tolerance {
@@ -135,6 +137,7 @@ static int run_verify(int argc, char **argv)
     CLI_INPUT_LONGOPTS,
     { "base", required_argument, NULL, OPT_BASE },
     { "fit-offsets", no_argument, NULL, OPT_FIT_OFFSETS },
+    { "allow-mixed-runs", no_argument, NULL, OPT_ALLOW_MIXED },
     { "tol-rms", required_argument, NULL, OPT_TOL_RMS },
     { "tol-p95", required_argument, NULL, OPT_TOL_P95 },
     { "tol-max", required_argument, NULL, OPT_TOL_MAX },
@@ -150,7 +153,7 @@ static int run_verify(int argc, char **argv)
   const char *tol_text[4] = { NULL, NULL, NULL, NULL };
   static const char *const tol_opt[4] = { "--tol-rms", "--tol-p95", "--tol-max", "--tol-angle-max" };
   const char *base_path = NULL, *residuals_path = NULL, *json_path = NULL, *repeat_text = NULL;
-  int force = 0, fit_offsets = 0, opt, status = TWF_EXIT_OK, i;
+  int force = 0, fit_offsets = 0, allow_mixed = 0, opt, status = TWF_EXIT_OK, i;
   long worst = 5;
   cli_inputs in;
   cli_units u;
@@ -181,6 +184,7 @@ static int run_verify(int argc, char **argv)
     switch (opt) {
     case OPT_BASE: base_path = optarg; break;
     case OPT_FIT_OFFSETS: fit_offsets = 1; break;
+    case OPT_ALLOW_MIXED: allow_mixed = 1; break;
     case OPT_TOL_RMS: tol_text[0] = optarg; break;
     case OPT_TOL_P95: tol_text[1] = optarg; break;
     case OPT_TOL_MAX: tol_text[2] = optarg; break;
@@ -250,6 +254,10 @@ static int run_verify(int argc, char **argv)
       status = cli_report_error(&err);
       goto done;
     }
+    /* the base pose is in the frame of the model it was fitted with */
+    if ((status = cli_check_same_run("verify", in.model_path, "the model", base_path, "the base pose file",
+                                     allow_mixed, 1)) != 0)
+      goto done;
     for (k = 0; k < in.campaign->n_meas; k++)
       if (!in.model->targets[in.campaign->meas[k].target].offset_known) {
         twf_error_set(&err, TWF_ERR_MISSING, in.model_path, 0, 0,

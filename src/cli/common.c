@@ -18,6 +18,7 @@
 #include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/file.h>
 #include <sys/stat.h>
 #include <time.h>
 #include <unistd.h>
@@ -315,6 +316,76 @@ const char *cli_run_id(void)
 {
   run_id_compute(NULL);
   return run.id;
+}
+
+/* -------------------------------------------------- run id of an input */
+
+int cli_file_run_id(const char *path, char id[17])
+{
+  FILE *fp;
+  char line[512];
+  int lines = 0, found = 0;
+  struct stat st;
+  /* a pipe or a device was read once already: only files are read again */
+  if (path == NULL || strcmp(path, "-") == 0 || stat(path, &st) != 0 || !S_ISREG(st.st_mode) ||
+      (fp = fopen(path, "r")) == NULL)
+    return -1;
+  /* only the leading comment block: the outputs write the id there */
+  while (!found && lines++ < 256 && fgets(line, sizeof line, fp) != NULL) {
+    const char *p = line;
+    size_t n = strlen(line);
+    int whole = n > 0 && line[n - 1] == '\n';
+    while (*p == ' ' || *p == '\t')
+      p++;
+    if (*p == '\n' || *p == '\r' || *p == '\0')
+      goto next;
+    if (*p != ';' && *p != '#')
+      break;
+    for (p++; *p == ' ' || *p == '\t'; p++)
+      ;
+    if (strncmp(p, "run_id:", 7) == 0 || strncmp(p, "run:", 4) == 0) {
+      size_t k = 0;
+      for (p = strchr(p, ':') + 1; *p == ' ' || *p == '\t'; p++)
+        ;
+      while (k < 16 && isxdigit((unsigned char)p[k]))
+        k++;
+      if (k == 16 && !isxdigit((unsigned char)p[k])) {
+        memcpy(id, p, 16);
+        id[16] = '\0';
+        found = 1;
+      }
+    }
+  next:
+    /* the rest of a long line is not a line of its own */
+    while (!whole && fgets(line, sizeof line, fp) != NULL) {
+      n = strlen(line);
+      whole = n > 0 && line[n - 1] == '\n';
+    }
+  }
+  fclose(fp);
+  return found;
+}
+
+int cli_check_same_run(const char *command, const char *path_a, const char *what_a, const char *path_b,
+                       const char *what_b, int allow, int is_error)
+{
+  char a[17], b[17];
+  twf_error err;
+  (void)command;
+  if (cli_file_run_id(path_a, a) != 1 || cli_file_run_id(path_b, b) != 1 || strcmp(a, b) == 0)
+    return TWF_EXIT_OK;
+  if (allow || !is_error) {
+    if (cli_verbosity > 0)
+      fprintf(stderr, "twistfit: warning: %s: %s and %s %s come from different runs (run ids %s and %s)%s\n",
+              path_b, what_b, what_a, path_a, b, a, allow ? "; used together as --allow-mixed-runs asks" : "");
+    return TWF_EXIT_OK;
+  }
+  twf_error_clear(&err);
+  twf_error_set(&err, TWF_ERR_VALUE, path_b, 0, 0,
+                "give the files that one run wrote together, or pass --allow-mixed-runs to use "
+                "them anyway",
+                "%s and %s %s come from different runs (run ids %s and %s)", what_b, what_a, path_a, b, a);
+  return cli_report_error(&err);
 }
 
 /* ------------------------------------------------------- standard output */
@@ -696,8 +767,85 @@ static int commit_slot(staged *s, int force, twf_error *err)
   return TWF_EXIT_OK;
 }
 
+/* The folders of the outputs, locked while a set is committed (and, on a
+ * failure, undone), so that runs committing to the same folder do so one
+ * at a time: with --force two runs racing on the same outputs would
+ * otherwise interleave their renames and leave the model of one and the
+ * JSON of the other. flock(2) on the folder itself: no lock file is left
+ * behind, and the lock goes with the process however it ends. */
+typedef struct folder_lock {
+  int fd[MAX_OUTPUTS];
+  size_t n;
+} folder_lock;
+
+static int folder_cmp(const void *a, const void *b)
+{
+  const struct stat *x = a, *y = b;
+  if (x->st_dev != y->st_dev)
+    return x->st_dev < y->st_dev ? -1 : 1;
+  if (x->st_ino != y->st_ino)
+    return x->st_ino < y->st_ino ? -1 : 1;
+  return 0;
+}
+
+static void folders_lock(folder_lock *l, const staged *sl, size_t n)
+{
+  struct {
+    struct stat st; /* first: folder_cmp compares it */
+    int fd;
+  } f[MAX_OUTPUTS], t;
+  size_t i, k, m = 0;
+  l->n = 0;
+  for (i = 0; i < n; i++) {
+    char dir[4096];
+    const char *slash = strrchr(sl[i].path, '/');
+    int fd;
+    if (slash == NULL)
+      snprintf(dir, sizeof dir, ".");
+    else if (slash == sl[i].path)
+      snprintf(dir, sizeof dir, "/");
+    else
+      snprintf(dir, sizeof dir, "%.*s", (int)(slash - sl[i].path), sl[i].path);
+    fd = open(dir, O_RDONLY | O_DIRECTORY | O_CLOEXEC);
+    if (fd < 0)
+      continue; /* the commit reports what is wrong with the folder */
+    if (fstat(fd, &f[m].st) != 0) {
+      close(fd);
+      continue;
+    }
+    f[m].fd = fd;
+    for (k = 0; k < m && folder_cmp(&f[k].st, &f[m].st) != 0; k++)
+      ;
+    if (k < m)
+      close(fd); /* a folder already listed */
+    else
+      m++;
+  }
+  /* one order for every run, so that two runs never wait on each other */
+  for (i = 1; i < m; i++)
+    for (k = i; k > 0 && folder_cmp(&f[k - 1].st, &f[k].st) > 0; k--) {
+      t = f[k];
+      f[k] = f[k - 1];
+      f[k - 1] = t;
+    }
+  for (i = 0; i < m; i++) {
+    while (flock(f[i].fd, LOCK_EX) != 0 && errno == EINTR)
+      ;
+    /* a file system without locks (some network ones): commit unlocked,
+     * each output still without clobbering */
+    l->fd[l->n++] = f[i].fd;
+  }
+}
+
+static void folders_unlock(folder_lock *l)
+{
+  while (l->n > 0)
+    close(l->fd[--l->n]); /* closing the descriptor releases the lock */
+}
+
 int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *const *inputs)
 {
+  folder_lock lock = { { 0 }, 0 };
   twf_error err;
   sigset_t saved;
   int slot_of[MAX_OUTPUTS];
@@ -763,7 +911,8 @@ int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *cons
   }
   test_pause("staged");
 
-  /* commit: all or none */
+  /* commit: all or none, one run at a time per folder */
+  folders_lock(&lock, slots, n_files);
   for (i = 0; i < n_files; i++) {
     if ((st = commit_slot(&slots[i], force, &err)) != 0) {
       cli_report_error(&err);
@@ -778,6 +927,7 @@ int cli_write_outputs(const cli_put *puts, size_t n, int force, const char *cons
   for (i = 0; i < n_files; i++)
     if (slots[i].has_old)
       unlink(slots[i].old);
+  folders_unlock(&lock);
   free_slots();
   restore_handlers();
   sigprocmask(SIG_SETMASK, &saved, NULL);
@@ -798,6 +948,7 @@ fail:
     if (kept)
       committed = 0;
   }
+  folders_unlock(&lock);
   if (committed > 0)
     fprintf(stderr, "twistfit: the outputs already in place were taken back: no output of this "
                     "run remains\n");

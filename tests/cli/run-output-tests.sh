@@ -183,6 +183,113 @@ else
   bad $name "the run did not reach the pause"
 fi
 
+# Four runs on the same outputs, all stopped once their set is staged and
+# then let go together, so that their commits race whatever the load (no
+# timing is assumed: each run is seen stopped before any goes on). Without
+# --force exactly one wins and the others fail with status 4 and leave
+# nothing; with --force every run succeeds and the set left is whole and of
+# one run (one run id in all four files, and verify --base accepts it). A
+# last round lets four --force runs go free, unpaused.
+set_ids() {
+  (cd "$dir" && { sed -n 's/^; run_id: //p' a.ini b.ini; sed -n 's/^# run_id: //p' r.csv;
+                  sed -n 's/^ *"run_id": "\([0-9a-f]*\)".*/\1/p' c.json; } | sort | uniq -c |
+               sed 's/^ *//')
+}
+stray() { ls -A "$dir" | grep -c '\.tmp\.\|\.old$'; }
+# Start run $1 of four, stopped at "staged" unless $2 is "free".
+start_one() {
+  k=$1 mode=$2
+  shift 2
+  rm -f "$logs/run$k.err"
+  if [ "$mode" = free ]; then
+    (cd "$dir" && exec "$TWISTFIT" "$@" >/dev/null 2>"$logs/run$k.err") &
+  else
+    (cd "$dir" && TWF_TEST_PAUSE=staged exec "$TWISTFIT" "$@" >/dev/null 2>"$logs/run$k.err") &
+  fi
+  eval "pid$k=\$!"
+}
+is_stopped() {
+  grep -q "test pause: staged" "$logs/run$1.err" 2>/dev/null &&
+    [ "$(sed 's/^.*) //' "/proc/$2/stat" 2>/dev/null | cut -c1)" = T ]
+}
+four_runs() {
+  mode=$1
+  shift
+  for k in 1 2 3 4; do start_one $k "$mode" "$@"; done
+  if [ "$mode" != free ]; then
+    n=0
+    for k in 1 2 3 4; do
+      eval "p=\$pid$k"
+      until is_stopped $k "$p"; do
+        n=$((n + 1))
+        if [ $n -gt 2400 ] || ! kill -0 "$p" 2>/dev/null; then
+          for j in 1 2 3 4; do eval "kill -KILL \$pid$j" 2>/dev/null; done
+          wait
+          return 1
+        fi
+        sleep 0.05
+      done
+    done
+    for k in 1 2 3 4; do eval "kill -CONT \$pid$k"; done
+  fi
+  statuses=
+  for k in 1 2 3 4; do eval "wait \$pid$k"; statuses="$statuses $?"; done
+  return 0
+}
+for force in "" --force; do
+  name=four-runs-one-set${force:+-force}
+  fresh
+  # shellcheck disable=SC2086
+  if ! four_runs paused calibrate "$MODEL" "$DATA" $ALL $force; then
+    bad $name "the runs did not all reach the pause"; continue
+  fi
+  ids=$(set_ids)
+  wins=$(echo $statuses | tr ' ' '\n' | grep -c '^0$')
+  fails=$(echo $statuses | tr ' ' '\n' | grep -c '^4$')
+  if [ -z "$force" ] && { [ "$wins" != 1 ] || [ "$fails" != 3 ]; }; then
+    bad $name "exit statuses$statuses: expected one 0 and three 4"
+  elif [ -n "$force" ] && [ "$wins" != 4 ]; then
+    bad $name "exit statuses$statuses: expected 0 for every run"
+  elif [ "$(echo "$ids" | wc -l)" != 1 ] || [ "${ids%% *}" != 4 ]; then
+    bad $name "the outputs hold the run ids: $(echo $ids)"
+  elif [ "$(stray)" != 0 ]; then bad $name "temporary files left"
+  elif ! (cd "$dir" && "$TWISTFIT" verify a.ini "$DATA" --base b.ini >/dev/null 2>"$logs/verify.err"); then
+    bad $name "verify refused the set"
+  else ok $name; fi
+done
+name=four-free-runs-force
+fresh
+# shellcheck disable=SC2086
+four_runs free calibrate "$MODEL" "$DATA" $ALL --force
+ids=$(set_ids)
+if [ "$(echo $statuses | tr ' ' '\n' | grep -c '^0$')" != 4 ]; then
+  bad $name "exit statuses$statuses: expected 0 for every run"
+elif [ "$(echo "$ids" | wc -l)" != 1 ] || [ "${ids%% *}" != 4 ]; then
+  bad $name "the outputs hold the run ids: $(echo $ids)"
+elif [ "$(stray)" != 0 ]; then bad $name "temporary files left"
+else ok $name; fi
+
+# verify --base refuses a base pose file of another run than the model;
+# --allow-mixed-runs takes them with a warning.
+name=verify-mixed-runs
+fresh
+if (cd "$dir" && "$TWISTFIT" -q calibrate "$MODEL" "$DATA" -o a.ini --base-output b.ini >/dev/null &&
+    "$TWISTFIT" -q calibrate "$MODEL" "$DATA" -o a2.ini --base-output b2.ini >/dev/null); then
+  (cd "$dir" && "$TWISTFIT" verify a.ini "$DATA" --base b2.ini >/dev/null 2>"$logs/mixed.err")
+  got=$?
+  (cd "$dir" && "$TWISTFIT" verify a.ini "$DATA" --base b2.ini --allow-mixed-runs >/dev/null 2>"$logs/allowed.err")
+  allowed=$?
+  if [ $got != 3 ]; then bad $name "mixed set: exit status $got, expected 3"
+  elif ! grep -q "come from different runs" "$logs/mixed.err"; then bad $name "no message"
+  elif [ $allowed != 0 ] || ! grep -q "warning: .*different runs" "$logs/allowed.err"; then
+    bad $name "--allow-mixed-runs: exit status $allowed, or no warning"
+  elif ! (cd "$dir" && "$TWISTFIT" verify a2.ini "$DATA" --base b2.ini >/dev/null); then
+    bad $name "a consistent set was refused"
+  else ok $name; fi
+else
+  bad $name "the calibrations failed"
+fi
+
 # fk writes through the same layer.
 name=fk-signal
 fresh

@@ -28,24 +28,35 @@ static void build(double *J, twf_test_rng *rng)
   }
 }
 
-START_TEST(test_walk_fixes_dependent_columns)
+/* The Givens factor R (when not NULL) and the normal matrix A of J. */
+static void factor_and_normal(const double *J, double *R, double *A)
 {
-  double J[ROWS * P], R[P * P], A[P * P], rel[P], row[P];
-  unsigned char keep[P];
-  size_t order[P] = { 0, 1, 2, 3, 4, 5, 6, 7 }, i, a, b;
-  size_t order_rev[P] = { 7, 6, 5, 4, 3, 2, 1, 0 };
-  twf_test_rng rng;
-  twf_test_rng_init(&rng, twf_test_seed(2385));
-  build(J, &rng);
-  memset(R, 0, sizeof R);
-  memset(A, 0, sizeof A);
+  double row[P];
+  size_t i, a, b;
+  if (R != NULL)
+    memset(R, 0, P * P * sizeof *R);
+  memset(A, 0, P * P * sizeof *A);
   for (i = 0; i < ROWS; i++) {
-    memcpy(row, J + i * P, sizeof row);
-    twf_ident_qr_add_row(R, P, row);
+    if (R != NULL) {
+      memcpy(row, J + i * P, sizeof row);
+      twf_ident_qr_add_row(R, P, row);
+    }
     for (a = 0; a < P; a++)
       for (b = 0; b < P; b++)
         A[a * P + b] += J[i * P + a] * J[i * P + b];
   }
+}
+
+START_TEST(test_walk_fixes_dependent_columns)
+{
+  double J[ROWS * P], R[P * P], A[P * P], rel[P];
+  unsigned char keep[P];
+  size_t order[P] = { 0, 1, 2, 3, 4, 5, 6, 7 }, a;
+  size_t order_rev[P] = { 7, 6, 5, 4, 3, 2, 1, 0 };
+  twf_test_rng rng;
+  twf_test_rng_init(&rng, twf_test_seed(2385));
+  build(J, &rng);
+  factor_and_normal(J, R, A);
   /* R^T R reproduces the normal matrix */
   {
     double N[P * P];
@@ -83,24 +94,16 @@ START_TEST(test_walk_margin_over_draws)
 {
   enum { DRAWS = 32 };
   static double J[ROWS * P];
-  double R[P * P], A[P * P], rel[P], row[P];
+  double R[P * P], A[P * P], rel[P];
   unsigned char keep[P];
-  size_t order[P] = { 0, 1, 2, 3, 4, 5, 6, 7 }, i, a, b, positive = 0;
+  size_t order[P] = { 0, 1, 2, 3, 4, 5, 6, 7 }, i, positive = 0;
   int d;
   twf_test_rng rng;
   twf_test_rng_init(&rng, twf_test_seed(2386));
   for (d = 0; d < DRAWS; d++) {
     static const size_t dep[2] = { 5, 7 };
     build(J, &rng);
-    memset(R, 0, sizeof R);
-    memset(A, 0, sizeof A);
-    for (i = 0; i < ROWS; i++) {
-      memcpy(row, J + i * P, sizeof row);
-      twf_ident_qr_add_row(R, P, row);
-      for (a = 0; a < P; a++)
-        for (b = 0; b < P; b++)
-          A[a * P + b] += J[i * P + a] * J[i * P + b];
-    }
+    factor_and_normal(J, R, A);
     ck_assert_int_eq(twf_ident_walk_r(R, P, NULL, order, P, 1e-6, keep, rel), 0);
     ck_assert_msg(rel[5] < 1e-12 && rel[7] < 1e-12, "draw %d: dependent parts on R %.3g %.3g", d, rel[5],
                   rel[7]);
@@ -122,15 +125,11 @@ START_TEST(test_explain_and_inverse)
 {
   double J[ROWS * P], A[P * P], cov[P * P], coef[3];
   unsigned char keep[P] = { 1, 1, 1, 1, 1, 0, 1, 0 };
-  size_t idx[3], i, a, b, n;
+  size_t idx[3], a, b, n;
   twf_test_rng rng;
   twf_test_rng_init(&rng, 77);
   build(J, &rng);
-  memset(A, 0, sizeof A);
-  for (i = 0; i < ROWS; i++)
-    for (a = 0; a < P; a++)
-      for (b = 0; b < P; b++)
-        A[a * P + b] += J[i * P + a] * J[i * P + b];
+  factor_and_normal(J, NULL, A);
   /* column 5 = c0 + 2 c1: the explanation finds exactly that */
   n = twf_ident_explain(A, P, keep, 5, 3, idx, coef);
   ck_assert_uint_eq(n, 2);
@@ -163,7 +162,7 @@ START_TEST(test_explain_ties_by_index)
   static double J[ROWS * P];
   double A[P * P], coef[3];
   unsigned char keep[P] = { 1, 1, 1, 1, 1, 0, 1, 0 };
-  size_t idx[3], i, a, b, n;
+  size_t idx[3], i, a, n;
   int d;
   twf_test_rng rng;
   twf_test_rng_init(&rng, twf_test_seed(78));
@@ -175,11 +174,7 @@ START_TEST(test_explain_ties_by_index)
       r[5] = 0.0;
       r[7] = r[0] - r[1] + r[2] - r[3] + r[4] + r[6];
     }
-    memset(A, 0, sizeof A);
-    for (i = 0; i < ROWS; i++)
-      for (a = 0; a < P; a++)
-        for (b = 0; b < P; b++)
-          A[a * P + b] += J[i * P + a] * J[i * P + b];
+    factor_and_normal(J, NULL, A);
     n = twf_ident_explain(A, P, keep, 7, 3, idx, coef);
     ck_assert_uint_eq(n, 3);
     for (i = 0; i < 3; i++) {

@@ -24,61 +24,6 @@
 /* Helpers                                                             */
 /* ------------------------------------------------------------------ */
 
-static char tmpdir[256];
-
-static void make_tmpdir(void)
-{
-  snprintf(tmpdir, sizeof tmpdir, "/tmp/check_campaign.XXXXXX");
-  ck_assert_ptr_nonnull(mkdtemp(tmpdir));
-}
-
-static const char *tmppath(const char *name)
-{
-  static char buf[2][512];
-  static int k;
-  k = !k;
-  snprintf(buf[k], sizeof buf[k], "%s/%s", tmpdir, name);
-  return buf[k];
-}
-
-static void remove_tmpdir(void)
-{
-  DIR *d = opendir(tmpdir);
-  struct dirent *e;
-  if (d == NULL)
-    return;
-  while ((e = readdir(d)) != NULL)
-    if (strcmp(e->d_name, ".") && strcmp(e->d_name, ".."))
-      remove(tmppath(e->d_name));
-  closedir(d);
-  rmdir(tmpdir);
-}
-
-static void write_file(const char *path, const char *text)
-{
-  FILE *f = fopen(path, "wb");
-  ck_assert_ptr_nonnull(f);
-  fputs(text, f);
-  ck_assert_int_eq(fclose(f), 0);
-}
-
-static char *slurp(const char *path)
-{
-  FILE *f = fopen(path, "rb");
-  char *buf;
-  long n;
-  ck_assert_ptr_nonnull(f);
-  fseek(f, 0, SEEK_END);
-  n = ftell(f);
-  fseek(f, 0, SEEK_SET);
-  buf = malloc((size_t)n + 1);
-  ck_assert_ptr_nonnull(buf);
-  ck_assert_uint_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
-  buf[n] = '\0';
-  fclose(f);
-  return buf;
-}
-
 static const char *data(const char *name)
 {
   static char buf[2][1024];
@@ -281,24 +226,24 @@ START_TEST(test_pair_set_precedence)
 {
   twf_model *m = tf6s();
   twf_campaign *c;
-  make_tmpdir();
-  write_file(tmppath("j.csv"),
+  twf_test_tmpdir_make("check_campaign");
+  twf_test_write_file(twf_test_tmppath("j.csv"),
              "pose,j1,j2,j3,j4,j5,j6,set\n"
              "a,1.5,2.5,3.5,4.5,5.5,6.5,check\n"
              "b,-1.5,-2.5,-3.5,-4.5,-5.5,-6.5,\n");
-  write_file(tmppath("p.csv"),
+  twf_test_write_file(twf_test_tmppath("p.csv"),
              "pose,target,x,y,z,set\n"
              "a,T1,100.25,200.5,300.75,\n"
              "a,T2,101.25,201.5,301.75,fit\n"
              "b,T1,102.25,202.5,302.75,\n"
              "b,T3,103.25,203.5,303.75,check\n");
-  c = read_pair_ok(tmppath("j.csv"), tmppath("p.csv"), m, NULL, NULL);
+  c = read_pair_ok(twf_test_tmppath("j.csv"), twf_test_tmppath("p.csv"), m, NULL, NULL);
   ck_assert_int_eq(c->meas[0].set, TWF_SET_CHECK); /* from the pose */
   ck_assert_int_eq(c->meas[1].set, TWF_SET_FIT);   /* the point's own */
   ck_assert_int_eq(c->meas[2].set, TWF_SET_FIT);   /* default */
   ck_assert_int_eq(c->meas[3].set, TWF_SET_CHECK);
   twf_campaign_free(c);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -335,12 +280,12 @@ END_TEST
 START_TEST(test_bom_crlf_comments)
 {
   twf_model *m = tf6s();
-  char *text = slurp(data("tests/data/campaign-one.csv"));
+  char *text = twf_test_slurp(data("tests/data/campaign-one.csv"));
   char *out = malloc(2 * strlen(text) + 16), *o = out;
   const char *s;
   twf_campaign *a, *b;
   twf_error err;
-  make_tmpdir();
+  twf_test_tmpdir_make("check_campaign");
   memcpy(o, "\xEF\xBB\xBF", 3);
   o += 3;
   for (s = text; *s; s++) {
@@ -355,9 +300,9 @@ START_TEST(test_bom_crlf_comments)
     char *q = strstr(out, "\r\n\r\np04");
     ck_assert_ptr_nonnull(p);
     ck_assert_ptr_nonnull(q);
-    write_file(tmppath("crlf.csv"), "");
+    twf_test_write_file(twf_test_tmppath("crlf.csv"), "");
     {
-      FILE *f = fopen(tmppath("crlf.csv"), "wb");
+      FILE *f = fopen(twf_test_tmppath("crlf.csv"), "wb");
       fwrite(out, 1, (size_t)(p - out), f);
       fputs("  \t", f);
       fwrite(p, 1, (size_t)(q - p) + 2, f);
@@ -367,15 +312,15 @@ START_TEST(test_bom_crlf_comments)
     }
   }
   a = read_ok(data("tests/data/campaign-one.csv"), m, NULL, NULL);
-  b = read_ok(tmppath("crlf.csv"), m, NULL, NULL);
+  b = read_ok(twf_test_tmppath("crlf.csv"), m, NULL, NULL);
   assert_same(a, b, 0.0, 1);
   /* An error after CRLF lines is still reported at the right line. */
   {
     char *bad = strstr(out, "-101.5,-305.25,841.3370");
     ck_assert_ptr_nonnull(bad);
     memcpy(bad, "-101.5,-305.25,841.33x0", 23);
-    write_file(tmppath("crlf-bad.csv"), out);
-    ck_assert_ptr_null(twf_campaign_read(tmppath("crlf-bad.csv"), m, NULL, NULL, &err));
+    twf_test_write_file(twf_test_tmppath("crlf-bad.csv"), out);
+    ck_assert_ptr_null(twf_campaign_read(twf_test_tmppath("crlf-bad.csv"), m, NULL, NULL, &err));
     ck_assert_int_eq(err.status, TWF_ERR_VALUE);
     ck_assert_int_eq(err.line, 16);
     ck_assert_int_eq(err.column, 9);
@@ -384,7 +329,7 @@ START_TEST(test_bom_crlf_comments)
   twf_campaign_free(b);
   free(text);
   free(out);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -413,7 +358,7 @@ START_TEST(test_one_unit_conversion)
   twf_campaign *c;
   char text[1024];
   size_t j;
-  make_tmpdir();
+  twf_test_tmpdir_make("check_campaign");
   snprintf(text, sizeof text, "# units: length=mm angle=mrad\npose,target");
   for (j = 0; j < m->n_joints; j++)
     snprintf(text + strlen(text), sizeof text - strlen(text), ",%s", m->joints[j].name);
@@ -422,8 +367,8 @@ START_TEST(test_one_unit_conversion)
   for (j = 0; j < m->n_joints; j++)
     snprintf(text + strlen(text), sizeof text - strlen(text), ",3.1");
   snprintf(text + strlen(text), sizeof text - strlen(text), ",3.1,0,-3.1,0.0031\n");
-  write_file(tmppath("u.csv"), text);
-  c = read_ok(tmppath("u.csv"), m, NULL, NULL);
+  twf_test_write_file(twf_test_tmppath("u.csv"), text);
+  c = read_ok(twf_test_tmppath("u.csv"), m, NULL, NULL);
   for (j = 0; j < m->n_joints; j++)
     ck_assert(c->q[j] == (m->joints[j].type == TWF_JOINT_PRISMATIC
                               ? twf_length_to_si(3.1, TWF_LENGTH_MM)
@@ -433,7 +378,7 @@ START_TEST(test_one_unit_conversion)
   ck_assert(c->meas[0].sigma == twf_length_to_si(0.0031, TWF_LENGTH_MM));
   twf_campaign_free(c);
   twf_model_free(m);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
 }
 END_TEST
 
@@ -574,12 +519,12 @@ static void roundtrip(const twf_model *m, const twf_campaign *c,
   twf_error err;
   twf_warnings w;
   twf_campaign *back;
-  FILE *f = fopen(tmppath("rt.csv"), "w");
+  FILE *f = fopen(twf_test_tmppath("rt.csv"), "w");
   ck_assert_ptr_nonnull(f);
   ck_assert_int_eq(twf_campaign_write(c, m, lu, au, f, &err), TWF_OK);
   ck_assert_int_eq(fclose(f), 0);
   twf_warnings_init(&w);
-  back = read_ok(tmppath("rt.csv"), m, NULL, &w);
+  back = read_ok(twf_test_tmppath("rt.csv"), m, NULL, &w);
   ck_assert_uint_eq(w.count, 0);
   /* 17 significant digits and one multiplication by the unit each way:
    * within a few ulp. */
@@ -597,7 +542,7 @@ START_TEST(test_roundtrip)
   twf_test_rng rng;
   size_t a, u;
   twf_test_rng_init(&rng, seed);
-  make_tmpdir();
+  twf_test_tmpdir_make("check_campaign");
   for (a = 0; a < 3; a++) {
     twf_model *m = test_arm_model(arms[a]);
     twf_campaign *c = random_campaign(m, &rng);
@@ -617,7 +562,7 @@ START_TEST(test_roundtrip)
     twf_campaign_free(c);
     twf_model_free(m);
   }
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
 }
 END_TEST
 
@@ -628,7 +573,7 @@ START_TEST(test_write_groups_by_pose)
   twf_error err;
   FILE *f;
   size_t j;
-  make_tmpdir();
+  twf_test_tmpdir_make("check_campaign");
   snprintf(c->pose_ids[0], TWF_NAME_MAX, "#first");
   snprintf(c->pose_ids[1], TWF_NAME_MAX, " second");
   for (j = 0; j < 6; j++) {
@@ -639,10 +584,10 @@ START_TEST(test_write_groups_by_pose)
   c->meas[0].pose = 1, c->meas[0].target = 0, c->meas[0].pos[0] = 1.25;
   c->meas[1].pose = 0, c->meas[1].target = 1, c->meas[1].pos[0] = 2.25;
   c->meas[2].pose = 1, c->meas[2].target = 2, c->meas[2].pos[0] = 3.25;
-  f = fopen(tmppath("g.csv"), "w");
+  f = fopen(twf_test_tmppath("g.csv"), "w");
   ck_assert_int_eq(twf_campaign_write(c, m, TWF_LENGTH_MM, TWF_ANGLE_DEG, f, &err), TWF_OK);
   fclose(f);
-  back = read_ok(tmppath("g.csv"), m, NULL, NULL);
+  back = read_ok(twf_test_tmppath("g.csv"), m, NULL, NULL);
   ck_assert_uint_eq(back->n_poses, 2);
   /* Ids starting with '#' or a blank are quoted, so they survive. */
   ck_assert_str_eq(back->pose_ids[0], "#first");
@@ -656,7 +601,7 @@ START_TEST(test_write_groups_by_pose)
 
   /* A pose without measurement cannot be written in the one-file form. */
   c->meas[1].pose = 1;
-  f = fopen(tmppath("g2.csv"), "w");
+  f = fopen(twf_test_tmppath("g2.csv"), "w");
   ck_assert_int_eq(twf_campaign_write(c, m, TWF_LENGTH_MM, TWF_ANGLE_DEG, f, &err),
                    TWF_ERR_INVALID);
   ck_assert_ptr_nonnull(strstr(err.message, "'#first' has no measurement"));
@@ -666,7 +611,7 @@ START_TEST(test_write_groups_by_pose)
                    TWF_ERR_INVALID);
   fclose(f);
   twf_campaign_free(c);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -726,20 +671,20 @@ START_TEST(test_limit_error_and_tolerance)
   twf_campaign_free(c);
   twf_warnings_clear(&w);
   /* Two-file form: the error points into the joints file. */
-  make_tmpdir();
-  write_file(tmppath("j.csv"), "pose,j6,j5,j4,j3,j2,j1\n"
+  twf_test_tmpdir_make("check_campaign");
+  twf_test_write_file(twf_test_tmppath("j.csv"), "pose,j6,j5,j4,j3,j2,j1\n"
                                "a,1.5,2.5,3.5,4.5,5.5,6.5\n"
                                "b,-1.5,-2.5,-3.5,-4.5,-5.5,-171.25\n");
-  write_file(tmppath("p.csv"), "pose,target,x,y,z\na,T1,1.5,2.5,3.5\nb,T1,1.5,2.5,3.5\n");
+  twf_test_write_file(twf_test_tmppath("p.csv"), "pose,target,x,y,z\na,T1,1.5,2.5,3.5\nb,T1,1.5,2.5,3.5\n");
   o = twf_campaign_default_options();
   o.limits_are_errors = 1;
-  ck_assert_ptr_null(twf_campaign_read_pair(tmppath("j.csv"), tmppath("p.csv"), m, &o, NULL, &err));
+  ck_assert_ptr_null(twf_campaign_read_pair(twf_test_tmppath("j.csv"), twf_test_tmppath("p.csv"), m, &o, NULL, &err));
   ck_assert_int_eq(err.status, TWF_ERR_LIMIT);
-  ck_assert_str_eq(err.file, tmppath("j.csv"));
+  ck_assert_str_eq(err.file, twf_test_tmppath("j.csv"));
   ck_assert_int_eq(err.line, 3);
   ck_assert_int_eq(err.column, 7);
   ck_assert_ptr_nonnull(strstr(err.message, "column 'j1': -171.25 deg at pose 'b'"));
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -814,15 +759,15 @@ START_TEST(test_prismatic_units_hint)
   twf_warnings w;
   twf_campaign *c;
   int k;
-  make_tmpdir();
+  twf_test_tmpdir_make("check_campaign");
   /* tf4p's j3 strokes 0..200 mm; millimetres under length=m. */
-  write_file(tmppath("mm.csv"),
+  twf_test_write_file(twf_test_tmppath("mm.csv"),
              "# units: length=m angle=deg\n"
              "pose,target,j1,j2,j3,j4,x,y,z\n"
              "a,T1,12.5,-33.25,112.5,45.5,1.25,0.5,0.75\n"
              "b,T2,-42.5,63.25,37.75,-145.5,1.5,0.25,0.5\n");
   twf_warnings_init(&w);
-  c = read_ok(tmppath("mm.csv"), m, NULL, &w);
+  c = read_ok(twf_test_tmppath("mm.csv"), m, NULL, &w);
   ck_assert_uint_eq(w.count, 1);
   k = warned(&w, "joint 'j3': 2 of 2 values lie outside its limits [0, 0.2] m");
   ck_assert(k);
@@ -831,7 +776,7 @@ START_TEST(test_prismatic_units_hint)
   ck_assert_close(c->q[2], 112.5, 1e-15);
   twf_campaign_free(c);
   twf_warnings_clear(&w);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -857,7 +802,7 @@ static const char *base_name(const char *p)
 START_TEST(test_bad_campaigns)
 {
   twf_model *m = tf6s();
-  char *table = slurp(data("tests/bad-campaigns/expect.tsv"));
+  char *table = twf_test_slurp(data("tests/bad-campaigns/expect.tsv"));
   char *line, *save = NULL, report[8192] = "";
   size_t n_cases = 0, n_fail = 0;
   char listed[16384] = "|";
@@ -988,27 +933,27 @@ START_TEST(test_many_poses)
   size_t p;
   twf_campaign *c;
   twf_error err;
-  make_tmpdir();
-  f = fopen(tmppath("many.csv"), "w");
+  twf_test_tmpdir_make("check_campaign");
+  f = fopen(twf_test_tmppath("many.csv"), "w");
   fputs("pose,target,j1,j2,j3,j4,j5,j6,x,y,z\n", f);
   for (p = 0; p < 600; p++)
     fprintf(f, "pose-%zu,T%zu,%.3f,1.5,2.5,3.5,4.5,5.5,%zu.25,0.5,0.75\n", p, 1 + p % 3,
             -160.0 + 0.5 * (double)p, p);
   fclose(f);
-  c = read_ok(tmppath("many.csv"), m, NULL, NULL);
+  c = read_ok(twf_test_tmppath("many.csv"), m, NULL, NULL);
   ck_assert_uint_eq(c->n_poses, 600);
   ck_assert_str_eq(c->pose_ids[599], "pose-599");
   ck_assert_close(c->meas[437].pos[0], 437.25e-3, 1e-15);
   ck_assert_close(c->q[437 * 6], (-160.0 + 218.5) * DEG, 1e-15);
   twf_campaign_free(c);
-  f = fopen(tmppath("many.csv"), "a");
+  f = fopen(twf_test_tmppath("many.csv"), "a");
   fputs("pose-7,T2,-156.5,1.5,2.5,3.5,4.5,5.5,1,2,3\n", f);
   fclose(f);
-  ck_assert_ptr_null(twf_campaign_read(tmppath("many.csv"), m, NULL, NULL, &err));
+  ck_assert_ptr_null(twf_campaign_read(twf_test_tmppath("many.csv"), m, NULL, NULL, &err));
   ck_assert_int_eq(err.status, TWF_ERR_DUPLICATE);
   ck_assert_int_eq(err.line, 602);
   ck_assert_ptr_nonnull(strstr(err.message, "pose 'pose-7' target 'T2' appears twice (first at line 9)"));
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -1021,7 +966,7 @@ END_TEST
  * tests/data/campaign-one.csv, with LF or CR LF line ends. */
 static void write_with_long_comment(const char *path, size_t n, int crlf)
 {
-  char *text = slurp(data("tests/data/campaign-one.csv"));
+  char *text = twf_test_slurp(data("tests/data/campaign-one.csv"));
   FILE *f = fopen(path, "wb");
   size_t k;
   ck_assert_ptr_nonnull(f);
@@ -1042,22 +987,22 @@ START_TEST(test_line_limit)
   twf_model *m = tf6s();
   twf_campaign *c;
   twf_error err;
-  make_tmpdir();
-  write_with_long_comment(tmppath("at-limit.csv"), TWF_CAMPAIGN_LINE_MAX, 0);
-  c = read_ok(tmppath("at-limit.csv"), m, NULL, NULL);
+  twf_test_tmpdir_make("check_campaign");
+  write_with_long_comment(twf_test_tmppath("at-limit.csv"), TWF_CAMPAIGN_LINE_MAX, 0);
+  c = read_ok(twf_test_tmppath("at-limit.csv"), m, NULL, NULL);
   twf_campaign_free(c);
-  write_with_long_comment(tmppath("at-limit-crlf.csv"), TWF_CAMPAIGN_LINE_MAX, 1);
-  c = read_ok(tmppath("at-limit-crlf.csv"), m, NULL, NULL);
+  write_with_long_comment(twf_test_tmppath("at-limit-crlf.csv"), TWF_CAMPAIGN_LINE_MAX, 1);
+  c = read_ok(twf_test_tmppath("at-limit-crlf.csv"), m, NULL, NULL);
   twf_campaign_free(c);
-  write_with_long_comment(tmppath("over.csv"), TWF_CAMPAIGN_LINE_MAX + 1, 0);
-  ck_assert_ptr_null(twf_campaign_read(tmppath("over.csv"), m, NULL, NULL, &err));
+  write_with_long_comment(twf_test_tmppath("over.csv"), TWF_CAMPAIGN_LINE_MAX + 1, 0);
+  ck_assert_ptr_null(twf_campaign_read(twf_test_tmppath("over.csv"), m, NULL, NULL, &err));
   ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
   ck_assert_int_eq(err.line, 1);
   ck_assert_str_eq(err.message, "line is longer than 65536 characters: reading stopped there");
   ck_assert(err.hint[0] != '\0');
   /* CR CR LF (a CR LF file converted once more) is not CR-only. */
   {
-    char *text = slurp(data("tests/data/campaign-one.csv")), *o;
+    char *text = twf_test_slurp(data("tests/data/campaign-one.csv")), *o;
     char *out = malloc(3 * strlen(text) + 1);
     const char *s;
     for (s = text, o = out; *s; s++) {
@@ -1068,15 +1013,15 @@ START_TEST(test_line_limit)
       *o++ = *s;
     }
     *o = '\0';
-    write_file(tmppath("crcrlf.csv"), out);
-    c = read_ok(tmppath("crcrlf.csv"), m, NULL, NULL);
+    twf_test_write_file(twf_test_tmppath("crcrlf.csv"), out);
+    c = read_ok(twf_test_tmppath("crcrlf.csv"), m, NULL, NULL);
     twf_campaign_free(c);
     free(out);
     free(text);
   }
   /* A long data line after good ones: its own line number. */
   {
-    FILE *f = fopen(tmppath("long-row.csv"), "wb");
+    FILE *f = fopen(twf_test_tmppath("long-row.csv"), "wb");
     size_t k;
     fputs("pose,target,j1,j2,j3,j4,j5,j6,x,y,z\n"
           "p01,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1503.2871,-212.4409,987.1153\n"
@@ -1085,10 +1030,10 @@ START_TEST(test_line_limit)
       fputc('0', f);
     fclose(f);
   }
-  ck_assert_ptr_null(twf_campaign_read(tmppath("long-row.csv"), m, NULL, NULL, &err));
+  ck_assert_ptr_null(twf_campaign_read(twf_test_tmppath("long-row.csv"), m, NULL, NULL, &err));
   ck_assert_int_eq(err.status, TWF_ERR_SYNTAX);
   ck_assert_int_eq(err.line, 3);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -1099,7 +1044,7 @@ START_TEST(test_size_limit)
 {
   twf_model *m = tf6s();
   twf_campaign_options o = twf_campaign_default_options();
-  char *text = slurp(data("tests/data/campaign-one.csv"));
+  char *text = twf_test_slurp(data("tests/data/campaign-one.csv"));
   size_t n = strlen(text);
   char want[128];
   twf_campaign *c;
@@ -1144,13 +1089,13 @@ START_TEST(test_rowlike_comment_warns)
   twf_warnings w;
   twf_campaign *c;
   char text[2048];
-  make_tmpdir();
+  twf_test_tmpdir_make("check_campaign");
   snprintf(text, sizeof text, "%s# checked by the operator\n# pose,target,x\n"
            "#p09,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1503.2871,-212.4409\n%s"
            "\"#p04\",T2,1,2,3,4,5,6,1,2,3\n", head, row3);
-  write_file(tmppath("plain.csv"), text);
+  twf_test_write_file(twf_test_tmppath("plain.csv"), text);
   twf_warnings_init(&w);
-  c = read_ok(tmppath("plain.csv"), m, NULL, &w);
+  c = read_ok(twf_test_tmppath("plain.csv"), m, NULL, &w);
   ck_assert_uint_eq(c->n_poses, 4);
   ck_assert_str_eq(c->pose_ids[3], "#p04");
   ck_assert_uint_eq(w.count, 0);
@@ -1159,9 +1104,9 @@ START_TEST(test_rowlike_comment_warns)
 
   snprintf(text, sizeof text, "%s#p05,T1,12.5,-33.25,41.125,-7.75,28.375,93.5,1,2,3\n%s"
            "  # p06 , T2 ,1,2,3,4,5,6, 1 , 2 , 3 \n", head, row3);
-  write_file(tmppath("rowlike.csv"), text);
+  twf_test_write_file(twf_test_tmppath("rowlike.csv"), text);
   twf_warnings_init(&w);
-  c = read_ok(tmppath("rowlike.csv"), m, NULL, &w);
+  c = read_ok(twf_test_tmppath("rowlike.csv"), m, NULL, &w);
   ck_assert_uint_eq(c->n_poses, 3);
   ck_assert_uint_eq(w.count, 1);
   ck_assert_int_eq(w.items[0].line, 4);
@@ -1171,7 +1116,7 @@ START_TEST(test_rowlike_comment_warns)
                                                    "first with pose id '#p05'"));
   twf_campaign_free(c);
   twf_warnings_clear(&w);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -1191,7 +1136,7 @@ START_TEST(test_units_against_reach)
   size_t k;
   char *text, *u;
   FILE *f;
-  make_tmpdir();
+  twf_test_tmpdir_make("check_campaign");
   twf_pose_identity(&I);
   so.n_poses = 20;
   c = twf_simulate_campaign(m, &I, &so, &err);
@@ -1205,23 +1150,23 @@ START_TEST(test_units_against_reach)
       maxabs = fmax(maxabs, fabs(c->meas[k].pos[a]));
     }
   ck_assert(maxabs < 1.0); /* below 1000 mm */
-  f = fopen(tmppath("mm.csv"), "w");
+  f = fopen(twf_test_tmppath("mm.csv"), "w");
   ck_assert_int_eq(twf_campaign_write(c, m, TWF_LENGTH_MM, TWF_ANGLE_DEG, f, &err), TWF_OK);
   fclose(f);
-  back = read_ok(tmppath("mm.csv"), m, NULL, NULL);
+  back = read_ok(twf_test_tmppath("mm.csv"), m, NULL, NULL);
   twf_campaign_free(back);
-  text = slurp(tmppath("mm.csv"));
+  text = twf_test_slurp(twf_test_tmppath("mm.csv"));
   u = strstr(text, "length=mm");
   ck_assert_ptr_nonnull(u);
   memmove(u + 8, u + 9, strlen(u + 9) + 1); /* length=m */
-  write_file(tmppath("as-m.csv"), text);
-  ck_assert_ptr_null(twf_campaign_read(tmppath("as-m.csv"), m, NULL, NULL, &err));
+  twf_test_write_file(twf_test_tmppath("as-m.csv"), text);
+  ck_assert_ptr_null(twf_campaign_read(twf_test_tmppath("as-m.csv"), m, NULL, NULL, &err));
   ck_assert_int_eq(err.status, TWF_ERR_UNITS);
   ck_assert_ptr_nonnull(strstr(err.message, "check the units: the measured points spread over"));
   ck_assert_ptr_nonnull(strstr(err.hint, "length="));
   free(text);
   twf_campaign_free(c);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -1237,18 +1182,18 @@ START_TEST(test_input_digests)
       "7a7632f1e4d3370803b111c3b16a3a294aa0a6ce57478076d784581a94874eb3";
   twf_model *m = tf6s();
   twf_campaign *c;
-  make_tmpdir();
-  write_file(tmppath("j.csv"), joints);
-  c = twf_campaign_read_joints(tmppath("j.csv"), m, NULL, NULL, NULL);
+  twf_test_tmpdir_make("check_campaign");
+  twf_test_write_file(twf_test_tmppath("j.csv"), joints);
+  c = twf_campaign_read_joints(twf_test_tmppath("j.csv"), m, NULL, NULL, NULL);
   ck_assert_ptr_nonnull(c);
-  write_file(tmppath("j.csv"), "replaced\n");
+  twf_test_write_file(twf_test_tmppath("j.csv"), "replaced\n");
   ck_assert_uint_eq(c->n_inputs, 1);
   ck_assert_str_eq(c->inputs[0].sha256, want);
   ck_assert(c->inputs[0].size == 64);
   twf_campaign_free(c);
-  write_file(tmppath("j.csv"), joints);
-  write_file(tmppath("p.csv"), "pose,target,x,y,z\np01,T1,1,2,3\np01,T2,1,2,4\n");
-  c = read_pair_ok(tmppath("j.csv"), tmppath("p.csv"), m, NULL, NULL);
+  twf_test_write_file(twf_test_tmppath("j.csv"), joints);
+  twf_test_write_file(twf_test_tmppath("p.csv"), "pose,target,x,y,z\np01,T1,1,2,3\np01,T2,1,2,4\n");
+  c = read_pair_ok(twf_test_tmppath("j.csv"), twf_test_tmppath("p.csv"), m, NULL, NULL);
   ck_assert_uint_eq(c->n_inputs, 2);
   ck_assert_str_eq(c->inputs[0].sha256, want);
   ck_assert_uint_eq(strlen(c->inputs[1].sha256), 64);
@@ -1257,7 +1202,7 @@ START_TEST(test_input_digests)
   c = twf_campaign_alloc(6, 1, 1);
   ck_assert_uint_eq(c->n_inputs, 0);
   twf_campaign_free(c);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -1287,8 +1232,8 @@ START_TEST(test_load_200k_poses)
   int fds[2], status;
   pid_t pid;
   long grown_kib = -1;
-  make_tmpdir();
-  f = fopen(tmppath("large.csv"), "w");
+  twf_test_tmpdir_make("check_campaign");
+  f = fopen(twf_test_tmppath("large.csv"), "w");
   ck_assert_ptr_nonnull(f);
   fputs("# units: length=mm angle=deg\npose,target,j1,j2,j3,j4,j5,j6,x,y,z\n", f);
   for (p = 0; p < N_POSES; p++) {
@@ -1309,7 +1254,7 @@ START_TEST(test_load_200k_poses)
     long out[3];
     close(fds[0]);
     getrusage(RUSAGE_SELF, &before);
-    c = twf_campaign_read(tmppath("large.csv"), m, NULL, NULL, &err);
+    c = twf_campaign_read(twf_test_tmppath("large.csv"), m, NULL, NULL, &err);
     getrusage(RUSAGE_SELF, &after);
     out[0] = c != NULL && c->n_poses == N_POSES && c->n_meas == 3 * N_POSES &&
              strcmp(c->pose_ids[N_POSES - 1], "p199999") == 0;
@@ -1338,7 +1283,7 @@ START_TEST(test_load_200k_poses)
 #endif
   fprintf(stderr, "check_campaign: 200,000 poses: %ld bytes read, peak memory grew by %ld KiB\n",
           size, grown_kib);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST
@@ -1348,7 +1293,7 @@ END_TEST
 /* ------------------------------------------------------------------ */
 
 /* The k-th .nf/.fi block of the man page, roff escapes undone, written to
- * a file in tmpdir. */
+ * a file in the test folder. */
 static void man_example(const char *page, int k, const char *name)
 {
   const char *s = page, *e;
@@ -1361,7 +1306,7 @@ static void man_example(const char *page, int k, const char *name)
   }
   e = strstr(s, ".fi\n");
   ck_assert_ptr_nonnull(e);
-  f = fopen(tmppath(name), "w");
+  f = fopen(twf_test_tmppath(name), "w");
   ck_assert_ptr_nonnull(f);
   for (; s < e; s++) {
     if (s[0] == '\\' && s[1] == '-')
@@ -1374,16 +1319,16 @@ static void man_example(const char *page, int k, const char *name)
 START_TEST(test_man_examples)
 {
   twf_model *m = tf6s();
-  char *page = slurp(data("man/twistfit-data.5"));
+  char *page = twf_test_slurp(data("man/twistfit-data.5"));
   twf_warnings w;
   twf_campaign *a, *b;
-  make_tmpdir();
+  twf_test_tmpdir_make("check_campaign");
   man_example(page, 0, "one.csv");
   man_example(page, 1, "joints.csv");
   man_example(page, 2, "points.csv");
   twf_warnings_init(&w);
-  a = read_ok(tmppath("one.csv"), m, NULL, &w);
-  b = read_pair_ok(tmppath("joints.csv"), tmppath("points.csv"), m, NULL, &w);
+  a = read_ok(twf_test_tmppath("one.csv"), m, NULL, &w);
+  b = read_pair_ok(twf_test_tmppath("joints.csv"), twf_test_tmppath("points.csv"), m, NULL, &w);
   ck_assert_uint_eq(w.count, 0);
   ck_assert_uint_eq(a->n_poses, 2);
   ck_assert_uint_eq(a->n_meas, 4);
@@ -1394,7 +1339,7 @@ START_TEST(test_man_examples)
   twf_campaign_free(b);
   twf_warnings_clear(&w);
   free(page);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   twf_model_free(m);
 }
 END_TEST

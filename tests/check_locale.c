@@ -24,8 +24,6 @@
 static const char *comma_locale;  /* name that setlocale accepts, or NULL */
 static char why_none[1024];       /* why there is none */
 static char locpath[256];         /* our LOCPATH, "" when not needed */
-static char tmpdir[256];
-
 static int decimal_comma(void)
 {
   const struct lconv *lc = localeconv();
@@ -117,59 +115,6 @@ static void assert_locale_restored(void)
   ck_assert(uselocale((locale_t)0) == LC_GLOBAL_LOCALE);
 }
 
-static void make_tmpdir(void)
-{
-  snprintf(tmpdir, sizeof tmpdir, "/tmp/check_locale_files.XXXXXX");
-  ck_assert_ptr_nonnull(mkdtemp(tmpdir));
-}
-
-static const char *tmppath(const char *name)
-{
-  static char buf[2][512];
-  static int k;
-  k = !k;
-  snprintf(buf[k], sizeof buf[k], "%s/%s", tmpdir, name);
-  return buf[k];
-}
-
-static void remove_tmpdir(void)
-{
-  DIR *d = opendir(tmpdir);
-  struct dirent *e;
-  if (d == NULL)
-    return;
-  while ((e = readdir(d)) != NULL)
-    if (strcmp(e->d_name, ".") && strcmp(e->d_name, ".."))
-      remove(tmppath(e->d_name));
-  closedir(d);
-  rmdir(tmpdir);
-}
-
-static void write_file(const char *path, const char *text)
-{
-  FILE *f = fopen(path, "wb");
-  ck_assert_ptr_nonnull(f);
-  fputs(text, f);
-  ck_assert_int_eq(fclose(f), 0);
-}
-
-static char *slurp(const char *path)
-{
-  FILE *f = fopen(path, "rb");
-  char *buf;
-  long n;
-  ck_assert_ptr_nonnull(f);
-  fseek(f, 0, SEEK_END);
-  n = ftell(f);
-  rewind(f);
-  buf = malloc((size_t)n + 1);
-  ck_assert_ptr_nonnull(buf);
-  ck_assert_uint_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
-  buf[n] = '\0';
-  fclose(f);
-  return buf;
-}
-
 /* Unround values with a fractional part, so that every number needs the
  * decimal separator; the second axis is not unit length in decimal, so
  * the writer has to print 17 digits. */
@@ -235,21 +180,21 @@ START_TEST(test_model_file)
   char *text;
   FILE *f;
   enter_comma_locale();
-  make_tmpdir();
-  write_file(tmppath("m.ini"), MODEL);
-  m = read_model_ok(tmppath("m.ini"));
+  twf_test_tmpdir_make("check_locale_files");
+  twf_test_write_file(twf_test_tmppath("m.ini"), MODEL);
+  m = read_model_ok(twf_test_tmppath("m.ini"));
   assert_locale_restored();
   ck_assert(m->joints[0].point[2] == twf_length_to_si(0.5, TWF_LENGTH_MM));
   ck_assert(m->joints[0].offset == twf_angle_to_si(0.25, TWF_ANGLE_DEG));
   ck_assert(m->joints[1].scale == 1.0005);
   ck_assert(m->home.p[1] == twf_length_to_si(-2.385, TWF_LENGTH_MM));
 
-  f = fopen(tmppath("w.ini"), "w");
+  f = fopen(twf_test_tmppath("w.ini"), "w");
   ck_assert_ptr_nonnull(f);
   ck_assert_int_eq(twf_model_write(m, f, &err), TWF_OK);
   ck_assert_int_eq(fclose(f), 0);
   assert_locale_restored();
-  text = slurp(tmppath("w.ini"));
+  text = twf_test_slurp(twf_test_tmppath("w.ini"));
   ck_assert_msg(strstr(text, "point = 0 0 0.5\n") != NULL, "%s", text);
   ck_assert_msg(strstr(text, "offset = 0.25\n") != NULL, "%s", text);
   ck_assert_msg(strstr(text, "scale = 1.0005\n") != NULL, "%s", text);
@@ -257,12 +202,12 @@ START_TEST(test_model_file)
   ck_assert_msg(strstr(text, "0,") == NULL, "a decimal comma in:\n%s", text);
   free(text);
 
-  back = read_model_ok(tmppath("w.ini"));
+  back = read_model_ok(twf_test_tmppath("w.ini"));
   assert_same_model(m, back);
   assert_locale_restored();
   twf_model_free(back);
   twf_model_free(m);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
 }
 END_TEST
 
@@ -274,34 +219,34 @@ START_TEST(test_base_file)
   FILE *f;
   int a, b;
   enter_comma_locale();
-  make_tmpdir();
-  write_file(tmppath("b.ini"), "[base]\nlength_unit = mm\n"
+  twf_test_tmpdir_make("check_locale_files");
+  twf_test_write_file(twf_test_tmppath("b.ini"), "[base]\nlength_unit = mm\n"
                                "position = 1503.2871 -0.5 2.385\n"
                                "quaternion_wxyz = 0.5 0.5 -0.5 0.5\n");
-  ck_assert_int_eq(twf_base_read(tmppath("b.ini"), &B, &err), TWF_OK);
+  ck_assert_int_eq(twf_base_read(twf_test_tmppath("b.ini"), &B, &err), TWF_OK);
   assert_locale_restored();
   ck_assert(B.p[1] == twf_length_to_si(-0.5, TWF_LENGTH_MM));
   ck_assert_close(B.R[0][0], 0.0, 1e-15);
 
-  f = fopen(tmppath("w.ini"), "w");
+  f = fopen(twf_test_tmppath("w.ini"), "w");
   ck_assert_ptr_nonnull(f);
   ck_assert_int_eq(twf_base_write(&B, TWF_LENGTH_M, "written under a comma locale", f, &err),
                    TWF_OK);
   ck_assert_int_eq(fclose(f), 0);
   assert_locale_restored();
-  text = slurp(tmppath("w.ini"));
+  text = twf_test_slurp(twf_test_tmppath("w.ini"));
   ck_assert_msg(strstr(text, "quaternion_wxyz = 0.5 0.5 -0.5 0.5\n") != NULL, "%s", text);
   ck_assert_msg(strstr(text, "position = 1.5032871") != NULL, "%s", text);
   free(text);
 
-  ck_assert_int_eq(twf_base_read(tmppath("w.ini"), &R, &err), TWF_OK);
+  ck_assert_int_eq(twf_base_read(twf_test_tmppath("w.ini"), &R, &err), TWF_OK);
   assert_locale_restored();
   for (a = 0; a < 3; a++) {
     ck_assert_close(R.p[a], B.p[a], 1e-15);
     for (b = 0; b < 3; b++)
       ck_assert_close(R.R[a][b], B.R[a][b], 1e-15);
   }
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
 }
 END_TEST
 
@@ -316,31 +261,31 @@ START_TEST(test_campaign)
   /* The model is read in the C locale, so that this test looks at the
    * campaign reader and writer alone. */
   ck_assert_msg(comma_locale != NULL, "%s", why_none);
-  make_tmpdir();
-  write_file(tmppath("m.ini"), MODEL);
-  m = read_model_ok(tmppath("m.ini"));
+  twf_test_tmpdir_make("check_locale_files");
+  twf_test_write_file(twf_test_tmppath("m.ini"), MODEL);
+  m = read_model_ok(twf_test_tmppath("m.ini"));
   enter_comma_locale();
-  write_file(tmppath("c.csv"),
+  twf_test_write_file(twf_test_tmppath("c.csv"),
              "# units: length=mm angle=deg\n"
              "pose,target,j1,j2,x,y,z,sigma,set\n"
              "p1,T1,0.5,-12.25,1503.2871,-0.5,2.385,0.025,fit\n"
              "p2,T1,-33.75,45.125,1200.5,10.25,-7.5,,check\n");
-  c = twf_campaign_read(tmppath("c.csv"), m, NULL, NULL, &err);
+  c = twf_campaign_read(twf_test_tmppath("c.csv"), m, NULL, NULL, &err);
   ck_assert_msg(c != NULL, "%s:%ld: %s", err.file, err.line, err.message);
   assert_locale_restored();
   ck_assert(c->q[0] == twf_angle_to_si(0.5, TWF_ANGLE_DEG));
   ck_assert(c->meas[0].pos[2] == twf_length_to_si(2.385, TWF_LENGTH_MM));
 
-  f = fopen(tmppath("w.csv"), "w");
+  f = fopen(twf_test_tmppath("w.csv"), "w");
   ck_assert_ptr_nonnull(f);
   ck_assert_int_eq(twf_campaign_write(c, m, TWF_LENGTH_MM, TWF_ANGLE_DEG, f, &err), TWF_OK);
   ck_assert_int_eq(fclose(f), 0);
   assert_locale_restored();
-  text = slurp(tmppath("w.csv"));
+  text = twf_test_slurp(twf_test_tmppath("w.csv"));
   ck_assert_msg(strstr(text, ",0.5,") != NULL, "%s", text);
   free(text);
 
-  back = twf_campaign_read(tmppath("w.csv"), m, NULL, NULL, &err);
+  back = twf_campaign_read(twf_test_tmppath("w.csv"), m, NULL, NULL, &err);
   ck_assert_msg(back != NULL, "%s:%ld: %s", err.file, err.line, err.message);
   ck_assert_uint_eq(back->n_poses, 2);
   ck_assert_uint_eq(back->n_meas, 2);
@@ -353,10 +298,10 @@ START_TEST(test_campaign)
 
   /* The file's own decimal comma (with ';' as delimiter) is the format's,
    * not the locale's: it reads the same here as anywhere. */
-  write_file(tmppath("s.csv"),
+  twf_test_write_file(twf_test_tmppath("s.csv"),
              "pose;target;j1;j2;x;y;z\n"
              "p1;T1;0,5;-12,25;1503,2871;-0,5;2,385\n");
-  semi = twf_campaign_read(tmppath("s.csv"), m, NULL, NULL, &err);
+  semi = twf_campaign_read(twf_test_tmppath("s.csv"), m, NULL, NULL, &err);
   ck_assert_msg(semi != NULL, "%s:%ld: %s", err.file, err.line, err.message);
   ck_assert(semi->q[0] == c->q[0]);
   ck_assert(semi->meas[0].pos[2] == c->meas[0].pos[2]);
@@ -366,7 +311,7 @@ START_TEST(test_campaign)
   twf_campaign_free(back);
   twf_campaign_free(c);
   twf_model_free(m);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
 }
 END_TEST
 
@@ -389,17 +334,17 @@ START_TEST(test_thread_locale_kept)
   uselocale(mine);
   snprintf(s, sizeof s, "%.1f", 0.5);
   ck_assert_str_eq(s, "0,5");
-  make_tmpdir();
-  write_file(tmppath("m.ini"), MODEL);
-  m = read_model_ok(tmppath("m.ini"));
+  twf_test_tmpdir_make("check_locale_files");
+  twf_test_write_file(twf_test_tmppath("m.ini"), MODEL);
+  m = read_model_ok(twf_test_tmppath("m.ini"));
   ck_assert(uselocale((locale_t)0) == mine);
-  f = fopen(tmppath("w.ini"), "w");
+  f = fopen(twf_test_tmppath("w.ini"), "w");
   ck_assert_ptr_nonnull(f);
   ck_assert_int_eq(twf_model_write(m, f, &err), TWF_OK);
   fclose(f);
   ck_assert(uselocale((locale_t)0) == mine);
   twf_model_free(m);
-  remove_tmpdir();
+  twf_test_tmpdir_remove();
   uselocale(LC_GLOBAL_LOCALE);
   freelocale(mine);
 }

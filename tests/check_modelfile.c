@@ -75,23 +75,6 @@ static void write_text(const char *path, const char *text)
   ck_assert_int_eq(fclose(f), 0);
 }
 
-static char *slurp(const char *path)
-{
-  FILE *f = fopen(path, "rb");
-  char *buf;
-  long n;
-  ck_assert_msg(f != NULL, "%s: %s", path, strerror(errno));
-  fseek(f, 0, SEEK_END);
-  n = ftell(f);
-  fseek(f, 0, SEEK_SET);
-  buf = malloc((size_t)n + 1);
-  ck_assert_ptr_nonnull(buf);
-  ck_assert_uint_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
-  buf[n] = '\0';
-  fclose(f);
-  return buf;
-}
-
 /* Write m to a temporary file and return its text (caller frees) and,
  * when back is not NULL, the model read back from it. */
 static char *roundtrip(const twf_model *m, twf_model **back)
@@ -106,7 +89,7 @@ static char *roundtrip(const twf_model *m, twf_model **back)
   ck_assert_msg(twf_model_write(m, f, &err) == TWF_OK, "write: %s",
                 err.message);
   ck_assert_int_eq(fclose(f), 0);
-  text = slurp(path);
+  text = twf_test_slurp(path);
   if (back != NULL) {
     twf_warnings w;
     twf_warnings_init(&w);
@@ -703,7 +686,7 @@ END_TEST
 START_TEST(test_reader_tolerates_layout)
 {
   twf_model *ref = read_ok(sample_path("tf4p"), NULL), *m;
-  char *src = slurp(sample_path("tf4p")), *out, path[4096];
+  char *src = twf_test_slurp(sample_path("tf4p")), *out, path[4096];
   const char *robot = "[robot]\nname = tf4p\nlength_unit = mm\nangle_unit = deg\n";
   char *cut = strstr(src, robot);
   size_t n = 0;
@@ -823,7 +806,7 @@ END_TEST
  * one byte more is refused. */
 START_TEST(test_size_limit)
 {
-  char *text = slurp(sample_path("tf6s"));
+  char *text = twf_test_slurp(sample_path("tf6s"));
   size_t n = strlen(text);
   twf_read_options o = twf_read_default_options();
   twf_model *m;
@@ -1015,7 +998,7 @@ static twf_status write_to(const twf_model *m, char **text, twf_error *err)
   ck_assert_ptr_nonnull(f);
   st = twf_model_write(m, f, err);
   fclose(f);
-  *text = slurp(path);
+  *text = twf_test_slurp(path);
   remove(path);
   return st;
 }
@@ -1215,7 +1198,7 @@ END_TEST
  * DH versions of the arm agree. */
 START_TEST(test_man_page_examples)
 {
-  char *man = slurp(twf_test_srcpath("man/twistfit-model.5"));
+  char *man = twf_test_slurp(twf_test_srcpath("man/twistfit-model.5"));
   char *sec = strstr(man, "\n.SH EXAMPLE\n"), *end;
   char *blocks[2] = { NULL, NULL };
   char paths[2][4096];

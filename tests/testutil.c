@@ -4,7 +4,11 @@
 #include <gsl/gsl_errno.h>
 #include <math.h>
 #include <stdio.h>
+#include <dirent.h>
+#include <errno.h>
 #include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
 
 int twf_test_close(double a, double b, double tol)
 {
@@ -102,4 +106,60 @@ int twf_test_run(Suite *s)
       fprintf(stderr, "random streams: the fixed defaults (TWF_TEST_SEED unset)\n");
   }
   return failed == 0 ? 0 : 1;
+}
+
+static char tmpdir[256];
+
+void twf_test_tmpdir_make(const char *prefix)
+{
+  snprintf(tmpdir, sizeof tmpdir, "/tmp/%s.XXXXXX", prefix);
+  ck_assert_ptr_nonnull(mkdtemp(tmpdir));
+}
+
+const char *twf_test_tmppath(const char *name)
+{
+  static char buf[2][512];
+  static int k;
+  k = !k;
+  snprintf(buf[k], sizeof buf[k], "%s/%s", tmpdir, name);
+  return buf[k];
+}
+
+void twf_test_tmpdir_remove(void)
+{
+  DIR *d = opendir(tmpdir);
+  struct dirent *e;
+  if (d == NULL)
+    return;
+  while ((e = readdir(d)) != NULL)
+    if (strcmp(e->d_name, ".") && strcmp(e->d_name, ".."))
+      remove(twf_test_tmppath(e->d_name));
+  closedir(d);
+  rmdir(tmpdir);
+}
+
+void twf_test_write_file(const char *path, const char *text)
+{
+  FILE *f = fopen(path, "wb");
+  ck_assert_ptr_nonnull(f);
+  fputs(text, f);
+  ck_assert_int_eq(fclose(f), 0);
+}
+
+char *twf_test_slurp(const char *path)
+{
+  FILE *f = fopen(path, "rb");
+  char *buf;
+  long n;
+  ck_assert_msg(f != NULL, "%s: %s", path, strerror(errno));
+  fseek(f, 0, SEEK_END);
+  n = ftell(f);
+  ck_assert(n >= 0);
+  rewind(f);
+  buf = malloc((size_t)n + 1);
+  ck_assert_ptr_nonnull(buf);
+  ck_assert_uint_eq(fread(buf, 1, (size_t)n, f), (size_t)n);
+  buf[n] = '\0';
+  fclose(f);
+  return buf;
 }

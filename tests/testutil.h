@@ -37,4 +37,16 @@ const char *twf_test_srcpath(const char *relative);
 /* Run a suite; returns the process exit status (0 when all passed). */
 int twf_test_run(Suite *s);
 
+/* A private temporary folder for the files of a test (made with the
+ * prefix in its name under /tmp), the path of a file in it, and its
+ * removal with every file in it. One folder at a time per process: Check
+ * runs each test in a child of its own. */
+void twf_test_tmpdir_make(const char *prefix);
+const char *twf_test_tmppath(const char *name); /* two results stay valid at a time */
+void twf_test_tmpdir_remove(void);
+/* Write text to path (binary); read a whole file into a NUL-terminated
+ * buffer the caller frees. Both fail the test on an error. */
+void twf_test_write_file(const char *path, const char *text);
+char *twf_test_slurp(const char *path);
+
 #endif

@@ -38,7 +38,6 @@ with relative tolerance 1e-12, other fields as text).
 Run with Debian's interpreter:
     /usr/bin/python3 tests/gen/gen_kdl_campaign.py [--out DIR]
 """
-import argparse
 import math
 import os
 import sys
@@ -50,7 +49,8 @@ import PyKDL as kdl
 # conversion, the direct DH product and the KDL frame conversion.
 sys.dont_write_bytecode = True  # leave no __pycache__ in the source tree
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from gen_kdl_fk import ARMS_STD, D, direct_fk, kdl_frame, to_si  # noqa: E402
+from gen_kdl_fk import ARMS_STD, D, direct_fk, to_si  # noqa: E402
+from genutil import fmt, jnt_array, kdl_frame, out_dir  # noqa: E402
 
 SEED = 20260404
 N_POSES = 150
@@ -128,9 +128,7 @@ class TrueArm:
     def positions_mm(self, q_deg):
         """True tracker-frame positions (mm) of every target at q (deg)."""
         q = [x * D for x in q_deg]
-        jq = kdl.JntArray(len(q))
-        for i, x in enumerate(q):
-            jq[i] = x
+        jq = jnt_array(q)
         T = self.B @ direct_fk(self.rows, "standard", np.eye(4), q)
         out = []
         for solver, off in zip(self.solvers, self.offsets):
@@ -156,10 +154,6 @@ def draw_q(rng):
         m = MARGIN * (hi - lo)
         q.append(float("%.4f" % rng.uniform(lo + m, hi - m)))
     return q
-
-
-def fmt(x):
-    return repr(float(x))
 
 
 def header(f, what):
@@ -225,12 +219,7 @@ def write_nominal(path):
 
 
 def main():
-    here = os.path.dirname(os.path.abspath(__file__))
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--out", default=os.path.normpath(os.path.join(here, "..", "fixtures")),
-                    help="output directory (default tests/fixtures)")
-    args = ap.parse_args()
-    os.makedirs(args.out, exist_ok=True)
+    out = out_dir(__doc__)
 
     rng = np.random.RandomState(SEED)
     arm = TrueArm()
@@ -249,21 +238,21 @@ def main():
         q = draw_q(rng)
         truth.append(("V%04d" % (i + 1), q, arm.positions_mm(q), "fit"))
 
-    write_campaign(os.path.join(args.out, "kdl_campaign.csv"),
+    write_campaign(os.path.join(out, "kdl_campaign.csv"),
                    "KDL reference campaign: %d poses (%d check), 3 targets, "
                    "Gaussian noise sigma %g mm per coordinate"
                    % (N_POSES, N_CHECK, SIGMA_MM), noisy)
-    write_campaign(os.path.join(args.out, "kdl_campaign_nonoise.csv"),
+    write_campaign(os.path.join(out, "kdl_campaign_nonoise.csv"),
                    "KDL reference campaign without noise: the poses and sets "
                    "of kdl_campaign.csv", clean)
-    write_campaign(os.path.join(args.out, "kdl_truth.csv"),
+    write_campaign(os.path.join(out, "kdl_truth.csv"),
                    "True target positions of the KDL reference arm at %d "
                    "further random poses (no noise)" % N_TRUTH, truth,
                    lambda f: write_truth_comments(f, arm))
-    write_nominal(os.path.join(args.out, "kdl_nominal.ini"))
+    write_nominal(os.path.join(out, "kdl_nominal.ini"))
     print("gen_kdl_campaign: wrote kdl_campaign.csv, kdl_campaign_nonoise.csv, "
           "kdl_truth.csv, kdl_nominal.ini in %s (KDL vs direct %.1e m)"
-          % (args.out, arm.worst))
+          % (out, arm.worst))
 
 
 if __name__ == "__main__":

@@ -39,13 +39,18 @@ compared with relative tolerance 1e-12, absolute 1e-15 near zero).
 
 Run with Debian's interpreter:  /usr/bin/python3 tests/gen/gen_kdl_fk.py [--out DIR]
 """
-import argparse
 import math
 import os
 import sys
 
 import numpy as np
 import PyKDL as kdl
+
+# The matrices, the KDL conversions and the command line: genutil.py (the
+# other generators import them from here too).
+sys.dont_write_bytecode = True  # leave no __pycache__ in the source tree
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from genutil import fmt, kdl_fk, kdl_frame, out_dir, pose_fields, rx, rz, trans  # noqa: E402,F401
 
 SEED = 20260311
 N_CONFIGS = 50
@@ -103,22 +108,6 @@ def to_si(rows):
     return out
 
 
-def rz(t):
-    c, s = math.cos(t), math.sin(t)
-    return np.array([[c, -s, 0, 0], [s, c, 0, 0], [0, 0, 1, 0], [0, 0, 0, 1]])
-
-
-def rx(t):
-    c, s = math.cos(t), math.sin(t)
-    return np.array([[1, 0, 0, 0], [0, c, -s, 0], [0, s, c, 0], [0, 0, 0, 1]])
-
-
-def trans(x, y, z):
-    T = np.eye(4)
-    T[:3, 3] = [x, y, z]
-    return T
-
-
 def direct_fk(rows, conv, flange, q):
     """Direct product of the elementary DH matrices (the definitions in
     src/twistfit.h), to verify the KDL chain."""
@@ -132,11 +121,6 @@ def direct_fk(rows, conv, flange, q):
             A = rx(alpha) @ trans(a, 0, 0) @ rz(th) @ trans(0, 0, dd)
         T = T @ A
     return T @ flange
-
-
-def kdl_frame(T):
-    R = kdl.Rotation(*[float(T[i, j]) for i in range(3) for j in range(3)])
-    return kdl.Frame(R, kdl.Vector(*[float(x) for x in T[:3, 3]]))
 
 
 def kdl_chain(rows, conv, flange):
@@ -155,22 +139,6 @@ def kdl_chain(rows, conv, flange):
                 jt, kdl.Frame.DH_Craig1989(a, alpha, d, theta)))
     chain.addSegment(kdl.Segment(kdl.Joint(kdl.Joint.Fixed), kdl_frame(flange)))
     return chain
-
-
-def kdl_fk(chain, q):
-    solver = kdl.ChainFkSolverPos_recursive(chain)
-    jq = kdl.JntArray(len(q))
-    for i, x in enumerate(q):
-        jq[i] = float(x)
-    F = kdl.Frame()
-    if solver.JntToCart(jq, F) < 0:
-        sys.exit("gen_kdl_fk: KDL's JntToCart failed")
-    T = np.eye(4)
-    for i in range(3):
-        for j in range(3):
-            T[i, j] = F.M[i, j]
-        T[i, 3] = F.p[i]
-    return T
 
 
 def std_to_mdh(rows, flange):
@@ -211,10 +179,6 @@ def general_arm(rng):
     return rows, F
 
 
-def fmt(x):
-    return repr(float(x))
-
-
 def write_arm(outdir, name, rows, conv, flange, rng, note):
     chain = kdl_chain(rows, conv, flange)
     lines = []
@@ -228,8 +192,7 @@ def write_arm(outdir, name, rows, conv, flange, rng, note):
         if err > 1e-12:
             sys.exit("gen_kdl_fk: KDL and the direct DH product differ by %g "
                      "on %s" % (err, name))
-        vals = list(q) + list(T[:3, 3]) + [T[i, j] for i in range(3)
-                                           for j in range(3)]
+        vals = list(q) + pose_fields(T)
         lines.append("fk," + ",".join(fmt(v) for v in vals))
     path = os.path.join(outdir, "kdl_fk_%s.csv" % name)
     with open(path, "w") as f:
@@ -248,20 +211,14 @@ def write_arm(outdir, name, rows, conv, flange, rng, note):
         for i, (typ, a, alpha, d, theta, lo, hi) in enumerate(rows):
             f.write("joint,j%d,%s,%s\n" % (i + 1, typ, ",".join(
                 fmt(v) for v in (a, alpha, d, theta, lo, hi))))
-        f.write("flange," + ",".join(fmt(v) for v in list(flange[:3, 3]) + [
-            flange[i, j] for i in range(3) for j in range(3)]) + "\n")
+        f.write("flange," + ",".join(fmt(v) for v in pose_fields(flange)) + "\n")
         for line in lines:
             f.write(line + "\n")
     return path, worst
 
 
 def main():
-    here = os.path.dirname(os.path.abspath(__file__))
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--out", default=os.path.normpath(os.path.join(here, "..", "fixtures")),
-                    help="output directory (default tests/fixtures)")
-    args = ap.parse_args()
-    os.makedirs(args.out, exist_ok=True)
+    out = out_dir(__doc__)
 
     # RandomState: NumPy guarantees its stream across versions (Generator
     # does not), so regenerated files stay identical.
@@ -284,7 +241,7 @@ def main():
                  "invented general arm, unround values, modified DH"))
 
     for name, rows, conv, flange, note in jobs:
-        path, worst = write_arm(args.out, name, rows, conv, flange, rng, note)
+        path, worst = write_arm(out, name, rows, conv, flange, rng, note)
         print("gen_kdl_fk: wrote %s (KDL vs direct %.1e)" % (path, worst))
 
 

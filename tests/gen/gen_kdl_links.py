@@ -40,13 +40,16 @@ regeneration with tests/gen/compare_fixtures.py.
 
 Run with Debian's interpreter:  /usr/bin/python3 tests/gen/gen_kdl_links.py [--out DIR]
 """
-import argparse
 import math
 import os
 import sys
 
 import numpy as np
 import PyKDL as kdl
+
+sys.dont_write_bytecode = True  # leave no __pycache__ in the source tree
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from genutil import fmt, kdl_fk, kdl_frame, out_dir, pose_fields, rx, ry, rz, trans  # noqa: E402
 
 SEED = 20261207
 N_CONFIGS = 40
@@ -79,27 +82,6 @@ def perturbed_rows(rng):
     return rows
 
 
-def rz(t):
-    c, s = math.cos(t), math.sin(t)
-    return np.array([[c, -s, 0, 0], [s, c, 0, 0], [0, 0, 1, 0], [0, 0, 0, 1]])
-
-
-def rx(t):
-    c, s = math.cos(t), math.sin(t)
-    return np.array([[1, 0, 0, 0], [0, c, -s, 0], [0, s, c, 0], [0, 0, 0, 1]])
-
-
-def ry(t):
-    c, s = math.cos(t), math.sin(t)
-    return np.array([[c, 0, s, 0], [0, 1, 0, 0], [-s, 0, c, 0], [0, 0, 0, 1]])
-
-
-def trans(x, y, z):
-    T = np.eye(4)
-    T[:3, 3] = [x, y, z]
-    return T
-
-
 def direct_fk(rows, conv, flange, q):
     """Direct product of the elementary matrices (src/include/twistfit/model.h)."""
     T = np.eye(4)
@@ -111,11 +93,6 @@ def direct_fk(rows, conv, flange, q):
             A = rx(alpha) @ trans(a, 0, 0) @ ry(beta) @ rz(th) @ trans(0, 0, d)
         T = T @ A
     return T @ flange
-
-
-def kdl_frame(T):
-    R = kdl.Rotation(*[float(T[i, j]) for i in range(3) for j in range(3)])
-    return kdl.Frame(R, kdl.Vector(*[float(x) for x in T[:3, 3]]))
 
 
 def kdl_chain(rows, conv, flange):
@@ -136,26 +113,6 @@ def kdl_chain(rows, conv, flange):
                                          kdl.Frame.DH_Craig1989(0.0, 0.0, d, theta)))
     chain.addSegment(kdl.Segment(kdl.Joint(kdl.Joint.Fixed), kdl_frame(flange)))
     return chain
-
-
-def kdl_fk(chain, q):
-    solver = kdl.ChainFkSolverPos_recursive(chain)
-    jq = kdl.JntArray(len(q))
-    for i, x in enumerate(q):
-        jq[i] = float(x)
-    F = kdl.Frame()
-    if solver.JntToCart(jq, F) < 0:
-        sys.exit("gen_kdl_links: KDL's JntToCart failed")
-    return to_np(F)
-
-
-def to_np(F):
-    T = np.eye(4)
-    for i in range(3):
-        for j in range(3):
-            T[i, j] = F.M[i, j]
-        T[i, 3] = F.p[i]
-    return T
 
 
 def kdl_lines(chain):
@@ -180,14 +137,6 @@ def std_to_mdh(rows, flange):
         out.append((typ, prev[0], prev[1], d, theta, prev[2], lo, hi))
         prev = (a, alpha, beta)
     return out, rx(prev[1]) @ trans(prev[0], 0, 0) @ ry(prev[2]) @ flange
-
-
-def fmt(x):
-    return repr(float(x))
-
-
-def pose_fields(T):
-    return [T[i, 3] for i in range(3)] + [T[i, j] for i in range(3) for j in range(3)]
 
 
 def write_arm(outdir, name, rows, conv, flange, rng, note):
@@ -230,12 +179,7 @@ def write_arm(outdir, name, rows, conv, flange, rng, note):
 
 
 def main():
-    here = os.path.dirname(os.path.abspath(__file__))
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--out", default=os.path.normpath(os.path.join(here, "..", "fixtures")),
-                    help="output directory (default tests/fixtures)")
-    args = ap.parse_args()
-    os.makedirs(args.out, exist_ok=True)
+    out = out_dir(__doc__)
     # RandomState: a stream NumPy keeps across versions
     rng = np.random.RandomState(SEED)
     rows = perturbed_rows(rng)
@@ -245,7 +189,7 @@ def main():
     jobs.append(("tf6s_beta_mdh", mrows, "modified", mflange,
                  "the same arm regrouped into modified DH"))
     for name, r, conv, flange, note in jobs:
-        path, worst = write_arm(args.out, name, r, conv, flange, rng, note)
+        path, worst = write_arm(out, name, r, conv, flange, rng, note)
         print("gen_kdl_links: wrote %s (KDL vs direct %.1e)" % (path, worst))
 
 

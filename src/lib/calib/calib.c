@@ -251,22 +251,33 @@ static twf_status stage_sets(job *j)
   const twf_campaign *c = j->c;
   twf_calib_result *res = j->res;
   unsigned char *held = calloc(c->n_poses ? c->n_poses : 1, 1);
-  size_t i;
-  j->view_meas = malloc((c->n_meas ? c->n_meas : 1) * sizeof *j->view_meas);
-  if (held == NULL || j->view_meas == NULL) {
-    free(held);
+  size_t i, n_moved = 0;
+  if (held == NULL)
     return nomem(j);
-  }
   if (j->opt.check_fraction > 0) {
     unsigned long long s = j->opt.seed ^ 0x5deece66dULL;
     for (i = 0; i < c->n_poses; i++)
       held[i] = twf_rng_uniform(&s) < j->opt.check_fraction;
   }
-  memcpy(j->view_meas, c->meas, c->n_meas * sizeof *j->view_meas);
   for (i = 0; i < c->n_meas; i++) {
     const twf_measurement *ms = &c->meas[i];
     res->meas_set[i] = ms->set == TWF_SET_CHECK || held[ms->pose] ? TWF_SET_CHECK : TWF_SET_FIT;
-    j->view_meas[i].set = res->meas_set[i];
+    n_moved += res->meas_set[i] != ms->set;
+  }
+  /* A copy of the measurements (the size of the campaign) only when the
+   * held-out fraction moved rows; else the view is the campaign itself. */
+  if (n_moved > 0) {
+    j->view_meas = malloc((c->n_meas ? c->n_meas : 1) * sizeof *j->view_meas);
+    if (j->view_meas == NULL) {
+      free(held);
+      return nomem(j);
+    }
+    memcpy(j->view_meas, c->meas, c->n_meas * sizeof *j->view_meas);
+  }
+  for (i = 0; i < c->n_meas; i++) {
+    const twf_measurement *ms = &c->meas[i];
+    if (j->view_meas != NULL)
+      j->view_meas[i].set = res->meas_set[i];
     j->use[i] = res->meas_set[i] == TWF_SET_FIT;
     if (j->use[i]) {
       res->n_fit_meas++;
@@ -279,7 +290,8 @@ static twf_status stage_sets(job *j)
   }
   free(held);
   j->view = *c;
-  j->view.meas = j->view_meas;
+  if (j->view_meas != NULL)
+    j->view.meas = j->view_meas;
   if (res->n_fit_meas == 0)
     return twf_error_set(j->err, TWF_ERR_DEGENERATE, NULL, 0, 0,
                          "tag fewer rows as check data or lower the held-out fraction",

@@ -197,12 +197,11 @@ static twf_status job_alloc_result(job *j)
   res->n_meas = c->n_meas;
   res->meas_set = calloc(nm, sizeof *res->meas_set);
   res->pos_err_before = calloc(3 * nm, sizeof(double));
-  res->pos_err_after = calloc(3 * nm, sizeof(double));
   res->angle_err_before = calloc(nm, sizeof(double));
-  res->angle_err_after = calloc(nm, sizeof(double));
   res->joint_range = calloc(j->start->n_joints ? j->start->n_joints : 1, sizeof(double));
-  if (!res->meas_set || !res->pos_err_before || !res->pos_err_after || !res->angle_err_before ||
-      !res->angle_err_after || !res->joint_range)
+  /* pos_err_after and angle_err_after: at the as-built summary, so that
+   * they do not add to the registration's peak memory */
+  if (!res->meas_set || !res->pos_err_before || !res->angle_err_before || !res->joint_range)
     return nomem(j);
   return TWF_OK;
 }
@@ -613,7 +612,11 @@ static twf_status stage_robust(job *j)
       break;
     }
   }
-  return list_outliers(j);
+  st = list_outliers(j);
+  /* the screen's per-measurement figures are in the outlier list now */
+  free(j->score); free(j->err_len); free(j->first_score); free(j->first_err);
+  j->score = j->err_len = j->first_score = j->first_err = NULL;
+  return st;
 }
 
 /* ------------------------------------------------------------ stage: covariance */
@@ -873,7 +876,13 @@ static twf_status stage_asbuilt(job *j)
   twf_calib_result *res = j->res;
   int lines_fitted = (j->opt.groups & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
   int set;
-  twf_status st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
+  twf_status st;
+  size_t nm = j->c->n_meas ? j->c->n_meas : 1;
+  res->pos_err_after = calloc(3 * nm, sizeof(double));
+  res->angle_err_after = calloc(nm, sizeof(double));
+  if (res->pos_err_after == NULL || res->angle_err_after == NULL)
+    return nomem(j);
+  st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
   if (st != TWF_OK)
     return st;
   res->groups = j->opt.groups;

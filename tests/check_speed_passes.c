@@ -95,6 +95,69 @@ START_TEST(test_passes_same_bits_for_any_thread_count)
 }
 END_TEST
 
+/* One chunk (at most 64 poses): the batched, vectorised accumulation (an
+ * AVX or an SSE2 version of the kernel, whichever the processor runs)
+ * gives the bits of the plain loop written here, entry by entry
+ * A[a][b] += (w c0a) c0b + (w c1a) c1b + (w c2a) c2b over the rows of
+ * twf_errmodel_point, one measurement after another. */
+START_TEST(test_normal_matrix_bits_of_the_plain_loop)
+{
+  twf_model *m = test_arm_model(_i ? ARM_TF6S : ARM_TF7);
+  twf_pose B;
+  twf_campaign *c = campaign(m, _i ? ARM_TF6S : ARM_TF7, 60, 0, -1, &B);
+  unsigned char *use = malloc(c->n_meas);
+  twf_lsq_problem pr;
+  twf_errmodel *em;
+  double *A, *g, *A0, *g0, *rows;
+  size_t i, p, a, b, pose;
+  twf_error err;
+  for (i = 0; i < c->n_meas; i++)
+    use[i] = c->meas[i].set == TWF_SET_FIT;
+  ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
+  pr.base = B;
+  pr.n_threads = 1;
+  p = pr.p;
+  A = malloc(p * p * sizeof *A);
+  g = malloc(p * sizeof *g);
+  A0 = calloc(p * p, sizeof *A0);
+  g0 = calloc(p, sizeof *g0);
+  rows = malloc(3 * p * sizeof *rows);
+  twf_lsq_normal(&pr, NULL, p, A, g);
+  em = twf_errmodel_alloc(m, TWF_GROUPS_GEOMETRIC, NULL);
+  ck_assert(em != NULL && twf_errmodel_n_params(em) == p);
+  for (pose = 0; pose < c->n_poses; pose++) {
+    twf_errmodel_eval_pose(em, m, &B, c->q + pose * c->n_joints, NULL);
+    for (i = 0; i < c->n_meas; i++) {
+      double y[3], r[3], w;
+      int k;
+      if (c->meas[i].pose != pose || !twf_lsq_active(&pr, i))
+        continue;
+      twf_errmodel_point(em, m, c->meas[i].target, y, rows);
+      for (k = 0; k < 3; k++)
+        r[k] = c->meas[i].pos[k] - y[k];
+      w = pr.weight[i] * pr.inv_sigma[i] * pr.inv_sigma[i];
+      for (a = 0; a < p; a++) {
+        double u0 = w * rows[a], u1 = w * rows[p + a], u2 = w * rows[2 * p + a];
+        g0[a] += u0 * r[0] + u1 * r[1] + u2 * r[2];
+        for (b = a; b < p; b++)
+          A0[a * p + b] += u0 * rows[b] + u1 * rows[p + b] + u2 * rows[2 * p + b];
+      }
+    }
+  }
+  for (a = 0; a < p; a++) {
+    ck_assert_msg(memcmp(&g[a], &g0[a], sizeof(double)) == 0, "gradient %zu: %.17g against %.17g", a, g[a], g0[a]);
+    for (b = a; b < p; b++)
+      ck_assert_msg(memcmp(&A[a * p + b], &A0[a * p + b], sizeof(double)) == 0, "A[%zu][%zu]: %.17g against %.17g",
+                    a, b, A[a * p + b], A0[a * p + b]);
+  }
+  free(A); free(g); free(A0); free(g0); free(rows); free(use);
+  twf_errmodel_free(em);
+  twf_lsq_free(&pr);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
 static void same_bits(const void *a, const void *b, size_t n, const char *what, int threads)
 {
   ck_assert_msg(memcmp(a, b, n) == 0, "%s differs with %d threads", what, threads);
@@ -241,6 +304,7 @@ int main(void)
   tcase_set_timeout(tc, 120);
   tcase_add_loop_test(tc, test_passes_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_calibration_same_bits_for_any_thread_count, 0, 2);
+  tcase_add_loop_test(tc, test_normal_matrix_bits_of_the_plain_loop, 0, 2);
   tcase_add_loop_test(tc, test_blocked_factor_keeps_what_givens_kept, 0, 4 * ARM_COUNT);
   suite_add_tcase(s, tc);
   return twf_test_run(s);

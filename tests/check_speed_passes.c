@@ -158,6 +158,71 @@ START_TEST(test_normal_matrix_bits_of_the_plain_loop)
 }
 END_TEST
 
+/* The Householder block update, written out as plainly as possible: per
+ * column k the dot products with two partial sums (even and odd entries,
+ * added at the end), the reflection applied to one column after another.
+ * twf_ident_qr_add_block (two columns per loop, vector lanes) must give
+ * these bits. */
+static double plain_dot(const double *x, const double *y, size_t n)
+{
+  double d0 = 0.0, d1 = 0.0;
+  size_t i;
+  for (i = 0; i + 2 <= n; i += 2) {
+    d0 += x[i] * y[i];
+    d1 += x[i + 1] * y[i + 1];
+  }
+  if (i < n)
+    d0 += x[i] * y[i];
+  return d0 + d1;
+}
+
+static void plain_qr_add_block(double *R, size_t p, double *B, size_t m, int tri)
+{
+  size_t k, j, i;
+  for (k = 0; k < p; k++) {
+    size_t mk = tri ? (k + 1 < m ? k + 1 : m) : m;
+    double *x = B + k * m, alpha = R[k * p + k], sigma = plain_dot(x, x, mk), norm, beta, tau, scale;
+    if (sigma == 0.0)
+      continue;
+    norm = sqrt(alpha * alpha + sigma);
+    beta = alpha > 0.0 ? -norm : norm;
+    tau = (beta - alpha) / beta;
+    scale = 1.0 / (alpha - beta);
+    for (i = 0; i < mk; i++)
+      x[i] *= scale;
+    R[k * p + k] = beta;
+    for (j = k + 1; j < p; j++) {
+      double *y = B + j * m, d = (R[k * p + j] + plain_dot(x, y, mk)) * tau;
+      R[k * p + j] -= d;
+      for (i = 0; i < mk; i++)
+        y[i] -= d * x[i];
+    }
+  }
+}
+
+START_TEST(test_householder_block_bits_of_the_plain_loop)
+{
+  /* p odd and even, m odd and even, full and triangular blocks */
+  size_t p = 7 + (size_t)(_i % 2), m = _i < 2 ? 24 + (size_t)(_i % 2) : p, n, t;
+  int tri = _i >= 2;
+  unsigned long long seed = twf_test_seed(91 + (unsigned long long)_i);
+  double *R = calloc(p * p, sizeof *R), *R0 = calloc(p * p, sizeof *R0);
+  double *B = calloc(p * m, sizeof *B), *B0 = calloc(p * m, sizeof *B0);
+  for (t = 0; t < 5; t++) {
+    size_t j, r;
+    for (j = 0; j < p; j++)
+      for (r = 0; r < m; r++)
+        B[j * m + r] = tri && r > j ? 0.0 : 2.0 * twf_rng_uniform(&seed) - 1.0;
+    memcpy(B0, B, p * m * sizeof *B);
+    twf_ident_qr_add_block(R, p, B, m, tri);
+    plain_qr_add_block(R0, p, B0, m, tri);
+  }
+  for (n = 0; n < p * p; n++)
+    ck_assert_msg(memcmp(&R[n], &R0[n], sizeof(double)) == 0, "R entry %zu: %.17g against %.17g", n, R[n], R0[n]);
+  free(R); free(R0); free(B); free(B0);
+}
+END_TEST
+
 static void same_bits(const void *a, const void *b, size_t n, const char *what, int threads)
 {
   ck_assert_msg(memcmp(a, b, n) == 0, "%s differs with %d threads", what, threads);
@@ -305,6 +370,7 @@ int main(void)
   tcase_add_loop_test(tc, test_passes_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_calibration_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_normal_matrix_bits_of_the_plain_loop, 0, 2);
+  tcase_add_loop_test(tc, test_householder_block_bits_of_the_plain_loop, 0, 4);
   tcase_add_loop_test(tc, test_blocked_factor_keeps_what_givens_kept, 0, 4 * ARM_COUNT);
   suite_add_tcase(s, tc);
   return twf_test_run(s);

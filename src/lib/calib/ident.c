@@ -203,7 +203,7 @@ static inline v2d ld2(const double *p) { v2d v; memcpy(&v, p, sizeof v); return 
 static inline void st2(double *p, v2d v) { memcpy(p, &v, sizeof v); }
 #endif
 
-static double dot2(const double *x, const double *y, size_t n)
+static inline double dot2(const double *x, const double *y, size_t n)
 {
   double d0 = 0.0, d1 = 0.0;
   size_t i = 0;
@@ -224,7 +224,7 @@ static double dot2(const double *x, const double *y, size_t n)
   return d0 + d1;
 }
 
-static void axpy2(double d, const double *x, double *y, size_t n)
+static inline void axpy2(double d, const double *x, double *y, size_t n)
 {
   size_t i = 0;
 #if defined(__GNUC__)
@@ -238,7 +238,7 @@ static void axpy2(double d, const double *x, double *y, size_t n)
 /* dot2(x, y0, n) and dot2(x, y1, n) in one loop: two independent chains of
  * additions (the latency of one add no longer paces the loop), each the
  * operations of dot2 in its order, so the same bits. */
-static void dot2x2(const double *x, const double *y0, const double *y1, size_t n, double *out0, double *out1)
+static inline void dot2x2(const double *x, const double *y0, const double *y1, size_t n, double *out0, double *out1)
 {
   double a0 = 0.0, a1 = 0.0, b0 = 0.0, b1 = 0.0;
   size_t i = 0;

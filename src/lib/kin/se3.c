@@ -89,10 +89,29 @@ void twf_pose_identity(twf_pose *T)
   T->R[0][0] = T->R[1][1] = T->R[2][2] = 1.0;
 }
 
+#if defined(__GNUC__)
+/* Two lanes of the same scalar operations (GCC's vector extension). */
+typedef double se3_v2d __attribute__((vector_size(16)));
+#endif
+
 void twf_pose_mul(const twf_pose *A, const twf_pose *B, twf_pose *out)
 {
   twf_pose C;
+#if defined(__GNUC__)
+  /* columns 0 and 1 of each row of A->R B->R in two lanes, column 2
+   * alone: entry by entry the operations of mat3_mul, so the same bits */
+  se3_v2d b0, b1, b2;
+  memcpy(&b0, &B->R[0][0], sizeof b0);
+  memcpy(&b1, &B->R[1][0], sizeof b1);
+  memcpy(&b2, &B->R[2][0], sizeof b2);
+  for (int i = 0; i < 3; i++) {
+    se3_v2d r = A->R[i][0] * b0 + A->R[i][1] * b1 + A->R[i][2] * b2;
+    memcpy(&C.R[i][0], &r, sizeof r);
+    C.R[i][2] = A->R[i][0] * B->R[0][2] + A->R[i][1] * B->R[1][2] + A->R[i][2] * B->R[2][2];
+  }
+#else
   mat3_mul(A->R, B->R, C.R);
+#endif
   mat3_vec(A->R, B->p, C.p);
   for (int i = 0; i < 3; i++)
     C.p[i] += A->p[i];

@@ -477,8 +477,12 @@ typedef double v4d __attribute__((vector_size(32)));
 
 /* Rows a, a + 1 of A (stride ld), columns b .. b + w (w = 2 or 4), gain
  * the batch's updates in order. */
-static inline __attribute__((always_inline)) void batch_tile(const row_batch *bt, size_t a, size_t b, size_t w,
-                                                               double *A)
+#if defined(__GNUC__)
+#define TWF_TILE_INLINE __attribute__((always_inline))
+#else
+#define TWF_TILE_INLINE
+#endif
+static inline TWF_TILE_INLINE void batch_tile(const row_batch *bt, size_t a, size_t b, size_t w, double *A)
 {
   size_t ld = bt->ld, k;
   double *A0 = A + a * ld + b, *A1 = A0 + ld;

@@ -677,6 +677,35 @@ START_TEST(test_orthonormality_error)
 }
 END_TEST
 
+/* The product of poses (two vector lanes for columns 0 and 1) gives the
+ * bits of the written-out product, also when the output is an input. */
+START_TEST(test_pose_mul_bits_of_the_plain_product)
+{
+  twf_test_rng rng;
+  int t, i, j;
+  twf_test_rng_init(&rng, twf_test_seed(4711));
+  for (t = 0; t < 200; t++) {
+    twf_pose A, B, C, P, Aa, Bb;
+    rand_pose(&rng, &A);
+    rand_pose(&rng, &B);
+    for (i = 0; i < 3; i++) {
+      for (j = 0; j < 3; j++)
+        P.R[i][j] = A.R[i][0] * B.R[0][j] + A.R[i][1] * B.R[1][j] + A.R[i][2] * B.R[2][j];
+      P.p[i] = (A.R[i][0] * B.p[0] + A.R[i][1] * B.p[1] + A.R[i][2] * B.p[2]) + A.p[i];
+    }
+    twf_pose_mul(&A, &B, &C);
+    ck_assert_msg(memcmp(&C, &P, sizeof C) == 0, "pose %d", t);
+    Aa = A;
+    twf_pose_mul(&Aa, &B, &Aa);
+    ck_assert(memcmp(&Aa, &P, sizeof P) == 0);
+    Bb = B;
+    twf_pose_mul(&A, &Bb, &Bb);
+    ck_assert(memcmp(&Bb, &P, sizeof P) == 0);
+  }
+}
+END_TEST
+
+
 static Suite *se3_suite(void)
 {
   Suite *s = suite_create("se3");
@@ -693,6 +722,7 @@ static Suite *se3_suite(void)
   tcase_add_test(tc, test_quat_known_and_roundtrip);
   tcase_add_test(tc, test_rpy_known_and_roundtrip);
   tcase_add_test(tc, test_adjoint);
+  tcase_add_test(tc, test_pose_mul_bits_of_the_plain_product);
   tcase_add_test(tc, test_pose_inverse_and_aliasing);
   tcase_add_test(tc, test_angle_between);
   tcase_add_test(tc, test_orthonormality_error);

@@ -95,6 +95,134 @@ START_TEST(test_passes_same_bits_for_any_thread_count)
 }
 END_TEST
 
+/* One chunk (at most 64 poses): the batched, vectorised accumulation (an
+ * AVX or an SSE2 version of the kernel, whichever the processor runs)
+ * gives the bits of the plain loop written here, entry by entry
+ * A[a][b] += (w c0a) c0b + (w c1a) c1b + (w c2a) c2b over the rows of
+ * twf_errmodel_point, one measurement after another. */
+START_TEST(test_normal_matrix_bits_of_the_plain_loop)
+{
+  twf_model *m = test_arm_model(_i ? ARM_TF6S : ARM_TF7);
+  twf_pose B;
+  twf_campaign *c = campaign(m, _i ? ARM_TF6S : ARM_TF7, 60, 0, -1, &B);
+  unsigned char *use = malloc(c->n_meas);
+  twf_lsq_problem pr;
+  twf_errmodel *em;
+  double *A, *g, *A0, *g0, *rows;
+  size_t i, p, a, b, pose;
+  twf_error err;
+  for (i = 0; i < c->n_meas; i++)
+    use[i] = c->meas[i].set == TWF_SET_FIT;
+  ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
+  pr.base = B;
+  pr.n_threads = 1;
+  p = pr.p;
+  A = malloc(p * p * sizeof *A);
+  g = malloc(p * sizeof *g);
+  A0 = calloc(p * p, sizeof *A0);
+  g0 = calloc(p, sizeof *g0);
+  rows = malloc(3 * p * sizeof *rows);
+  twf_lsq_normal(&pr, NULL, p, A, g);
+  em = twf_errmodel_alloc(m, TWF_GROUPS_GEOMETRIC, NULL);
+  ck_assert(em != NULL && twf_errmodel_n_params(em) == p);
+  for (pose = 0; pose < c->n_poses; pose++) {
+    twf_errmodel_eval_pose(em, m, &B, c->q + pose * c->n_joints, NULL);
+    for (i = 0; i < c->n_meas; i++) {
+      double y[3], r[3], w;
+      int k;
+      if (c->meas[i].pose != pose || !twf_lsq_active(&pr, i))
+        continue;
+      twf_errmodel_point(em, m, c->meas[i].target, y, rows);
+      for (k = 0; k < 3; k++)
+        r[k] = c->meas[i].pos[k] - y[k];
+      w = pr.weight[i] * pr.inv_sigma[i] * pr.inv_sigma[i];
+      for (a = 0; a < p; a++) {
+        double u0 = w * rows[a], u1 = w * rows[p + a], u2 = w * rows[2 * p + a];
+        g0[a] += u0 * r[0] + u1 * r[1] + u2 * r[2];
+        for (b = a; b < p; b++)
+          A0[a * p + b] += u0 * rows[b] + u1 * rows[p + b] + u2 * rows[2 * p + b];
+      }
+    }
+  }
+  for (a = 0; a < p; a++) {
+    ck_assert_msg(memcmp(&g[a], &g0[a], sizeof(double)) == 0, "gradient %zu: %.17g against %.17g", a, g[a], g0[a]);
+    for (b = a; b < p; b++)
+      ck_assert_msg(memcmp(&A[a * p + b], &A0[a * p + b], sizeof(double)) == 0, "A[%zu][%zu]: %.17g against %.17g",
+                    a, b, A[a * p + b], A0[a * p + b]);
+  }
+  free(A); free(g); free(A0); free(g0); free(rows); free(use);
+  twf_errmodel_free(em);
+  twf_lsq_free(&pr);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
+/* The Householder block update, written out as plainly as possible: per
+ * column k the dot products with two partial sums (even and odd entries,
+ * added at the end), the reflection applied to one column after another.
+ * twf_ident_qr_add_block (two columns per loop, vector lanes) must give
+ * these bits. */
+static double plain_dot(const double *x, const double *y, size_t n)
+{
+  double d0 = 0.0, d1 = 0.0;
+  size_t i;
+  for (i = 0; i + 2 <= n; i += 2) {
+    d0 += x[i] * y[i];
+    d1 += x[i + 1] * y[i + 1];
+  }
+  if (i < n)
+    d0 += x[i] * y[i];
+  return d0 + d1;
+}
+
+static void plain_qr_add_block(double *R, size_t p, double *B, size_t m, int tri)
+{
+  size_t k, j, i;
+  for (k = 0; k < p; k++) {
+    size_t mk = tri ? (k + 1 < m ? k + 1 : m) : m;
+    double *x = B + k * m, alpha = R[k * p + k], sigma = plain_dot(x, x, mk), norm, beta, tau, scale;
+    if (sigma == 0.0)
+      continue;
+    norm = sqrt(alpha * alpha + sigma);
+    beta = alpha > 0.0 ? -norm : norm;
+    tau = (beta - alpha) / beta;
+    scale = 1.0 / (alpha - beta);
+    for (i = 0; i < mk; i++)
+      x[i] *= scale;
+    R[k * p + k] = beta;
+    for (j = k + 1; j < p; j++) {
+      double *y = B + j * m, d = (R[k * p + j] + plain_dot(x, y, mk)) * tau;
+      R[k * p + j] -= d;
+      for (i = 0; i < mk; i++)
+        y[i] -= d * x[i];
+    }
+  }
+}
+
+START_TEST(test_householder_block_bits_of_the_plain_loop)
+{
+  /* p odd and even, m odd and even, full and triangular blocks */
+  size_t p = 7 + (size_t)(_i % 2), m = _i < 2 ? 24 + (size_t)(_i % 2) : p, n, t;
+  int tri = _i >= 2;
+  unsigned long long seed = twf_test_seed(91 + (unsigned long long)_i);
+  double *R = calloc(p * p, sizeof *R), *R0 = calloc(p * p, sizeof *R0);
+  double *B = calloc(p * m, sizeof *B), *B0 = calloc(p * m, sizeof *B0);
+  for (t = 0; t < 5; t++) {
+    size_t j, r;
+    for (j = 0; j < p; j++)
+      for (r = 0; r < m; r++)
+        B[j * m + r] = tri && r > j ? 0.0 : 2.0 * twf_rng_uniform(&seed) - 1.0;
+    memcpy(B0, B, p * m * sizeof *B);
+    twf_ident_qr_add_block(R, p, B, m, tri);
+    plain_qr_add_block(R0, p, B0, m, tri);
+  }
+  for (n = 0; n < p * p; n++)
+    ck_assert_msg(memcmp(&R[n], &R0[n], sizeof(double)) == 0, "R entry %zu: %.17g against %.17g", n, R[n], R0[n]);
+  free(R); free(R0); free(B); free(B0);
+}
+END_TEST
+
 static void same_bits(const void *a, const void *b, size_t n, const char *what, int threads)
 {
   ck_assert_msg(memcmp(a, b, n) == 0, "%s differs with %d threads", what, threads);
@@ -241,6 +369,8 @@ int main(void)
   tcase_set_timeout(tc, 120);
   tcase_add_loop_test(tc, test_passes_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_calibration_same_bits_for_any_thread_count, 0, 2);
+  tcase_add_loop_test(tc, test_normal_matrix_bits_of_the_plain_loop, 0, 2);
+  tcase_add_loop_test(tc, test_householder_block_bits_of_the_plain_loop, 0, 4);
   tcase_add_loop_test(tc, test_blocked_factor_keeps_what_givens_kept, 0, 4 * ARM_COUNT);
   suite_add_tcase(s, tc);
   return twf_test_run(s);

@@ -539,7 +539,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
 
 /* --resample: the bootstrap's spreads beside the covariance figures. */
 static int print_resample(FILE *fp, const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
-                          const cli_units *u, size_t n)
+                          const cli_units *u, size_t n, twf_resample_result **keep, twf_warnings *keep_w)
 {
   twf_resample_result *rs = NULL;
   twf_warnings w;
@@ -567,9 +567,47 @@ static int print_resample(FILE *fp, const cli_inputs *in, const twf_calib_result
             rs->check_base[0] / u->length_si, u->length, rs->check_mean[0] / u->length_si, rs->check_std[0] / u->length_si,
             rs->check_base[2] / u->length_si, u->length, rs->check_mean[2] / u->length_si, rs->check_std[2] / u->length_si);
   cli_print_warnings(&w);
-  twf_warnings_clear(&w);
-  twf_resample_result_free(rs);
+  *keep = rs;
+  *keep_w = w;
   return TWF_EXIT_OK;
+}
+
+/* The member "resample" of --json: the same figures as the text, lengths
+ * and angles in the report's units (null where a figure is missing). */
+static json_t *resample_json(const twf_resample_result *rs, const twf_calib_result *r, const cli_units *u,
+                             const twf_warnings *w)
+{
+  static const char *const fig[TWF_RESAMPLE_FIGURES] = { "rms", "p95", "max" };
+  json_t *params = json_array(), *warn = json_array(), *check = json_object(), *o;
+  size_t k;
+  for (k = 0; k < rs->n_params; k++) {
+    const twf_param_result *p = &r->params[k];
+    const twf_resample_param *q = &rs->params[k];
+    const char *unit;
+    if (p->status != TWF_PARAM_KEPT)
+      continue;
+    o = json_pack("{s:s, s:s, s:I}", "group", twf_group_name(p->param.group), "name", p->param.name, "refits",
+                  (json_int_t)q->n);
+    json_object_set_new(o, "std", cli_json_number(param_shown(&p->param, p->std, u, &unit)));
+    json_object_set_new(o, "resampled_std", cli_json_number(param_shown(&p->param, q->std, u, &unit)));
+    json_object_set_new(o, "change", cli_json_number(param_shown(&p->param, p->change, u, &unit)));
+    json_object_set_new(o, "resampled_mean_change", cli_json_number(param_shown(&p->param, q->mean, u, &unit)));
+    json_object_set_new(o, "unit", json_string(unit));
+    json_object_set_new(o, "ratio", cli_json_number(q->ratio));
+    json_object_set_new(o, "disagree", json_boolean(q->disagree));
+    json_array_append_new(params, o);
+  }
+  for (k = 0; rs->n_check > 0 && k < TWF_RESAMPLE_FIGURES; k++)
+    json_object_set_new(check, fig[k],
+                        json_pack("{s:o, s:o, s:o}", "value", cli_json_number(rs->check_base[k] / u->length_si),
+                                  "resampled_mean", cli_json_number(rs->check_mean[k] / u->length_si),
+                                  "resampled_std", cli_json_number(rs->check_std[k] / u->length_si)));
+  for (k = 0; k < w->count; k++)
+    json_array_append_new(warn, json_string(w->items[k].message));
+  return json_pack("{s:I, s:I, s:I, s:I, s:o, s:o, s:o}", "refits", (json_int_t)rs->n_refits, "refused",
+                   (json_int_t)(rs->n_refits - rs->n_ok), "seed", (json_int_t)rs->seed, "refits_with_check",
+                   (json_int_t)rs->n_check, "parameters", params, "check", rs->n_check > 0 ? check : json_null(),
+                   "warnings", warn);
 }
 
 static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
@@ -797,11 +835,14 @@ static int run_calibrate(int argc, char **argv)
   json_t *root = NULL;
   digest dg[6];
   size_t n_dg = 0, i, n_reader_warnings = 0, n_resample = 0;
+  twf_resample_result *resampled = NULL;
+  twf_warnings resample_w;
   char created[64], cmdline[1024];
   FILE *txt = stdout;
 
   cli_inputs_init(&in);
   twf_warnings_init(&warnings);
+  twf_warnings_init(&resample_w);
   /* the command line as typed, before getopt reorders argv */
   {
     size_t used = 0;
@@ -1063,7 +1104,8 @@ static int run_calibrate(int argc, char **argv)
     goto done;
   }
   print_report(txt, &in, res, &co, &u, dg, n_dg, created, &warnings);
-  if (n_resample > 0 && (status = print_resample(txt, &in, res, &co, &u, n_resample)) != TWF_EXIT_OK)
+  if (n_resample > 0 &&
+      (status = print_resample(txt, &in, res, &co, &u, n_resample, &resampled, &resample_w)) != TWF_EXIT_OK)
     goto done;
   {
     cli_put puts[4];
@@ -1081,6 +1123,8 @@ static int run_calibrate(int argc, char **argv)
       weights[res->outliers[k].meas] = res->outliers[k].weight;
     if (json_path != NULL)
       root = report_json(&in, res, &co, &u, dg, n_dg, created, &warnings);
+    if (root != NULL && resampled != NULL)
+      json_object_set_new(root, "resample", resample_json(resampled, res, &u, &resample_w));
     cli_json_add_predicted(root, res, in.model, in.campaign, &co, &u);
     memset(&rr, 0, sizeof rr);
     rr.m = in.model;
@@ -1106,6 +1150,8 @@ static int run_calibrate(int argc, char **argv)
 
 done:
   json_decref(root);
+  twf_resample_result_free(resampled);
+  twf_warnings_clear(&resample_w);
   twf_calib_result_free(res);
   twf_warnings_clear(&warnings);
   cli_inputs_free(&in);

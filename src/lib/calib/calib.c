@@ -197,12 +197,11 @@ static twf_status job_alloc_result(job *j)
   res->n_meas = c->n_meas;
   res->meas_set = calloc(nm, sizeof *res->meas_set);
   res->pos_err_before = calloc(3 * nm, sizeof(double));
-  res->pos_err_after = calloc(3 * nm, sizeof(double));
   res->angle_err_before = calloc(nm, sizeof(double));
-  res->angle_err_after = calloc(nm, sizeof(double));
   res->joint_range = calloc(j->start->n_joints ? j->start->n_joints : 1, sizeof(double));
-  if (!res->meas_set || !res->pos_err_before || !res->pos_err_after || !res->angle_err_before ||
-      !res->angle_err_after || !res->joint_range)
+  /* pos_err_after and angle_err_after: at the as-built summary, so that
+   * they do not add to the registration's peak memory */
+  if (!res->meas_set || !res->pos_err_before || !res->angle_err_before || !res->joint_range)
     return nomem(j);
   return TWF_OK;
 }
@@ -251,22 +250,33 @@ static twf_status stage_sets(job *j)
   const twf_campaign *c = j->c;
   twf_calib_result *res = j->res;
   unsigned char *held = calloc(c->n_poses ? c->n_poses : 1, 1);
-  size_t i;
-  j->view_meas = malloc((c->n_meas ? c->n_meas : 1) * sizeof *j->view_meas);
-  if (held == NULL || j->view_meas == NULL) {
-    free(held);
+  size_t i, n_moved = 0;
+  if (held == NULL)
     return nomem(j);
-  }
   if (j->opt.check_fraction > 0) {
     unsigned long long s = j->opt.seed ^ 0x5deece66dULL;
     for (i = 0; i < c->n_poses; i++)
       held[i] = twf_rng_uniform(&s) < j->opt.check_fraction;
   }
-  memcpy(j->view_meas, c->meas, c->n_meas * sizeof *j->view_meas);
   for (i = 0; i < c->n_meas; i++) {
     const twf_measurement *ms = &c->meas[i];
     res->meas_set[i] = ms->set == TWF_SET_CHECK || held[ms->pose] ? TWF_SET_CHECK : TWF_SET_FIT;
-    j->view_meas[i].set = res->meas_set[i];
+    n_moved += res->meas_set[i] != ms->set;
+  }
+  /* A copy of the measurements (the size of the campaign) only when the
+   * held-out fraction moved rows; else the view is the campaign itself. */
+  if (n_moved > 0) {
+    j->view_meas = malloc((c->n_meas ? c->n_meas : 1) * sizeof *j->view_meas);
+    if (j->view_meas == NULL) {
+      free(held);
+      return nomem(j);
+    }
+    memcpy(j->view_meas, c->meas, c->n_meas * sizeof *j->view_meas);
+  }
+  for (i = 0; i < c->n_meas; i++) {
+    const twf_measurement *ms = &c->meas[i];
+    if (j->view_meas != NULL)
+      j->view_meas[i].set = res->meas_set[i];
     j->use[i] = res->meas_set[i] == TWF_SET_FIT;
     if (j->use[i]) {
       res->n_fit_meas++;
@@ -279,7 +289,8 @@ static twf_status stage_sets(job *j)
   }
   free(held);
   j->view = *c;
-  j->view.meas = j->view_meas;
+  if (j->view_meas != NULL)
+    j->view.meas = j->view_meas;
   if (res->n_fit_meas == 0)
     return twf_error_set(j->err, TWF_ERR_DEGENERATE, NULL, 0, 0,
                          "tag fewer rows as check data or lower the held-out fraction",
@@ -601,7 +612,11 @@ static twf_status stage_robust(job *j)
       break;
     }
   }
-  return list_outliers(j);
+  st = list_outliers(j);
+  /* the screen's per-measurement figures are in the outlier list now */
+  free(j->score); free(j->err_len); free(j->first_score); free(j->first_err);
+  j->score = j->err_len = j->first_score = j->first_err = NULL;
+  return st;
 }
 
 /* ------------------------------------------------------------ stage: covariance */
@@ -861,7 +876,13 @@ static twf_status stage_asbuilt(job *j)
   twf_calib_result *res = j->res;
   int lines_fitted = (j->opt.groups & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
   int set;
-  twf_status st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
+  twf_status st;
+  size_t nm = j->c->n_meas ? j->c->n_meas : 1;
+  res->pos_err_after = calloc(3 * nm, sizeof(double));
+  res->angle_err_after = calloc(nm, sizeof(double));
+  if (res->pos_err_after == NULL || res->angle_err_after == NULL)
+    return nomem(j);
+  st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
   if (st != TWF_OK)
     return st;
   res->groups = j->opt.groups;

@@ -210,7 +210,7 @@ static inline v2d ld2(const double *p) { v2d v; memcpy(&v, p, sizeof v); return 
 static inline void st2(double *p, v2d v) { memcpy(p, &v, sizeof v); }
 #endif
 
-static double dot2(const double *x, const double *y, size_t n)
+static inline double dot2(const double *x, const double *y, size_t n)
 {
   double d0 = 0.0, d1 = 0.0;
   size_t i = 0;
@@ -231,7 +231,7 @@ static double dot2(const double *x, const double *y, size_t n)
   return d0 + d1;
 }
 
-static void axpy2(double d, const double *x, double *y, size_t n)
+static inline void axpy2(double d, const double *x, double *y, size_t n)
 {
   size_t i = 0;
 #if defined(__GNUC__)
@@ -240,6 +240,40 @@ static void axpy2(double d, const double *x, double *y, size_t n)
 #endif
   for (; i < n; i++)
     y[i] -= d * x[i];
+}
+
+/* dot2(x, y0, n) and dot2(x, y1, n) in one loop: two independent chains of
+ * additions (the latency of one add no longer paces the loop), each the
+ * operations of dot2 in its order, so the same bits. */
+static inline void dot2x2(const double *x, const double *y0, const double *y1, size_t n, double *out0, double *out1)
+{
+  double a0 = 0.0, a1 = 0.0, b0 = 0.0, b1 = 0.0;
+  size_t i = 0;
+#if defined(__GNUC__)
+  v2d acc0 = { 0.0, 0.0 }, acc1 = { 0.0, 0.0 };
+  for (; i + 2 <= n; i += 2) {
+    v2d xv = ld2(x + i);
+    acc0 += xv * ld2(y0 + i);
+    acc1 += xv * ld2(y1 + i);
+  }
+  a0 = acc0[0];
+  a1 = acc0[1];
+  b0 = acc1[0];
+  b1 = acc1[1];
+#else
+  for (; i + 2 <= n; i += 2) {
+    a0 += x[i] * y0[i];
+    a1 += x[i + 1] * y0[i + 1];
+    b0 += x[i] * y1[i];
+    b1 += x[i + 1] * y1[i + 1];
+  }
+#endif
+  if (i < n) {
+    a0 += x[i] * y0[i];
+    b0 += x[i] * y1[i];
+  }
+  *out0 = a0 + a1;
+  *out1 = b0 + b1;
 }
 
 void twf_ident_qr_add_block(double *R, size_t p, double *B, size_t m, int tri)
@@ -261,7 +295,17 @@ void twf_ident_qr_add_block(double *R, size_t p, double *B, size_t m, int tri)
     for (i = 0; i < mk; i++)
       x[i] *= scale;
     R[k * p + k] = beta;
-    for (j = k + 1; j < p; j++) {
+    for (j = k + 1; j + 1 < p; j += 2) {
+      double *y0 = B + j * m, *y1 = y0 + m, e0, e1, d0, d1;
+      dot2x2(x, y0, y1, mk, &e0, &e1);
+      d0 = (R[k * p + j] + e0) * tau;
+      d1 = (R[k * p + j + 1] + e1) * tau;
+      R[k * p + j] -= d0;
+      R[k * p + j + 1] -= d1;
+      axpy2(d0, x, y0, mk);
+      axpy2(d1, x, y1, mk);
+    }
+    for (; j < p; j++) {
       double *y = B + j * m, d = R[k * p + j] + dot2(x, y, mk);
       d *= tau;
       R[k * p + j] -= d;

@@ -461,28 +461,50 @@ typedef struct row_batch {
 typedef double v2d __attribute__((vector_size(16)));
 static inline v2d ld2(const double *p) { v2d v; memcpy(&v, p, sizeof v); return v; }
 static inline void st2(double *p, v2d v) { memcpy(p, &v, sizeof v); }
+typedef double v4d __attribute__((vector_size(32)));
+#endif
+
+/* batch_flush in two versions chosen at load time (GCC's function
+ * multiversioning, x86-64 Linux): with AVX, four lanes per instruction,
+ * else the SSE2 of the baseline. AVX without FMA rounds every product and
+ * sum as SSE2 does, so both give the same bits. */
+#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) && defined(__linux__) && \
+    !defined(__SANITIZE_ADDRESS__)
+#define TWF_BATCH_CLONES __attribute__((target_clones("avx", "default")))
+#else
+#define TWF_BATCH_CLONES
 #endif
 
 /* Rows a, a + 1 of A (stride ld), columns b .. b + w (w = 2 or 4), gain
  * the batch's updates in order. */
-static void batch_tile(const row_batch *bt, size_t a, size_t b, size_t w, double *A)
+#if defined(__GNUC__)
+#define TWF_TILE_INLINE __attribute__((always_inline))
+#else
+#define TWF_TILE_INLINE
+#endif
+static inline TWF_TILE_INLINE void batch_tile(const row_batch *bt, size_t a, size_t b, size_t w, double *A)
 {
   size_t ld = bt->ld, k;
   double *A0 = A + a * ld + b, *A1 = A0 + ld;
 #if defined(__GNUC__)
   if (w == 4) {
-    v2d s00 = ld2(A0), s01 = ld2(A0 + 2), s10 = ld2(A1), s11 = ld2(A1 + 2);
+    /* four lanes (one AVX register where batch_flush's clone has AVX,
+     * two SSE2 registers otherwise): the same operations per entry */
+    v4d s0, s1;
+    memcpy(&s0, A0, sizeof s0);
+    memcpy(&s1, A1, sizeof s1);
     for (k = 0; k < bt->n; k++) {
       const double *c = bt->c + 3 * k * ld + b, *wc = bt->wc + 3 * k * ld + a;
       double u0 = wc[0], u1 = wc[ld], u2 = wc[2 * ld], v0 = wc[1], v1 = wc[ld + 1], v2 = wc[2 * ld + 1];
-      v2d c0l = ld2(c), c0h = ld2(c + 2), c1l = ld2(c + ld), c1h = ld2(c + ld + 2);
-      v2d c2l = ld2(c + 2 * ld), c2h = ld2(c + 2 * ld + 2);
-      s00 += u0 * c0l + u1 * c1l + u2 * c2l;
-      s01 += u0 * c0h + u1 * c1h + u2 * c2h;
-      s10 += v0 * c0l + v1 * c1l + v2 * c2l;
-      s11 += v0 * c0h + v1 * c1h + v2 * c2h;
+      v4d c0, c1, c2;
+      memcpy(&c0, c, sizeof c0);
+      memcpy(&c1, c + ld, sizeof c1);
+      memcpy(&c2, c + 2 * ld, sizeof c2);
+      s0 += u0 * c0 + u1 * c1 + u2 * c2;
+      s1 += v0 * c0 + v1 * c1 + v2 * c2;
     }
-    st2(A0, s00); st2(A0 + 2, s01); st2(A1, s10); st2(A1 + 2, s11);
+    memcpy(A0, &s0, sizeof s0);
+    memcpy(A1, &s1, sizeof s1);
     return;
   }
   {
@@ -513,7 +535,7 @@ static void batch_tile(const row_batch *bt, size_t a, size_t b, size_t w, double
 /* A (nc rows of stride ld, upper triangle) and g gain the batch's updates
  * in order: entry by entry the operations of one update after another
  * (the tiles also fill a few entries below the diagonal, unused). */
-static void batch_flush(row_batch *bt, size_t nc, double *A, double *g)
+TWF_BATCH_CLONES static void batch_flush(row_batch *bt, size_t nc, double *A, double *g)
 {
   size_t a, b, k, ld = bt->ld, n = bt->n;
   for (a = 0; a < nc; a += 2) {

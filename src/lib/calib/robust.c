@@ -70,24 +70,27 @@ twf_status twf_robust_screen(twf_lsq_problem *pr, twf_robust mode, double k, dou
 {
   const twf_campaign *c = pr->c;
   size_t i, cap = c->n_meas ? c->n_meas : 1;
-  double *comp = malloc(3 * cap * sizeof *comp);
   double *pos = malloc(3 * cap * sizeof *pos);
   double *rot = malloc(cap * sizeof *rot);
-  double *rs = malloc(cap * sizeof *rs);
   double s, s_rot;
   twf_status st = TWF_ERR_NOMEM;
   *changed = 0;
-  if (comp == NULL || pos == NULL || rot == NULL || rs == NULL ||
-      twf_lsq_residuals(pr->m, &pr->base, c, pos, rot, NULL) != TWF_OK)
+  if (pos == NULL || rot == NULL || twf_lsq_residuals(pr->m, &pr->base, c, pos, rot, NULL) != TWF_OK)
     goto done;
-  robust_scales(pr, pos, rot, comp, rs, &s, &s_rot);
-  for (i = 0; i < c->n_meas; i++) {
-    double len = sqrt(pos[3 * i] * pos[3 * i] + pos[3 * i + 1] * pos[3 * i + 1] +
+  for (i = 0; i < c->n_meas; i++)
+    err_len[i] = sqrt(pos[3 * i] * pos[3 * i] + pos[3 * i + 1] * pos[3 * i + 1] +
                       pos[3 * i + 2] * pos[3 * i + 2]);
+  /* score takes the rotation errors, and the residuals become the
+   * workspace of the scales in place (robust_scales writes entry n <= 3 i
+   * only after reading entry 3 i): no arrays of the campaign's size beyond
+   * these two */
+  memcpy(score, rot, c->n_meas * sizeof *score);
+  robust_scales(pr, pos, score, pos, rot, &s, &s_rot);
+  for (i = 0; i < c->n_meas; i++) {
+    double len = err_len[i];
     double u = len * pr->inv_sigma[i] / s, w;
     if (c->meas[i].has_orientation && s_rot > 0)
-      u = fmax(u, rot[i] * pr->inv_sigma_rot / s_rot);
-    err_len[i] = len;
+      u = fmax(u, score[i] * pr->inv_sigma_rot / s_rot);
     score[i] = u;
     if (!pr->use[i])
       continue;
@@ -100,10 +103,8 @@ twf_status twf_robust_screen(twf_lsq_problem *pr, twf_robust mode, double k, dou
   }
   st = TWF_OK;
 done:
-  free(comp);
   free(pos);
   free(rot);
-  free(rs);
   return st;
 }
 

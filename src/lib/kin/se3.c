@@ -14,7 +14,7 @@
 
 /* ------------------------------------------------------------ helpers */
 
-static void mat3_mul(const double A[3][3], const double B[3][3], double out[3][3])
+static inline void mat3_mul(const double A[3][3], const double B[3][3], double out[3][3])
 {
   double T[3][3];
   for (int i = 0; i < 3; i++)
@@ -23,7 +23,7 @@ static void mat3_mul(const double A[3][3], const double B[3][3], double out[3][3
   memcpy(out, T, sizeof T);
 }
 
-static void mat3_vec(const double A[3][3], const double x[3], double out[3])
+static inline void mat3_vec(const double A[3][3], const double x[3], double out[3])
 {
   double y0 = A[0][0] * x[0] + A[0][1] * x[1] + A[0][2] * x[2];
   double y1 = A[1][0] * x[0] + A[1][1] * x[1] + A[1][2] * x[2];
@@ -38,7 +38,7 @@ static void mat3_vec(const double A[3][3], const double x[3], double out[3])
  * closed forms would divide 0 by 0 or cancel: a and b below 1e-3
  * (truncation below 1e-22), c below 0.1 (terms to x^10, truncation below
  * 1e-19 relative; the closed form of c loses digits to x - sin x). */
-static void exp_coefs(double x, double *a, double *b, double *c)
+static inline void exp_coefs(double x, double *a, double *b, double *c)
 {
   double x2 = x * x;
   double s = 0.0, h = 1.0;
@@ -89,10 +89,29 @@ void twf_pose_identity(twf_pose *T)
   T->R[0][0] = T->R[1][1] = T->R[2][2] = 1.0;
 }
 
+#if defined(__GNUC__)
+/* Two lanes of the same scalar operations (GCC's vector extension). */
+typedef double se3_v2d __attribute__((vector_size(16)));
+#endif
+
 void twf_pose_mul(const twf_pose *A, const twf_pose *B, twf_pose *out)
 {
   twf_pose C;
+#if defined(__GNUC__)
+  /* columns 0 and 1 of each row of A->R B->R in two lanes, column 2
+   * alone: entry by entry the operations of mat3_mul, so the same bits */
+  se3_v2d b0, b1, b2;
+  memcpy(&b0, &B->R[0][0], sizeof b0);
+  memcpy(&b1, &B->R[1][0], sizeof b1);
+  memcpy(&b2, &B->R[2][0], sizeof b2);
+  for (int i = 0; i < 3; i++) {
+    se3_v2d r = A->R[i][0] * b0 + A->R[i][1] * b1 + A->R[i][2] * b2;
+    memcpy(&C.R[i][0], &r, sizeof r);
+    C.R[i][2] = A->R[i][0] * B->R[0][2] + A->R[i][1] * B->R[1][2] + A->R[i][2] * B->R[2][2];
+  }
+#else
   mat3_mul(A->R, B->R, C.R);
+#endif
   mat3_vec(A->R, B->p, C.p);
   for (int i = 0; i < 3; i++)
     C.p[i] += A->p[i];
@@ -152,7 +171,7 @@ void twf_se3_hat(const double S[6], double X[4][4])
 
 /* R = I + a hat(phi) + b hat(phi)^2, written out: hat(phi)^2 = phi phi^T
  * - |phi|^2 I. */
-static void rot_from_coefs(const double phi[3], double a, double b, double R[3][3])
+static inline void rot_from_coefs(const double phi[3], double a, double b, double R[3][3])
 {
   double x = phi[0], y = phi[1], z = phi[2];
   double xx = x * x, yy = y * y, zz = z * z;

@@ -224,6 +224,24 @@ json_t *cli_json_pose(const twf_pose *T, const cli_units *u);
 json_t *cli_json_stats(const twf_stats *s, double unit);
 json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
                           const twf_campaign *c, const cli_units *u);
+/* The per-measurement array of a --json report, one entry per
+ * measurement in campaign order: index, line (source line, 0 when none),
+ * pose, target, set ("fit"/"check", from sets when given, else the
+ * campaign's), excluded (null, or why the figures leave it out: "dropped"
+ * by the robust screen, "flagged" as a gross error of the check set,
+ * "registration" left out of the registration), weight (the final fit
+ * weight; 1 unless the screen changed it), joints (logged values, report
+ * units: angle unit for revolute, length unit for prismatic joints), and
+ * one error object per model given, named by names[k], with position (the
+ * length of measured - model), xyz (its components, instrument frame) in
+ * the length unit, and angle (angle unit; null for point rows).
+ * excluded_code: NULL or n_meas codes (TWF_EXCLUDED_DROPPED,
+ * TWF_EXCLUDED_FLAGGED, or any other non-zero value: "registration").
+ * outliers (NULL or n_outliers) give the weights. */
+json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const twf_meas_set *sets,
+                              size_t n_models, const char *const *names, const double *const *pos_err,
+                              const double *const *angle_err, const unsigned char *excluded_code,
+                              const twf_outlier *outliers, size_t n_outliers, const cli_units *u);
 /* cli_put writer of a JSON document (ctx: json_t *). */
 int cli_put_json(FILE *fp, void *ctx, twf_error *err);
 /* Per-measurement residual CSV with one or two variants (labels such as

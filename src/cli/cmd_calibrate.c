@@ -705,6 +705,15 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                           cli_json_number(o->score), "weight", cli_json_number(o->weight)));
   }
   json_object_set_new(root, "outliers", outl);
+  {
+    static const char *const names[2] = { "before", "after" };
+    const double *pe[2] = { r->pos_err_before, r->pos_err_after };
+    const double *ae[2] = { r->angle_err_before, r->angle_err_after };
+    json_t *meas = cli_json_measurements(view, m, r->meas_set, 2, names, pe, ae, r->excluded, r->outliers,
+                                         r->n_outliers, u);
+    if (meas != NULL)
+      json_object_set_new(root, "measurements", meas);
+  }
   for (j = 0; j < m->n_joints; j++) {
     const twf_joint_deviation *d = &r->comparison.joints[j];
     int rev = m->joints[j].type == TWF_JOINT_REVOLUTE;

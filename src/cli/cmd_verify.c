@@ -405,6 +405,14 @@ static int run_verify(int argc, char **argv)
       json_object_set_new(root, "accuracy", cli_json_accuracy(summary, in.model, in.campaign, &u));
       json_object_set_new(root, "iso9283", json_iso9283(iso, in.model, in.campaign, &u));
       {
+        static const char *const names[1] = { "error" };
+        const double *pe[1] = { pos }, *ae[1] = { rot };
+        json_t *meas = cli_json_measurements(in.campaign, in.model, NULL, 1, names, pe, ae,
+                                             base_path == NULL ? excluded : NULL, NULL, 0, &u);
+        if (meas != NULL)
+          json_object_set_new(root, "measurements", meas);
+      }
+      {
         json_t *ori = json_array();
         size_t k;
         for (k = 0; k < iso->n_orientation; k++) {

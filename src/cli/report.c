@@ -309,6 +309,61 @@ json_t *cli_json_stats(const twf_stats *s, double unit)
   return o;
 }
 
+json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const twf_meas_set *sets,
+                              size_t n_models, const char *const *names, const double *const *pos_err,
+                              const double *const *angle_err, const unsigned char *excluded_code,
+                              const twf_outlier *outliers, size_t n_outliers, const cli_units *u)
+{
+  json_t *a = json_array();
+  double *weight = malloc((c->n_meas > 0 ? c->n_meas : 1) * sizeof *weight);
+  size_t i, j, k;
+  if (a == NULL || weight == NULL) {
+    free(weight);
+    json_decref(a);
+    return NULL;
+  }
+  for (i = 0; i < c->n_meas; i++)
+    weight[i] = 1.0;
+  for (k = 0; outliers != NULL && k < n_outliers; k++)
+    if (outliers[k].meas < c->n_meas)
+      weight[outliers[k].meas] = outliers[k].weight;
+  for (i = 0; i < c->n_meas; i++) {
+    const twf_measurement *ms = &c->meas[i];
+    twf_meas_set set = sets != NULL ? sets[i] : ms->set;
+    const char *why = NULL;
+    json_t *e = json_object(), *jq = json_array();
+    if (excluded_code != NULL && excluded_code[i] != 0)
+      why = excluded_code[i] == TWF_EXCLUDED_DROPPED   ? "dropped"
+            : excluded_code[i] == TWF_EXCLUDED_FLAGGED ? "flagged"
+                                                       : "registration";
+    json_object_set_new(e, "index", json_integer((json_int_t)i));
+    json_object_set_new(e, "line", json_integer((json_int_t)ms->line));
+    json_object_set_new(e, "pose", json_string(c->pose_ids[ms->pose]));
+    json_object_set_new(e, "target", json_string(m->targets[ms->target].name));
+    json_object_set_new(e, "set", json_string(set == TWF_SET_CHECK ? "check" : "fit"));
+    json_object_set_new(e, "excluded", why != NULL ? json_string(why) : json_null());
+    json_object_set_new(e, "weight", cli_json_number(weight[i]));
+    for (j = 0; j < c->n_joints; j++)
+      json_array_append_new(jq, cli_json_number(c->q[ms->pose * c->n_joints + j] /
+                                                (m->joints[j].type == TWF_JOINT_PRISMATIC ? u->length_si
+                                                                                           : u->angle_si)));
+    json_object_set_new(e, "joints", jq);
+    for (k = 0; k < n_models; k++) {
+      const double *d = &pos_err[k][3 * i];
+      double ang = angle_err != NULL && angle_err[k] != NULL ? angle_err[k][i] : NAN;
+      json_object_set_new(e, names[k],
+                          json_pack("{s:o, s:[o,o,o], s:o}", "position",
+                                    cli_json_number(sqrt(d[0] * d[0] + d[1] * d[1] + d[2] * d[2]) / u->length_si),
+                                    "xyz", cli_json_number(d[0] / u->length_si),
+                                    cli_json_number(d[1] / u->length_si), cli_json_number(d[2] / u->length_si),
+                                    "angle", cli_json_number(ms->has_orientation ? ang / u->angle_si : NAN)));
+    }
+    json_array_append_new(a, e);
+  }
+  free(weight);
+  return a;
+}
+
 json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
                           const twf_campaign *c, const cli_units *u)
 {

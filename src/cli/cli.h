@@ -242,6 +242,12 @@ json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const t
                               size_t n_models, const char *const *names, const double *const *pos_err,
                               const double *const *angle_err, const unsigned char *excluded_code,
                               const twf_outlier *outliers, size_t n_outliers, const cli_units *u);
+/* calibrate's section "Do the residuals look like noise?" and its JSON
+ * member (pattern_report.c). */
+void cli_print_pattern(FILE *fp, const twf_model *m, const twf_pattern_result *p, size_t screen_refused,
+                       const cli_units *u);
+json_t *cli_json_pattern(const twf_model *m, const twf_pattern_result *p, size_t screen_refused,
+                         const cli_units *u);
 /* cli_put writer of a JSON document (ctx: json_t *). */
 int cli_put_json(FILE *fp, void *ctx, twf_error *err);
 /* Per-measurement residual CSV with one or two variants (labels such as

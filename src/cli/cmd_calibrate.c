@@ -46,6 +46,8 @@ static const char calibrate_help[] =
   "      --sigma-angle X     of one orientation component (angle unit), for 6-D rows\n"
   "      --robust MODE       outlier screen: drop (default), huber, cauchy or off\n"
   "      --robust-threshold K  in robust standard deviations of the error (default 5)\n"
+  "      --screen-limit P    the drop screen keeps every reading when it would drop more\n"
+  "                          than P %% of the fit readings (default 5; 100: no limit)\n"
   "      --check-fraction F  also hold out this fraction of the poses as check data\n"
   "      --seed N            seed of the held-out draw and of the synthetic pose set\n"
   "      --max-iterations N  solver iterations per fit (default 100)\n"
@@ -69,7 +71,7 @@ static const char calibrate_help[] =
 
 enum {
   OPT_BASE_OUT = CLI_OPT_FIRST_FREE, OPT_JSON, OPT_RESIDUALS, OPT_FIT, OPT_PRIORITY, OPT_SIGMA,
-  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_THREADS, OPT_RESAMPLE, OPT_ACCEPT_LARGE,
+  OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_SCREEN_LIMIT, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_THREADS, OPT_RESAMPLE, OPT_ACCEPT_LARGE,
   OPT_WRITE_ANYWAY
 };
 
@@ -353,6 +355,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
               len_shown(a->max, u));
     }
   }
+  cli_print_pattern(fp, m, &r->pattern, r->screen_refused, u);
 
   fprintf(fp, "\nSolver\n");
   fprintf(fp, "  registration refinement: %d %s, %s\n", r->registration.iterations,
@@ -705,6 +708,7 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                           cli_json_number(o->score), "weight", cli_json_number(o->weight)));
   }
   json_object_set_new(root, "outliers", outl);
+  json_object_set_new(root, "residual_pattern", cli_json_pattern(m, &r->pattern, r->screen_refused, u));
   {
     static const char *const names[2] = { "before", "after" };
     const double *pe[2] = { r->pos_err_before, r->pos_err_after };
@@ -820,6 +824,7 @@ static int run_calibrate(int argc, char **argv)
     { "sigma-angle", required_argument, NULL, OPT_SIGMA_ANGLE },
     { "robust", required_argument, NULL, OPT_ROBUST },
     { "robust-threshold", required_argument, NULL, OPT_ROBUST_K },
+    { "screen-limit", required_argument, NULL, OPT_SCREEN_LIMIT },
     { "check-fraction", required_argument, NULL, OPT_CHECK_FRACTION },
     { "seed", required_argument, NULL, OPT_SEED },
     { "max-iterations", required_argument, NULL, OPT_MAXIT },
@@ -894,6 +899,15 @@ static int run_calibrate(int argc, char **argv)
         goto done;
       }
       break;
+    case OPT_SCREEN_LIMIT: {
+      double pct;
+      if (cli_parse_double(optarg, &pct) != 0 || !(pct > 0 && pct <= 100)) {
+        status = cli_usage_error("calibrate", "--screen-limit takes a percentage above 0 and at most 100");
+        goto done;
+      }
+      co.screen_max_fraction = pct / 100.0;
+      break;
+    }
     case OPT_CHECK_FRACTION:
       if (cli_parse_double(optarg, &co.check_fraction) != 0 || co.check_fraction < 0 || co.check_fraction >= 1) {
         status = cli_usage_error("calibrate", "--check-fraction takes a number from 0 up to (not including) 1");

@@ -37,6 +37,7 @@
 #include "twistfit/accuracy.h"
 #include "twistfit/asbuilt.h"
 #include "twistfit/links.h"
+#include "twistfit/pattern.h"
 #include "twistfit/calib.h"
 #include "twistfit/simulate.h"
 #include "twistfit/plan.h"

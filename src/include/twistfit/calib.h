@@ -13,6 +13,7 @@
 #include "twistfit/register.h"
 #include "twistfit/accuracy.h"
 #include "twistfit/asbuilt.h"
+#include "twistfit/pattern.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -57,6 +58,17 @@ typedef struct twf_calib_options {
   size_t worst_poses;      /* poses listed per set in the accuracy summaries (default 5) */
   int threads;             /* threads of the passes over the measurements (0, the default:
                               one per online core); every count gives the same bits */
+  /* The drop screen may drop at most this fraction of the fit rows
+   * (default 0.05): beyond it the readings are kept (weights 1, refit), a
+   * warning says the model rather than the data is the likely problem, and
+   * screen_refused counts the rows it would have dropped. 1 disables the
+   * limit. Our own choice (common practice, no source): gross errors of a
+   * tracker campaign are a few rows, a systematic misfit many. */
+  double screen_max_fraction;
+  /* The residual-pattern test run on the as-built residuals (alpha,
+   * min_explained; torque for the torque family, NULL without a mass
+   * model; scale_fitted is set by the calibration). */
+  twf_pattern_options pattern;
 } twf_calib_options;
 
 /* Where the sigma of the covariance came from. */
@@ -228,6 +240,12 @@ typedef struct twf_calib_result {
    * (TWF_PARAM_FIXED_DATA, e.g. a joint that did not move): its figures
    * in a report are not determined. */
   unsigned *joint_undetermined;
+  /* Fit rows the drop screen would have dropped beyond screen_max_fraction
+   * (0 when the screen ran as usual): they were kept. */
+  size_t screen_refused;
+  /* Whether the as-built residuals (fit and check rows the figures keep)
+   * look like noise: see twistfit/pattern.h. */
+  twf_pattern_result pattern;
   twf_trace trace;            /* stage timings and solver steps, for a verbose report */
 } twf_calib_result;
 

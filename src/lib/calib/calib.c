@@ -29,6 +29,8 @@ twf_calib_options twf_calib_default_options(void)
   o.redundancy_tol = TWF_REDUNDANCY_TOL_DEFAULT;
   o.weak_ratio = 5.0;
   o.worst_poses = 5;
+  o.screen_max_fraction = 0.05;
+  o.pattern = twf_pattern_default_options();
   return o;
 }
 
@@ -105,6 +107,7 @@ void twf_calib_result_free(twf_calib_result *r)
   free(r->excluded);
   free(r->check_flagged);
   free(r->joint_undetermined);
+  twf_pattern_result_clear(&r->pattern);
   twf_trace_clear(&r->trace);
   free(r);
 }
@@ -157,9 +160,12 @@ static twf_status check_options(const twf_calib_options *o, twf_error *err)
   if (!(o->robust_threshold > 0) || !(o->check_fraction >= 0 && o->check_fraction < 1) ||
       o->max_iterations < 1 || !(o->redundancy_tol > 0 && o->redundancy_tol < 1) ||
       !(o->sigma_length >= 0) || !(o->sigma_angle >= 0) || !(o->weak_ratio > 0) || o->groups == 0 ||
-      o->threads < 0)
+      o->threads < 0 || !(o->screen_max_fraction > 0 && o->screen_max_fraction <= 1) ||
+      !(o->pattern.alpha > 0 && o->pattern.alpha < 1) ||
+      !(o->pattern.min_explained >= 0 && o->pattern.min_explained < 1))
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
-                         "use positive thresholds, a held-out fraction in [0, 1) and at least one iteration",
+                         "use positive thresholds, a held-out fraction in [0, 1), at least one iteration, "
+                         "a screen limit in (0, 1] and a pattern alpha in (0, 1)",
                          "invalid calibration options");
   return TWF_OK;
 }
@@ -581,6 +587,34 @@ static twf_status list_outliers(job *j)
   return TWF_OK;
 }
 
+/* A drop screen that takes more than screen_max_fraction of the fit rows
+ * is not finding gross errors but a model that does not fit: keep every
+ * row (weights back to 1, refit) and say so. */
+static twf_status screen_limit(job *j)
+{
+  const twf_calib_options *o = &j->opt;
+  size_t i, n_fit = 0, n_drop = 0;
+  if (o->robust != TWF_ROBUST_DROP || o->screen_max_fraction >= 1.0)
+    return TWF_OK;
+  for (i = 0; i < j->c->n_meas; i++)
+    if (j->pr.use[i]) {
+      n_fit++;
+      n_drop += j->pr.weight[i] == 0.0;
+    }
+  if (n_drop == 0 || (double)n_drop <= o->screen_max_fraction * (double)n_fit)
+    return TWF_OK;
+  j->res->screen_refused = n_drop;
+  twf_warnings_add(j->warnings, NULL, 0, 0,
+                   "the outlier screen would drop %zu of the %zu fit readings (%.1f %%, more than %.0f %%): "
+                   "so many gross errors are unlikely; the model, not the data, is the likely problem "
+                   "(see the residual pattern test), so the readings were kept",
+                   n_drop, n_fit, 100.0 * (double)n_drop / (double)n_fit, 100.0 * o->screen_max_fraction);
+  for (i = 0; i < j->c->n_meas; i++)
+    j->pr.weight[i] = 1.0;
+  j->res->robust_rounds++;
+  return fit_round(j, j->res->robust_rounds);
+}
+
 /* Screen and refit until the weights settle (a dropped set that no longer
  * changes, or reweighting that moves no weight by more than 1e-3), at most
  * 10 refits; the model reported is always the fit with the final weights. */
@@ -612,6 +646,8 @@ static twf_status stage_robust(job *j)
       break;
     }
   }
+  if ((st = screen_limit(j)) != TWF_OK)
+    return st;
   st = list_outliers(j);
   /* the screen's per-measurement figures are in the outlier list now */
   free(j->score); free(j->err_len); free(j->first_score); free(j->first_err);
@@ -933,6 +969,38 @@ static twf_status stage_asbuilt(job *j)
   return TWF_OK;
 }
 
+/* ------------------------------------------------------------ stage: residual pattern */
+
+/* Do the as-built residuals of the rows the figures keep (fit and check)
+ * look like noise? (twistfit/pattern.h) */
+static twf_status stage_pattern(job *j)
+{
+  twf_calib_result *res = j->res;
+  size_t i, nj = j->start->n_joints, nm = j->c->n_meas;
+  unsigned char *use = malloc(nm ? nm : 1), *scale_fitted = calloc(nj ? nj : 1, 1);
+  twf_pattern_options po = j->opt.pattern;
+  twf_status st;
+  if (use == NULL || scale_fitted == NULL) {
+    free(use);
+    free(scale_fitted);
+    return nomem(j);
+  }
+  for (i = 0; i < nm; i++)
+    use[i] = res->excluded == NULL || res->excluded[i] == 0;
+  for (i = 0; i < res->n_params; i++)
+    if (res->params[i].param.group == TWF_GROUP_SCALE && res->params[i].status == TWF_PARAM_KEPT &&
+        res->params[i].param.joint >= 0)
+      scale_fitted[res->params[i].param.joint] = 1;
+  po.scale_fitted = scale_fitted;
+  st = twf_residual_pattern(res->asbuilt, &res->base_in_tracker, &j->view, res->pos_err_after, use, &po,
+                            &res->pattern, j->err);
+  free(use);
+  free(scale_fitted);
+  if (st == TWF_OK)
+    twf_calib_warn_pattern(res->asbuilt, &res->pattern, j->warnings);
+  return st;
+}
+
 /* ------------------------------------------------------------ stage: plausibility */
 
 /* Far beyond any calibration, the data and the model do not describe the
@@ -1024,6 +1092,7 @@ static const struct stage {
   { "covariance", stage_covariance },
   { "identifiability", stage_identifiability },
   { "as-built summary", stage_asbuilt },
+  { "residual pattern", stage_pattern },
   { "plausibility", stage_plausibility },
 };
 

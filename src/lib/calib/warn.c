@@ -5,6 +5,7 @@
 #include "warn.h"
 
 #include <stdio.h>
+#include <string.h>
 
 /* A joint counts as narrow in the fit poses when it moved through less
  * than a quarter of its travel (or 30 degrees / 50 mm without limits):
@@ -137,4 +138,60 @@ void twf_calib_warn_fixed_on_data(const twf_model *m, const twf_calib_result *re
     twf_warnings_add(w, NULL, 0, 0,
                      "%zu parameters cannot be determined from these poses and stay at their starting values (%s): "
                      "measure more varied poses", res->n_fixed_data, list);
+}
+
+/* The family of joint j that the warning names: among the significant ones
+ * the one with the smallest p-value (a slope error also shows in the
+ * harmonics over a limited range, and a harmonic in the slope). NULL when
+ * none is significant. */
+static const twf_pattern_test *pattern_cause(const twf_pattern_result *p, size_t j)
+{
+  const twf_pattern_test *best = NULL;
+  size_t k;
+  for (k = 0; k < TWF_PATTERN_NKINDS; k++) {
+    const twf_pattern_test *t = &p->tests[j * TWF_PATTERN_NKINDS + k];
+    if (t->significant && (best == NULL || t->p_value < best->p_value))
+      best = t;
+  }
+  return best;
+}
+
+void twf_calib_warn_pattern(const twf_model *m, const twf_pattern_result *p, twf_warnings *w)
+{
+  size_t j;
+  char torque[256] = "";
+  size_t n_torque = 0;
+  double strongest = 0.0;
+  for (j = 0; j < m->n_joints; j++) {
+    const twf_pattern_test *t = pattern_cause(p, j);
+    if (t != NULL && t->explained > strongest)
+      strongest = t->explained;
+  }
+  for (j = 0; j < m->n_joints; j++) {
+    const twf_pattern_test *t = pattern_cause(p, j);
+    /* once the fit has bent the geometry toward one joint's error, traces
+     * of it show in the others: name the joints whose pattern is at least
+     * a quarter of the strongest */
+    if (t == NULL || t->explained < 0.25 * strongest)
+      continue;
+    if (t->kind == TWF_PATTERN_TORQUE) {
+      size_t len = strlen(torque);
+      snprintf(torque + len, sizeof torque - len, "%s%s", n_torque ? " and " : "", m->joints[j].name);
+      n_torque++;
+    } else if (t->kind == TWF_PATTERN_SLOPE)
+      twf_warnings_add(w, NULL, 0, 0,
+                       "the residuals are not noise: they change with the value of %s (%.0f %% of their sum of "
+                       "squares, p = %.1e): a joint scale (gear ratio) error; fit the scale group",
+                       m->joints[j].name, 100.0 * t->explained, t->p_value);
+    else
+      twf_warnings_add(w, NULL, 0, 0,
+                       "the residuals are not noise: they follow a periodic pattern in the angle of %s (%.0f %% of "
+                       "their sum of squares, p = %.1e): gear or encoder error, or another effect of that joint the "
+                       "kinematic model does not represent",
+                       m->joints[j].name, 100.0 * t->explained, t->p_value);
+  }
+  if (n_torque > 0)
+    twf_warnings_add(w, NULL, 0, 0,
+                     "the residuals are not noise: they grow with the gravity load on %s: fit the compliance group "
+                     "with a mass model", torque);
 }

@@ -16,4 +16,8 @@ void twf_calib_warn_fixed_on_data(const twf_model *m, const twf_calib_result *re
 void twf_calib_warn_weak(const twf_model *m, const twf_calib_result *res, const double *ratio,
                          twf_warnings *w);
 
+/* One warning per joint whose residuals follow a pattern the model lacks
+ * (res->pattern's significant families), with the likely cause. */
+void twf_calib_warn_pattern(const twf_model *m, const twf_pattern_result *p, twf_warnings *w);
+
 #endif

@@ -37,6 +37,10 @@ start_paused() {
   (cd "$dir" && TWF_TEST_PAUSE=$phase exec "$PYTHON" -c '
 import os, signal, sys
 signal.signal(signal.SIGINT, signal.SIG_IGN if sys.argv[1] == "ignore" else signal.SIG_DFL)
+# the cases expect default dispositions of the others, whatever started
+# the suite (nohup ignores SIGHUP, and an ignored signal stays ignored)
+signal.signal(signal.SIGHUP, signal.SIG_DFL)
+signal.signal(signal.SIGTERM, signal.SIG_DFL)
 os.execv(sys.argv[2], sys.argv[2:])' "$INT_ACTION" "$TWISTFIT" "$@" >/dev/null 2>"$logs/a.err") &
   pid=$!
   n=0

@@ -937,6 +937,96 @@ START_TEST(test_units)
 }
 END_TEST
 
+/* 4x4 homogeneous helpers for the beta test below, written out here so the
+ * check does not reuse the library's DH code. */
+static void h_mul(double A[4][4], const double B[4][4])
+{
+  double C[4][4];
+  for (int i = 0; i < 4; i++)
+    for (int j = 0; j < 4; j++) {
+      C[i][j] = 0;
+      for (int k = 0; k < 4; k++)
+        C[i][j] += A[i][k] * B[k][j];
+    }
+  memcpy(A, C, sizeof C);
+}
+
+static void h_rot(double A[4][4], int axis, double t)
+{
+  double R[4][4] = { { 1, 0, 0, 0 }, { 0, 1, 0, 0 }, { 0, 0, 1, 0 }, { 0, 0, 0, 1 } };
+  int i = (axis + 1) % 3, j = (axis + 2) % 3;
+  R[i][i] = cos(t); R[i][j] = -sin(t);
+  R[j][i] = sin(t); R[j][j] = cos(t);
+  h_mul(A, (const double (*)[4])R);
+}
+
+static void h_trans(double A[4][4], int axis, double v)
+{
+  double T[4][4] = { { 1, 0, 0, 0 }, { 0, 1, 0, 0 }, { 0, 0, 1, 0 }, { 0, 0, 0, 1 } };
+  T[axis][3] = v;
+  h_mul(A, (const double (*)[4])T);
+}
+
+/* The optional fifth value of a dh / mdh row is Hayati's beta, a rotation
+ * about the link's y axis: standard A = Rz(theta+q) Tz(d) Tx(a) Rx(alpha)
+ * Ry(beta), modified A = Rx(alpha) Tx(a) Ry(beta) Rz(theta+q) Tz(d)
+ * (reference: Hayati 1983, Veitschegger and Wu 1986; the products are
+ * written out here). Rows without beta keep reading as before. */
+START_TEST(test_dh_beta_fifth_value)
+{
+  static const double a[2] = { 0.25, 0.4 }, al[2] = { 0.3, -0.2 },
+                      d[2] = { 0.125, 0.05 }, th[2] = { -0.5, 0.7 },
+                      be[2] = { 0.0, 0.015 };
+  static const double q[2] = { 0.4, -1.1 };
+  char path[4096];
+  temp_name(path, sizeof path);
+  for (int conv = 0; conv < 2; conv++) {
+    char text[1024];
+    twf_model *m;
+    twf_pose F;
+    double H[4][4] = { { 1, 0, 0, 0 }, { 0, 1, 0, 0 }, { 0, 0, 1, 0 }, { 0, 0, 0, 1 } };
+    if (conv == 0)
+      snprintf(text, sizeof text,
+               "[robot]\nlength_unit = m\nangle_unit = rad\n"
+               "[joint a]\ntype = revolute\ndh = %.17g %.17g %.17g %.17g\n"
+               "[joint b]\ntype = revolute\ndh = %.17g %.17g %.17g %.17g %.17g\n",
+               a[0], al[0], d[0], th[0], a[1], al[1], d[1], th[1], be[1]);
+    else
+      snprintf(text, sizeof text,
+               "[robot]\nlength_unit = m\nangle_unit = rad\n"
+               "[joint a]\ntype = revolute\nmdh = %.17g %.17g %.17g %.17g\n"
+               "[joint b]\ntype = revolute\nmdh = %.17g %.17g %.17g %.17g %.17g\n",
+               al[0], a[0], d[0], th[0], al[1], a[1], d[1], th[1], be[1]);
+    write_text(path, text);
+    m = read_ok(path, NULL);
+    for (int k = 0; k < 2; k++) {
+      if (conv == 0) {
+        h_rot(H, 2, th[k] + q[k]);
+        h_trans(H, 2, d[k]);
+        h_trans(H, 0, a[k]);
+        h_rot(H, 0, al[k]);
+        h_rot(H, 1, be[k]);
+      } else {
+        h_rot(H, 0, al[k]);
+        h_trans(H, 0, a[k]);
+        h_rot(H, 1, be[k]);
+        h_rot(H, 2, th[k] + q[k]);
+        h_trans(H, 2, d[k]);
+      }
+    }
+    twf_model_fk(m, q, NULL, &F);
+    for (int i = 0; i < 3; i++) {
+      ck_assert_msg(fabs(F.p[i] - H[i][3]) < 1e-12, "conv %d p[%d] %.17g vs %.17g",
+                    conv, i, F.p[i], H[i][3]);
+      for (int j = 0; j < 3; j++)
+        ck_assert_msg(fabs(F.R[i][j] - H[i][j]) < 1e-12, "conv %d R[%d][%d]", conv, i, j);
+    }
+    twf_model_free(m);
+  }
+  remove(path);
+}
+END_TEST
+
 /* Every reader converts with units.c (twf_length_to_si), the arithmetic
  * of the reports that divide by twf_length_unit_si: 3.1 is a value where
  * 3.1 / 1e3 and 3.1 * 1e-3 differ in the last bit, so a reader with a
@@ -1280,6 +1370,7 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_units);
   tcase_add_test(tc, test_one_unit_conversion);
   tcase_add_test(tc, test_rotation_rows_polished);
+  tcase_add_test(tc, test_dh_beta_fifth_value);
   tcase_add_test(tc, test_writer_refuses);
   tcase_add_test(tc, test_writer_metadata_and_points);
   tcase_add_test(tc, test_free_text_round_trip);

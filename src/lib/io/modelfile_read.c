@@ -9,15 +9,15 @@
 
 /* The plausible range of a DH row (a and d lengths, alpha and theta
  * angles), field by field in the file's order: dh is a alpha d theta, mdh
- * alpha a d theta. */
+ * alpha a d theta, each with an optional fifth value beta (an angle). */
 static int check_dh_range(parse_ctx *c, const section *s, joint_form form,
                           const twf_model *m, const twf_dh_row *row)
 {
   const entry *e = twf_mf_find_entry(s, form == FORM_DH ? "dh" : "mdh");
   const char *lu = twf_length_unit_name(m->length_unit);
   const char *au = twf_angle_unit_name(m->angle_unit);
-  double si[4], v[4];
-  int angle[4];
+  double si[5], v[5];
+  int angle[5];
   char what[96];
   snprintf(what, sizeof what, "%s row of joint %s", form == FORM_DH ? "dh" : "mdh",
            s->name);
@@ -29,7 +29,9 @@ static int check_dh_range(parse_ctx *c, const section *s, joint_form form,
   angle[1] = form == FORM_DH;
   angle[2] = 0;
   angle[3] = 1;
-  for (int k = 0; k < 4; k++) {
+  si[4] = row->beta;
+  angle[4] = 1;
+  for (int k = 0; k < 5; k++) {
     v[k] = angle[k] ? twf_angle_from_si(si[k], m->angle_unit)
                     : twf_length_from_si(si[k], m->length_unit);
     if (twf_mf_check_range(c, e, what, angle[k] ? RANGE_ANGLE : RANGE_LENGTH, &v[k],
@@ -203,10 +205,10 @@ static twf_model *build_model(parse_ctx *c)
         sc[2 * k + 1] = m->joints[k].offset;
       }
       twf_error_clear(&e2);
-      st = twf_model_set_from_dh(m, rows, nj,
-                                 form == FORM_DH ? TWF_DH_STANDARD
-                                                 : TWF_DH_MODIFIED,
-                                 &F, &e2);
+      st = twf_model_set_from_dh_beta(m, rows, nj,
+                                      form == FORM_DH ? TWF_DH_STANDARD
+                                                      : TWF_DH_MODIFIED,
+                                      NULL, &F, &e2);
       for (size_t k = 0; k < nj; k++) {
         m->joints[k].scale = sc[2 * k];
         m->joints[k].offset = sc[2 * k + 1];

@@ -23,8 +23,19 @@ static const char NUMBER_HINT[] =
 
 /* Exactly n finite numbers, separated by blanks. what names the value in
  * messages, e.g. "axis of joint j1". */
+/* As twf_mf_parse_numbers, accepting nmin to nmax numbers; *got (may be
+ * NULL) receives the count read. */
+static int parse_numbers_between(parse_ctx *c, const entry *e, const char *what,
+                                 double *out, size_t nmin, size_t n, size_t *got);
+
 int twf_mf_parse_numbers(parse_ctx *c, const entry *e, const char *what,
                          double *out, size_t n)
+{
+  return parse_numbers_between(c, e, what, out, n, n, NULL);
+}
+
+static int parse_numbers_between(parse_ctx *c, const entry *e, const char *what,
+                                 double *out, size_t nmin, size_t n, size_t *got)
 {
   const char *p = e->value;
   size_t count = 0;
@@ -72,12 +83,19 @@ int twf_mf_parse_numbers(parse_ctx *c, const entry *e, const char *what,
     if (count <= n)
       out[count - 1] = v;
   }
-  if (count != n) {
+  if (nmin == n && count != n) {
     twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, 0, NUMBER_HINT,
                  "%s needs %zu number%s, found %zu", what, n, n == 1 ? "" : "s",
                  count);
     return -1;
   }
+  if (count < nmin || count > n) {
+    twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, 0, NUMBER_HINT,
+                 "%s needs %zu or %zu numbers, found %zu", what, nmin, n, count);
+    return -1;
+  }
+  if (got != NULL)
+    *got = count;
   return 0;
 }
 
@@ -423,11 +441,12 @@ int twf_mf_parse_joint_dh(parse_ctx *c, const section *s, joint_form form,
                           twf_joint_type type, twf_dh_row *row)
 {
   const entry *e = twf_mf_find_entry(s, form == FORM_DH ? "dh" : "mdh");
-  double v[4];
+  double v[5] = { 0, 0, 0, 0, 0 };
+  size_t got = 0;
   char what[96];
   snprintf(what, sizeof what, "%s row of joint %s",
            form == FORM_DH ? "dh" : "mdh", s->name);
-  if (twf_mf_parse_numbers(c, e, what, v, 4) != 0)
+  if (parse_numbers_between(c, e, what, v, 4, 5, &got) != 0)
     return -1;
   if (form == FORM_DH) {         /* a alpha d theta */
     row->a = twf_length_to_si(v[0], lu);
@@ -438,6 +457,7 @@ int twf_mf_parse_joint_dh(parse_ctx *c, const section *s, joint_form form,
   }
   row->d = twf_length_to_si(v[2], lu);
   row->theta = twf_angle_to_si(v[3], au);
+  row->beta = got == 5 ? twf_angle_to_si(v[4], au) : 0.0; /* Hayati's beta */
   row->type = type;
   return 0;
 }

@@ -971,7 +971,8 @@ static void h_trans(double A[4][4], int axis, double v)
  * about the link's y axis: standard A = Rz(theta+q) Tz(d) Tx(a) Rx(alpha)
  * Ry(beta), modified A = Rx(alpha) Tx(a) Ry(beta) Rz(theta+q) Tz(d)
  * (reference: Hayati 1983, Veitschegger and Wu 1986; the products are
- * written out here). Rows without beta keep reading as before. */
+ * written out here), after [base]. Rows without beta keep reading as
+ * before. */
 START_TEST(test_dh_beta_fifth_value)
 {
   static const double a[2] = { 0.25, 0.4 }, al[2] = { 0.3, -0.2 },
@@ -997,6 +998,15 @@ START_TEST(test_dh_beta_fifth_value)
                "[joint a]\ntype = revolute\nmdh = %.17g %.17g %.17g %.17g\n"
                "[joint b]\ntype = revolute\nmdh = %.17g %.17g %.17g %.17g %.17g\n",
                al[0], a[0], d[0], th[0], al[1], a[1], d[1], th[1], be[1]);
+    /* [base]: the pose of DH frame 0 in the base frame, here a turn of
+     * pi/2 about z and a shift (Rz(pi/2): x -> y, y -> -x). */
+    strcat(text, "[base]\nposition = 0.1 -0.2 0.3\n"
+                 "rotation_row1 = 0 -1 0\nrotation_row2 = 1 0 0\n"
+                 "rotation_row3 = 0 0 1\n");
+    h_trans(H, 0, 0.1);
+    h_trans(H, 1, -0.2);
+    h_trans(H, 2, 0.3);
+    h_rot(H, 2, 2.0 * atan(1.0));
     write_text(path, text);
     m = read_ok(path, NULL);
     for (int k = 0; k < 2; k++) {

@@ -27,7 +27,8 @@ extern const char twf_mf_name_hint[];
 /* ------------------------------------------------------------------ */
 
 typedef enum sec_kind {
-  SEC_ROBOT, SEC_JOINT, SEC_HOME, SEC_FLANGE, SEC_TARGET, SEC_ASBUILT
+  SEC_ROBOT, SEC_JOINT, SEC_HOME, SEC_FLANGE, SEC_TARGET, SEC_ASBUILT,
+  SEC_BASE
 } sec_kind;
 
 extern const char *const twf_mf_kind_names[];

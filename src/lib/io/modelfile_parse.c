@@ -12,7 +12,7 @@
 #include <stdlib.h>
 
 const char *const twf_mf_kind_names[] = {
-  "robot", "joint", "home", "flange", "target", "asbuilt"
+  "robot", "joint", "home", "flange", "target", "asbuilt", "base"
 };
 
 static const char *const robot_keys[] = { "name", "length_unit", "angle_unit", NULL };
@@ -28,7 +28,7 @@ static const char *const *keys_of(sec_kind k)
   switch (k) {
   case SEC_ROBOT: return robot_keys;
   case SEC_JOINT: return joint_keys;
-  case SEC_HOME: case SEC_FLANGE: return pose_keys;
+  case SEC_HOME: case SEC_FLANGE: case SEC_BASE: return pose_keys;
   case SEC_TARGET: return target_keys;
   case SEC_ASBUILT: return NULL;
   }
@@ -42,7 +42,7 @@ static const char *keys_hint(sec_kind k)
   case SEC_JOINT:
     return "keys of [joint NAME]: type, axis, point, limits, offset, scale, "
            "dh, mdh";
-  case SEC_HOME: case SEC_FLANGE:
+  case SEC_HOME: case SEC_FLANGE: case SEC_BASE:
     return "keys of a pose section: position, and one of quaternion_wxyz, "
            "rotation_row1/2/3, rpy_fixed_xyz";
   case SEC_TARGET: return "the only key of [target NAME] is offset";
@@ -114,7 +114,7 @@ static void open_section(parse_ctx *c, char *inner)
       kind = (int)i;
   if (kind < 0) {
     twf_ini_fail(&c->ini, TWF_ERR_UNKNOWN, c->ini.lineno, 0,
-                 "sections are [robot], [joint NAME], [home], [flange], "
+                 "sections are [robot], [joint NAME], [home], [flange], [base], "
                  "[target NAME] and [asbuilt], in lower case",
                  "unknown section [%s%s%s]", word, *rest ? " " : "", rest);
     return;

@@ -43,7 +43,7 @@ static int check_dh_range(parse_ctx *c, const section *s, joint_form form,
 
 static twf_model *build_model(parse_ctx *c)
 {
-  const section *robot = NULL, *home = NULL, *flange = NULL;
+  const section *robot = NULL, *home = NULL, *flange = NULL, *base = NULL;
   size_t nj = 0, nt = 0, ij = 0, it = 0;
   twf_model *m = NULL;
   twf_dh_row *rows = NULL;
@@ -56,6 +56,7 @@ static twf_model *build_model(parse_ctx *c)
     case SEC_ROBOT: robot = s; break;
     case SEC_HOME: home = s; break;
     case SEC_FLANGE: flange = s; break;
+    case SEC_BASE: base = s; break;
     case SEC_JOINT: nj++; break;
     case SEC_TARGET: nt++; break;
     case SEC_ASBUILT: break;
@@ -160,6 +161,14 @@ static twf_model *build_model(parse_ctx *c)
   }
 
   if (form == FORM_AXIS) {
+    if (base != NULL) {
+      twf_ini_fail(&c->ini, TWF_ERR_SYNTAX, base->line, 0,
+                   "in the axis-and-point form the axes and [home] are already "
+                   "in the base frame: leave [base] out",
+                   "[base] belongs to DH-form files, this file uses the "
+                   "axis-and-point form");
+      goto fail;
+    }
     if (flange != NULL) {
       twf_ini_fail(&c->ini, TWF_ERR_SYNTAX, flange->line, 0,
                    "in the axis-and-point form give the flange pose at zero in "
@@ -178,7 +187,7 @@ static twf_model *build_model(parse_ctx *c)
     if (twf_mf_parse_pose(c, home, m->length_unit, m->angle_unit, &m->home) != 0)
       goto fail;
   } else {
-    twf_pose F;
+    twf_pose F, B;
     twf_error e2;
     if (home != NULL) {
       twf_ini_fail(&c->ini, TWF_ERR_SYNTAX, home->line, 0,
@@ -189,6 +198,10 @@ static twf_model *build_model(parse_ctx *c)
       goto fail;
     }
     twf_pose_identity(&F);
+    twf_pose_identity(&B);
+    if (base != NULL &&
+        twf_mf_parse_pose(c, base, m->length_unit, m->angle_unit, &B) != 0)
+      goto fail;
     if (flange != NULL &&
         twf_mf_parse_pose(c, flange, m->length_unit, m->angle_unit, &F) != 0)
       goto fail;
@@ -208,7 +221,7 @@ static twf_model *build_model(parse_ctx *c)
       st = twf_model_set_from_dh_beta(m, rows, nj,
                                       form == FORM_DH ? TWF_DH_STANDARD
                                                       : TWF_DH_MODIFIED,
-                                      NULL, &F, &e2);
+                                      &B, &F, &e2);
       for (size_t k = 0; k < nj; k++) {
         m->joints[k].scale = sc[2 * k];
         m->joints[k].offset = sc[2 * k + 1];

@@ -11,6 +11,8 @@ int cli_verbosity = 1;
 /* Using a calibration (cmd_compensate.c, cmd_compare.c). */
 extern const cli_command cli_cmd_compensate;
 extern const cli_command cli_cmd_compare;
+/* Writing a model in other forms (cmd_export.c). */
+extern const cli_command cli_cmd_export;
 
 static const cli_command *const commands[] = {
   &cli_cmd_fk,
@@ -21,6 +23,7 @@ static const cli_command *const commands[] = {
   &cli_cmd_plan,
   &cli_cmd_compensate,
   &cli_cmd_compare,
+  &cli_cmd_export,
 };
 static const size_t n_commands = sizeof commands / sizeof commands[0];
 

@@ -1,0 +1,260 @@
+/* cmd_export.c: `twistfit export MODEL --as FORMAT`: a model in another
+ * form. One function per format, chosen by a switch on --as:
+ *   dh, mdh   a standard / modified DH model file (twistfit-model(5)),
+ *             by twf_model_to_dh, with Hayati's beta where the axes are
+ *             nearly parallel (--no-beta: plain rows, refused when they
+ *             would need absurd lengths). */
+#define _GNU_SOURCE
+#include "config.h"
+#include "cli.h"
+
+#include <getopt.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static const char export_help[] =
+  "Usage: twistfit export [OPTIONS] MODEL --as FORMAT\n"
+  "\n"
+  "Write MODEL in another form. FORMAT is one of:\n"
+  "  dh     a model file of standard (distal) Denavit-Hartenberg rows\n"
+  "  mdh    a model file of modified (proximal, Craig) DH rows\n"
+  "The DH files carry Hayati's fifth value beta where consecutive joint axes\n"
+  "are nearly parallel, and [base] and [flange] poses; twistfit reads them\n"
+  "back with the same kinematics. Joint names, limits, scales and targets are\n"
+  "carried over; the zero offsets go into the rows' theta (or d). The\n"
+  "conversion residual (forward kinematics of the table against MODEL) is\n"
+  "printed on standard error, with a warning above 1 um or 1 urad.\n"
+  "\n"
+  "Options:\n"
+  "      --as FORMAT            dh or mdh (required)\n"
+  "      --no-beta              plain four-value rows; refused when nearly\n"
+  "                             parallel axes would need lengths beyond 10 times\n"
+  "                             the arm's reach\n"
+  "  -o, --output FILE          write to FILE (atomically) instead of stdout\n"
+  "  -f, --force                replace FILE when it exists\n"
+  "  -h, --help                 show this help\n";
+
+enum { OPT_AS = 256, OPT_NO_BETA };
+
+/* Configurations of the conversion residual (seeded, within the limits). */
+#define EXPORT_RESIDUAL_CONFIGS 1000
+#define EXPORT_RESIDUAL_SEED 20260903ULL
+
+typedef struct dh_ctx {
+  const twf_model *model;
+  const char *source;
+  twf_dh_convention conv;
+  const twf_dh_row *rows;
+  twf_pose base, flange;
+  twf_dh_fit fit;
+} dh_ctx;
+
+/* Rounding left-overs of the conversion (below 1e-13 m or rad) written as 0. */
+static double tidy(double si, double unit)
+{
+  return fabs(si) < 1e-13 ? 0.0 : si / unit;
+}
+
+static void put_pose(FILE *fp, const char *section, const twf_pose *T, double lu)
+{
+  double q[4];
+  twf_rot_to_quat(T->R, q);
+  fprintf(fp, "\n[%s]\nposition = %.17g %.17g %.17g\n", section, tidy(T->p[0], lu), tidy(T->p[1], lu),
+          tidy(T->p[2], lu));
+  fprintf(fp, "quaternion_wxyz = %.17g %.17g %.17g %.17g\n", q[0], q[1], q[2], q[3]);
+}
+
+static int put_dh(FILE *fp, void *ctx, twf_error *err)
+{
+  const dh_ctx *x = ctx;
+  const twf_model *m = x->model;
+  const double lu = twf_length_unit_si(m->length_unit);
+  const double au = twf_angle_unit_si(m->angle_unit);
+  const int std = x->conv == TWF_DH_STANDARD;
+  (void)err;
+  fprintf(fp, "; %s of %s, written by twistfit export (run %s).\n",
+          std ? "Standard DH model" : "Modified DH model", x->source, cli_run_id());
+  if (std)
+    fprintf(fp, "; dh = a alpha d theta [beta]: A_i = Rz(theta + q) Tz(d) Tx(a) Rx(alpha) Ry(beta).\n");
+  else
+    fprintf(fp, "; mdh = alpha a d theta [beta]: A_i = Rx(alpha) Tx(a) Ry(beta) Rz(theta + q) Tz(d).\n");
+  fprintf(fp, "; Flange pose: [base] A_1 ... A_n [flange]. Zero offsets are in theta (or d).\n");
+  fprintf(fp, "; Conversion residual over %zu configurations: position max %.3g um, angle max %.3g urad.\n",
+          x->fit.n_configs, x->fit.max_position_m * 1e6, x->fit.max_angle_rad * 1e6);
+  fprintf(fp, "[robot]\n");
+  if (m->name[0])
+    fprintf(fp, "name = %s\n", m->name);
+  fprintf(fp, "length_unit = %s\nangle_unit = %s\n", twf_length_unit_name(m->length_unit),
+          twf_angle_unit_name(m->angle_unit));
+  for (size_t k = 0; k < m->n_joints; k++) {
+    const twf_joint *j = &m->joints[k];
+    const twf_dh_row *r = &x->rows[k];
+    fprintf(fp, "\n[joint %s]\ntype = %s\n", j->name,
+            j->type == TWF_JOINT_PRISMATIC ? "prismatic" : "revolute");
+    if (std)
+      fprintf(fp, "dh = %.17g %.17g %.17g %.17g", tidy(r->a, lu), tidy(r->alpha, au), tidy(r->d, lu),
+              tidy(r->theta, au));
+    else
+      fprintf(fp, "mdh = %.17g %.17g %.17g %.17g", tidy(r->alpha, au), tidy(r->a, lu), tidy(r->d, lu),
+              tidy(r->theta, au));
+    if (tidy(r->beta, au) != 0.0)
+      fprintf(fp, " %.17g", r->beta / au);
+    fputc('\n', fp);
+    if (j->has_limits) {
+      double u = j->type == TWF_JOINT_PRISMATIC ? lu : au;
+      fprintf(fp, "limits = %.17g %.17g\n", j->limit_lo / u, j->limit_hi / u);
+    }
+    if (j->scale != 1.0)
+      fprintf(fp, "scale = %.17g\n", j->scale);
+  }
+  put_pose(fp, "base", &x->base, lu);
+  put_pose(fp, "flange", &x->flange, lu);
+  for (size_t k = 0; k < m->n_targets; k++) {
+    const twf_target *t = &m->targets[k];
+    fprintf(fp, "\n[target %s]\n", t->name);
+    if (t->offset_known)
+      fprintf(fp, "offset = %.17g %.17g %.17g\n", t->offset[0] / lu, t->offset[1] / lu,
+              t->offset[2] / lu);
+  }
+  return 0;
+}
+
+/* --as dh / mdh */
+static int export_dh(const twf_model *m, const char *source, twf_dh_convention conv, int use_beta,
+                     const char *output, int force, const char *const *inputs)
+{
+  dh_ctx x;
+  twf_dh_row *rows = calloc(m->n_joints ? m->n_joints : 1, sizeof *rows);
+  twf_error err;
+  cli_put put;
+  int status;
+  const double reach = twf_model_reach(m);
+  if (rows == NULL)
+    return TWF_EXIT_INTERNAL;
+  twf_error_clear(&err);
+  memset(&x, 0, sizeof x);
+  if (twf_model_to_dh(m, conv, use_beta, rows, &x.base, &x.flange, &err) != TWF_OK ||
+      twf_dh_residual(m, rows, conv, &x.base, &x.flange, EXPORT_RESIDUAL_CONFIGS,
+                      EXPORT_RESIDUAL_SEED, &x.fit, &err) != TWF_OK) {
+    free(rows);
+    return cli_report_error(&err);
+  }
+  if (!use_beta) {
+    const double lim = 10.0 * (reach > 0.1 ? reach : 0.1);
+    for (size_t k = 0; k < m->n_joints; k++) {
+      if (fabs(rows[k].d) > lim || fabs(rows[k].a) > lim) {
+        fprintf(stderr,
+                "twistfit export: error: plain DH needs %s = %.6g m at joint %s (more than 10 times "
+                "the reach, %.3g m): its axis is nearly parallel to the previous one\n"
+                "  hint: leave out --no-beta: the fifth value beta describes such links exactly\n",
+                fabs(rows[k].d) > lim ? "d" : "a", fabs(rows[k].d) > lim ? rows[k].d : rows[k].a,
+                m->joints[k].name, reach);
+        free(rows);
+        return TWF_EXIT_COMPUTE;
+      }
+    }
+  }
+  x.model = m;
+  x.source = source;
+  x.conv = conv;
+  x.rows = rows;
+  put.path = output != NULL ? output : "-";
+  put.put = put_dh;
+  put.ctx = &x;
+  status = cli_write_outputs(&put, 1, force, inputs);
+  if (status == TWF_EXIT_OK) {
+    if (cli_verbosity > 0)
+      fprintf(stderr,
+              "twistfit export: conversion residual over %zu configurations within the limits: "
+              "position RMS %.3g um, max %.3g um; angle RMS %.3g urad, max %.3g urad\n",
+              x.fit.n_configs, x.fit.rms_position_m * 1e6, x.fit.max_position_m * 1e6,
+              x.fit.rms_angle_rad * 1e6, x.fit.max_angle_rad * 1e6);
+    if (x.fit.max_position_m > 1e-6 || x.fit.max_angle_rad > 1e-6)
+      fprintf(stderr,
+              "twistfit export: warning: the table differs from the model by more than 1 um or "
+              "1 urad%s\n",
+              use_beta ? "" : "; leave out --no-beta for an exact table");
+  }
+  free(rows);
+  return status;
+}
+
+typedef enum export_format { FMT_NONE, FMT_DH, FMT_MDH } export_format;
+
+static int run_export(int argc, char **argv)
+{
+  static const struct option longopts[] = {
+    { "output", required_argument, NULL, 'o' },
+    { "force", no_argument, NULL, 'f' },
+    { "as", required_argument, NULL, OPT_AS },
+    { "no-beta", no_argument, NULL, OPT_NO_BETA },
+    { "help", no_argument, NULL, 'h' },
+    { NULL, 0, NULL, 0 }
+  };
+  static const char *const names[1] = { "--output" };
+  const char *output = NULL, *inputs[2] = { NULL, NULL };
+  int force = 0, use_beta = 1, opt, status = TWF_EXIT_OK;
+  export_format fmt = FMT_NONE;
+  twf_model *m = NULL;
+  twf_warnings warnings;
+  twf_error err;
+
+  twf_warnings_init(&warnings);
+  twf_error_clear(&err);
+  optind = 0;
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
+    switch (opt) {
+    case 'o': output = optarg; break;
+    case 'f': force = 1; break;
+    case OPT_NO_BETA: use_beta = 0; break;
+    case OPT_AS:
+      if (strcmp(optarg, "dh") == 0)
+        fmt = FMT_DH;
+      else if (strcmp(optarg, "mdh") == 0)
+        fmt = FMT_MDH;
+      else {
+        status = cli_usage_error("export", "--as takes dh or mdh, not '%s'", optarg);
+        goto done;
+      }
+      break;
+    case 'h': fputs(export_help, stdout); goto done;
+    default: status = cli_bad_option("export", opt, argv); goto done;
+    }
+  }
+  if (argc - optind != 1) {
+    status = cli_usage_error("export", "expected one MODEL");
+    goto done;
+  }
+  if (fmt == FMT_NONE) {
+    status = cli_usage_error("export", "give the form with --as dh or --as mdh");
+    goto done;
+  }
+  inputs[0] = argv[optind];
+  if ((status = cli_outputs_check("export", &output, names, 1, force, inputs)) != 0)
+    goto done;
+  m = twf_model_read(inputs[0], &warnings, &err);
+  cli_print_warnings(&warnings);
+  if (m == NULL) {
+    status = cli_report_error(&err);
+    goto done;
+  }
+  switch (fmt) {
+  case FMT_DH:
+    status = export_dh(m, inputs[0], TWF_DH_STANDARD, use_beta, output, force, inputs);
+    break;
+  case FMT_MDH:
+    status = export_dh(m, inputs[0], TWF_DH_MODIFIED, use_beta, output, force, inputs);
+    break;
+  case FMT_NONE: break;
+  }
+done:
+  twf_model_free(m);
+  twf_warnings_clear(&warnings);
+  return status;
+}
+
+const cli_command cli_cmd_export = {
+  "export", run_export, "write a model as a DH or modified DH model file", export_help
+};

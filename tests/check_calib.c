@@ -907,7 +907,8 @@ START_TEST(test_trace)
                                        "problem set-up", "structural redundancy",
                                        "redundancy on the fit poses", "degrees of freedom", "fit",
                                        "robust screen", "covariance", "identifiability",
-                                       "as-built summary", "residual pattern", "plausibility" };
+                                       "as-built summary", "link parameters", "residual pattern",
+                                       "plausibility" };
   scenario s;
   twf_calib_options co = twf_calib_default_options();
   const twf_trace *t;

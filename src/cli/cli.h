@@ -214,6 +214,24 @@ void cli_print_accuracy(FILE *fp, const char *title, const twf_accuracy_summary 
 void cli_print_worst(FILE *fp, const twf_accuracy_summary *s, const twf_campaign *c,
                      const twf_model *m, const cli_units *u);
 json_t *cli_json_number(double v);
+
+/* The link-parameter table (links_table.c): per row and value the
+ * reference and the model's value, their difference (difference[5 * row +
+ * value], SI) and, with with_std, the standard deviation; values the fit
+ * left open (why != determined) then show n/d (or - when not fitted)
+ * instead of a difference. Labels head the text columns, keys name the JSON
+ * members. */
+typedef struct cli_links_table {
+  const twf_links *links;
+  const double *difference;
+  const twf_model *model;          /* joint names of the rows */
+  const cli_units *units;
+  const char *reference_label, *value_label; /* text column heads */
+  const char *reference_key, *value_key;     /* JSON members */
+  int with_std;
+} cli_links_table;
+void cli_links_print(FILE *fp, const cli_links_table *t);
+json_t *cli_links_json(const cli_links_table *t);
 /* v, or 0 when |v| < zero (rounding left-overs); never -0. */
 double cli_clean(double v, double zero);
 /* The quaternion w x y z every output prints: w >= 0 (for w = 0, the

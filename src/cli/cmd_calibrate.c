@@ -297,6 +297,48 @@ static void print_summary(FILE *fp, const twf_calib_result *r, const cli_units *
   fprintf(fp, "\n%s", cli_safety_text);
 }
 
+/* The link table of a result: as-built against the starting model. */
+static cli_links_table links_table(const twf_model *m, const twf_calib_result *r, const cli_units *u)
+{
+  cli_links_table t;
+  memset(&t, 0, sizeof t);
+  t.links = &r->links;
+  t.difference = r->link_change;
+  t.model = m;
+  t.units = u;
+  t.reference_label = "starting";
+  t.value_label = "as-built";
+  t.reference_key = "starting";
+  t.value_key = "asbuilt";
+  t.with_std = 1;
+  return t;
+}
+
+/* The as-built geometry: the link parameters against the starting model
+ * (intrinsic, so the same whichever redundant parameters were fixed), then
+ * the target offsets the fit determined. */
+static void print_geometry(FILE *fp, const twf_model *m, const twf_calib_result *r, const cli_units *u,
+                           const char *fitted)
+{
+  cli_links_table t = links_table(m, r, u);
+  size_t j;
+  fprintf(fp, "\nAs-built link parameters against the starting model (fitted: %s), %s and %s\n", fitted,
+          u->length, u->angle);
+  fprintf(fp, "  row k: joint k's line and the link to line k+1 (row 0 the base, the last the flange);\n"
+              "  dh: common normal of length a and twist alpha, d along the line between normals;\n"
+              "  beta: Hayati's form for nearly parallel lines (a, alpha and beta, no d);\n"
+              "  theta: the joint's angle at logged zero, so its difference is the zero offset change;\n"
+              "  std: one standard deviation, propagated from the parameter covariance%s\n",
+          r->links.full_pose ? "" : ";\n  points only: the target offsets absorb the flange link");
+  cli_links_print(fp, &t);
+  for (j = 0; j < r->asbuilt->n_targets; j++)
+    if (r->asbuilt->targets[j].offset_known && r->target_in_fit[j])
+      fprintf(fp, "  target %s offset (flange frame): %.*f %.*f %.*f %s\n", m->targets[j].name,
+              u->ldec, r->asbuilt->targets[j].offset[0] / u->length_si, u->ldec,
+              r->asbuilt->targets[j].offset[1] / u->length_si, u->ldec,
+              r->asbuilt->targets[j].offset[2] / u->length_si, u->length);
+}
+
 static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result *r,
                          const twf_calib_options *co, const cli_units *u, const digest *dg, size_t n_dg,
                          const char *created, const twf_warnings *w)
@@ -305,9 +347,6 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   const twf_model *m = in->model;
   const twf_campaign *view = in->campaign;
   const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
-  int lines_fitted = (r->groups & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
-  int show_tilt = (r->groups & TWF_GROUP_BIT(TWF_GROUP_TILTS)) != 0;
-  int show_offset = (r->groups & TWF_GROUP_BIT(TWF_GROUP_OFFSETS)) != 0;
   char expl[256], fitted[160], where[TWF_ERROR_TEXT_MAX];
   groups_text(r->groups, fitted, sizeof fitted);
   fprintf(fp, "twistfit %s calibrate, %s\n", twf_version(), created);
@@ -400,83 +439,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     }
   }
 
-  if (lines_fitted)
-    fprintf(fp, "\nAs-built joint lines against the starting model (fitted: %s)\n"
-                "  datum: the base frame that best aligns the as-built joint lines with the\n"
-                "  starting model's (lines at logged zero; RMS misfit %.*f %s)\n",
-            fitted, u->ldec, r->comparison.datum_rms_m / u->length_si, u->length);
-  else
-    fprintf(fp, "\nChanges against the starting model (fitted: %s)\n"
-                "  no joint line was fitted: the lines are the starting model's, no tilt or\n"
-                "  line shift is shown%s\n",
-            fitted, show_offset ? "; the offsets are the fitted offset changes" : "");
-  if (show_tilt || lines_fitted || show_offset) {
-    fprintf(fp, "  %-8s", "joint");
-    if (show_tilt) fprintf(fp, " %14s", "tilt");
-    if (lines_fitted) fprintf(fp, " %14s", "line shift");
-    if (show_offset) fprintf(fp, " %14s", "offset");
-    fprintf(fp, "\n  %-8s", "");
-    if (show_tilt) fprintf(fp, " %14s", u->angle);
-    if (lines_fitted) fprintf(fp, " %14s", u->length);
-    if (show_offset) fprintf(fp, " %14s", u->angle);
-    fputc('\n', fp);
-    for (j = 0; j < m->n_joints; j++) {
-      const twf_joint_deviation *d = &r->comparison.joints[j];
-      unsigned und = r->joint_undetermined[j];
-      int nd_tilt = (und & TWF_GROUP_BIT(TWF_GROUP_TILTS)) != 0;
-      int nd_line = (und & (TWF_GROUP_BIT(TWF_GROUP_TILTS) | TWF_GROUP_BIT(TWF_GROUP_SHIFTS))) != 0;
-      int nd_off = (und & TWF_GROUP_BIT(TWF_GROUP_OFFSETS)) != 0;
-      fprintf(fp, "  %-8s", m->joints[j].name);
-      if (show_tilt) {
-        if (nd_tilt) fprintf(fp, " %14s", "n/d");
-        else fprintf(fp, " %14.*f", u->adec, d->angle_rad / u->angle_si);
-      }
-      if (lines_fitted) {
-        if (nd_line) fprintf(fp, " %14s", "n/d");
-        else fprintf(fp, " %14.*f", u->ldec, d->distance_m / u->length_si);
-      }
-      if (show_offset) {
-        if (nd_off || !isfinite(d->offset)) fprintf(fp, " %14s", nd_off ? "n/d" : "-");
-        else fprintf(fp, " %14.*f", u->adec, d->offset / u->angle_si);
-      }
-      if (und) {
-        char gt[96];
-        groups_text(und, gt, sizeof gt);
-        fprintf(fp, "  (n/d: not determined by these poses (%s; joint range %.3g %s); see the warnings)", gt,
-                r->joint_range[j] / (m->joints[j].type == TWF_JOINT_REVOLUTE ? u->angle_si : u->length_si),
-                m->joints[j].type == TWF_JOINT_REVOLUTE ? u->angle : u->length);
-      }
-      else if (m->joints[j].type != TWF_JOINT_REVOLUTE)
-        fprintf(fp, "  (prismatic: direction only)");
-      else if (show_offset && !isfinite(d->offset))
-        fprintf(fp, "  (offset not shown by the data: absorbed by the %s)",
-                lines_fitted || j + 1 == m->n_joints ? "targets" : "base");
-      fputc('\n', fp);
-    }
-  }
-  for (j = 0; j < m->n_targets && lines_fitted; j++) {
-    const double *t = r->comparison.target_change_m + 3 * j;
-    if (isnan(t[0]) || !r->target_in_fit[j])
-      continue;
-    fprintf(fp, "  target %s at logged zero moved by %.*f %.*f %.*f %s\n", m->targets[j].name,
-            u->ldec, t[0] / u->length_si, u->ldec, t[1] / u->length_si, u->ldec, t[2] / u->length_si, u->length);
-  }
-  for (j = 0; j < r->asbuilt->n_targets; j++)
-    if (r->asbuilt->targets[j].offset_known && r->target_in_fit[j])
-      fprintf(fp, "  target %s offset (flange frame): %.*f %.*f %.*f %s\n", m->targets[j].name,
-              u->ldec, r->asbuilt->targets[j].offset[0] / u->length_si, u->ldec,
-              r->asbuilt->targets[j].offset[1] / u->length_si, u->ldec,
-              r->asbuilt->targets[j].offset[2] / u->length_si, u->length);
-  if (isfinite(r->comparison.home_angle_rad))
-    fprintf(fp, "  flange at logged zero: rotated %.*f %s\n", u->adec, r->comparison.home_angle_rad / u->angle_si,
-            u->angle);
-  if (isfinite(r->comparison.home_distance_m))
-    fprintf(fp, "  flange at logged zero: moved %.*f %s\n", u->ldec, r->comparison.home_distance_m / u->length_si,
-            u->length);
-  if (lines_fitted)
-    fprintf(fp, "  (tilt, line shift and offset are rotations and shifts of the joint lines at\n"
-                "  logged zero: they do not depend on which redundant parameters were fixed;\n"
-                "  the raw parameters below do)\n");
+  print_geometry(fp, m, r, u, fitted);
 
   fprintf(fp, "\nIdentifiability\n");
   fprintf(fp, "  requested %zu parameters; identifiable for this arm and measurement kind %zu;\n"
@@ -619,7 +582,7 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
 {
   const twf_campaign *view = in->campaign;
   const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
-  json_t *root = json_object(), *inputs = json_array(), *params = json_array(), *joints = json_array();
+  json_t *root = json_object(), *inputs = json_array(), *params = json_array();
   json_t *warn = json_array(), *outl = json_array(), *corr = json_array(), *ident;
   size_t i, j;
   const twf_model *m = in->model;
@@ -718,19 +681,10 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
     if (meas != NULL)
       json_object_set_new(root, "measurements", meas);
   }
-  for (j = 0; j < m->n_joints; j++) {
-    const twf_joint_deviation *d = &r->comparison.joints[j];
-    int rev = m->joints[j].type == TWF_JOINT_REVOLUTE;
-    json_array_append_new(joints, json_pack("{s:s, s:o, s:o, s:o, s:o}", "joint", m->joints[j].name, "tilt",
-                                            cli_json_number(d->angle_rad / u->angle_si), "line_shift",
-                                            cli_json_number(d->distance_m / u->length_si), "offset",
-                                            cli_json_number(d->offset / u->angle_si), "offset_raw",
-                                            cli_json_number(d->offset_raw / (rev ? u->angle_si : u->length_si))));
+  {
+    cli_links_table t = links_table(m, r, u);
+    json_object_set_new(root, "links", cli_links_json(&t));
   }
-  json_object_set_new(root, "asbuilt_deviation",
-                      json_pack("{s:s, s:o, s:o}", "datum", "best alignment of the joint lines at logged zero",
-                                "datum_rms", cli_json_number(r->comparison.datum_rms_m / u->length_si), "joints",
-                                joints));
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     const char *unit;

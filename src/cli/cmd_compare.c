@@ -81,68 +81,29 @@ static void print_row(FILE *fp, const char *label, const twf_stats *s, double un
           s->rms / unit, dec, s->p95 / unit, dec, s->max / unit);
 }
 
-static int link_is_angle(int v)
+static cli_links_table links_table(const twf_links *l, const double *diff, const twf_model *a, const cli_units *u)
 {
-  return v == TWF_LINK_THETA || v == TWF_LINK_ALPHA || v == TWF_LINK_BETA;
+  cli_links_table t;
+  memset(&t, 0, sizeof t);
+  t.links = l;
+  t.difference = diff;
+  t.model = a;
+  t.units = u;
+  t.reference_label = "A";
+  t.value_label = "B";
+  t.reference_key = "a";
+  t.value_key = "b";
+  return t;
 }
 
-/* The note of a value: why a calibration would not determine it (the
- * difference then reflects a frame or target convention, not the arm). */
-static const char *link_note(const twf_link_row *row, int v)
+static void print_links(FILE *fp, const cli_links_table *t, int full_pose)
 {
-  return row->why[v] == TWF_LINK_DETERMINED ? "" : twf_link_why_text(row->why[v]);
-}
-
-static void print_links(FILE *fp, const twf_links *l, const double *diff, const cli_units *u, int full_pose)
-{
-  size_t r;
-  int v;
   fprintf(fp, "\nLink parameters, link by link: A and B in A's forms (row k: joint k's line and the link to\n"
-              "line k+1; row 0 the base, the last row the flange), %s and %s\n", u->length, u->angle);
-  fprintf(fp, "  %4s %-5s %-6s %14s %14s %14s  %s\n", "row", "form", "value", "A", "B", "B - A", "note");
-  for (r = 0; r < l->n_rows; r++) {
-    const twf_link_row *row = &l->rows[r];
-    for (v = 0; v < TWF_LINK_NVALUES; v++) {
-      double unit = link_is_angle(v) ? u->angle_si : u->length_si;
-      int dec = link_is_angle(v) ? u->adec : u->ldec;
-      if (row->why[v] == TWF_LINK_NOT_IN_FORM)
-        continue;
-      fprintf(fp, "  %4zu %-5s %-6s %14.*f %14.*f %14.*f  %s\n", r, row->form == TWF_LINK_FORM_BETA ? "beta" : "dh",
-              twf_link_value_name((twf_link_value)v), dec, row->reference[v] / unit, dec, row->value[v] / unit, dec,
-              diff[5 * r + (size_t)v] / unit, link_note(row, v));
-    }
-  }
+              "line k+1; row 0 the base, the last row the flange), %s and %s\n", t->units->length, t->units->angle);
+  cli_links_print(fp, t);
   fprintf(fp, "  notes: %s; standard deviations: none (a model file carries no covariance)\n",
           full_pose ? "the models come from 6-D data (--full-pose)"
                     : "points-only calibration assumed: the targets absorb the flange link (--full-pose if not)");
-}
-
-static json_t *json_links(const twf_links *l, const double *diff, const cli_units *u, int full_pose)
-{
-  json_t *o = json_object(), *rows = json_array();
-  size_t r;
-  int v;
-  for (r = 0; r < l->n_rows; r++) {
-    const twf_link_row *row = &l->rows[r];
-    json_t *vals = json_object();
-    for (v = 0; v < TWF_LINK_NVALUES; v++) {
-      double unit = link_is_angle(v) ? u->angle_si : u->length_si;
-      if (row->why[v] == TWF_LINK_NOT_IN_FORM)
-        continue;
-      json_object_set_new(vals, twf_link_value_name((twf_link_value)v),
-                          json_pack("{s:o, s:o, s:o, s:o, s:b, s:s*}", "a", cli_json_number(row->reference[v] / unit),
-                                    "b", cli_json_number(row->value[v] / unit), "difference",
-                                    cli_json_number(diff[5 * r + (size_t)v] / unit), "std", json_null(),
-                                    "determined", row->why[v] == TWF_LINK_DETERMINED, "note",
-                                    row->why[v] == TWF_LINK_DETERMINED ? NULL : twf_link_why_text(row->why[v])));
-    }
-    json_array_append_new(rows, json_pack("{s:I, s:s, s:o}", "row", (json_int_t)r, "form",
-                                          row->form == TWF_LINK_FORM_BETA ? "beta" : "dh", "values", vals));
-  }
-  json_object_set_new(o, "forms_from", json_string("a"));
-  json_object_set_new(o, "full_pose", json_boolean(full_pose));
-  json_object_set_new(o, "rows", rows);
-  return o;
 }
 
 static int run_compare(int argc, char **argv)
@@ -355,7 +316,10 @@ static int run_compare(int argc, char **argv)
     fputc('\n', txt);
     config_id(joints, res->angle.max_index, id, sizeof id);
     fprintf(txt, "largest angle: %.*f %s at %s\n", u.adec, res->angle.max / u.angle_si, u.angle, id);
-    print_links(txt, &links, ldiff, &u, full_pose);
+    {
+      cli_links_table lt = links_table(&links, ldiff, a, &u);
+      print_links(txt, &lt, full_pose);
+    }
     {
       int any = 0;
       for (i = 0; i < 3; i++)
@@ -405,7 +369,12 @@ static int run_compare(int argc, char **argv)
                                   "point", point_name(res, a, res->worst_point), "distance",
                                   cli_json_number(res->position.max / u.length_si), "angle",
                                   cli_json_number(res->worst_angle_rad / u.angle_si), "joints", wj));
-    json_object_set_new(root, "links", json_links(&links, ldiff, &u, full_pose));
+    {
+      cli_links_table lt = links_table(&links, ldiff, a, &u);
+      json_t *lj = cli_links_json(&lt);
+      json_object_set_new(lj, "forms_from", json_string("a"));
+      json_object_set_new(root, "links", lj);
+    }
     for (i = 0; i < 3; i++)
       if (tol[i].limit > 0)
         json_object_set_new(tols, tol[i].name,

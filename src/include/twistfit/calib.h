@@ -14,6 +14,7 @@
 #include "twistfit/accuracy.h"
 #include "twistfit/asbuilt.h"
 #include "twistfit/pattern.h"
+#include "twistfit/links.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -246,6 +247,25 @@ typedef struct twf_calib_result {
   /* Whether the as-built residuals (fit and check rows the figures keep)
    * look like noise: see twistfit/pattern.h. */
   twf_pattern_result pattern;
+  /* The parameter covariance: n_params x n_params, row-major, SI, in the
+   * layout of params (rows and columns of fixed parameters 0), scaled by
+   * the a-posteriori variance factor when sigma was estimated; params[].std
+   * and the correlations are read from it. */
+  double *covariance;
+  /* Singular values of the scaled, weighted Jacobian of the kept columns,
+   * largest first (n_singular of them, normally n_kept): the condition
+   * number and the observability indices derive from them. */
+  size_t n_singular;
+  double *singular_values;
+  /* The as-built link parameters (twistfit/links.h) in the forms the
+   * starting model's lines choose: value[] the as-built model's, reference[]
+   * the starting model's, std[] propagated from covariance, why[] including
+   * what this fit left open (twf_links_mark_fit). Intrinsic: the same
+   * whichever redundant parameters the walk fixed. Values and link_change
+   * (as-built - starting, 5 per row, angles wrapped, NAN where not in the
+   * form) as twf_compare_links gives them. */
+  twf_links links;
+  double *link_change;
   twf_trace trace;            /* stage timings and solver steps, for a verbose report */
 } twf_calib_result;
 

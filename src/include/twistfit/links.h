@@ -71,9 +71,14 @@ typedef enum twf_link_why {
                              offsets is determined (the first shows 0) */
   TWF_LINK_PRISMATIC_LINE,/* depends on where a prismatic joint's line is drawn,
                              a convention (its reference point) */
-  TWF_LINK_PARALLEL_SLIDE /* the zero of a prismatic joint whose next line is
+  TWF_LINK_PARALLEL_SLIDE,/* the zero of a prismatic joint whose next line is
                              parallel to it: it trades off with the downstream
                              geometry (the model's raw offset is shown) */
+  /* set by twf_links_mark_fit only: */
+  TWF_LINK_NOT_FITTED,    /* no fitted parameter moves it: the groups that would
+                             were not fitted (the value is the starting model's) */
+  TWF_LINK_BY_POSES       /* it depends on a parameter that these poses could not
+                             determine (e.g. a joint that did not move) */
 } twf_link_why;
 
 /* A short English reason ("absorbed by the base pose", ...). Never NULL. */
@@ -147,6 +152,21 @@ twf_status twf_links_jacobian(const twf_model *m, unsigned groups,
 twf_status twf_links_propagate(const twf_model *m, unsigned groups,
                                const double *cov, twf_links *l,
                                twf_error *err);
+
+/* What a fit leaves open, and the standard deviations of the rest: with
+ * J from twf_links_jacobian at m (the fitted model, before any change of
+ * its base frame, so that the parameters are the fit's own), a value still
+ * marked determined becomes TWF_LINK_BY_POSES when it moves with a
+ * parameter flagged in by_poses (n = the parameter count, may be NULL),
+ * TWF_LINK_NOT_FITTED when no parameter moves it, and otherwise gets
+ * std = sqrt(J cov J^T). "Moves" means by more than 1e-6 m (lengths) or
+ * 1e-6 m at the reach (angles) per metre of the parameter's motion at the
+ * reach: central differences leave about 1e-10 there. std of values not
+ * determined is NAN, of values not in the form 0. */
+twf_status twf_links_mark_fit(const twf_model *m, unsigned groups,
+                              const double *cov,
+                              const unsigned char *by_poses, twf_links *l,
+                              twf_error *err);
 
 /* ------------------------------------------------------------------ */
 /* Model -> DH table                                                   */

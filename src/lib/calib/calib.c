@@ -108,6 +108,10 @@ void twf_calib_result_free(twf_calib_result *r)
   free(r->check_flagged);
   free(r->joint_undetermined);
   twf_pattern_result_clear(&r->pattern);
+  free(r->covariance);
+  free(r->singular_values);
+  twf_links_clear(&r->links);
+  free(r->link_change);
   twf_trace_clear(&r->trace);
   free(r);
 }
@@ -689,6 +693,10 @@ static twf_status stage_covariance(job *j)
                          "the normal matrix of the kept parameters is singular at the solution");
   for (k = 0; k < p * p; k++)
     j->cov[k] *= factor;
+  res->covariance = malloc((p ? p * p : 1) * sizeof *res->covariance);
+  if (res->covariance == NULL)
+    return nomem(j);
+  memcpy(res->covariance, j->cov, p * p * sizeof *res->covariance);
   return TWF_OK;
 }
 
@@ -714,19 +722,25 @@ static void correlation_insert(twf_calib_result *res, size_t a, size_t b, double
 
 /* Conditioning and observability of the scaled, weighted Jacobian (Sun
  * and Hollerbach 2008). As and ratio are free again: workspaces here. */
-static void conditioning(job *j)
+static twf_status conditioning(job *j)
 {
   twf_calib_result *res = j->res;
   double *sv = j->ratio;
   size_t ns;
   twf_lsq_scale_normal(&j->pr, j->pr.A, j->As);
   ns = twf_ident_singular_values(j->As, j->p, j->keep, sv);
+  res->singular_values = malloc((ns ? ns : 1) * sizeof *res->singular_values);
+  if (res->singular_values == NULL)
+    return nomem(j);
+  memcpy(res->singular_values, sv, ns * sizeof *sv);
+  res->n_singular = ns;
   twf_observability_indices(sv, ns, j->n_rows, &res->observability);
   if (ns > 0 && sv[ns - 1] > 0) {
     res->condition_number = sv[0] / sv[ns - 1];
   } else {
     res->condition_number = INFINITY;
   }
+  return TWF_OK;
 }
 
 /* Values and standard deviations, weak parameters and their warnings, the
@@ -764,8 +778,7 @@ static twf_status stage_identifiability(job *j)
       if (fabs(rho) > 0.9)
         correlation_insert(res, a, b, rho);
     }
-  conditioning(j);
-  return TWF_OK;
+  return conditioning(j);
 }
 
 /* ------------------------------------------------------------ stage: as-built summary */
@@ -973,6 +986,54 @@ static twf_status stage_asbuilt(job *j)
 
 /* Do the as-built residuals of the rows the figures keep (fit and check)
  * look like noise? (twistfit/pattern.h) */
+/* ------------------------------------------------------------ stage: link parameters */
+
+/* The as-built link parameters against the starting model, with standard
+ * deviations and what the fit left open. The values come from the written
+ * (datum-aligned) model; the Jacobian from the fitted model in the fit's
+ * own frame, where the covariance's parameters live. The two agree in
+ * every intrinsic value and in the forms, which the starting model's lines
+ * choose. */
+static twf_status stage_links(job *j)
+{
+  twf_calib_result *res = j->res;
+  twf_links_options lo = twf_links_default_options();
+  twf_links fit;
+  unsigned char *by_poses = calloc(res->n_params ? res->n_params : 1, 1);
+  twf_status st;
+  size_t a, r;
+  if (by_poses == NULL)
+    return nomem(j);
+  memset(&fit, 0, sizeof fit);
+  for (a = 0; a < res->n_params; a++)
+    by_poses[a] = res->params[a].status == TWF_PARAM_FIXED_DATA;
+  lo.full_pose = j->with_orientation;
+  lo.reference = j->start;
+  res->link_change = malloc(TWF_LINK_NVALUES * (res->asbuilt->n_joints + 2) * sizeof *res->link_change);
+  if (res->link_change == NULL) {
+    free(by_poses);
+    return nomem(j);
+  }
+  /* the comparison's values (a free DH x sign put in the start's) */
+  st = twf_compare_links(j->start, res->asbuilt, j->with_orientation, &res->links, res->link_change, j->err);
+  if (st == TWF_OK)
+    st = twf_links_compute(j->pr.m, &lo, &fit, j->err);
+  if (st == TWF_OK)
+    st = twf_links_mark_fit(j->pr.m, res->groups, res->covariance, by_poses, &fit, j->err);
+  for (r = 0; st == TWF_OK && r < fit.n_rows; r++) {
+    if (fit.rows[r].form != res->links.rows[r].form) {
+      st = twf_error_set(j->err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "the link forms of the fitted and the written model differ");
+      break;
+    }
+    memcpy(res->links.rows[r].std, fit.rows[r].std, sizeof fit.rows[r].std);
+    memcpy(res->links.rows[r].why, fit.rows[r].why, sizeof fit.rows[r].why);
+  }
+  twf_links_clear(&fit);
+  free(by_poses);
+  return st;
+}
+
 static twf_status stage_pattern(job *j)
 {
   twf_calib_result *res = j->res;
@@ -1092,6 +1153,7 @@ static const struct stage {
   { "covariance", stage_covariance },
   { "identifiability", stage_identifiability },
   { "as-built summary", stage_asbuilt },
+  { "link parameters", stage_links },
   { "residual pattern", stage_pattern },
   { "plausibility", stage_plausibility },
 };

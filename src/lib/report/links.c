@@ -52,6 +52,8 @@ static const char *const why_text[] = {
   "two revolute joints on one line: only the sum of their offsets is determined",
   "depends on where the prismatic joint's line is drawn (a convention)",
   "zero of a prismatic joint along a parallel line: trades off with the downstream geometry",
+  "not fitted (no fitted parameter moves it)",
+  "not determined by these poses (see the warnings)",
 };
 
 const char *twf_link_why_text(twf_link_why why)
@@ -673,52 +675,130 @@ done:
   return st;
 }
 
-twf_status twf_links_propagate(const twf_model *m, unsigned groups,
-                               const double *cov, twf_links *l,
-                               twf_error *err)
+/* The variance of the value of Jacobian row Jr: Jr cov Jr^T. */
+static double row_variance(const double *Jr, const double *cov, size_t p)
 {
-  twf_errmodel *em;
-  double *J;
-  size_t p, nv, r, a, b;
+  double var = 0.0;
+  size_t a, b;
+  for (a = 0; a < p; a++) {
+    double t = 0.0;
+    if (Jr[a] == 0.0)
+      continue;
+    for (b = 0; b < p; b++)
+      t += cov[a * p + b] * Jr[b];
+    var += Jr[a] * t;
+  }
+  return var > 0 ? var : 0.0;
+}
+
+/* J of m's links, allocated ((n_rows * 5) x p); *p_out the parameter count. */
+static twf_status links_jacobian_alloc(const twf_model *m, unsigned groups, const twf_links *l, double **J,
+                                       size_t *p_out, twf_error *err)
+{
+  twf_errmodel *em = twf_errmodel_alloc(m, groups, err);
+  size_t p;
   twf_status st;
-  if (cov == NULL || l == NULL)
-    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
-                         "no covariance or links given");
-  em = twf_errmodel_alloc(m, groups, err);
+  *J = NULL;
   if (em == NULL)
     return err ? err->status : TWF_ERR_INVALID;
   p = twf_errmodel_n_params(em);
   twf_errmodel_free(em);
-  nv = l->n_rows * TWF_LINK_NVALUES;
-  J = calloc(nv * (p ? p : 1), sizeof *J);
-  if (J == NULL)
+  *J = calloc(l->n_rows * TWF_LINK_NVALUES * (p ? p : 1), sizeof **J);
+  if (*J == NULL)
     return nomem(err);
-  st = twf_links_jacobian(m, groups, l, 0.0, J, err);
+  st = twf_links_jacobian(m, groups, l, 0.0, *J, err);
   if (st != TWF_OK) {
-    free(J);
-    return st;
+    free(*J);
+    *J = NULL;
   }
+  *p_out = p;
+  return st;
+}
+
+twf_status twf_links_propagate(const twf_model *m, unsigned groups,
+                               const double *cov, twf_links *l,
+                               twf_error *err)
+{
+  double *J;
+  size_t p, nv, r;
+  twf_status st;
+  if (cov == NULL || l == NULL)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "no covariance or links given");
+  if ((st = links_jacobian_alloc(m, groups, l, &J, &p, err)) != TWF_OK)
+    return st;
+  nv = l->n_rows * TWF_LINK_NVALUES;
   for (r = 0; r < nv; r++) {
     twf_link_row *row = &l->rows[r / TWF_LINK_NVALUES];
     int v = (int)(r % TWF_LINK_NVALUES);
-    const double *Jr = J + r * p;
-    double var = 0.0;
-    for (a = 0; a < p; a++) {
-      double t = 0.0;
-      if (Jr[a] == 0.0)
-        continue;
-      for (b = 0; b < p; b++)
-        t += cov[a * p + b] * Jr[b];
-      var += Jr[a] * t;
-    }
     if (row->why[v] == TWF_LINK_NOT_IN_FORM)
       row->std[v] = 0.0;
     else if (row->why[v] != TWF_LINK_DETERMINED)
       row->std[v] = NAN; /* the covariance says nothing about a free value */
     else
-      row->std[v] = sqrt(var > 0 ? var : 0.0);
+      row->std[v] = sqrt(row_variance(J + r * p, cov, p));
   }
   free(J);
+  return TWF_OK;
+}
+
+/* Value change per metre of parameter motion at the reach, as metres
+ * (lengths) or metres at the reach (angles), below which a parameter does
+ * not move a value: central differences with 1e-6 m steps leave 1e-10. */
+#define LINKS_MOVES_TOL 1e-6
+
+twf_status twf_links_mark_fit(const twf_model *m, unsigned groups,
+                              const double *cov,
+                              const unsigned char *by_poses, twf_links *l,
+                              twf_error *err)
+{
+  twf_errmodel *em;
+  double *J, *pscale;
+  size_t p, nv, r, a;
+  twf_status st;
+  if (cov == NULL || l == NULL || m == NULL)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "no model, covariance or links given");
+  if ((st = links_jacobian_alloc(m, groups, l, &J, &p, err)) != TWF_OK)
+    return st;
+  em = twf_errmodel_alloc(m, groups, err);
+  pscale = malloc((p ? p : 1) * sizeof *pscale);
+  if (em == NULL || pscale == NULL) {
+    twf_errmodel_free(em);
+    free(J);
+    free(pscale);
+    return em == NULL ? (err ? err->status : TWF_ERR_INVALID) : nomem(err);
+  }
+  for (a = 0; a < p; a++)
+    pscale[a] = twf_errmodel_param_scale(em, a); /* metres at the reach per unit */
+  twf_errmodel_free(em);
+  nv = l->n_rows * TWF_LINK_NVALUES;
+  for (r = 0; r < nv; r++) {
+    twf_link_row *row = &l->rows[r / TWF_LINK_NVALUES];
+    int v = (int)(r % TWF_LINK_NVALUES);
+    int angle = v == TWF_LINK_THETA || v == TWF_LINK_ALPHA || v == TWF_LINK_BETA;
+    const double *Jr = J + r * p;
+    int moved = 0, by_data = 0;
+    if (row->why[v] == TWF_LINK_NOT_IN_FORM) {
+      row->std[v] = 0.0;
+      continue;
+    }
+    for (a = 0; a < p; a++) {
+      double gain = fabs(Jr[a]) / pscale[a] * (angle ? l->reach : 1.0);
+      if (!(gain > LINKS_MOVES_TOL))
+        continue;
+      moved = 1;
+      if (by_poses != NULL && by_poses[a])
+        by_data = 1;
+    }
+    if (row->why[v] == TWF_LINK_DETERMINED && by_data)
+      row->why[v] = TWF_LINK_BY_POSES;
+    else if (row->why[v] == TWF_LINK_DETERMINED && !moved)
+      row->why[v] = TWF_LINK_NOT_FITTED;
+    row->std[v] = row->why[v] == TWF_LINK_DETERMINED ? sqrt(row_variance(Jr, cov, p)) : NAN;
+  }
+  free(J);
+  free(pscale);
   return TWF_OK;
 }
 

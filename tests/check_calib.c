@@ -323,6 +323,38 @@ START_TEST(test_offsets_only_remaster)
       ck_assert_double_eq(res->comparison.joints[i].offset, res->comparison.joints[i].offset_raw);
   }
   ck_assert_uint_eq(res->groups, TWF_GROUPS_REMASTER);
+  /* the link table: only the offsets moved, each theta by its fitted
+   * offset change and with that parameter's standard deviation (the
+   * Jacobian of theta_k on j_k.offset is 1: a check of the propagation);
+   * joints 1 and 6 not determined (base, targets), the rest not fitted */
+  ck_assert_uint_eq(res->links.n_rows, 8);
+  for (i = 0; i < res->links.n_rows; i++) {
+    const twf_link_row *row = &res->links.rows[i];
+    int v;
+    for (v = 0; v < TWF_LINK_NVALUES; v++) {
+      if (row->why[v] == TWF_LINK_NOT_IN_FORM)
+        continue;
+      if (v == TWF_LINK_THETA && i >= 2 && i <= 5) {
+        char name[32];
+        const twf_param_result *pr;
+        snprintf(name, sizeof name, "j%zu.offset", i);
+        pr = find_param(res, name);
+        ck_assert_int_eq(row->why[v], TWF_LINK_DETERMINED);
+        ck_assert_msg(fabs(res->link_change[5 * i + (size_t)v] - pr->change) < 1e-12, "%s: link %.9g, param %.9g",
+                      name, res->link_change[5 * i + (size_t)v], pr->change);
+        ck_assert_msg(fabs(row->std[v] - pr->std) < 1e-6 * pr->std, "%s: std %.9g against %.9g", name,
+                      row->std[v], pr->std);
+      } else if (i == 0 || i == 1 || i >= 6) {
+        ck_assert_msg(row->why[v] == TWF_LINK_BY_BASE || row->why[v] == TWF_LINK_BY_TARGETS ||
+                      row->why[v] == TWF_LINK_NOT_FITTED, "row %zu value %d: why %d", i, v, (int)row->why[v]);
+      } else {
+        ck_assert_int_eq(row->why[v], TWF_LINK_NOT_FITTED);
+        ck_assert(fabs(res->link_change[5 * i + (size_t)v]) < 1e-12);
+      }
+    }
+  }
+  ck_assert_int_eq(res->links.rows[1].why[TWF_LINK_THETA], TWF_LINK_BY_BASE);
+  ck_assert_int_eq(res->links.rows[6].why[TWF_LINK_THETA], TWF_LINK_BY_TARGETS);
   twf_calib_result_free(res);
   twf_campaign_free(c);
   twf_model_free(previous);
@@ -585,6 +617,30 @@ START_TEST(test_asbuilt_independent_of_order)
     for (i = 0; i < sa.res->n_params; i++)
       if (sa.res->params[i].status != sb.res->params[i].status)
         raw_differs = 1;
+    /* the link table, values and standard deviations, to 1e-9 relative
+     * (of the value, or of 1 m / 1 rad near zero) */
+    ck_assert_uint_eq(sa.res->links.n_rows, sb.res->links.n_rows);
+    for (i = 0; i < sa.res->links.n_rows; i++) {
+      const twf_link_row *ra = &sa.res->links.rows[i], *rb = &sb.res->links.rows[i];
+      int v;
+      ck_assert_int_eq(ra->form, rb->form);
+      for (v = 0; v < TWF_LINK_NVALUES; v++) {
+        double ca = sa.res->link_change[5 * i + (size_t)v], cb = sb.res->link_change[5 * i + (size_t)v];
+        ck_assert_int_eq(ra->why[v], rb->why[v]);
+        if (ra->why[v] != TWF_LINK_DETERMINED)
+          continue;
+        /* Known limit: on tf4p every line is parallel, and row 1's Hayati
+         * plane goes through joint 1's reference point, whose place along
+         * the line differs between the two fits; a then moves by that
+         * distance times the tilt between lines 1 and 2 (0.27 um here).
+         * Kept visible with its own bound until an intrinsic place exists. */
+        double tol = arm == 3 && i == 1 ? 1e-6 : 1e-9 * fmax(fabs(ra->value[v]), 1.0);
+        double stol = arm == 3 && i == 1 ? 1e-3 * ra->std[v] : 1e-9 * ra->std[v] + 1e-15;
+        ck_assert_msg(fabs(ca - cb) <= tol && fabs(ra->std[v] - rb->std[v]) <= stol &&
+                      "%s row %zu %s: change %.12g / %.12g, std %.12g / %.12g", sa.nominal->name, i,
+                      twf_link_value_name((twf_link_value)v), ca, cb, ra->std[v], rb->std[v]);
+      }
+    }
     ck_assert_msg(raw_differs, "%s: the two orders fixed the same parameters: the test shows nothing",
                   sa.nominal->name);
     free_scenario(&sa);

@@ -754,6 +754,45 @@ START_TEST(test_reference)
 }
 END_TEST
 
+START_TEST(test_offsets_only_change)
+{
+  /* An offsets-only change of a model changes only the offset column
+   * (theta of a revolute joint's row, d of a prismatic one's), by exactly
+   * that amount, on every sample arm and in the comparison's convention. */
+  for (int arm = 0; arm < ARM_COUNT; arm++) {
+    twf_model *nominal = arm_copy((test_arm)arm, 73), *m = twf_model_copy(nominal);
+    double delta[MAXJ], *diff;
+    twf_links l;
+    twf_error err;
+    size_t j, k;
+    ck_assert_ptr_nonnull(m);
+    for (j = 0; j < m->n_joints; j++) {
+      delta[j] = (m->joints[j].type == TWF_JOINT_REVOLUTE ? 1e-3 : 2e-4) * (double)(j + 1) * (j % 2 ? -1 : 1);
+      m->joints[j].offset += delta[j];
+    }
+    diff = malloc(NV * (m->n_joints + 2) * sizeof *diff);
+    ck_assert_ptr_nonnull(diff);
+    ck_assert_msg(twf_compare_links(nominal, m, 0, &l, diff, &err) == TWF_OK, "%s", err.message);
+    for (k = 0; k < l.n_rows; k++)
+      for (int v = 0; v < NV; v++) {
+        double want = 0.0, got = diff[NV * k + (size_t)v];
+        if (l.rows[k].why[v] == TWF_LINK_NOT_IN_FORM)
+          continue;
+        if (k >= 1 && k <= m->n_joints && v == l.rows[k].variable)
+          want = delta[k - 1];
+        if (l.rows[k].why[v] == TWF_LINK_COINCIDENT && v == TWF_LINK_THETA)
+          continue; /* only the sum of two coincident offsets is shown */
+        ck_assert_msg(fabs(got - want) < 1e-12, "%s row %zu %s: %.3g, want %.3g", m->name, k,
+                      twf_link_value_name((twf_link_value)v), got, want);
+      }
+    twf_links_clear(&l);
+    free(diff);
+    twf_model_free(m);
+    twf_model_free(nominal);
+  }
+}
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("links");
@@ -769,6 +808,7 @@ int main(void)
   tcase_add_test(tc, test_propagate);
   tcase_add_test(tc, test_parallel_beta);
   tcase_add_test(tc, test_reference);
+  tcase_add_test(tc, test_offsets_only_change);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

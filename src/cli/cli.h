@@ -121,6 +121,13 @@ void cli_csv_text(cli_csv *c, const char *text);
 void cli_csv_number(cli_csv *c, double value); /* 12 significant digits, empty for NaN */
 void cli_csv_end_row(cli_csv *c);
 
+/* The shortest of %.15g, %.16g, %.17g of si / unit that a reader turns
+ * back into si exactly (value * unit == si), so 120 deg prints as 120
+ * rather than 119.99999999999999; 0 for -0. unit is the SI size of the
+ * printed unit (1 for plain numbers). buf of n >= 32 bytes; returns buf. */
+#define CLI_SHORTEST_MAX 32
+const char *cli_shortest_double(char *buf, size_t n, double si, double unit);
+
 /* Parse a length or angle unit option value, printing a usage error. */
 int cli_parse_length_unit(const char *command, const char *value, twf_length_unit *u);
 int cli_parse_angle_unit(const char *command, const char *value, twf_angle_unit *u);

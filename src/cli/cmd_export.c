@@ -50,19 +50,60 @@ typedef struct dh_ctx {
   twf_dh_fit fit;
 } dh_ctx;
 
-/* Rounding left-overs of the conversion (below 1e-13 m or rad) written as 0. */
-static double tidy(double si, double unit)
+/* A value of the table in the file's unit: rounding left-overs of the
+ * conversion (below 1e-13 m or rad) as 0, else the shortest decimal that
+ * reads back to the same double (cli_shortest_double). One buffer per
+ * argument of a fprintf: slot picks it. */
+static const char *num(double si, double unit, int slot)
 {
-  return fabs(si) < 1e-13 ? 0.0 : si / unit;
+  static char buf[4][CLI_SHORTEST_MAX];
+  return cli_shortest_double(buf[slot], sizeof buf[slot], fabs(si) < 1e-13 ? 0.0 : si, unit);
+}
+
+/* The conversion computes each value from differences of SI points and
+ * loses some ulps doing so (a2 of tf6s is 1.06 m - 0.45 m =
+ * 0.61000000000000010 m; tf7's a1 came out 7 ulps off), so its last bits
+ * are noise, not geometry. A value within 1e-14 relative of a 15-digit
+ * decimal in the file's unit is set to that decimal's double before the
+ * residual is computed, so the file shows 610, reads back to the very
+ * table whose residual is reported, and the change (1e-14 m on a 1 m arm)
+ * is part of that residual. */
+static double snap(double si, double unit)
+{
+  char s[CLI_SHORTEST_MAX];
+  double x;
+  if (fabs(si) < 1e-13)
+    return 0.0;
+  snprintf(s, sizeof s, "%.15g", si / unit);
+  x = strtod(s, NULL) * unit;
+  return fabs(x - si) <= 1e-14 * fabs(si) ? x : si;
+}
+
+static void snap_table(const twf_model *m, twf_dh_row *rows, twf_pose *base, twf_pose *flange)
+{
+  const double lu = twf_length_unit_si(m->length_unit);
+  const double au = twf_angle_unit_si(m->angle_unit);
+  for (size_t k = 0; k < m->n_joints; k++) {
+    rows[k].a = snap(rows[k].a, lu);
+    rows[k].d = snap(rows[k].d, lu);
+    rows[k].alpha = snap(rows[k].alpha, au);
+    rows[k].theta = snap(rows[k].theta, au);
+    rows[k].beta = snap(rows[k].beta, au);
+  }
+  for (int i = 0; i < 3; i++) {
+    base->p[i] = snap(base->p[i], lu);
+    flange->p[i] = snap(flange->p[i], lu);
+  }
 }
 
 static void put_pose(FILE *fp, const char *section, const twf_pose *T, double lu)
 {
   double q[4];
   twf_rot_to_quat(T->R, q);
-  fprintf(fp, "\n[%s]\nposition = %.17g %.17g %.17g\n", section, tidy(T->p[0], lu), tidy(T->p[1], lu),
-          tidy(T->p[2], lu));
-  fprintf(fp, "quaternion_wxyz = %.17g %.17g %.17g %.17g\n", q[0], q[1], q[2], q[3]);
+  fprintf(fp, "\n[%s]\nposition = %s %s %s\n", section, num(T->p[0], lu, 0), num(T->p[1], lu, 1),
+          num(T->p[2], lu, 2));
+  fprintf(fp, "quaternion_wxyz = %s %s %s %s\n", num(q[0], 1.0, 0), num(q[1], 1.0, 1),
+          num(q[2], 1.0, 2), num(q[3], 1.0, 3));
 }
 
 static int put_dh(FILE *fp, void *ctx, twf_error *err)
@@ -93,20 +134,20 @@ static int put_dh(FILE *fp, void *ctx, twf_error *err)
     fprintf(fp, "\n[joint %s]\ntype = %s\n", j->name,
             j->type == TWF_JOINT_PRISMATIC ? "prismatic" : "revolute");
     if (std)
-      fprintf(fp, "dh = %.17g %.17g %.17g %.17g", tidy(r->a, lu), tidy(r->alpha, au), tidy(r->d, lu),
-              tidy(r->theta, au));
+      fprintf(fp, "dh = %s %s %s %s", num(r->a, lu, 0), num(r->alpha, au, 1), num(r->d, lu, 2),
+              num(r->theta, au, 3));
     else
-      fprintf(fp, "mdh = %.17g %.17g %.17g %.17g", tidy(r->alpha, au), tidy(r->a, lu), tidy(r->d, lu),
-              tidy(r->theta, au));
-    if (tidy(r->beta, au) != 0.0)
-      fprintf(fp, " %.17g", r->beta / au);
+      fprintf(fp, "mdh = %s %s %s %s", num(r->alpha, au, 0), num(r->a, lu, 1), num(r->d, lu, 2),
+              num(r->theta, au, 3));
+    if (fabs(r->beta) >= 1e-13)
+      fprintf(fp, " %s", num(r->beta, au, 0));
     fputc('\n', fp);
     if (j->has_limits) {
       double u = j->type == TWF_JOINT_PRISMATIC ? lu : au;
-      fprintf(fp, "limits = %.17g %.17g\n", j->limit_lo / u, j->limit_hi / u);
+      fprintf(fp, "limits = %s %s\n", num(j->limit_lo, u, 0), num(j->limit_hi, u, 1));
     }
     if (j->scale != 1.0)
-      fprintf(fp, "scale = %.17g\n", j->scale);
+      fprintf(fp, "scale = %s\n", num(j->scale, 1.0, 0));
   }
   put_pose(fp, "base", &x->base, lu);
   put_pose(fp, "flange", &x->flange, lu);
@@ -114,8 +155,8 @@ static int put_dh(FILE *fp, void *ctx, twf_error *err)
     const twf_target *t = &m->targets[k];
     fprintf(fp, "\n[target %s]\n", t->name);
     if (t->offset_known)
-      fprintf(fp, "offset = %.17g %.17g %.17g\n", t->offset[0] / lu, t->offset[1] / lu,
-              t->offset[2] / lu);
+      fprintf(fp, "offset = %s %s %s\n", num(t->offset[0], lu, 0), num(t->offset[1], lu, 1),
+              num(t->offset[2], lu, 2));
   }
   return 0;
 }
@@ -134,12 +175,12 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
     return TWF_EXIT_INTERNAL;
   twf_error_clear(&err);
   memset(&x, 0, sizeof x);
-  if (twf_model_to_dh(m, conv, use_beta, rows, &x.base, &x.flange, &err) != TWF_OK ||
-      twf_dh_residual(m, rows, conv, &x.base, &x.flange, EXPORT_RESIDUAL_CONFIGS,
-                      EXPORT_RESIDUAL_SEED, &x.fit, &err) != TWF_OK) {
-    free(rows);
-    return cli_report_error(&err);
-  }
+  if (twf_model_to_dh(m, conv, use_beta, rows, &x.base, &x.flange, &err) != TWF_OK)
+    goto fail;
+  snap_table(m, rows, &x.base, &x.flange);
+  if (twf_dh_residual(m, rows, conv, &x.base, &x.flange, EXPORT_RESIDUAL_CONFIGS,
+                      EXPORT_RESIDUAL_SEED, &x.fit, &err) != TWF_OK)
+    goto fail;
   if (!use_beta) {
     const double lim = 10.0 * (reach > 0.1 ? reach : 0.1);
     for (size_t k = 0; k < m->n_joints; k++) {
@@ -178,6 +219,9 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
   }
   free(rows);
   return status;
+fail:
+  free(rows);
+  return cli_report_error(&err);
 }
 
 typedef enum export_format { FMT_NONE, FMT_DH, FMT_MDH } export_format;

@@ -706,6 +706,106 @@ START_TEST(test_pose_mul_bits_of_the_plain_product)
 END_TEST
 
 
+/* Reference: SciPy 1.10.1 scipy.spatial.transform.Rotation.from_euler and
+ * as_euler ('xyz' extrinsic for rpy, 'ZYX' and 'ZYZ' intrinsic),
+ * tests/gen/gen_euler.py, fixture tests/fixtures/euler.csv: the matrix of
+ * the angles, and the angles of the matrix (SciPy's inverse). */
+START_TEST(test_euler_vs_scipy)
+{
+  const char *path = twf_test_srcpath("tests/fixtures/euler.csv");
+  FILE *f = fopen(path, "r");
+  char line[4096];
+  int rows = 0;
+  ck_assert_msg(f != NULL, "cannot open %s", path);
+  while (fgets(line, sizeof line, f) != NULL) {
+    char name[64];
+    double v[15], R[3][3], b[3];
+    char *s, *end;
+    twf_euler_convention c;
+    if (line[0] == '#' || strncmp(line, "convention,", 11) == 0 || line[0] == '\n')
+      continue;
+    c = strncmp(line, "rpy,", 4) == 0 ? TWF_EULER_RPY
+        : strncmp(line, "zyx,", 4) == 0 ? TWF_EULER_ZYX : TWF_EULER_ZYZ;
+    ck_assert_msg(c != TWF_EULER_ZYZ || strncmp(line, "zyz,", 4) == 0, "bad row %s", line);
+    s = strchr(line + 4, ',');
+    ck_assert_msg(s != NULL && s - line < (long)sizeof name, "bad row %s", line);
+    memcpy(name, line, (size_t)(s - line));
+    name[s - line] = '\0';
+    for (int k = 0; k < 15; k++) {
+      ck_assert_msg(*s == ',', "%s: field %d missing", name, k + 3);
+      v[k] = strtod(s + 1, &end);
+      ck_assert_msg(end != s + 1, "%s: field %d not a number", name, k + 3);
+      s = end;
+    }
+    twf_euler_to_rot(c, v, R);
+    for (int i = 0; i < 3; i++)
+      for (int j = 0; j < 3; j++)
+        ck_assert_msg(fabs(R[i][j] - v[3 + 3 * i + j]) <= 1e-15 * 4,
+                      "%s: R[%d][%d] = %.17g, SciPy from_euler %.17g", name, i, j, R[i][j],
+                      v[3 + 3 * i + j]);
+    twf_rot_to_euler(c, R, b);
+    for (int k = 0; k < 3; k++)
+      ck_assert_msg(fabs(b[k] - v[12 + k]) <= 1e-12,
+                    "%s: angle %d = %.17g, SciPy as_euler %.17g", name, k, b[k], v[12 + k]);
+    rows++;
+  }
+  fclose(f);
+  ck_assert_int_eq(rows, 48);
+}
+END_TEST
+
+static double max_abs_diff(const double A[3][3], const double B[3][3])
+{
+  double e = 0.0;
+  for (int i = 0; i < 3; i++)
+    for (int j = 0; j < 3; j++)
+      e = fmax(e, fabs(A[i][j] - B[i][j]));
+  return e;
+}
+
+/* R -> angles -> R to rounding for random rotations and at and near the
+ * gimbal lock (middle angle at the lock plus 0, +-1e-300, 1e-15, 1e-12,
+ * 1e-9, 1e-6): there the outer angles are ill-conditioned but their
+ * combination is not. Angles in their documented ranges; at the lock the
+ * third angle is 0. Common practice, no outside source. */
+START_TEST(test_euler_round_trip_and_gimbal_lock)
+{
+  static const double near[] = { 0.0, 1e-300, -1e-300, 1e-15, -1e-15, 1e-12, -1e-12,
+                                 1e-9, -1e-9, 1e-6, -1e-6 };
+  twf_test_rng rng;
+  twf_test_rng_init(&rng, twf_test_seed(20261203));
+  for (int c = TWF_EULER_RPY; c <= TWF_EULER_ZYZ; c++) {
+    const int zyz = c == TWF_EULER_ZYZ;
+    for (int n = 0; n < 2000; n++) {
+      double a[3], b[3], R[3][3], S[3][3];
+      a[0] = twf_test_uniform(&rng, -PI, PI);
+      a[2] = twf_test_uniform(&rng, -PI, PI);
+      if (n < 1000) {
+        a[1] = zyz ? twf_test_uniform(&rng, 0.0, PI)
+                   : twf_test_uniform(&rng, -PI / 2, PI / 2);
+      } else {
+        const double lock = zyz ? ((n & 1) ? PI : 0.0)
+                                : ((n & 1) ? PI / 2 : -PI / 2);
+        a[1] = lock + near[n % (sizeof near / sizeof near[0])];
+      }
+      twf_euler_to_rot((twf_euler_convention)c, a, R);
+      twf_rot_to_euler((twf_euler_convention)c, R, b);
+      twf_euler_to_rot((twf_euler_convention)c, b, S);
+      ck_assert_msg(max_abs_diff(R, S) < 4e-15, "convention %d, angles %.17g %.17g %.17g: "
+                    "round trip off by %g", c, a[0], a[1], a[2], max_abs_diff(R, S));
+      ck_assert(fabs(b[0]) <= PI && fabs(b[2]) <= PI);
+      if (zyz)
+        ck_assert(b[1] >= -1e-15 && b[1] <= PI);
+      else
+        ck_assert(fabs(b[1]) <= PI / 2 + 1e-15);
+      if (n >= 1000 && (n % (sizeof near / sizeof near[0])) < 3)
+        ck_assert_msg(b[2] == 0.0, "convention %d: at the lock the third angle is %g", c, b[2]);
+    }
+  }
+}
+END_TEST
+
+
 static Suite *se3_suite(void)
 {
   Suite *s = suite_create("se3");
@@ -726,6 +826,8 @@ static Suite *se3_suite(void)
   tcase_add_test(tc, test_pose_inverse_and_aliasing);
   tcase_add_test(tc, test_angle_between);
   tcase_add_test(tc, test_orthonormality_error);
+  tcase_add_test(tc, test_euler_vs_scipy);
+  tcase_add_test(tc, test_euler_round_trip_and_gimbal_lock);
   suite_add_tcase(s, tc);
   return s;
 }

@@ -3,10 +3,13 @@
  *   dh, mdh   a standard / modified DH model file (twistfit-model(5)),
  *             by twf_model_to_dh, with Hayati's beta where the axes are
  *             nearly parallel (--no-beta: plain rows, refused when they
- *             would need absurd lengths). */
+ *             would need absurd lengths).
+ *   sheet, sheet-csv   the parameter sheet for entering a calibration by
+ *             hand (export_sheet.c). */
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
+#include "export_sheet.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -19,6 +22,10 @@ static const char export_help[] =
   "Write MODEL in another form. FORMAT is one of:\n"
   "  dh     a model file of standard (distal) Denavit-Hartenberg rows\n"
   "  mdh    a model file of modified (proximal, Craig) DH rows\n"
+  "  sheet, sheet-csv\n"
+  "         a parameter sheet (text or CSV) for entering the model into a\n"
+  "         controller by hand: zero offsets, link parameters, base frame and\n"
+  "         targets, with the conventions and signs in words\n"
   "The DH files carry Hayati's fifth value beta where consecutive joint axes\n"
   "are nearly parallel, and [base] and [flange] poses; twistfit reads them\n"
   "back with the same kinematics. Joint names, limits, scales and targets are\n"
@@ -27,15 +34,20 @@ static const char export_help[] =
   "printed on standard error, with a warning above 1 um or 1 urad.\n"
   "\n"
   "Options:\n"
-  "      --as FORMAT            dh or mdh (required)\n"
+  "      --as FORMAT            dh, mdh, sheet or sheet-csv (required)\n"
   "      --no-beta              plain four-value rows; refused when nearly\n"
   "                             parallel axes would need lengths beyond 10 times\n"
   "                             the arm's reach\n"
+  "      --euler rpy|zyx|zyz    sheet: the angles of poses: roll, pitch, yaw about the\n"
+  "                             fixed x, y, z axes (rpy, the default); intrinsic\n"
+  "                             about z, y', x'' (zyx) or z, y', z'' (zyz)\n"
+  "      --base FILE            sheet: the base pose file that calibrate wrote, the\n"
+  "                             base frame in the instrument frame\n"
   "  -o, --output FILE          write to FILE (atomically) instead of stdout\n"
   "  -f, --force                replace FILE when it exists\n"
   "  -h, --help                 show this help\n";
 
-enum { OPT_AS = 256, OPT_NO_BETA };
+enum { OPT_AS = 256, OPT_NO_BETA, OPT_EULER, OPT_BASE };
 
 /* Configurations of the conversion residual (seeded, within the limits). */
 #define EXPORT_RESIDUAL_CONFIGS 1000
@@ -224,7 +236,7 @@ fail:
   return cli_report_error(&err);
 }
 
-typedef enum export_format { FMT_NONE, FMT_DH, FMT_MDH } export_format;
+typedef enum export_format { FMT_NONE, FMT_DH, FMT_MDH, FMT_SHEET, FMT_SHEET_CSV } export_format;
 
 static int run_export(int argc, char **argv)
 {
@@ -233,11 +245,14 @@ static int run_export(int argc, char **argv)
     { "force", no_argument, NULL, 'f' },
     { "as", required_argument, NULL, OPT_AS },
     { "no-beta", no_argument, NULL, OPT_NO_BETA },
+    { "euler", required_argument, NULL, OPT_EULER },
+    { "base", required_argument, NULL, OPT_BASE },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
   static const char *const names[1] = { "--output" };
-  const char *output = NULL, *inputs[2] = { NULL, NULL };
+  const char *output = NULL, *inputs[3] = { NULL, NULL, NULL }, *euler = NULL, *base = NULL;
+  twf_euler_convention eu = TWF_EULER_RPY;
   int force = 0, use_beta = 1, opt, status = TWF_EXIT_OK;
   export_format fmt = FMT_NONE;
   twf_model *m = NULL;
@@ -253,13 +268,19 @@ static int run_export(int argc, char **argv)
     case 'o': output = optarg; break;
     case 'f': force = 1; break;
     case OPT_NO_BETA: use_beta = 0; break;
+    case OPT_EULER: euler = optarg; break;
+    case OPT_BASE: base = optarg; break;
     case OPT_AS:
       if (strcmp(optarg, "dh") == 0)
         fmt = FMT_DH;
       else if (strcmp(optarg, "mdh") == 0)
         fmt = FMT_MDH;
+      else if (strcmp(optarg, "sheet") == 0)
+        fmt = FMT_SHEET;
+      else if (strcmp(optarg, "sheet-csv") == 0)
+        fmt = FMT_SHEET_CSV;
       else {
-        status = cli_usage_error("export", "--as takes dh or mdh, not '%s'", optarg);
+        status = cli_usage_error("export", "--as takes dh, mdh, sheet or sheet-csv, not '%s'", optarg);
         goto done;
       }
       break;
@@ -275,7 +296,15 @@ static int run_export(int argc, char **argv)
     status = cli_usage_error("export", "give the form with --as dh or --as mdh");
     goto done;
   }
+  if ((euler != NULL || base != NULL) && fmt != FMT_SHEET && fmt != FMT_SHEET_CSV) {
+    status = cli_usage_error("export", "%s applies to --as sheet and sheet-csv only",
+                             euler != NULL ? "--euler" : "--base");
+    goto done;
+  }
+  if (euler != NULL && (status = cli_sheet_parse_euler(euler, &eu)) != 0)
+    goto done;
   inputs[0] = argv[optind];
+  inputs[1] = base;
   if ((status = cli_outputs_check("export", &output, names, 1, force, inputs)) != 0)
     goto done;
   m = twf_model_read(inputs[0], &warnings, &err);
@@ -291,6 +320,10 @@ static int run_export(int argc, char **argv)
   case FMT_MDH:
     status = export_dh(m, inputs[0], TWF_DH_MODIFIED, use_beta, output, force, inputs);
     break;
+  case FMT_SHEET:
+  case FMT_SHEET_CSV:
+    status = cli_export_sheet(m, inputs[0], fmt == FMT_SHEET_CSV, eu, base, output, force, inputs);
+    break;
   case FMT_NONE: break;
   }
 done:
@@ -300,5 +333,5 @@ done:
 }
 
 const cli_command cli_cmd_export = {
-  "export", run_export, "write a model as a DH or modified DH model file", export_help
+  "export", run_export, "write a model as a DH or modified DH model file or a parameter sheet", export_help
 };

@@ -38,6 +38,8 @@ expect "mm m" twistfit fk --length-unit m
 expect "mrad" twistfit verify --angle-unit mr
 expect "--tol-rms" twistfit verify --tol-r
 expect "verify" twistfit help ve
+expect "sheet sheet-csv" twistfit export m.ini --as sh
+expect "zyx zyz" twistfit export m.ini --as sheet --euler z
 
 # every option of --help is offered
 check_all() { # command-or-empty

@@ -81,6 +81,42 @@ double twf_rot_angle_between(const double A[3][3], const double B[3][3]);
 void twf_rot_to_rpy_fixed_xyz(const double R[3][3], double *roll,
                               double *pitch, double *yaw);
 
+/* ------------------------------------------------------------------ */
+/* Euler angles                                                        */
+/* ------------------------------------------------------------------ */
+
+/* Three angles (a[0], a[1], a[2]) in radians, each a right-handed rotation
+ * (counter-clockwise looking down the axis toward its origin):
+ *   TWF_EULER_RPY  roll, pitch, yaw about the fixed x, y, z axes, in that
+ *                  order: R = Rz(yaw) Ry(pitch) Rx(roll) (SciPy's
+ *                  extrinsic "xyz"; twf_rpy_fixed_xyz_to_rot)
+ *   TWF_EULER_ZYX  intrinsic Z-Y'-X'': a about z, then b about the new y,
+ *                  then c about the newest x: R = Rz(a) Ry(b) Rx(c); the
+ *                  matrix of RPY with the angles in reverse order (SciPy's
+ *                  intrinsic "ZYX")
+ *   TWF_EULER_ZYZ  intrinsic Z-Y'-Z'': R = Rz(a) Ry(b) Rz(c) (SciPy's
+ *                  intrinsic "ZYZ") */
+typedef enum twf_euler_convention {
+  TWF_EULER_RPY = 0,
+  TWF_EULER_ZYX = 1,
+  TWF_EULER_ZYZ = 2
+} twf_euler_convention;
+
+/* R from the three angles of convention c (above). */
+void twf_euler_to_rot(twf_euler_convention c, const double a[3],
+                      double R[3][3]);
+/* The angles of convention c with R = twf_euler_to_rot(c, a): the first
+ * and third in [-pi, pi], the middle one in [-pi/2, pi/2] (RPY, ZYX) or
+ * [0, pi] (ZYZ), to rounding. R must be a rotation (not checked).
+ * Gimbal lock (middle angle +-pi/2 for RPY and ZYX, 0 or pi for ZYZ):
+ * only the sum or difference of the outer rotations is defined, so the
+ * third angle (yaw for RPY, c for ZYX and ZYZ) is set to 0, as SciPy's
+ * Rotation.as_euler does. The test for the lock
+ * is exact (a sine or cosine of the middle angle below 1e-15); near it the
+ * outer angles are ill-conditioned but are computed so that the three
+ * angles still reproduce R to rounding. */
+void twf_rot_to_euler(twf_euler_convention c, const double R[3][3],
+                      double a[3]);
 
 #ifdef __cplusplus
 }

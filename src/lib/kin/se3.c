@@ -456,3 +456,84 @@ double twf_rot_angle_between(const double A[3][3], const double B[3][3])
     return atan2(twf_v3_norm(s3), c);
   }
 }
+
+/* Euler angles. Each inverse takes the third angle from the entries that
+ * hold it alone, then the other two from R with that rotation taken off,
+ * so that the three angles reproduce R to rounding even next to the
+ * gimbal lock, where the third angle itself is ill-conditioned (the same
+ * construction as twf_rot_to_rpy_fixed_xyz). */
+#define EULER_LOCK 1e-15
+
+static void rot_z(double t, double R[3][3])
+{
+  double c = cos(t), s = sin(t);
+  double M[3][3] = { { c, -s, 0.0 }, { s, c, 0.0 }, { 0.0, 0.0, 1.0 } };
+  memcpy(R, M, sizeof M);
+}
+
+static void rot_y(double t, double R[3][3])
+{
+  double c = cos(t), s = sin(t);
+  double M[3][3] = { { c, 0.0, s }, { 0.0, 1.0, 0.0 }, { -s, 0.0, c } };
+  memcpy(R, M, sizeof M);
+}
+
+void twf_euler_to_rot(twf_euler_convention c, const double a[3], double R[3][3])
+{
+  double Z[3][3], Y[3][3], Z2[3][3];
+  switch (c) {
+  case TWF_EULER_RPY: twf_rpy_fixed_xyz_to_rot(a[0], a[1], a[2], R); return;
+  case TWF_EULER_ZYX: twf_rpy_fixed_xyz_to_rot(a[2], a[1], a[0], R); return;
+  case TWF_EULER_ZYZ:
+    rot_z(a[0], Z);
+    rot_y(a[1], Y);
+    rot_z(a[2], Z2);
+    mat3_mul(Z, Y, R);
+    mat3_mul(R, Z2, R);
+    return;
+  }
+}
+
+/* R = Rz(a) Ry(b) Rx(c): c from the last row (cos(b) (sin c, cos c)), then
+ * M = R Rx(-c) = Rz(a) Ry(b), whose middle column is (-sin a, cos a, 0). */
+static void rot_to_zyx(const double R[3][3], double out[3])
+{
+  double cb = hypot(R[2][1], R[2][2]);
+  double x = cb > EULER_LOCK ? atan2(R[2][1], R[2][2]) : 0.0;
+  double cc = cos(x), sc = sin(x);
+  double m01 = R[0][1] * cc - R[0][2] * sc;
+  double m11 = R[1][1] * cc - R[1][2] * sc;
+  double z = atan2(-m01, m11);
+  double ca = cos(z), sa = sin(z);
+  out[0] = z;
+  out[1] = atan2(-R[2][0], ca * R[0][0] + sa * R[1][0]);
+  out[2] = x;
+}
+
+/* R = Rz(a) Ry(b) Rz(c): c from the last row (sin(b) (-cos c, sin c)),
+ * then M = R Rz(-c) = Rz(a) Ry(b), whose middle column is (-sin a, cos a,
+ * 0) and whose last column is (cos a sin b, sin a sin b, cos b). */
+static void rot_to_zyz(const double R[3][3], double out[3])
+{
+  double sb = hypot(R[2][0], R[2][1]);
+  double z2 = sb > EULER_LOCK ? atan2(R[2][1], -R[2][0]) : 0.0;
+  double cc = cos(z2), sc = sin(z2);
+  double m01 = R[0][0] * sc + R[0][1] * cc;
+  double m11 = R[1][0] * sc + R[1][1] * cc;
+  double z = atan2(-m01, m11);
+  double ca = cos(z), sa = sin(z);
+  out[0] = z;
+  /* At the lock the cut-off sine may carry either sign: take its size from
+   * the last row, so that b stays in [0, pi]. */
+  out[1] = sb > EULER_LOCK ? atan2(ca * R[0][2] + sa * R[1][2], R[2][2]) : atan2(sb, R[2][2]);
+  out[2] = z2;
+}
+
+void twf_rot_to_euler(twf_euler_convention c, const double R[3][3], double a[3])
+{
+  switch (c) {
+  case TWF_EULER_RPY: twf_rot_to_rpy_fixed_xyz(R, &a[0], &a[1], &a[2]); return;
+  case TWF_EULER_ZYX: rot_to_zyx(R, a); return;
+  case TWF_EULER_ZYZ: rot_to_zyz(R, a); return;
+  }
+}

@@ -3,10 +3,13 @@
  *   dh, mdh   a standard / modified DH model file (twistfit-model(5)),
  *             by twf_model_to_dh, with Hayati's beta where the axes are
  *             nearly parallel (--no-beta: plain rows, refused when they
- *             would need absurd lengths). */
+ *             would need absurd lengths);
+ *   urdf      a URDF robot, or the user's URDF with its chain changed
+ *             (--like), in export_urdf.c. */
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
+#include "export_urdf.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -19,6 +22,9 @@ static const char export_help[] =
   "Write MODEL in another form. FORMAT is one of:\n"
   "  dh     a model file of standard (distal) Denavit-Hartenberg rows\n"
   "  mdh    a model file of modified (proximal, Craig) DH rows\n"
+  "  urdf   a URDF robot: a link per joint, the flange and target links on\n"
+  "         fixed joints, SI units; with --like FILE, a copy of FILE whose chain\n"
+  "         joints' origins and axes are changed to MODEL's (all else kept)\n"
   "The DH files carry Hayati's fifth value beta where consecutive joint axes\n"
   "are nearly parallel, and [base] and [flange] poses; twistfit reads them\n"
   "back with the same kinematics. Joint names, limits, scales and targets are\n"
@@ -27,15 +33,19 @@ static const char export_help[] =
   "printed on standard error, with a warning above 1 um or 1 urad.\n"
   "\n"
   "Options:\n"
-  "      --as FORMAT            dh or mdh (required)\n"
+  "      --as FORMAT            dh, mdh or urdf (required)\n"
   "      --no-beta              plain four-value rows; refused when nearly\n"
   "                             parallel axes would need lengths beyond 10 times\n"
   "                             the arm's reach\n"
+  "      --like FILE            (urdf) write into a copy of the URDF file FILE\n"
+  "      --base-link LINK       (URDF) the chain's base link (default: the root)\n"
+  "      --tip-link LINK        (URDF) the chain's tip, the flange (default: the\n"
+  "                             one tip); for a URDF MODEL and the --like FILE\n"
   "  -o, --output FILE          write to FILE (atomically) instead of stdout\n"
   "  -f, --force                replace FILE when it exists\n"
   "  -h, --help                 show this help\n";
 
-enum { OPT_AS = 256, OPT_NO_BETA };
+enum { OPT_AS = 256, OPT_NO_BETA, OPT_LIKE, OPT_BASE_LINK, OPT_TIP_LINK };
 
 /* Configurations of the conversion residual (seeded, within the limits). */
 #define EXPORT_RESIDUAL_CONFIGS 1000
@@ -180,7 +190,7 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
   return status;
 }
 
-typedef enum export_format { FMT_NONE, FMT_DH, FMT_MDH } export_format;
+typedef enum export_format { FMT_NONE, FMT_DH, FMT_MDH, FMT_URDF } export_format;
 
 static int run_export(int argc, char **argv)
 {
@@ -189,11 +199,15 @@ static int run_export(int argc, char **argv)
     { "force", no_argument, NULL, 'f' },
     { "as", required_argument, NULL, OPT_AS },
     { "no-beta", no_argument, NULL, OPT_NO_BETA },
+    { "like", required_argument, NULL, OPT_LIKE },
+    { "base-link", required_argument, NULL, OPT_BASE_LINK },
+    { "tip-link", required_argument, NULL, OPT_TIP_LINK },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
   static const char *const names[1] = { "--output" };
-  const char *output = NULL, *inputs[2] = { NULL, NULL };
+  const char *output = NULL, *inputs[3] = { NULL, NULL, NULL }, *like = NULL;
+  twf_read_options ropt = twf_read_default_options();
   int force = 0, use_beta = 1, opt, status = TWF_EXIT_OK;
   export_format fmt = FMT_NONE;
   twf_model *m = NULL;
@@ -209,13 +223,18 @@ static int run_export(int argc, char **argv)
     case 'o': output = optarg; break;
     case 'f': force = 1; break;
     case OPT_NO_BETA: use_beta = 0; break;
+    case OPT_LIKE: like = optarg; break;
+    case OPT_BASE_LINK: ropt.urdf_base_link = optarg; break;
+    case OPT_TIP_LINK: ropt.urdf_tip_link = optarg; break;
     case OPT_AS:
       if (strcmp(optarg, "dh") == 0)
         fmt = FMT_DH;
       else if (strcmp(optarg, "mdh") == 0)
         fmt = FMT_MDH;
+      else if (strcmp(optarg, "urdf") == 0)
+        fmt = FMT_URDF;
       else {
-        status = cli_usage_error("export", "--as takes dh or mdh, not '%s'", optarg);
+        status = cli_usage_error("export", "--as takes dh, mdh or urdf, not '%s'", optarg);
         goto done;
       }
       break;
@@ -228,13 +247,18 @@ static int run_export(int argc, char **argv)
     goto done;
   }
   if (fmt == FMT_NONE) {
-    status = cli_usage_error("export", "give the form with --as dh or --as mdh");
+    status = cli_usage_error("export", "give the form with --as dh, --as mdh or --as urdf");
+    goto done;
+  }
+  if (like != NULL && fmt != FMT_URDF) {
+    status = cli_usage_error("export", "--like goes with --as urdf");
     goto done;
   }
   inputs[0] = argv[optind];
+  inputs[1] = like;
   if ((status = cli_outputs_check("export", &output, names, 1, force, inputs)) != 0)
     goto done;
-  m = twf_model_read(inputs[0], &warnings, &err);
+  m = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err);
   cli_print_warnings(&warnings);
   if (m == NULL) {
     status = cli_report_error(&err);
@@ -247,6 +271,10 @@ static int run_export(int argc, char **argv)
   case FMT_MDH:
     status = export_dh(m, inputs[0], TWF_DH_MODIFIED, use_beta, output, force, inputs);
     break;
+  case FMT_URDF:
+    status = cli_export_urdf(m, like, ropt.urdf_base_link, ropt.urdf_tip_link, output, force,
+                             inputs);
+    break;
   case FMT_NONE: break;
   }
 done:
@@ -256,5 +284,5 @@ done:
 }
 
 const cli_command cli_cmd_export = {
-  "export", run_export, "write a model as a DH or modified DH model file", export_help
+  "export", run_export, "write a model as a DH or modified DH model file, or as URDF", export_help
 };

@@ -3,13 +3,16 @@
  *   dh, mdh   a standard / modified DH model file (twistfit-model(5)),
  *             by twf_model_to_dh, with Hayati's beta where the axes are
  *             nearly parallel (--no-beta: plain rows, refused when they
- *             would need absurd lengths).
+ *             would need absurd lengths);
  *   sheet, sheet-csv   the parameter sheet for entering a calibration by
- *             hand (export_sheet.c). */
+ *             hand (export_sheet.c);
+ *   urdf      a URDF robot, or the user's URDF with its chain changed
+ *             (--like), in export_urdf.c. */
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
 #include "export_sheet.h"
+#include "export_urdf.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -26,6 +29,9 @@ static const char export_help[] =
   "         a parameter sheet (text or CSV) for entering the model into a\n"
   "         controller by hand: zero offsets, link parameters, base frame and\n"
   "         targets, with the conventions and signs in words\n"
+  "  urdf   a URDF robot: a link per joint, the flange and target links on\n"
+  "         fixed joints, SI units; with --like FILE, a copy of FILE whose chain\n"
+  "         joints' origins and axes are changed to MODEL's (all else kept)\n"
   "The DH files carry Hayati's fifth value beta where consecutive joint axes\n"
   "are nearly parallel, and [base] and [flange] poses; twistfit reads them\n"
   "back with the same kinematics. Joint names, limits, scales and targets are\n"
@@ -34,7 +40,7 @@ static const char export_help[] =
   "printed on standard error, with a warning above 1 um or 1 urad.\n"
   "\n"
   "Options:\n"
-  "      --as FORMAT            dh, mdh, sheet or sheet-csv (required)\n"
+  "      --as FORMAT            dh, mdh, sheet, sheet-csv or urdf (required)\n"
   "      --no-beta              plain four-value rows; refused when nearly\n"
   "                             parallel axes would need lengths beyond 10 times\n"
   "                             the arm's reach\n"
@@ -43,11 +49,15 @@ static const char export_help[] =
   "                             about z, y', x'' (zyx) or z, y', z'' (zyz)\n"
   "      --base FILE            sheet: the base pose file that calibrate wrote, the\n"
   "                             base frame in the instrument frame\n"
+  "      --like FILE            (urdf) write into a copy of the URDF file FILE\n"
+  "      --base-link LINK       (URDF) the chain's base link (default: the root)\n"
+  "      --tip-link LINK        (URDF) the chain's tip, the flange (default: the\n"
+  "                             one tip); for a URDF MODEL and the --like FILE\n"
   "  -o, --output FILE          write to FILE (atomically) instead of stdout\n"
   "  -f, --force                replace FILE when it exists\n"
   "  -h, --help                 show this help\n";
 
-enum { OPT_AS = 256, OPT_NO_BETA, OPT_EULER, OPT_BASE };
+enum { OPT_AS = 256, OPT_NO_BETA, OPT_EULER, OPT_BASE, OPT_LIKE, OPT_BASE_LINK, OPT_TIP_LINK };
 
 /* Configurations of the conversion residual (seeded, within the limits). */
 #define EXPORT_RESIDUAL_CONFIGS 1000
@@ -236,7 +246,7 @@ fail:
   return cli_report_error(&err);
 }
 
-typedef enum export_format { FMT_NONE, FMT_DH, FMT_MDH, FMT_SHEET, FMT_SHEET_CSV } export_format;
+typedef enum export_format { FMT_NONE, FMT_DH, FMT_MDH, FMT_SHEET, FMT_SHEET_CSV, FMT_URDF } export_format;
 
 static int run_export(int argc, char **argv)
 {
@@ -247,12 +257,16 @@ static int run_export(int argc, char **argv)
     { "no-beta", no_argument, NULL, OPT_NO_BETA },
     { "euler", required_argument, NULL, OPT_EULER },
     { "base", required_argument, NULL, OPT_BASE },
+    { "like", required_argument, NULL, OPT_LIKE },
+    { "base-link", required_argument, NULL, OPT_BASE_LINK },
+    { "tip-link", required_argument, NULL, OPT_TIP_LINK },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
   static const char *const names[1] = { "--output" };
-  const char *output = NULL, *inputs[3] = { NULL, NULL, NULL }, *euler = NULL, *base = NULL;
+  const char *output = NULL, *inputs[4] = { NULL, NULL, NULL, NULL }, *euler = NULL, *base = NULL, *like = NULL;
   twf_euler_convention eu = TWF_EULER_RPY;
+  twf_read_options ropt = twf_read_default_options();
   int force = 0, use_beta = 1, opt, status = TWF_EXIT_OK;
   export_format fmt = FMT_NONE;
   twf_model *m = NULL;
@@ -270,6 +284,9 @@ static int run_export(int argc, char **argv)
     case OPT_NO_BETA: use_beta = 0; break;
     case OPT_EULER: euler = optarg; break;
     case OPT_BASE: base = optarg; break;
+    case OPT_LIKE: like = optarg; break;
+    case OPT_BASE_LINK: ropt.urdf_base_link = optarg; break;
+    case OPT_TIP_LINK: ropt.urdf_tip_link = optarg; break;
     case OPT_AS:
       if (strcmp(optarg, "dh") == 0)
         fmt = FMT_DH;
@@ -279,8 +296,10 @@ static int run_export(int argc, char **argv)
         fmt = FMT_SHEET;
       else if (strcmp(optarg, "sheet-csv") == 0)
         fmt = FMT_SHEET_CSV;
+      else if (strcmp(optarg, "urdf") == 0)
+        fmt = FMT_URDF;
       else {
-        status = cli_usage_error("export", "--as takes dh, mdh, sheet or sheet-csv, not '%s'", optarg);
+        status = cli_usage_error("export", "--as takes dh, mdh, sheet, sheet-csv or urdf, not '%s'", optarg);
         goto done;
       }
       break;
@@ -293,7 +312,11 @@ static int run_export(int argc, char **argv)
     goto done;
   }
   if (fmt == FMT_NONE) {
-    status = cli_usage_error("export", "give the form with --as dh or --as mdh");
+    status = cli_usage_error("export", "give the form with --as dh, --as mdh, --as sheet, --as sheet-csv or --as urdf");
+    goto done;
+  }
+  if (like != NULL && fmt != FMT_URDF) {
+    status = cli_usage_error("export", "--like goes with --as urdf");
     goto done;
   }
   if ((euler != NULL || base != NULL) && fmt != FMT_SHEET && fmt != FMT_SHEET_CSV) {
@@ -304,10 +327,12 @@ static int run_export(int argc, char **argv)
   if (euler != NULL && (status = cli_sheet_parse_euler(euler, &eu)) != 0)
     goto done;
   inputs[0] = argv[optind];
-  inputs[1] = base;
+  /* the files no output may replace, NULL-terminated */
+  inputs[1] = base ? base : like;
+  inputs[2] = base ? like : NULL;
   if ((status = cli_outputs_check("export", &output, names, 1, force, inputs)) != 0)
     goto done;
-  m = twf_model_read(inputs[0], &warnings, &err);
+  m = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err);
   cli_print_warnings(&warnings);
   if (m == NULL) {
     status = cli_report_error(&err);
@@ -323,6 +348,9 @@ static int run_export(int argc, char **argv)
   case FMT_SHEET:
   case FMT_SHEET_CSV:
     status = cli_export_sheet(m, inputs[0], fmt == FMT_SHEET_CSV, eu, base, output, force, inputs);
+  case FMT_URDF:
+    status = cli_export_urdf(m, like, ropt.urdf_base_link, ropt.urdf_tip_link, output, force,
+                             inputs);
     break;
   case FMT_NONE: break;
   }
@@ -333,5 +361,5 @@ done:
 }
 
 const cli_command cli_cmd_export = {
-  "export", run_export, "write a model as a DH or modified DH model file or a parameter sheet", export_help
+  "export", run_export, "write a model as a DH or modified DH model file, as URDF or as a parameter sheet", export_help
 };

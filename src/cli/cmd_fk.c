@@ -28,6 +28,8 @@ static const char fk_help[] =
   "      --output-length-unit U unit of the printed positions (default: the model's)\n"
   "      --max-input-size N     refuse input files larger than N bytes (suffix\n"
   "                             K, M, G, T: binary multiples; default 2G)\n"
+  "      --base-link LINK       a URDF MODEL's base link (default: the root)\n"
+  "      --tip-link LINK        a URDF MODEL's flange link (default: the one tip)\n"
   "  -h, --help                 show this help\n";
 
 static void write_header(cli_csv *csv, const twf_model *m, const char *lu)
@@ -120,6 +122,8 @@ static int run_fk(int argc, char **argv)
     { "angle-unit", required_argument, NULL, 'A' },
     { "output-length-unit", required_argument, NULL, 'U' },
     { "max-input-size", required_argument, NULL, 'S' },
+    { "base-link", required_argument, NULL, 'B' },
+    { "tip-link", required_argument, NULL, 'T' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -164,6 +168,8 @@ static int run_fk(int argc, char **argv)
         return status;
       ropt.max_input_size = copt.max_input_size;
       break;
+    case 'B': ropt.urdf_base_link = optarg; break;
+    case 'T': ropt.urdf_tip_link = optarg; break;
     case 'h': fputs(fk_help, stdout); return TWF_EXIT_OK;
     default: return cli_bad_option("fk", opt, argv);
     }

@@ -32,6 +32,7 @@
 #include "twistfit/limits.h"
 #include "twistfit/campaign.h"
 #include "twistfit/io.h"
+#include "twistfit/urdf.h"
 #include "twistfit/errmodel.h"
 #include "twistfit/register.h"
 #include "twistfit/accuracy.h"

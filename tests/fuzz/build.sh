@@ -44,7 +44,7 @@ else
   mv "$out/obj/config.h.new" "$out/obj/config.h"
 fi
 
-pkgs="gsl inih jansson libmd"
+pkgs="gsl inih jansson libmd libxml-2.0"
 PKG_CFLAGS=$(pkg-config --cflags $pkgs)
 PKG_LIBS=$(pkg-config --libs $pkgs)
 SAN="-fsanitize=address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer"

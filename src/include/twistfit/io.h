@@ -37,6 +37,12 @@ typedef struct twf_read_options {
   /* Largest file read, bytes; default TWF_INPUT_SIZE_DEFAULT (campaign.h;
    * 0 means the default too). A larger file is refused (TWF_ERR_VALUE). */
   unsigned long long max_input_size;
+  /* A URDF file (twf_model_read reads one when the name ends in .urdf or
+   * a regular file's first non-blank character is '<', through
+   * twf_model_read_urdf): the base and tip links of the chain; NULL (the
+   * default) for the root and the one tip. Model files ignore them. */
+  const char *urdf_base_link;
+  const char *urdf_tip_link;
 } twf_read_options;
 
 twf_read_options twf_read_default_options(void);

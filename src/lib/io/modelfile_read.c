@@ -3,6 +3,7 @@
  * the second (modelfile_values.c) converts them, and build_model puts the
  * model together. */
 #include "modelfile_internal.h"
+#include "urdf_internal.h"
 
 #include <errno.h>
 #include <stdlib.h>
@@ -298,7 +299,18 @@ twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
   }
   if (twf_io_c_locale_enter(&loc, err) != TWF_OK)
     return NULL;
-  m = read_model(path, opt, warnings, digest, err);
+  if (twf_urdf_is_urdf(path)) {
+    /* a URDF robot wherever a model file is accepted */
+    twf_urdf_read_options u = twf_urdf_default_read_options();
+    if (opt != NULL) {
+      u.max_input_size = opt->max_input_size;
+      u.base_link = opt->urdf_base_link;
+      u.tip_link = opt->urdf_tip_link;
+    }
+    m = twf_urdf_read_model(path, &u, warnings, digest, err);
+  } else {
+    m = read_model(path, opt, warnings, digest, err);
+  }
   twf_io_c_locale_leave(&loc);
   return m;
 }

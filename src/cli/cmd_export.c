@@ -348,6 +348,7 @@ static int run_export(int argc, char **argv)
   case FMT_SHEET:
   case FMT_SHEET_CSV:
     status = cli_export_sheet(m, inputs[0], fmt == FMT_SHEET_CSV, eu, base, output, force, inputs);
+    break;
   case FMT_URDF:
     status = cli_export_urdf(m, like, ropt.urdf_base_link, ropt.urdf_tip_link, output, force,
                              inputs);

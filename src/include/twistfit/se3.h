@@ -86,7 +86,7 @@ void twf_rot_to_rpy_fixed_xyz(const double R[3][3], double *roll,
 /* ------------------------------------------------------------------ */
 
 /* Three angles (a[0], a[1], a[2]) in radians, each a right-handed rotation
- * (counter-clockwise looking down the axis toward its origin):
+ * (counter-clockwise seen from the axis' tip looking back at the origin):
  *   TWF_EULER_RPY  roll, pitch, yaw about the fixed x, y, z axes, in that
  *                  order: R = Rz(yaw) Ry(pitch) Rx(roll) (SciPy's
  *                  extrinsic "xyz"; twf_rpy_fixed_xyz_to_rot)
@@ -111,10 +111,12 @@ void twf_euler_to_rot(twf_euler_convention c, const double a[3],
  * Gimbal lock (middle angle +-pi/2 for RPY and ZYX, 0 or pi for ZYZ):
  * only the sum or difference of the outer rotations is defined, so the
  * third angle (yaw for RPY, c for ZYX and ZYZ) is set to 0, as SciPy's
- * Rotation.as_euler does. The test for the lock
- * is exact (a sine or cosine of the middle angle below 1e-15); near it the
- * outer angles are ill-conditioned but are computed so that the three
- * angles still reproduce R to rounding. */
+ * Rotation.as_euler does. The lock is taken when the middle angle's cosine
+ * (RPY, ZYX) or sine (ZYZ), the norm of two entries of R, is at most
+ * 1e-15; near it the outer angles are ill-conditioned (an error of R of
+ * 1e-16 moves them by 1e-16 over that cosine or sine) but are computed so
+ * that the three angles still reproduce R to rounding. No pointer may be
+ * NULL. */
 void twf_rot_to_euler(twf_euler_convention c, const double R[3][3],
                       double a[3]);
 

@@ -169,6 +169,39 @@ START_TEST(test_round_trip_offsets)
 }
 END_TEST
 
+/* Targets named by the caller: only those, and a name not fixed to the
+ * tip refused. */
+START_TEST(test_target_links)
+{
+  const char *const one[] = { "T2" }, *const bad[] = { "j3_link" };
+  twf_urdf_read_options o = twf_urdf_default_read_options();
+  twf_model *m = test_arm_model(ARM_TF6S), *r;
+  twf_error err;
+  twf_test_tmpdir_make("urdf");
+  write_urdf(m, twf_test_tmppath("arm.urdf"));
+  o.target_links = one;
+  o.n_target_links = 1;
+  r = twf_model_read_urdf(twf_test_tmppath("arm.urdf"), &o, NULL, &err);
+  ck_assert_msg(r != NULL, "%s", err.message);
+  ck_assert_uint_eq(r->n_targets, 1);
+  ck_assert_str_eq(r->targets[0].name, "T2");
+  ck_assert(fabs(r->targets[0].offset[1] - m->targets[1].offset[1]) < 1e-15);
+  twf_model_free(r);
+  o.n_target_links = 0; /* none */
+  r = twf_model_read_urdf(twf_test_tmppath("arm.urdf"), &o, NULL, &err);
+  ck_assert_ptr_nonnull(r);
+  ck_assert_uint_eq(r->n_targets, 0);
+  twf_model_free(r);
+  o.target_links = bad;
+  o.n_target_links = 1;
+  ck_assert_ptr_null(twf_model_read_urdf(twf_test_tmppath("arm.urdf"), &o, NULL, &err));
+  ck_assert_int_eq(err.status, TWF_ERR_UNKNOWN);
+  ck_assert_ptr_nonnull(strstr(err.message, "'j3_link' is not fixed to the tip link flange"));
+  twf_model_free(m);
+  twf_test_tmpdir_remove();
+}
+END_TEST
+
 START_TEST(test_scale_refused)
 {
   twf_model *m = test_arm_model(ARM_TF6S);
@@ -195,6 +228,10 @@ START_TEST(test_name_clash)
   strcpy(m->targets[0].name, "flange");
   ck_assert_int_eq(twf_model_write_urdf(m, NULL, fp, &err), TWF_ERR_INVALID);
   ck_assert_ptr_nonnull(strstr(err.message, "'flange'"));
+  strcpy(m->targets[0].name, "T1");
+  strcpy(m->joints[3].name, "T2_joint"); /* the name of T2's fixed joint */
+  ck_assert_int_eq(twf_model_write_urdf(m, NULL, fp, &err), TWF_ERR_INVALID);
+  ck_assert_ptr_nonnull(strstr(err.message, "joint T2_joint"));
   fclose(fp);
   twf_model_free(m);
 }
@@ -471,6 +508,7 @@ int main(void)
   tcase_set_timeout(tc, 60);
   tcase_add_test(tc, test_round_trip_samples);
   tcase_add_test(tc, test_round_trip_offsets);
+  tcase_add_test(tc, test_target_links);
   tcase_add_test(tc, test_scale_refused);
   tcase_add_test(tc, test_name_clash);
   tcase_add_test(tc, test_errors);

@@ -7,12 +7,12 @@
  *   sheet, sheet-csv   the parameter sheet for entering a calibration by
  *             hand (export_sheet.c);
  *   urdf      a URDF robot, or the user's URDF with its chain changed
- *             (--like), in export_urdf.c. */
+ *             (--like), in urdf_cli.c. */
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
 #include "export_sheet.h"
-#include "export_urdf.h"
+#include "urdf_cli.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -53,11 +53,15 @@ static const char export_help[] =
   "      --base-link LINK       (URDF) the chain's base link (default: the root)\n"
   "      --tip-link LINK        (URDF) the chain's tip, the flange (default: the\n"
   "                             one tip); for a URDF MODEL and the --like FILE\n"
+  "      --target-link LINK     (URDF MODEL) a link fixed to the tip that is a\n"
+  "                             target (repeat; default: every such link\n"
+  "                             without children)\n"
   "  -o, --output FILE          write to FILE (atomically) instead of stdout\n"
   "  -f, --force                replace FILE when it exists\n"
   "  -h, --help                 show this help\n";
 
-enum { OPT_AS = 256, OPT_NO_BETA, OPT_EULER, OPT_BASE, OPT_LIKE, OPT_BASE_LINK, OPT_TIP_LINK };
+enum { OPT_AS = 256, OPT_NO_BETA, OPT_EULER, OPT_BASE, OPT_LIKE, OPT_BASE_LINK, OPT_TIP_LINK,
+       OPT_TARGET_LINK };
 
 /* Configurations of the conversion residual (seeded, within the limits). */
 #define EXPORT_RESIDUAL_CONFIGS 1000
@@ -260,6 +264,7 @@ static int run_export(int argc, char **argv)
     { "like", required_argument, NULL, OPT_LIKE },
     { "base-link", required_argument, NULL, OPT_BASE_LINK },
     { "tip-link", required_argument, NULL, OPT_TIP_LINK },
+    { "target-link", required_argument, NULL, OPT_TARGET_LINK },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -267,6 +272,7 @@ static int run_export(int argc, char **argv)
   const char *output = NULL, *inputs[4] = { NULL, NULL, NULL, NULL }, *euler = NULL, *base = NULL, *like = NULL;
   twf_euler_convention eu = TWF_EULER_RPY;
   twf_read_options ropt = twf_read_default_options();
+  cli_urdf_links links;
   int force = 0, use_beta = 1, opt, status = TWF_EXIT_OK;
   export_format fmt = FMT_NONE;
   twf_model *m = NULL;
@@ -275,6 +281,7 @@ static int run_export(int argc, char **argv)
 
   twf_warnings_init(&warnings);
   twf_error_clear(&err);
+  links.n_targets = 0;
   optind = 0;
   opterr = 0;
   while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
@@ -285,8 +292,14 @@ static int run_export(int argc, char **argv)
     case OPT_EULER: euler = optarg; break;
     case OPT_BASE: base = optarg; break;
     case OPT_LIKE: like = optarg; break;
-    case OPT_BASE_LINK: ropt.urdf_base_link = optarg; break;
-    case OPT_TIP_LINK: ropt.urdf_tip_link = optarg; break;
+    case OPT_BASE_LINK:
+    case OPT_TIP_LINK:
+    case OPT_TARGET_LINK:
+      if ((status = cli_urdf_option("export", opt == OPT_BASE_LINK ? "base-link"
+                                              : opt == OPT_TIP_LINK ? "tip-link" : "target-link",
+                                    optarg, &links, &ropt)) != 0)
+        goto done;
+      break;
     case OPT_AS:
       if (strcmp(optarg, "dh") == 0)
         fmt = FMT_DH;
@@ -350,8 +363,7 @@ static int run_export(int argc, char **argv)
     status = cli_export_sheet(m, inputs[0], fmt == FMT_SHEET_CSV, eu, base, output, force, inputs);
     break;
   case FMT_URDF:
-    status = cli_export_urdf(m, like, ropt.urdf_base_link, ropt.urdf_tip_link, output, force,
-                             inputs);
+    status = cli_export_urdf(m, like, &ropt, output, force, inputs);
     break;
   case FMT_NONE: break;
   }

@@ -3,6 +3,7 @@
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
+#include "urdf_cli.h"
 
 #include <getopt.h>
 #include <stdlib.h>
@@ -30,6 +31,8 @@ static const char fk_help[] =
   "                             K, M, G, T: binary multiples; default 2G)\n"
   "      --base-link LINK       a URDF MODEL's base link (default: the root)\n"
   "      --tip-link LINK        a URDF MODEL's flange link (default: the one tip)\n"
+  "      --target-link LINK     a link fixed to the tip that is a target (repeat;\n"
+  "                             default: every such link without children)\n"
   "  -h, --help                 show this help\n";
 
 static void write_header(cli_csv *csv, const twf_model *m, const char *lu)
@@ -124,6 +127,7 @@ static int run_fk(int argc, char **argv)
     { "max-input-size", required_argument, NULL, 'S' },
     { "base-link", required_argument, NULL, 'B' },
     { "tip-link", required_argument, NULL, 'T' },
+    { "target-link", required_argument, NULL, 'G' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -132,6 +136,7 @@ static int run_fk(int argc, char **argv)
   int force = 0, opt, status;
   twf_campaign_options copt = twf_campaign_default_options();
   twf_read_options ropt = twf_read_default_options();
+  cli_urdf_links links = { { NULL }, 0 };
   int have_out_unit = 0;
   twf_length_unit out_unit = TWF_LENGTH_MM;
   twf_model *model = NULL;
@@ -168,8 +173,14 @@ static int run_fk(int argc, char **argv)
         return status;
       ropt.max_input_size = copt.max_input_size;
       break;
-    case 'B': ropt.urdf_base_link = optarg; break;
-    case 'T': ropt.urdf_tip_link = optarg; break;
+    case 'B':
+    case 'T':
+    case 'G':
+      if ((status = cli_urdf_option("fk", opt == 'B' ? "base-link" : opt == 'T' ? "tip-link"
+                                                                  : "target-link",
+                                    optarg, &links, &ropt)) != 0)
+        return status;
+      break;
     case 'h': fputs(fk_help, stdout); return TWF_EXIT_OK;
     default: return cli_bad_option("fk", opt, argv);
     }

@@ -43,6 +43,11 @@ typedef struct twf_read_options {
    * default) for the root and the one tip. Model files ignore them. */
   const char *urdf_base_link;
   const char *urdf_tip_link;
+  /* The links fixed to the tip that become targets, as
+   * twf_urdf_read_options.target_links (NULL: every link without children
+   * fixed to the tip). */
+  const char *const *urdf_target_links;
+  size_t urdf_n_target_links;
 } twf_read_options;
 
 twf_read_options twf_read_default_options(void);

@@ -306,6 +306,8 @@ twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
       u.max_input_size = opt->max_input_size;
       u.base_link = opt->urdf_base_link;
       u.tip_link = opt->urdf_tip_link;
+      u.target_links = opt->urdf_target_links;
+      u.n_target_links = opt->urdf_n_target_links;
     }
     m = twf_urdf_read_model(path, &u, warnings, digest, err);
   } else {

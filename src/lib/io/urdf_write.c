@@ -218,6 +218,18 @@ static twf_status make_names(const twf_model *m, const twf_urdf_write_options *o
         return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
                              "rename the joint or target (URDF links need names of their own)",
                              "two URDF links would be called '%s'", nm->links[a]);
+  /* the fixed joints are called LINK_joint (add_fixed): none may take a
+   * moving joint's name */
+  for (size_t a = m->n_joints + 1; a < nm->n; a++)
+    for (size_t k = 0; k < m->n_joints; k++) {
+      size_t n = strlen(nm->links[a]);
+      if (strncmp(m->joints[k].name, nm->links[a], n) == 0 &&
+          strcmp(m->joints[k].name + n, "_joint") == 0)
+        return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+                             "rename the joint (URDF joints need names of their own)",
+                             "joint %s would share its name with the fixed joint of link %s",
+                             m->joints[k].name, nm->links[a]);
+    }
   return TWF_OK;
 }
 

@@ -414,7 +414,7 @@ twf_status twf_urdf_chain_find(const urdf_tree *t, const twf_urdf_read_options *
   for (k = c->tip; k != c->base; k = t->joints[t->links[k].parent_joint].parent) {
     size_t j = (size_t)t->links[k].parent_joint;
     c->joints[--n] = j;
-    c->n_moving += moving(t->joints[j].type);
+    c->n_moving += moving(t->joints[j].type) ? 1u : 0u;
   }
   return TWF_OK;
 }

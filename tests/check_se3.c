@@ -786,7 +786,7 @@ START_TEST(test_euler_round_trip_and_gimbal_lock)
       } else {
         const double lock = zyz ? ((n & 1) ? PI : 0.0)
                                 : ((n & 1) ? PI / 2 : -PI / 2);
-        a[1] = lock + near[n % (sizeof near / sizeof near[0])];
+        a[1] = lock + near[(size_t)n % (sizeof near / sizeof near[0])];
       }
       twf_euler_to_rot((twf_euler_convention)c, a, R);
       twf_rot_to_euler((twf_euler_convention)c, R, b);
@@ -798,7 +798,7 @@ START_TEST(test_euler_round_trip_and_gimbal_lock)
         ck_assert(b[1] >= -1e-15 && b[1] <= PI);
       else
         ck_assert(fabs(b[1]) <= PI / 2 + 1e-15);
-      if (n >= 1000 && (n % (sizeof near / sizeof near[0])) < 3)
+      if (n >= 1000 && ((size_t)n % (sizeof near / sizeof near[0])) < 3)
         ck_assert_msg(b[2] == 0.0, "convention %d: at the lock the third angle is %g", c, b[2]);
     }
   }

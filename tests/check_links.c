@@ -793,6 +793,79 @@ START_TEST(test_offsets_only_change)
 }
 END_TEST
 
+START_TEST(test_dh_like_reference)
+{
+  /* An as-built arm written in its nominal's conventions reads row by row
+   * against the nominal table: every value within the perturbation's size
+   * of the nominal's (no half turn in alpha or theta), the flange pose
+   * reproduced (round trip through twf_model_set_from_dh_beta), for both
+   * conventions and every sample arm over several perturbations. The plain
+   * conversion (a >= 0) must show a half turn on at least one of them, or
+   * this test would prove nothing. */
+  int plain_half_turns = 0;
+  for (int arm = 0; arm < ARM_COUNT; arm++)
+    for (unsigned long long seed = 1; seed <= 8; seed++)
+      for (int conv = 0; conv < 2; conv++) {
+        twf_model *nominal = arm_copy((test_arm)arm, 0), *m = arm_copy((test_arm)arm, 100 + seed);
+        size_t n = m->n_joints;
+        twf_dh_row rn[MAXJ], rl[MAXJ], rp[MAXJ];
+        twf_pose Bn, Fn, Bl, Fl, Bp, Fp;
+        twf_error err;
+        double dp, da;
+        twf_model *back;
+        ck_assert_int_eq(twf_model_to_dh(nominal, (twf_dh_convention)conv, 1, rn, &Bn, &Fn, &err),
+                         TWF_OK);
+        ck_assert_msg(twf_model_to_dh_like(m, nominal, (twf_dh_convention)conv, 1, rl, &Bl, &Fl,
+                                           &err) == TWF_OK, "%s", err.message);
+        ck_assert_int_eq(twf_model_to_dh(m, (twf_dh_convention)conv, 1, rp, &Bp, &Fp, &err),
+                         TWF_OK);
+        twf_links ln;
+        links_ok(nominal, 1, 1, NULL, &ln);
+        for (size_t k = 0; k < n; k++) {
+          /* theta of joint k+1 is the turn from frame k's x to frame k+1's:
+           * where either comes from nominally coincident lines, its
+           * direction in the as-built arm is that of a sub-millimetre gap
+           * and the angle is a convention, not geometry */
+          int theta_free = k == 0 || ln.rows[k].coincident || ln.rows[k + 1].coincident;
+          /* perturbations of 1 mm and 1 mrad (standard deviations) turn a
+           * frame's x by a few mm over the shortest link, 0.4 m: 0.05 rad
+           * and 10 mm bound every row's change, a half turn is 3.14 rad */
+          /* joint 1's theta hangs on frame 0's x, which the base pose
+           * absorbs (and row 0 is free to turn): not compared */
+          ck_assert_msg((theta_free || fabs(wrap(rl[k].theta - rn[k].theta)) < 0.05) &&
+                            fabs(wrap(rl[k].alpha - rn[k].alpha)) < 0.05 &&
+                            fabs(rl[k].a - rn[k].a) < 0.01,
+                        "%s seed %llu conv %d row %zu: theta %g/%g alpha %g/%g a %g/%g", m->name,
+                        seed, conv, k + 1, rl[k].theta, rn[k].theta, rl[k].alpha, rn[k].alpha,
+                        rl[k].a, rn[k].a);
+          if ((!theta_free && fabs(wrap(rp[k].theta - rn[k].theta)) > 3.0) ||
+              fabs(wrap(rp[k].alpha - rn[k].alpha)) > 3.0)
+            plain_half_turns++;
+        }
+        twf_links_clear(&ln);
+        back = from_table(m, rl, (twf_dh_convention)conv, &Bl, &Fl);
+        fk_diff(m, back, 7, &dp, &da);
+        ck_assert_msg(dp < 1e-12 && da < 1e-12, "%s: round trip %g m %g rad", m->name, dp, da);
+        twf_model_free(back);
+        twf_model_free(m);
+        twf_model_free(nominal);
+      }
+  ck_assert_int_gt(plain_half_turns, 0);
+  {
+    /* a reference of other joints is refused */
+    twf_model *a = arm_copy(ARM_TF6S, 0), *b = arm_copy(ARM_TF7, 0);
+    twf_dh_row r[MAXJ];
+    twf_pose B, F;
+    twf_error err;
+    ck_assert_int_eq(twf_model_to_dh_like(a, b, TWF_DH_STANDARD, 1, r, &B, &F, &err),
+                     TWF_ERR_VALUE);
+    ck_assert_ptr_nonnull(strstr(err.message, "reference model has 7 joints"));
+    twf_model_free(a);
+    twf_model_free(b);
+  }
+}
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("links");
@@ -809,6 +882,7 @@ int main(void)
   tcase_add_test(tc, test_parallel_beta);
   tcase_add_test(tc, test_reference);
   tcase_add_test(tc, test_offsets_only_change);
+  tcase_add_test(tc, test_dh_like_reference);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

@@ -49,7 +49,11 @@ static const char export_help[] =
   "                             intrinsic z, y', x'' (zyx) or z, y', z'' (zyz)\n"
   "      --base FILE            sheet: the base pose file that calibrate wrote, the\n"
   "                             base frame in the instrument frame\n"
-  "      --like FILE            (urdf) write into a copy of the URDF file FILE\n"
+  "      --like FILE            (urdf) write into a copy of the URDF file FILE;\n"
+  "                             (dh, mdh, sheet) in the conventions of the model\n"
+  "                             FILE, e.g. the nominal: its link forms and the\n"
+  "                             signs of its DH x axes, so the rows compare one\n"
+  "                             to one (no half turns in alpha and theta)\n"
   "      --base-link LINK       (URDF) the chain's base link (default: the root)\n"
   "      --tip-link LINK        (URDF) the chain's tip, the flange (default: the\n"
   "                             one tip); for a URDF MODEL and the --like FILE\n"
@@ -70,6 +74,7 @@ enum { OPT_AS = 256, OPT_NO_BETA, OPT_EULER, OPT_BASE, OPT_LIKE, OPT_BASE_LINK, 
 typedef struct dh_ctx {
   const twf_model *model;
   const char *source;
+  const char *like_path; /* NULL, or the model whose conventions the table follows */
   twf_dh_convention conv;
   const twf_dh_row *rows;
   twf_pose base, flange;
@@ -147,6 +152,8 @@ static int put_dh(FILE *fp, void *ctx, twf_error *err)
   else
     fprintf(fp, "; mdh = alpha a d theta [beta]: A_i = Rx(alpha) Tx(a) Ry(beta) Rz(theta + q) Tz(d).\n");
   fprintf(fp, "; Flange pose: [base] A_1 ... A_n [flange]. Zero offsets are in theta (or d).\n");
+  if (x->like_path != NULL)
+    fprintf(fp, "; Link forms and signs of the x axes as in %s.\n", x->like_path);
   fprintf(fp, "; Conversion residual over %zu configurations: position max %.3g um, angle max %.3g urad.\n",
           x->fit.n_configs, x->fit.max_position_m * 1e6, x->fit.max_angle_rad * 1e6);
   fprintf(fp, "[robot]\n");
@@ -189,7 +196,8 @@ static int put_dh(FILE *fp, void *ctx, twf_error *err)
 
 /* --as dh / mdh */
 static int export_dh(const twf_model *m, const char *source, twf_dh_convention conv, int use_beta,
-                     const char *output, int force, const char *const *inputs)
+                     const twf_model *like, const char *like_path, const char *output,
+                     int force, const char *const *inputs)
 {
   dh_ctx x;
   twf_dh_row *rows = calloc(m->n_joints ? m->n_joints : 1, sizeof *rows);
@@ -201,7 +209,7 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
     return TWF_EXIT_INTERNAL;
   twf_error_clear(&err);
   memset(&x, 0, sizeof x);
-  if (twf_model_to_dh(m, conv, use_beta, rows, &x.base, &x.flange, &err) != TWF_OK)
+  if (twf_model_to_dh_like(m, like, conv, use_beta, rows, &x.base, &x.flange, &err) != TWF_OK)
     goto fail;
   snap_table(m, rows, &x.base, &x.flange);
   if (twf_dh_residual(m, rows, conv, &x.base, &x.flange, EXPORT_RESIDUAL_CONFIGS,
@@ -224,6 +232,7 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
   }
   x.model = m;
   x.source = source;
+  x.like_path = like_path;
   x.conv = conv;
   x.rows = rows;
   put.path = output != NULL ? output : "-";
@@ -275,7 +284,7 @@ static int run_export(int argc, char **argv)
   cli_urdf_links links;
   int force = 0, use_beta = 1, opt, status = TWF_EXIT_OK;
   export_format fmt = FMT_NONE;
-  twf_model *m = NULL;
+  twf_model *m = NULL, *like_model = NULL;
   twf_warnings warnings;
   twf_error err;
 
@@ -328,10 +337,6 @@ static int run_export(int argc, char **argv)
     status = cli_usage_error("export", "give the form with --as dh, --as mdh, --as sheet, --as sheet-csv or --as urdf");
     goto done;
   }
-  if (like != NULL && fmt != FMT_URDF) {
-    status = cli_usage_error("export", "--like goes with --as urdf");
-    goto done;
-  }
   if ((euler != NULL || base != NULL) && fmt != FMT_SHEET && fmt != FMT_SHEET_CSV) {
     status = cli_usage_error("export", "%s applies to --as sheet and sheet-csv only",
                              euler != NULL ? "--euler" : "--base");
@@ -351,16 +356,30 @@ static int run_export(int argc, char **argv)
     status = cli_report_error(&err);
     goto done;
   }
+  if (like != NULL && fmt != FMT_URDF) {
+    /* the reference model whose conventions the table follows */
+    twf_warnings_clear(&warnings);
+    twf_warnings_init(&warnings);
+    like_model = twf_model_read_with(like, &ropt, &warnings, NULL, &err);
+    cli_print_warnings(&warnings);
+    if (like_model == NULL) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+  }
   switch (fmt) {
   case FMT_DH:
-    status = export_dh(m, inputs[0], TWF_DH_STANDARD, use_beta, output, force, inputs);
+    status = export_dh(m, inputs[0], TWF_DH_STANDARD, use_beta, like_model, like, output, force,
+                       inputs);
     break;
   case FMT_MDH:
-    status = export_dh(m, inputs[0], TWF_DH_MODIFIED, use_beta, output, force, inputs);
+    status = export_dh(m, inputs[0], TWF_DH_MODIFIED, use_beta, like_model, like, output, force,
+                       inputs);
     break;
   case FMT_SHEET:
   case FMT_SHEET_CSV:
-    status = cli_export_sheet(m, inputs[0], fmt == FMT_SHEET_CSV, eu, base, output, force, inputs);
+    status = cli_export_sheet(m, inputs[0], fmt == FMT_SHEET_CSV, eu, base, like_model, output,
+                              force, inputs);
     break;
   case FMT_URDF:
     status = cli_export_urdf(m, like, &ropt, output, force, inputs);
@@ -369,6 +388,7 @@ static int run_export(int argc, char **argv)
   }
 done:
   twf_model_free(m);
+  twf_model_free(like_model);
   twf_warnings_clear(&warnings);
   return status;
 }

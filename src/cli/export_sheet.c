@@ -395,8 +395,8 @@ static int put_csv(FILE *fp, void *ctx, twf_error *err)
 }
 
 int cli_export_sheet(const twf_model *m, const char *source, int csv, twf_euler_convention eu,
-                     const char *base_path, const char *output, int force,
-                     const char *const *inputs)
+                     const char *base_path, const twf_model *like, const char *output,
+                     int force, const char *const *inputs)
 {
   sheet_ctx x;
   twf_links_options opt = twf_links_default_options();
@@ -417,6 +417,7 @@ int cli_export_sheet(const twf_model *m, const char *source, int csv, twf_euler_
      * worth a warning, not a refusal: the sheet shows both as read */
     cli_check_same_run("export", source, "model", base_path, "base pose", 0, 0);
   }
+  opt.reference = like;
   if (twf_links_compute(m, &opt, &x.links, &err) != TWF_OK)
     return cli_report_error(&err);
   put.path = output != NULL ? output : "-";

@@ -13,8 +13,10 @@ int cli_sheet_parse_euler(const char *arg, twf_euler_convention *out);
  * the base frame in the instrument frame. Writes to output (NULL or "-":
  * standard output) through the output set; inputs as cli_write_outputs.
  * Returns an exit status. */
+/* like: NULL, or a model whose conventions (link forms, signs of the DH
+ * x axes) the sheet follows (export --like). */
 int cli_export_sheet(const twf_model *m, const char *source, int csv, twf_euler_convention eu,
-                     const char *base_path, const char *output, int force,
-                     const char *const *inputs);
+                     const char *base_path, const twf_model *like, const char *output,
+                     int force, const char *const *inputs);
 
 #endif

@@ -188,6 +188,19 @@ twf_status twf_model_to_dh(const twf_model *m, twf_dh_convention conv,
                            twf_pose *base_to_first, twf_pose *flange_in_last,
                            twf_error *err);
 
+/* As twf_model_to_dh, in the conventions of a reference model (NULL: as
+ * twf_model_to_dh): the forms of the links (DH or Hayati's) and the sign of
+ * each DH frame's x are the ones the conversion chooses for the reference,
+ * so that an as-built model written like its nominal reads row by row
+ * against the nominal's table (a common normal that is 0 in the reference
+ * keeps the reference's twist and may come out slightly negative, instead
+ * of a half turn in alpha and theta). Whether lines are exactly parallel
+ * or coincide is m's own. The reference must have m's joints, in type. */
+twf_status twf_model_to_dh_like(const twf_model *m, const twf_model *reference,
+                                twf_dh_convention conv, int use_beta,
+                                twf_dh_row *rows, twf_pose *base_to_first,
+                                twf_pose *flange_in_last, twf_error *err);
+
 /* How well a DH table reproduces a model. */
 typedef struct twf_dh_fit {
   size_t n_configs;

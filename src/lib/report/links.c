@@ -258,10 +258,19 @@ static double beta_plane_d(const lines *L, size_t k, const double o[3], const do
   return 0.0;
 }
 
+/* What the walk chooses of the conventions (choose_conv). */
+enum {
+  CONV_KEEP = 0,      /* all of pl's conventions as given */
+  CONV_CHOOSE = 1,    /* parallel, coincident and the sign of each DH x */
+  CONV_KEEP_SIGNS = 2 /* parallel and coincident, the signs of the x as given
+                         (a reference's: a may then be negative) */
+};
+
 /* The walk. pl (n+1 entries) gives the forms and conventions; with
  * choose_form the forms are chosen here (by the gains when use_beta, else
- * plain DH), with choose_conv whether lines are exactly parallel or
- * coincide; choices are written back into pl. vals
+ * plain DH), with choose_conv (CONV_*) whether lines are exactly parallel
+ * or coincide and which way a DH x points; choices are written back into
+ * pl. vals
  * receives (n+2) x 5 values; frames (may be NULL) n+1 poses: frame k after
  * row k; g (may be NULL) 2 (n+1) gains. */
 static void walk(const lines *L, plan *pl, int choose_form, int choose_conv, int use_beta,
@@ -302,10 +311,10 @@ static void walk(const lines *L, plan *pl, int choose_form, int choose_conv, int
         xn[ax] = cr[ax] / s;
       d = (twf_v3_dot(w, u1) - c * twf_v3_dot(w, u2)) / (s * s);
       a = twf_v3_dot(w, xn);
-      if (choose_conv) {
+      if (choose_conv != CONV_KEEP)
         pl[k].coincident = 0;
+      if (choose_conv == CONV_CHOOSE)
         pl[k].flip = a < -COINCIDENT_REL * L->reach;
-      }
       if (pl[k].flip) {
         for (ax = 0; ax < 3; ax++)
           xn[ax] = -xn[ax];
@@ -484,6 +493,27 @@ static twf_status check_model(const twf_model *m, twf_error *err)
   return TWF_OK;
 }
 
+/* A reference model of the same joints as m (checked). */
+static twf_status check_same_joints(const twf_model *m, const twf_model *ref,
+                                    twf_error *err)
+{
+  twf_status st;
+  if ((st = check_model(ref, err)) != TWF_OK)
+    return st;
+  /* a reference of another arm is the user's data, not a bad call */
+  if (ref->n_joints != m->n_joints)
+    return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0,
+                         "give a reference model of the same arm (e.g. its nominal)",
+                         "the reference model has %zu joints, the model %zu",
+                         ref->n_joints, m->n_joints);
+  for (size_t k = 0; k < m->n_joints; k++)
+    if (ref->joints[k].type != m->joints[k].type)
+      return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0,
+                           "give a reference model of the same arm (e.g. its nominal)",
+                           "joint %zu is of another type in the reference model", k + 1);
+  return TWF_OK;
+}
+
 static twf_status nomem(twf_error *err)
 {
   return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
@@ -504,18 +534,8 @@ twf_status twf_links_compute(const twf_model *m, const twf_links_options *opt,
   memset(out, 0, sizeof *out);
   if ((st = check_model(m, err)) != TWF_OK)
     return st;
-  if (o.reference != NULL) {
-    if ((st = check_model(o.reference, err)) != TWF_OK)
-      return st;
-    if (o.reference->n_joints != m->n_joints)
-      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
-                           "the reference model has %zu joints, the model %zu",
-                           o.reference->n_joints, m->n_joints);
-    for (k = 0; k < m->n_joints; k++)
-      if (o.reference->joints[k].type != m->joints[k].type)
-        return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
-                             "joint %zu is of another type in the reference model", k + 1);
-  }
+  if (o.reference != NULL && (st = check_same_joints(m, o.reference, err)) != TWF_OK)
+    return st;
   n = m->n_joints;
   if (lines_at_zero(m, &L) != 0)
     return nomem(err);
@@ -540,14 +560,17 @@ twf_status twf_links_compute(const twf_model *m, const twf_links_options *opt,
       goto done;
     }
     LR.reach = L.reach; /* one tilt scale for both */
-    walk(&LR, pl, 1, 1, o.use_beta, vals, NULL, NULL);
+    walk(&LR, pl, 1, CONV_CHOOSE, o.use_beta, vals, NULL, NULL);
     for (k = 0; k < n + 2; k++)
       memcpy(out->rows[k].reference, vals[k], sizeof vals[k]);
     lines_free(&LR);
-    /* m's own conventions (parallel, coincident) under those forms */
-    walk(&L, pl, 0, 1, o.use_beta, vals, NULL, g);
+    /* m's own conventions (parallel, coincident) under those forms, the
+     * reference's signs of x: a common normal that is 0 in the reference
+     * (intersecting axes) keeps the reference's twist, so that a slightly
+     * negative a shows rather than a half-turn in alpha and theta */
+    walk(&L, pl, 0, CONV_KEEP_SIGNS, o.use_beta, vals, NULL, g);
   } else {
-    walk(&L, pl, 1, 1, o.use_beta, vals, NULL, g);
+    walk(&L, pl, 1, CONV_CHOOSE, o.use_beta, vals, NULL, g);
     for (k = 0; k < n + 2; k++)
       for (int v = 0; v < TWF_LINK_NVALUES; v++)
         out->rows[k].reference[v] = NAN;
@@ -597,7 +620,7 @@ static int values_with_plan(const twf_model *m, const twf_links *l,
     pl[k].parallel = l->rows[k].form == TWF_LINK_FORM_DH && l->rows[k].parallel;
     pl[k].flip = l->rows[k].flip_;
   }
-  walk(&L, pl, 0, 0, 1, vals, NULL, NULL);
+  walk(&L, pl, 0, CONV_KEEP, 1, vals, NULL, NULL);
   lines_free(&L);
   free(pl);
   return 0;
@@ -809,6 +832,15 @@ twf_status twf_model_to_dh(const twf_model *m, twf_dh_convention conv,
                            twf_pose *base_to_first, twf_pose *flange_in_last,
                            twf_error *err)
 {
+  return twf_model_to_dh_like(m, NULL, conv, use_beta, rows, base_to_first,
+                              flange_in_last, err);
+}
+
+twf_status twf_model_to_dh_like(const twf_model *m, const twf_model *reference,
+                                twf_dh_convention conv, int use_beta,
+                                twf_dh_row *rows, twf_pose *base_to_first,
+                                twf_pose *flange_in_last, twf_error *err)
+{
   lines L;
   plan *pl;
   twf_pose *frames;
@@ -824,6 +856,8 @@ twf_status twf_model_to_dh(const twf_model *m, twf_dh_convention conv,
   if (conv != TWF_DH_STANDARD && conv != TWF_DH_MODIFIED)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "unknown DH convention %d", (int)conv);
+  if (reference != NULL && (st = check_same_joints(m, reference, err)) != TWF_OK)
+    return st;
   n = m->n_joints;
   if (lines_at_zero(m, &L) != 0)
     return nomem(err);
@@ -834,7 +868,22 @@ twf_status twf_model_to_dh(const twf_model *m, twf_dh_convention conv,
     st = nomem(err);
     goto done;
   }
-  walk(&L, pl, 1, 1, use_beta, vals, frames, NULL);
+  if (reference != NULL) {
+    /* the reference's forms and signs of x (as twf_links_compute with a
+     * reference), m's own parallel and coincident lines: the written
+     * table then reads row by row against the reference's */
+    lines LR;
+    if (lines_at_zero(reference, &LR) != 0) {
+      st = nomem(err);
+      goto done;
+    }
+    LR.reach = L.reach;
+    walk(&LR, pl, 1, CONV_CHOOSE, use_beta, vals, NULL, NULL);
+    lines_free(&LR);
+    walk(&L, pl, 0, CONV_KEEP_SIGNS, use_beta, vals, frames, NULL);
+  } else {
+    walk(&L, pl, 1, CONV_CHOOSE, use_beta, vals, frames, NULL);
+  }
   {
     /* the flange in frame n exactly (its numbers are row n+1) */
     twf_pose inv, F;

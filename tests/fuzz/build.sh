@@ -70,7 +70,7 @@ for s in $lib_sources tests/arms.c tests/fuzz/fuzz_util.c; do
   compile "$s" -fsanitize=fuzzer-no-link
 done
 common=$objects
-for f in model base campaign pair; do
+for f in model base campaign pair urdf; do
   objects=""
   compile "tests/fuzz/fuzz_$f.c" -fsanitize=fuzzer-no-link
   # shellcheck disable=SC2086

@@ -17,6 +17,7 @@ void twf_fuzz_model(const uint8_t *data, size_t size);
 void twf_fuzz_base(const uint8_t *data, size_t size);
 void twf_fuzz_campaign(const uint8_t *data, size_t size);
 void twf_fuzz_pair(const uint8_t *data, size_t size);
+void twf_fuzz_urdf(const uint8_t *data, size_t size);
 
 /* Report a broken expectation (file, line, the condition's text). */
 void twf_fuzz_fail(const char *file, int line, const char *what);

@@ -31,6 +31,10 @@ for f in "$top"/samples/*.csv "$top"/tests/bad-campaigns/*.csv "$top"/tests/data
   cp "$f" "$corpus/campaign/$d-$(basename "$f")"
 done
 
+# URDF (corpus/urdf) is not rebuilt here: its seeds are the samples as
+# `twistfit export --as urdf` wrote them (export-*), the URDF fixtures of
+# the tests (fixtures-*, case-*) and hand-written ones (hand-*).
+
 # two-file campaigns: joints file, a line %%, points file (fuzz_pair.c)
 pair() {
   name=$1

@@ -7,7 +7,7 @@
  *   replay                    every input under $TWF_SRCDIR/tests/fuzz
  *   replay READER FILE...     the given files, in this process, with the
  *                             harness's messages (READER: model, base,
- *                             campaign, pair)
+ *                             campaign, pair, urdf)
  *
  * Each input runs in a child process with a time limit, so that a crash or
  * an endless loop is one failed input, not the end of the run. Inputs of
@@ -40,6 +40,7 @@ static const struct {
   { "base", twf_fuzz_base },
   { "campaign", twf_fuzz_campaign },
   { "pair", twf_fuzz_pair },
+  { "urdf", twf_fuzz_urdf },
 };
 #define N_READERS (sizeof readers / sizeof readers[0])
 
@@ -216,7 +217,7 @@ int main(int argc, char **argv)
     harness_fn fn = find_reader(argv[1]);
     int bad = 0;
     if (fn == NULL || argc < 3) {
-      fprintf(stderr, "usage: replay [model|base|campaign|pair FILE...]\n");
+      fprintf(stderr, "usage: replay [model|base|campaign|pair|urdf FILE...]\n");
       return 2;
     }
     for (int i = 2; i < argc; i++) {

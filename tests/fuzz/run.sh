@@ -5,7 +5,7 @@
 #
 #   tests/fuzz/run.sh [SECONDS [FUZZER...]]
 #
-# SECONDS: per fuzzer (default 60); FUZZER: model, base, campaign, pair
+# SECONDS: per fuzzer (default 60); FUZZER: model, base, campaign, pair, urdf
 # (default all, one after the other: never two at once on a shared
 # machine). TWF_FUZZ_OUT: build and work folder (default build-fuzz at the
 # top). Inputs that a run adds are kept in $TWF_FUZZ_OUT/corpus/FUZZER and
@@ -16,7 +16,7 @@ here=$(cd "$(dirname "$0")" && pwd)
 top=$(cd "$here/../.." && pwd)
 secs=${1:-60}
 [ $# -gt 0 ] && shift
-fuzzers=${*:-model base campaign pair}
+fuzzers=${*:-model base campaign pair urdf}
 out=${TWF_FUZZ_OUT:-$top/build-fuzz}
 
 case $secs in
@@ -45,7 +45,8 @@ for f in $fuzzers; do
     model) dict=model.dict ;;
     base) dict=base.dict ;;
     campaign|pair) dict=campaign.dict ;;
-    *) echo "run.sh: unknown fuzzer '$f' (model, base, campaign, pair)" >&2; exit 2 ;;
+    urdf) dict=urdf.dict ;;
+    *) echo "run.sh: unknown fuzzer '$f' (model, base, campaign, pair, urdf)" >&2; exit 2 ;;
   esac
   work=$out/corpus/$f
   arts=$out/artifacts/$f

@@ -210,7 +210,7 @@ START_TEST(test_scale_refused)
   size_t len = 0;
   FILE *fp = open_memstream(&buf, &len);
   m->joints[2].scale = 1.0021;
-  ck_assert_int_eq(twf_model_write_urdf(m, NULL, fp, &err), TWF_ERR_INVALID);
+  ck_assert_int_eq(twf_model_write_urdf(m, NULL, fp, &err), TWF_ERR_VALUE);
   ck_assert_ptr_nonnull(strstr(err.message, "scale"));
   ck_assert_ptr_nonnull(strstr(err.message, m->joints[2].name));
   fclose(fp);
@@ -226,11 +226,11 @@ START_TEST(test_name_clash)
   twf_error err;
   FILE *fp = fopen("/dev/null", "w");
   strcpy(m->targets[0].name, "flange");
-  ck_assert_int_eq(twf_model_write_urdf(m, NULL, fp, &err), TWF_ERR_INVALID);
+  ck_assert_int_eq(twf_model_write_urdf(m, NULL, fp, &err), TWF_ERR_DUPLICATE);
   ck_assert_ptr_nonnull(strstr(err.message, "'flange'"));
   strcpy(m->targets[0].name, "T1");
   strcpy(m->joints[3].name, "T2_joint"); /* the name of T2's fixed joint */
-  ck_assert_int_eq(twf_model_write_urdf(m, NULL, fp, &err), TWF_ERR_INVALID);
+  ck_assert_int_eq(twf_model_write_urdf(m, NULL, fp, &err), TWF_ERR_DUPLICATE);
   ck_assert_ptr_nonnull(strstr(err.message, "joint T2_joint"));
   fclose(fp);
   twf_model_free(m);
@@ -273,11 +273,11 @@ START_TEST(test_errors)
                "  <joint name=\"b\" type=\"revolute\">\n"
                "    <parent link=\"l1\"/><child link=\"l2\"/>\n"
                "    <mimic joint=\"a\"/>\n  </joint>\n",
-               TWF_ERR_INVALID, 9, "<mimic> in joint b");
+               TWF_ERR_VALUE, 9, "<mimic> in joint b");
   expect_error("  <joint name=\"a\" type=\"floating\"><parent link=\"base\"/><child link=\"l1\"/>"
-               "</joint>\n", TWF_ERR_INVALID, 5, "floating");
+               "</joint>\n", TWF_ERR_VALUE, 5, "floating");
   expect_error("  <joint name=\"a\" type=\"planar\"><parent link=\"base\"/><child link=\"l1\"/>"
-               "</joint>\n", TWF_ERR_INVALID, 5, "planar");
+               "</joint>\n", TWF_ERR_VALUE, 5, "planar");
   expect_error("  <joint name=\"a\" type=\"hinge\"><parent link=\"base\"/><child link=\"l1\"/>"
                "</joint>\n", TWF_ERR_UNKNOWN, 5, "hinge");
   /* bad numbers: not a number, a wrong count, not finite */
@@ -295,7 +295,7 @@ START_TEST(test_errors)
                "</joint>\n", TWF_ERR_UNKNOWN, 5, "'l9'");
   expect_error("  <link name=\"l1\"/>\n", TWF_ERR_DUPLICATE, 5, "'l1' given twice");
   expect_error("  <joint name=\"a\" type=\"fixed\"><parent link=\"base\"/><child link=\"l1\"/>"
-               "</joint>\n", TWF_ERR_INVALID, 0, "no link of the robot is moved");
+               "</joint>\n", TWF_ERR_MISSING, 0, "no link of the robot is moved");
   /* not well-formed: libxml2's message with its line */
   expect_error("  <joint name=\"a\" type=\"revolute\">\n</robot>\n", TWF_ERR_SYNTAX, 6,
                "not well-formed");
@@ -336,7 +336,7 @@ START_TEST(test_two_tips)
   twf_model *m;
   twf_test_tmpdir_make("urdf");
   ck_assert_ptr_null(read_text(two_tips, NULL, &err));
-  ck_assert_int_eq(err.status, TWF_ERR_INVALID);
+  ck_assert_int_eq(err.status, TWF_ERR_MISSING);
   /* the fixed stand is not a tip: only links a joint moves */
   ck_assert_msg(strstr(err.message, "2 tips (tool_a, tool_b)") != NULL, "%s", err.message);
   ck_assert_ptr_nonnull(strstr(err.hint, "tip"));
@@ -440,7 +440,7 @@ START_TEST(test_like)
   twf_model_free(m);
   m = test_arm_model(ARM_TF6S);
   fp = fopen("/dev/null", "w");
-  ck_assert_int_eq(twf_model_write_urdf_like(m, like, &o, fp, &err), TWF_ERR_INVALID);
+  ck_assert_int_eq(twf_model_write_urdf_like(m, like, &o, fp, &err), TWF_ERR_VALUE);
   ck_assert_ptr_nonnull(strstr(err.message, "3 moving joints, the model 6"));
   /* the tip is the last joint's own link and the flange is off its axis */
   o.tip_link = "slide";
@@ -491,7 +491,7 @@ START_TEST(test_generated_two_tips)
    * tests/gen/gen_urdf_samples.py; urdfdom's check_urdf parses it */
   const char *path = twf_test_srcpath("tests/fixtures/urdf_two_tips.urdf");
   ck_assert_ptr_null(twf_model_read(path, NULL, &err));
-  ck_assert_int_eq(err.status, TWF_ERR_INVALID);
+  ck_assert_int_eq(err.status, TWF_ERR_MISSING);
   ck_assert_ptr_nonnull(strstr(err.message, "2 tips"));
   ro.urdf_tip_link = "left_flange";
   m = twf_model_read_with(path, &ro, NULL, NULL, &err);

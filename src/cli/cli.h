@@ -158,7 +158,34 @@ enum {
   CLI_OPT_MAX_INPUT_SIZE,
   CLI_OPT_FIRST_FREE /* commands number their own options from here */
 };
+/* The options that choose the chain of a URDF model (twistfit-model(5)),
+ * on every command that reads a model: numbers of their own, clear of
+ * CLI_OPT_JOINTS.. and of the commands' own enums (from 256). */
+enum { CLI_OPT_BASE_LINK = 990, CLI_OPT_TIP_LINK, CLI_OPT_TARGET_LINK };
+#define CLI_URDF_LONGOPTS                                                      \
+  { "base-link", required_argument, NULL, CLI_OPT_BASE_LINK },                 \
+  { "tip-link", required_argument, NULL, CLI_OPT_TIP_LINK },                   \
+  { "target-link", required_argument, NULL, CLI_OPT_TARGET_LINK }
+#define CLI_URDF_HELP                                                          \
+  "      --base-link LINK    URDF MODEL: the chain's base link (default: the root)\n" \
+  "      --tip-link LINK     URDF MODEL: the flange link (default: the one tip)\n" \
+  "      --target-link LINK  URDF MODEL: a link fixed to the tip that is a target\n" \
+  "                          (repeat; default: every such link without children)\n"
+/* The most --target-link options of one command. */
+#define CLI_URDF_TARGETS_MAX 64
+/* The --target-link names; must outlive the twf_read_options that point
+ * into it. */
+typedef struct cli_urdf_links {
+  const char *targets[CLI_URDF_TARGETS_MAX];
+  size_t n_targets;
+} cli_urdf_links;
+/* Handle CLI_OPT_BASE_LINK, _TIP_LINK or _TARGET_LINK into ropt (names
+ * kept in links): 0, or a usage error's exit status. */
+int cli_urdf_longopt(const char *command, int opt, const char *value, cli_urdf_links *links,
+                     twf_read_options *ropt);
+
 #define CLI_INPUT_LONGOPTS                                                     \
+  CLI_URDF_LONGOPTS,                                                           \
   { "joints", required_argument, NULL, CLI_OPT_JOINTS },                       \
   { "points", required_argument, NULL, CLI_OPT_POINTS },                       \
   { "length-unit", required_argument, NULL, CLI_OPT_LENGTH_UNIT },             \
@@ -175,7 +202,8 @@ enum {
   "      --limits-error      joint values outside the model's limits are an\n" \
   "                          error (default: a warning)\n"                    \
   "      --max-input-size N  refuse input files larger than N bytes (suffix\n" \
-  "                          K, M, G, T: binary multiples; default 2G)\n"
+  "                          K, M, G, T: binary multiples; default 2G)\n"    \
+  CLI_URDF_HELP
 
 /* A model and a campaign read from the command line. */
 typedef struct cli_inputs {
@@ -183,6 +211,7 @@ typedef struct cli_inputs {
   const char *paths[6]; /* NULL-terminated list of the input files */
   twf_campaign_options copt;
   twf_read_options ropt; /* model and base pose files */
+  cli_urdf_links urdf_links; /* --target-link names that ropt points to */
   twf_input_digest model_digest; /* of the model file as read */
   twf_model *model;
   twf_campaign *campaign;

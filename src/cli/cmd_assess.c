@@ -29,6 +29,7 @@ static const char assess_help[] =
   "      --length-unit U     length unit of POSES.csv (default: as declared, else mm)\n"
   "      --angle-unit U      angle unit of POSES.csv (default: as declared, else deg)\n"
   "  -f, --force             replace the JSON file when it exists\n"
+  CLI_URDF_HELP
   "  -h, --help              show this help\n";
 
 enum { OPT_LUNIT = PCLI_OPT_FIRST_FREE, OPT_AUNIT };
@@ -40,6 +41,7 @@ static int run_assess(int argc, char **argv)
     { "length-unit", required_argument, NULL, OPT_LUNIT },
     { "angle-unit", required_argument, NULL, OPT_AUNIT },
     { "force", no_argument, NULL, 'f' },
+    CLI_URDF_LONGOPTS,
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -52,6 +54,8 @@ static int run_assess(int argc, char **argv)
   twf_campaign *poses = NULL;
   twf_assessment *a = NULL;
   twf_warnings warnings;
+  twf_read_options ropt = twf_read_default_options();
+  cli_urdf_links urdf_links = { { NULL }, 0 };
   twf_error err;
   json_t *root = NULL;
   cli_units u;
@@ -79,6 +83,12 @@ static int run_assess(int argc, char **argv)
       copt.angle_from_caller = 1;
       break;
     case 'f': force = 1; break;
+    case CLI_OPT_BASE_LINK:
+    case CLI_OPT_TIP_LINK:
+    case CLI_OPT_TARGET_LINK:
+      if ((status = cli_urdf_longopt("assess", opt, optarg, &urdf_links, &ropt)) != 0)
+        goto done;
+      break;
     case 'h': fputs(assess_help, stdout); goto done;
     default: status = cli_bad_option("assess", opt, argv); goto done;
     }
@@ -91,7 +101,7 @@ static int run_assess(int argc, char **argv)
   inputs[1] = argv[optind + 1];
   if ((status = cli_outputs_check("assess", &me.json, names, 1, force, inputs)) != 0)
     goto done;
-  model = twf_model_read(inputs[0], &warnings, &err);
+  model = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err);
   if (model == NULL) {
     cli_print_warnings(&warnings);
     status = cli_report_error(&err);

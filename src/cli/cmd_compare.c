@@ -48,6 +48,7 @@ static const char compare_help[] =
   "      --json FILE         write the figures as JSON ('-' for standard output,\n"
   "                          then the text report goes to standard error)\n"
   "  -f, --force             replace an output file that exists\n"
+  CLI_URDF_HELP
   "  -h, --help              show this help\n";
 
 enum {
@@ -121,6 +122,7 @@ static int run_compare(int argc, char **argv)
     { "tol-angle-max", required_argument, NULL, OPT_TOL_ANGLE },
     { "json", required_argument, NULL, OPT_JSON },
     { "force", no_argument, NULL, 'f' },
+    CLI_URDF_LONGOPTS,
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -140,6 +142,8 @@ static int run_compare(int argc, char **argv)
   twf_campaign *joints = NULL;
   twf_compare_result *res = NULL;
   twf_warnings warnings;
+  twf_read_options ropt = twf_read_default_options();
+  cli_urdf_links urdf_links = { { NULL }, 0 };
   twf_error err;
   double *q = NULL;
   size_t n_cfg = 0, k;
@@ -194,6 +198,12 @@ static int run_compare(int argc, char **argv)
     case OPT_TOL_ANGLE: tol_text[2] = optarg; break;
     case OPT_JSON: json_path = optarg; break;
     case 'f': force = 1; break;
+    case CLI_OPT_BASE_LINK:
+    case CLI_OPT_TIP_LINK:
+    case CLI_OPT_TARGET_LINK:
+      if ((status = cli_urdf_longopt("compare", opt, optarg, &urdf_links, &ropt)) != 0)
+        goto done;
+      break;
     case 'h': fputs(compare_help, stdout); goto done;
     default: status = cli_bad_option("compare", opt, argv); goto done;
     }
@@ -214,8 +224,8 @@ static int run_compare(int argc, char **argv)
   if (json_path != NULL && strcmp(json_path, "-") == 0)
     txt = stderr;
 
-  if ((a = twf_model_read(inputs[0], &warnings, &err)) == NULL ||
-      (b = twf_model_read(inputs[1], &warnings, &err)) == NULL)
+  if ((a = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err)) == NULL ||
+      (b = twf_model_read_with(inputs[1], &ropt, &warnings, NULL, &err)) == NULL)
     goto fail;
   if (twf_models_same_joints(a, b, inputs[0], inputs[1], &err) != TWF_OK)
     goto fail;

@@ -50,6 +50,7 @@ static const char compensate_help[] =
   "      --singular-threshold X flag rows where the smallest singular value of the\n"
   "                             scaled Jacobian is below X (default 0.01)\n"
   "      --allow-flagged        exit status 0 even when rows are flagged\n"
+  CLI_URDF_HELP
   "  -h, --help                 show this help\n";
 
 enum {
@@ -281,6 +282,7 @@ static int run_compensate(int argc, char **argv)
     { "max-iter", required_argument, NULL, OPT_MAX_ITER },
     { "singular-threshold", required_argument, NULL, OPT_SINGULAR },
     { "allow-flagged", no_argument, NULL, OPT_ALLOW },
+    CLI_URDF_LONGOPTS,
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -296,6 +298,8 @@ static int run_compensate(int argc, char **argv)
   twf_ik_result *res = NULL;
   double *qout = NULL;
   twf_warnings warnings;
+  twf_read_options ropt = twf_read_default_options();
+  cli_urdf_links urdf_links = { { NULL }, 0 };
   twf_error err;
   comp_out out;
   cli_put put;
@@ -340,6 +344,12 @@ static int run_compensate(int argc, char **argv)
       }
       break;
     case OPT_ALLOW: allow = 1; break;
+    case CLI_OPT_BASE_LINK:
+    case CLI_OPT_TIP_LINK:
+    case CLI_OPT_TARGET_LINK:
+      if ((status = cli_urdf_longopt("compensate", opt, optarg, &urdf_links, &ropt)) != 0)
+        goto done;
+      break;
     case 'h': fputs(compensate_help, stdout); goto done;
     default: status = cli_bad_option("compensate", opt, argv); goto done;
     }
@@ -368,11 +378,11 @@ static int run_compensate(int argc, char **argv)
 
   /* the models and the input */
   if (cartesian == NULL) {
-    nominal = twf_model_read(inputs[0], &warnings, &err);
+    nominal = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err);
     if (nominal == NULL)
       goto fail;
   }
-  asbuilt = twf_model_read(inputs[cartesian ? 0 : 1], &warnings, &err);
+  asbuilt = twf_model_read_with(inputs[cartesian ? 0 : 1], &ropt, &warnings, NULL, &err);
   if (asbuilt == NULL)
     goto fail;
   if (nominal != NULL && twf_models_same_joints(nominal, asbuilt, inputs[0], inputs[1], &err) != TWF_OK)

@@ -48,6 +48,7 @@ static const char plan_help[] =
   "                          (default: the pool's declaration, else MODEL's)\n"
   "      --angle-unit U      unit of revolute joints in --pool and the output\n"
   "  -f, --force             replace output files that exist\n"
+  CLI_URDF_HELP
   "  -h, --help              show this help\n";
 
 enum {
@@ -133,6 +134,7 @@ static int run_plan(int argc, char **argv)
     { "length-unit", required_argument, NULL, OPT_LUNIT },
     { "angle-unit", required_argument, NULL, OPT_AUNIT },
     { "force", no_argument, NULL, 'f' },
+    CLI_URDF_LONGOPTS,
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -151,6 +153,8 @@ static int run_plan(int argc, char **argv)
   twf_campaign *pool = NULL;
   twf_plan_result *res = NULL;
   twf_warnings warnings;
+  twf_read_options ropt = twf_read_default_options();
+  cli_urdf_links urdf_links = { { NULL }, 0 };
   twf_error err;
   json_t *root = NULL;
   cli_units u;
@@ -215,6 +219,12 @@ static int run_plan(int argc, char **argv)
       copt.angle_from_caller = 1;
       break;
     case 'f': force = 1; break;
+    case CLI_OPT_BASE_LINK:
+    case CLI_OPT_TIP_LINK:
+    case CLI_OPT_TARGET_LINK:
+      if ((status = cli_urdf_longopt("plan", opt, optarg, &urdf_links, &ropt)) != 0)
+        goto done;
+      break;
     case 'h': fputs(plan_help, stdout); goto done;
     default: status = cli_bad_option("plan", opt, argv); goto done;
     }
@@ -241,7 +251,7 @@ static int run_plan(int argc, char **argv)
   outputs[1] = me.json;
   if ((status = cli_outputs_check("plan", outputs, names, 2, force, inputs)) != 0)
     goto done;
-  model = twf_model_read(inputs[0], &warnings, &err);
+  model = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err);
   if (model == NULL) {
     cli_print_warnings(&warnings);
     status = cli_report_error(&err);

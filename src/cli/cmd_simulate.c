@@ -48,6 +48,7 @@ static const char simulate_help[] =
   "      --length-unit U     length unit of the campaign file (default MODEL's)\n"
   "      --angle-unit U      angle unit of the campaign file (default MODEL's)\n"
   "  -f, --force             replace output files that exist\n"
+  CLI_URDF_HELP
   "  -h, --help              show this help\n";
 
 enum {
@@ -151,6 +152,7 @@ static int run_simulate(int argc, char **argv)
     { "length-unit", required_argument, NULL, OPT_LUNIT },
     { "angle-unit", required_argument, NULL, OPT_AUNIT },
     { "force", no_argument, NULL, 'f' },
+    CLI_URDF_LONGOPTS,
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
@@ -168,6 +170,8 @@ static int run_simulate(int argc, char **argv)
   twf_campaign *joints = NULL, *c = NULL;
   unsigned char *mask = NULL;
   twf_warnings warnings;
+  twf_read_options ropt = twf_read_default_options();
+  cli_urdf_links urdf_links = { { NULL }, 0 };
   twf_error err;
   twf_pose B;
   cli_units u;
@@ -233,6 +237,12 @@ static int run_simulate(int argc, char **argv)
       have_au = 1;
       break;
     case 'f': force = 1; break;
+    case CLI_OPT_BASE_LINK:
+    case CLI_OPT_TIP_LINK:
+    case CLI_OPT_TARGET_LINK:
+      if ((status = cli_urdf_longopt("simulate", opt, optarg, &urdf_links, &ropt)) != 0)
+        return status;
+      break;
     case 'h': fputs(simulate_help, stdout); return TWF_EXIT_OK;
     default: return cli_bad_option("simulate", opt, argv);
     }
@@ -257,7 +267,7 @@ static int run_simulate(int argc, char **argv)
   if ((status = cli_outputs_check("simulate", outputs, names, 3, force, inputs)) != 0)
     return status;
 
-  model = twf_model_read(argv[optind], &warnings, &err);
+  model = twf_model_read_with(argv[optind], &ropt, &warnings, NULL, &err);
   if (model == NULL) {
     status = cli_report_error(&err);
     goto done;
@@ -282,7 +292,7 @@ static int run_simulate(int argc, char **argv)
     so.targets = mask;
   }
   if (true_path != NULL) {
-    truth = twf_model_read(true_path, &warnings, &err);
+    truth = twf_model_read_with(true_path, &ropt, &warnings, NULL, &err);
     if (truth == NULL) {
       status = cli_report_error(&err);
       goto done;

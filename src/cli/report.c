@@ -109,6 +109,11 @@ int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *
     in->copt.angle_from_caller = 1;
     return 1;
   case CLI_OPT_LIMITS_ERROR: in->copt.limits_are_errors = 1; return 1;
+  case CLI_OPT_BASE_LINK:
+  case CLI_OPT_TIP_LINK:
+  case CLI_OPT_TARGET_LINK:
+    *status = cli_urdf_longopt(command, opt, arg, &in->urdf_links, &in->ropt);
+    return 1;
   case CLI_OPT_MAX_INPUT_SIZE:
     *status = cli_parse_size(command, arg, &in->copt.max_input_size);
     in->ropt.max_input_size = in->copt.max_input_size;

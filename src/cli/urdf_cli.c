@@ -26,6 +26,16 @@ int cli_urdf_option(const char *command, const char *name, const char *value,
   return 0;
 }
 
+int cli_urdf_longopt(const char *command, int opt, const char *value, cli_urdf_links *links,
+                     twf_read_options *ropt)
+{
+  return cli_urdf_option(command,
+                         opt == CLI_OPT_BASE_LINK  ? "base-link"
+                         : opt == CLI_OPT_TIP_LINK ? "tip-link"
+                                                   : "target-link",
+                         value, links, ropt);
+}
+
 typedef struct urdf_ctx {
   const twf_model *model;
   const char *like;

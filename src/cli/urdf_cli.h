@@ -12,19 +12,10 @@
 int cli_export_urdf(const twf_model *m, const char *like, const twf_read_options *ropt,
                     const char *output, int force, const char *const *inputs);
 
-/* The most --target-link options of one command. */
-#define CLI_URDF_TARGETS_MAX 64
-
-/* Options of a URDF input: --base-link, --tip-link, --target-link (may be
- * repeated). */
-typedef struct cli_urdf_links {
-  const char *targets[CLI_URDF_TARGETS_MAX];
-  size_t n_targets;
-} cli_urdf_links;
-
 /* Handle one of the three options (name without dashes) into ropt; the
  * target names are kept in links, which must outlive ropt's use. Returns
- * 0 or a usage error's exit status. */
+ * 0 or a usage error's exit status. (cli_urdf_longopt in cli.h takes the
+ * option's number instead.) */
 int cli_urdf_option(const char *command, const char *name, const char *value,
                     cli_urdf_links *links, twf_read_options *ropt);
 

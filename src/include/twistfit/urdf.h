@@ -26,7 +26,7 @@ typedef struct twf_urdf_read_options {
   /* The link whose frame is the flange; NULL: the one tip, the deepest
    * link that every link moved by a joint and without children hangs from
    * through fixed joints only (a tree with two or more such tips is
-   * refused, TWF_ERR_INVALID, the tips listed). */
+   * refused, TWF_ERR_MISSING, the tips listed). */
   const char *tip_link;
   /* Links fixed to the tip that become targets, the offset their fixed
    * joint's origin xyz (rotation ignored). NULL: every link without
@@ -55,12 +55,12 @@ twf_urdf_read_options twf_urdf_default_read_options(void);
  *                    cycle;
  *   TWF_ERR_UNKNOWN  a joint type URDF does not define, a base, tip or
  *                    target link that is not there or not on the chain;
- *   TWF_ERR_INVALID  a chain joint of type floating or planar, or with
- *                    <mimic> (no model of twistfit holds them), a tree
- *                    with two tips and no tip_link, no moving joint;
- *   TWF_ERR_VALUE    a number that is not one (or not finite, or a wrong
- *                    count), a zero axis, lower > upper, a file over the
- *                    size limit;
+ *   TWF_ERR_MISSING  a tree with two tips and no tip_link (the tips are
+ *                    listed), no moving joint;
+ *   TWF_ERR_VALUE    a chain joint of type floating or planar, or with
+ *                    <mimic> (no model of twistfit holds them), a number
+ *                    that is not one (or not finite, or a wrong count), a
+ *                    zero axis, lower > upper, a file over the size limit;
  *   TWF_ERR_DUPLICATE two links or joints of one name;
  *   TWF_ERR_NOMEM.
  * warnings (NULL: discard) receive axes normalised from a length that was
@@ -97,9 +97,10 @@ twf_urdf_write_options twf_urdf_default_write_options(void);
  * rounding. Limits are on the logged value, in rad or m; <limit> has
  * effort and velocity 0 (not known to a model). Numbers with 17
  * significant digits, values within 1e-13 of 0 written 0.
- * Returns TWF_OK; TWF_ERR_INVALID when a joint's scale is not 1 (URDF
- * cannot hold it), a value is not finite, or two links would share a
- * name (err says which); TWF_ERR_IO when the stream fails; TWF_ERR_NOMEM.
+ * Returns TWF_OK; TWF_ERR_VALUE when a joint's scale is not 1 (URDF
+ * cannot hold it) or a value is not finite, TWF_ERR_DUPLICATE when two
+ * links or joints would share a name (err says which); TWF_ERR_INVALID
+ * for no model or stream; TWF_ERR_IO when the stream fails; TWF_ERR_NOMEM.
  * Nothing is written unless m passed the checks. */
 twf_status twf_model_write_urdf(const twf_model *m,
                                 const twf_urdf_write_options *opt,
@@ -115,10 +116,11 @@ twf_status twf_model_write_urdf(const twf_model *m,
  * nearest point of m's axis; targets of m that are links fixed to the
  * tip get their offsets. Everything else (other joints and links,
  * visuals, collisions, inertias, comments, attribute order) is kept.
- * Errors as twf_model_read_urdf for the file; TWF_ERR_INVALID when the
+ * Errors as twf_model_read_urdf for the file; TWF_ERR_VALUE when the
  * chain does not match m, a scale is not 1, or the flange is off the
  * last axis and the tip is that joint's own link (no fixed joint to
- * change); TWF_ERR_IO when out fails. */
+ * change); TWF_ERR_IO when out fails. All are the user's data, so the
+ * command line answers them with exit status 3. */
 twf_status twf_model_write_urdf_like(const twf_model *m, const char *like_path,
                                      const twf_urdf_read_options *ropt,
                                      FILE *out, twf_error *err);

@@ -42,7 +42,7 @@ static twf_status check_match(like_ctx *x, twf_error *err)
   size_t k = 0;
   twf_status st;
   if (x->c.n_moving != x->m->n_joints)
-    return twf_error_set(err, TWF_ERR_INVALID, t->path, 0, 0,
+    return twf_error_set(err, TWF_ERR_VALUE, t->path, 0, 0,
                          "choose the chain with the base and tip link options",
                          "the chain from link %s to link %s has %zu moving joints, the model %zu",
                          t->links[x->c.base].name, t->links[x->c.tip].name, x->c.n_moving,
@@ -54,7 +54,7 @@ static twf_status check_match(like_ctx *x, twf_error *err)
     if (u->type == UJ_FIXED)
       continue;
     if ((u->type == UJ_PRISMATIC) != (x->m->joints[k].type == TWF_JOINT_PRISMATIC))
-      return twf_error_set(err, TWF_ERR_INVALID, t->path, twf_urdf_line(u->node), 0,
+      return twf_error_set(err, TWF_ERR_VALUE, t->path, twf_urdf_line(u->node), 0,
                            "the file's chain must have the model's joint types in order",
                            "joint %s of the file is %s, model joint %s is %s", u->name,
                            u->type == UJ_PRISMATIC ? "prismatic" : "revolute",
@@ -121,7 +121,7 @@ static twf_status set_tail(like_ctx *x, const twf_pose *flange_in_last, twf_erro
     for (int r = 0; r < 3; r++)
       on[r] -= x->m->home.p[r];
     if (twf_v3_norm(on) > 1e-12)
-      return twf_error_set(err, TWF_ERR_INVALID, x->t.path, 0, 0,
+      return twf_error_set(err, TWF_ERR_VALUE, x->t.path, 0, 0,
                            "add a flange link on a fixed joint to the last link, or give such "
                            "a link as the tip link",
                            "the tip link %s is the last joint's own link, and the model's flange "

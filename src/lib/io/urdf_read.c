@@ -22,13 +22,13 @@ twf_status twf_urdf_check_joint(const urdf_tree *t, size_t j, twf_error *err)
   const urdf_joint *u = &t->joints[j];
   xmlNodePtr mimic = twf_urdf_child(u->node, "mimic");
   if (u->type == UJ_FLOATING || u->type == UJ_PLANAR)
-    return twf_error_set(err, TWF_ERR_INVALID, t->path, twf_urdf_line(u->node), 0,
+    return twf_error_set(err, TWF_ERR_VALUE, t->path, twf_urdf_line(u->node), 0,
                          "a model's joints are revolute, continuous or prismatic; choose a "
                          "chain without it (base and tip links)",
                          "joint %s is of type %s, which a serial-arm model cannot hold", u->name,
                          u->type == UJ_FLOATING ? "floating" : "planar");
   if (mimic != NULL)
-    return twf_error_set(err, TWF_ERR_INVALID, t->path, twf_urdf_line(mimic), 0,
+    return twf_error_set(err, TWF_ERR_VALUE, t->path, twf_urdf_line(mimic), 0,
                          "a model's joints move independently; choose a chain without the "
                          "mimic joint or remove <mimic>",
                          "<mimic> in joint %s: joints coupled to others are not supported",
@@ -158,7 +158,7 @@ static twf_model *build(const urdf_tree *t, const urdf_chain *c, const twf_urdf_
   twf_status st = TWF_OK;
   const char *name = (const char *)xmlGetProp(t->robot, BAD_CAST "name");
   if (c->n_moving == 0) {
-    twf_error_set(err, TWF_ERR_INVALID, t->path, 0, 0,
+    twf_error_set(err, TWF_ERR_MISSING, t->path, 0, 0,
                   "choose base and tip links with revolute, continuous or prismatic joints "
                   "between them",
                   "no moving joint between links %s and %s", t->links[c->base].name,

@@ -354,7 +354,7 @@ static twf_status default_tip(const urdf_tree *t, size_t *tip, twf_error *err)
     n++;
   }
   if (n == 0)
-    return twf_error_set(err, TWF_ERR_INVALID, t->path, 0, 0,
+    return twf_error_set(err, TWF_ERR_MISSING, t->path, 0, 0,
                          "a model needs at least one revolute, continuous or prismatic joint",
                          "no link of the robot is moved by a joint");
   int ok = is_moved(t, (size_t)anc);
@@ -369,7 +369,7 @@ static twf_status default_tip(const urdf_tree *t, size_t *tip, twf_error *err)
   for (size_t i = 0, k = 0; i < t->n_links; i++)
     if (t->links[i].n_children == 0 && is_moved(t, i))
       twf_io_appendf(list, sizeof list, "%s%s", k++ ? ", " : "", t->links[i].name);
-  return twf_error_set(err, TWF_ERR_INVALID, t->path, 0, 0,
+  return twf_error_set(err, TWF_ERR_MISSING, t->path, 0, 0,
                        "choose the flange with the tip link option (--tip-link LINK)",
                        "the robot is a tree with %zu tips (%s): which one is the flange?", n, list);
 }

@@ -91,22 +91,22 @@ twf_status twf_urdf_check_model(const twf_model *m, twf_error *err)
     for (int i = 0; i < 3; i++)
       ok = ok && isfinite(j->point[i]);
     if (!ok)
-      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+      return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0, NULL,
                            "joint %s has a value that is not finite", j->name);
     if (j->scale != 1.0)
-      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+      return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0,
                            "URDF joints move by the logged value itself: export to a model "
                            "file (or DH) to keep the scale, or fold it into the controller",
                            "joint %s has scale %.17g: URDF cannot hold a joint scale other than 1",
                            j->name, j->scale);
   }
   if (!pose_finite(&m->home))
-    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+    return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0, NULL,
                          "the home pose has a value that is not finite");
   for (size_t k = 0; k < m->n_targets; k++)
     for (int i = 0; i < 3; i++)
       if (m->targets[k].offset_known && !isfinite(m->targets[k].offset[i]))
-        return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+        return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0, NULL,
                              "target %s has an offset that is not finite", m->targets[k].name);
   return TWF_OK;
 }
@@ -215,7 +215,7 @@ static twf_status make_names(const twf_model *m, const twf_urdf_write_options *o
   for (size_t a = 0; a < nm->n; a++)
     for (size_t b = a + 1; b < nm->n; b++)
       if (strcmp(nm->links[a], nm->links[b]) == 0)
-        return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+        return twf_error_set(err, TWF_ERR_DUPLICATE, NULL, 0, 0,
                              "rename the joint or target (URDF links need names of their own)",
                              "two URDF links would be called '%s'", nm->links[a]);
   /* the fixed joints are called LINK_joint (add_fixed): none may take a
@@ -225,7 +225,7 @@ static twf_status make_names(const twf_model *m, const twf_urdf_write_options *o
       size_t n = strlen(nm->links[a]);
       if (strncmp(m->joints[k].name, nm->links[a], n) == 0 &&
           strcmp(m->joints[k].name + n, "_joint") == 0)
-        return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+        return twf_error_set(err, TWF_ERR_DUPLICATE, NULL, 0, 0,
                              "rename the joint (URDF joints need names of their own)",
                              "joint %s would share its name with the fixed joint of link %s",
                              m->joints[k].name, nm->links[a]);

@@ -6,6 +6,7 @@
 #include "config.h"
 #include "cli.h"
 #include "plan_cli.h"
+#include "html_report.h"
 
 #include <errno.h>
 #include <getopt.h>
@@ -717,6 +718,11 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                     cli_json_number(r->observability.o3), cli_json_number(r->observability.o4),
                     "correlations", corr);
   json_object_set_new(root, "identifiability", ident);
+  /* for the HTML report: the arm and its joints' units, the singular
+   * values against the noise, the correlation matrix */
+  json_object_set_new(root, "robot", cli_json_robot(m, u));
+  json_object_set_new(root, "singular_values", cli_json_singular_values(r, co->weak_ratio, u));
+  json_object_set_new(root, "correlation_matrix", cli_json_correlation_matrix(r));
   for (i = 0; i < w->count; i++)
     json_array_append_new(warn, json_string(w->items[i].message));
   json_object_set_new(root, "warnings", warn);

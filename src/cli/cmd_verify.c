@@ -5,6 +5,7 @@
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
+#include "html_report.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -397,6 +398,12 @@ static int run_verify(int argc, char **argv)
       root = json_object();
       json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
       json_object_set_new(root, "command", json_string("verify"));
+      {
+        char created[64];
+        json_object_set_new(root, "created", json_string(cli_created_now(created, sizeof created)));
+      }
+      json_object_set_new(root, "inputs", cli_json_inputs(&in));
+      json_object_set_new(root, "robot", cli_json_robot(in.model, &u));
       json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
       /* base_in_tracker: the older name, kept for existing readers */
       json_object_set_new(root, "base_in_instrument", cli_json_pose(&base, &u));

@@ -355,7 +355,10 @@ int svgc_xy(FILE *fp, const svgc_xy_chart *c)
     for (k = 0; k < tx.n; k++) {
       const char *lab = svgc_tick_label(&tx, tx.v[k], buf, sizeof buf);
       double x = svgc_map(&sx, tx.v[k]), w = text_width(lab, SVGC_FONT_PX);
-      double x0 = fmax(x - w / 2, 1.0), x1 = fmin(x + w / 2, W - 1.0);
+      double x0 = x - w / 2, x1;
+      /* a label at an edge moves inward rather than being cut */
+      x0 = fmin(fmax(x0, 1.0), W - 1.0 - w);
+      x1 = x0 + w;
       if (x0 < last_end + 4)
         continue;
       put_text(fp, (x0 + x1) / 2, bottom + 14, "middle", SVGC_FONT_PX, 0, x1 - x0 + 1, NULL, lab);
@@ -472,7 +475,7 @@ int svgc_xy(FILE *fp, const svgc_xy_chart *c)
 
 #define BAR_ROW 16.0
 
-double svgc_bars_height(size_t n) { return 28.0 + (double)n * BAR_ROW + 46.0; }
+double svgc_bars_height(size_t n) { return 28.0 + (double)n * BAR_ROW + 60.0; }
 
 int svgc_bars(FILE *fp, const svgc_bar_chart *c)
 {
@@ -531,7 +534,10 @@ int svgc_bars(FILE *fp, const svgc_bar_chart *c)
     for (k = 0; k < tx.n; k++) {
       const char *lab = svgc_tick_label(&tx, tx.v[k], buf, sizeof buf);
       double x = svgc_map(&sx, tx.v[k]), w = text_width(lab, SVGC_FONT_PX);
-      double x0 = fmax(x - w / 2, 1.0), x1 = fmin(x + w / 2, W - 1.0);
+      double x0 = x - w / 2, x1;
+      /* a label at an edge moves inward rather than being cut */
+      x0 = fmin(fmax(x0, 1.0), W - 1.0 - w);
+      x1 = x0 + w;
       if (x0 < last_end + 4)
         continue;
       put_text(fp, (x0 + x1) / 2, bottom + 14, "middle", SVGC_FONT_PX, 0, x1 - x0 + 1, NULL, lab);
@@ -579,7 +585,7 @@ int svgc_heat(FILE *fp, const svgc_heatmap *h)
   gx = lw + 8;
   gy = 28 + lw + 8;
   keyx = gx + (double)h->n * cell + 16;
-  W = keyx + 60;
+  W = keyx + 80;
   if (W < 240)
     W = 240;
   H = gy + fmax((double)h->n * cell, 160.0) + 12;

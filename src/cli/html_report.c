@@ -1041,3 +1041,9 @@ int cli_put_html(FILE *fp, void *ctx_, twf_error *err)
 {
   return cli_html_render(fp, (const json_t *)ctx_, err);
 }
+
+int cli_put_html_run(FILE *fp, void *ctx_, twf_error *err)
+{
+  json_object_set_new((json_t *)ctx_, "run_id", json_string(cli_run_id()));
+  return cli_html_render(fp, (const json_t *)ctx_, err);
+}

@@ -14,6 +14,10 @@
 int cli_html_render(FILE *fp, const json_t *root, twf_error *err);
 /* cli_put writer of the HTML report (ctx: json_t *). */
 int cli_put_html(FILE *fp, void *ctx, twf_error *err);
+/* The same for the report of this run (calibrate, verify --html): the
+ * run id of the output set is set in the JSON first, as cli_put_json
+ * does. */
+int cli_put_html_run(FILE *fp, void *ctx, twf_error *err);
 
 /* JSON members the report uses. */
 /* {name, joints: [{name, type, unit}]}: the arm and its joints' units. */

@@ -6,6 +6,7 @@
 #include "cli.h"
 #include "html_report.h"
 
+#include <errno.h>
 #include <getopt.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -77,13 +78,19 @@ static int run_report(int argc, char **argv)
             inputs[0], max_size);
     return TWF_EXIT_INPUT;
   }
+  if (stat(inputs[0], &st) != 0) {
+    fprintf(stderr, "twistfit: error: %s: cannot be read: %s\ntwistfit: hint: check the file name\n", inputs[0],
+            strerror(errno));
+    return TWF_EXIT_IO;
+  }
   root = json_load_file(inputs[0], JSON_REJECT_DUPLICATES, &jerr);
   if (root == NULL) {
-    int missing = stat(inputs[0], &st) != 0;
-    fprintf(stderr, "twistfit: error: %s:%d:%d: %s\n", inputs[0], jerr.line, jerr.column, jerr.text);
-    fprintf(stderr, "twistfit: hint: %s\n",
-            missing ? "check the file name" : "give the JSON that 'twistfit calibrate --json' or 'verify --json' wrote");
-    return missing ? TWF_EXIT_IO : TWF_EXIT_INPUT;
+    if (jerr.line > 0)
+      fprintf(stderr, "twistfit: error: %s:%d:%d: %s\n", inputs[0], jerr.line, jerr.column, jerr.text);
+    else
+      fprintf(stderr, "twistfit: error: %s: %s\n", inputs[0], jerr.text);
+    fprintf(stderr, "twistfit: hint: give the JSON that 'twistfit calibrate --json' or 'verify --json' wrote\n");
+    return TWF_EXIT_INPUT;
   }
   {
     /* refuse what is not a report before anything is written */

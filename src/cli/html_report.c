@@ -382,12 +382,13 @@ static void section_header(ctx *c)
       esc(fp, "Less than a tenth better: keep the previous model.");
     else
       esc(fp, "Worse than the starting model: do not use it.");
-    fputs("</p>\n", fp);
+    fputs("</p>\n<p>", fp);
     escf(fp, "Fitted: %s. ", jstr(c->root, "fitted"));
     escf(fp, "Noise level (one measured coordinate): %.*f %s, %s.", c->ldec, c->sigma, c->lu,
          strcmp(jstr(c->root, "sigma.source"), "estimated") == 0 ? "estimated from the fit"
          : strcmp(jstr(c->root, "sigma.source"), "rows") == 0   ? "the mean of the rows' own sigmas"
                                                                  : "given");
+    fputs("</p>\n", fp);
     stats_head(c);
     stats_row(c, "fit, before", jget(c->root, "accuracy_before.fit.position"));
     stats_row(c, "fit, after", jget(c->root, "accuracy_after.fit.position"));
@@ -423,7 +424,9 @@ static void section_header(ctx *c)
       }
       fputs("</tbody></table>\n", fp);
     }
+    fputs("<p>", fp);
     escf(fp, "Base pose: %s.", strcmp(jstr(c->root, "base_source"), "given") == 0 ? "given" : "registered to these data");
+    fputs("</p>\n", fp);
     stats_head(c);
     stats_row(c, "fit", jget(c->root, "accuracy.fit.position"));
     if (jnum(c->root, "accuracy.check.position.count") > 0)

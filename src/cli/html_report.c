@@ -322,9 +322,16 @@ static void stats_head_of(ctx *c, const char *what)
 {
   fputs("<table><thead><tr><th>", c->fp);
   esc(c->fp, what);
-  fprintf(c->fp, "</th><th>count</th><th>rms (%s)</th><th>mean (%s)</th><th>p95 (%s)</th><th>max (%s)</th></tr>"
-                 "</thead><tbody>\n",
-          c->lu, c->lu, c->lu, c->lu);
+  fputs("</th><th>count</th>", c->fp);
+  fputs("<th>", c->fp);
+  escf(c->fp, "rms (%s)", c->lu);
+  fputs("</th><th>", c->fp);
+  escf(c->fp, "mean (%s)", c->lu);
+  fputs("</th><th>", c->fp);
+  escf(c->fp, "p95 (%s)", c->lu);
+  fputs("</th><th>", c->fp);
+  escf(c->fp, "max (%s)", c->lu);
+  fputs("</th></tr></thead><tbody>\n", c->fp);
 }
 
 static void stats_head(ctx *c) { stats_head_of(c, "position error |measured - model|"); }
@@ -955,10 +962,17 @@ static void section_measurements(ctx *c)
   fputs("<table class=\"meas\"><thead><tr><th>#</th><th>line</th><th>pose</th><th>target</th><th>set</th>"
         "<th>left out</th>",
         c->fp);
-  if (c->calibrate)
-    fprintf(c->fp, "<th>before (%s)</th><th>after (%s)</th>", c->lu, c->lu);
-  else
-    fprintf(c->fp, "<th>error (%s)</th>", c->lu);
+  if (c->calibrate) {
+    fputs("<th>", c->fp);
+    escf(c->fp, "before (%s)", c->lu);
+    fputs("</th><th>", c->fp);
+    escf(c->fp, "after (%s)", c->lu);
+    fputs("</th>", c->fp);
+  } else {
+    fputs("<th>", c->fp);
+    escf(c->fp, "error (%s)", c->lu);
+    fputs("</th>", c->fp);
+  }
   for (k = 0; k < c->mv.n_joints; k++) {
     const json_t *j = json_array_get(c->joints, k);
     fputs("<th>", c->fp);

@@ -96,6 +96,11 @@ START_TEST(test_tick_labels)
   ck_assert_int_eq(svgc_ticks_linear(0, 1, 5, &t), 0);
   ck_assert_str_eq(svgc_tick_label(&t, t.v[1], buf, sizeof buf), "0.2");
   ck_assert_str_eq(svgc_tick_label(&t, t.v[0], buf, sizeof buf), "0.0");
+  /* a tiny step: short forms, 0 as "0" */
+  ck_assert_int_eq(svgc_ticks_linear(-1.2e-14, 1.7e-14, 5, &t), 0);
+  ck_assert_close(t.step, 1e-14, 1e-9);
+  ck_assert_str_eq(svgc_tick_label(&t, 0.0, buf, sizeof buf), "0");
+  ck_assert_str_eq(svgc_tick_label(&t, t.v[0], buf, sizeof buf), "-2e-14");
   ck_assert_int_eq(svgc_ticks_linear(-180, 180, 4, &t), 0);
   ck_assert_str_eq(svgc_tick_label(&t, t.v[0], buf, sizeof buf), "-200");
 }

@@ -115,7 +115,9 @@ const char *svgc_tick_label(const svgc_ticks *t, double v, char *buf, size_t n)
     double s = t->step;
     while (dec < 12 && fabs(s * pow(10.0, dec) - round(s * pow(10.0, dec))) > 1e-6 * s * pow(10.0, dec))
       dec++;
-    if (fabs(v) >= 1e6 || (v != 0 && fabs(v) < 1e-4))
+    if (v == 0 && (s < 1e-4 || s >= 1e6))
+      snprintf(buf, n, "0");
+    else if (fabs(v) >= 1e6 || s < 1e-4)
       snprintf(buf, n, "%.3g", v);
     else
       snprintf(buf, n, "%.*f", dec, v);

@@ -8,9 +8,12 @@ poppler-utils) read the PDFs back, Debian python3-pil the PNG.
 Checks: the page count of each PDF within the expected range; the PNG not
 blank (dark and coloured pixels present); no chart cut across a page (each
 chart's title and its figure caption on the same page); no chart
-overflowing its box (every element of every SVG, text at its estimated
-width, inside the viewBox; the svg element no wider than the page's text
-column through its max-width rule).
+overflowing its box: every element of every SVG, text at its estimated
+width, inside the viewBox (from the file), and in the browser's own layout
+(a test-side copy with a script that writes the boxes of every drawn
+element into the page, read back with --dump-dom) every element inside its
+chart's box and every chart inside the text column, at a wide and a narrow
+window.
 
 Usage: html_browser.py SRC TWISTFIT. Exit 77 (skipped) without chromium,
 pdfinfo or PIL."""
@@ -124,6 +127,52 @@ def svg_extent_failures(svg):
     return bad
 
 
+# Injected into a test-side copy of the report (the report itself has no
+# scripts): the browser's own boxes of every drawn element of every chart,
+# after layout with the real fonts, against the chart's box, and each
+# chart's box against the page's text column. The result is written into
+# the page, which --dump-dom prints.
+LAYOUT_SCRIPT = """<script>
+(function () {
+  var out = [], body = document.body.getBoundingClientRect();
+  var charts = document.querySelectorAll('svg.chart');
+  for (var i = 0; i < charts.length; i++) {
+    var s = charts[i], r = s.getBoundingClientRect(), name = s.getAttribute('aria-label');
+    if (r.left < body.left - 0.5 || r.right > body.right + 0.5)
+      out.push('chart ' + name + ': ' + r.left + '..' + r.right + ' beyond the column ' + body.left + '..' + body.right);
+    var els = s.querySelectorAll('text, rect, line, path, circle');
+    for (var k = 0; k < els.length; k++) {
+      var b = els[k].getBoundingClientRect(), tol = 0.75;
+      if (b.width === 0 && b.height === 0) continue;
+      if (b.left < r.left - tol || b.right > r.right + tol || b.top < r.top - tol || b.bottom > r.bottom + tol)
+        out.push('chart ' + name + ': ' + els[k].tagName + ' "' + (els[k].textContent || '') + '" at ' +
+                 [b.left, b.top, b.right, b.bottom].join(' ') + ' outside ' + [r.left, r.top, r.right, r.bottom].join(' '));
+    }
+  }
+  var pre = document.createElement('pre');
+  pre.id = 'layout-check';
+  pre.textContent = 'charts ' + charts.length + '\\n' + (out.length ? out.join('\\n') : 'inside');
+  document.body.appendChild(pre);
+})();
+</script>"""
+
+
+def layout_check(exe, text, tmp, width):
+    """The browser's boxes: returns the lines the injected script wrote."""
+    page = os.path.join(tmp, "layout-%d.html" % width)
+    with open(page, "w", encoding="utf-8") as f:
+        f.write(text.replace("</body>", LAYOUT_SCRIPT + "\n</body>", 1))
+    cmd = [exe, "--headless", "--no-sandbox", "--disable-gpu", "--hide-scrollbars", "--no-first-run",
+           "--user-data-dir=" + os.path.join(tmp, "profile"), "--window-size=%d,1200" % width,
+           "--dump-dom", "file://" + page]
+    r = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, timeout=240)
+    m = re.search(r'<pre id="layout-check">(.*?)</pre>', r.stdout.decode(), re.S)
+    if m is None:
+        fail("window %d: the layout check did not run (status %d)" % (width, r.returncode))
+        return None
+    return m.group(1).split("\n")
+
+
 def main():
     src, twistfit = sys.argv[1], sys.argv[2]
     exe = browser()
@@ -152,6 +201,20 @@ def main():
         if "svg.chart{display:block;max-width:100%" not in css:
             fail("the charts are not held to the width of the page")
 
+        # the browser's own layout, at a desktop width and a narrow one
+        # (the charts scale down with the column)
+        with open(html, encoding="utf-8") as f:
+            text = f.read()
+        for width in (820, 420):
+            lines = layout_check(exe, text, tmp, width)
+            if lines is None:
+                continue
+            if lines[0] != "charts %d" % len(svgs):
+                fail("window %d: the layout check saw %s, expected %d charts" % (width, lines[0], len(svgs)))
+            for line in lines[1:]:
+                if line != "inside":
+                    fail("window %d: %s" % (width, line))
+
         # screenshot of the first screen
         png = os.path.join(tmp, "shot.png")
         if run_chromium(exe, ["--screenshot=" + png, "--window-size=820,1160"], "file://" + html, tmp):
@@ -165,8 +228,6 @@ def main():
                 fail("the screenshot has no coloured pixels (%d)" % coloured)
 
         # PDF, Letter (the browser's default) and A4
-        with open(html, encoding="utf-8") as f:
-            text = f.read()
         a4 = os.path.join(tmp, "report-a4.html")
         with open(a4, "w", encoding="utf-8") as f:
             f.write(text.replace("<style>", "<style>@page{size:A4}", 1))

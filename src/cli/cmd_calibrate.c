@@ -6,6 +6,7 @@
 #include "config.h"
 #include "cli.h"
 #include "plan_cli.h"
+#include "html_report.h"
 
 #include <errno.h>
 #include <getopt.h>
@@ -33,6 +34,8 @@ static const char calibrate_help[] =
   "      --json FILE         write the report as JSON ('-': standard output, then the\n"
   "                          text report goes to standard error)\n"
   "      --residuals FILE    write the per-measurement residuals before and after (CSV)\n"
+  "      --html FILE         write the report as one self-contained HTML file with\n"
+  "                          charts (as 'twistfit report' makes from the JSON)\n"
   "      --fit GROUPS        parameter groups, comma-separated: base, targets, offsets,\n"
   "                          home, shifts, tilts, axes (= shifts,tilts), scale; or a preset:\n"
   "                          geometric (default: all but scale), remaster (base,targets,\n"
@@ -72,7 +75,7 @@ static const char calibrate_help[] =
 enum {
   OPT_BASE_OUT = CLI_OPT_FIRST_FREE, OPT_JSON, OPT_RESIDUALS, OPT_FIT, OPT_PRIORITY, OPT_SIGMA,
   OPT_SIGMA_ANGLE, OPT_ROBUST, OPT_ROBUST_K, OPT_SCREEN_LIMIT, OPT_CHECK_FRACTION, OPT_SEED, OPT_MAXIT, OPT_THREADS, OPT_RESAMPLE, OPT_ACCEPT_LARGE,
-  OPT_WRITE_ANYWAY
+  OPT_WRITE_ANYWAY, OPT_HTML
 };
 
 /* Split a comma list of group names into one mask per name; returns the
@@ -717,6 +720,11 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                     cli_json_number(r->observability.o3), cli_json_number(r->observability.o4),
                     "correlations", corr);
   json_object_set_new(root, "identifiability", ident);
+  /* for the HTML report: the arm and its joints' units, the singular
+   * values against the noise, the correlation matrix */
+  json_object_set_new(root, "robot", cli_json_robot(m, u));
+  json_object_set_new(root, "singular_values", cli_json_singular_values(r, co->weak_ratio, u));
+  json_object_set_new(root, "correlation_matrix", cli_json_correlation_matrix(r));
   for (i = 0; i < w->count; i++)
     json_array_append_new(warn, json_string(w->items[i].message));
   json_object_set_new(root, "warnings", warn);
@@ -786,11 +794,12 @@ static int run_calibrate(int argc, char **argv)
     { "resample", required_argument, NULL, OPT_RESAMPLE },
     { "accept-large", no_argument, NULL, OPT_ACCEPT_LARGE },
     { "write-anyway", no_argument, NULL, OPT_WRITE_ANYWAY },
+    { "html", required_argument, NULL, OPT_HTML },
     { "force", no_argument, NULL, 'f' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
-  const char *model_out = NULL, *base_out = NULL, *json_path = NULL, *residuals_path = NULL;
+  const char *model_out = NULL, *base_out = NULL, *json_path = NULL, *residuals_path = NULL, *html_path = NULL;
   const char *sigma_text = NULL, *sigma_angle_text = NULL, *fit_text = NULL, *priority_text = NULL;
   int force = 0, write_anyway = 0, opt, status = TWF_EXIT_OK;
   cli_inputs in;
@@ -836,6 +845,7 @@ static int run_calibrate(int argc, char **argv)
     case OPT_BASE_OUT: base_out = optarg; break;
     case OPT_JSON: json_path = optarg; break;
     case OPT_RESIDUALS: residuals_path = optarg; break;
+    case OPT_HTML: html_path = optarg; break;
     case OPT_FIT: fit_text = optarg; break;
     case OPT_PRIORITY: priority_text = optarg; break;
     case OPT_SIGMA: sigma_text = optarg; break;
@@ -946,15 +956,15 @@ static int run_calibrate(int argc, char **argv)
   /* refuse outputs that would fail before the work is done: a failed run
    * then writes nothing */
   {
-    const char *outs[4] = { model_out, base_out, json_path, residuals_path };
-    static const char *const names[4] = { "--output", "--base-output", "--json", "--residuals" };
+    const char *outs[5] = { model_out, base_out, json_path, residuals_path, html_path };
+    static const char *const names[5] = { "--output", "--base-output", "--json", "--residuals", "--html" };
     size_t k;
-    for (k = 0; k < 4; k++)
+    for (k = 0; k < 5; k++)
       if (k != 2 && outs[k] != NULL && strcmp(outs[k], "-") == 0) {
         status = cli_usage_error("calibrate", "only --json may go to standard output ('-'); give file names for the others");
         goto done;
       }
-    if ((status = cli_outputs_check("calibrate", outs, names, 4, force, in.paths)) != 0)
+    if ((status = cli_outputs_check("calibrate", outs, names, 5, force, in.paths)) != 0)
       goto done;
   }
 
@@ -1085,7 +1095,7 @@ static int run_calibrate(int argc, char **argv)
       (status = print_resample(txt, &in, res, &co, &u, n_resample, &resampled, &resample_w)) != TWF_EXIT_OK)
     goto done;
   {
-    cli_put puts[4];
+    cli_put puts[5];
     cli_residuals rr;
     base_file_ctx bo;
     double *weights = malloc((in.campaign->n_meas ? in.campaign->n_meas : 1) * sizeof *weights);
@@ -1098,7 +1108,7 @@ static int run_calibrate(int argc, char **argv)
       weights[i] = 1.0;
     for (k = 0; k < res->n_outliers; k++)
       weights[res->outliers[k].meas] = res->outliers[k].weight;
-    if (json_path != NULL)
+    if (json_path != NULL || html_path != NULL)
       root = report_json(&in, res, &co, &u, dg, n_dg, created, &warnings);
     if (root != NULL && resampled != NULL)
       json_object_set_new(root, "resample", resample_json(resampled, res, &u, &resample_w));
@@ -1121,7 +1131,8 @@ static int run_calibrate(int argc, char **argv)
     puts[1] = (cli_put){ base_out, put_base, &bo };
     puts[2] = (cli_put){ json_path, cli_put_json, root };
     puts[3] = (cli_put){ residuals_path, cli_put_residuals, &rr };
-    status = cli_write_outputs(puts, 4, force, in.paths);
+    puts[4] = (cli_put){ html_path, cli_put_html_run, root };
+    status = cli_write_outputs(puts, 5, force, in.paths);
     free(weights);
   }
 

@@ -5,6 +5,7 @@
 #define _GNU_SOURCE
 #include "config.h"
 #include "cli.h"
+#include "html_report.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -45,12 +46,14 @@ static const char verify_help[] =
   "      --residuals FILE    write the per-measurement residuals as CSV\n"
   "      --json FILE         write the figures as JSON ('-' for standard output,\n"
   "                          then the text report goes to standard error)\n"
+  "      --html FILE         write the report as one self-contained HTML file with\n"
+  "                          charts (as 'twistfit report' makes from the JSON)\n"
   "  -f, --force             replace output files that exist\n"
   "  -h, --help              show this help\n";
 
 enum {
   OPT_BASE = CLI_OPT_FIRST_FREE, OPT_FIT_OFFSETS, OPT_TOL_RMS, OPT_TOL_P95, OPT_TOL_MAX,
-  OPT_TOL_ANGLE, OPT_REPEAT_TOL, OPT_WORST, OPT_RESIDUALS, OPT_JSON, OPT_ALLOW_MIXED
+  OPT_TOL_ANGLE, OPT_REPEAT_TOL, OPT_WORST, OPT_RESIDUALS, OPT_JSON, OPT_ALLOW_MIXED, OPT_HTML
 };
 
 typedef struct tolerance {
@@ -146,6 +149,7 @@ static int run_verify(int argc, char **argv)
     { "worst", required_argument, NULL, OPT_WORST },
     { "residuals", required_argument, NULL, OPT_RESIDUALS },
     { "json", required_argument, NULL, OPT_JSON },
+    { "html", required_argument, NULL, OPT_HTML },
     { "force", no_argument, NULL, 'f' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
@@ -153,6 +157,7 @@ static int run_verify(int argc, char **argv)
   const char *tol_text[4] = { NULL, NULL, NULL, NULL };
   static const char *const tol_opt[4] = { "--tol-rms", "--tol-p95", "--tol-max", "--tol-angle-max" };
   const char *base_path = NULL, *residuals_path = NULL, *json_path = NULL, *repeat_text = NULL;
+  const char *html_path = NULL;
   int force = 0, fit_offsets = 0, allow_mixed = 0, opt, status = TWF_EXIT_OK, i;
   long worst = 5;
   cli_inputs in;
@@ -201,6 +206,7 @@ static int run_verify(int argc, char **argv)
     }
     case OPT_RESIDUALS: residuals_path = optarg; break;
     case OPT_JSON: json_path = optarg; break;
+    case OPT_HTML: html_path = optarg; break;
     case 'f': force = 1; break;
     case 'h': fputs(verify_help, stdout); goto done;
     default: status = cli_bad_option("verify", opt, argv); goto done;
@@ -223,13 +229,17 @@ static int run_verify(int argc, char **argv)
   if (base_path != NULL)
     cli_inputs_add_path(&in, base_path);
   {
-    const char *outs[2] = { json_path, residuals_path };
-    static const char *const names[2] = { "--json", "--residuals" };
+    const char *outs[3] = { json_path, residuals_path, html_path };
+    static const char *const names[3] = { "--json", "--residuals", "--html" };
     if (residuals_path != NULL && strcmp(residuals_path, "-") == 0) {
       status = cli_usage_error("verify", "--residuals needs a file name");
       goto done;
     }
-    if ((status = cli_outputs_check("verify", outs, names, 2, force, in.paths)) != 0)
+    if (html_path != NULL && strcmp(html_path, "-") == 0) {
+      status = cli_usage_error("verify", "--html needs a file name");
+      goto done;
+    }
+    if ((status = cli_outputs_check("verify", outs, names, 3, force, in.paths)) != 0)
       goto done;
   }
   if (tol_text[3] != NULL && !in.campaign->has_orientation_any) {
@@ -392,11 +402,17 @@ static int run_verify(int argc, char **argv)
     cli_print_worst(txt, summary, in.campaign, in.model, &u);
     fputc('\n', txt);
     print_iso9283(txt, iso, in.model, in.campaign, &u, base_path == NULL);
-    if (json_path != NULL) {
+    if (json_path != NULL || html_path != NULL) {
       json_t *tols = json_object();
       root = json_object();
       json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
       json_object_set_new(root, "command", json_string("verify"));
+      {
+        char created[64];
+        json_object_set_new(root, "created", json_string(cli_created_now(created, sizeof created)));
+      }
+      json_object_set_new(root, "inputs", cli_json_inputs(&in));
+      json_object_set_new(root, "robot", cli_json_robot(in.model, &u));
       json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
       /* base_in_tracker: the older name, kept for existing readers */
       json_object_set_new(root, "base_in_instrument", cli_json_pose(&base, &u));
@@ -459,7 +475,7 @@ static int run_verify(int argc, char **argv)
     }
     {
       cli_residuals rr;
-      cli_put puts[2];
+      cli_put puts[3];
       int w;
       double *weights = NULL;
       memset(&rr, 0, sizeof rr);
@@ -484,7 +500,8 @@ static int run_verify(int argc, char **argv)
       puts[1].path = residuals_path;
       puts[1].put = cli_put_residuals;
       puts[1].ctx = &rr;
-      w = cli_write_outputs(puts, 2, force, in.paths);
+      puts[2] = (cli_put){ html_path, cli_put_html_run, root };
+      w = cli_write_outputs(puts, 3, force, in.paths);
       free(weights);
       if (w != 0)
         status = w;

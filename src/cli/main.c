@@ -13,6 +13,8 @@ extern const cli_command cli_cmd_compensate;
 extern const cli_command cli_cmd_compare;
 /* Writing a model in other forms (cmd_export.c). */
 extern const cli_command cli_cmd_export;
+/* The HTML report of a saved result (cmd_report.c). */
+extern const cli_command cli_cmd_report;
 
 static const cli_command *const commands[] = {
   &cli_cmd_fk,
@@ -24,6 +26,7 @@ static const cli_command *const commands[] = {
   &cli_cmd_compensate,
   &cli_cmd_compare,
   &cli_cmd_export,
+  &cli_cmd_report,
 };
 static const size_t n_commands = sizeof commands / sizeof commands[0];
 

@@ -257,6 +257,11 @@ typedef struct twf_calib_result {
    * number and the observability indices derive from them. */
   size_t n_singular;
   double *singular_values;
+  /* The sigma of the row weights of that Jacobian (m): a singular value
+   * s (1/m) belongs to a direction whose standard deviation, length at
+   * the arm's reach, is sigma_length / (s * singular_value_sigma) m; so
+   * s = 1 / singular_value_sigma is where it equals the noise. */
+  double singular_value_sigma;
   /* The as-built link parameters (twistfit/links.h) in the forms the
    * starting model's lines choose: value[] the as-built model's, reference[]
    * the starting model's, std[] propagated from covariance, why[] including

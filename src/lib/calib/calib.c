@@ -734,6 +734,7 @@ static twf_status conditioning(job *j)
     return nomem(j);
   memcpy(res->singular_values, sv, ns * sizeof *sv);
   res->n_singular = ns;
+  res->singular_value_sigma = j->sigma_len;
   twf_observability_indices(sv, ns, j->n_rows, &res->observability);
   if (ns > 0 && sv[ns - 1] > 0) {
     res->condition_number = sv[0] / sv[ns - 1];

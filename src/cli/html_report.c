@@ -609,9 +609,10 @@ static void section_joints(ctx *c)
   fputs("</div>\n", c->fp);
   if (json_array_size(tests) > 0) {
     fputs("<h3>Do the residuals look like noise?</h3>\n<p>", c->fp);
-    escf(c->fp, "Each family of each joint tested against the noise (F test, significant below p = %.3g and from a "
-                "share of %.0f %% of the residual sum of squares): %.0f significant of %.0f tested.",
+    escf(c->fp, "Each family of each joint tested against the noise (F test, significant below p = %.3g, from a "
+                "share of %.0f %% of the residual sum of squares and from %.2g %s RMS): %.0f significant of %.0f tested.",
          jnum(c->root, "residual_pattern.p_threshold"), 100 * jnum(c->root, "residual_pattern.min_explained"),
+         jnum(c->root, "residual_pattern.min_explained_rms"), c->lu,
          jnum(c->root, "residual_pattern.significant"), jnum(c->root, "residual_pattern.tested"));
     fprintf(c->fp, "</p>\n<table><thead><tr><th>joint</th><th>family</th><th>share of the residuals</th><th>p</th>"
                    "<th>explained rms (%s)</th><th>significant</th></tr></thead><tbody>\n",

@@ -40,8 +40,9 @@ void cli_print_pattern(FILE *fp, const twf_model *m, const twf_pattern_result *p
   fprintf(fp, "  per joint, the part of the residuals that follows its value (slope), its angle's\n"
               "  first two harmonics, or its gravity torque, given every other joint's: F test over\n"
               "  %zu measurements, significant below p = %.2g (alpha %.2g over %zu families) and from\n"
-              "  %.0f %% of the residual sum of squares; residual RMS %.*f %s\n",
-          p->n_used, p->p_threshold, p->alpha, p->n_tested, 100.0 * p->min_explained, u->ldec,
+              "  %.0f %% of the residual sum of squares and %.2g %s RMS; residual RMS %.*f %s\n",
+          p->n_used, p->p_threshold, p->alpha, p->n_tested, 100.0 * p->min_explained,
+          p->min_explained_rms_m / u->length_si, u->length, u->ldec,
           p->n_tests > 0 && isfinite(p->tests[0].residual_rms_m) ? p->tests[0].residual_rms_m / u->length_si : NAN,
           u->length);
   fprintf(fp, "    %-8s", "joint");
@@ -84,6 +85,7 @@ json_t *cli_json_pattern(const twf_model *m, const twf_pattern_result *p, size_t
   json_object_set_new(o, "measurements", json_integer((json_int_t)p->n_used));
   json_object_set_new(o, "alpha", cli_json_number(p->alpha));
   json_object_set_new(o, "min_explained", cli_json_number(p->min_explained));
+  json_object_set_new(o, "min_explained_rms", cli_json_number(p->min_explained_rms_m / u->length_si));
   json_object_set_new(o, "p_threshold", cli_json_number(p->p_threshold));
   json_object_set_new(o, "tested", json_integer((json_int_t)p->n_tested));
   json_object_set_new(o, "significant", json_integer((json_int_t)p->n_significant));

@@ -41,8 +41,11 @@ extern "C" {
  * below alpha, for residuals that are independent Gaussian noise of one
  * standard deviation) and it
  * removes at least min_explained of the residual sum of squares (so that
- * a huge campaign does not flag a pattern far below the noise). Both
- * limits are our own choice (common practice, no source). At most
+ * a huge campaign does not flag a pattern far below the noise) and at
+ * least min_explained_rms_m in RMS length (so that noise-free simulated
+ * data, whose residuals are the solver's last digits, raise no alarm: 0.1
+ * um is below what trackers and CMMs resolve). The limits are our own
+ * choice (common practice, no source). At most
  * TWF_PATTERN_MAX_MEAS measurements enter, evenly spaced in campaign order
  * (the test has power to spare long before). */
 #define TWF_PATTERN_MAX_MEAS 20000
@@ -88,6 +91,7 @@ typedef struct twf_pattern_test {
 typedef struct twf_pattern_options {
   double alpha;            /* family-wise false alarm rate (default 0.01) */
   double min_explained;    /* default 0.05 */
+  double min_explained_rms_m; /* default 1e-7 m */
   /* NULL, or n_poses x n_joints gravity torques about each joint at the
    * campaign's poses, N m (row-major, as campaign->q) */
   const double *torque;
@@ -106,7 +110,7 @@ typedef struct twf_pattern_result {
   double p_threshold;      /* alpha / n_tested */
   size_t n_used;           /* measurements in the regression */
   size_t rank;             /* of the full regression (3 rows per measurement) */
-  double alpha, min_explained;
+  double alpha, min_explained, min_explained_rms_m;
 } twf_pattern_result;
 
 void twf_pattern_result_clear(twf_pattern_result *r);

@@ -40,6 +40,7 @@ twf_pattern_options twf_pattern_default_options(void)
   memset(&o, 0, sizeof o);
   o.alpha = 0.01;
   o.min_explained = 0.05;
+  o.min_explained_rms_m = 1e-7;
   return o;
 }
 
@@ -178,9 +179,11 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "the campaign has %zu joint values per pose, the model %zu joints", c->n_joints,
                          m->n_joints);
-  if (!(o.alpha > 0.0 && o.alpha < 1.0) || !(o.min_explained >= 0.0 && o.min_explained < 1.0))
+  if (!(o.alpha > 0.0 && o.alpha < 1.0) || !(o.min_explained >= 0.0 && o.min_explained < 1.0) ||
+      !(o.min_explained_rms_m >= 0.0 && isfinite(o.min_explained_rms_m)))
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
-                         "residual pattern: alpha must lie in (0, 1) and min_explained in [0, 1)");
+                         "residual pattern: alpha must lie in (0, 1), min_explained in [0, 1) "
+                         "and min_explained_rms_m be finite and >= 0");
   for (i = 0; i < c->n_meas; i++) {
     const twf_measurement *ms = &c->meas[i];
     if (use != NULL && !use[i])
@@ -356,11 +359,13 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
   }
   out->alpha = o.alpha;
   out->min_explained = o.min_explained;
+  out->min_explained_rms_m = o.min_explained_rms_m;
   out->p_threshold = out->n_tested > 0 ? o.alpha / (double)out->n_tested : o.alpha;
   for (i = 0; i < out->n_tests; i++) {
     twf_pattern_test *t = &out->tests[i];
     t->significant = t->skip == TWF_PATTERN_TESTED && t->p_value < out->p_threshold &&
-                     t->explained >= o.min_explained;
+                     t->explained >= o.min_explained &&
+                     t->explained_rms_m >= o.min_explained_rms_m;
     out->n_significant += (size_t)t->significant;
   }
   free(prefix);

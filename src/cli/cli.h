@@ -246,6 +246,10 @@ double cli_clean(double v, double zero);
 void cli_quat_of(const double R[3][3], double q[4]);
 /* {position: [x y z] (length unit), quaternion_wxyz: [...]} */
 json_t *cli_json_pose(const twf_pose *T, const cli_units *u);
+/* The base pose file for campaign c (report.c): [base] for one station,
+ * else a [station NAME] section per station of c, into bases[station]. */
+twf_status cli_read_station_bases(const char *path, const twf_read_options *opt, const twf_campaign *c,
+                                  twf_pose *bases, twf_error *err);
 json_t *cli_json_stats(const twf_stats *s, double unit);
 json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
                           const twf_campaign *c, const cli_units *u);

@@ -166,8 +166,15 @@ void twf_observability_indices(const double *sv, size_t n, size_t m, twf_observa
 
 typedef struct twf_calib_result {
   twf_model *asbuilt;         /* owned: the calibrated model (datum frame, see DEVELOPERS.md) */
-  twf_pose base_in_tracker;   /* fitted base pose in the tracker frame */
-  twf_pose base_before;       /* registered base pose of the starting model */
+  twf_pose base_in_tracker;   /* fitted base pose in the tracker frame (station 0's) */
+  twf_pose base_before;       /* registered base pose of the starting model (station 0's) */
+  /* Instrument stations of the campaign (twf_campaign_station_count, 1
+   * without a station column; names in the campaign): the fitted and the
+   * registered base pose seen from each, [0] equal to base_in_tracker and
+   * base_before. The base group holds 6 parameters per station. */
+  size_t n_stations;
+  twf_pose station_base[TWF_STATIONS_MAX];
+  twf_pose station_base_before[TWF_STATIONS_MAX];
   twf_model *registered;      /* owned: the starting model with registered target offsets */
   size_t n_params;
   twf_param_result *params;

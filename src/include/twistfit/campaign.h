@@ -90,11 +90,43 @@ typedef struct twf_campaign {
   size_t n_meas;
   twf_measurement *meas;
   int has_orientation_any; /* some measurement has has_orientation */
+  /* Instrument stations (the optional "station" column of
+   * twistfit-data(5)): each station is one set-up of the instrument with
+   * its own frame, so each has its own base pose. n_stations 0: no station
+   * column, every pose seen from the one station (station_names and
+   * pose_station NULL); else station_names holds the n_stations names in
+   * the order of first appearance and pose_station[p] the station of pose
+   * p. Read them through twf_campaign_station_count and
+   * twf_campaign_pose_station. */
+  size_t n_stations;
+  char (*station_names)[TWF_NAME_MAX];
+  size_t *pose_station;
   /* The files read, in the order read: the one file, or the joints file
    * and the points file; n_inputs 0 for a campaign not read from files. */
   size_t n_inputs;
   twf_input_digest inputs[2];
 } twf_campaign;
+
+/* Most stations of one campaign: a measuring day moves the instrument a
+ * few times, and the error model holds 6 base parameters per station. */
+#define TWF_STATIONS_MAX 32
+
+/* Stations of c: n_stations, or 1 when c has no station column. */
+size_t twf_campaign_station_count(const twf_campaign *c);
+/* Station index of pose p of c (0 without a station column). */
+size_t twf_campaign_pose_station(const twf_campaign *c, size_t p);
+/* Give c the stations names[0..n) (n from 1 to TWF_STATIONS_MAX, each
+ * name valid for twf_station_name_check and distinct) and each pose its
+ * station station_of_pose[p] < n (copied). Replaces any stations c had.
+ * TWF_ERR_INVALID (names, indices, count), TWF_ERR_NOMEM. */
+twf_status twf_campaign_set_stations(twf_campaign *c, size_t n,
+                                     const char (*names)[TWF_NAME_MAX],
+                                     const size_t *station_of_pose,
+                                     twf_error *err);
+/* 0 when name is a valid station name: 1 to TWF_NAME_MAX - 1 bytes, letters,
+ * digits, '_', '-' and '.', starting with a letter or a digit (it becomes
+ * part of parameter names and of base pose file sections); else -1. */
+int twf_station_name_check(const char *name);
 
 /* How to read a campaign; get the defaults from
  * twf_campaign_default_options() and change fields. */

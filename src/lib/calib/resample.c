@@ -218,6 +218,10 @@ twf_status twf_calibrate_resample(const twf_model *start, const twf_campaign *c,
   if (start == NULL || c == NULL || base == NULL || base->n_meas != c->n_meas || n_refits == 0)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "resampling needs the campaign's calibration and at least one refit");
+  if (twf_campaign_station_count(c) > 1)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+                         "resample a campaign of one station",
+                         "the bootstrap does not yet take a campaign of several instrument stations");
   memset(&b, 0, sizeof b);
   b.start = start;
   b.c = c;

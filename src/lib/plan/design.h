@@ -29,6 +29,12 @@ twf_status twf_design_init(twf_design *d, const twf_model *m, const twf_pose *ba
                            unsigned groups, const unsigned char *targets, int orientation,
                            double sigma_len, double sigma_rot, twf_error *err);
 void twf_design_free(twf_design *d);
+/* Replace d's error model by one of n_stations instrument stations (base
+ * group 6 per station, twf_errmodel_alloc_stations): for the covariance of
+ * a calibration of several stations. d->base stays station 0's, where the
+ * rows of twf_design_rows and twf_design_grad are taken. */
+twf_status twf_design_set_stations(twf_design *d, size_t n_stations, const char (*names)[TWF_NAME_MAX],
+                                   unsigned groups, twf_error *err);
 
 /* The r x p rows one pose gives: derivative of the predictions, columns
  * scaled (D), rows weighted by 1/sigma. */

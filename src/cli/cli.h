@@ -273,6 +273,10 @@ json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const t
                               const twf_outlier *outliers, size_t n_outliers, const cli_units *u);
 /* calibrate's section "Do the residuals look like noise?" and its JSON
  * member (pattern_report.c). */
+/* calibrate's instrument stations (station_report.c): the section and
+ * the JSON member "stations", both nothing for a campaign of one station. */
+void cli_print_stations(FILE *fp, const twf_calib_result *r, const twf_campaign *c, const cli_units *u);
+void cli_json_add_stations(json_t *root, const twf_calib_result *r, const twf_campaign *c, const cli_units *u);
 void cli_print_pattern(FILE *fp, const twf_model *m, const twf_pattern_result *p, size_t screen_refused,
                        const cli_units *u);
 json_t *cli_json_pattern(const twf_model *m, const twf_pattern_result *p, size_t screen_refused,

@@ -348,11 +348,18 @@ static int run_verify(int argc, char **argv)
       fputc('\n', txt);
     }
     {
-      double q[4];
-      cli_quat_of(base->R, q);
-      fprintf(txt, "base pose in the instrument frame (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
-              base_path ? "given" : "registered", u.ldec, base->p[0] / u.length_si, u.ldec,
-              base->p[1] / u.length_si, u.ldec, base->p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
+      size_t sta, n_st = twf_campaign_station_count(in.campaign);
+      for (sta = 0; sta < n_st; sta++) {
+        double q[4];
+        char at[TWF_NAME_MAX + 16] = "";
+        const twf_pose *b = &base_st[sta];
+        if (n_st > 1)
+          snprintf(at, sizeof at, " at station %s", in.campaign->station_names[sta]);
+        cli_quat_of(b->R, q);
+        fprintf(txt, "base pose in the instrument frame%s (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
+                at, base_path ? "given" : "registered", u.ldec, b->p[0] / u.length_si, u.ldec,
+                b->p[1] / u.length_si, u.ldec, b->p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
+      }
     }
     if (base_path == NULL) {
       size_t k, n_ex = rrep.n_excluded;

@@ -164,6 +164,13 @@ typedef struct twf_observability {
  * with m rows. A zero smallest value (or n = 0) gives all four 0. */
 void twf_observability_indices(const double *sv, size_t n, size_t m, twf_observability *out);
 
+/* What one instrument station of a calibration saw (twf_calib_result). */
+typedef struct twf_station_summary {
+  size_t n_fit_poses, n_check_poses; /* poses with rows of that set */
+  twf_stats fit_before, fit_after;     /* position errors of its kept fit rows, m */
+  twf_stats check_before, check_after; /* of its kept check rows, m (count 0: none) */
+} twf_station_summary;
+
 typedef struct twf_calib_result {
   twf_model *asbuilt;         /* owned: the calibrated model (datum frame, see DEVELOPERS.md) */
   twf_pose base_in_tracker;   /* fitted base pose in the tracker frame (station 0's) */
@@ -175,6 +182,9 @@ typedef struct twf_calib_result {
   size_t n_stations;
   twf_pose station_base[TWF_STATIONS_MAX];
   twf_pose station_base_before[TWF_STATIONS_MAX];
+  /* Per station: its poses and the position errors of its rows that the
+   * figures keep (see excluded), before and after calibration. */
+  twf_station_summary station[TWF_STATIONS_MAX];
   twf_model *registered;      /* owned: the starting model with registered target offsets */
   size_t n_params;
   twf_param_result *params;

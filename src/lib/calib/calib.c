@@ -805,6 +805,51 @@ static twf_status stats_where(job *j, const double *resid, int set, unsigned cha
   return st;
 }
 
+/* Per instrument station: its poses of each set and the position errors
+ * of its rows the figures keep, before and after. */
+static twf_status station_summaries(job *j)
+{
+  twf_calib_result *res = j->res;
+  const twf_campaign *c = j->c;
+  size_t n = c->n_meas, i, sta, m;
+  double *len = malloc((n ? n : 1) * sizeof *len);
+  unsigned char *seen = calloc(c->n_poses ? c->n_poses : 1, 1);
+  twf_status st = TWF_OK;
+  int set, pass;
+  if (len == NULL || seen == NULL) {
+    free(len);
+    free(seen);
+    return nomem(j);
+  }
+  for (i = 0; i < n; i++) {
+    size_t pose = c->meas[i].pose, bit = res->meas_set[i] == TWF_SET_FIT ? 1u : 2u;
+    if (!(seen[pose] & bit)) {
+      seen[pose] |= (unsigned char)bit;
+      if (bit == 1u)
+        res->station[twf_campaign_pose_station(c, pose)].n_fit_poses++;
+      else
+        res->station[twf_campaign_pose_station(c, pose)].n_check_poses++;
+    }
+  }
+  for (sta = 0; sta < res->n_stations && st == TWF_OK; sta++)
+    for (set = 0; set < 2 && st == TWF_OK; set++)
+      for (pass = 0; pass < 2 && st == TWF_OK; pass++) {
+        const double *e = pass == 0 ? res->pos_err_before : res->pos_err_after;
+        twf_station_summary *su = &res->station[sta];
+        twf_stats *out = set == TWF_SET_FIT ? (pass == 0 ? &su->fit_before : &su->fit_after)
+                                            : (pass == 0 ? &su->check_before : &su->check_after);
+        m = 0;
+        for (i = 0; i < n; i++)
+          if ((int)res->meas_set[i] == set && res->excluded[i] == 0 &&
+              twf_campaign_pose_station(c, c->meas[i].pose) == sta)
+            len[m++] = twf_v3_norm(e + 3 * i);
+        st = twf_accuracy_stats(len, m, out, j->err);
+      }
+  free(len);
+  free(seen);
+  return st;
+}
+
 /* Which rows the figures leave out: the fit rows the screen dropped, and
  * the check rows whose error after calibration is beyond the threshold
  * against the fit's robust scale (scored at the final model; the weights
@@ -991,6 +1036,8 @@ static twf_status stage_asbuilt(job *j)
         (st = stats_where(j, res->pos_err_after, set, want, &res->excluded_after[set])) != TWF_OK)
       return st;
   }
+  if ((st = station_summaries(j)) != TWF_OK)
+    return st;
   if ((st = stats_where(j, res->pos_err_before, TWF_SET_CHECK, 0xff, &res->check_all_before)) != TWF_OK ||
       (st = stats_where(j, res->pos_err_after, TWF_SET_CHECK, 0xff, &res->check_all_after)) != TWF_OK)
     return st;

@@ -389,6 +389,67 @@ START_TEST(test_station_column)
 }
 END_TEST
 
+/* plan with two instrument positions on opposite sides: every chosen pose
+ * is seen (range and acceptance cone, recomputed here from the forward
+ * kinematics) by the station it is assigned to, and by no station listed
+ * before it; poses come grouped by station; both stations get poses, and
+ * a candidate neither sees is refused. */
+START_TEST(test_plan_two_instruments)
+{
+  twf_model *m = test_arm_model(ARM_TF6S);
+  twf_plan_options o = twf_plan_default_options();
+  twf_plan_result *r = NULL;
+  twf_error err;
+  const double pos[6] = { 2.5, 0.3, 0.8, -2.5, -0.3, 0.8 };
+  const double acc = 60.0 * 3.14159265358979323846 / 180.0;
+  size_t i, k, count[2] = { 0, 0 };
+  o.count = 24;
+  o.n_candidates = 3000;
+  o.excursions = 10;
+  o.assess.workspace.n_configs = 200;
+  o.n_instruments = 2;
+  o.instruments = pos;
+  o.range_min = 1.0;
+  o.range_max = 3.4;
+  o.acceptance_rad = acc;
+  ck_assert_msg(twf_plan(m, &o, &r, NULL, &err) == TWF_OK, "%s", err.message);
+  ck_assert_ptr_nonnull(r->station);
+  for (i = 0; i < r->n; i++) {
+    const double *q = r->q + i * 6;
+    twf_pose F;
+    size_t s, sta = r->station[i];
+    ck_assert_uint_lt(sta, 2);
+    if (i > 0)
+      ck_assert_uint_ge(sta, r->station[i - 1]);
+    count[sta]++;
+    ck_assert_int_eq(twf_plan_pose_check(m, &o, q), 0);
+    ck_assert_int_eq(twf_plan_pose_station(m, &o, q), (long)sta);
+    twf_model_fk(m, q, NULL, &F);
+    for (s = 0; s <= sta; s++) {
+      int sees = 1;
+      for (k = 0; k < m->n_targets; k++) {
+        double y[3], d[3], dist, zf[3];
+        int a;
+        twf_pose_apply(&F, m->targets[k].offset, y);
+        for (a = 0; a < 3; a++)
+          d[a] = pos[3 * s + (size_t)a] - y[a];
+        dist = sqrt(d[0] * d[0] + d[1] * d[1] + d[2] * d[2]);
+        for (a = 0; a < 3; a++)
+          zf[a] = F.R[a][2];
+        if (dist < o.range_min || dist > o.range_max ||
+            (zf[0] * d[0] + zf[1] * d[1] + zf[2] * d[2]) / dist < cos(acc) - 1e-12)
+          sees = 0;
+      }
+      ck_assert_int_eq(sees, s == sta);
+    }
+  }
+  ck_assert_msg(count[0] > 0 && count[1] > 0, "stations got %zu and %zu poses", count[0], count[1]);
+  ck_assert(r->n_rejected[2] + r->n_rejected[3] > 0);
+  twf_plan_result_free(r);
+  twf_model_free(m);
+}
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("station");
@@ -400,6 +461,7 @@ int main(void)
   tcase_add_test(tc, test_station_of_one_pose);
   tcase_add_test(tc, test_base_file_round_trip);
   tcase_add_test(tc, test_station_column);
+  tcase_add_test(tc, test_plan_two_instruments);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

@@ -374,7 +374,36 @@ static int run_simulate(int argc, char **argv)
     so.n_stations = n_stations;
     so.station_base = station_base;
     so.station_names = (const char (*)[TWF_NAME_MAX])station_names;
-    if (assign_block) {
+    if (joints != NULL && joints->n_stations > 0) {
+      /* the joints file names each pose's station (plan writes it): by
+       * name into the stations file */
+      size_t k, l;
+      if (have_assign) {
+        status = cli_usage_error("simulate", "the joints file has a station column: --assign does not apply");
+        goto done;
+      }
+      pose_station = malloc((so.n_poses ? so.n_poses : 1) * sizeof *pose_station);
+      if (pose_station == NULL) {
+        status = TWF_EXIT_INTERNAL;
+        goto done;
+      }
+      for (k = 0; k < so.n_poses; k++) {
+        const char *nm = joints->station_names[twf_campaign_pose_station(joints, k)];
+        for (l = 0; l < n_stations; l++)
+          if (strcmp(station_names[l], nm) == 0)
+            break;
+        if (l == n_stations) {
+          twf_error_set(&err, TWF_ERR_MISSING, stations_path, 0, 0,
+                        "give a section for every station of the joints file",
+                        "no section [station %s] for station '%s' of pose '%s' in %s", nm, nm,
+                        joints->pose_ids[k], joints_path);
+          status = cli_report_error(&err);
+          goto done;
+        }
+        pose_station[k] = l;
+      }
+      so.pose_station = pose_station;
+    } else if (assign_block) {
       /* consecutive blocks of (nearly) equal size, in station order */
       pose_station = malloc((so.n_poses ? so.n_poses : 1) * sizeof *pose_station);
       if (pose_station == NULL) {

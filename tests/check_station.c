@@ -450,6 +450,40 @@ START_TEST(test_plan_two_instruments)
 }
 END_TEST
 
+/* The bootstrap of a two-station calibration: every refit keeps both
+ * stations (the draw is stratified by station), so none is refused, and
+ * each station's base parameters get a spread that agrees with the
+ * predicted standard deviation within the factor 2 of the warning (our
+ * bound, as the warning's). */
+START_TEST(test_resample_two_stations)
+{
+  const double sigma = 2e-5;
+  twf_calib_options co = twf_calib_default_options();
+  twf_calib_result *r = NULL;
+  twf_resample_result *rs = NULL;
+  twf_error err;
+  pair s;
+  size_t k, n_base = 0;
+  make_pair(&s, ARM_TF6S, 60, sigma, 46);
+  co.sigma_length = sigma;
+  co.threads = 2;
+  ck_assert_int_eq(twf_calibrate(s.nominal, s.two, &co, &r, NULL, &err), TWF_OK);
+  ck_assert_msg(twf_calibrate_resample(s.nominal, s.two, &co, r, 24, 5, &rs, NULL, &err) == TWF_OK, "%s",
+                err.message);
+  ck_assert_uint_eq(rs->n_ok, 24);
+  for (k = 0; k < r->n_params; k++)
+    if (r->params[k].param.group == TWF_GROUP_BASE && r->params[k].status == TWF_PARAM_KEPT) {
+      ck_assert_msg(rs->params[k].ratio > 0.5 && rs->params[k].ratio < 2.0, "%s: ratio %.3g",
+                    r->params[k].param.name, rs->params[k].ratio);
+      n_base++;
+    }
+  ck_assert_uint_ge(n_base, 7);
+  twf_resample_result_free(rs);
+  twf_calib_result_free(r);
+  pair_free(&s);
+}
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("station");
@@ -462,6 +496,7 @@ int main(void)
   tcase_add_test(tc, test_base_file_round_trip);
   tcase_add_test(tc, test_station_column);
   tcase_add_test(tc, test_plan_two_instruments);
+  tcase_add_test(tc, test_resample_two_stations);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

@@ -338,7 +338,9 @@ void twf_resample_result_free(twf_resample_result *r);
  * with opt (held-out fraction 0: the sets are base's). Each parameter's
  * spread over the refits stands beside its predicted std, with a warning
  * where they disagree by more than a factor 2; the check-set figures get
- * their spread too. The refits run on opt->threads threads (0: one per
+ * their spread too. With several instrument stations the draw is
+ * stratified: each station's fit poses are drawn from that station's, so
+ * every station keeps its pose count. The refits run on opt->threads threads (0: one per
  * core), one refit per thread; the result is the same bits for every
  * thread count. */
 twf_status twf_calibrate_resample(const twf_model *start, const twf_campaign *c,

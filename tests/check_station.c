@@ -157,6 +157,14 @@ static void check_same_arm(test_arm arm, size_t n_poses)
     ck_assert_msg(d12 < 0.75 * u2 && d12 < 2.5 * sqrt(u2 * u2 - u1 * u1) && d1t < 2 * u1 && d2t < 2 * u2,
                   "%s: one vs two stations %.3g m, against the truth %.3g and %.3g m (predicted %.3g "
                   "and %.3g m)", s.nominal->name, d12, d1t, d2t, u1, u2);
+    /* at the check poses, each taken at its own station: the predicted RMS
+     * of the measured check errors (model uncertainty and noise) against
+     * the measured one, within the 30 % the simulation test of predicted
+     * accuracy allows */
+    {
+      double pc = pr2->check_rms_with_noise, mc = r2->accuracy_after->position[TWF_SET_CHECK].rms;
+      ck_assert_msg(fabs(pc - mc) < 0.3 * mc, "check set: predicted %.4g m, measured %.4g m", pc, mc);
+    }
     twf_calib_prediction_free(pr1);
     twf_calib_prediction_free(pr2);
   }

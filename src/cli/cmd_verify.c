@@ -409,6 +409,16 @@ static int run_verify(int argc, char **argv)
       json_object_set_new(root, "base_in_instrument", cli_json_pose(base, &u));
       json_object_set_new(root, "base_in_tracker", cli_json_pose(base, &u));
       json_object_set_new(root, "base_source", json_string(base_path ? "given" : "registered"));
+      if (twf_campaign_station_count(in.campaign) > 1) {
+        /* several instrument stations: the base pose at each (the members
+         * above are the first station's) */
+        json_t *arr = json_array();
+        size_t sta;
+        for (sta = 0; sta < twf_campaign_station_count(in.campaign); sta++)
+          json_array_append_new(arr, json_pack("{s:s, s:o}", "name", in.campaign->station_names[sta],
+                                               "base_in_instrument", cli_json_pose(&base_st[sta], &u)));
+        json_object_set_new(root, "stations", arr);
+      }
       json_object_set_new(root, "accuracy", cli_json_accuracy(summary, in.model, in.campaign, &u));
       json_object_set_new(root, "iso9283", json_iso9283(iso, in.model, in.campaign, &u));
       {

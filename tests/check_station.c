@@ -391,6 +391,19 @@ START_TEST(test_station_column)
       ck_assert_int_eq(err.column, 12);
     }
   }
+  /* the two-file form: the station in the joints file, a pose without
+   * points left out with its station */
+  twf_test_write_file(twf_test_tmppath("j.csv"), "pose,j1,j2,j3,j4,j5,j6,station\n"
+                                                 "a,1,2,3,4,5,6,east\nb,1,2,3,4,5,7,west\n"
+                                                 "c,1,2,3,4,5,8,south\n");
+  twf_test_write_file(twf_test_tmppath("p.csv"), "pose,target,x,y,z\na,T1,1,2,3\nc,T1,1,2,3\n");
+  c = twf_campaign_read_pair(twf_test_tmppath("j.csv"), twf_test_tmppath("p.csv"), m, NULL, NULL, &err);
+  ck_assert_msg(c != NULL, "%s", err.message);
+  ck_assert_uint_eq(c->n_poses, 2);
+  ck_assert_uint_eq(c->n_stations, 3);
+  ck_assert_str_eq(c->pose_ids[1], "c");
+  ck_assert_str_eq(c->station_names[twf_campaign_pose_station(c, 1)], "south");
+  twf_campaign_free(c);
   pair_free(&s);
   twf_model_free(m);
   twf_test_tmpdir_remove();

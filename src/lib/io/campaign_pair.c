@@ -132,6 +132,8 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
               memcpy(r.c->q + kept * r.c->n_joints, r.c->q + k * r.c->n_joints,
                      r.c->n_joints * sizeof *r.c->q);
               r.c->pose_lines[kept] = r.c->pose_lines[k];
+              if (r.c->pose_station != NULL)
+                r.c->pose_station[kept] = r.c->pose_station[k];
             }
             kept++;
           }

@@ -158,7 +158,8 @@ twf_campaign *twf_campaign_alloc(size_t n_joints, size_t n_poses,
 void twf_campaign_free(twf_campaign *c);
 
 /* Read the one-file form: one row per measurement with pose id, target,
- * one column per joint of m, x y z, optional qw qx qy qz, sigma, set.
+ * one column per joint of m, x y z, optional qw qx qy qz, sigma, set and
+ * station (per pose: n_stations, station_names, pose_station).
  * m (borrowed for the call) gives the joint names, types and limits and
  * the target names. opt may be NULL for the defaults; w may be NULL.
  * Returns the campaign (caller frees) or NULL with err filled: file, line,
@@ -174,7 +175,7 @@ twf_campaign *twf_campaign_read(const char *path, const twf_model *m,
                                 twf_warnings *w, twf_error *err);
 
 /* Read the two-file form: joints_path holds pose id, one column per joint
- * and optionally set (per pose); points_path holds pose id, target, x y z,
+ * and optionally set and station (per pose); points_path holds pose id, target, x y z,
  * optional quaternion, sigma and set (per measurement, it takes precedence
  * over the pose's). Joined on pose id: points whose pose the joints file
  * lacks, and poses without points, are errors (TWF_ERR_MISSING) that list

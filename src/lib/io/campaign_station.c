@@ -14,11 +14,10 @@ twf_status twf_creader_field_station(creader *r, const twf_csv_row *row,
   char name[TWF_NAME_MAX];
   size_t k;
   twf_status st;
-  if (col == 0) {
-    /* A second file (or a pose of the joints file) without the column
-     * after stations were named cannot happen: one file names them. */
+  /* no column: one station (only one file of a campaign may carry it:
+   * the one-file form or the joints file) */
+  if (col == 0)
     return TWF_OK;
-  }
   if ((st = twf_creader_field_id(r, row, col, name, "station name")) != TWF_OK)
     return st;
   if (twf_station_name_check(name) != 0)

@@ -61,7 +61,7 @@ START_TEST(test_passes_same_bits_for_any_thread_count)
   for (t = 0; t < 3; t++) {
     twf_lsq_problem pr;
     ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
-    pr.base = B;
+    pr.base[0] = B;
     pr.n_threads = t + 1;
     p = pr.p;
     cols = malloc(p * sizeof *cols);
@@ -114,7 +114,7 @@ START_TEST(test_normal_matrix_bits_of_the_plain_loop)
   for (i = 0; i < c->n_meas; i++)
     use[i] = c->meas[i].set == TWF_SET_FIT;
   ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
-  pr.base = B;
+  pr.base[0] = B;
   pr.n_threads = 1;
   p = pr.p;
   A = malloc(p * p * sizeof *A);
@@ -286,7 +286,7 @@ static void givens_factor(twf_lsq_problem *pr, double *R)
     double y[3], sw = sqrt(pr->weight[i]) * pr->inv_sigma[i];
     if (!twf_lsq_active(pr, i))
       continue;
-    twf_errmodel_eval_pose(pr->em, pr->m, &pr->base, c->q + ms->pose * c->n_joints, NULL);
+    twf_errmodel_eval_pose(pr->em, pr->m, &pr->base[0], c->q + ms->pose * c->n_joints, NULL);
     twf_errmodel_point(pr->em, pr->m, ms->target, y, rows);
     for (k = 0; k < 3 * p; k++)
       rows[k] *= sw;
@@ -319,7 +319,7 @@ START_TEST(test_blocked_factor_keeps_what_givens_kept)
   for (i = 0; i < c->n_meas; i++)
     use[i] = c->meas[i].set == TWF_SET_FIT;
   ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
-  pr.base = B;
+  pr.base[0] = B;
   p = pr.p;
   Rb = malloc(p * p * sizeof *Rb);
   Rg = malloc(p * p * sizeof *Rg);

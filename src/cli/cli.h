@@ -275,6 +275,10 @@ double cli_clean(double v, double zero);
 void cli_quat_of(const double R[3][3], double q[4]);
 /* {position: [x y z] (length unit), quaternion_wxyz: [...]} */
 json_t *cli_json_pose(const twf_pose *T, const cli_units *u);
+/* The base pose file for campaign c (report.c): [base] for one station,
+ * else a [station NAME] section per station of c, into bases[station]. */
+twf_status cli_read_station_bases(const char *path, const twf_read_options *opt, const twf_campaign *c,
+                                  twf_pose *bases, twf_error *err);
 json_t *cli_json_stats(const twf_stats *s, double unit);
 json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
                           const twf_campaign *c, const cli_units *u);
@@ -298,6 +302,10 @@ json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const t
                               const twf_outlier *outliers, size_t n_outliers, const cli_units *u);
 /* calibrate's section "Do the residuals look like noise?" and its JSON
  * member (pattern_report.c). */
+/* calibrate's instrument stations (station_report.c): the section and
+ * the JSON member "stations", both nothing for a campaign of one station. */
+void cli_print_stations(FILE *fp, const twf_calib_result *r, const twf_campaign *c, const cli_units *u);
+void cli_json_add_stations(json_t *root, const twf_calib_result *r, const twf_campaign *c, const cli_units *u);
 void cli_print_pattern(FILE *fp, const twf_model *m, const twf_pattern_result *p, size_t screen_refused,
                        const cli_units *u);
 json_t *cli_json_pattern(const twf_model *m, const twf_pattern_result *p, size_t screen_refused,

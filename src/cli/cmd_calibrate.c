@@ -397,6 +397,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
               len_shown(a->max, u));
     }
   }
+  cli_print_stations(fp, r, view, u);
   cli_print_pattern(fp, m, &r->pattern, r->screen_refused, u);
 
   fprintf(fp, "\nSolver\n");
@@ -748,13 +749,22 @@ static int put_model(FILE *fp, void *ctx, twf_error *err)
   return twf_model_write((const twf_model *)ctx, fp, err) == TWF_OK ? 0 : -1;
 }
 
-typedef struct base_file_ctx { const twf_pose *B; twf_length_unit lu; } base_file_ctx;
+typedef struct base_file_ctx {
+  const twf_pose *B;  /* one per station */
+  const char (*names)[TWF_NAME_MAX];
+  size_t n;
+  twf_length_unit lu;
+} base_file_ctx;
 
 static int put_base(FILE *fp, void *ctx, twf_error *err)
 {
   const base_file_ctx *b = ctx;
   fprintf(fp, "; run_id: %s\n", cli_run_id());
-  return twf_base_write(b->B, b->lu, "base pose fitted by twistfit calibrate", fp, err) == TWF_OK ? 0 : -1;
+  /* one station: the [base] file; several: a [station NAME] section each */
+  return twf_base_write_stations(b->B, b->names, b->n, b->lu, "base pose fitted by twistfit calibrate", fp, err) ==
+                 TWF_OK
+             ? 0
+             : -1;
 }
 
 /* Model files keep every line under TWF_MODEL_LINE_MAX: shorten long
@@ -1113,6 +1123,7 @@ static int run_calibrate(int argc, char **argv)
     if (root != NULL && resampled != NULL)
       json_object_set_new(root, "resample", resample_json(resampled, res, &u, &resample_w));
     cli_json_add_predicted(root, res, in.model, in.campaign, &co, &u);
+    cli_json_add_stations(root, res, in.campaign, &u);
     memset(&rr, 0, sizeof rr);
     rr.m = in.model;
     rr.c = in.campaign;
@@ -1125,7 +1136,9 @@ static int run_calibrate(int argc, char **argv)
     rr.labels[1] = "after_";
     rr.weights = weights;
     rr.u = &u;
-    bo.B = &res->base_in_tracker;
+    bo.B = res->n_stations > 1 ? res->station_base : &res->base_in_tracker;
+    bo.names = (const char (*)[TWF_NAME_MAX])in.campaign->station_names;
+    bo.n = res->n_stations > 1 ? res->n_stations : 1;
     bo.lu = in.model->length_unit;
     puts[0] = (cli_put){ model_out, put_model, res->asbuilt };
     puts[1] = (cli_put){ base_out, put_base, &bo };

@@ -35,7 +35,9 @@ static const char plan_help[] =
   "      --pool FILE         ... or the poses of a joints file\n"
   "      --limit-margin F    fraction of each joint's travel kept clear when drawing\n"
   "                          (default 0.05)\n"
-  "      --instrument X,Y,Z  the instrument's position in the robot base frame\n"
+  "      --instrument [NAME=]X,Y,Z  the instrument's position in the robot base frame;\n"
+  "                          repeat for several stations: each pose is measured from\n"
+  "                          the first that sees it (the output gets a station column)\n"
   "      --range-min X       the nearest a target may be to it (default 0)\n"
   "      --range-max X       the farthest (default: no limit)\n"
   "      --acceptance A      half-angle of the targets' acceptance cone (default: none)\n"
@@ -90,7 +92,7 @@ static int parse_box(const twf_model *m, const cli_units *u, const char *text, d
 }
 
 static void print_plan(FILE *fp, const twf_plan_result *r, const twf_plan_options *o, const twf_model *m,
-                       const cli_units *u)
+                       const cli_units *u, const char (*names)[TWF_NAME_MAX])
 {
   fprintf(fp, "plan: %zu poses chosen from %zu candidates, %zu satisfying the constraints", r->n, r->n_candidates,
           r->n_feasible);
@@ -109,8 +111,20 @@ static void print_plan(FILE *fp, const twf_plan_result *r, const twf_plan_option
   else
     fprintf(fp, "criterion %s: %.6g after the greedy build-up, %.6g after %zu accepted excursions\n",
             o->criterion == TWF_PLAN_D ? "D (mean log eigenvalue)" : "O4", r->score_greedy, r->score, r->exchanges);
-  fprintf(fp, "travel in joint space: %.2f rad ordered (%.2f rad in the order chosen)\n\n", r->travel,
+  fprintf(fp, "travel in joint space: %.2f rad ordered (%.2f rad in the order chosen)\n", r->travel,
           r->travel_before);
+  if (r->station != NULL) {
+    size_t s, i, n;
+    fprintf(fp, "instrument stations (each pose from the first that sees it; poses grouped by station):");
+    for (s = 0; s < o->n_instruments; s++) {
+      for (n = 0, i = 0; i < r->n; i++)
+        n += r->station[i] == s;
+      fprintf(fp, "%s %s %zu", s ? "," : "", names[s], n);
+    }
+    fprintf(fp, "\n  the criterion counts one base pose: the 6 base parameters of each further station\n"
+                "  are not in it\n");
+  }
+  fputc('\n', fp);
   (void)m;
 }
 
@@ -143,6 +157,10 @@ static int run_plan(int argc, char **argv)
   twf_plan_options po = twf_plan_default_options();
   twf_campaign_options copt = twf_campaign_default_options();
   const char *output = NULL, *pool_path = NULL, *instrument = NULL, *rmin = NULL, *rmax = NULL;
+  const char *instrument_text[TWF_STATIONS_MAX];
+  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
+  double instruments[3 * TWF_STATIONS_MAX];
+  size_t n_instruments = 0;
   const char *accept = NULL, *axis = NULL, *boxes_text[MAX_BOXES];
   const char *inputs[3] = { NULL, NULL, NULL }, *outputs[2];
   size_t n_boxes = 0, b;
@@ -192,7 +210,13 @@ static int run_plan(int argc, char **argv)
       if ((status = pcli_parse_fraction("plan", "--limit-margin", optarg, 0.0, 0.45, &po.limit_margin)) != 0)
         goto done;
       break;
-    case OPT_INSTRUMENT: instrument = optarg; break;
+    case OPT_INSTRUMENT:
+      if (n_instruments == TWF_STATIONS_MAX) {
+        status = cli_usage_error("plan", "at most %d instrument stations", TWF_STATIONS_MAX);
+        goto done;
+      }
+      instrument = instrument_text[n_instruments++] = optarg;
+      break;
     case OPT_RMIN: rmin = optarg; break;
     case OPT_RMAX: rmax = optarg; break;
     case OPT_ACCEPT: accept = optarg; break;
@@ -266,10 +290,41 @@ static int run_plan(int argc, char **argv)
     goto done;
   po.assess = me.opt;
   po.seed = me.opt.calib.seed;
-  if (instrument != NULL) {
+  if (n_instruments == 1 && strchr(instrument, '=') == NULL) {
     po.has_instrument = 1;
     if ((status = pcli_parse_vector("plan", "--instrument", instrument, u.length_si, po.instrument)) != 0)
       goto done;
+  } else if (n_instruments > 0) {
+    /* several stations, named NAME= or S1, S2, ... in the order given */
+    size_t k, l;
+    for (k = 0; k < n_instruments; k++) {
+      const char *eq = strchr(instrument_text[k], '='), *vec = eq ? eq + 1 : instrument_text[k];
+      if (eq != NULL) {
+        size_t len = (size_t)(eq - instrument_text[k]);
+        if (len >= TWF_NAME_MAX) {
+          status = cli_usage_error("plan", "--instrument: the station name is too long");
+          goto done;
+        }
+        memcpy(station_names[k], instrument_text[k], len);
+        station_names[k][len] = '\0';
+      } else {
+        snprintf(station_names[k], TWF_NAME_MAX, "S%zu", k + 1);
+      }
+      if (twf_station_name_check(station_names[k]) != 0) {
+        status = cli_usage_error("plan", "--instrument: station name '%s' is not valid (letters, digits, "
+                                 "'_', '-' and '.')", station_names[k]);
+        goto done;
+      }
+      for (l = 0; l < k; l++)
+        if (strcmp(station_names[l], station_names[k]) == 0) {
+          status = cli_usage_error("plan", "--instrument: station '%s' is given twice", station_names[k]);
+          goto done;
+        }
+      if ((status = pcli_parse_vector("plan", "--instrument", vec, u.length_si, instruments + 3 * k)) != 0)
+        goto done;
+    }
+    po.n_instruments = n_instruments;
+    po.instruments = instruments;
   }
   if (rmin != NULL && (status = cli_parse_bounded("plan", "--range-min", rmin, u.length_si, u.length, 0.0, 1e3,
                                                   &po.range_min)) != 0)
@@ -324,7 +379,7 @@ static int run_plan(int argc, char **argv)
     snprintf(comment, sizeof comment, "Poses planned by twistfit plan (criterion %s, seed %llu) for %s",
              twf_plan_criterion_name(po.criterion), po.seed, model->name);
     fprintf(text, "twistfit %s plan: %s, %zu joints\n", twf_version(), model->name, model->n_joints);
-    print_plan(text, res, &po, model, &u);
+    print_plan(text, res, &po, model, &u, (const char (*)[TWF_NAME_MAX])station_names);
     pcli_print_assessment(text, res->assessment, model, &po.assess, &u);
     cli_print_warnings(&warnings);
     pj.m = model;
@@ -336,6 +391,8 @@ static int run_plan(int argc, char **argv)
     pj.length_unit = copt.length_from_caller ? copt.length_unit : model->length_unit;
     pj.angle_unit = copt.angle_from_caller ? copt.angle_unit : model->angle_unit;
     pj.comment = comment;
+    pj.station = res->station;
+    pj.station_names = (const char (*)[TWF_NAME_MAX])station_names;
     if (me.json != NULL) {
       json_t *pl = json_object();
       root = json_object();

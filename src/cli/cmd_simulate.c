@@ -37,6 +37,10 @@ static const char simulate_help[] =
   "      --target-sd X       target offsets\n"
   "                          (each a standard deviation; default 0)\n"
   "      --base FILE         the base pose file (default: the identity)\n"
+  "      --stations FILE     ... or several instrument stations: a base pose file of\n"
+  "                          [station NAME] sections (the campaign gets a station column)\n"
+  "      --assign HOW        which station sees each pose: turn (pose i from station\n"
+  "                          i mod n, the default) or block (consecutive blocks)\n"
   "      --sigma X           measurement noise per coordinate (default 0)\n"
   "      --orientation       6-D rows: the flange orientation is measured too\n"
   "      --sigma-angle X     its noise per axis (default 0)\n"
@@ -54,7 +58,8 @@ static const char simulate_help[] =
 enum {
   OPT_TRUE_OUT = PCLI_OPT_FIRST_FREE, OPT_BASE_OUT, OPT_JOINTS, OPT_POSES, OPT_MARGIN, OPT_TRUE, OPT_ANGLE_SD,
   OPT_LENGTH_SD, OPT_OFFSET_SD, OPT_SCALE_SD, OPT_TARGET_SD, OPT_BASE, OPT_SIGMA, OPT_ORIENTATION,
-  OPT_SIGMA_ANGLE, OPT_TARGETS, OPT_OUTLIERS, OPT_OUTLIER_SIZE, OPT_CHECK, OPT_SEED, OPT_LUNIT, OPT_AUNIT
+  OPT_SIGMA_ANGLE, OPT_TARGETS, OPT_OUTLIERS, OPT_OUTLIER_SIZE, OPT_CHECK, OPT_SEED, OPT_LUNIT, OPT_AUNIT,
+  OPT_STATIONS, OPT_ASSIGN
 };
 
 typedef struct sim_text {
@@ -84,13 +89,19 @@ static int put_true(FILE *fp, void *ctx, twf_error *err)
   return twf_model_write((const twf_model *)ctx, fp, err) == TWF_OK ? 0 : -1;
 }
 
-typedef struct base_ctx { const twf_pose *B; twf_length_unit lu; } base_ctx;
+typedef struct base_ctx {
+  const twf_pose *B;                 /* one per station */
+  const char (*names)[TWF_NAME_MAX]; /* NULL: one station, the [base] file */
+  size_t n;
+  twf_length_unit lu;
+} base_ctx;
 
 static int put_base(FILE *fp, void *ctx, twf_error *err)
 {
   const base_ctx *b = ctx;
   fprintf(fp, "; run_id: %s\n", cli_run_id());
-  return twf_base_write(b->B, b->lu, "true base pose of a campaign simulated by twistfit simulate", fp, err) ==
+  return twf_base_write_stations(b->B, b->names, b->n, b->lu,
+                                 "true base pose of a campaign simulated by twistfit simulate", fp, err) ==
                  TWF_OK
              ? 0
              : -1;
@@ -141,6 +152,8 @@ static int run_simulate(int argc, char **argv)
     { "scale-sd", required_argument, NULL, OPT_SCALE_SD },
     { "target-sd", required_argument, NULL, OPT_TARGET_SD },
     { "base", required_argument, NULL, OPT_BASE },
+    { "stations", required_argument, NULL, OPT_STATIONS },
+    { "assign", required_argument, NULL, OPT_ASSIGN },
     { "sigma", required_argument, NULL, OPT_SIGMA },
     { "orientation", no_argument, NULL, OPT_ORIENTATION },
     { "sigma-angle", required_argument, NULL, OPT_SIGMA_ANGLE },
@@ -173,7 +186,11 @@ static int run_simulate(int argc, char **argv)
   twf_read_options ropt = twf_read_default_options();
   cli_urdf_links urdf_links = { { NULL }, 0 };
   twf_error err;
-  twf_pose B;
+  twf_pose B, station_base[TWF_STATIONS_MAX];
+  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
+  size_t n_stations = 0, *pose_station = NULL;
+  const char *stations_path = NULL;
+  int assign_block = 0, have_assign = 0;
   cli_units u;
   size_t n = 0;
 
@@ -208,6 +225,16 @@ static int run_simulate(int argc, char **argv)
       break;
     case OPT_TARGET_SD: tx.target_sd = optarg; drawn = 1; break;
     case OPT_BASE: base_path = optarg; break;
+    case OPT_STATIONS: stations_path = optarg; break;
+    case OPT_ASSIGN:
+      if (strcmp(optarg, "turn") == 0)
+        assign_block = 0;
+      else if (strcmp(optarg, "block") == 0)
+        assign_block = 1;
+      else
+        return cli_usage_error("simulate", "--assign takes turn or block");
+      have_assign = 1;
+      break;
     case OPT_SIGMA: tx.sigma = optarg; break;
     case OPT_ORIENTATION: so.orientation = 1; break;
     case OPT_SIGMA_ANGLE: tx.sigma_angle = optarg; break;
@@ -257,13 +284,17 @@ static int run_simulate(int argc, char **argv)
     return cli_usage_error("simulate", "give the true arm (--true) or error sizes (--angle-sd ...), not both");
   if (tx.sigma_angle != NULL && !so.orientation)
     return cli_usage_error("simulate", "--sigma-angle needs --orientation");
+  if (stations_path != NULL && base_path != NULL)
+    return cli_usage_error("simulate", "give --base or --stations, not both");
+  if (have_assign && stations_path == NULL)
+    return cli_usage_error("simulate", "--assign needs --stations");
   if (outputs[0] != NULL && strcmp(outputs[0], "-") == 0 && (outputs[1] != NULL || outputs[2] != NULL) &&
       ((outputs[1] && strcmp(outputs[1], "-") == 0) || (outputs[2] && strcmp(outputs[2], "-") == 0)))
     return cli_usage_error("simulate", "only one output can go to standard output");
   inputs[0] = argv[optind];
   inputs[1] = joints_path;
   inputs[2] = true_path;
-  inputs[3] = base_path;
+  inputs[3] = base_path != NULL ? base_path : stations_path;
   if ((status = cli_outputs_check("simulate", outputs, names, 3, force, inputs)) != 0)
     return status;
 
@@ -323,6 +354,22 @@ static int run_simulate(int argc, char **argv)
   } else {
     twf_pose_identity(&B);
   }
+  if (stations_path != NULL) {
+    if (twf_base_read_stations(stations_path, NULL, station_base, station_names, TWF_STATIONS_MAX, &n_stations,
+                               NULL, &err) != TWF_OK) {
+      status = cli_report_error(&err);
+      goto done;
+    }
+    if (station_names[0][0] == '\0') {
+      twf_error_set(&err, TWF_ERR_MISSING, stations_path, 0, 0,
+                    "give one [station NAME] section per station, or use --base for one",
+                    "the file holds a [base] section, not instrument stations");
+      status = cli_report_error(&err);
+      goto done;
+    }
+    if (true_path != NULL)
+      cli_check_same_run("simulate", true_path, "the true arm", stations_path, "the stations file", 0, 0);
+  }
   if (joints_path != NULL) {
     joints = twf_campaign_read_joints(joints_path, model, NULL, &warnings, &err);
     if (joints == NULL) {
@@ -333,7 +380,52 @@ static int run_simulate(int argc, char **argv)
     so.q = joints->q;
   }
   cli_print_warnings(&warnings);
-  c = twf_simulate_campaign(truth, &B, &so, &err);
+  if (n_stations > 0) {
+    so.n_stations = n_stations;
+    so.station_base = station_base;
+    so.station_names = (const char (*)[TWF_NAME_MAX])station_names;
+    if (joints != NULL && joints->n_stations > 0) {
+      /* the joints file names each pose's station (plan writes it): by
+       * name into the stations file */
+      size_t k, l;
+      if (have_assign) {
+        status = cli_usage_error("simulate", "the joints file has a station column: --assign does not apply");
+        goto done;
+      }
+      pose_station = malloc((so.n_poses ? so.n_poses : 1) * sizeof *pose_station);
+      if (pose_station == NULL) {
+        status = TWF_EXIT_INTERNAL;
+        goto done;
+      }
+      for (k = 0; k < so.n_poses; k++) {
+        const char *nm = joints->station_names[twf_campaign_pose_station(joints, k)];
+        for (l = 0; l < n_stations; l++)
+          if (strcmp(station_names[l], nm) == 0)
+            break;
+        if (l == n_stations) {
+          twf_error_set(&err, TWF_ERR_MISSING, stations_path, 0, 0,
+                        "give a section for every station of the joints file",
+                        "no section [station %s] for station '%s' of pose '%s' in %s", nm, nm,
+                        joints->pose_ids[k], joints_path);
+          status = cli_report_error(&err);
+          goto done;
+        }
+        pose_station[k] = l;
+      }
+      so.pose_station = pose_station;
+    } else if (assign_block) {
+      /* consecutive blocks of (nearly) equal size, in station order */
+      pose_station = malloc((so.n_poses ? so.n_poses : 1) * sizeof *pose_station);
+      if (pose_station == NULL) {
+        status = TWF_EXIT_INTERNAL;
+        goto done;
+      }
+      for (n = 0; n < so.n_poses; n++)
+        pose_station[n] = n * n_stations / so.n_poses;
+      so.pose_station = pose_station;
+    }
+  }
+  c = twf_simulate_campaign(truth, n_stations > 0 ? NULL : &B, &so, &err);
   if (c == NULL) {
     status = cli_report_error(&err);
     goto done;
@@ -343,7 +435,9 @@ static int run_simulate(int argc, char **argv)
       memcpy(c->pose_ids[n], joints->pose_ids[n], TWF_NAME_MAX);
   {
     campaign_ctx cc = { c, model, have_lu ? lu : model->length_unit, have_au ? au : model->angle_unit, so.seed };
-    base_ctx bc = { &B, have_lu ? lu : model->length_unit };
+    base_ctx bc = { n_stations > 0 ? station_base : &B,
+                    n_stations > 0 ? (const char (*)[TWF_NAME_MAX])station_names : NULL,
+                    n_stations > 0 ? n_stations : 1, have_lu ? lu : model->length_unit };
     cli_put puts[3];
     puts[0] = (cli_put){ outputs[0], put_campaign, &cc };
     puts[1] = (cli_put){ outputs[1], put_true, truth };
@@ -359,6 +453,7 @@ static int run_simulate(int argc, char **argv)
   }
 
 done:
+  free(pose_station);
   twf_campaign_free(c);
   twf_campaign_free(joints);
   twf_model_free(truth);

@@ -163,7 +163,7 @@ static int run_verify(int argc, char **argv)
   cli_inputs in;
   cli_units u;
   twf_error err;
-  twf_pose base;
+  twf_pose base_st[TWF_STATIONS_MAX], *base = base_st;
   double *offsets = NULL, *pos = NULL, *rot = NULL;
   unsigned char *excluded = NULL;
   twf_accuracy_summary *summary = NULL;
@@ -260,7 +260,7 @@ static int run_verify(int argc, char **argv)
   twf_register_offsets_init(in.model, offsets);
   if (base_path != NULL) {
     size_t k;
-    if (twf_base_read_with(base_path, &in.ropt, &base, NULL, &err) != TWF_OK) {
+    if (cli_read_station_bases(base_path, &in.ropt, in.campaign, base_st, &err) != TWF_OK) {
       status = cli_report_error(&err);
       goto done;
     }
@@ -281,7 +281,7 @@ static int run_verify(int argc, char **argv)
     twf_register_options ro = twf_register_default_options();
     size_t k;
     ro.fit_all_offsets = fit_offsets;
-    if (twf_register_and_refine(in.model, in.campaign, &ro, NULL, &base, &rrep, excluded, &trace, &err) !=
+    if (twf_register_and_refine(in.model, in.campaign, &ro, NULL, base_st, &rrep, excluded, &trace, &err) !=
         TWF_OK) {
       cli_hint_options(&err);
       status = cli_report_error(&err);
@@ -291,7 +291,7 @@ static int run_verify(int argc, char **argv)
       memcpy(offsets + 3 * k, in.model->targets[k].offset, sizeof in.model->targets[k].offset);
     cli_print_trace(&trace);
   }
-  if (twf_accuracy_residuals(in.model, &base, offsets, in.campaign, pos, rot, &err) != TWF_OK ||
+  if (twf_accuracy_residuals(in.model, base_st, offsets, in.campaign, pos, rot, &err) != TWF_OK ||
       (summary = twf_accuracy_summarize(in.campaign, in.model->n_targets, pos, rot, (size_t)worst,
                                         &err)) == NULL) {
     status = cli_report_error(&err);
@@ -308,7 +308,7 @@ static int run_verify(int argc, char **argv)
       io.joint_tol = v * u.angle_si;
       io.joint_tol_prismatic = v * u.length_si;
     }
-    iso = twf_accuracy_iso9283(in.model, &base, offsets, in.campaign, &io, &err);
+    iso = twf_accuracy_iso9283(in.model, base_st, offsets, in.campaign, &io, &err);
     if (iso == NULL) {
       status = cli_report_error(&err);
       goto done;
@@ -358,11 +358,18 @@ static int run_verify(int argc, char **argv)
       fputc('\n', txt);
     }
     {
-      double q[4];
-      cli_quat_of(base.R, q);
-      fprintf(txt, "base pose in the instrument frame (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
-              base_path ? "given" : "registered", u.ldec, base.p[0] / u.length_si, u.ldec,
-              base.p[1] / u.length_si, u.ldec, base.p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
+      size_t sta, n_st = twf_campaign_station_count(in.campaign);
+      for (sta = 0; sta < n_st; sta++) {
+        double q[4];
+        char at[TWF_NAME_MAX + 16] = "";
+        const twf_pose *b = &base_st[sta];
+        if (n_st > 1)
+          snprintf(at, sizeof at, " at station %s", in.campaign->station_names[sta]);
+        cli_quat_of(b->R, q);
+        fprintf(txt, "base pose in the instrument frame%s (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
+                at, base_path ? "given" : "registered", u.ldec, b->p[0] / u.length_si, u.ldec,
+                b->p[1] / u.length_si, u.ldec, b->p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
+      }
     }
     if (base_path == NULL) {
       size_t k, n_ex = rrep.n_excluded;
@@ -415,9 +422,19 @@ static int run_verify(int argc, char **argv)
       json_object_set_new(root, "robot", cli_json_robot(in.model, &u));
       json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
       /* base_in_tracker: the older name, kept for existing readers */
-      json_object_set_new(root, "base_in_instrument", cli_json_pose(&base, &u));
-      json_object_set_new(root, "base_in_tracker", cli_json_pose(&base, &u));
+      json_object_set_new(root, "base_in_instrument", cli_json_pose(base, &u));
+      json_object_set_new(root, "base_in_tracker", cli_json_pose(base, &u));
       json_object_set_new(root, "base_source", json_string(base_path ? "given" : "registered"));
+      if (twf_campaign_station_count(in.campaign) > 1) {
+        /* several instrument stations: the base pose at each (the members
+         * above are the first station's) */
+        json_t *arr = json_array();
+        size_t sta;
+        for (sta = 0; sta < twf_campaign_station_count(in.campaign); sta++)
+          json_array_append_new(arr, json_pack("{s:s, s:o}", "name", in.campaign->station_names[sta],
+                                               "base_in_instrument", cli_json_pose(&base_st[sta], &u)));
+        json_object_set_new(root, "stations", arr);
+      }
       json_object_set_new(root, "accuracy", cli_json_accuracy(summary, in.model, in.campaign, &u));
       json_object_set_new(root, "iso9283", json_iso9283(iso, in.model, in.campaign, &u));
       {

@@ -441,6 +441,8 @@ int pcli_put_joints(FILE *fp, void *ctx, twf_error *err)
   fprintf(fp, "pose");
   for (k = 0; k < m->n_joints; k++)
     fprintf(fp, ",%s", m->joints[k].name);
+  if (j->station != NULL)
+    fputs(",station", fp);
   fputc('\n', fp);
   for (i = 0; i < j->n; i++) {
     if (j->ids != NULL)
@@ -450,6 +452,8 @@ int pcli_put_joints(FILE *fp, void *ctx, twf_error *err)
     for (k = 0; k < m->n_joints; k++)
       fprintf(fp, ",%.10g",
               j->q[i * m->n_joints + k] / (m->joints[k].type == TWF_JOINT_REVOLUTE ? asi : lsi));
+    if (j->station != NULL)
+      fprintf(fp, ",%s", j->station_names[j->station[i]]);
     fputc('\n', fp);
   }
   return ferror(fp) ? -1 : 0;

@@ -95,6 +95,8 @@ typedef struct pcli_joints {
   twf_length_unit length_unit; /* of prismatic joints */
   twf_angle_unit angle_unit;   /* of revolute joints */
   const char *comment;         /* "# ..." line(s) above the units line, may be NULL */
+  const size_t *station;       /* NULL, or each pose's station: a station column ... */
+  const char (*station_names)[TWF_NAME_MAX]; /* ... of these names */
 } pcli_joints;
 int pcli_put_joints(FILE *fp, void *ctx, twf_error *err);
 

@@ -479,3 +479,33 @@ int cli_parse_tolerance(const char *command, const char *option, const char *arg
   *out = v * unit_si;
   return TWF_EXIT_OK;
 }
+
+/* The base pose file for campaign c: today's [base] file for a campaign of
+ * one station, else one [station NAME] section per station of c, matched
+ * by name into bases[station]. */
+twf_status cli_read_station_bases(const char *path, const twf_read_options *opt, const twf_campaign *c,
+                                  twf_pose *bases, twf_error *err)
+{
+  twf_pose got[TWF_STATIONS_MAX];
+  char names[TWF_STATIONS_MAX][TWF_NAME_MAX];
+  size_t n = 0, k, l, n_st = twf_campaign_station_count(c);
+  twf_status st;
+  if (n_st == 1)
+    return twf_base_read_with(path, opt, bases, NULL, err);
+  st = twf_base_read_stations(path, opt, got, names, TWF_STATIONS_MAX, &n, NULL, err);
+  if (st != TWF_OK)
+    return st;
+  for (k = 0; k < n_st; k++) {
+    for (l = 0; l < n; l++)
+      if (strcmp(names[l], c->station_names[k]) == 0)
+        break;
+    if (l == n)
+      return twf_error_set(err, TWF_ERR_MISSING, path, 0, 0,
+                           "give the base pose file that calibrate wrote for this campaign "
+                           "(--base-output)",
+                           "the base pose file has no section [station %s] for station '%s' of the "
+                           "campaign", c->station_names[k], c->station_names[k]);
+    bases[k] = got[l];
+  }
+  return TWF_OK;
+}

@@ -32,6 +32,9 @@ extern "C" {
  * have offset_known, else TWF_ERR_MISSING). Every row is computed, fit and
  * check alike. Returns TWF_OK, TWF_ERR_INVALID, TWF_ERR_MISSING or
  * TWF_ERR_NOMEM. */
+/* base_in_tracker: one pose per instrument station of the campaign
+ * (twf_campaign_station_count; a single pose without a station column),
+ * each pose's prediction made with its station's. */
 twf_status twf_accuracy_residuals(const twf_model *model,
                                   const twf_pose *base_in_tracker,
                                   const double *target_offsets,
@@ -214,7 +217,8 @@ typedef struct twf_iso9283 {
 /* Group the campaign's poses by commanded joint values (sorting joint by
  * joint, O(n_joints n log n)) and compute the figures for every group and
  * target with at least min_visits measurements. The commanded position is
- * the model's prediction with base_in_tracker and target_offsets (NULL:
+ * the model's prediction with base_in_tracker (one pose per station of the
+ * campaign; visits from different stations are never grouped together) and target_offsets (NULL:
  * the model's, which must then be known). options NULL for the defaults.
  * Returns a result to free with twf_iso9283_free (n_entries 0 when no pose
  * repeats), or NULL with err filled (TWF_ERR_INVALID, TWF_ERR_MISSING,

@@ -164,10 +164,27 @@ typedef struct twf_observability {
  * with m rows. A zero smallest value (or n = 0) gives all four 0. */
 void twf_observability_indices(const double *sv, size_t n, size_t m, twf_observability *out);
 
+/* What one instrument station of a calibration saw (twf_calib_result). */
+typedef struct twf_station_summary {
+  size_t n_fit_poses, n_check_poses; /* poses with rows of that set */
+  twf_stats fit_before, fit_after;     /* position errors of its kept fit rows, m */
+  twf_stats check_before, check_after; /* of its kept check rows, m (count 0: none) */
+} twf_station_summary;
+
 typedef struct twf_calib_result {
   twf_model *asbuilt;         /* owned: the calibrated model (datum frame, see DEVELOPERS.md) */
-  twf_pose base_in_tracker;   /* fitted base pose in the tracker frame */
-  twf_pose base_before;       /* registered base pose of the starting model */
+  twf_pose base_in_tracker;   /* fitted base pose in the tracker frame (station 0's) */
+  twf_pose base_before;       /* registered base pose of the starting model (station 0's) */
+  /* Instrument stations of the campaign (twf_campaign_station_count, 1
+   * without a station column; names in the campaign): the fitted and the
+   * registered base pose seen from each, [0] equal to base_in_tracker and
+   * base_before. The base group holds 6 parameters per station. */
+  size_t n_stations;
+  twf_pose station_base[TWF_STATIONS_MAX];
+  twf_pose station_base_before[TWF_STATIONS_MAX];
+  /* Per station: its poses and the position errors of its rows that the
+   * figures keep (see excluded), before and after calibration. */
+  twf_station_summary station[TWF_STATIONS_MAX];
   twf_model *registered;      /* owned: the starting model with registered target offsets */
   size_t n_params;
   twf_param_result *params;
@@ -326,7 +343,9 @@ void twf_resample_result_free(twf_resample_result *r);
  * with opt (held-out fraction 0: the sets are base's). Each parameter's
  * spread over the refits stands beside its predicted std, with a warning
  * where they disagree by more than a factor 2; the check-set figures get
- * their spread too. The refits run on opt->threads threads (0: one per
+ * their spread too. With several instrument stations the draw is
+ * stratified: each station's fit poses are drawn from that station's, so
+ * every station keeps its pose count. The refits run on opt->threads threads (0: one per
  * core), one refit per thread; the result is the same bits for every
  * thread count. */
 twf_status twf_calibrate_resample(const twf_model *start, const twf_campaign *c,

@@ -90,11 +90,43 @@ typedef struct twf_campaign {
   size_t n_meas;
   twf_measurement *meas;
   int has_orientation_any; /* some measurement has has_orientation */
+  /* Instrument stations (the optional "station" column of
+   * twistfit-data(5)): each station is one set-up of the instrument with
+   * its own frame, so each has its own base pose. n_stations 0: no station
+   * column, every pose seen from the one station (station_names and
+   * pose_station NULL); else station_names holds the n_stations names in
+   * the order of first appearance and pose_station[p] the station of pose
+   * p. Read them through twf_campaign_station_count and
+   * twf_campaign_pose_station. */
+  size_t n_stations;
+  char (*station_names)[TWF_NAME_MAX];
+  size_t *pose_station;
   /* The files read, in the order read: the one file, or the joints file
    * and the points file; n_inputs 0 for a campaign not read from files. */
   size_t n_inputs;
   twf_input_digest inputs[2];
 } twf_campaign;
+
+/* Most stations of one campaign: a measuring day moves the instrument a
+ * few times, and the error model holds 6 base parameters per station. */
+#define TWF_STATIONS_MAX 32
+
+/* Stations of c: n_stations, or 1 when c has no station column. */
+size_t twf_campaign_station_count(const twf_campaign *c);
+/* Station index of pose p of c (0 without a station column). */
+size_t twf_campaign_pose_station(const twf_campaign *c, size_t p);
+/* Give c the stations names[0..n) (n from 1 to TWF_STATIONS_MAX, each
+ * name valid for twf_station_name_check and distinct) and each pose its
+ * station station_of_pose[p] < n (copied). Replaces any stations c had.
+ * TWF_ERR_INVALID (names, indices, count), TWF_ERR_NOMEM. */
+twf_status twf_campaign_set_stations(twf_campaign *c, size_t n,
+                                     const char (*names)[TWF_NAME_MAX],
+                                     const size_t *station_of_pose,
+                                     twf_error *err);
+/* 0 when name is a valid station name: 1 to TWF_NAME_MAX - 1 bytes, letters,
+ * digits, '_', '-' and '.', starting with a letter or a digit (it becomes
+ * part of parameter names and of base pose file sections); else -1. */
+int twf_station_name_check(const char *name);
 
 /* How to read a campaign; get the defaults from
  * twf_campaign_default_options() and change fields. */
@@ -126,7 +158,8 @@ twf_campaign *twf_campaign_alloc(size_t n_joints, size_t n_poses,
 void twf_campaign_free(twf_campaign *c);
 
 /* Read the one-file form: one row per measurement with pose id, target,
- * one column per joint of m, x y z, optional qw qx qy qz, sigma, set.
+ * one column per joint of m, x y z, optional qw qx qy qz, sigma, set and
+ * station (per pose: n_stations, station_names, pose_station).
  * m (borrowed for the call) gives the joint names, types and limits and
  * the target names. opt may be NULL for the defaults; w may be NULL.
  * Returns the campaign (caller frees) or NULL with err filled: file, line,
@@ -142,7 +175,7 @@ twf_campaign *twf_campaign_read(const char *path, const twf_model *m,
                                 twf_warnings *w, twf_error *err);
 
 /* Read the two-file form: joints_path holds pose id, one column per joint
- * and optionally set (per pose); points_path holds pose id, target, x y z,
+ * and optionally set and station (per pose); points_path holds pose id, target, x y z,
  * optional quaternion, sigma and set (per measurement, it takes precedence
  * over the pose's). Joined on pose id: points whose pose the joints file
  * lacks, and poses without points, are errors (TWF_ERR_MISSING) that list

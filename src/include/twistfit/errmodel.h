@@ -21,7 +21,8 @@ extern "C" {
  * order is the default priority of the redundancy walk: the parameters a
  * user cares about first. */
 typedef enum twf_group {
-  TWF_GROUP_BASE = 0,    /* 6: B <- B exp(b), b in the robot base frame */
+  TWF_GROUP_BASE = 0,    /* 6 per instrument station: B_s <- B_s exp(b_s), b_s in the
+                            robot base frame */
   TWF_GROUP_TARGETS,     /* 3 per target: t_k <- t_k + dt_k (flange frame) */
   TWF_GROUP_OFFSETS,     /* 1 per joint: theta_i = scale q_i + offset_i */
   TWF_GROUP_HOME,        /* 6: M <- M exp(m) */
@@ -62,7 +63,9 @@ typedef struct twf_param {
   int component;   /* base/home: 0-2 rotation x y z, 3-5 translation x y z;
                       targets: 0-2 x y z; shifts and tilts: 0 for u1, 1 for u2 */
   twf_param_kind kind;
-  char name[TWF_NAME_MAX + 16]; /* stable, e.g. "base.rx", "home.tz",
+  long station;    /* base: the instrument station (0 with one station), else -1 */
+  char name[TWF_NAME_MAX + 16]; /* stable, e.g. "base.rx" (with several stations
+                                   "base.STATION.rx"), "home.tz",
                                    "j3.offset", "j2.tilt1", "j2.shift2",
                                    "T1.y", "j4.scale" */
 } twf_param;
@@ -75,6 +78,15 @@ typedef struct twf_errmodel twf_errmodel;
 /* Parameters of the groups in mask for model m (whose joint count and
  * target count are then fixed). NULL with err filled on failure. */
 twf_errmodel *twf_errmodel_alloc(const twf_model *m, unsigned groups, twf_error *err);
+/* twf_errmodel_alloc for a campaign of n_stations instrument stations
+ * (1 to TWF_STATIONS_MAX): the base group holds 6 parameters per station,
+ * station-major, named "base.NAME.rx" after names[s] when n_stations > 1
+ * (names may be NULL for one station). Poses are then evaluated with
+ * twf_errmodel_eval_station, and twf_errmodel_fold takes n_stations base
+ * poses. */
+twf_errmodel *twf_errmodel_alloc_stations(const twf_model *m, unsigned groups, size_t n_stations,
+                                          const char (*names)[TWF_NAME_MAX], twf_error *err);
+size_t twf_errmodel_n_stations(const twf_errmodel *em);
 void twf_errmodel_free(twf_errmodel *em);
 size_t twf_errmodel_n_params(const twf_errmodel *em);
 const twf_param *twf_errmodel_param(const twf_errmodel *em, size_t j);
@@ -95,6 +107,11 @@ void twf_errmodel_axis_basis(const twf_errmodel *em, size_t joint,
 void twf_errmodel_eval_pose(twf_errmodel *em, const twf_model *m,
                             const twf_pose *base_in_tracker, const double *q,
                             twf_pose *flange_in_tracker);
+/* twf_errmodel_eval_pose for a pose seen from station `station`, whose base
+ * pose is *station_base: the base parameters of the other stations get
+ * zero twists. twf_errmodel_eval_pose is station 0. */
+void twf_errmodel_eval_station(twf_errmodel *em, const twf_model *m, const twf_pose *station_base,
+                               size_t station, const double *q, twf_pose *flange_in_tracker);
 /* At the evaluated pose: the predicted position of target k (tracker
  * frame, m) and, when rows is not NULL, the 3 x p derivative of that
  * prediction with respect to the parameters (row-major, rows[r*p + j]). */
@@ -106,8 +123,9 @@ void twf_errmodel_point(const twf_errmodel *em, const twf_model *m,
  * first order (uses the inverse right Jacobian of SO(3)). */
 void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
                               double r[3], double *rows);
-/* Fold a parameter step delta[p] (SI) into the model and base pose (a
+/* Fold a parameter step delta[p] (SI) into the model and base poses (a
  * retraction: axes stay unit, rotations orthonormal), then update em.
+ * base_in_tracker is an array of the error model's n_stations poses.
  * Targets whose offset was unknown become known. */
 void twf_errmodel_fold(twf_errmodel *em, const double *delta, twf_model *m,
                        twf_pose *base_in_tracker);

@@ -127,6 +127,24 @@ twf_status twf_base_read_with(const char *path, const twf_read_options *opt,
 twf_status twf_base_write(const twf_pose *base_in_tracker, twf_length_unit u,
                           const char *comment, FILE *out, twf_error *err);
 
+/* Base pose files of several instrument stations: one section
+ * "[station NAME]" per station, each with the keys of [base] (the robot
+ * base frame in the frame of the instrument at that station). Write the n
+ * poses bases[] of stations names[] (n >= 2; for n = 1 the file is
+ * twf_base_write's, byte for byte, and names may be NULL). TWF_ERR_INVALID
+ * for a name that twf_station_name_check refuses, TWF_ERR_IO. */
+twf_status twf_base_write_stations(const twf_pose *bases, const char (*names)[TWF_NAME_MAX], size_t n,
+                                   twf_length_unit u, const char *comment, FILE *out,
+                                   twf_error *err);
+/* Read a base pose file of either form into bases[0..max) and names[]
+ * (file order) with *n the count: a [base] file gives *n = 1 and
+ * names[0] "". More than max sections, a repeated station, a station name
+ * refused by twf_station_name_check, [base] beside [station] sections and
+ * a section without all three keys are errors with the line. */
+twf_status twf_base_read_stations(const char *path, const twf_read_options *opt, twf_pose *bases,
+                                  char (*names)[TWF_NAME_MAX], size_t max, size_t *n,
+                                  twf_input_digest *digest, twf_error *err);
+
 
 #ifdef __cplusplus
 }

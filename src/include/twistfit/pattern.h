@@ -116,7 +116,8 @@ typedef struct twf_pattern_result {
 void twf_pattern_result_clear(twf_pattern_result *r);
 
 /* Test the position residuals pos_err (n_meas x 3, measured - model, metres,
- * instrument frame) of model m seen from base_in_instrument on campaign c;
+ * instrument frame) of model m seen from base_in_instrument (one pose per
+ * instrument station of c) on campaign c;
  * the gravity torques opt->torque, when given, at the logged values;
  * use (NULL: every measurement) flags the measurements to include. The
  * target offsets are the model's (every used measurement's target must

@@ -203,6 +203,15 @@ typedef struct twf_plan_options {
   double range_min, range_max;  /* default 0 and HUGE_VAL */
   double acceptance_rad;        /* default 0: no cone */
   double target_axis[3];        /* default 0 0 1 */
+  /* Several instrument stations: n_instruments positions (n x 3, robot
+   * base frame, m; borrowed) that replace instrument when n_instruments
+   * > 0. A pose is feasible when one station sees every measured target
+   * (range and acceptance cone as above); it is measured from the first
+   * such station in the given order. The criterion is that of one base
+   * pose: the 6 base parameters each further station adds are not in it
+   * (DEVELOPERS.md). At most TWF_STATIONS_MAX. */
+  size_t n_instruments;
+  const double *instruments;
   size_t n_keepout;
   const twf_keepout *keepout;
   /* Exchange refinement after the greedy build-up (DETMAX, Mitchell
@@ -232,6 +241,10 @@ typedef struct twf_plan_result {
   double travel_before;      /* joint-space path length (rad, prismatic m / reach) in choice order */
   double travel;             /* after nearest neighbour and 2-opt ordering */
   twf_assessment *assessment;/* the assess figures of the chosen set */
+  /* n: the station each pose is measured from (index into the options'
+   * instruments; poses grouped by station, each group ordered for
+   * travel); NULL without several instruments. */
+  size_t *station;
 } twf_plan_result;
 
 void twf_plan_result_free(twf_plan_result *r);
@@ -260,6 +273,11 @@ int twf_plan_better(twf_plan_criterion c, double a, double b);
  * range, acceptance angle): 0 when it satisfies them all, else 1 + the
  * index of the first broken one in twf_plan_result.n_rejected's order. */
 int twf_plan_pose_check(const twf_model *m, const twf_plan_options *opt, const double *q);
+/* The station that measures pose q: the first of the options' instruments
+ * (or the one instrument: 0) that sees every measured target, -1 when none
+ * does (or the pose breaks the limits or a keep-out box); 0 without an
+ * instrument. */
+long twf_plan_pose_station(const twf_model *m, const twf_plan_options *opt, const double *q);
 
 #ifdef __cplusplus
 }

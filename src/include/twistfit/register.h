@@ -96,6 +96,12 @@ typedef struct twf_register_report {
   long first_inseparable; /* index of the first such target, -1 if none */
 } twf_register_report;
 
+/* Fewest fit-set poses of one instrument station in a campaign of several:
+ * the station's 6 base parameters come from its own poses alone (three
+ * poses are the fewest from which three points of one target register;
+ * our own choice, no source). */
+#define TWF_STATION_POSES_MIN 3
+
 /* Nonzero when target k's offset is fitted under options (NULL: defaults)
  * for model: fit_all_offsets, else !trusted[k], else !offset_known. The
  * least-squares refinement frees exactly these targets. */
@@ -125,7 +131,10 @@ void twf_register_offsets_init(const twf_model *model, double *offsets);
  *                    6-D rows enter only with their position: orientations
  *                    are ignored here (the refinement uses them).
  *   options:         NULL for twf_register_default_options().
- *   base_in_tracker: out, B (robot base frame to tracker frame).
+ *   base_in_tracker: out, B (robot base frame to tracker frame): an array
+ *                    of twf_campaign_station_count(campaign) poses, one per
+ *                    instrument station, each registered on its station's
+ *                    fit rows (the target offsets on every station's).
  *   target_offsets:  in/out, n_targets x 3, metres, flange frame. In: the
  *                    trusted offsets and the start of the fitted ones (fill
  *                    with twf_register_offsets_init for the default, which
@@ -138,7 +147,9 @@ void twf_register_offsets_init(const twf_model *model, double *offsets);
  * base and targets, the targets of twf_register_target_is_fitted), starting
  * from these values; the refined residual then replaces report->rms_m as
  * the "before" figure.
- * Returns TWF_OK; TWF_ERR_DEGENERATE when the fit set has fewer than 3
+ * Returns TWF_OK; TWF_ERR_DEGENERATE when a station of several has fewer
+ * than TWF_STATION_POSES_MIN fit poses (the message names it), when the
+ * fit set (of a station) has fewer than 3
  * measurements or its predicted (or measured) points coincide or lie on one
  * line: the message says how many more distinct poses are needed and, when
  * the first registration used the flange origin for targets without a
@@ -238,7 +249,8 @@ twf_refine_options twf_refine_default_options(void);
  * threshold (1.4826 MAD of the residual components) are left out and the
  * refinement repeated; excluded (n_meas flags, may be NULL) receives 1 for
  * each. Offset components the poses cannot separate from the base are
- * fixed at their start. */
+ * fixed at their start. base_in_tracker: one pose per instrument station
+ * of c (twf_campaign_station_count). */
 twf_status twf_refine_base(twf_model *m, const struct twf_campaign *c,
                            const unsigned char *fit_target, const twf_refine_options *opt,
                            twf_pose *base_in_tracker, twf_solve_report *report,
@@ -262,7 +274,8 @@ typedef struct twf_registration_report {
  *   model:           in/out. On success its target offsets are the refined
  *                    ones and every target with fit-set rows is marked
  *                    offset_known; on failure it is unchanged.
- *   base_in_tracker: out, the refined base pose.
+ *   base_in_tracker: out, the refined base pose of each instrument station
+ *                    (an array of twf_campaign_station_count(campaign)).
  *   report:          out, may be NULL.
  *   excluded:        n_meas flags (may be NULL): 1 for a fit row left out
  *                    of the refinement as a gross error.

@@ -37,6 +37,19 @@ typedef struct twf_simulate_options {
    * values. */
   double outlier_fraction;
   double outlier_m;
+  /* Several instrument stations (default n_stations 0: one, the
+   * campaign without a station column): station s sees the arm's base at
+   * station_base[s] (robot base frame in that station's instrument frame)
+   * and is named station_names[s]; pose i is seen from station
+   * pose_station[i], or with pose_station NULL from station i mod
+   * n_stations (in turn). All borrowed; base_in_tracker is then not used.
+   * The draws (poses, noise, outliers) do not depend on the stations: the
+   * same seed gives the same poses and the same noise in each station's
+   * frame. */
+  size_t n_stations;
+  const twf_pose *station_base;
+  const char (*station_names)[TWF_NAME_MAX];
+  const size_t *pose_station;
 } twf_simulate_options;
 
 twf_simulate_options twf_simulate_default_options(void);
@@ -49,7 +62,8 @@ void twf_simulate_joints(const twf_model *m, double margin,
 
 /* A campaign measured on the arm truth seen from the tracker at
  * base_in_tracker: random (or the given) poses, every selected target with a known offset
- * at every pose, Gaussian noise. Pose ids P0001, P0002, ... NULL with err
+ * at every pose, Gaussian noise. Pose ids P0001, P0002, ... With several
+ * stations (options) base_in_tracker may be NULL. NULL with err
  * filled on failure. */
 twf_campaign *twf_simulate_campaign(const twf_model *truth,
                                     const twf_pose *base_in_tracker,

@@ -326,13 +326,15 @@ static twf_status stage_registration(job *j)
   fo.robust_threshold = j->opt.robust_threshold;
   {
     twf_registration_report rep;
-    st = twf_register_and_refine(j->reg, &j->view, &ro, &fo, &j->res->base_before, &rep, NULL,
+    j->res->n_stations = twf_campaign_station_count(j->c);
+    st = twf_register_and_refine(j->reg, &j->view, &ro, &fo, j->res->station_base_before, &rep, NULL,
                                  &j->res->trace, j->err);
     j->res->registration = rep.refinement;
+    j->res->base_before = j->res->station_base_before[0];
   }
   if (st != TWF_OK)
     return st;
-  return twf_lsq_residuals(j->reg, &j->res->base_before, j->c, j->res->pos_err_before,
+  return twf_lsq_residuals(j->reg, j->res->station_base_before, j->c, j->res->pos_err_before,
                            j->res->angle_err_before, j->err);
 }
 
@@ -360,7 +362,7 @@ static twf_status stage_problem(job *j)
                                j->opt.sigma_angle, j->err);
   if (st != TWF_OK)
     return st;
-  j->pr.base = j->res->base_before;
+  memcpy(j->pr.base, j->res->station_base_before, j->res->n_stations * sizeof *j->pr.base);
   j->pr.n_threads = twf_lsq_threads(j->opt.threads);
   p = j->p = j->pr.p;
   j->res->n_params = p;
@@ -416,7 +418,9 @@ static twf_status synthetic_factor(const twf_lsq_problem *pr, size_t n_poses, un
       double hi = jt->has_limits ? jt->limit_hi : (jt->type == TWF_JOINT_REVOLUTE ? TWF_PI : 0.1);
       q[k] = lo + (hi - lo) * twf_rng_uniform(&st);
     }
-    twf_errmodel_eval_pose(pr->em, m, &pr->base, q, NULL);
+    /* the synthetic poses are shared out over the stations in turn */
+    size_t sta = s % pr->n_stations;
+    twf_errmodel_eval_station(pr->em, m, &pr->base[sta], sta, q, NULL);
     for (k = 0; k < m->n_targets; k++) {
       double y[3];
       int pass;
@@ -429,7 +433,7 @@ static twf_status synthetic_factor(const twf_lsq_problem *pr, size_t n_poses, un
           double r[3];
           twf_pose T;
           twf_model_fk(m, q, NULL, &T);
-          twf_pose_mul(&pr->base, &T, &T);
+          twf_pose_mul(&pr->base[sta], &T, &T);
           twf_errmodel_orientation(pr->em, T.R, r, rows);
         }
         twf_ident_qr_add_row(R, p, rows);
@@ -802,6 +806,51 @@ static twf_status stats_where(job *j, const double *resid, int set, unsigned cha
   return st;
 }
 
+/* Per instrument station: its poses of each set and the position errors
+ * of its rows the figures keep, before and after. */
+static twf_status station_summaries(job *j)
+{
+  twf_calib_result *res = j->res;
+  const twf_campaign *c = j->c;
+  size_t n = c->n_meas, i, sta, m;
+  double *len = malloc((n ? n : 1) * sizeof *len);
+  unsigned char *seen = calloc(c->n_poses ? c->n_poses : 1, 1);
+  twf_status st = TWF_OK;
+  int set, pass;
+  if (len == NULL || seen == NULL) {
+    free(len);
+    free(seen);
+    return nomem(j);
+  }
+  for (i = 0; i < n; i++) {
+    size_t pose = c->meas[i].pose, bit = res->meas_set[i] == TWF_SET_FIT ? 1u : 2u;
+    if (!(seen[pose] & bit)) {
+      seen[pose] |= (unsigned char)bit;
+      if (bit == 1u)
+        res->station[twf_campaign_pose_station(c, pose)].n_fit_poses++;
+      else
+        res->station[twf_campaign_pose_station(c, pose)].n_check_poses++;
+    }
+  }
+  for (sta = 0; sta < res->n_stations && st == TWF_OK; sta++)
+    for (set = 0; set < 2 && st == TWF_OK; set++)
+      for (pass = 0; pass < 2 && st == TWF_OK; pass++) {
+        const double *e = pass == 0 ? res->pos_err_before : res->pos_err_after;
+        twf_station_summary *su = &res->station[sta];
+        twf_stats *out = set == TWF_SET_FIT ? (pass == 0 ? &su->fit_before : &su->fit_after)
+                                            : (pass == 0 ? &su->check_before : &su->check_after);
+        m = 0;
+        for (i = 0; i < n; i++)
+          if ((int)res->meas_set[i] == set && res->excluded[i] == 0 &&
+              twf_campaign_pose_station(c, c->meas[i].pose) == sta)
+            len[m++] = twf_v3_norm(e + 3 * i);
+        st = twf_accuracy_stats(len, m, out, j->err);
+      }
+  free(len);
+  free(seen);
+  return st;
+}
+
 /* Which rows the figures leave out: the fit rows the screen dropped, and
  * the check rows whose error after calibration is beyond the threshold
  * against the fit's robust scale (scored at the final model; the weights
@@ -932,11 +981,12 @@ static twf_status stage_asbuilt(job *j)
   res->angle_err_after = calloc(nm, sizeof(double));
   if (res->pos_err_after == NULL || res->angle_err_after == NULL)
     return nomem(j);
-  st = twf_lsq_residuals(j->pr.m, &j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
+  st = twf_lsq_residuals(j->pr.m, j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
   if (st != TWF_OK)
     return st;
   res->groups = j->opt.groups;
-  res->base_in_tracker = j->pr.base;
+  memcpy(res->station_base, j->pr.base, res->n_stations * sizeof *res->station_base);
+  res->base_in_tracker = j->pr.base[0];
   res->asbuilt = twf_model_copy(j->pr.m);
   res->registered = j->reg;
   j->reg = NULL;
@@ -951,6 +1001,17 @@ static twf_status stage_asbuilt(job *j)
                     : twf_asbuilt_compare(j->start, res->asbuilt, j->with_orientation, &res->comparison, j->err);
   if (st != TWF_OK)
     return st;
+  /* The datum rule is a change of the robot base frame, B <- B X, the same
+   * X for every station: carry station 0's change to the others. */
+  {
+    twf_pose inv0, X;
+    size_t sta;
+    twf_pose_inv(&res->station_base[0], &inv0);
+    twf_pose_mul(&inv0, &res->base_in_tracker, &X);
+    res->station_base[0] = res->base_in_tracker;
+    for (sta = 1; sta < res->n_stations; sta++)
+      twf_pose_mul(&res->station_base[sta], &X, &res->station_base[sta]);
+  }
   /* what the data cannot tell about the flange at logged zero */
   if (!j->with_orientation)
     res->comparison.home_angle_rad = NAN;
@@ -976,6 +1037,8 @@ static twf_status stage_asbuilt(job *j)
         (st = stats_where(j, res->pos_err_after, set, want, &res->excluded_after[set])) != TWF_OK)
       return st;
   }
+  if ((st = station_summaries(j)) != TWF_OK)
+    return st;
   if ((st = stats_where(j, res->pos_err_before, TWF_SET_CHECK, 0xff, &res->check_all_before)) != TWF_OK ||
       (st = stats_where(j, res->pos_err_after, TWF_SET_CHECK, 0xff, &res->check_all_after)) != TWF_OK)
     return st;
@@ -1019,8 +1082,35 @@ static twf_status stage_links(job *j)
   st = twf_compare_links(j->start, res->asbuilt, j->with_orientation, &res->links, res->link_change, j->err);
   if (st == TWF_OK)
     st = twf_links_compute(j->pr.m, &lo, &fit, j->err);
-  if (st == TWF_OK)
-    st = twf_links_mark_fit(j->pr.m, res->groups, res->covariance, by_poses, &fit, j->err);
+  if (st == TWF_OK) {
+    /* The links do not depend on the base poses: with several stations the
+     * covariance is given in the one-station layout (station 0's base
+     * parameters, the others' left out), the layout links.c's error model
+     * has. */
+    double *cov = res->covariance;
+    if (res->n_stations > 1) {
+      size_t p = res->n_params, n1 = 0, a2, b2, *keep = malloc((p ? p : 1) * sizeof *keep);
+      cov = malloc((p ? p * p : 1) * sizeof *cov);
+      if (keep == NULL || cov == NULL) {
+        free(keep);
+        free(cov);
+        free(by_poses);
+        return nomem(j);
+      }
+      for (a2 = 0; a2 < p; a2++)
+        if (res->params[a2].param.group != TWF_GROUP_BASE || res->params[a2].param.station == 0)
+          keep[n1++] = a2;
+      for (a2 = 0; a2 < n1; a2++) {
+        by_poses[a2] = res->params[keep[a2]].status == TWF_PARAM_FIXED_DATA;
+        for (b2 = 0; b2 < n1; b2++)
+          cov[a2 * n1 + b2] = res->covariance[keep[a2] * p + keep[b2]];
+      }
+      free(keep);
+    }
+    st = twf_links_mark_fit(j->pr.m, res->groups, cov, by_poses, &fit, j->err);
+    if (cov != res->covariance)
+      free(cov);
+  }
   for (r = 0; st == TWF_OK && r < fit.n_rows; r++) {
     if (fit.rows[r].form != res->links.rows[r].form) {
       st = twf_error_set(j->err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
@@ -1054,7 +1144,7 @@ static twf_status stage_pattern(job *j)
         res->params[i].param.joint >= 0)
       scale_fitted[res->params[i].param.joint] = 1;
   po.scale_fitted = scale_fitted;
-  st = twf_residual_pattern(res->asbuilt, &res->base_in_tracker, &j->view, res->pos_err_after, use, &po,
+  st = twf_residual_pattern(res->asbuilt, res->station_base, &j->view, res->pos_err_after, use, &po,
                             &res->pattern, j->err);
   free(use);
   free(scale_fitted);

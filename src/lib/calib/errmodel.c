@@ -15,6 +15,8 @@
 
 struct twf_errmodel {
   size_t n_joints, n_targets, n_params;
+  size_t n_stations;  /* base parameters: 6 per station */
+  size_t station;     /* station of the evaluated pose */
   twf_param *params;
   double *scale;      /* column scale per parameter */
   double (*u1)[3];    /* axis-error directions per joint */
@@ -52,10 +54,10 @@ twf_status twf_group_parse(const char *name, unsigned *mask)
   return TWF_ERR_UNKNOWN;
 }
 
-static size_t count_params(const twf_model *m, unsigned groups)
+static size_t count_params(const twf_model *m, unsigned groups, size_t n_stations)
 {
   size_t n = 0, i;
-  if (groups & TWF_GROUP_BIT(TWF_GROUP_BASE)) n += 6;
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_BASE)) n += 6 * n_stations;
   if (groups & TWF_GROUP_BIT(TWF_GROUP_TARGETS)) n += 3 * m->n_targets;
   if (groups & TWF_GROUP_BIT(TWF_GROUP_OFFSETS)) n += m->n_joints;
   if (groups & TWF_GROUP_BIT(TWF_GROUP_HOME)) n += 6;
@@ -82,12 +84,21 @@ static void add_param(twf_errmodel *em, const twf_model *m, size_t *j,
   p->target = target;
   p->component = comp;
   p->kind = kind;
+  p->station = -1;
   snprintf(p->name, sizeof p->name, "%s.%s", owner, suffix);
   em->scale[*j] = kind == TWF_PARAM_LENGTH ? 1.0 : em->reach;
   (*j)++;
 }
 
 twf_errmodel *twf_errmodel_alloc(const twf_model *m, unsigned groups, twf_error *err)
+{
+  return twf_errmodel_alloc_stations(m, groups, 1, NULL, err);
+}
+
+size_t twf_errmodel_n_stations(const twf_errmodel *em) { return em->n_stations; }
+
+twf_errmodel *twf_errmodel_alloc_stations(const twf_model *m, unsigned groups, size_t n_stations,
+                                          const char (*names)[TWF_NAME_MAX], twf_error *err)
 {
   static const char *const pose_names[6] = { "rx", "ry", "rz", "tx", "ty", "tz" };
   static const char *const xyz[3] = { "x", "y", "z" };
@@ -98,13 +109,17 @@ twf_errmodel *twf_errmodel_alloc(const twf_model *m, unsigned groups, twf_error 
   if (m == NULL || groups == 0 || (groups >> TWF_GROUP_COUNT) != 0)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "no valid parameter group chosen"), NULL;
-  n = count_params(m, groups);
+  if (n_stations == 0 || n_stations > TWF_STATIONS_MAX || (n_stations > 1 && names == NULL))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "the error model takes 1 to %d named stations", TWF_STATIONS_MAX), NULL;
+  n = count_params(m, groups, n_stations);
   em = calloc(1, sizeof *em);
   if (em == NULL)
     goto nomem;
   em->n_joints = m->n_joints;
   em->n_targets = m->n_targets;
   em->n_params = n;
+  em->n_stations = n_stations;
   em->reach = twf_model_reach(m);
   em->params = calloc(n ? n : 1, sizeof *em->params);
   em->scale = calloc(n ? n : 1, sizeof *em->scale);
@@ -119,10 +134,18 @@ twf_errmodel *twf_errmodel_alloc(const twf_model *m, unsigned groups, twf_error 
 
   /* The internal layout is group-major in enum order; the redundancy walk
    * chooses its own order, so this one only fixes names and indices. */
+  /* Base parameters station-major: one station gives the 6 of before,
+   * named as before. */
   if (groups & TWF_GROUP_BIT(TWF_GROUP_BASE))
-    for (c = 0; c < 6; c++)
-      add_param(em, m, &j, TWF_GROUP_BASE, -1, -1, c,
-                c < 3 ? TWF_PARAM_ANGLE : TWF_PARAM_LENGTH, pose_names[c]);
+    for (i = 0; i < n_stations; i++)
+      for (c = 0; c < 6; c++) {
+        add_param(em, m, &j, TWF_GROUP_BASE, -1, -1, c,
+                  c < 3 ? TWF_PARAM_ANGLE : TWF_PARAM_LENGTH, pose_names[c]);
+        em->params[j - 1].station = (long)i;
+        if (n_stations > 1)
+          snprintf(em->params[j - 1].name, sizeof em->params[j - 1].name, "base.%s.%s", names[i],
+                   pose_names[c]);
+      }
   if (groups & TWF_GROUP_BIT(TWF_GROUP_TARGETS))
     for (i = 0; i < m->n_targets; i++)
       for (c = 0; c < 3; c++)
@@ -265,9 +288,10 @@ static inline void ad_apply(const twf_pose *T, const double S[6], double out[6])
 }
 
 void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf_pose *base_in_tracker,
-                                 const double *q, const unsigned char *need)
+                                 size_t station, const double *q, const unsigned char *need)
 {
   size_t i, j, n = m->n_joints;
+  em->station = station;
   em->prefix[0] = *base_in_tracker;
   for (i = 0; i < n; i++) {
     const twf_joint *jt = &m->joints[i];
@@ -287,6 +311,11 @@ void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf
       continue;
     switch (p->group) {
     case TWF_GROUP_BASE:
+      if ((size_t)p->station != em->station) {
+        for (c = 0; c < 6; c++)
+          t[c] = 0.0;
+        break;
+      }
       e[p->component] = 1.0;
       ad_apply(base_in_tracker, e, t);
       break;
@@ -318,11 +347,19 @@ void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf
   }
 }
 
+void twf_errmodel_eval_station(twf_errmodel *em, const twf_model *m, const twf_pose *station_base,
+                               size_t station, const double *q, twf_pose *flange_in_tracker)
+{
+  twf_errmodel_eval_pose_some(em, m, station_base, station, q, NULL);
+  if (flange_in_tracker != NULL)
+    *flange_in_tracker = em->flange;
+}
+
 void twf_errmodel_eval_pose(twf_errmodel *em, const twf_model *m,
                             const twf_pose *base_in_tracker, const double *q,
                             twf_pose *flange_in_tracker)
 {
-  twf_errmodel_eval_pose_some(em, m, base_in_tracker, q, NULL);
+  twf_errmodel_eval_pose_some(em, m, base_in_tracker, 0, q, NULL);
   if (flange_in_tracker != NULL)
     *flange_in_tracker = em->flange;
 }
@@ -409,16 +446,22 @@ void twf_errmodel_orientation(const twf_errmodel *em, const double R_meas[3][3],
 void twf_errmodel_fold(twf_errmodel *em, const double *delta, twf_model *m,
                        twf_pose *base_in_tracker)
 {
-  double base_step[6] = { 0 }, home_step[6] = { 0 };
+  double base_step[TWF_STATIONS_MAX][6], home_step[6] = { 0 };
   double *axis_step = em->axis_step;
   size_t j, i;
-  int c, any_base = 0, any_home = 0;
+  int c, any_base[TWF_STATIONS_MAX], any_home = 0;
+
+  memset(base_step, 0, sizeof base_step);
+  memset(any_base, 0, sizeof any_base);
 
   for (j = 0; j < em->n_params; j++) {
     const twf_param *p = &em->params[j];
     double d = delta[j], e[6];
     switch (p->group) {
-    case TWF_GROUP_BASE: base_step[p->component] += d; any_base = 1; break;
+    case TWF_GROUP_BASE:
+      base_step[p->station][p->component] += d;
+      any_base[p->station] = 1;
+      break;
     case TWF_GROUP_HOME: home_step[p->component] += d; any_home = 1; break;
     case TWF_GROUP_TARGETS:
       m->targets[p->target].offset[p->component] += d;
@@ -435,11 +478,12 @@ void twf_errmodel_fold(twf_errmodel *em, const double *delta, twf_model *m,
     case TWF_GROUP_COUNT: break;
     }
   }
-  if (any_base) {
-    twf_pose E;
-    twf_se3_exp(base_step, 1.0, &E);
-    twf_pose_mul(base_in_tracker, &E, base_in_tracker);
-  }
+  for (i = 0; i < em->n_stations; i++)
+    if (any_base[i]) {
+      twf_pose E;
+      twf_se3_exp(base_step[i], 1.0, &E);
+      twf_pose_mul(&base_in_tracker[i], &E, &base_in_tracker[i]);
+    }
   if (any_home) {
     twf_pose E;
     twf_se3_exp(home_step, 1.0, &E);

@@ -12,12 +12,12 @@
 const double *twf_errmodel_twists(const twf_errmodel *em);
 const twf_pose *twf_errmodel_flange(const twf_errmodel *em);
 
-/* twf_errmodel_eval_pose for the twists of the parameters flagged in
+/* twf_errmodel_eval_station for the twists of the parameters flagged in
  * need[p] only (NULL: all): a pass over the kept columns skips the fixed
  * ones. The twists computed are those of twf_errmodel_eval_pose, bit for
  * bit; the others are left as they were. */
 void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf_pose *base_in_tracker,
-                                 const double *q, const unsigned char *need);
+                                 size_t station, const double *q, const unsigned char *need);
 
 /* The orientation residual of twf_errmodel_orientation and the inverse
  * right Jacobian Jinv of SO(3) at it: the orientation rows are Jinv times

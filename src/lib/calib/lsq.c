@@ -108,7 +108,11 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
   pr->trial = twf_model_copy(m);
   if (pr->m == NULL || pr->trial == NULL)
     goto nomem;
-  pr->em = twf_errmodel_alloc(pr->m, groups, err);
+  pr->n_stations = twf_campaign_station_count(c);
+  for (i = 0; i < TWF_STATIONS_MAX; i++)
+    twf_pose_identity(&pr->base[i]);
+  pr->em = twf_errmodel_alloc_stations(pr->m, groups, pr->n_stations,
+                                       (const char (*)[TWF_NAME_MAX])c->station_names, err);
   if (pr->em == NULL) {
     twf_lsq_free(pr);
     return err ? err->status : TWF_ERR_NOMEM;
@@ -198,7 +202,8 @@ static int ws_alloc(twf_lsq_problem *pr, twf_lsq_ws *w, int thread)
 {
   size_t p = pr->p ? pr->p : 1, nx = 3 * NB * ((p + 3) & ~(size_t)3);
   memset(w, 0, sizeof *w);
-  w->em = thread == 0 ? pr->em : twf_errmodel_alloc(pr->m, pr->groups, NULL);
+  w->em = thread == 0 ? pr->em : twf_errmodel_alloc_stations(pr->m, pr->groups, pr->n_stations,
+                                              (const char (*)[TWF_NAME_MAX])pr->c->station_names, NULL);
   w->prefix = calloc(pr->n_joints + 1, sizeof *w->prefix);
   w->X = calloc(nx > p * p ? nx : p * p, sizeof *w->X); /* padding stays zero */
   w->Y = calloc(nx, sizeof *w->Y);
@@ -576,7 +581,8 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
     size_t t;
     if (!pose_active(pr, pose))
       continue;
-    twf_errmodel_eval_pose_some(ws->em, m, &pr->base, c->q + pose * pr->n_joints, ps->need);
+    size_t sta = twf_campaign_pose_station(c, pose);
+    twf_errmodel_eval_pose_some(ws->em, m, &pr->base[sta], sta, c->q + pose * pr->n_joints, ps->need);
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
@@ -690,7 +696,8 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
     size_t t;
     if (!pose_active(pr, pose))
       continue;
-    twf_errmodel_eval_pose_some(ws->em, m, &pr->base, c->q + pose * pr->n_joints, ps->need);
+    size_t sta = twf_campaign_pose_station(c, pose);
+    twf_errmodel_eval_pose_some(ws->em, m, &pr->base[sta], sta, c->q + pose * pr->n_joints, ps->need);
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
@@ -801,7 +808,7 @@ static void cost_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
         continue;
       if (!done) {
         twf_model_fk(m, c->q + pose * pr->n_joints, ws->prefix, &F);
-        twf_pose_mul(ps->B, &F, &T);
+        twf_pose_mul(&ps->B[twf_campaign_pose_station(c, pose)], &F, &T);
         done = 1;
       }
       w = pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i];
@@ -850,7 +857,7 @@ static int normal_cached(const twf_lsq_problem *pr, const size_t *cols, size_t n
     return 0;
   if (cols != NULL && memcmp(cols, pr->cache_cols, nc * sizeof *cols) != 0)
     return 0;
-  return memcmp(&pr->base, &pr->cache_base, sizeof pr->base) == 0 &&
+  return memcmp(pr->base, pr->cache_base, sizeof pr->base) == 0 &&
          memcmp(a->joints, b->joints, a->n_joints * sizeof *a->joints) == 0 &&
          memcmp(a->targets, b->targets, a->n_targets * sizeof *a->targets) == 0 &&
          memcmp(&a->home, &b->home, sizeof a->home) == 0;
@@ -866,7 +873,7 @@ double twf_lsq_normal(twf_lsq_problem *pr, const size_t *cols, size_t nc, double
     pr->cache_all = cols == NULL;
     if (cols != NULL)
       memcpy(pr->cache_cols, cols, n * sizeof *cols);
-    pr->cache_base = pr->base;
+    memcpy(pr->cache_base, pr->base, sizeof pr->base);
     pr->cache_weight_gen = pr->weight_gen;
     twf_lsq_model_assign(pr->snap, pr->m);
   }
@@ -928,7 +935,7 @@ typedef struct lm_state {
   gsl_matrix *M;
   gsl_vector *rhs, *x;
   double cost, lambda, nu;
-  twf_pose trial_base;
+  twf_pose trial_base[TWF_STATIONS_MAX];
 } lm_state;
 
 /* Converged when every column is orthogonal to the weighted residual
@@ -981,9 +988,9 @@ static double lm_trial(lm_state *s, double *step_max, double *pred)
   }
   *pred *= 0.5;
   twf_lsq_model_assign(pr->trial, pr->m);
-  s->trial_base = pr->base;
-  twf_errmodel_fold(pr->em, s->delta, pr->trial, &s->trial_base);
-  return cost_at(pr, pr->trial, &s->trial_base);
+  memcpy(s->trial_base, pr->base, sizeof pr->base);
+  twf_errmodel_fold(pr->em, s->delta, pr->trial, s->trial_base);
+  return cost_at(pr, pr->trial, s->trial_base);
 }
 
 static void lm_record(const lm_state *s, int iteration, double cost, int accepted)
@@ -1032,7 +1039,7 @@ static twf_status lm_iterate(lm_state *s, double *value, twf_solve_report *rep, 
       lm_record(s, rep->iterations, cost_new, 1);
       pr->m = pr->trial;
       pr->trial = tmp;
-      pr->base = s->trial_base;
+      memcpy(pr->base, s->trial_base, sizeof pr->base);
       for (a = 0; a < pr->p; a++)
         value[a] += s->delta[a];
       s->cost = twf_lsq_normal(pr, s->idx, s->nk, pr->A, pr->g);

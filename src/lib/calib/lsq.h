@@ -19,7 +19,8 @@ typedef struct twf_lsq_problem {
   size_t n_joints;
   twf_model *m;            /* working model (owned) */
   twf_model *trial;        /* trial copy (owned) */
-  twf_pose base;
+  size_t n_stations;       /* instrument stations of the campaign (>= 1) */
+  twf_pose base[TWF_STATIONS_MAX]; /* the base pose seen from each station */
   twf_errmodel *em;
   size_t p;
   size_t *pose_start;      /* measurements grouped by pose (CSR) */
@@ -47,15 +48,15 @@ typedef struct twf_lsq_problem {
   int cache_valid, cache_all;
   size_t cache_nc, *cache_cols;
   double *cacheA, *cacheg, cache_cost;
-  twf_pose cache_base;
+  twf_pose cache_base[TWF_STATIONS_MAX];
   twf_model *snap;
 } twf_lsq_problem;
 
 /* Set up the problem at model m (copied) for the parameter groups, over
  * the measurements flagged in use (borrowed: it must outlive the problem).
  * Rows without a sigma take sigma_length; orientation rows sigma_angle
- * (0: sigma_length / reach). The base starts at the identity: set
- * pr->base. */
+ * (0: sigma_length / reach). The base poses (one per station of c)
+ * start at the identity: set pr->base[]. */
 twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campaign *c,
                         unsigned groups, const unsigned char *use, double sigma_length,
                         double sigma_angle, twf_error *err);

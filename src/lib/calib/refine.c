@@ -123,7 +123,7 @@ static twf_status refine_traced(twf_model *m, const twf_campaign *c, const unsig
     free(use);
     return st;
   }
-  pr.base = *base_in_tracker;
+  memcpy(pr.base, base_in_tracker, pr.n_stations * sizeof *pr.base);
   keep = calloc(pr.p ? pr.p : 1, 1);
   if (keep == NULL)
     st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
@@ -135,7 +135,7 @@ static twf_status refine_traced(twf_model *m, const twf_campaign *c, const unsig
     *report = rep;
   if (st == TWF_OK) {
     twf_lsq_model_assign(m, pr.m);
-    *base_in_tracker = pr.base;
+    memcpy(base_in_tracker, pr.base, pr.n_stations * sizeof *pr.base);
     if (excluded != NULL)
       for (i = 0; i < c->n_meas; i++)
         excluded[i] = use[i] && pr.weight[i] == 0.0;
@@ -168,7 +168,7 @@ twf_status twf_register_and_refine(twf_model *model, const twf_campaign *c,
   twf_model *work = NULL;
   double *offsets = NULL;
   unsigned char *fit = NULL, *seen = NULL, *ex = NULL;
-  twf_pose base;
+  twf_pose base[TWF_STATIONS_MAX];
   size_t i, k;
   twf_status st;
   double t0 = twf_trace_now();
@@ -188,7 +188,7 @@ twf_status twf_register_and_refine(twf_model *model, const twf_campaign *c,
     goto done;
   }
   twf_register_offsets_init(model, offsets);
-  st = twf_register_campaign(model, c, &ropt, &base, offsets, &rep.alternation, err);
+  st = twf_register_campaign(model, c, &ropt, base, offsets, &rep.alternation, err);
   twf_trace_stage(trace, "registration", t0);
   if (st != TWF_OK)
     goto done;
@@ -203,7 +203,7 @@ twf_status twf_register_and_refine(twf_model *model, const twf_campaign *c,
       work->targets[k].offset_known = 1;
   }
   t0 = twf_trace_now();
-  st = refine_traced(work, c, fit, &fopt, &base, &rep.refinement, ex, trace, err);
+  st = refine_traced(work, c, fit, &fopt, base, &rep.refinement, ex, trace, err);
   twf_trace_stage(trace, "registration refinement", t0);
   if (st != TWF_OK)
     goto done;
@@ -211,7 +211,7 @@ twf_status twf_register_and_refine(twf_model *model, const twf_campaign *c,
     rep.n_excluded += ex[i];
   rep.robust_threshold = fopt.screen ? fopt.robust_threshold : 0.0;
   twf_lsq_model_assign(model, work);
-  *base_in_tracker = base;
+  memcpy(base_in_tracker, base, twf_campaign_station_count(c) * sizeof *base);
   if (excluded != NULL)
     memcpy(excluded, ex, c->n_meas);
 done:

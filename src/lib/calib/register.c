@@ -307,6 +307,8 @@ typedef struct reg_work {
   int *fitted;        /* per target: offset fitted */
   double *t_sum;      /* per target: accumulators of the offset solve */
   double *t_w;
+  size_t *sta;        /* station of each fit-set measurement */
+  double *w_sta;      /* weights masked to one station */
 } reg_work;
 
 static void reg_work_free(reg_work *wk)
@@ -321,6 +323,8 @@ static void reg_work_free(reg_work *wk)
   free(wk->fitted);
   free(wk->t_sum);
   free(wk->t_w);
+  free(wk->sta);
+  free(wk->w_sta);
 }
 
 static void flange_point(const twf_pose *F, const double t[3], double out[3])
@@ -404,7 +408,7 @@ static double orientation_spread(const reg_work *wk, const twf_campaign *c,
  * (sum w) I because every R_Fj is a rotation, so the 3x3 system solves in
  * closed form: t = sum w R_Fj^T (R_B^T (y_j - p_B) - p_Fj) / sum w. */
 static void solve_offsets(reg_work *wk, const twf_campaign *c,
-                          const twf_pose *B, size_t n_targets,
+                          const twf_pose *Bs, size_t n_targets,
                           double *offsets)
 {
   size_t i, k;
@@ -416,6 +420,7 @@ static void solve_offsets(reg_work *wk, const twf_campaign *c,
   for (i = 0; i < wk->n; i++) {
     const twf_measurement *me = &c->meas[wk->meas[i]];
     const twf_pose *F = &wk->flange[me->pose];
+    const twf_pose *B = &Bs[wk->sta[i]];
     double d[3], z[3];
     k = me->target;
     if (!wk->fitted[k])
@@ -545,10 +550,11 @@ twf_status twf_register_campaign(const twf_model *model,
   const twf_register_options *o = options ? options : &def;
   reg_work wk;
   twf_register_report rep;
-  twf_pose B;
+  twf_pose B[TWF_STATIONS_MAX];
   double *offsets = NULL;
   size_t *fit_count = NULL, *check_count = NULL;
-  size_t i, k, nt, nj;
+  size_t i, k, nt, nj, n_st, sp;
+  size_t sta_poses[TWF_STATIONS_MAX];
   int any_fitted = 0;
   twf_status st = TWF_OK;
 
@@ -566,6 +572,10 @@ twf_status twf_register_campaign(const twf_model *model,
                          "alternation limit at least 1");
   nt = model->n_targets;
   nj = model->n_joints;
+  n_st = twf_campaign_station_count(campaign);
+  memset(sta_poses, 0, sizeof sta_poses);
+  if (n_st > TWF_STATIONS_MAX || (campaign->n_stations > 0 && campaign->pose_station == NULL))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "invalid station table");
   if (campaign->n_joints != nj)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
                          "the campaign has %zu joint values per pose, the "
@@ -633,7 +643,9 @@ twf_status twf_register_campaign(const twf_model *model,
   wk.y = malloc((wk.n ? 3 * wk.n : 1) * sizeof *wk.y);
   wk.pred = malloc((wk.n ? 3 * wk.n : 1) * sizeof *wk.pred);
   wk.flange = malloc((campaign->n_poses ? campaign->n_poses : 1) * sizeof *wk.flange);
-  if (!wk.meas || !wk.w || !wk.a || !wk.y || !wk.pred || !wk.flange) {
+  wk.sta = malloc((wk.n ? wk.n : 1) * sizeof *wk.sta);
+  wk.w_sta = malloc((wk.n ? wk.n : 1) * sizeof *wk.w_sta);
+  if (!wk.meas || !wk.w || !wk.a || !wk.y || !wk.pred || !wk.flange || !wk.sta || !wk.w_sta) {
     st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL,
                        "out of memory for the registration");
     goto done;
@@ -650,11 +662,13 @@ twf_status twf_register_campaign(const twf_model *model,
         goto done;
       }
       wk.meas[j] = i;
+      wk.sta[j] = twf_campaign_pose_station(campaign, me->pose);
       twf_v3_copy(me->pos, wk.y + 3 * j);
       j++;
       if (!wk.pose_used[me->pose]) {
         wk.pose_used[me->pose] = 1;
         wk.n_poses_used++;
+        sta_poses[wk.sta[j - 1]]++;
         twf_model_fk(model, campaign->q + me->pose * nj, NULL,
                      &wk.flange[me->pose]);
       }
@@ -662,19 +676,47 @@ twf_status twf_register_campaign(const twf_model *model,
   }
   rep.n_poses_used = wk.n_poses_used;
   fill_weights(&wk, campaign, o);
+  /* Each station has its own instrument frame: its base pose comes from
+   * its own poses alone (the same registration on the station's rows),
+   * the target offsets from every station's. */
+  if (n_st > 1)
+    for (sp = 0; sp < n_st; sp++)
+      if (sta_poses[sp] < TWF_STATION_POSES_MIN) {
+        st = twf_error_set(err, TWF_ERR_DEGENERATE, NULL, 0, 0,
+                           "measure more poses from this station, or merge its rows into "
+                           "another station's if the instrument did not move",
+                           "station '%s' has %zu pose%s in the fit set: a station's base pose "
+                           "needs at least %d", campaign->station_names[sp], sta_poses[sp],
+                           sta_poses[sp] == 1 ? "" : "s", TWF_STATION_POSES_MIN);
+        goto done;
+      }
 
   /* Alternate: B from the points predicted with the current offsets, then
    * the fitted offsets given B (block coordinate descent: the weighted sum
    * of squares never increases), until the predicted points stop moving. */
   predict_points(&wk, campaign, offsets);
   for (;;) {
-    size_t n_pos;
-    int which;
-    reg_outcome oc = register_core(wk.a, wk.y, wk.w, wk.n, &B, &n_pos, &which);
+    size_t n_pos = 0;
+    int which = 0;
+    reg_outcome oc = REG_OK;
     double change = 0.0;
+    for (sp = 0; sp < n_st && oc == REG_OK; sp++) {
+      const double *w = wk.w;
+      if (n_st > 1) {
+        for (i = 0; i < wk.n; i++)
+          wk.w_sta[i] = wk.sta[i] == sp ? wk.w[i] : 0.0;
+        w = wk.w_sta;
+      }
+      oc = register_core(wk.a, wk.y, w, wk.n, &B[sp], &n_pos, &which);
+    }
     if (oc != REG_OK) {
       st = degenerate_message(model, &wk, oc, n_pos, which,
                               rep.iterations == 0, any_fitted, offsets, err);
+      if (n_st > 1 && err != NULL) {
+        char msg[TWF_ERROR_TEXT_MAX];
+        snprintf(msg, sizeof msg, "station '%.63s': %.400s", campaign->station_names[sp - 1], err->message);
+        twf_strlcpy(err->message, msg, sizeof err->message);
+      }
       goto done;
     }
     rep.iterations++;
@@ -682,11 +724,11 @@ twf_status twf_register_campaign(const twf_model *model,
       rep.converged = 1;
       break;
     }
-    solve_offsets(&wk, campaign, &B, nt, offsets);
+    solve_offsets(&wk, campaign, B, nt, offsets);
     predict_points(&wk, campaign, offsets);
     for (i = 0; i < wk.n; i++) {
       double yp[3], d[3];
-      twf_pose_apply(&B, wk.a + 3 * i, yp);
+      twf_pose_apply(&B[wk.sta[i]], wk.a + 3 * i, yp);
       if (rep.iterations > 1) { /* no previous prediction before */
         d[0] = yp[0] - wk.pred[3 * i];
         d[1] = yp[1] - wk.pred[3 * i + 1];
@@ -711,7 +753,7 @@ twf_status twf_register_campaign(const twf_model *model,
     double ss = 0.0, mx = 0.0;
     for (i = 0; i < wk.n; i++) {
       double yp[3], d[3], l;
-      twf_pose_apply(&B, wk.a + 3 * i, yp);
+      twf_pose_apply(&B[wk.sta[i]], wk.a + 3 * i, yp);
       d[0] = wk.y[3 * i] - yp[0];
       d[1] = wk.y[3 * i + 1] - yp[1];
       d[2] = wk.y[3 * i + 2] - yp[2];
@@ -738,7 +780,7 @@ twf_status twf_register_campaign(const twf_model *model,
         rep.n_inseparable++;
       }
   }
-  *base_in_tracker = B;
+  memcpy(base_in_tracker, B, n_st * sizeof *B);
   memcpy(target_offsets, offsets, 3 * nt * sizeof *offsets);
   if (report != NULL)
     *report = rep;

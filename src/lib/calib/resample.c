@@ -32,6 +32,13 @@ typedef struct boot {
   double *value;                   /* n_refits x p, NaN where not estimated */
   double *check;                   /* n_refits x TWF_RESAMPLE_FIGURES, NaN without */
   unsigned char *ok;
+  /* Instrument stations: the draw is stratified, a fit pose of station s
+   * replaced by one of that station's (so every station keeps its count
+   * of poses, which the day's set-up fixed): fit_of_station lists the
+   * indices into fit_pose of each station's, station-major. With one
+   * station it is 0, 1, ... and the draws are those of a plain
+   * bootstrap. */
+  size_t n_stations, *fit_of_station, sta_start[TWF_STATIONS_MAX + 1];
   pthread_mutex_t mu;
   size_t next;
 } boot;
@@ -54,7 +61,9 @@ static void refit(boot *b, size_t k)
   if (draw == NULL)
     return;
   for (i = 0; i < b->n_fit_poses; i++) {
-    draw[i] = (size_t)(twf_rng_next(&s) % b->n_fit_poses);
+    size_t st = twf_campaign_pose_station(c, b->fit_pose[i]);
+    size_t n_st = b->sta_start[st + 1] - b->sta_start[st];
+    draw[i] = b->fit_of_station[b->sta_start[st] + (size_t)(twf_rng_next(&s) % n_st)];
     n_meas += b->fit_start[draw[i] + 1] - b->fit_start[draw[i]];
   }
   n_meas += b->check_start[b->n_check_poses];
@@ -78,6 +87,20 @@ static void refit(boot *b, size_t k)
       mi++;
     }
   }
+  if (c->n_stations > 0) {
+    size_t *ps = malloc((n_poses ? n_poses : 1) * sizeof *ps);
+    twf_status sst;
+    if (ps == NULL)
+      goto done;
+    for (i = 0; i < n_poses; i++) {
+      int fit = i < b->n_fit_poses;
+      ps[i] = twf_campaign_pose_station(c, fit ? b->fit_pose[draw[i]] : b->check_pose[i - b->n_fit_poses]);
+    }
+    sst = twf_campaign_set_stations(rc, c->n_stations, (const char (*)[TWF_NAME_MAX])c->station_names, ps, NULL);
+    free(ps);
+    if (sst != TWF_OK)
+      goto done;
+  }
   if (twf_calibrate(b->start, rc, &b->opt, &res, NULL, &err) != TWF_OK)
     goto done;
   b->ok[k] = 1;
@@ -85,27 +108,32 @@ static void refit(boot *b, size_t k)
    * registration: express the base and the registered target offsets
    * against the base result's registration, where they compare. */
   {
-    double step[6] = { 0, 0, 0, 0, 0, 0 }, xi[6] = { 0, 0, 0, 0, 0, 0 };
+    double step[TWF_STATIONS_MAX][6], xi[TWF_STATIONS_MAX][6];
     twf_pose E, Bk, B0inv, D;
-    int any_base = 0;
+    int any_base[TWF_STATIONS_MAX];
+    size_t sta;
+    memset(step, 0, sizeof step);
+    memset(xi, 0, sizeof xi);
+    memset(any_base, 0, sizeof any_base);
     for (a = 0; a < b->p && a < res->n_params; a++)
       if (res->params[a].param.group == TWF_GROUP_BASE) {
-        step[res->params[a].param.component] = res->params[a].change;
-        any_base = 1;
+        step[res->params[a].param.station][res->params[a].param.component] = res->params[a].change;
+        any_base[res->params[a].param.station] = 1;
       }
-    if (any_base) {
-      twf_se3_exp(step, 1.0, &E);
-      twf_pose_mul(&res->base_before, &E, &Bk);
-      twf_pose_inv(&b->base->base_before, &B0inv);
-      twf_pose_mul(&B0inv, &Bk, &D);
-      twf_se3_log(&D, xi);
-    }
+    for (sta = 0; sta < b->n_stations; sta++)
+      if (any_base[sta]) {
+        twf_se3_exp(step[sta], 1.0, &E);
+        twf_pose_mul(&res->station_base_before[sta], &E, &Bk);
+        twf_pose_inv(&b->base->station_base_before[sta], &B0inv);
+        twf_pose_mul(&B0inv, &Bk, &D);
+        twf_se3_log(&D, xi[sta]);
+      }
     for (a = 0; a < b->p && a < res->n_params; a++) {
       const twf_param *par = &res->params[a].param;
       if (res->params[a].status != TWF_PARAM_KEPT)
         continue;
       if (par->group == TWF_GROUP_BASE)
-        v[a] = xi[par->component];
+        v[a] = xi[par->station][par->component];
       else if (par->group == TWF_GROUP_TARGETS)
         v[a] = res->params[a].change + res->registered->targets[par->target].offset[par->component] -
                b->base->registered->targets[par->target].offset[par->component];
@@ -231,6 +259,26 @@ twf_status twf_calibrate_resample(const twf_model *start, const twf_campaign *c,
   if (rows_by_pose(c, base, TWF_SET_FIT, &b.fit_pose, &b.fit_start, &b.fit_meas, &b.n_fit_poses) != 0 ||
       rows_by_pose(c, base, TWF_SET_CHECK, &b.check_pose, &b.check_start, &b.check_meas, &b.n_check_poses) != 0)
     goto nomem;
+  /* the fit poses of each station, for the stratified draw */
+  b.n_stations = twf_campaign_station_count(c);
+  b.fit_of_station = malloc((b.n_fit_poses ? b.n_fit_poses : 1) * sizeof *b.fit_of_station);
+  if (b.fit_of_station == NULL)
+    goto nomem;
+  {
+    size_t sta, i2, n2 = 0;
+    for (sta = 0; sta < b.n_stations; sta++) {
+      b.sta_start[sta] = n2;
+      for (i2 = 0; i2 < b.n_fit_poses; i2++)
+        if (twf_campaign_pose_station(c, b.fit_pose[i2]) == sta)
+          b.fit_of_station[n2++] = i2;
+      if (n2 == b.sta_start[sta]) {
+        st = twf_error_set(err, TWF_ERR_DEGENERATE, NULL, 0, 0, NULL,
+                           "station '%s' has no fit pose to resample", c->station_names[sta]);
+        goto fail_early;
+      }
+    }
+    b.sta_start[b.n_stations] = n2;
+  }
   b.value = malloc(n_refits * (b.p ? b.p : 1) * sizeof *b.value);
   b.check = malloc(n_refits * TWF_RESAMPLE_FIGURES * sizeof *b.check);
   b.ok = calloc(n_refits, 1);
@@ -289,8 +337,10 @@ twf_status twf_calibrate_resample(const twf_model *start, const twf_campaign *c,
   goto done;
 nomem:
   st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+fail_early:
 done:
   twf_resample_result_free(r);
+  free(b.fit_of_station);
   free(b.fit_pose); free(b.fit_start); free(b.fit_meas);
   free(b.check_pose); free(b.check_start); free(b.check_meas);
   free(b.value); free(b.check); free(b.ok);

@@ -55,9 +55,36 @@ twf_campaign *twf_simulate_campaign(const twf_model *truth, const twf_pose *base
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
                          "give targets with known offsets and at least one pose",
                          "nothing to simulate"), NULL;
+  if (opt.n_stations > TWF_STATIONS_MAX ||
+      (opt.n_stations > 0 && (opt.station_base == NULL || opt.station_names == NULL)) ||
+      (opt.n_stations == 0 && base_in_tracker == NULL))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "give a base pose, or 1 to %d stations with their base poses and names",
+                         TWF_STATIONS_MAX), NULL;
+  for (i = 0; opt.pose_station != NULL && i < opt.n_poses; i++)
+    if (opt.pose_station[i] >= opt.n_stations)
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                           "pose %zu is given station %zu of %zu", i + 1, opt.pose_station[i],
+                           opt.n_stations), NULL;
   c = twf_campaign_alloc(truth->n_joints, opt.n_poses, opt.n_poses * n_targets);
   if (c == NULL)
     return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory"), NULL;
+  if (opt.n_stations > 0) {
+    size_t *ps = malloc(opt.n_poses * sizeof *ps);
+    twf_status st = ps == NULL ? TWF_ERR_NOMEM : TWF_OK;
+    for (i = 0; ps != NULL && i < opt.n_poses; i++)
+      ps[i] = opt.pose_station != NULL ? opt.pose_station[i] : i % opt.n_stations;
+    if (ps == NULL)
+      twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    else
+      st = twf_campaign_set_stations(c, opt.n_stations, opt.station_names, ps, err);
+    free(ps);
+    if (st != TWF_OK) {
+      twf_campaign_free(c);
+      return NULL;
+    }
+    base_in_tracker = NULL;
+  }
   for (i = 0; i < opt.n_poses; i++) {
     double *q = c->q + i * truth->n_joints;
     int check = opt.check_fraction > 0 && twf_rng_uniform(&state) < opt.check_fraction;
@@ -67,7 +94,7 @@ twf_campaign *twf_simulate_campaign(const twf_model *truth, const twf_pose *base
     else
       twf_simulate_joints(truth, opt.limit_margin, &state, q);
     twf_model_fk(truth, q, NULL, &F);
-    twf_pose_mul(base_in_tracker, &F, &T);
+    twf_pose_mul(base_in_tracker != NULL ? base_in_tracker : &opt.station_base[c->pose_station[i]], &F, &T);
     for (k = 0; k < truth->n_targets; k++) {
       twf_measurement *ms;
       int a;

@@ -3,6 +3,7 @@
  * campaign_pair.c, writing in campaign_write.c. */
 #include "internal.h"
 
+#include <ctype.h>
 #include <stdlib.h>
 
 twf_campaign_options twf_campaign_default_options(void)
@@ -51,5 +52,69 @@ void twf_campaign_free(twf_campaign *c)
   free(c->q);
   free(c->pose_lines);
   free(c->meas);
+  free(c->station_names);
+  free(c->pose_station);
   free(c);
+}
+
+size_t twf_campaign_station_count(const twf_campaign *c)
+{
+  return c->n_stations > 1 ? c->n_stations : 1;
+}
+
+size_t twf_campaign_pose_station(const twf_campaign *c, size_t p)
+{
+  return c->pose_station != NULL && p < c->n_poses ? c->pose_station[p] : 0;
+}
+
+int twf_station_name_check(const char *name)
+{
+  size_t n = 0;
+  const char *s;
+  if (name == NULL || !isalnum((unsigned char)name[0]))
+    return -1;
+  for (s = name; *s; s++, n++)
+    if (!isalnum((unsigned char)*s) && *s != '_' && *s != '-' && *s != '.')
+      return -1;
+  return n < TWF_NAME_MAX ? 0 : -1;
+}
+
+twf_status twf_campaign_set_stations(twf_campaign *c, size_t n,
+                                     const char (*names)[TWF_NAME_MAX],
+                                     const size_t *station_of_pose,
+                                     twf_error *err)
+{
+  char (*nm)[TWF_NAME_MAX];
+  size_t *ps, k, l;
+  if (c == NULL || names == NULL || station_of_pose == NULL || n == 0 || n > TWF_STATIONS_MAX)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "give 1 to %d stations and the station of every pose", TWF_STATIONS_MAX);
+  for (k = 0; k < n; k++) {
+    if (memchr(names[k], '\0', TWF_NAME_MAX) == NULL || twf_station_name_check(names[k]) != 0)
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+                           "use letters, digits, '_', '-' and '.'", "invalid station name");
+    for (l = 0; l < k; l++)
+      if (strcmp(names[k], names[l]) == 0)
+        return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                             "station '%s' is named twice", names[k]);
+  }
+  for (k = 0; k < c->n_poses; k++)
+    if (station_of_pose[k] >= n)
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                           "pose %zu has station index %zu of %zu", k, station_of_pose[k], n);
+  nm = malloc(n * sizeof *nm);
+  ps = malloc((c->n_poses ? c->n_poses : 1) * sizeof *ps);
+  if (nm == NULL || ps == NULL) {
+    free(nm);
+    free(ps);
+    return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+  }
+  memcpy(nm, names, n * sizeof *nm);
+  memcpy(ps, station_of_pose, c->n_poses * sizeof *ps);
+  free(c->station_names);
+  free(c->pose_station);
+  c->station_names = nm;
+  c->pose_station = ps;
+  c->n_stations = n;
+  return TWF_OK;
 }

@@ -23,7 +23,7 @@ static inline int twf_creader_is_blank(char ch) { return ch == ' ' || ch == '\t'
 
 enum col_role {
   COL_POSE, COL_TARGET, COL_JOINT, COL_X, COL_Y, COL_Z,
-  COL_QW, COL_QX, COL_QY, COL_QZ, COL_SIGMA, COL_SET, COL_N
+  COL_QW, COL_QX, COL_QY, COL_QZ, COL_SIGMA, COL_SET, COL_STATION, COL_N
 };
 
 /* Reserved column names; COL_JOINT columns carry the model's joint names. */
@@ -107,6 +107,7 @@ typedef struct creader {
   size_t n_rowlike;
   long rowlike_line;
   char rowlike_id[TWF_NAME_MAX];
+  size_t cap_pst;    /* capacity of c->pose_station (campaign_station.c) */
 } creader;
 
 /* A joint value in the file's units to SI and back (units.c does the
@@ -177,6 +178,12 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
  * it for the warning of twf_creader_read_file. */
 void twf_creader_rowlike_comment(creader *r, long line, const char *p,
                                  const char *le);
+
+/* campaign_station.c: the optional station column (one per pose, in the
+ * one-file form and the joints file): the station of pose, new_pose 1
+ * when the row added it, else it must repeat the pose's station. */
+twf_status twf_creader_field_station(creader *r, const twf_csv_row *row,
+                                     size_t pose, int new_pose);
 
 /* campaign_pair.c: rows of the two-file form */
 twf_status twf_creader_row_joints(creader *r, const twf_csv_row *row);

@@ -105,9 +105,12 @@ static twf_status row_one(creader *r, const twf_csv_row *row)
     return st;
   pose = twf_idmap_find(&r->poses, r->c->pose_ids, id);
   if (pose == NONE) {
-    if ((st = twf_creader_pose_add(r, id, r->qbuf, row->line, &pose)) != TWF_OK)
+    if ((st = twf_creader_pose_add(r, id, r->qbuf, row->line, &pose)) != TWF_OK ||
+        (st = twf_creader_field_station(r, row, pose, 1)) != TWF_OK)
       return st;
   } else {
+    if ((st = twf_creader_field_station(r, row, pose, 0)) != TWF_OK)
+      return st;
     const double *q0 = r->c->q + pose * nj;
     for (j = 0; j < nj; j++)
       if (q0[j] != r->qbuf[j])

@@ -36,6 +36,13 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
                          "campaign, model and output are required");
   if ((unsigned)length_unit > TWF_LENGTH_IN || (unsigned)angle_unit > TWF_ANGLE_MRAD)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "invalid unit");
+  if (c->n_stations > TWF_STATIONS_MAX || (c->n_stations > 0 && (c->station_names == NULL ||
+                                                                  c->pose_station == NULL)))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "invalid station table");
+  for (p = 0; c->n_stations > 0 && p < c->n_poses; p++)
+    if (c->pose_station[p] >= c->n_stations)
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                           "pose %zu has a station index out of range", p);
   nj = c->n_joints;
   if (nj != m->n_joints)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
@@ -93,7 +100,7 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
     fputs(",qw,qx,qy,qz", out);
   if (any_sigma)
     fputs(",sigma", out);
-  fputs(",set\n", out);
+  fputs(c->n_stations > 0 ? ",set,station\n" : ",set\n", out);
   for (k = 0; k < c->n_meas; k++) {
     const twf_measurement *ms = &c->meas[order[k]];
     put_text(out, c->pose_ids[ms->pose]);
@@ -119,7 +126,12 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
       else
         fputc(',', out);
     }
-    fputs(ms->set == TWF_SET_CHECK ? ",check\n" : ",fit\n", out);
+    fputs(ms->set == TWF_SET_CHECK ? ",check" : ",fit", out);
+    if (c->n_stations > 0) {
+      fputc(',', out);
+      put_text(out, c->station_names[twf_campaign_pose_station(c, ms->pose)]);
+    }
+    fputc('\n', out);
   }
   twf_io_c_locale_leave(&loc);
   free(count);

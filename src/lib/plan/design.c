@@ -62,6 +62,38 @@ twf_status twf_design_init(twf_design *d, const twf_model *m, const twf_pose *ba
   return TWF_OK;
 }
 
+twf_status twf_design_set_stations(twf_design *d, size_t n_stations, const char (*names)[TWF_NAME_MAX],
+                                   const twf_pose *bases, unsigned groups, twf_error *err)
+{
+  twf_errmodel *em = twf_errmodel_alloc_stations(d->m, groups, n_stations, names, err);
+  double *scale, *buf;
+  size_t k, p;
+  if (em == NULL)
+    return err ? err->status : TWF_ERR_NOMEM;
+  p = twf_errmodel_n_params(em);
+  scale = calloc(p ? p : 1, sizeof *scale);
+  buf = calloc(3 * (p ? p : 1), sizeof *buf);
+  if (scale == NULL || buf == NULL) {
+    twf_errmodel_free(em);
+    free(scale);
+    free(buf);
+    return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+  }
+  for (k = 0; k < p; k++)
+    scale[k] = twf_errmodel_param_scale(em, k);
+  twf_errmodel_free(d->em);
+  free(d->scale);
+  free(d->buf);
+  d->em = em;
+  d->p = p;
+  d->scale = scale;
+  d->buf = buf;
+  d->n_stations = n_stations;
+  d->grad_station = 0;
+  memcpy(d->station_base, bases, n_stations * sizeof *bases);
+  return TWF_OK;
+}
+
 void twf_design_free(twf_design *d)
 {
   if (d == NULL)
@@ -120,7 +152,10 @@ void twf_design_rows(twf_design *d, const double *q, double *out)
 void twf_design_grad(twf_design *d, const double *q, double *pos, double *rot)
 {
   twf_pose T;
-  twf_errmodel_eval_pose(d->em, d->m, &d->base, q, &T);
+  if (d->n_stations > 1 && d->grad_station < d->n_stations)
+    twf_errmodel_eval_station(d->em, d->m, &d->station_base[d->grad_station], d->grad_station, q, &T);
+  else
+    twf_errmodel_eval_pose(d->em, d->m, &d->base, q, &T);
   pose_rows(d, &T, pos, 1.0, 1.0, 0, 1, rot);
 }
 

@@ -20,6 +20,10 @@ typedef struct twf_design {
   double inv_sigma_rot;  /* 1/rad */
   size_t r;              /* rows per pose: n_tg (3 or 6) */
   double *buf;           /* 3 x p */
+  /* Several instrument stations (twf_design_set_stations): the base pose
+   * of each, and the station twf_design_grad takes its rows at (0: base). */
+  size_t n_stations, grad_station;
+  twf_pose station_base[TWF_STATIONS_MAX];
 } twf_design;
 
 /* Set up the design for m (copied) seen from base (NULL: identity) with
@@ -29,6 +33,13 @@ twf_status twf_design_init(twf_design *d, const twf_model *m, const twf_pose *ba
                            unsigned groups, const unsigned char *targets, int orientation,
                            double sigma_len, double sigma_rot, twf_error *err);
 void twf_design_free(twf_design *d);
+/* Replace d's error model by one of n_stations instrument stations (base
+ * group 6 per station, twf_errmodel_alloc_stations): for the covariance of
+ * a calibration of several stations, seen from bases[] (n_stations).
+ * d->base stays station 0's, where the rows of twf_design_rows are taken;
+ * twf_design_grad takes them at d->grad_station (default 0). */
+twf_status twf_design_set_stations(twf_design *d, size_t n_stations, const char (*names)[TWF_NAME_MAX],
+                                   const twf_pose *bases, unsigned groups, twf_error *err);
 
 /* The r x p rows one pose gives: derivative of the predictions, columns
  * scaled (D), rows weighted by 1/sigma. */

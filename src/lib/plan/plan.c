@@ -75,6 +75,7 @@ void twf_plan_result_free(twf_plan_result *r)
   if (r == NULL)
     return;
   free(r->q);
+  free(r->station);
   free(r->candidate);
   twf_assessment_free(r->assessment);
   free(r);
@@ -87,10 +88,41 @@ static int measured(const twf_model *m, const twf_plan_options *o, size_t k)
   return m->targets[k].offset_known && (o->assess.targets == NULL || o->assess.targets[k]);
 }
 
-int twf_plan_pose_check(const twf_model *m, const twf_plan_options *o, const double *q)
+/* 0 when the instrument at pos sees every measured target of the pose
+ * whose flange is F, 3 when one is out of range, 4 when one faces away. */
+static int station_sees(const twf_model *m, const twf_plan_options *o, const double pos[3], const twf_pose *F)
 {
-  size_t j, b, k;
+  size_t k;
+  for (k = 0; k < m->n_targets; k++) {
+    double y[3], d[3], dist, axis[3], c;
+    int a;
+    if (!measured(m, o, k))
+      continue;
+    twf_pose_apply(F, m->targets[k].offset, y);
+    for (a = 0; a < 3; a++)
+      d[a] = pos[a] - y[a];
+    dist = twf_v3_norm(d);
+    if (dist < o->range_min || dist > o->range_max)
+      return 3;
+    if (o->acceptance_rad > 0) {
+      for (a = 0; a < 3; a++)
+        axis[a] = F->R[a][0] * o->target_axis[0] + F->R[a][1] * o->target_axis[1] + F->R[a][2] * o->target_axis[2];
+      c = twf_v3_dot(axis, d) / (twf_v3_norm(axis) * (dist > 0 ? dist : 1.0));
+      if (c < cos(o->acceptance_rad))
+        return 4;
+    }
+  }
+  return 0;
+}
+
+/* The check of twf_plan_pose_check, and in *station the first station
+ * that sees the pose (-1 when none). */
+static int pose_check_station(const twf_model *m, const twf_plan_options *o, const double *q, long *station)
+{
+  size_t j, b, s;
   twf_pose F;
+  int why = 3;
+  *station = -1;
   for (j = 0; j < m->n_joints; j++) {
     const twf_joint *jt = &m->joints[j];
     if (!isfinite(q[j]) || (jt->has_limits && (q[j] < jt->limit_lo - 1e-9 || q[j] > jt->limit_hi + 1e-9)))
@@ -103,29 +135,42 @@ int twf_plan_pose_check(const twf_model *m, const twf_plan_options *o, const dou
     if (inside)
       return 2;
   }
-  if (!o->has_instrument)
+  if (!o->has_instrument && o->n_instruments == 0) {
+    *station = 0;
     return 0;
-  twf_model_fk(m, q, NULL, &F);
-  for (k = 0; k < m->n_targets; k++) {
-    double y[3], d[3], dist, axis[3], c;
-    int a;
-    if (!measured(m, o, k))
-      continue;
-    twf_pose_apply(&F, m->targets[k].offset, y);
-    for (a = 0; a < 3; a++)
-      d[a] = o->instrument[a] - y[a];
-    dist = twf_v3_norm(d);
-    if (dist < o->range_min || dist > o->range_max)
-      return 3;
-    if (o->acceptance_rad > 0) {
-      for (a = 0; a < 3; a++)
-        axis[a] = F.R[a][0] * o->target_axis[0] + F.R[a][1] * o->target_axis[1] + F.R[a][2] * o->target_axis[2];
-      c = twf_v3_dot(axis, d) / (twf_v3_norm(axis) * (dist > 0 ? dist : 1.0));
-      if (c < cos(o->acceptance_rad))
-        return 4;
-    }
   }
-  return 0;
+  twf_model_fk(m, q, NULL, &F);
+  if (o->n_instruments == 0) {
+    why = station_sees(m, o, o->instrument, &F);
+    if (why == 0)
+      *station = 0;
+    return why;
+  }
+  /* the reason given is the nearest miss: facing away from a station in
+   * range before out of every station's range */
+  for (s = 0; s < o->n_instruments; s++) {
+    int w = station_sees(m, o, o->instruments + 3 * s, &F);
+    if (w == 0) {
+      *station = (long)s;
+      return 0;
+    }
+    if (w == 4)
+      why = 4;
+  }
+  return why;
+}
+
+int twf_plan_pose_check(const twf_model *m, const twf_plan_options *o, const double *q)
+{
+  long s;
+  return pose_check_station(m, o, q, &s);
+}
+
+long twf_plan_pose_station(const twf_model *m, const twf_plan_options *o, const double *q)
+{
+  long s;
+  pose_check_station(m, o, q, &s);
+  return s;
 }
 
 /* ------------------------------------------------------------ small dense algebra */
@@ -661,7 +706,8 @@ static twf_status check_plan_options(const twf_model *m, const twf_plan_options 
       !(o->range_min >= 0) || !(o->range_max > o->range_min) || !(o->acceptance_rad >= 0) ||
       !(o->acceptance_rad <= TWF_PI) || (o->pool == NULL && o->n_candidates == 0) ||
       (o->pool != NULL && o->n_pool == 0) || (o->n_keepout > 0 && o->keepout == NULL) ||
-      !(twf_v3_norm(o->target_axis) > 0))
+      !(twf_v3_norm(o->target_axis) > 0) || o->n_instruments > TWF_STATIONS_MAX ||
+      (o->n_instruments > 0 && o->instruments == NULL))
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "invalid planning options");
   for (b = 0; b < o->n_keepout; b++)
     for (j = 0; j < m->n_joints; j++)
@@ -874,7 +920,39 @@ twf_status twf_plan(const twf_model *m, const twf_plan_options *o, twf_plan_resu
     for (i = 0; i < o->count; i++)
       ord[i] = i;
     res->travel_before = path_length(m, qs, ord, o->count, reach);
-    order_for_travel(m, qs, o->count, ord, reach);
+    if (o->n_instruments > 0) {
+      /* the instrument moves between stations: group the poses by
+       * station, in station order, each group ordered for travel */
+      size_t *sta = malloc(o->count * sizeof *sta), *sub = malloc(o->count * sizeof *sub), st_i, k2, n_s, off = 0;
+      double *qg = malloc(o->count * (nj ? nj : 1) * sizeof *qg);
+      res->station = malloc(o->count * sizeof *res->station);
+      if (sta == NULL || sub == NULL || qg == NULL || res->station == NULL) {
+        free(sta); free(sub); free(qg); free(qs);
+        goto nomem;
+      }
+      for (i = 0; i < o->count; i++)
+        sta[i] = (size_t)twf_plan_pose_station(m, o, qs + i * nj);
+      for (st_i = 0; st_i < o->n_instruments; st_i++) {
+        n_s = 0;
+        for (i = 0; i < o->count; i++)
+          if (sta[i] == st_i) {
+            memcpy(qg + n_s * nj, qs + i * nj, nj * sizeof *qs);
+            sub[n_s++] = i;
+          }
+        for (k2 = 0; k2 < n_s; k2++)
+          ord[off + k2] = k2;
+        if (n_s > 0)
+          order_for_travel(m, qg, n_s, ord + off, reach);
+        for (k2 = 0; k2 < n_s; k2++) {
+          ord[off + k2] = sub[ord[off + k2]];
+          res->station[off + k2] = st_i;
+        }
+        off += n_s;
+      }
+      free(sta); free(sub); free(qg);
+    } else {
+      order_for_travel(m, qs, o->count, ord, reach);
+    }
     res->travel = path_length(m, qs, ord, o->count, reach);
     for (i = 0; i < o->count; i++) {
       memcpy(res->q + i * nj, qs + ord[i] * nj, nj * sizeof *qs);

@@ -248,6 +248,12 @@ twf_predictor *twf_predictor_from_calibration(const twf_calib_result *res,
                        res->sigma_length, sigma_rot, err);
   if (st != TWF_OK)
     return NULL;
+  if (res->n_stations > 1 &&
+      twf_design_set_stations(&d, res->n_stations, (const char (*)[TWF_NAME_MAX])c->station_names,
+                              res->station_base, groups, err) != TWF_OK) {
+    twf_design_free(&d);
+    return NULL;
+  }
   p = d.p;
   if (p != res->n_params) {
     twf_design_free(&d);
@@ -305,7 +311,11 @@ twf_predictor *twf_predictor_from_calibration(const twf_calib_result *res,
       any |= weight[list[t]] > 0;
     if (!any)
       continue;
-    twf_errmodel_eval_pose(d.em, d.m, &d.base, c->q + k * c->n_joints, &T);
+    {
+      size_t sta = twf_campaign_pose_station(c, k);
+      const twf_pose *Bs = sta < res->n_stations && res->n_stations > 1 ? &res->station_base[sta] : &d.base;
+      twf_errmodel_eval_station(d.em, d.m, Bs, sta, c->q + k * c->n_joints, &T);
+    }
     for (t = start[k]; t < start[k + 1]; t++) {
       const twf_measurement *ms = &c->meas[list[t]];
       double w = weight[list[t]], y[3], r[3], s = meas_sigma(res, ms);
@@ -393,6 +403,22 @@ twf_status twf_calib_predict(const twf_calib_result *res, const twf_campaign *c,
   cp->check = twf_predict_at_configs(pr, q, n, err);
   if (cp->check == NULL)
     goto fail;
+  /* a check pose of another station: its rows, and so its base pose's
+   * uncertainty, are that station's */
+  if (pr->d.n_stations > 1) {
+    for (i = 0; i < n; i++) {
+      double o;
+      pr->d.grad_station = twf_campaign_pose_station(c, cp->check_pose[i]);
+      twf_predictor_at(pr, q + i * nj, &cp->check->position[i], &o);
+      if (cp->check->orientation != NULL)
+        cp->check->orientation[i] = o;
+    }
+    pr->d.grad_station = 0;
+    if (twf_accuracy_stats(cp->check->position, n, &cp->check->position_stats, err) != TWF_OK ||
+        twf_accuracy_stats(cp->check->orientation, cp->check->orientation ? n : 0,
+                           &cp->check->orientation_stats, err) != TWF_OK)
+      goto fail;
+  }
   /* the measured check errors hold the model's error and the noise of
    * the three coordinates of each row */
   {

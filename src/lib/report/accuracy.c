@@ -108,7 +108,7 @@ twf_status twf_accuracy_residuals(const twf_model *model,
     if (me->pose != last_pose) {
       twf_pose F;
       twf_model_fk(model, campaign->q + me->pose * model->n_joints, NULL, &F);
-      twf_pose_mul(base_in_tracker, &F, &T);
+      twf_pose_mul(&base_in_tracker[twf_campaign_pose_station(campaign, me->pose)], &F, &T);
       last_pose = me->pose;
     }
     six_d = twf_meas_residual(&T, t + 3 * me->target, me, pos, rot);
@@ -711,7 +711,23 @@ twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
   g.model = model;
   g.tol = o->joint_tol;
   g.tol_prismatic = o->joint_tol_prismatic > 0 ? o->joint_tol_prismatic : o->joint_tol;
-  group_segment(&g, poses, n_used, 0);
+  /* Visits of one commanded pose from different instrument stations are
+   * in different frames: group each station's poses on their own. */
+  {
+    size_t n_st = twf_campaign_station_count(campaign), sp, off = 0, k2, n_s;
+    for (sp = 0; sp < n_st; sp++) {
+      n_s = 0;
+      for (k2 = off; k2 < n_used; k2++)
+        if (twf_campaign_pose_station(campaign, poses[k2]) == sp) {
+          size_t tmp = poses[off + n_s];
+          poses[off + n_s] = poses[k2];
+          poses[k2] = tmp;
+          n_s++;
+        }
+      group_segment(&g, poses + off, n_s, 0);
+      off += n_s;
+    }
+  }
 
   /* Poses of each group, in pose order; groups numbered by first visit. */
   group_size = calloc(g.n_groups + 1, sizeof *group_size);
@@ -770,7 +786,7 @@ twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
       spread = fmax(spread, hi - lo);
     }
     twf_model_fk(model, qmean, NULL, &F);
-    twf_pose_mul(base_in_tracker, &F, &T);
+    twf_pose_mul(&base_in_tracker[twf_campaign_pose_station(campaign, first_pose[gr])], &F, &T);
     for (k = 0; k < nt; k++) {
       tcount[k] = 0;
       tsum[3 * k] = tsum[3 * k + 1] = tsum[3 * k + 2] = 0.0;
@@ -850,7 +866,8 @@ twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
       e->joint_spread = spread;
     }
     /* orientation: one 6-D row per visit (the flange's, whichever target) */
-    if (iso_orientation(campaign, base_in_tracker, &F, gp, n, pose_start, pose_meas, o->min_visits,
+    if (iso_orientation(campaign, &base_in_tracker[twf_campaign_pose_station(campaign, first_pose[gr])],
+                        &F, gp, n, pose_start, pose_meas, o->min_visits,
                         res->n_groups, first_pose[gr], res, &ocap) != TWF_OK)
       goto nomem;
     /* a group counts once, whether one target or several qualified */

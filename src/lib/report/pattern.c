@@ -253,7 +253,7 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
       vb[0] += J[3 * nj + j];
       vb[1] += J[4 * nj + j];
       vb[2] += J[5 * nj + j];
-      twf_pose_rotate(base_in_instrument, vb, vi);
+      twf_pose_rotate(&base_in_instrument[twf_campaign_pose_station(c, ms->pose)], vb, vi);
       f[COL_CONST] = 1.0;
       f[COL_SLOPE] = q[j];
       f[COL_H1] = sin(q[j]);

@@ -207,6 +207,7 @@ static double param_shown(const twf_param *p, double v, const cli_units *u, cons
   case TWF_PARAM_LENGTH: *unit = u->length; return v / u->length_si;
   case TWF_PARAM_ANGLE: *unit = u->angle; return v / u->angle_si;
   case TWF_PARAM_RATIO: break;
+  case TWF_PARAM_COMPLIANCE: *unit = "urad/Nm"; return v * 1e6;
   }
   *unit = "ppm";
   return v * 1e6;

@@ -401,6 +401,7 @@ static twf_status synthetic_factor(const twf_lsq_problem *pr, size_t n_poses, un
 {
   const twf_model *m = pr->m;
   size_t p = pr->p, n = m->n_joints, s, k;
+  long pl;
   double *q = calloc(n ? n : 1, sizeof *q);
   double *rows = calloc(3 * (p ? p : 1), sizeof *rows);
   unsigned long long st = seed;
@@ -416,6 +417,10 @@ static twf_status synthetic_factor(const twf_lsq_problem *pr, size_t n_poses, un
       double hi = jt->has_limits ? jt->limit_hi : (jt->type == TWF_JOINT_REVOLUTE ? TWF_PI : 0.1);
       q[k] = lo + (hi - lo) * twf_rng_uniform(&st);
     }
+    /* every load the model declares in turn, so that a compliance is
+     * judged on every torque the campaign could give */
+    pl = m->n_payloads > 0 ? (long)(s % (m->n_payloads + 1)) - 1 : -1;
+    twf_errmodel_set_payload(pr->em, pl);
     twf_errmodel_eval_pose(pr->em, m, &pr->base, q, NULL);
     for (k = 0; k < m->n_targets; k++) {
       double y[3];
@@ -428,7 +433,7 @@ static twf_status synthetic_factor(const twf_lsq_problem *pr, size_t n_poses, un
         } else {
           double r[3];
           twf_pose T;
-          twf_model_fk(m, q, NULL, &T);
+          twf_model_fk_load(m, q, pl, NULL, &T);
           twf_pose_mul(&pr->base, &T, &T);
           twf_errmodel_orientation(pr->em, T.R, r, rows);
         }

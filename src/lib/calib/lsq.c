@@ -576,6 +576,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
     size_t t;
     if (!pose_active(pr, pose))
       continue;
+    twf_errmodel_set_payload(ws->em, twf_campaign_payload(c, pose));
     twf_errmodel_eval_pose_some(ws->em, m, &pr->base, c->q + pose * pr->n_joints, ps->need);
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
@@ -690,6 +691,7 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
     size_t t;
     if (!pose_active(pr, pose))
       continue;
+    twf_errmodel_set_payload(ws->em, twf_campaign_payload(c, pose));
     twf_errmodel_eval_pose_some(ws->em, m, &pr->base, c->q + pose * pr->n_joints, ps->need);
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
@@ -800,7 +802,8 @@ static void cost_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
       if (!twf_lsq_active(pr, i))
         continue;
       if (!done) {
-        twf_model_fk(m, c->q + pose * pr->n_joints, ws->prefix, &F);
+        twf_model_fk_load(m, c->q + pose * pr->n_joints, twf_campaign_payload(c, pose), ws->prefix,
+                          &F);
         twf_pose_mul(ps->B, &F, &T);
         done = 1;
       }

@@ -655,8 +655,9 @@ twf_status twf_register_campaign(const twf_model *model,
       if (!wk.pose_used[me->pose]) {
         wk.pose_used[me->pose] = 1;
         wk.n_poses_used++;
-        twf_model_fk(model, campaign->q + me->pose * nj, NULL,
-                     &wk.flange[me->pose]);
+        twf_model_fk_load(model, campaign->q + me->pose * nj,
+                          twf_campaign_payload(campaign, me->pose), NULL,
+                          &wk.flange[me->pose]);
       }
     }
   }

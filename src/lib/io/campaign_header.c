@@ -6,15 +6,17 @@
 
 /* Reserved column names; COL_JOINT columns carry the model's joint names. */
 const char *const twf_creader_role_name[COL_N] = {
-  "pose", "target", NULL, "x", "y", "z", "qw", "qx", "qy", "qz", "sigma", "set"
+  "pose", "target", NULL, "x", "y", "z", "qw", "qx", "qy", "qz", "sigma", "set",
+  "payload"
 };
 
 static int role_allowed(file_kind kind, int role)
 {
   switch (kind) {
   case KIND_ONE: return 1;
-  case KIND_JOINTS: return role == COL_POSE || role == COL_JOINT || role == COL_SET;
-  case KIND_POINTS: return role != COL_JOINT;
+  case KIND_JOINTS:
+    return role == COL_POSE || role == COL_JOINT || role == COL_SET || role == COL_PAYLOAD;
+  case KIND_POINTS: return role != COL_JOINT && role != COL_PAYLOAD;
   }
   return 0;
 }

@@ -21,7 +21,8 @@ twf_status twf_creader_row_joints(creader *r, const twf_csv_row *row)
                              "give every pose of the joints file its own id",
                              "pose '%s' appears twice in the joints file (first at line %ld)",
                              id, r->c->pose_lines[pose]);
-  if ((st = twf_creader_pose_add(r, id, r->qbuf, row->line, &pose)) != TWF_OK)
+  if ((st = twf_creader_pose_add(r, id, r->qbuf, row->line, &pose)) != TWF_OK ||
+      (st = twf_creader_field_payload(r, row, pose, 1)) != TWF_OK)
     return st;
   r->pose_set[pose] = set;
   return TWF_OK;

@@ -305,6 +305,7 @@ twf_predictor *twf_predictor_from_calibration(const twf_calib_result *res,
       any |= weight[list[t]] > 0;
     if (!any)
       continue;
+    twf_errmodel_set_payload(d.em, twf_campaign_payload(c, k));
     twf_errmodel_eval_pose(d.em, d.m, &d.base, c->q + k * c->n_joints, &T);
     for (t = start[k]; t < start[k + 1]; t++) {
       const twf_measurement *ms = &c->meas[list[t]];

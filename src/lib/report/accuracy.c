@@ -107,7 +107,8 @@ twf_status twf_accuracy_residuals(const twf_model *model,
     int six_d;
     if (me->pose != last_pose) {
       twf_pose F;
-      twf_model_fk(model, campaign->q + me->pose * model->n_joints, NULL, &F);
+      twf_model_fk_load(model, campaign->q + me->pose * model->n_joints,
+                        twf_campaign_payload(campaign, me->pose), NULL, &F);
       twf_pose_mul(base_in_tracker, &F, &T);
       last_pose = me->pose;
     }

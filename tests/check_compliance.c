@@ -1,0 +1,338 @@
+/* check_compliance.c: the mass model and joint compliance (DEVELOPERS.md,
+ * "Joint compliance under gravity"): the gravity torques against finite
+ * differences of the potential energy, the deflected forward kinematics,
+ * the model file's [mass JOINT], [payload NAME], gravity and compliance
+ * (round trip and bad input), and the campaign's payload column. The
+ * finite differences of the potential energy are the outside reference of
+ * the torques: tau_i = -dV/dtheta_i is the definition of a generalised
+ * force (any text on Lagrangian mechanics, e.g. Lynch and Park 2017,
+ * ch. 8, recalled from memory). */
+#include "testutil.h"
+#include "arms.h"
+
+#include <gsl/gsl_errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* An invented mass model on tf6s: bodies of 60 to 2 kg, two payloads. */
+static void add_masses(twf_model *m)
+{
+  static const double mass[6] = { 60.0, 38.5, 21.25, 7.5, 3.2, 1.15 };
+  static const double cen[6][3] = { { 0.05, 0.02, 0.25 },  { 0.16, -0.11, 0.74 },
+                                    { 0.42, 0.03, 1.17 },  { 0.61, -0.02, 1.18 },
+                                    { 0.81, 0.01, 1.17 },  { 0.86, 0.0, 1.18 } };
+  const double p1[3] = { 0.01, -0.02, 0.12 }, p2[3] = { -0.04, 0.05, 0.21 };
+  for (size_t i = 0; i < m->n_joints && i < 6; i++) {
+    m->joints[i].has_mass = 1;
+    m->joints[i].mass = mass[i];
+    memcpy(m->joints[i].mass_center, cen[i], sizeof cen[i]);
+  }
+  ck_assert_int_eq(twf_model_payload_add(m, "gripper", 12.5, p1), TWF_OK);
+  ck_assert_int_eq(twf_model_payload_add(m, "part", 31.0, p2), TWF_OK);
+  ck_assert_int_eq(twf_model_payload_add(m, "part", 1.0, p2), TWF_ERR_DUPLICATE);
+}
+
+/* Potential energy V = -sum m g . x of the bodies and the payload at joint
+ * values theta (the rigid configuration), computed from forward kinematics
+ * alone: each body's centre rides on the prefix of its joint. */
+static double potential(const twf_model *m0, const double *theta, long payload)
+{
+  twf_model *m = twf_model_copy(m0);
+  size_t n = m->n_joints;
+  twf_pose *P = calloc(n + 1, sizeof *P), F;
+  double *q = calloc(n, sizeof *q), V = 0.0, x[3];
+  for (size_t i = 0; i < n; i++) {
+    m->joints[i].scale = 1.0;
+    m->joints[i].offset = 0.0;
+    m->joints[i].compliance = 0.0;
+    q[i] = theta[i];
+  }
+  twf_model_fk(m, q, P, &F);
+  for (size_t i = 0; i < n; i++)
+    if (m->joints[i].has_mass) {
+      twf_pose_apply(&P[i + 1], m->joints[i].mass_center, x);
+      for (int a = 0; a < 3; a++)
+        V -= m->joints[i].mass * TWF_GRAVITY_STANDARD * m->gravity[a] * x[a];
+    }
+  if (payload >= 0) {
+    twf_pose_apply(&F, m->payloads[payload].center, x);
+    for (int a = 0; a < 3; a++)
+      V -= m->payloads[payload].mass * TWF_GRAVITY_STANDARD * m->gravity[a] * x[a];
+  }
+  free(P);
+  free(q);
+  twf_model_free(m);
+  return V;
+}
+
+START_TEST(test_torques_are_minus_dV_dtheta)
+{
+  twf_model *m = test_arm_model(ARM_TF6S);
+  twf_test_rng rng;
+  double q[6], th[6], tau[6];
+  const double g2[3] = { 0.28, -0.41, -0.868 };
+  add_masses(m);
+  twf_test_rng_init(&rng, twf_test_seed(1501));
+  for (int trial = 0; trial < 12; trial++) {
+    long payload = trial % 3 - 1;
+    if (trial == 6) { /* a tilted base: gravity off the base z axis */
+      double n = sqrt(g2[0] * g2[0] + g2[1] * g2[1] + g2[2] * g2[2]);
+      for (int a = 0; a < 3; a++)
+        m->gravity[a] = g2[a] / n;
+    }
+    for (size_t i = 0; i < 6; i++) {
+      m->joints[i].offset = twf_test_uniform(&rng, -0.01, 0.01);
+      m->joints[i].scale = 1.0 + twf_test_uniform(&rng, -1e-3, 1e-3);
+      q[i] = twf_test_uniform(&rng, m->joints[i].limit_lo, m->joints[i].limit_hi);
+      th[i] = m->joints[i].scale * q[i] + m->joints[i].offset;
+    }
+    twf_model_gravity_torques(m, q, payload, tau, NULL);
+    for (size_t i = 0; i < 6; i++) {
+      const double h = 1e-6;
+      double tp[6], tm[6], fd;
+      memcpy(tp, th, sizeof th);
+      memcpy(tm, th, sizeof th);
+      tp[i] += h;
+      tm[i] -= h;
+      fd = -(potential(m, tp, payload) - potential(m, tm, payload)) / (2 * h);
+      ck_assert_msg(fabs(tau[i] - fd) <= 1e-6 * fmax(1.0, fabs(fd)),
+                    "trial %d joint %zu payload %ld: tau %.12g N m, -dV/dtheta %.12g N m",
+                    trial, i + 1, payload, tau[i], fd);
+    }
+    /* joint 1 of an upright arm: gravity along its axis, no torque */
+    if (trial < 6)
+      ck_assert_msg(fabs(tau[0]) < 1e-9, "tau1 = %g on an upright arm", tau[0]);
+  }
+  twf_model_free(m);
+}
+END_TEST
+
+START_TEST(test_deflected_fk)
+{
+  /* theta = scale q + offset + C tau: the loaded arm is the rigid arm at
+   * the deflected joint values */
+  twf_model *m = test_arm_model(ARM_TF6S), *r;
+  double q[6] = { 0.3, -0.4, 0.6, 0.2, -0.7, 0.5 }, tau[6], th[6], qd[6];
+  twf_pose F, Fr;
+  add_masses(m);
+  r = twf_model_copy(m);
+  for (size_t i = 1; i < 6; i++)
+    m->joints[i].compliance = 1e-6 * (double)(i + 1);
+  ck_assert_int_eq(twf_model_has_compliance(m), 1);
+  ck_assert_int_eq(twf_model_has_compliance(r), 0);
+  twf_model_theta(m, q, 1, th, tau);
+  for (size_t i = 0; i < 6; i++) {
+    ck_assert_close(th[i], q[i] + m->joints[i].compliance * tau[i], 1e-15);
+    qd[i] = th[i];
+  }
+  twf_model_fk_load(m, q, 1, NULL, &F);
+  twf_model_fk(r, qd, NULL, &Fr);
+  for (int a = 0; a < 3; a++)
+    ck_assert_close(F.p[a], Fr.p[a], 1e-14);
+  /* without a payload the bodies still load the joints, and less */
+  twf_model_fk_load(m, q, -1, NULL, &F);
+  twf_model_fk(m, q, NULL, &Fr);
+  for (int a = 0; a < 3; a++)
+    ck_assert_close(F.p[a], Fr.p[a], 1e-15);
+  twf_model_fk(r, q, NULL, &Fr);
+  ck_assert_msg(fabs(F.p[2] - Fr.p[2]) > 1e-5, "the bodies' weight deflects the arm");
+  twf_model_free(m);
+  twf_model_free(r);
+}
+END_TEST
+
+static const char heavy_model[] =
+  "[robot]\nname = heavy\nlength_unit = mm\nangle_unit = deg\ngravity = 0 0.6 -0.8\n"
+  "[joint j1]\ntype = revolute\naxis = 0 0 1\npoint = 0 0 0\n"
+  "[joint j2]\ntype = revolute\naxis = 0 1 0\npoint = 300 0 700\ncompliance = 2.5e-7\n"
+  "[joint j3]\ntype = prismatic\naxis = 1 0 0\npoint = 300 0 1800\n"
+  "[mass j2]\nmass = 120.5\ncenter = 300 -150 1200\n"
+  "[payload gripper]\nmass = 40\ncenter = 0 0 150\n"
+  "[mass j3]\nmass = 30\ncenter = 800 0 1800\n"
+  "[home]\nposition = 1500 0 1800\nquaternion_wxyz = 1 0 0 0\n"
+  "[target T1]\noffset = 0 0 50\n";
+
+START_TEST(test_model_file_round_trip)
+{
+  twf_error err;
+  twf_model *m, *m2;
+  FILE *f;
+  char *text;
+  twf_test_tmpdir_make("compliance");
+  twf_test_write_file(twf_test_tmppath("heavy.ini"), heavy_model);
+  m = twf_model_read(twf_test_tmppath("heavy.ini"), NULL, &err);
+  ck_assert_msg(m != NULL, "%s", err.message);
+  ck_assert_close(m->gravity[1], 0.6, 1e-15);
+  ck_assert_close(m->gravity[2], -0.8, 1e-15);
+  ck_assert_close(m->joints[1].compliance, 2.5e-7, 1e-15);
+  ck_assert_int_eq(m->joints[0].has_mass, 0);
+  ck_assert_int_eq(m->joints[1].has_mass, 1);
+  ck_assert_close(m->joints[1].mass, 120.5, 1e-15);
+  ck_assert_close(m->joints[1].mass_center[1], -0.15, 1e-15);
+  ck_assert_close(m->joints[2].mass_center[0], 0.8, 1e-15);
+  ck_assert_uint_eq(m->n_payloads, 1);
+  ck_assert_str_eq(m->payloads[0].name, "gripper");
+  ck_assert_close(m->payloads[0].center[2], 0.15, 1e-15);
+  f = fopen(twf_test_tmppath("again.ini"), "w");
+  ck_assert_int_eq(twf_model_write(m, f, &err), TWF_OK);
+  fclose(f);
+  text = twf_test_slurp(twf_test_tmppath("again.ini"));
+  ck_assert_ptr_nonnull(strstr(text, "[payload gripper]"));
+  ck_assert_ptr_nonnull(strstr(text, "[mass j2]"));
+  free(text);
+  m2 = twf_model_read(twf_test_tmppath("again.ini"), NULL, &err);
+  ck_assert_msg(m2 != NULL, "%s", err.message);
+  for (int a = 0; a < 3; a++) {
+    ck_assert_close(m2->gravity[a], m->gravity[a], 1e-15);
+    ck_assert_close(m2->joints[1].mass_center[a], m->joints[1].mass_center[a], 1e-15);
+    ck_assert_close(m2->payloads[0].center[a], m->payloads[0].center[a], 1e-15);
+  }
+  ck_assert(m2->joints[1].compliance == m->joints[1].compliance);
+  ck_assert(m2->joints[2].mass == m->joints[2].mass);
+  ck_assert_int_eq(m2->joints[0].has_mass, 0);
+  twf_model_free(m2);
+  m2 = twf_model_copy(m);
+  ck_assert_uint_eq(m2->n_payloads, 1);
+  ck_assert_str_eq(m2->payloads[0].name, "gripper");
+  twf_model_free(m2);
+  twf_model_free(m);
+  twf_test_tmpdir_remove();
+}
+END_TEST
+
+/* A bad mass model: one replacement in the good file, the status, line
+ * and a word of the message. */
+static void bad_model(const char *from, const char *to, twf_status want, long line,
+                      const char *word)
+{
+  char text[sizeof heavy_model + 256];
+  const char *at = strstr(heavy_model, from);
+  twf_error err;
+  twf_model *m;
+  ck_assert_ptr_nonnull(at);
+  snprintf(text, sizeof text, "%.*s%s%s", (int)(at - heavy_model), heavy_model, to,
+           at + strlen(from));
+  twf_test_write_file(twf_test_tmppath("bad.ini"), text);
+  m = twf_model_read(twf_test_tmppath("bad.ini"), NULL, &err);
+  ck_assert_msg(m == NULL, "'%s' accepted", to);
+  ck_assert_int_eq(err.status, want);
+  ck_assert_int_eq(err.line, line);
+  ck_assert_msg(strstr(err.message, word) != NULL, "message '%s' lacks '%s'", err.message, word);
+}
+
+START_TEST(test_model_file_bad_mass_model)
+{
+  twf_test_tmpdir_make("compliance");
+  bad_model("[mass j2]", "[mass j9]", TWF_ERR_UNKNOWN, 19, "no joint 'j9'");
+  bad_model("mass = 120.5", "mass = -3", TWF_ERR_VALUE, 20, "kg");
+  bad_model("mass = 120.5", "mass = 0", TWF_ERR_VALUE, 20, "kg");
+  bad_model("mass = 120.5\n", "", TWF_ERR_MISSING, 19, "no mass");
+  bad_model("center = 0 0 150", "center = 0 150", TWF_ERR_VALUE, 24, "center");
+  bad_model("gravity = 0 0.6 -0.8", "gravity = 0 0 0", TWF_ERR_VALUE, 5, "zero");
+  bad_model("point = 300 0 1800\n", "point = 300 0 1800\ncompliance = 1e-6\n", TWF_ERR_VALUE,
+            19, "prismatic");
+  bad_model("compliance = 2.5e-7", "compliance = 3", TWF_ERR_VALUE, 14, "rad/(N m)");
+  bad_model("[payload gripper]", "[payload]", TWF_ERR_SYNTAX, 22, "no name");
+  bad_model("[mass j3]", "[mass j2]", TWF_ERR_DUPLICATE, 25, "twice");
+  bad_model("center = 0 0 150", "centre = 0 0 150", TWF_ERR_UNKNOWN, 24, "centre");
+  twf_test_tmpdir_remove();
+}
+END_TEST
+
+START_TEST(test_campaign_payload_column)
+{
+  twf_error err;
+  twf_model *m;
+  twf_campaign *c;
+  FILE *f;
+  char *text;
+  twf_test_tmpdir_make("compliance");
+  twf_test_write_file(twf_test_tmppath("heavy.ini"), heavy_model);
+  m = twf_model_read(twf_test_tmppath("heavy.ini"), NULL, &err);
+  ck_assert_ptr_nonnull(m);
+  twf_test_write_file(twf_test_tmppath("c.csv"),
+                      "pose,target,j1,j2,j3,x,y,z,payload\n"
+                      "P1,T1,10,20,30,1,2,3,gripper\n"
+                      "P2,T1,11,21,31,1,2,3,\n"
+                      "P3,T1,12,22,32,1,2,3,gripper\n");
+  c = twf_campaign_read(twf_test_tmppath("c.csv"), m, NULL, NULL, &err);
+  ck_assert_msg(c != NULL, "%s", err.message);
+  ck_assert_int_eq(twf_campaign_payload(c, 0), 0);
+  ck_assert_int_eq(twf_campaign_payload(c, 1), -1);
+  ck_assert_int_eq(twf_campaign_payload(c, 2), 0);
+  f = fopen(twf_test_tmppath("w.csv"), "w");
+  ck_assert_int_eq(twf_campaign_write(c, m, TWF_LENGTH_MM, TWF_ANGLE_DEG, f, &err), TWF_OK);
+  fclose(f);
+  text = twf_test_slurp(twf_test_tmppath("w.csv"));
+  ck_assert_ptr_nonnull(strstr(text, ",set,payload\n"));
+  free(text);
+  twf_campaign_free(c);
+  c = twf_campaign_read(twf_test_tmppath("w.csv"), m, NULL, NULL, &err);
+  ck_assert_msg(c != NULL, "%s", err.message);
+  ck_assert_int_eq(twf_campaign_payload(c, 0), 0);
+  ck_assert_int_eq(twf_campaign_payload(c, 1), -1);
+  twf_campaign_free(c);
+
+  /* no payload column: none anywhere */
+  twf_test_write_file(twf_test_tmppath("n.csv"), "pose,target,j1,j2,j3,x,y,z\nP1,T1,1,2,3,1,2,3\n");
+  c = twf_campaign_read(twf_test_tmppath("n.csv"), m, NULL, NULL, &err);
+  ck_assert_ptr_nonnull(c);
+  ck_assert_ptr_null(c->pose_payload);
+  ck_assert_int_eq(twf_campaign_payload(c, 0), -1);
+  twf_campaign_free(c);
+
+  /* a payload the model does not declare */
+  twf_test_write_file(twf_test_tmppath("u.csv"),
+                      "pose,target,j1,j2,j3,x,y,z,payload\nP1,T1,1,2,3,1,2,3,anvil\n");
+  c = twf_campaign_read(twf_test_tmppath("u.csv"), m, NULL, NULL, &err);
+  ck_assert_ptr_null(c);
+  ck_assert_int_eq(err.status, TWF_ERR_UNKNOWN);
+  ck_assert_int_eq(err.line, 2);
+  ck_assert_int_eq(err.column, 9);
+  ck_assert_ptr_nonnull(strstr(err.message, "gripper"));
+
+  /* two rows of a pose with different loads */
+  twf_model_payload_add(m, "T2", 1.0, m->payloads[0].center);
+  twf_test_write_file(twf_test_tmppath("d.csv"),
+                      "pose,target,j1,j2,j3,x,y,z,payload\nP1,T1,1,2,3,1,2,3,gripper\n"
+                      "P1,T1,1,2,3,1,2,3,\n");
+  c = twf_campaign_read(twf_test_tmppath("d.csv"), m, NULL, NULL, &err);
+  ck_assert_ptr_null(c);
+  ck_assert_int_eq(err.status, TWF_ERR_VALUE);
+  ck_assert_int_eq(err.line, 3);
+  ck_assert_ptr_nonnull(strstr(err.message, "another payload"));
+
+  /* the two-file form: the joints file names the load */
+  twf_test_write_file(twf_test_tmppath("j.csv"), "pose,j1,j2,j3,payload\nA,1,2,3,gripper\nB,1,2,4,\n");
+  twf_test_write_file(twf_test_tmppath("p.csv"), "pose,target,x,y,z\nA,T1,1,2,3\nB,T1,1,2,3\n");
+  c = twf_campaign_read_pair(twf_test_tmppath("j.csv"), twf_test_tmppath("p.csv"), m, NULL, NULL,
+                             &err);
+  ck_assert_msg(c != NULL, "%s", err.message);
+  ck_assert_int_eq(twf_campaign_payload(c, 0), 0);
+  ck_assert_int_eq(twf_campaign_payload(c, 1), -1);
+  twf_campaign_free(c);
+  twf_test_write_file(twf_test_tmppath("p2.csv"), "pose,target,x,y,z,payload\nA,T1,1,2,3,gripper\n");
+  c = twf_campaign_read_pair(twf_test_tmppath("j.csv"), twf_test_tmppath("p2.csv"), m, NULL, NULL,
+                             &err);
+  ck_assert_ptr_null(c);
+  twf_model_free(m);
+  twf_test_tmpdir_remove();
+}
+END_TEST
+
+int main(void)
+{
+  Suite *s = suite_create("compliance");
+  TCase *tc = tcase_create("core");
+  gsl_set_error_handler_off();
+  tcase_set_timeout(tc, 60);
+  tcase_add_test(tc, test_torques_are_minus_dV_dtheta);
+  tcase_add_test(tc, test_deflected_fk);
+  tcase_add_test(tc, test_model_file_round_trip);
+  tcase_add_test(tc, test_model_file_bad_mass_model);
+  tcase_add_test(tc, test_campaign_payload_column);
+  suite_add_tcase(s, tc);
+  return twf_test_run(s);
+}

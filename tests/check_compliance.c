@@ -16,22 +16,14 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* An invented mass model on tf6s: bodies of 60 to 2 kg, two payloads. */
 static void add_masses(twf_model *m)
 {
-  static const double mass[6] = { 60.0, 38.5, 21.25, 7.5, 3.2, 1.15 };
-  static const double cen[6][3] = { { 0.05, 0.02, 0.25 },  { 0.16, -0.11, 0.74 },
-                                    { 0.42, 0.03, 1.17 },  { 0.61, -0.02, 1.18 },
-                                    { 0.81, 0.01, 1.17 },  { 0.86, 0.0, 1.18 } };
-  const double p1[3] = { 0.01, -0.02, 0.12 }, p2[3] = { -0.04, 0.05, 0.21 };
-  for (size_t i = 0; i < m->n_joints && i < 6; i++) {
-    m->joints[i].has_mass = 1;
-    m->joints[i].mass = mass[i];
-    memcpy(m->joints[i].mass_center, cen[i], sizeof cen[i]);
+  test_arm_add_masses(m);
+  ck_assert_uint_eq(m->n_payloads, 2);
+  {
+    const double c[3] = { 0, 0, 0 };
+    ck_assert_int_eq(twf_model_payload_add(m, "part", 1.0, c), TWF_ERR_DUPLICATE);
   }
-  ck_assert_int_eq(twf_model_payload_add(m, "gripper", 12.5, p1), TWF_OK);
-  ck_assert_int_eq(twf_model_payload_add(m, "part", 31.0, p2), TWF_OK);
-  ck_assert_int_eq(twf_model_payload_add(m, "part", 1.0, p2), TWF_ERR_DUPLICATE);
 }
 
 /* Potential energy V = -sum m g . x of the bodies and the payload at joint

@@ -314,6 +314,186 @@ START_TEST(test_campaign_payload_column)
 }
 END_TEST
 
+/* ------------------------------------------------------------------ */
+/* Calibration on the elastostatic reference campaigns                 */
+/* ------------------------------------------------------------------ */
+
+/* reference: Orocos KDL via Debian python3-pykdl 1.5.1 (forward kinematics
+ * and inverse dynamics), tests/gen/gen_kdl_compliance.py: the true
+ * stiffnesses of its STIFFNESS table, noise 0.02 mm per coordinate. */
+static const double true_stiffness[6] = { 4.0e6, 1.5e7, 8.0e6, 2.0e6, 1.5e6, 1.0e6 };
+static const double ref_sigma = 2e-5;
+
+static twf_model *read_ref_model(void)
+{
+  twf_error err;
+  twf_model *m = twf_model_read(twf_test_srcpath("tests/fixtures/compliance_nominal.ini"), NULL, &err);
+  ck_assert_msg(m != NULL, "%s:%ld: %s", err.file, err.line, err.message);
+  ck_assert_uint_eq(m->n_payloads, 2);
+  return m;
+}
+
+static twf_campaign *read_ref_campaign(const char *rel, const twf_model *m)
+{
+  twf_error err;
+  twf_campaign *c = twf_campaign_read(twf_test_srcpath(rel), m, NULL, NULL, &err);
+  ck_assert_msg(c != NULL, "%s:%ld: %s", err.file, err.line, err.message);
+  ck_assert_uint_eq(c->n_poses, 160);
+  return c;
+}
+
+static double set_rms(const twf_calib_result *res, const double *e3, twf_meas_set which)
+{
+  double sum = 0.0;
+  size_t i, n = 0;
+  for (i = 0; i < res->n_meas; i++)
+    if (res->meas_set[i] == which) {
+      sum += e3[3 * i] * e3[3 * i] + e3[3 * i + 1] * e3[3 * i + 1] + e3[3 * i + 2] * e3[3 * i + 2];
+      n++;
+    }
+  ck_assert_uint_gt(n, 0);
+  return sqrt(sum / (double)n);
+}
+
+/* RMS distance from the noise-free truth at its poses, each with its
+ * payload, from the public forward kinematics. */
+static double truth_rms(const twf_calib_result *res, const twf_campaign *truth)
+{
+  const twf_model *m = res->asbuilt;
+  double sum = 0.0;
+  size_t i;
+  for (i = 0; i < truth->n_meas; i++) {
+    const twf_measurement *ms = &truth->meas[i];
+    twf_pose F, T;
+    double y[3];
+    twf_model_fk_load(m, truth->q + ms->pose * truth->n_joints, twf_campaign_payload(truth, ms->pose),
+                      NULL, &F);
+    twf_pose_mul(&res->base_in_tracker, &F, &T);
+    twf_pose_apply(&T, m->targets[ms->target].offset, y);
+    for (int a = 0; a < 3; a++)
+      sum += (ms->pos[a] - y[a]) * (ms->pos[a] - y[a]);
+  }
+  return sqrt(sum / (double)truth->n_meas);
+}
+
+static twf_calib_result *calibrate_ref(const twf_model *m, const twf_campaign *c, unsigned groups)
+{
+  twf_calib_options co = twf_calib_default_options();
+  twf_calib_result *res = NULL;
+  twf_warnings w;
+  twf_error err;
+  co.groups = groups;
+  co.sigma_length = ref_sigma;
+  twf_warnings_init(&w);
+  ck_assert_msg(twf_calibrate(m, c, &co, &res, &w, &err) == TWF_OK, "calibrate: %s (%s)", err.message,
+                err.hint);
+  for (size_t k = 0; k < w.count; k++)
+    fprintf(stderr, "check_compliance: warning: %s\n", w.items[k].message);
+  twf_warnings_clear(&w);
+  return res;
+}
+
+/* Recovery of the compliances: the loaded joints' within 3 standard
+ * deviations, the check set at the noise floor (sigma sqrt(3), the RMS
+ * length of isotropic 3-D noise; limit 1.15 of it with the fit's
+ * parameters against 120 fit poses), j1 fixed (gravity along its axis). */
+static void check_recovery(const char *campaign, double *truth_out)
+{
+  twf_model *m = read_ref_model();
+  twf_campaign *c = read_ref_campaign(campaign, m);
+  twf_calib_result *res =
+      calibrate_ref(m, c, TWF_GROUPS_GEOMETRIC | TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE));
+  double floor = ref_sigma * sqrt(3.0), check = set_rms(res, res->pos_err_after, TWF_SET_CHECK);
+  size_t k, found = 0;
+  for (k = 0; k < res->n_params; k++) {
+    const twf_param_result *p = &res->params[k];
+    double truth, got;
+    if (p->param.group != TWF_GROUP_COMPLIANCE)
+      continue;
+    found++;
+    truth = 1.0 / true_stiffness[p->param.joint];
+    got = res->asbuilt->joints[p->param.joint].compliance;
+    fprintf(stderr, "check_compliance: %s: %s %.4g rad/(N m) (std %.2g), true %.4g: %.2f std%s\n",
+            campaign, p->param.name, got, p->std, truth, (got - truth) / p->std,
+            p->status != TWF_PARAM_KEPT ? " (fixed)" : p->weak ? " (weak)" : "");
+    if (p->param.joint == 0) {
+      ck_assert_msg(p->status != TWF_PARAM_KEPT, "j1's compliance has no torque to go by");
+      continue;
+    }
+    ck_assert_msg(p->status == TWF_PARAM_KEPT, "%s fixed", p->param.name);
+    /* the loaded joints: shoulder, elbow and the wrist bend */
+    if (p->param.joint == 1 || p->param.joint == 2 || p->param.joint == 4)
+      ck_assert_msg(fabs(got - truth) <= 3 * p->std, "%s: %.4g against %.4g, std %.2g", p->param.name,
+                    got, truth, p->std);
+  }
+  ck_assert_uint_eq(found, 6);
+  fprintf(stderr, "check_compliance: %s: check RMS %.5f mm (floor %.5f mm), dropped %zu, refused %zu\n",
+          campaign, check * 1e3, floor * 1e3, res->n_dropped, res->screen_refused);
+  ck_assert_msg(check <= 1.15 * floor, "check RMS %.5f mm against the floor %.5f mm", check * 1e3,
+                floor * 1e3);
+  ck_assert_uint_eq(res->n_dropped, 0);
+  if (truth_out != NULL)
+    *truth_out = 0.0;
+  if (strstr(campaign, "two") != NULL) {
+    twf_campaign *t = read_ref_campaign("tests/fixtures/compliance_truth.csv", m);
+    double tr = truth_rms(res, t);
+    fprintf(stderr, "check_compliance: against the noise-free truth %.5f mm\n", tr * 1e3);
+    ck_assert_msg(tr <= 0.5 * floor, "%.5f mm from the truth", tr * 1e3);
+    twf_campaign_free(t);
+  }
+  /* the torque family has nothing left to find */
+  for (k = 0; k < res->pattern.n_tests; k++)
+    ck_assert_msg(!(res->pattern.tests[k].kind == TWF_PATTERN_TORQUE && res->pattern.tests[k].significant),
+                  "torque pattern of joint %zu after the compliance fit", res->pattern.tests[k].joint + 1);
+  twf_calib_result_free(res);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+
+START_TEST(test_recovery_one_payload) { check_recovery("tests/fixtures/compliance_one.csv", NULL); }
+END_TEST
+START_TEST(test_recovery_two_payloads) { check_recovery("tests/fixtures/compliance_two.csv", NULL); }
+END_TEST
+
+/* Without the compliance group: the residual test flags a torque
+ * pattern and names the loaded joints, and the screen drops no good
+ * reading (the campaigns hold no gross error). */
+static void check_without_group(const char *campaign)
+{
+  twf_model *m = read_ref_model();
+  twf_campaign *c = read_ref_campaign(campaign, m);
+  twf_calib_result *res = calibrate_ref(m, c, TWF_GROUPS_GEOMETRIC);
+  double floor = ref_sigma * sqrt(3.0), check = set_rms(res, res->pos_err_after, TWF_SET_CHECK);
+  int torque_flag = 0, j2_or_j3 = 0;
+  size_t k;
+  for (k = 0; k < res->pattern.n_tests; k++) {
+    const twf_pattern_test *t = &res->pattern.tests[k];
+    if (t->kind == TWF_PATTERN_TORQUE)
+      ck_assert_int_ne(t->skip, TWF_PATTERN_NO_TORQUE);
+    if (t->significant)
+      fprintf(stderr, "check_compliance: %s without compliance: j%zu %s p %.2g explains %.1f %%\n",
+              campaign, t->joint + 1, twf_pattern_kind_name(t->kind), t->p_value, 100 * t->explained);
+    if (t->significant && t->kind == TWF_PATTERN_TORQUE) {
+      torque_flag = 1;
+      j2_or_j3 |= t->joint == 1 || t->joint == 2;
+    }
+  }
+  fprintf(stderr, "check_compliance: %s without compliance: check RMS %.5f mm, dropped %zu, refused %zu\n",
+          campaign, check * 1e3, res->n_dropped, res->screen_refused);
+  ck_assert_msg(check > 1.5 * floor, "the deflection is visible: %.5f mm", check * 1e3);
+  ck_assert_msg(torque_flag && j2_or_j3, "the torque pattern of j2 or j3 is flagged");
+  ck_assert_msg(res->pattern.n_significant > 0, "residuals flagged");
+  ck_assert_msg(res->n_dropped <= 1, "%zu good readings dropped", res->n_dropped);
+  twf_calib_result_free(res);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+
+START_TEST(test_without_group_one_payload) { check_without_group("tests/fixtures/compliance_one.csv"); }
+END_TEST
+START_TEST(test_without_group_two_payloads) { check_without_group("tests/fixtures/compliance_two.csv"); }
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("compliance");
@@ -325,6 +505,13 @@ int main(void)
   tcase_add_test(tc, test_model_file_round_trip);
   tcase_add_test(tc, test_model_file_bad_mass_model);
   tcase_add_test(tc, test_campaign_payload_column);
+  suite_add_tcase(s, tc);
+  tc = tcase_create("calibrate");
+  tcase_set_timeout(tc, 300);
+  tcase_add_test(tc, test_recovery_one_payload);
+  tcase_add_test(tc, test_recovery_two_payloads);
+  tcase_add_test(tc, test_without_group_one_payload);
+  tcase_add_test(tc, test_without_group_two_payloads);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

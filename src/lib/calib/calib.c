@@ -30,6 +30,7 @@ twf_calib_options twf_calib_default_options(void)
   o.weak_ratio = 5.0;
   o.worst_poses = 5;
   o.screen_max_fraction = 0.05;
+  o.screen_pattern_fraction = 0.01;
   o.pattern = twf_pattern_default_options();
   return o;
 }
@@ -165,6 +166,7 @@ static twf_status check_options(const twf_calib_options *o, twf_error *err)
       o->max_iterations < 1 || !(o->redundancy_tol > 0 && o->redundancy_tol < 1) ||
       !(o->sigma_length >= 0) || !(o->sigma_angle >= 0) || !(o->weak_ratio > 0) || o->groups == 0 ||
       o->threads < 0 || !(o->screen_max_fraction > 0 && o->screen_max_fraction <= 1) ||
+      !(o->screen_pattern_fraction > 0 && o->screen_pattern_fraction <= o->screen_max_fraction) ||
       !(o->pattern.alpha > 0 && o->pattern.alpha < 1) ||
       !(o->pattern.min_explained >= 0 && o->pattern.min_explained < 1))
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
@@ -599,10 +601,65 @@ static twf_status list_outliers(job *j)
 /* A drop screen that takes more than screen_max_fraction of the fit rows
  * is not finding gross errors but a model that does not fit: keep every
  * row (weights back to 1, refit) and say so. */
+/* The gravity torques of model m at the poses of c, each with its payload
+ * (n_poses x n_joints, caller frees), or NULL with *st set: TWF_OK when
+ * the model has no masses. */
+static double *pose_torques(const twf_model *m, const twf_campaign *c, twf_status *st)
+{
+  size_t k, nj = m->n_joints;
+  double *t;
+  *st = TWF_OK;
+  if (!twf_model_has_masses(m) || c->n_poses == 0)
+    return NULL;
+  t = malloc(c->n_poses * (nj ? nj : 1) * sizeof *t);
+  if (t == NULL) {
+    *st = TWF_ERR_NOMEM;
+    return NULL;
+  }
+  for (k = 0; k < c->n_poses; k++)
+    twf_model_gravity_torques(m, c->q + k * nj, twf_campaign_payload(c, k), t + k * nj, NULL);
+  return t;
+}
+
+/* Do the residuals of the rows the screen kept show a systematic pattern
+ * (twistfit/pattern.h)? 1 yes, 0 no, -1 out of memory. */
+static int screened_pattern(job *j)
+{
+  size_t i, nm = j->c->n_meas;
+  double *pos = malloc(3 * (nm ? nm : 1) * sizeof *pos), *rot = malloc((nm ? nm : 1) * sizeof *rot);
+  unsigned char *use = malloc(nm ? nm : 1);
+  twf_pattern_options po = j->opt.pattern;
+  twf_pattern_result pr;
+  twf_status st = TWF_OK;
+  double *torque = NULL;
+  int found = -1;
+  twf_error e;
+  memset(&pr, 0, sizeof pr);
+  if (pos != NULL && rot != NULL && use != NULL && po.torque == NULL)
+    po.torque = torque = pose_torques(j->pr.m, &j->view, &st);
+  if (pos != NULL && rot != NULL && use != NULL && st == TWF_OK) {
+    for (i = 0; i < nm; i++)
+      use[i] = j->pr.use[i] && j->pr.weight[i] > 0.0;
+    if (twf_lsq_residuals(j->pr.m, &j->pr.base, &j->view, pos, rot, &e) == TWF_OK &&
+        twf_residual_pattern(j->pr.m, &j->pr.base, &j->view, pos, use, &po, &pr, &e) == TWF_OK)
+      found = pr.n_significant > 0;
+    else
+      found = 0; /* no verdict on the pattern: the plain limit holds */
+  }
+  twf_pattern_result_clear(&pr);
+  free(torque);
+  free(pos);
+  free(rot);
+  free(use);
+  return found;
+}
+
 static twf_status screen_limit(job *j)
 {
   const twf_calib_options *o = &j->opt;
   size_t i, n_fit = 0, n_drop = 0;
+  double limit = o->screen_max_fraction;
+  int pattern = 0;
   if (o->robust != TWF_ROBUST_DROP || o->screen_max_fraction >= 1.0)
     return TWF_OK;
   for (i = 0; i < j->c->n_meas; i++)
@@ -610,10 +667,32 @@ static twf_status screen_limit(job *j)
       n_fit++;
       n_drop += j->pr.weight[i] == 0.0;
     }
-  if (n_drop == 0 || (double)n_drop <= o->screen_max_fraction * (double)n_fit)
+  if (n_drop == 0)
+    return TWF_OK;
+  /* A screen that drops more than a few readings while the readings it
+   * keeps still show a systematic pattern is taking the pattern for gross
+   * errors: the lower limit then holds (measured on the elastostatic
+   * reference campaign of check_compliance: 18 of 360 good readings
+   * dropped, just within 5 %, without the compliance group). */
+  if ((double)n_drop > o->screen_pattern_fraction * (double)n_fit &&
+      (double)n_drop <= limit * (double)n_fit) {
+    pattern = screened_pattern(j);
+    if (pattern < 0)
+      return nomem(j);
+    if (pattern)
+      limit = o->screen_pattern_fraction;
+  }
+  if ((double)n_drop <= limit * (double)n_fit)
     return TWF_OK;
   j->res->screen_refused = n_drop;
-  twf_warnings_add(j->warnings, NULL, 0, 0,
+  if (pattern)
+    twf_warnings_add(j->warnings, NULL, 0, 0,
+                     "the outlier screen would drop %zu of the %zu fit readings (%.1f %%) while the readings "
+                     "it keeps still show a systematic pattern (see the residual pattern test): the model, "
+                     "not the data, is the likely problem, so the readings were kept",
+                     n_drop, n_fit, 100.0 * (double)n_drop / (double)n_fit);
+  else
+    twf_warnings_add(j->warnings, NULL, 0, 0,
                    "the outlier screen would drop %zu of the %zu fit readings (%.1f %%, more than %.0f %%): "
                    "so many gross errors are unlikely; the model, not the data, is the likely problem "
                    "(see the residual pattern test), so the readings were kept",
@@ -1045,10 +1124,17 @@ static twf_status stage_pattern(job *j)
   size_t i, nj = j->start->n_joints, nm = j->c->n_meas;
   unsigned char *use = malloc(nm ? nm : 1), *scale_fitted = calloc(nj ? nj : 1, 1);
   twf_pattern_options po = j->opt.pattern;
-  twf_status st;
-  if (use == NULL || scale_fitted == NULL) {
+  double *torque = NULL;
+  twf_status st = TWF_OK;
+  /* the torque family runs when the model carries masses: the gravity
+   * torques at the as-built model, each pose with its payload (n_poses x
+   * n_joints, linear in the campaign) */
+  if (po.torque == NULL)
+    po.torque = torque = pose_torques(res->asbuilt, &j->view, &st);
+  if (use == NULL || scale_fitted == NULL || st != TWF_OK) {
     free(use);
     free(scale_fitted);
+    free(torque);
     return nomem(j);
   }
   for (i = 0; i < nm; i++)
@@ -1062,6 +1148,7 @@ static twf_status stage_pattern(job *j)
                             &res->pattern, j->err);
   free(use);
   free(scale_fitted);
+  free(torque);
   if (st == TWF_OK)
     twf_calib_warn_pattern(res->asbuilt, &res->pattern, j->warnings);
   return st;

@@ -273,6 +273,13 @@ void cli_print_pattern(FILE *fp, const twf_model *m, const twf_pattern_result *p
                        const cli_units *u);
 json_t *cli_json_pattern(const twf_model *m, const twf_pattern_result *p, size_t screen_refused,
                          const cli_units *u);
+/* calibrate's section "Joint compliance under gravity" and its JSON
+ * member (compliance_report.c); nothing (null) without the group. */
+extern const char cli_compliance_caution[];
+void cli_print_compliance(FILE *fp, const twf_model *m, const twf_campaign *c,
+                          const twf_compliance_summary *s, const cli_units *u);
+json_t *cli_json_compliance(const twf_model *m, const twf_campaign *c, const twf_compliance_summary *s,
+                            const cli_units *u);
 /* cli_put writer of a JSON document (ctx: json_t *). */
 int cli_put_json(FILE *fp, void *ctx, twf_error *err);
 /* Per-measurement residual CSV with one or two variants (labels such as

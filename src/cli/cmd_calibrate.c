@@ -396,6 +396,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
     }
   }
   cli_print_pattern(fp, m, &r->pattern, r->screen_refused, u);
+  cli_print_compliance(fp, r->asbuilt, view, &r->compliance, u);
 
   fprintf(fp, "\nSolver\n");
   fprintf(fp, "  registration refinement: %d %s, %s\n", r->registration.iterations,
@@ -673,6 +674,8 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   }
   json_object_set_new(root, "outliers", outl);
   json_object_set_new(root, "residual_pattern", cli_json_pattern(m, &r->pattern, r->screen_refused, u));
+  if (r->compliance.n_joints > 0)
+    json_object_set_new(root, "compliance", cli_json_compliance(r->asbuilt, view, &r->compliance, u));
   {
     static const char *const names[2] = { "before", "after" };
     const double *pe[2] = { r->pos_err_before, r->pos_err_after };

@@ -109,6 +109,7 @@ void twf_calib_result_free(twf_calib_result *r)
   free(r->check_flagged);
   free(r->joint_undetermined);
   twf_pattern_result_clear(&r->pattern);
+  twf_compliance_summary_clear(&r->compliance);
   free(r->covariance);
   free(r->singular_values);
   twf_links_clear(&r->links);
@@ -166,13 +167,24 @@ static twf_status check_options(const twf_calib_options *o, twf_error *err)
       o->max_iterations < 1 || !(o->redundancy_tol > 0 && o->redundancy_tol < 1) ||
       !(o->sigma_length >= 0) || !(o->sigma_angle >= 0) || !(o->weak_ratio > 0) || o->groups == 0 ||
       o->threads < 0 || !(o->screen_max_fraction > 0 && o->screen_max_fraction <= 1) ||
-      !(o->screen_pattern_fraction > 0 && o->screen_pattern_fraction <= o->screen_max_fraction) ||
+      !(o->screen_pattern_fraction > 0 && o->screen_pattern_fraction <= 1) ||
       !(o->pattern.alpha > 0 && o->pattern.alpha < 1) ||
       !(o->pattern.min_explained >= 0 && o->pattern.min_explained < 1))
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
                          "use positive thresholds, a held-out fraction in [0, 1), at least one iteration, "
                          "a screen limit in (0, 1] and a pattern alpha in (0, 1)",
                          "invalid calibration options");
+  return TWF_OK;
+}
+
+/* The compliance group needs torques: a mass model in the model file. */
+static twf_status check_mass_model(const twf_model *m, unsigned groups, twf_error *err)
+{
+  if ((groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE)) && !twf_model_has_masses(m))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,
+                         "declare the bodies' masses ([mass JOINT]) and the payloads ([payload NAME]) in "
+                         "the model file, see twistfit-model(5)",
+                         "the compliance group needs a mass model: the model declares no masses");
   return TWF_OK;
 }
 
@@ -680,7 +692,7 @@ static twf_status screen_limit(job *j)
     if (pattern < 0)
       return nomem(j);
     if (pattern)
-      limit = o->screen_pattern_fraction;
+      limit = fmin(o->screen_pattern_fraction, limit);
   }
   if ((double)n_drop <= limit * (double)n_fit)
     return TWF_OK;
@@ -1154,6 +1166,62 @@ static twf_status stage_pattern(job *j)
   return st;
 }
 
+/* ------------------------------------------------------------ stage: compliance */
+
+/* With the compliance group: per joint what was found, over the fit poses
+ * (twistfit/compliance.h). A compliance fixed with nothing explaining it
+ * had a zero column: no torque about its axis at any pose the walks saw. */
+static twf_status stage_compliance(job *j)
+{
+  twf_calib_result *res = j->res;
+  size_t nj = res->asbuilt->n_joints, k;
+  int *fixed;
+  double *std;
+  unsigned char *weak, *use;
+  twf_status st;
+  if (!(res->groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE)))
+    return TWF_OK;
+  fixed = malloc((nj ? nj : 1) * sizeof *fixed);
+  std = malloc((nj ? nj : 1) * sizeof *std);
+  weak = calloc(nj ? nj : 1, 1);
+  use = calloc(j->view.n_poses ? j->view.n_poses : 1, 1);
+  if (fixed == NULL || std == NULL || weak == NULL || use == NULL) {
+    free(fixed); free(std); free(weak); free(use);
+    return nomem(j);
+  }
+  for (k = 0; k < nj; k++) {
+    fixed[k] = -1;
+    std[k] = NAN;
+  }
+  for (k = 0; k < res->n_params; k++) {
+    const twf_param_result *p = &res->params[k];
+    if (p->param.group != TWF_GROUP_COMPLIANCE || p->param.joint < 0)
+      continue;
+    fixed[p->param.joint] = p->status == TWF_PARAM_KEPT ? 0
+                            : p->status == TWF_PARAM_FIXED_STRUCTURAL && p->n_explain == 0 ? 1 : 2;
+    std[p->param.joint] = p->std;
+    weak[p->param.joint] = (unsigned char)(p->weak != 0);
+  }
+  for (k = 0; k < j->view.n_meas; k++)
+    if (res->meas_set[k] == TWF_SET_FIT && (res->excluded == NULL || res->excluded[k] == 0))
+      use[j->view.meas[k].pose] = 1;
+  st = twf_compliance_summarize(res->asbuilt, &j->view, use, fixed, std, weak, &res->compliance, j->err);
+  free(fixed); free(std); free(weak); free(use);
+  if (st == TWF_OK && res->compliance.n_payloads_used < 2)
+    twf_warnings_add(j->warnings, NULL, 0, 0,
+                     "every fit pose carries the same load: compliance and geometry are told apart only "
+                     "by how the torques vary with the configuration; poses with two or more loads "
+                     "(the payload column, twistfit-data(5)) separate them far better");
+  if (st == TWF_OK)
+    for (k = 0; k < nj; k++)
+      if (res->compliance.joints[k].state == TWF_COMPLIANCE_CONSTANT_TORQUE)
+        twf_warnings_add(j->warnings, NULL, 0, 0,
+                         "the gravity torque about %s hardly varies over the fit poses: its compliance "
+                         "cannot be told from its offset and was fixed",
+                         res->asbuilt->joints[k].name);
+  return st;
+}
+
 /* ------------------------------------------------------------ stage: plausibility */
 
 /* Far beyond any calibration, the data and the model do not describe the
@@ -1247,6 +1315,7 @@ static const struct stage {
   { "as-built summary", stage_asbuilt },
   { "link parameters", stage_links },
   { "residual pattern", stage_pattern },
+  { "compliance summary", stage_compliance },
   { "plausibility", stage_plausibility },
 };
 
@@ -1268,7 +1337,8 @@ twf_status twf_calibrate(const twf_model *start, const twf_campaign *c,
   j.opt = opt_in ? *opt_in : twf_calib_default_options();
   j.warnings = warnings;
   j.err = err;
-  if ((st = check_options(&j.opt, err)) != TWF_OK)
+  if ((st = check_options(&j.opt, err)) != TWF_OK ||
+      (st = check_mass_model(start, j.opt.groups, err)) != TWF_OK)
     return st;
   job_sigma(&j);
   st = job_alloc_result(&j);

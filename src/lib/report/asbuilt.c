@@ -68,7 +68,13 @@ static void apply_datum(twf_model *m, twf_pose *B, const twf_pose *G)
   for (i = 0; i < m->n_joints; i++) {
     twf_se3_adjoint_apply(G, m->joints[i].twist, m->joints[i].twist);
     twf_pose_apply(G, m->joints[i].point, m->joints[i].point);
+    /* the mass model is in the base frame too (payloads ride on the
+     * flange, whose frame the datum does not change) */
+    if (m->joints[i].has_mass)
+      twf_pose_apply(G, m->joints[i].mass_center, m->joints[i].mass_center);
   }
+  if (twf_model_has_masses(m)) /* else gravity plays no part: keep the default */
+    twf_pose_rotate(G, m->gravity, m->gravity);
   twf_pose_mul(G, &m->home, &m->home);
   twf_pose_inv(G, &Ginv);
   twf_pose_mul(B, &Ginv, B);

@@ -34,12 +34,15 @@ static const char calibrate_help[] =
   "                          text report goes to standard error)\n"
   "      --residuals FILE    write the per-measurement residuals before and after (CSV)\n"
   "      --fit GROUPS        parameter groups, comma-separated: base, targets, offsets,\n"
-  "                          home, shifts, tilts, axes (= shifts,tilts), scale; or a preset:\n"
-  "                          geometric (default: all but scale), remaster (base,targets,\n"
-  "                          offsets: re-mastering after a crash or a motor swap, best\n"
-  "                          started from the previous as-built model), all\n"
+  "                          home, shifts, tilts, axes (= shifts,tilts), scale, compliance\n"
+  "                          (joint yield under gravity: needs the model's mass model); or a\n"
+  "                          preset: geometric (default: all but scale and compliance),\n"
+  "                          remaster (base,targets,offsets: re-mastering after a crash or\n"
+  "                          a motor swap, best started from the previous as-built model),\n"
+  "                          all (geometric and scale); presets mix with groups, e.g.\n"
+  "                          geometric,compliance\n"
   "      --priority GROUPS   order in which redundant parameters are kept (default\n"
-  "                          base,targets,offsets,home,shifts,tilts,scale); groups left\n"
+  "                          base,targets,offsets,home,shifts,tilts,scale,compliance); groups left\n"
   "                          out follow in the default order\n"
   "      --sigma X           standard deviation of one measured coordinate (length unit)\n"
   "                          where the data give none (default: estimated from the fit)\n"
@@ -84,9 +87,17 @@ static int split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT])
   if (strlen(text) >= sizeof buf)
     return -1;
   strcpy(buf, text);
-  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save))
-    if (n == 2 * TWF_GROUP_COUNT || twf_group_parse(tok, &masks[n++]) != TWF_OK)
+  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
+    if (n == 2 * TWF_GROUP_COUNT)
       return -1;
+    /* a preset in a list: "geometric,compliance" */
+    if (strcmp(tok, "geometric") == 0)
+      masks[n++] = TWF_GROUPS_GEOMETRIC;
+    else if (strcmp(tok, "remaster") == 0)
+      masks[n++] = TWF_GROUPS_REMASTER;
+    else if (twf_group_parse(tok, &masks[n++]) != TWF_OK)
+      return -1;
+  }
   return n;
 }
 

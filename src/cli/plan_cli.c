@@ -72,9 +72,17 @@ static int split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT])
   if (strlen(text) >= sizeof buf)
     return -1;
   strcpy(buf, text);
-  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save))
-    if (n == 2 * TWF_GROUP_COUNT || twf_group_parse(tok, &masks[n++]) != TWF_OK)
+  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
+    if (n == 2 * TWF_GROUP_COUNT)
       return -1;
+    /* a preset in a list: "geometric,compliance" */
+    if (strcmp(tok, "geometric") == 0)
+      masks[n++] = TWF_GROUPS_GEOMETRIC;
+    else if (strcmp(tok, "remaster") == 0)
+      masks[n++] = TWF_GROUPS_REMASTER;
+    else if (twf_group_parse(tok, &masks[n++]) != TWF_OK)
+      return -1;
+  }
   return n;
 }
 

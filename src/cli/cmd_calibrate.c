@@ -940,6 +940,14 @@ static int run_calibrate(int argc, char **argv)
   }
   if ((status = cli_inputs_load(&in, "calibrate", argc, argv, optind)) != 0)
     goto done;
+  if ((co.groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE)) && !twf_model_has_masses(in.model)) {
+    fprintf(stderr, "twistfit: error: %s: the compliance group needs a mass model: the model declares no "
+                    "masses\n", in.model_path);
+    fprintf(stderr, "twistfit: hint: declare the bodies' masses ([mass JOINT]) and the payloads ([payload "
+                    "NAME]) in the model file, see twistfit-model(5)\n");
+    status = TWF_EXIT_INPUT;
+    goto done;
+  }
   cli_units_of(&u, in.model);
   /* bounded: a sigma far outside what an instrument can have (1e-300)
    * would reach the solver as infinite weights */

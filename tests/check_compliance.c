@@ -494,6 +494,55 @@ END_TEST
 START_TEST(test_without_group_two_payloads) { check_without_group("tests/fixtures/compliance_two.csv"); }
 END_TEST
 
+/* A rigid arm with a mass model: the torque family runs and the residual
+ * test stays quiet. 40 seeded campaigns of tf6s (60 poses, 0.02 mm, two
+ * payloads in turn); the false-alarm rate of the whole test is below
+ * alpha = 0.01 per campaign (twistfit/pattern.h), so more than one alarm
+ * in 40 would be a fault (probability below 0.1 % at the stated rate). */
+START_TEST(test_rigid_quiet_with_masses)
+{
+  const twf_perturbation mag = { 1e-3, 0.5e-3, 1e-3, 1e-3, 0.0 };
+  size_t alarms = 0, tested = 0;
+  for (unsigned long long seed = 1; seed <= 40; seed++) {
+    twf_model *nominal = test_arm_model(ARM_TF6S), *truth;
+    twf_simulate_options so = twf_simulate_default_options();
+    twf_calib_options co = twf_calib_default_options();
+    twf_calib_result *res = NULL;
+    twf_campaign *c;
+    twf_pose base;
+    twf_error err;
+    test_arm_add_masses(nominal);
+    truth = twf_model_copy(nominal);
+    twf_model_perturb(truth, &mag, twf_test_seed(1500 + seed));
+    test_tracker_base(&base);
+    so.n_poses = 60;
+    so.sigma_m = 2e-5;
+    so.seed = twf_test_seed(2500 + seed);
+    so.check_fraction = 0.25;
+    c = twf_simulate_campaign(truth, &base, &so, &err);
+    ck_assert_msg(c != NULL, "%s", err.message);
+    ck_assert_int_eq(twf_campaign_payload_alloc(c), TWF_OK);
+    for (size_t k = 0; k < c->n_poses; k++)
+      c->pose_payload[k] = (long)(k % 2);
+    co.sigma_length = 2e-5;
+    ck_assert_msg(twf_calibrate(nominal, c, &co, &res, NULL, &err) == TWF_OK, "%s", err.message);
+    for (size_t k = 0; k < res->pattern.n_tests; k++)
+      tested += res->pattern.tests[k].kind == TWF_PATTERN_TORQUE &&
+                res->pattern.tests[k].skip == TWF_PATTERN_TESTED;
+    alarms += res->pattern.n_significant > 0;
+    ck_assert_uint_eq(res->n_dropped, 0);
+    twf_calib_result_free(res);
+    twf_campaign_free(c);
+    twf_model_free(truth);
+    twf_model_free(nominal);
+  }
+  fprintf(stderr, "check_compliance: rigid arm with masses: %zu alarms in 40 campaigns, %zu torque families "
+          "tested\n", alarms, tested);
+  ck_assert_uint_gt(tested, 40);
+  ck_assert_uint_le(alarms, 1);
+}
+END_TEST
+
 int main(void)
 {
   Suite *s = suite_create("compliance");
@@ -512,6 +561,7 @@ int main(void)
   tcase_add_test(tc, test_recovery_two_payloads);
   tcase_add_test(tc, test_without_group_one_payload);
   tcase_add_test(tc, test_without_group_two_payloads);
+  tcase_add_test(tc, test_rigid_quiet_with_masses);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

@@ -538,8 +538,10 @@ int twf_mf_parse_robot(parse_ctx *c, const section *s, twf_model *m)
                           "gravity is the direction of the fall in the base frame, e.g. "
                           "0 0 -1 for an upright arm",
                           "gravity direction is zero");
+    /* a unit vector is kept as written, so that a written model reads
+     * back to the same bits */
     for (int k = 0; k < 3; k++)
-      m->gravity[k] = g[k] / n;
+      m->gravity[k] = fabs(n - 1.0) <= 4e-16 ? g[k] : g[k] / n;
   }
   return 0;
 }

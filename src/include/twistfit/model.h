@@ -158,6 +158,11 @@ void twf_model_theta(const twf_model *m, const double *q, long payload,
  * bodies still load the joints). */
 void twf_model_fk_load(const twf_model *m, const double *q, long payload,
                        twf_pose *prefix, twf_pose *flange);
+/* The rigid arm: the product of exponentials at theta = scale q + offset
+ * whatever the compliances (the geometry the link reports, the DH
+ * conversion and the datum rule describe). */
+void twf_model_fk_rigid(const twf_model *m, const double *q, twf_pose *prefix,
+                        twf_pose *flange);
 
 /* Spatial Jacobian with respect to the logged joint values, from the
  * prefixes of twf_model_fk: column i = scale_i Ad_{prefix[i]} S_i, so that

@@ -345,6 +345,12 @@ void twf_model_fk_load(const twf_model *m, const double *q, long payload,
     free(theta);
 }
 
+void twf_model_fk_rigid(const twf_model *m, const double *q, twf_pose *prefix,
+                        twf_pose *flange)
+{
+  fk_theta(m, q, NULL, prefix, flange);
+}
+
 void twf_model_fk(const twf_model *m, const double *q, twf_pose *prefix,
                   twf_pose *flange)
 {

@@ -770,7 +770,9 @@ twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
       qmean[j] = sum / (double)n;
       spread = fmax(spread, hi - lo);
     }
-    twf_model_fk(model, qmean, NULL, &F);
+    /* the visits' load (the first visit's: a pose repeated under another
+     * load is another commanded pose for a compliant arm) */
+    twf_model_fk_load(model, qmean, twf_campaign_payload(campaign, gp[0]), NULL, &F);
     twf_pose_mul(base_in_tracker, &F, &T);
     for (k = 0; k < nt; k++) {
       tcount[k] = 0;

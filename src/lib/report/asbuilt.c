@@ -194,7 +194,7 @@ static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
   out->settled = 1;
   twf_pose_identity(&out->datum);
   lines_at_logged_zero(nominal, nd, nq);
-  twf_model_fk(nominal, zero, NULL, &Fn);
+  twf_model_fk_rigid(nominal, zero, NULL, &Fn);
   /* Parallel revolute lines (a four-axis arm) leave the translation along
    * their direction free: the targets at logged zero, which the data
    * determine too, pin it. Otherwise the lines alone fix the frame, so that
@@ -223,7 +223,7 @@ static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
       np += 2;
     }
     if (pin_with_targets) {
-      twf_model_fk(asbuilt, zero, NULL, &Fa);
+      twf_model_fk_rigid(asbuilt, zero, NULL, &Fa);
       for (k = 0; k < nt; k++)
         if (nominal->targets[k].offset_known && asbuilt->targets[k].offset_known) {
           twf_pose_apply(&Fa, asbuilt->targets[k].offset, a + 3 * np);
@@ -251,7 +251,7 @@ static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
     out->settled = 0;
 
   lines_at_logged_zero(asbuilt, ad, aq);
-  twf_model_fk(asbuilt, zero, NULL, &Fa);
+  twf_model_fk_rigid(asbuilt, zero, NULL, &Fa);
   {
     double sum = 0.0;
     size_t used = 0;

@@ -427,6 +427,29 @@ static void check_recovery(const char *campaign, double *truth_out)
                     got, truth, p->std);
   }
   ck_assert_uint_eq(found, 6);
+  /* the summary: j1 has no torque, the loads counted, stiffness 1/C with
+   * its first-order std, the worst deflection C tau within the torque
+   * range seen */
+  {
+    const twf_compliance_summary *cs = &res->compliance;
+    ck_assert_uint_eq(cs->n_joints, 6);
+    ck_assert_int_eq(cs->joints[0].state, TWF_COMPLIANCE_NO_TORQUE);
+    ck_assert_uint_eq(cs->n_payloads_used, strstr(campaign, "two") != NULL ? 2 : 1);
+    for (k = 1; k < 6; k++) {
+      const twf_compliance_joint *cj = &cs->joints[k];
+      double t = cj->deflection / cj->compliance;
+      ck_assert_int_eq(cj->state, TWF_COMPLIANCE_ESTIMATED);
+      ck_assert_close(cj->stiffness * cj->compliance, 1.0, 1e-12);
+      ck_assert_close(cj->stiffness_std, cj->std / (cj->compliance * cj->compliance), 1e-12);
+      ck_assert_msg(t >= cj->torque_min - 1e-9 && t <= cj->torque_max + 1e-9, "joint %zu", k + 1);
+      ck_assert_msg(fabs(t) >= 0.999 * fmax(-cj->torque_min, cj->torque_max), "the worst torque, joint %zu", k + 1);
+      ck_assert_msg(cj->tool_m > 0.0 && cj->tool_m < 0.01, "joint %zu moves the tool %g m", k + 1, cj->tool_m);
+    }
+    /* j2, the shoulder: its stiffness within 3 std of the truth */
+    ck_assert_msg(fabs(cs->joints[1].stiffness - true_stiffness[1]) <= 3 * cs->joints[1].stiffness_std,
+                  "k2 %.4g N m/rad, std %.2g", cs->joints[1].stiffness, cs->joints[1].stiffness_std);
+    ck_assert_msg(cs->worst_tool_m > 5e-4, "the arm deflects: %g m", cs->worst_tool_m);
+  }
   fprintf(stderr, "check_compliance: %s: check RMS %.5f mm (floor %.5f mm), dropped %zu, refused %zu\n",
           campaign, check * 1e3, floor * 1e3, res->n_dropped, res->screen_refused);
   ck_assert_msg(check <= 1.15 * floor, "check RMS %.5f mm against the floor %.5f mm", check * 1e3,

@@ -54,7 +54,7 @@ twf_status twf_compliance_summarize(const twf_model *m, const twf_campaign *c,
 {
   size_t n, k, i, n_used = 0;
   double *tau = NULL, *theta = NULL, *rigid = NULL;
-  unsigned char seen[TWF_NAME_MAX];
+  unsigned char *seen = NULL; /* none and each payload: carried at a fit pose */
   size_t n_loads = 0;
   if (out == NULL)
     return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "no summary given");
@@ -67,8 +67,9 @@ twf_status twf_compliance_summarize(const twf_model *m, const twf_campaign *c,
   tau = malloc((n ? n : 1) * sizeof *tau);
   theta = malloc((n ? n : 1) * sizeof *theta);
   rigid = malloc((n ? n : 1) * sizeof *rigid);
-  if (out->joints == NULL || tau == NULL || theta == NULL || rigid == NULL) {
-    free(tau); free(theta); free(rigid);
+  seen = calloc(m->n_payloads + 1, 1);
+  if (out->joints == NULL || tau == NULL || theta == NULL || rigid == NULL || seen == NULL) {
+    free(tau); free(theta); free(rigid); free(seen);
     twf_compliance_summary_clear(out);
     return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
   }
@@ -79,7 +80,6 @@ twf_status twf_compliance_summarize(const twf_model *m, const twf_campaign *c,
     cj->torque_max = -INFINITY;
     cj->compliance = m->joints[i].compliance;
   }
-  memset(seen, 0, sizeof seen);
   for (k = 0; k < c->n_poses; k++) {
     const double *q = c->q + k * n;
     long pl = twf_campaign_payload(c, k);
@@ -88,8 +88,8 @@ twf_status twf_compliance_summarize(const twf_model *m, const twf_campaign *c,
     if (use != NULL && !use[k])
       continue;
     n_used++;
-    /* distinct loads: none and each payload (at most TWF_NAME_MAX counted) */
-    if (pl + 1 < (long)sizeof seen && !seen[pl + 1]) {
+    /* distinct loads: none and each payload */
+    if (pl >= -1 && pl < (long)m->n_payloads && !seen[pl + 1]) {
       seen[pl + 1] = 1;
       n_loads++;
     }
@@ -147,5 +147,6 @@ twf_status twf_compliance_summarize(const twf_model *m, const twf_campaign *c,
   free(tau);
   free(theta);
   free(rigid);
+  free(seen);
   return TWF_OK;
 }

@@ -90,3 +90,18 @@ void test_tracker_base(twf_pose *B)
   B->p[1] = -1.845;
   B->p[2] = 0.734;
 }
+
+void test_arm_add_masses(twf_model *m)
+{
+  const double p1[3] = { 0.01, -0.02, 0.12 }, p2[3] = { -0.04, 0.05, 0.21 };
+  for (size_t i = 0; i < m->n_joints; i++) {
+    const double *a = m->joints[i].point;
+    const double *b = i + 1 < m->n_joints ? m->joints[i + 1].point : m->home.p;
+    m->joints[i].has_mass = 1;
+    m->joints[i].mass = 60.0 / (double)(i + 1);
+    for (int k = 0; k < 3; k++)
+      m->joints[i].mass_center[k] = 0.5 * (a[k] + b[k]) + 0.03 * (double)((int)(i + (size_t)k) % 3 - 1);
+  }
+  twf_model_payload_add(m, "gripper", 12.5, p1);
+  twf_model_payload_add(m, "part", 31.0, p2);
+}

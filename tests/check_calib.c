@@ -579,7 +579,7 @@ START_TEST(test_asbuilt_independent_of_order)
   static const test_arm arms[] = { ARM_TF6S, ARM_TF6P, ARM_TF7, ARM_TF4P };
   const twf_group order_b[TWF_GROUP_COUNT] = { TWF_GROUP_TILTS, TWF_GROUP_SHIFTS, TWF_GROUP_HOME,
                                                TWF_GROUP_OFFSETS, TWF_GROUP_TARGETS,
-                                               TWF_GROUP_BASE, TWF_GROUP_SCALE };
+                                               TWF_GROUP_BASE, TWF_GROUP_SCALE, TWF_GROUP_COMPLIANCE };
   size_t arm;
   for (arm = 0; arm < 4; arm++) {
     twf_calib_options a = twf_calib_default_options(), b = twf_calib_default_options();
@@ -964,7 +964,7 @@ START_TEST(test_trace)
                                        "redundancy on the fit poses", "degrees of freedom", "fit",
                                        "robust screen", "covariance", "identifiability",
                                        "as-built summary", "link parameters", "residual pattern",
-                                       "plausibility" };
+                                       "compliance summary", "plausibility" };
   scenario s;
   twf_calib_options co = twf_calib_default_options();
   const twf_trace *t;

@@ -13,6 +13,8 @@
 
 static const unsigned all_groups =
   TWF_GROUPS_GEOMETRIC | TWF_GROUP_BIT(TWF_GROUP_SCALE);
+/* the payload carried in the compliance tests (-1: none) */
+static long fd_payload = -1;
 
 /* prediction of target k (or the orientation residual) after folding h e_j */
 static void predict(const twf_model *m0, const twf_pose *B0, unsigned groups,
@@ -26,6 +28,7 @@ static void predict(const twf_model *m0, const twf_pose *B0, unsigned groups,
   double *delta = calloc(p, sizeof *delta);
   delta[j] = h;
   twf_errmodel_fold(em, delta, m, &B);
+  twf_errmodel_set_payload(em, fd_payload);
   twf_errmodel_eval_pose(em, m, &B, q, NULL);
   twf_errmodel_point(em, m, k, y, NULL);
   twf_errmodel_orientation(em, R_meas, r, NULL);
@@ -34,7 +37,7 @@ static void predict(const twf_model *m0, const twf_pose *B0, unsigned groups,
   twf_model_free(m);
 }
 
-static void check_arm(test_arm arm, unsigned groups, unsigned long long seed)
+static void check_arm_with(test_arm arm, unsigned groups, unsigned long long seed, int masses)
 {
   twf_model *m = test_arm_model(arm);
   twf_pose B, T;
@@ -42,12 +45,15 @@ static void check_arm(test_arm arm, unsigned groups, unsigned long long seed)
   twf_test_rng rng;
   twf_errmodel *em;
   size_t p, j, k, trial;
-  double q[8];
+  double q[8], tau[8];
   ck_assert_ptr_nonnull(m);
   twf_model_perturb(m, &mag, twf_test_seed(seed));
+  if (masses)
+    test_arm_add_masses(m);
   test_tracker_base(&B);
   em = twf_errmodel_alloc(m, groups, NULL);
   ck_assert_ptr_nonnull(em);
+  twf_errmodel_set_payload(em, fd_payload);
   p = twf_errmodel_n_params(em);
   twf_test_rng_init(&rng, twf_test_seed(seed));
   for (trial = 0; trial < 4; trial++) {
@@ -73,13 +79,19 @@ static void check_arm(test_arm arm, unsigned groups, unsigned long long seed)
             R_meas[a][b] += E[a][c] * T.R[c][b];
         }
     }
+    twf_model_gravity_torques(m, q, fd_payload, tau, NULL);
     for (k = 0; k < m->n_targets; k++) {
       double y0[3], r0[3];
       twf_errmodel_eval_pose(em, m, &B, q, NULL);
       twf_errmodel_point(em, m, k, y0, rows);
       twf_errmodel_orientation(em, R_meas, r0, orows);
       for (j = 0; j < p; j++) {
-        const double h = 1e-6;
+        /* a compliance moves the joint by h tau: the step over the
+         * joint's torque, so that h tau stays 1e-6 rad */
+        const twf_param *par = twf_errmodel_param(em, j);
+        const double h = par->group == TWF_GROUP_COMPLIANCE
+                             ? 1e-6 / fmax(fabs(tau[par->joint]), 1e-6)
+                             : 1e-6;
         double yp[3], ym[3], rp[3], rm[3];
         int a;
         predict(m, &B, groups, q, j, h, k, R_meas, yp, rp);
@@ -103,6 +115,83 @@ static void check_arm(test_arm arm, unsigned groups, unsigned long long seed)
   twf_model_free(m);
 }
 
+static void check_arm(test_arm arm, unsigned groups, unsigned long long seed)
+{
+  check_arm_with(arm, groups, seed, 0);
+}
+
+/* The compliance group (theta_i += C_i tau_i): its column is the offset's
+ * times the torque, exact at any compliance since tau does not depend on
+ * C; at zero compliance every other column stays exact too. Each payload
+ * in turn, on the 6-axis arms and the prismatic one. */
+START_TEST(test_jacobian_compliance)
+{
+  const unsigned g = all_groups | TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE);
+  for (fd_payload = -1; fd_payload < 2; fd_payload++) {
+    check_arm_with(ARM_TF6S, g, 21, 1);
+    check_arm_with(ARM_TF6P, g, 22, 1);
+    check_arm_with(ARM_TF4P, g, 23, 1);
+  }
+  fd_payload = -1;
+}
+END_TEST
+
+/* With compliance in the model the geometric columns leave out C dtau /
+ * dparam (DEVELOPERS.md): the compliance column stays exact, the others
+ * agree within |C dtau/dtheta| relative (the bound stated there). */
+START_TEST(test_jacobian_with_compliance_set)
+{
+  const unsigned g = TWF_GROUPS_GEOMETRIC | TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE);
+  twf_model *m = test_arm_model(ARM_TF6S);
+  twf_pose B;
+  twf_errmodel *em;
+  size_t p, j, k;
+  double q[6] = { 0.4, -0.6, 0.9, -0.3, 0.8, 1.1 }, *rows;
+  const double C = 2e-7; /* rad per N m: a stiffness of 5e6 N m/rad */
+  test_arm_add_masses(m);
+  for (k = 1; k < 6; k++)
+    m->joints[k].compliance = C;
+  test_tracker_base(&B);
+  fd_payload = 1;
+  em = twf_errmodel_alloc(m, g, NULL);
+  twf_errmodel_set_payload(em, fd_payload);
+  p = twf_errmodel_n_params(em);
+  rows = calloc(3 * p, sizeof *rows);
+  twf_errmodel_eval_pose(em, m, &B, q, NULL);
+  for (k = 0; k < m->n_targets; k++) {
+    double y0[3];
+    twf_errmodel_eval_pose(em, m, &B, q, NULL);
+    twf_errmodel_point(em, m, k, y0, rows);
+    for (j = 0; j < p; j++) {
+      const twf_param *par = twf_errmodel_param(em, j);
+      const double h = par->group == TWF_GROUP_COMPLIANCE ? 1e-9 : 1e-6;
+      double yp[3], ym[3], rp[3], rm[3], R[3][3] = { { 1, 0, 0 }, { 0, 1, 0 }, { 0, 0, 1 } };
+      double col = 0.0, diff = 0.0;
+      int a;
+      predict(m, &B, g, q, j, h, k, R, yp, rp);
+      predict(m, &B, g, q, j, -h, k, R, ym, rm);
+      for (a = 0; a < 3; a++) {
+        double fd = (yp[a] - ym[a]) / (2 * h), an = rows[(size_t)a * p + j];
+        col = fmax(col, fabs(fd));
+        diff = fmax(diff, fabs(fd - an));
+      }
+      /* tau of the joints of tf6s with these masses stays below 2e3 N m
+       * and dtau/dtheta below 2e3 N m/rad: C dtau/dtheta below 4e-4 */
+      if (par->group == TWF_GROUP_COMPLIANCE)
+        ck_assert_msg(diff <= 1e-6 * fmax(col, 1.0), "%s: analytic and finite difference differ by %g of %g",
+                      par->name, diff, col);
+      else
+        ck_assert_msg(diff <= 4e-4 * fmax(col, 1e-3), "%s: %g of %g beyond the stated bound",
+                      par->name, diff, col);
+    }
+  }
+  free(rows);
+  twf_errmodel_free(em);
+  twf_model_free(m);
+  fd_payload = -1;
+}
+END_TEST
+
 START_TEST(test_jacobian_tf6s) { check_arm(ARM_TF6S, all_groups, 11); }
 END_TEST
 START_TEST(test_jacobian_tf6p) { check_arm(ARM_TF6P, all_groups, 12); }
@@ -120,6 +209,17 @@ START_TEST(test_param_counts)
   ck_assert_uint_eq(twf_errmodel_n_params(em), 6 + 6 + 4 + 6 + 2 * 3 + 2 * 4 + 4);
   ck_assert_str_eq(twf_errmodel_param(em, 0)->name, "base.rx");
   twf_errmodel_free(em);
+  /* one compliance per revolute joint (tf4p: 3 revolute, 1 prismatic) */
+  em = twf_errmodel_alloc(m, TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE), NULL);
+  ck_assert_uint_eq(twf_errmodel_n_params(em), 3);
+  ck_assert_int_eq(twf_errmodel_param(em, 0)->kind, TWF_PARAM_COMPLIANCE);
+  ck_assert_msg(strstr(twf_errmodel_param(em, 0)->name, ".compliance") != NULL, "name");
+  twf_errmodel_free(em);
+  {
+    unsigned mask = 0;
+    ck_assert_int_eq(twf_group_parse("compliance", &mask), TWF_OK);
+    ck_assert_uint_eq(mask, TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE));
+  }
   em = twf_errmodel_alloc(m, 0, NULL);
   ck_assert_ptr_null(em);
   twf_model_free(m);
@@ -163,6 +263,8 @@ int main(void)
   TCase *tc = tcase_create("jacobian");
   tcase_set_timeout(tc, 120);
   tcase_add_test(tc, test_jacobian_tf6s);
+  tcase_add_test(tc, test_jacobian_compliance);
+  tcase_add_test(tc, test_jacobian_with_compliance_set);
   tcase_add_test(tc, test_jacobian_tf6p);
   tcase_add_test(tc, test_jacobian_tf7);
   tcase_add_test(tc, test_jacobian_tf4p_prismatic);

@@ -257,7 +257,7 @@ START_TEST(test_assess_prediction_independent_of_order)
   unsigned long long st = 12;
   size_t i;
   const twf_group other[TWF_GROUP_COUNT] = { TWF_GROUP_TILTS, TWF_GROUP_SHIFTS, TWF_GROUP_HOME, TWF_GROUP_OFFSETS,
-                                             TWF_GROUP_TARGETS, TWF_GROUP_BASE, TWF_GROUP_SCALE };
+                                             TWF_GROUP_TARGETS, TWF_GROUP_BASE, TWF_GROUP_SCALE, TWF_GROUP_COMPLIANCE };
   for (i = 0; i < 50; i++)
     twf_simulate_joints(m, 0.05, &st, q + 7 * i);
   ao.workspace.n_configs = 200;

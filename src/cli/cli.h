@@ -156,6 +156,7 @@ enum {
   CLI_OPT_ANGLE_UNIT,
   CLI_OPT_LIMITS_ERROR,
   CLI_OPT_MAX_INPUT_SIZE,
+  CLI_OPT_PAYLOAD,
   CLI_OPT_FIRST_FREE /* commands number their own options from here */
 };
 /* The options that choose the chain of a URDF model (twistfit-model(5)),
@@ -191,7 +192,8 @@ int cli_urdf_longopt(const char *command, int opt, const char *value, cli_urdf_l
   { "length-unit", required_argument, NULL, CLI_OPT_LENGTH_UNIT },             \
   { "angle-unit", required_argument, NULL, CLI_OPT_ANGLE_UNIT },               \
   { "limits-error", no_argument, NULL, CLI_OPT_LIMITS_ERROR },               \
-  { "max-input-size", required_argument, NULL, CLI_OPT_MAX_INPUT_SIZE }
+  { "max-input-size", required_argument, NULL, CLI_OPT_MAX_INPUT_SIZE },        \
+  { "payload", required_argument, NULL, CLI_OPT_PAYLOAD }
 #define CLI_INPUT_HELP                                                         \
   "      --joints FILE       two-file form: the controller's joint log ...\n"  \
   "      --points FILE       ... and the instrument's points (instead of DATA)\n" \
@@ -202,7 +204,9 @@ int cli_urdf_longopt(const char *command, int opt, const char *value, cli_urdf_l
   "      --limits-error      joint values outside the model's limits are an\n" \
   "                          error (default: a warning)\n"                    \
   "      --max-input-size N  refuse input files larger than N bytes (suffix\n" \
-  "                          K, M, G, T: binary multiples; default 2G)\n"    \
+  "                          K, M, G, T: binary multiples; default 2G)\n"       \
+  "      --payload NAME      the load carried at every pose ([payload NAME] of\n" \
+  "                          the model) when the data have no payload column\n" \
   CLI_URDF_HELP
 
 /* A model and a campaign read from the command line. */
@@ -212,6 +216,7 @@ typedef struct cli_inputs {
   twf_campaign_options copt;
   twf_read_options ropt; /* model and base pose files */
   cli_urdf_links urdf_links; /* --target-link names that ropt points to */
+  const char *payload;   /* --payload NAME, or NULL */
   twf_input_digest model_digest; /* of the model file as read */
   twf_model *model;
   twf_campaign *campaign;
@@ -310,6 +315,20 @@ void cli_print_pattern(FILE *fp, const twf_model *m, const twf_pattern_result *p
                        const cli_units *u);
 json_t *cli_json_pattern(const twf_model *m, const twf_pattern_result *p, size_t screen_refused,
                          const cli_units *u);
+/* --payload NAME (payload_cli.c): the index of the model's payload (-1
+ * for NULL); a name the model lacks is a usage error listing the
+ * declared ones. */
+int cli_payload_resolve(const char *command, const twf_model *m, const char *name, long *index);
+/* Give every pose of c (read from path) the payload index (nothing for
+ * -1); a file with its own payload column is a usage error. */
+int cli_payload_apply(const char *command, twf_campaign *c, const char *path, long index);
+/* calibrate's section "Joint compliance under gravity" and its JSON
+ * member (compliance_report.c); nothing (null) without the group. */
+extern const char cli_compliance_caution[];
+void cli_print_compliance(FILE *fp, const twf_model *m, const twf_campaign *c,
+                          const twf_compliance_summary *s, const cli_units *u);
+json_t *cli_json_compliance(const twf_model *m, const twf_campaign *c, const twf_compliance_summary *s,
+                            const cli_units *u);
 /* cli_put writer of a JSON document (ctx: json_t *). */
 int cli_put_json(FILE *fp, void *ctx, twf_error *err);
 /* Per-measurement residual CSV with one or two variants (labels such as

@@ -37,12 +37,15 @@ static const char calibrate_help[] =
   "      --html FILE         write the report as one self-contained HTML file with\n"
   "                          charts (as 'twistfit report' makes from the JSON)\n"
   "      --fit GROUPS        parameter groups, comma-separated: base, targets, offsets,\n"
-  "                          home, shifts, tilts, axes (= shifts,tilts), scale; or a preset:\n"
-  "                          geometric (default: all but scale), remaster (base,targets,\n"
-  "                          offsets: re-mastering after a crash or a motor swap, best\n"
-  "                          started from the previous as-built model), all\n"
+  "                          home, shifts, tilts, axes (= shifts,tilts), scale, compliance\n"
+  "                          (joint yield under gravity: needs the model's mass model); or a\n"
+  "                          preset: geometric (default: all but scale and compliance),\n"
+  "                          remaster (base,targets,offsets: re-mastering after a crash or\n"
+  "                          a motor swap, best started from the previous as-built model),\n"
+  "                          all (geometric and scale); presets mix with groups, e.g.\n"
+  "                          geometric,compliance\n"
   "      --priority GROUPS   order in which redundant parameters are kept (default\n"
-  "                          base,targets,offsets,home,shifts,tilts,scale); groups left\n"
+  "                          base,targets,offsets,home,shifts,tilts,scale,compliance); groups left\n"
   "                          out follow in the default order\n"
   "      --sigma X           standard deviation of one measured coordinate (length unit)\n"
   "                          where the data give none (default: estimated from the fit)\n"
@@ -87,9 +90,17 @@ static int split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT])
   if (strlen(text) >= sizeof buf)
     return -1;
   strcpy(buf, text);
-  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save))
-    if (n == 2 * TWF_GROUP_COUNT || twf_group_parse(tok, &masks[n++]) != TWF_OK)
+  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
+    if (n == 2 * TWF_GROUP_COUNT)
       return -1;
+    /* a preset in a list: "geometric,compliance" */
+    if (strcmp(tok, "geometric") == 0)
+      masks[n++] = TWF_GROUPS_GEOMETRIC;
+    else if (strcmp(tok, "remaster") == 0)
+      masks[n++] = TWF_GROUPS_REMASTER;
+    else if (twf_group_parse(tok, &masks[n++]) != TWF_OK)
+      return -1;
+  }
   return n;
 }
 
@@ -138,6 +149,7 @@ static double param_shown(const twf_param *p, double v, const cli_units *u, cons
   case TWF_PARAM_LENGTH: *unit = u->length; return v / u->length_si;
   case TWF_PARAM_ANGLE: *unit = u->angle; return v / u->angle_si;
   case TWF_PARAM_RATIO: break;
+  case TWF_PARAM_COMPLIANCE: *unit = "urad/Nm"; return v * 1e6;
   }
   *unit = "ppm";
   return v * 1e6;
@@ -399,6 +411,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   }
   cli_print_stations(fp, r, view, u);
   cli_print_pattern(fp, m, &r->pattern, r->screen_refused, u);
+  cli_print_compliance(fp, r->asbuilt, view, &r->compliance, u);
 
   fprintf(fp, "\nSolver\n");
   fprintf(fp, "  registration refinement: %d %s, %s\n", r->registration.iterations,
@@ -676,6 +689,8 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   }
   json_object_set_new(root, "outliers", outl);
   json_object_set_new(root, "residual_pattern", cli_json_pattern(m, &r->pattern, r->screen_refused, u));
+  if (r->compliance.n_joints > 0)
+    json_object_set_new(root, "compliance", cli_json_compliance(r->asbuilt, view, &r->compliance, u));
   {
     static const char *const names[2] = { "before", "after" };
     const double *pe[2] = { r->pos_err_before, r->pos_err_after };
@@ -945,6 +960,14 @@ static int run_calibrate(int argc, char **argv)
   }
   if ((status = cli_inputs_load(&in, "calibrate", argc, argv, optind)) != 0)
     goto done;
+  if ((co.groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE)) && !twf_model_has_masses(in.model)) {
+    fprintf(stderr, "twistfit: error: %s: the compliance group needs a mass model: the model declares no "
+                    "masses\n", in.model_path);
+    fprintf(stderr, "twistfit: hint: declare the bodies' masses ([mass JOINT]) and the payloads ([payload "
+                    "NAME]) in the model file, see twistfit-model(5)\n");
+    status = TWF_EXIT_INPUT;
+    goto done;
+  }
   cli_units_of(&u, in.model);
   /* bounded: a sigma far outside what an instrument can have (1e-300)
    * would reach the solver as infinite weights */

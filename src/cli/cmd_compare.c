@@ -47,13 +47,15 @@ static const char compare_help[] =
   "                          exit status 1 when a tolerance is exceeded\n"
   "      --json FILE         write the figures as JSON ('-' for standard output,\n"
   "                          then the text report goes to standard error)\n"
+  "      --payload NAME      the load both arms carry ([payload NAME]): models with\n"
+  "                          compliances deflect under it (default: none)\n"
   "  -f, --force             replace an output file that exists\n"
   CLI_URDF_HELP
   "  -h, --help              show this help\n";
 
 enum {
   OPT_JOINTS = CLI_OPT_FIRST_FREE, OPT_COUNT, OPT_SEED, OPT_LENGTH_UNIT, OPT_ANGLE_UNIT, OPT_NO_ALIGN,
-  OPT_TOL_RMS, OPT_TOL_MAX, OPT_TOL_ANGLE, OPT_JSON, OPT_FULL_POSE
+  OPT_TOL_RMS, OPT_TOL_MAX, OPT_TOL_ANGLE, OPT_JSON, OPT_FULL_POSE, OPT_PAYLOAD
 };
 
 typedef struct tolerance {
@@ -121,6 +123,7 @@ static int run_compare(int argc, char **argv)
     { "tol-max", required_argument, NULL, OPT_TOL_MAX },
     { "tol-angle-max", required_argument, NULL, OPT_TOL_ANGLE },
     { "json", required_argument, NULL, OPT_JSON },
+    { "payload", required_argument, NULL, OPT_PAYLOAD },
     { "force", no_argument, NULL, 'f' },
     CLI_URDF_LONGOPTS,
     { "help", no_argument, NULL, 'h' },
@@ -197,6 +200,7 @@ static int run_compare(int argc, char **argv)
     case OPT_TOL_MAX: tol_text[1] = optarg; break;
     case OPT_TOL_ANGLE: tol_text[2] = optarg; break;
     case OPT_JSON: json_path = optarg; break;
+    case OPT_PAYLOAD: co.payload = optarg; break;
     case 'f': force = 1; break;
     case CLI_OPT_BASE_LINK:
     case CLI_OPT_TIP_LINK:
@@ -229,6 +233,12 @@ static int run_compare(int argc, char **argv)
     goto fail;
   if (twf_models_same_joints(a, b, inputs[0], inputs[1], &err) != TWF_OK)
     goto fail;
+  if (co.payload != NULL && twf_model_payload_index(a, co.payload) < 0 &&
+      twf_model_payload_index(b, co.payload) < 0) {
+    long dummy;
+    status = cli_payload_resolve("compare", a, co.payload, &dummy);
+    goto done;
+  }
   cli_units_of(&u, a);
   for (i = 0; i < 3; i++)
     if (tol_text[i] != NULL &&

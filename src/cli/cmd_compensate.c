@@ -50,12 +50,16 @@ static const char compensate_help[] =
   "      --singular-threshold X flag rows where the smallest singular value of the\n"
   "                             scaled Jacobian is below X (default 0.01)\n"
   "      --allow-flagged        exit status 0 even when rows are flagged\n"
+  "      --payload NAME         the load carried ([payload NAME] of the models): an\n"
+  "                             ASBUILT with compliances is solved deflected under it\n"
+  "                             (or name it in the input's payload column, one load\n"
+  "                             per program)\n"
   CLI_URDF_HELP
   "  -h, --help                 show this help\n";
 
 enum {
   OPT_POINT = CLI_OPT_FIRST_FREE, OPT_CARTESIAN, OPT_LENGTH_UNIT, OPT_ANGLE_UNIT, OPT_TOL_POS,
-  OPT_TOL_ANG, OPT_MAX_ITER, OPT_SINGULAR, OPT_ALLOW
+  OPT_TOL_ANG, OPT_MAX_ITER, OPT_SINGULAR, OPT_ALLOW, OPT_PAYLOAD
 };
 
 /* The units a campaign-style file declares in its "# units:" line (above
@@ -283,11 +287,13 @@ static int run_compensate(int argc, char **argv)
     { "singular-threshold", required_argument, NULL, OPT_SINGULAR },
     { "allow-flagged", no_argument, NULL, OPT_ALLOW },
     CLI_URDF_LONGOPTS,
+    { "payload", required_argument, NULL, OPT_PAYLOAD },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
   static const char *const names[1] = { "--output" };
   const char *output = NULL, *point = NULL, *cartesian = NULL, *tol_pos = NULL, *tol_ang = NULL;
+  const char *payload_name = NULL;
   const char *inputs[4] = { NULL, NULL, NULL, NULL };
   int force = 0, allow = 0, warned = 0, opt, status = TWF_EXIT_OK, n_pos;
   twf_campaign_options copt = twf_campaign_default_options();
@@ -350,6 +356,7 @@ static int run_compensate(int argc, char **argv)
       if ((status = cli_urdf_longopt("compensate", opt, optarg, &urdf_links, &ropt)) != 0)
         goto done;
       break;
+    case OPT_PAYLOAD: payload_name = optarg; break;
     case 'h': fputs(compensate_help, stdout); goto done;
     default: status = cli_bad_option("compensate", opt, argv); goto done;
     }
@@ -401,6 +408,31 @@ static int run_compensate(int argc, char **argv)
     goto fail;
   cli_print_warnings(&warnings);
   warned = 1;
+  /* the load: --payload, or the input's payload column (one for all rows) */
+  if ((status = cli_payload_resolve("compensate", asbuilt, payload_name, &co.ik.payload)) != 0)
+    goto done;
+  if (input->pose_payload != NULL) {
+    const twf_model *named = cartesian ? goal_model : nominal;
+    long first = twf_campaign_payload(input, 0);
+    size_t k;
+    if (payload_name != NULL) {
+      status = cli_usage_error("compensate", "%s names the payload of its rows: leave out --payload",
+                               inputs[cartesian ? 1 : 2]);
+      goto done;
+    }
+    for (k = 1; k < input->n_poses; k++)
+      if (twf_campaign_payload(input, k) != first) {
+        status = cli_usage_error("compensate", "%s names more than one payload: compensate one program "
+                                 "per load", inputs[cartesian ? 1 : 2]);
+        goto done;
+      }
+    co.ik.payload = first >= 0 ? twf_model_payload_index(asbuilt, named->payloads[first].name) : -1;
+    if (first >= 0 && co.ik.payload < 0) {
+      status = cli_usage_error("compensate", "the as-built model does not declare the payload '%s'",
+                               named->payloads[first].name);
+      goto done;
+    }
+  }
   memset(&out, 0, sizeof out);
   declared_units(cartesian ? cartesian : inputs[2], &copt, &out.lu, &out.au);
   if (tol_pos != NULL &&

@@ -161,6 +161,9 @@ static int put_dh(FILE *fp, void *ctx, twf_error *err)
     fprintf(fp, "name = %s\n", m->name);
   fprintf(fp, "length_unit = %s\nangle_unit = %s\n", twf_length_unit_name(m->length_unit),
           twf_angle_unit_name(m->angle_unit));
+  if (m->gravity[0] != 0.0 || m->gravity[1] != 0.0 || m->gravity[2] != -1.0)
+    fprintf(fp, "gravity = %s %s %s\n", num(m->gravity[0], 1.0, 0), num(m->gravity[1], 1.0, 1),
+            num(m->gravity[2], 1.0, 2));
   for (size_t k = 0; k < m->n_joints; k++) {
     const twf_joint *j = &m->joints[k];
     const twf_dh_row *r = &x->rows[k];
@@ -181,6 +184,11 @@ static int put_dh(FILE *fp, void *ctx, twf_error *err)
     }
     if (j->scale != 1.0)
       fprintf(fp, "scale = %s\n", num(j->scale, 1.0, 0));
+    if (j->compliance != 0.0) {
+      /* rad per N m in every form: the joint's yield is the same */
+      char c[CLI_SHORTEST_MAX];
+      fprintf(fp, "compliance = %s\n", cli_shortest_double(c, sizeof c, j->compliance, 1.0));
+    }
   }
   put_pose(fp, "base", &x->base, lu);
   put_pose(fp, "flange", &x->flange, lu);
@@ -190,6 +198,31 @@ static int put_dh(FILE *fp, void *ctx, twf_error *err)
     if (t->offset_known)
       fprintf(fp, "offset = %s %s %s\n", num(t->offset[0], lu, 0), num(t->offset[1], lu, 1),
               num(t->offset[2], lu, 2));
+  }
+  /* the mass model: its centres are in the model's base frame, which the
+   * DH file keeps ([base] places DH frame 0 in it), at the joints' zero;
+   * the DH rows take the zero offsets into theta, so a body's centre is
+   * carried to where the offsets before it and its own put it */
+  {
+    twf_pose P;
+    twf_pose_identity(&P);
+    for (size_t k = 0; k < m->n_joints; k++) {
+      const twf_joint *j = &m->joints[k];
+      twf_pose E;
+      double c[3];
+      twf_se3_exp(j->twist, j->offset, &E);
+      twf_pose_mul(&P, &E, &P);
+      if (!j->has_mass)
+        continue;
+      twf_pose_apply(&P, j->mass_center, c);
+      fprintf(fp, "\n[mass %s]\nmass = %s\ncenter = %s %s %s\n", j->name, num(j->mass, 1.0, 3),
+              num(c[0], lu, 0), num(c[1], lu, 1), num(c[2], lu, 2));
+    }
+  }
+  for (size_t k = 0; k < m->n_payloads; k++) {
+    const twf_payload *pl = &m->payloads[k];
+    fprintf(fp, "\n[payload %s]\nmass = %s\ncenter = %s %s %s\n", pl->name, num(pl->mass, 1.0, 3),
+            num(pl->center[0], lu, 0), num(pl->center[1], lu, 1), num(pl->center[2], lu, 2));
   }
   return 0;
 }
@@ -205,14 +238,22 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
   cli_put put;
   int status;
   const double reach = twf_model_reach(m);
-  if (rows == NULL)
+  /* the table and its residual are of the rigid arm: the compliances
+   * and the mass model are written beside the rows */
+  twf_model *rigid = twf_model_copy(m);
+  if (rows == NULL || rigid == NULL) {
+    free(rows);
+    twf_model_free(rigid);
     return TWF_EXIT_INTERNAL;
+  }
+  for (size_t k = 0; k < rigid->n_joints; k++)
+    rigid->joints[k].compliance = 0.0;
   twf_error_clear(&err);
   memset(&x, 0, sizeof x);
-  if (twf_model_to_dh_like(m, like, conv, use_beta, rows, &x.base, &x.flange, &err) != TWF_OK)
+  if (twf_model_to_dh_like(rigid, like, conv, use_beta, rows, &x.base, &x.flange, &err) != TWF_OK)
     goto fail;
-  snap_table(m, rows, &x.base, &x.flange);
-  if (twf_dh_residual(m, rows, conv, &x.base, &x.flange, EXPORT_RESIDUAL_CONFIGS,
+  snap_table(rigid, rows, &x.base, &x.flange);
+  if (twf_dh_residual(rigid, rows, conv, &x.base, &x.flange, EXPORT_RESIDUAL_CONFIGS,
                       EXPORT_RESIDUAL_SEED, &x.fit, &err) != TWF_OK)
     goto fail;
   if (!use_beta) {
@@ -226,6 +267,7 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
                 fabs(rows[k].d) > lim ? "d" : "a", fabs(rows[k].d) > lim ? rows[k].d : rows[k].a,
                 m->joints[k].name, reach);
         free(rows);
+        twf_model_free(rigid);
         return TWF_EXIT_COMPUTE;
       }
     }
@@ -253,9 +295,11 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
               use_beta ? "" : "; leave out --no-beta for an exact table");
   }
   free(rows);
+  twf_model_free(rigid);
   return status;
 fail:
   free(rows);
+  twf_model_free(rigid);
   return cli_report_error(&err);
 }
 
@@ -367,6 +411,11 @@ static int run_export(int argc, char **argv)
       goto done;
     }
   }
+  if ((fmt == FMT_SHEET || fmt == FMT_SHEET_CSV || fmt == FMT_URDF) && twf_model_has_compliance(m) &&
+      cli_verbosity > 0)
+    fprintf(stderr, "twistfit export: warning: %s carries joint compliances, which %s does not hold: "
+                    "the exported arm is the rigid one (the deflection under gravity is left out)\n",
+            inputs[0], fmt == FMT_URDF ? "a URDF joint" : "the parameter sheet");
   switch (fmt) {
   case FMT_DH:
     status = export_dh(m, inputs[0], TWF_DH_STANDARD, use_beta, like_model, like, output, force,
@@ -378,11 +427,13 @@ static int run_export(int argc, char **argv)
     break;
   case FMT_SHEET:
   case FMT_SHEET_CSV:
-    status = cli_export_sheet(m, inputs[0], fmt == FMT_SHEET_CSV, eu, base, like_model, output,
-                              force, inputs);
-    break;
   case FMT_URDF:
-    status = cli_export_urdf(m, like, &ropt, output, force, inputs);
+    /* formats without compliance: the rigid arm, as the warning says */
+    for (size_t k = 0; k < m->n_joints; k++)
+      m->joints[k].compliance = 0.0;
+    status = fmt == FMT_URDF ? cli_export_urdf(m, like, &ropt, output, force, inputs)
+                             : cli_export_sheet(m, inputs[0], fmt == FMT_SHEET_CSV, eu, base, like_model,
+                                                output, force, inputs);
     break;
   case FMT_NONE: break;
   }

@@ -33,6 +33,9 @@ static const char fk_help[] =
   "      --tip-link LINK        a URDF MODEL's flange link (default: the one tip)\n"
   "      --target-link LINK     a link fixed to the tip that is a target (repeat;\n"
   "                             default: every such link without children)\n"
+  "      --payload NAME         the load carried at every row ([payload NAME] of\n"
+  "                             the model; for a JOINTS.csv without a payload\n"
+  "                             column): a model with compliances deflects under it\n"
   "  -h, --help                 show this help\n";
 
 static void write_header(cli_csv *csv, const twf_model *m, const char *lu)
@@ -62,13 +65,13 @@ static void write_header(cli_csv *csv, const twf_model *m, const char *lu)
 }
 
 static void write_row(cli_csv *csv, const twf_model *m, const char *id,
-                      const double *q, double per_unit)
+                      const double *q, long payload, double per_unit)
 {
   twf_pose flange;
   double quat[4], y[3];
   size_t k;
   int a;
-  twf_model_fk(m, q, NULL, &flange);
+  twf_model_fk_load(m, q, payload, NULL, &flange);
   cli_quat_of(flange.R, quat);
   cli_csv_text(csv, id);
   /* positions below 1 pm are rounding left-overs (a DH chain's 1e-15 mm):
@@ -90,6 +93,7 @@ static void write_row(cli_csv *csv, const twf_model *m, const char *id,
 typedef struct fk_ctx {
   const twf_model *model;
   const twf_campaign *joints; /* NULL: the home configuration */
+  long payload;               /* of the home configuration (--payload) */
   twf_length_unit out_unit;
 } fk_ctx;
 
@@ -106,12 +110,12 @@ static int put_fk(FILE *fp, void *ctx, twf_error *err)
       twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
       return -1;
     }
-    write_row(&csv, f->model, "home", zero, twf_length_unit_si(f->out_unit));
+    write_row(&csv, f->model, "home", zero, f->payload, twf_length_unit_si(f->out_unit));
     free(zero);
   } else {
     for (i = 0; i < f->joints->n_poses; i++)
       write_row(&csv, f->model, f->joints->pose_ids[i], f->joints->q + i * f->model->n_joints,
-                twf_length_unit_si(f->out_unit));
+                twf_campaign_payload(f->joints, i), twf_length_unit_si(f->out_unit));
   }
   return 0;
 }
@@ -128,11 +132,13 @@ static int run_fk(int argc, char **argv)
     { "base-link", required_argument, NULL, 'B' },
     { "tip-link", required_argument, NULL, 'T' },
     { "target-link", required_argument, NULL, 'G' },
+    { "payload", required_argument, NULL, 'P' },
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
   static const char *const names[1] = { "--output" };
-  const char *output = NULL;
+  const char *output = NULL, *payload_name = NULL;
+  long payload = -1;
   int force = 0, opt, status;
   twf_campaign_options copt = twf_campaign_default_options();
   twf_read_options ropt = twf_read_default_options();
@@ -181,6 +187,7 @@ static int run_fk(int argc, char **argv)
                                     optarg, &links, &ropt)) != 0)
         return status;
       break;
+    case 'P': payload_name = optarg; break;
     case 'h': fputs(fk_help, stdout); return TWF_EXIT_OK;
     default: return cli_bad_option("fk", opt, argv);
     }
@@ -201,6 +208,8 @@ static int run_fk(int argc, char **argv)
     twf_warnings_clear(&warnings);
     return cli_report_error(&err);
   }
+  if ((status = cli_payload_resolve("fk", model, payload_name, &payload)) != 0)
+    goto done;
   if (inputs[1] != NULL) {
     joints = twf_campaign_read_joints(inputs[1], model, &copt, &warnings, &err);
     if (joints == NULL) {
@@ -215,6 +224,8 @@ static int run_fk(int argc, char **argv)
       status = cli_report_error(&err);
       goto done;
     }
+    if ((status = cli_payload_apply("fk", joints, inputs[1], payload)) != 0)
+      goto done;
   }
   /* the home pose against the model's own limits (the joint rows of a
    * file are checked by the reader, which names the file and line) */
@@ -230,6 +241,7 @@ static int run_fk(int argc, char **argv)
 
   ctx.model = model;
   ctx.joints = joints;
+  ctx.payload = payload;
   ctx.out_unit = out_unit;
   put.path = output != NULL ? output : "-";
   put.put = put_fk;

@@ -72,9 +72,17 @@ static int split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT])
   if (strlen(text) >= sizeof buf)
     return -1;
   strcpy(buf, text);
-  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save))
-    if (n == 2 * TWF_GROUP_COUNT || twf_group_parse(tok, &masks[n++]) != TWF_OK)
+  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
+    if (n == 2 * TWF_GROUP_COUNT)
       return -1;
+    /* a preset in a list: "geometric,compliance" */
+    if (strcmp(tok, "geometric") == 0)
+      masks[n++] = TWF_GROUPS_GEOMETRIC;
+    else if (strcmp(tok, "remaster") == 0)
+      masks[n++] = TWF_GROUPS_REMASTER;
+    else if (twf_group_parse(tok, &masks[n++]) != TWF_OK)
+      return -1;
+  }
   return n;
 }
 
@@ -207,6 +215,7 @@ static double param_shown(const twf_param *p, double v, const cli_units *u, cons
   case TWF_PARAM_LENGTH: *unit = u->length; return v / u->length_si;
   case TWF_PARAM_ANGLE: *unit = u->angle; return v / u->angle_si;
   case TWF_PARAM_RATIO: break;
+  case TWF_PARAM_COMPLIANCE: *unit = "urad/Nm"; return v * 1e6;
   }
   *unit = "ppm";
   return v * 1e6;

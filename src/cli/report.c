@@ -114,6 +114,7 @@ int cli_inputs_option(cli_inputs *in, const char *command, int opt, const char *
   case CLI_OPT_TARGET_LINK:
     *status = cli_urdf_longopt(command, opt, arg, &in->urdf_links, &in->ropt);
     return 1;
+  case CLI_OPT_PAYLOAD: in->payload = arg; return 1;
   case CLI_OPT_MAX_INPUT_SIZE:
     *status = cli_parse_size(command, arg, &in->copt.max_input_size);
     in->ropt.max_input_size = in->copt.max_input_size;
@@ -151,6 +152,16 @@ int cli_inputs_load(cli_inputs *in, const char *command, int argc, char **argv, 
                                           &in->copt, &in->warnings, &err);
   if (in->campaign == NULL)
     goto fail;
+  {
+    long pl;
+    int st = cli_payload_resolve(command, in->model, in->payload, &pl);
+    if (st == 0)
+      st = cli_payload_apply(command, in->campaign, in->paths[1], pl);
+    if (st != 0) {
+      cli_print_warnings(&in->warnings);
+      return st;
+    }
+  }
   if (in->campaign->n_meas == 0) {
     twf_error_set(&err, TWF_ERR_MISSING, in->paths[1], 0, 0, "add measurement rows",
                   "the campaign holds no measurement");

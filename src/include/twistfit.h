@@ -39,6 +39,7 @@
 #include "twistfit/asbuilt.h"
 #include "twistfit/links.h"
 #include "twistfit/pattern.h"
+#include "twistfit/compliance.h"
 #include "twistfit/calib.h"
 #include "twistfit/simulate.h"
 #include "twistfit/plan.h"

@@ -61,6 +61,11 @@ typedef struct twf_ik_options {
   double length_scale_m;
   /* Slack on the joint limits, rad or m (default 1e-9). */
   double limit_tolerance;
+  /* The payload carried (index into the model's payloads; -1, the
+   * default: none): a model with compliances is solved deflected under it
+   * (twf_model_fk_load; the Jacobian is the rigid one, which changes the
+   * steps, not the solution). */
+  long payload;
 } twf_ik_options;
 
 twf_ik_options twf_ik_default_options(void);
@@ -189,6 +194,10 @@ typedef struct twf_compare_options {
    * different dates live in different base frames. 0: compare in the
    * frames as written. */
   int align;
+  /* The load both arms carry, by name (NULL, the default: none); a model
+   * that does not declare it carries none. Models with compliances deflect
+   * under it (twf_model_fk_load). */
+  const char *payload;
 } twf_compare_options;
 
 twf_compare_options twf_compare_default_options(void);

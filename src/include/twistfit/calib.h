@@ -14,6 +14,7 @@
 #include "twistfit/accuracy.h"
 #include "twistfit/asbuilt.h"
 #include "twistfit/pattern.h"
+#include "twistfit/compliance.h"
 #include "twistfit/links.h"
 
 #ifdef __cplusplus
@@ -66,6 +67,11 @@ typedef struct twf_calib_options {
    * limit. Our own choice (common practice, no source): gross errors of a
    * tracker campaign are a few rows, a systematic misfit many. */
   double screen_max_fraction;
+  /* The lower limit (default 0.01; screen_max_fraction when that is lower) that holds
+   * when the readings the screen keeps still fail the residual pattern
+   * test: a model that lacks an effect (compliance, a gear error) makes
+   * many readings look bad, gross errors are a few. Our own choice. */
+  double screen_pattern_fraction;
   /* The residual-pattern test run on the as-built residuals (alpha,
    * min_explained; torque for the torque family, NULL without a mass
    * model; scale_fitted is set by the calibration). */
@@ -288,6 +294,10 @@ typedef struct twf_calib_result {
    * form) as twf_compare_links gives them. */
   twf_links links;
   double *link_change;
+  /* With the compliance group: per joint the compliance found, its
+   * stiffness and the deflection at the fit poses' worst configuration
+   * (twistfit/compliance.h); n_joints 0 without the group. */
+  twf_compliance_summary compliance;
   twf_trace trace;            /* stage timings and solver steps, for a verbose report */
 } twf_calib_result;
 

@@ -87,6 +87,9 @@ typedef struct twf_campaign {
                          revolute, m for prismatic), row-major q[p*n_joints+j] */
   long *pose_lines;   /* n_poses source lines (first row of the pose; in the
                          joints file for the two-file form), 0 if none */
+  long *pose_payload; /* n_poses payload carried, index into the model's
+                         payloads, -1 none; NULL when no pose carries one
+                         (read it through twf_campaign_payload) */
   size_t n_meas;
   twf_measurement *meas;
   int has_orientation_any; /* some measurement has has_orientation */
@@ -156,10 +159,18 @@ twf_campaign_options twf_campaign_default_options(void);
 twf_campaign *twf_campaign_alloc(size_t n_joints, size_t n_poses,
                                  size_t n_meas);
 void twf_campaign_free(twf_campaign *c);
+/* The payload carried at pose (index into the model's payloads), -1 for
+ * none (also when c has no payload column). */
+long twf_campaign_payload(const twf_campaign *c, size_t pose);
+/* Give c a payload per pose, all -1 (none), unless it has them already.
+ * TWF_ERR_NOMEM. */
+twf_status twf_campaign_payload_alloc(twf_campaign *c);
 
 /* Read the one-file form: one row per measurement with pose id, target,
- * one column per joint of m, x y z, optional qw qx qy qz, sigma, set and
- * station (per pose: n_stations, station_names, pose_station).
+ * one column per joint of m, x y z, optional qw qx qy qz, sigma, set,
+ * station (per pose: n_stations, station_names, pose_station) and
+ * payload (a name of m's payloads, empty for none; the same on every row
+ * of a pose; in the joints file for the two-file form).
  * m (borrowed for the call) gives the joint names, types and limits and
  * the target names. opt may be NULL for the defaults; w may be NULL.
  * Returns the campaign (caller frees) or NULL with err filled: file, line,

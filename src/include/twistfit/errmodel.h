@@ -29,6 +29,8 @@ typedef enum twf_group {
   TWF_GROUP_SHIFTS,      /* 2 per revolute joint: translate the line along u1, u2 */
   TWF_GROUP_TILTS,       /* 2 per joint: rotate the line about u1, u2 through its point */
   TWF_GROUP_SCALE,       /* 1 per joint: scale_i <- scale_i + c_i (optional) */
+  TWF_GROUP_COMPLIANCE,  /* 1 per revolute joint: compliance_i <- compliance_i + C_i,
+                            theta_i += C_i tau_i (optional, needs a mass model) */
   TWF_GROUP_COUNT
 } twf_group;
 
@@ -44,7 +46,7 @@ typedef enum twf_group {
    TWF_GROUP_BIT(TWF_GROUP_OFFSETS))
 
 /* Stable group names: "base", "targets", "offsets", "home", "shifts",
- * "tilts", "scale". */
+ * "tilts", "scale", "compliance". */
 const char *twf_group_name(twf_group g);
 /* Parse a group name (also "axes" = shifts + tilts) into a bit mask;
  * TWF_ERR_UNKNOWN when not recognised. */
@@ -53,7 +55,8 @@ twf_status twf_group_parse(const char *name, unsigned *mask);
 typedef enum twf_param_kind {
   TWF_PARAM_LENGTH = 0, /* metres */
   TWF_PARAM_ANGLE,      /* radians */
-  TWF_PARAM_RATIO       /* dimensionless (joint scale) */
+  TWF_PARAM_RATIO,      /* dimensionless (joint scale) */
+  TWF_PARAM_COMPLIANCE  /* rad per N m (joint compliance) */
 } twf_param_kind;
 
 typedef struct twf_param {
@@ -67,7 +70,7 @@ typedef struct twf_param {
   char name[TWF_NAME_MAX + 16]; /* stable, e.g. "base.rx" (with several stations
                                    "base.STATION.rx"), "home.tz",
                                    "j3.offset", "j2.tilt1", "j2.shift2",
-                                   "T1.y", "j4.scale" */
+                                   "T1.y", "j4.scale", "j2.compliance" */
 } twf_param;
 
 /* The error model of one kinematic model: its parameter list and a
@@ -91,7 +94,10 @@ void twf_errmodel_free(twf_errmodel *em);
 size_t twf_errmodel_n_params(const twf_errmodel *em);
 const twf_param *twf_errmodel_param(const twf_errmodel *em, size_t j);
 /* Column scale of parameter j: the arm's reach (m) for angular parameters,
- * 1 for lengths, so that scaled columns are all in length units. */
+ * 1 for lengths, so that scaled columns are all in length units; for a
+ * compliance the reach times a torque bound of the joint (standard
+ * gravity times the reach times the masses beyond the joint and the
+ * heaviest payload, at least 1 N m), the deflection it could cause. */
 double twf_errmodel_param_scale(const twf_errmodel *em, size_t j);
 /* Recompute the axis-error directions u1, u2 from m's current joints. Call
  * after every fold (twf_errmodel_fold does it). */
@@ -99,6 +105,12 @@ void twf_errmodel_update(twf_errmodel *em, const twf_model *m);
 /* The unit directions u1, u2 (base frame) of joint i's axis errors. */
 void twf_errmodel_axis_basis(const twf_errmodel *em, size_t joint,
                              double u1[3], double u2[3]);
+
+/* The payload carried at the poses evaluated from now on (index into the
+ * model's payloads, -1: none, the default): the joints deflect under the
+ * gravity torques of the mass model (twf_model_theta) when the model has
+ * compliances or the compliance group is chosen. */
+void twf_errmodel_set_payload(twf_errmodel *em, long payload);
 
 /* Evaluate one pose: forward kinematics at logged joint values q with the
  * base pose base_in_tracker, and the spatial twist (tracker frame) that

@@ -41,7 +41,30 @@ typedef struct twf_joint {
   /* Travel limits on the logged value q (rad or m); valid when has_limits. */
   int has_limits;
   double limit_lo, limit_hi;
+  /* Elastostatic joint model (twistfit-model(5), [joint NAME] compliance;
+   * Dumas, Caro, Garnier and Furet 2011, recalled from memory): the joint
+   * yields by compliance * tau under the gravity torque tau about its
+   * axis, rad per N m (revolute joints only; 0 = rigid, the nominal). */
+  double compliance;
+  /* Mass of the body the joint moves (up to the next joint), kg, and its
+   * centre of mass, metres, base frame at all-zero joint values; valid
+   * when has_mass ([mass NAME] of the model file). */
+  int has_mass;
+  double mass;
+  double mass_center[3];
 } twf_joint;
+
+/* A load the flange can carry ([payload NAME]): mass in kg, centre of mass
+ * in metres in the flange frame. */
+typedef struct twf_payload {
+  char name[TWF_NAME_MAX];
+  double mass;
+  double center[3];
+} twf_payload;
+
+/* Standard acceleration of gravity, m/s^2 (the conventional value of the
+ * 3rd CGPM, 1901; ISO 80000-3): the torques of the mass model use it. */
+#define TWF_GRAVITY_STANDARD 9.80665
 
 typedef struct twf_target {
   char name[TWF_NAME_MAX];
@@ -67,6 +90,11 @@ typedef struct twf_model {
   twf_target *targets;
   size_t n_meta;
   twf_meta_entry *meta;
+  /* Mass model: the direction of gravity in the base frame (unit; default
+   * 0 0 -1) and the payloads the campaigns may name. */
+  double gravity[3];
+  size_t n_payloads;
+  twf_payload *payloads; /* owned by the model */
 } twf_model;
 
 /* A model with n_joints joints and n_targets targets, all zero-filled except
@@ -82,6 +110,16 @@ const char *twf_model_meta_get(const twf_model *m, const char *key);
 /* Index of the joint or target named name, or -1. */
 long twf_model_joint_index(const twf_model *m, const char *name);
 long twf_model_target_index(const twf_model *m, const char *name);
+long twf_model_payload_index(const twf_model *m, const char *name);
+/* Add a payload (mass kg, centre m in the flange frame), copying name;
+ * TWF_ERR_DUPLICATE for a name already used, TWF_ERR_NOMEM. */
+twf_status twf_model_payload_add(twf_model *m, const char *name, double mass,
+                                 const double center[3]);
+/* 1 when some joint has a nonzero compliance (then forward kinematics
+ * computes the gravity torques), else 0. */
+int twf_model_has_compliance(const twf_model *m);
+/* 1 when some joint or payload carries a mass. */
+int twf_model_has_masses(const twf_model *m);
 /* Characteristic length of the arm in metres (largest distance of a joint
  * reference point or the home flange from the base origin, at least 0.1 m):
  * scales angular columns into length units. */
@@ -93,6 +131,38 @@ double twf_model_reach(const twf_model *m);
  * prefix[n] * home, the flange pose in the base frame. O(n). */
 void twf_model_fk(const twf_model *m, const double *q, twf_pose *prefix,
                   twf_pose *flange);
+
+/* Gravity torques of the mass model at logged joint values q with payload
+ * index payload (-1: none) at the flange: tau[i] (N m for a revolute
+ * joint, N for a prismatic one) is the generalised force of gravity on
+ * joint i, that of the bodies of joints i..n-1 and of the payload, about
+ * (along) joint i's axis at the rigid configuration theta = scale q +
+ * offset of the current model: tau_i = -dV/dtheta_i with V the potential
+ * energy, positive along the joint's own direction. prefix (n_joints + 1,
+ * may be NULL) receives the rigid prefixes. O(n). */
+void twf_model_gravity_torques(const twf_model *m, const double *q,
+                               long payload, double *tau, twf_pose *prefix);
+
+/* The joint values the exponentials use: theta_i = scale_i q_i + offset_i
+ * + compliance_i tau_i, tau from twf_model_gravity_torques (the change of
+ * tau with the deflection itself is left out: first order in the
+ * compliance; twistfit-model(5) states the bound). tau (n_joints, may be
+ * NULL) receives the torques. Without compliance theta = scale q + offset
+ * exactly. */
+void twf_model_theta(const twf_model *m, const double *q, long payload,
+                     double *theta, double *tau);
+
+/* twf_model_fk with the payload carried (-1: none): the joints deflect
+ * under the mass model's gravity torques by their compliances.
+ * twf_model_fk is twf_model_fk_load with payload -1 (the arm's own
+ * bodies still load the joints). */
+void twf_model_fk_load(const twf_model *m, const double *q, long payload,
+                       twf_pose *prefix, twf_pose *flange);
+/* The rigid arm: the product of exponentials at theta = scale q + offset
+ * whatever the compliances (the geometry the link reports, the DH
+ * conversion and the datum rule describe). */
+void twf_model_fk_rigid(const twf_model *m, const double *q, twf_pose *prefix,
+                        twf_pose *flange);
 
 /* Spatial Jacobian with respect to the logged joint values, from the
  * prefixes of twf_model_fk: column i = scale_i Ad_{prefix[i]} S_i, so that

@@ -12,6 +12,7 @@ twf_compare_options twf_compare_default_options(void)
 {
   twf_compare_options o;
   o.align = 1;
+  o.payload = NULL;
   return o;
 }
 
@@ -83,8 +84,8 @@ twf_status twf_compare_models(const twf_model *a, const twf_model *b, const doub
 
   for (c = 0; c < n_configs; c++) {
     twf_pose Ta, Tb;
-    twf_model_fk(a, q + c * n, NULL, &Ta);
-    twf_model_fk(b, q + c * n, NULL, &Tb);
+    twf_model_fk_load(a, q + c * n, twf_model_payload_index(a, o.payload), NULL, &Ta);
+    twf_model_fk_load(b, q + c * n, twf_model_payload_index(b, o.payload), NULL, &Tb);
     memcpy(Ra[c], Ta.R, sizeof Ta.R);
     memcpy(Rb[c], Tb.R, sizeof Tb.R);
     for (k = 0; k < np; k++) {

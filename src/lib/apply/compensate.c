@@ -33,6 +33,7 @@ twf_ik_options twf_ik_default_options(void)
   o.singular_threshold = 1e-2;
   o.length_scale_m = 0.0;
   o.limit_tolerance = 1e-9;
+  o.payload = -1;
   return o;
 }
 
@@ -145,11 +146,11 @@ typedef struct eval {
 
 /* Forward kinematics at joint values q and the task error. */
 static void evaluate(const twf_model *m, const twf_ik_goal *goal, double L, const double *q,
-                     twf_pose *prefix, eval *ev)
+                     long payload, twf_pose *prefix, eval *ev)
 {
   double Rt[3][3], w[3], d[3];
   int a, b, k, r = 0;
-  twf_model_fk(m, q, prefix, &ev->T);
+  twf_model_fk_load(m, q, payload, prefix, &ev->T);
   twf_pose_apply(&ev->T, goal->point, ev->y);
   for (a = 0; a < 3; a++)
     d[a] = goal->p[a] - ev->y[a];
@@ -256,7 +257,7 @@ static void set_current(solve_ctx *c, eval *cur)
   size_t i, n = c->m->n_joints;
   for (i = 0; i < n; i++)
     c->w->qt[i] = c->w->x[i] * c->w->scale[i];
-  evaluate(c->m, c->goal, c->L, c->w->qt, c->w->prefix, cur);
+  evaluate(c->m, c->goal, c->L, c->w->qt, c->o->payload, c->w->prefix, cur);
   c->r->evaluations++;
   task_jacobian(c->w, c->m, c->goal, c->L, cur->y, c->rows);
 }
@@ -289,7 +290,7 @@ static int lm_converge(solve_ctx *c, eval *cur)
         w->xt[i] = w->x[i] + s;
         w->qt[i] = w->xt[i] * w->scale[i];
       }
-      evaluate(c->m, c->goal, c->L, w->qt, w->prefix_trial, &trial);
+      evaluate(c->m, c->goal, c->L, w->qt, c->o->payload, w->prefix_trial, &trial);
       c->r->evaluations++;
       if (trial.cost < cur->cost) {
         twf_pose *tmp = w->prefix;
@@ -576,6 +577,7 @@ twf_status twf_compensate_program(const twf_model *nominal, const twf_model *asb
                                   twf_ik_result *results, twf_compensate_summary *summary,
                                   twf_error *err)
 {
+  long nominal_payload;
   twf_compensate_options o = opt != NULL ? *opt : twf_compensate_default_options();
   double t_nom[3] = { 0, 0, 0 }, t_asb[3] = { 0, 0, 0 };
   twf_ik_result one;
@@ -609,6 +611,10 @@ twf_status twf_compensate_program(const twf_model *nominal, const twf_model *asb
     memcpy(t_nom, nominal->targets[kn].offset_known ? nominal->targets[kn].offset : t_asb, sizeof t_nom);
   }
   L = o.ik.length_scale_m > 0.0 ? o.ik.length_scale_m : twf_model_reach(asbuilt);
+  if (o.ik.payload >= (long)asbuilt->n_payloads)
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL, "payload index out of range");
+  /* the same load by name in the nominal model (none when it lacks it) */
+  nominal_payload = o.ik.payload >= 0 ? twf_model_payload_index(nominal, asbuilt->payloads[o.ik.payload].name) : -1;
   memset(&sum, 0, sizeof sum);
   w = twf_ik_alloc(n);
   if (w == NULL)
@@ -617,7 +623,9 @@ twf_status twf_compensate_program(const twf_model *nominal, const twf_model *asb
     twf_ik_goal goal;
     twf_pose T;
     const double *qr = q + row * n;
-    twf_model_fk(nominal, qr, NULL, &T);
+    /* the program's goal: the nominal model as drawn (rigid unless it
+     * carries compliances of its own) */
+    twf_model_fk_load(nominal, qr, nominal_payload, NULL, &T);
     goal.kind = o.kind;
     memcpy(goal.R, T.R, sizeof goal.R);
     twf_pose_apply(&T, t_nom, goal.p);

@@ -28,10 +28,16 @@ struct twf_errmodel {
   double *twists;     /* 6 x n_params, column j at twists[6 j] */
   double *axis_step;  /* 6 x n_joints, fold workspace */
   const double *q;
+  /* compliance: the payload of the poses, the torques and joint values of
+   * the evaluated pose */
+  long payload;
+  int comp_group;
+  double *tau;
+  double *theta;
 };
 
 static const char *const group_names[TWF_GROUP_COUNT] = {
-  "base", "targets", "offsets", "home", "shifts", "tilts", "scale"
+  "base", "targets", "offsets", "home", "shifts", "tilts", "scale", "compliance"
 };
 
 const char *twf_group_name(twf_group g)
@@ -67,6 +73,9 @@ static size_t count_params(const twf_model *m, unsigned groups, size_t n_station
     if (groups & TWF_GROUP_BIT(TWF_GROUP_TILTS)) n += 2;
   }
   if (groups & TWF_GROUP_BIT(TWF_GROUP_SCALE)) n += m->n_joints;
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE))
+    for (i = 0; i < m->n_joints; i++)
+      n += m->joints[i].type == TWF_JOINT_REVOLUTE;
   return n;
 }
 
@@ -128,8 +137,12 @@ twf_errmodel *twf_errmodel_alloc_stations(const twf_model *m, unsigned groups, s
   em->prefix = calloc(m->n_joints + 1, sizeof *em->prefix);
   em->twists = calloc(6 * (n ? n : 1), sizeof *em->twists);
   em->axis_step = calloc(6 * (m->n_joints ? m->n_joints : 1), sizeof *em->axis_step);
+  em->tau = calloc(m->n_joints ? m->n_joints : 1, sizeof *em->tau);
+  em->theta = calloc(m->n_joints ? m->n_joints : 1, sizeof *em->theta);
+  em->payload = -1;
+  em->comp_group = (groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE)) != 0;
   if (!em->params || !em->scale || !em->u1 || !em->u2 || !em->prefix || !em->twists ||
-      !em->axis_step)
+      !em->axis_step || !em->tau || !em->theta)
     goto nomem;
 
   /* The internal layout is group-major in enum order; the redundancy walk
@@ -174,10 +187,29 @@ twf_errmodel *twf_errmodel_alloc_stations(const twf_model *m, unsigned groups, s
     for (i = 0; i < m->n_joints; i++)
       add_param(em, m, &j, TWF_GROUP_SCALE, (long)i, -1, 0,
                 TWF_PARAM_RATIO, "scale");
+  if (groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE))
+    for (i = 0; i < m->n_joints; i++)
+      if (m->joints[i].type == TWF_JOINT_REVOLUTE)
+        add_param(em, m, &j, TWF_GROUP_COMPLIANCE, (long)i, -1, 0, TWF_PARAM_COMPLIANCE,
+                  "compliance");
   /* a joint scale moves the arm by c q: angular for a revolute joint */
   for (i = 0; i < n; i++)
     if (em->params[i].group == TWF_GROUP_SCALE)
       em->scale[i] = m->joints[em->params[i].joint].type == TWF_JOINT_REVOLUTE ? em->reach : 1.0;
+  /* a compliance moves the arm by C tau: the reach times a bound of the
+   * joint's torque, so that a scaled compliance is a length like the
+   * others (the redundancy walk's tolerance is relative to it) */
+  for (i = 0; i < n; i++)
+    if (em->params[i].group == TWF_GROUP_COMPLIANCE) {
+      double mass = 0.0, pay = 0.0;
+      size_t k;
+      for (k = (size_t)em->params[i].joint; k < m->n_joints; k++)
+        if (m->joints[k].has_mass)
+          mass += fabs(m->joints[k].mass);
+      for (k = 0; k < m->n_payloads; k++)
+        pay = fmax(pay, fabs(m->payloads[k].mass));
+      em->scale[i] = em->reach * fmax(1.0, TWF_GRAVITY_STANDARD * em->reach * (mass + pay));
+    }
   twf_errmodel_update(em, m);
   return em;
 
@@ -198,6 +230,8 @@ void twf_errmodel_free(twf_errmodel *em)
   free(em->prefix);
   free(em->twists);
   free(em->axis_step);
+  free(em->tau);
+  free(em->theta);
   free(em);
 }
 
@@ -287,16 +321,24 @@ static inline void ad_apply(const twf_pose *T, const double S[6], double out[6])
   out[5] = pz + rv2;
 }
 
+void twf_errmodel_set_payload(twf_errmodel *em, long payload)
+{
+  em->payload = payload;
+}
+
 void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf_pose *base_in_tracker,
                                  size_t station, const double *q, const unsigned char *need)
 {
   size_t i, j, n = m->n_joints;
   em->station = station;
+  int loaded = em->comp_group || twf_model_has_compliance(m);
   em->prefix[0] = *base_in_tracker;
+  if (loaded)
+    twf_model_theta(m, q, em->payload, em->theta, em->tau);
   for (i = 0; i < n; i++) {
     const twf_joint *jt = &m->joints[i];
     twf_pose E;
-    twf_se3_exp(jt->twist, jt->scale * q[i] + jt->offset, &E);
+    twf_se3_exp(jt->twist, loaded ? em->theta[i] : jt->scale * q[i] + jt->offset, &E);
     twf_pose_mul(&em->prefix[i], &E, &em->prefix[i + 1]);
   }
   twf_pose_mul(&em->prefix[n], &m->home, &em->flange);
@@ -330,6 +372,13 @@ void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf
       ad_apply(&em->prefix[p->joint], m->joints[p->joint].twist, t);
       for (c = 0; c < 6; c++)
         t[c] *= q[p->joint];
+      break;
+    case TWF_GROUP_COMPLIANCE:
+      /* theta_i += C_i tau_i: the offset's column times the torque (the
+       * torque's own change with the geometry is left out: DEVELOPERS.md) */
+      ad_apply(&em->prefix[p->joint], m->joints[p->joint].twist, t);
+      for (c = 0; c < 6; c++)
+        t[c] *= em->tau[p->joint];
       break;
     case TWF_GROUP_SHIFTS:
     case TWF_GROUP_TILTS:
@@ -469,6 +518,7 @@ void twf_errmodel_fold(twf_errmodel *em, const double *delta, twf_model *m,
       break;
     case TWF_GROUP_OFFSETS: m->joints[p->joint].offset += d; break;
     case TWF_GROUP_SCALE: m->joints[p->joint].scale += d; break;
+    case TWF_GROUP_COMPLIANCE: m->joints[p->joint].compliance += d; break;
     case TWF_GROUP_SHIFTS:
     case TWF_GROUP_TILTS:
       axis_basis_twist(em, m, p, e);

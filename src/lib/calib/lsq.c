@@ -582,6 +582,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
     if (!pose_active(pr, pose))
       continue;
     size_t sta = twf_campaign_pose_station(c, pose);
+    twf_errmodel_set_payload(ws->em, twf_campaign_payload(c, pose));
     twf_errmodel_eval_pose_some(ws->em, m, &pr->base[sta], sta, c->q + pose * pr->n_joints, ps->need);
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
@@ -697,6 +698,7 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
     if (!pose_active(pr, pose))
       continue;
     size_t sta = twf_campaign_pose_station(c, pose);
+    twf_errmodel_set_payload(ws->em, twf_campaign_payload(c, pose));
     twf_errmodel_eval_pose_some(ws->em, m, &pr->base[sta], sta, c->q + pose * pr->n_joints, ps->need);
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
@@ -807,7 +809,8 @@ static void cost_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
       if (!twf_lsq_active(pr, i))
         continue;
       if (!done) {
-        twf_model_fk(m, c->q + pose * pr->n_joints, ws->prefix, &F);
+        twf_model_fk_load(m, c->q + pose * pr->n_joints, twf_campaign_payload(c, pose), ws->prefix,
+                          &F);
         twf_pose_mul(&ps->B[twf_campaign_pose_station(c, pose)], &F, &T);
         done = 1;
       }

@@ -669,8 +669,9 @@ twf_status twf_register_campaign(const twf_model *model,
         wk.pose_used[me->pose] = 1;
         wk.n_poses_used++;
         sta_poses[wk.sta[j - 1]]++;
-        twf_model_fk(model, campaign->q + me->pose * nj, NULL,
-                     &wk.flange[me->pose]);
+        twf_model_fk_load(model, campaign->q + me->pose * nj,
+                          twf_campaign_payload(campaign, me->pose), NULL,
+                          &wk.flange[me->pose]);
       }
     }
   }

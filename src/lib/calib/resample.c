@@ -71,6 +71,11 @@ static void refit(boot *b, size_t k)
   if (rc == NULL)
     goto done;
   rc->has_orientation_any = c->has_orientation_any;
+  if (c->pose_payload != NULL && twf_campaign_payload_alloc(rc) != TWF_OK) {
+    twf_campaign_free(rc);
+    rc = NULL;
+    goto done;
+  }
   /* the drawn poses with their fit rows, then the check poses with theirs */
   for (i = 0; i < b->n_fit_poses + b->n_check_poses; i++, pose++) {
     int fit = i < b->n_fit_poses;
@@ -80,6 +85,8 @@ static void refit(boot *b, size_t k)
     memcpy(rc->q + pose * c->n_joints, c->q + src * c->n_joints, c->n_joints * sizeof *c->q);
     snprintf(rc->pose_ids[pose], TWF_NAME_MAX, "%c%zu", fit ? 'R' : 'C', i + 1);
     rc->pose_lines[pose] = c->pose_lines[src];
+    if (rc->pose_payload != NULL)
+      rc->pose_payload[pose] = twf_campaign_payload(c, src);
     for (t = t0; t < t1; t++) {
       rc->meas[mi] = c->meas[fit ? b->fit_meas[t] : b->check_meas[t]];
       rc->meas[mi].pose = pose;

@@ -51,6 +51,7 @@ void twf_campaign_free(twf_campaign *c)
   free(c->pose_ids);
   free(c->q);
   free(c->pose_lines);
+  free(c->pose_payload);
   free(c->meas);
   free(c->station_names);
   free(c->pose_station);
@@ -116,5 +117,23 @@ twf_status twf_campaign_set_stations(twf_campaign *c, size_t n,
   c->station_names = nm;
   c->pose_station = ps;
   c->n_stations = n;
+  return TWF_OK;
+}
+
+long twf_campaign_payload(const twf_campaign *c, size_t pose)
+{
+  return c->pose_payload != NULL && pose < c->n_poses ? c->pose_payload[pose] : -1;
+}
+
+twf_status twf_campaign_payload_alloc(twf_campaign *c)
+{
+  size_t k;
+  if (c->pose_payload != NULL)
+    return TWF_OK;
+  c->pose_payload = malloc((c->n_poses ? c->n_poses : 1) * sizeof *c->pose_payload);
+  if (c->pose_payload == NULL)
+    return TWF_ERR_NOMEM;
+  for (k = 0; k < c->n_poses; k++)
+    c->pose_payload[k] = -1;
   return TWF_OK;
 }

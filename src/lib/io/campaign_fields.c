@@ -279,6 +279,50 @@ twf_status twf_creader_field_joints(creader *r, const twf_csv_row *row,
   return TWF_OK;
 }
 
+twf_status twf_creader_field_payload(creader *r, const twf_csv_row *row,
+                                     size_t pose, int first_row)
+{
+  long col = r->col[COL_PAYLOAD], k = -1;
+  twf_campaign *c = r->c;
+  if (col == 0)
+    return TWF_OK;
+  if (!field_empty(row, col)) {
+    const char *f = row->f[col - 1];
+    k = twf_model_payload_index(r->m, f);
+    if (k < 0) {
+      char list[TWF_ERROR_TEXT_MAX];
+      size_t i;
+      list[0] = '\0';
+      for (i = 0; i < r->m->n_payloads; i++)
+        twf_io_appendf(list, sizeof list, "%s%s", i ? ", " : "", r->m->payloads[i].name);
+      return twf_creader_error(r, row, col, TWF_ERR_UNKNOWN,
+                               "declare each payload in the model file as [payload NAME] "
+                               "with mass and center, or leave the field empty for none",
+                               r->m->n_payloads ? "payload '%s' is not declared by the model; "
+                                                  "the declared payloads are %s"
+                                                : "payload '%s' is not declared: the model "
+                                                  "declares no payloads%s",
+                               f, list);
+    }
+  }
+  if (twf_io_grow((void **)&c->pose_payload, &r->cap_payload, c->n_poses,
+                  sizeof *c->pose_payload))
+    return twf_creader_nomem(r);
+  if (first_row) {
+    c->pose_payload[pose] = k;
+  } else if (c->pose_payload[pose] != k) {
+    long was = c->pose_payload[pose];
+    return twf_creader_error(r, row, col, TWF_ERR_VALUE,
+                             "every row of a pose names the same payload; give poses with "
+                             "another load their own ids",
+                             "pose '%s' repeats with another payload: '%s' here but '%s' at "
+                             "line %ld", c->pose_ids[pose],
+                             k >= 0 ? r->m->payloads[k].name : "",
+                             was >= 0 ? r->m->payloads[was].name : "", c->pose_lines[pose]);
+  }
+  return TWF_OK;
+}
+
 /* set: -1 when absent or empty. */
 twf_status twf_creader_field_set(creader *r, const twf_csv_row *row, int *set)
 {

@@ -7,7 +7,7 @@
 /* Reserved column names; COL_JOINT columns carry the model's joint names. */
 const char *const twf_creader_role_name[COL_N] = {
   "pose", "target", NULL, "x", "y", "z", "qw", "qx", "qy", "qz", "sigma", "set",
-  "station"
+  "station", "payload"
 };
 
 static int role_allowed(file_kind kind, int role)
@@ -15,8 +15,8 @@ static int role_allowed(file_kind kind, int role)
   switch (kind) {
   case KIND_ONE: return 1;
   case KIND_JOINTS: return role == COL_POSE || role == COL_JOINT || role == COL_SET ||
-                           role == COL_STATION;
-  case KIND_POINTS: return role != COL_JOINT && role != COL_STATION;
+                           role == COL_STATION || role == COL_PAYLOAD;
+  case KIND_POINTS: return role != COL_JOINT && role != COL_STATION && role != COL_PAYLOAD;
   }
   return 0;
 }

@@ -23,7 +23,7 @@ static inline int twf_creader_is_blank(char ch) { return ch == ' ' || ch == '\t'
 
 enum col_role {
   COL_POSE, COL_TARGET, COL_JOINT, COL_X, COL_Y, COL_Z,
-  COL_QW, COL_QX, COL_QY, COL_QZ, COL_SIGMA, COL_SET, COL_STATION, COL_N
+  COL_QW, COL_QX, COL_QY, COL_QZ, COL_SIGMA, COL_SET, COL_STATION, COL_PAYLOAD, COL_N
 };
 
 /* Reserved column names; COL_JOINT columns carry the model's joint names. */
@@ -93,6 +93,7 @@ typedef struct creader {
   long jpose_col;
   /* builder */
   size_t cap_ids, cap_q, cap_lines, cap_meas, cap_pt, cap_set, cap_npts;
+  size_t cap_payload;
   twf_idmap poses;
   long *pt_line;     /* cap poses x n_targets: line of (pose, target), 0 */
   int *pose_set;     /* two-file: set from the joints file, -1 none */
@@ -168,6 +169,10 @@ twf_status twf_creader_field_target(creader *r, const twf_csv_row *row,
                                     size_t *out);
 twf_status twf_creader_field_joints(creader *r, const twf_csv_row *row,
                                     double *q);
+/* The payload column of a row of pose (a joints-bearing row): the name
+ * of one of the model's payloads or empty; every row of a pose agrees. */
+twf_status twf_creader_field_payload(creader *r, const twf_csv_row *row,
+                                     size_t pose, int first_row);
 /* set: -1 when absent or empty. */
 twf_status twf_creader_field_set(creader *r, const twf_csv_row *row, int *set);
 twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,

@@ -22,7 +22,8 @@ twf_status twf_creader_row_joints(creader *r, const twf_csv_row *row)
                              "pose '%s' appears twice in the joints file (first at line %ld)",
                              id, r->c->pose_lines[pose]);
   if ((st = twf_creader_pose_add(r, id, r->qbuf, row->line, &pose)) != TWF_OK ||
-      (st = twf_creader_field_station(r, row, pose, 1)) != TWF_OK)
+      (st = twf_creader_field_station(r, row, pose, 1)) != TWF_OK ||
+      (st = twf_creader_field_payload(r, row, pose, 1)) != TWF_OK)
     return st;
   r->pose_set[pose] = set;
   return TWF_OK;
@@ -134,6 +135,8 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
               r.c->pose_lines[kept] = r.c->pose_lines[k];
               if (r.c->pose_station != NULL)
                 r.c->pose_station[kept] = r.c->pose_station[k];
+              if (r.c->pose_payload != NULL)
+                r.c->pose_payload[kept] = r.c->pose_payload[k];
             }
             kept++;
           }

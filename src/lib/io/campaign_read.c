@@ -106,7 +106,8 @@ static twf_status row_one(creader *r, const twf_csv_row *row)
   pose = twf_idmap_find(&r->poses, r->c->pose_ids, id);
   if (pose == NONE) {
     if ((st = twf_creader_pose_add(r, id, r->qbuf, row->line, &pose)) != TWF_OK ||
-        (st = twf_creader_field_station(r, row, pose, 1)) != TWF_OK)
+        (st = twf_creader_field_station(r, row, pose, 1)) != TWF_OK ||
+        (st = twf_creader_field_payload(r, row, pose, 1)) != TWF_OK)
       return st;
   } else {
     if ((st = twf_creader_field_station(r, row, pose, 0)) != TWF_OK)
@@ -125,7 +126,8 @@ static twf_status row_one(creader *r, const twf_csv_row *row)
                                  twf_creader_joint_from_si(&r->m->joints[j], q0[j], r->lu, r->au),
                                  joint_unit_name(r, j), r->c->pose_lines[pose]);
   }
-  if ((st = twf_creader_pair_check(r, row, pose, target)) != TWF_OK)
+  if ((st = twf_creader_field_payload(r, row, pose, 0)) != TWF_OK ||
+      (st = twf_creader_pair_check(r, row, pose, target)) != TWF_OK)
     return st;
   ms.pose = pose;
   ms.target = target;

@@ -27,7 +27,7 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
                               twf_error *err)
 {
   size_t j, k, p, *order = NULL, *count = NULL, nj;
-  int any_sigma = 0, any_orient = 0;
+  int any_sigma = 0, any_orient = 0, any_payload = 0;
   twf_io_c_locale loc;
   twf_status st;
   twf_error_clear(err);
@@ -55,6 +55,13 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
                            "range", k);
     any_sigma |= c->meas[k].sigma > 0;
     any_orient |= c->meas[k].has_orientation;
+  }
+  for (p = 0; p < c->n_poses; p++) {
+    long pl = twf_campaign_payload(c, p);
+    if (pl >= (long)m->n_payloads)
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                           "pose %zu carries a payload the model does not declare", p);
+    any_payload |= pl >= 0;
   }
   /* Group rows by pose (a counting sort keeps the order within a pose). */
   count = calloc(c->n_poses + 1, sizeof *count);
@@ -100,7 +107,10 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
     fputs(",qw,qx,qy,qz", out);
   if (any_sigma)
     fputs(",sigma", out);
-  fputs(c->n_stations > 0 ? ",set,station\n" : ",set\n", out);
+  fputs(",set", out);
+  if (c->n_stations > 0)
+    fputs(",station", out);
+  fputs(any_payload ? ",payload\n" : "\n", out);
   for (k = 0; k < c->n_meas; k++) {
     const twf_measurement *ms = &c->meas[order[k]];
     put_text(out, c->pose_ids[ms->pose]);
@@ -130,6 +140,12 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
     if (c->n_stations > 0) {
       fputc(',', out);
       put_text(out, c->station_names[twf_campaign_pose_station(c, ms->pose)]);
+    }
+    if (any_payload) {
+      long pl = twf_campaign_payload(c, ms->pose);
+      fputc(',', out);
+      if (pl >= 0)
+        put_text(out, m->payloads[pl].name);
     }
     fputc('\n', out);
   }

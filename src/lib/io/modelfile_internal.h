@@ -28,8 +28,15 @@ extern const char twf_mf_name_hint[];
 
 typedef enum sec_kind {
   SEC_ROBOT, SEC_JOINT, SEC_HOME, SEC_FLANGE, SEC_TARGET, SEC_ASBUILT,
-  SEC_BASE
+  SEC_BASE, SEC_MASS, SEC_PAYLOAD
 } sec_kind;
+
+/* Sections that carry a name: [joint NAME], [target NAME], [mass JOINT],
+ * [payload NAME]. */
+static inline int twf_mf_kind_named(int k)
+{
+  return k == SEC_JOINT || k == SEC_TARGET || k == SEC_MASS || k == SEC_PAYLOAD;
+}
 
 extern const char *const twf_mf_kind_names[];
 
@@ -103,5 +110,12 @@ int twf_mf_parse_joint_dh(parse_ctx *c, const section *s, joint_form form,
                           twf_length_unit lu, twf_angle_unit au,
                           twf_joint_type type, twf_dh_row *row);
 int twf_mf_parse_robot(parse_ctx *c, const section *s, twf_model *m);
+/* mass and center of [mass JOINT] or [payload NAME] (SI). */
+int twf_mf_parse_mass(parse_ctx *c, const section *s, twf_length_unit lu, double *mass,
+                      double center[3]);
+/* Largest compliance (rad per N m) and mass (kg) accepted: far beyond any
+ * arm (common practice, no source). */
+#define TWF_READ_COMPLIANCE_MAX 1.0
+#define TWF_READ_MASS_MAX 1e5
 
 #endif

@@ -12,12 +12,16 @@
 #include <stdlib.h>
 
 const char *const twf_mf_kind_names[] = {
-  "robot", "joint", "home", "flange", "target", "asbuilt", "base"
+  "robot", "joint", "home", "flange", "target", "asbuilt", "base", "mass",
+  "payload"
 };
 
-static const char *const robot_keys[] = { "name", "length_unit", "angle_unit", NULL };
+static const char *const robot_keys[] = { "name", "length_unit", "angle_unit", "gravity",
+                                          NULL };
 static const char *const joint_keys[] = { "type", "axis", "point", "limits",
-                                          "offset", "scale", "dh", "mdh", NULL };
+                                          "offset", "scale", "dh", "mdh", "compliance",
+                                          NULL };
+static const char *const mass_keys[] = { "mass", "center", NULL };
 static const char *const pose_keys[] = { "position", "quaternion_wxyz",
                                          "rotation_row1", "rotation_row2",
                                          "rotation_row3", "rpy_fixed_xyz", NULL };
@@ -31,6 +35,7 @@ static const char *const *keys_of(sec_kind k)
   case SEC_HOME: case SEC_FLANGE: case SEC_BASE: return pose_keys;
   case SEC_TARGET: return target_keys;
   case SEC_ASBUILT: return NULL;
+  case SEC_MASS: case SEC_PAYLOAD: return mass_keys;
   }
   return NULL;
 }
@@ -38,10 +43,12 @@ static const char *const *keys_of(sec_kind k)
 static const char *keys_hint(sec_kind k)
 {
   switch (k) {
-  case SEC_ROBOT: return "keys of [robot]: name, length_unit, angle_unit";
+  case SEC_ROBOT: return "keys of [robot]: name, length_unit, angle_unit, gravity";
   case SEC_JOINT:
     return "keys of [joint NAME]: type, axis, point, limits, offset, scale, "
-           "dh, mdh";
+           "dh, mdh, compliance";
+  case SEC_MASS: return "keys of [mass JOINT]: mass, center";
+  case SEC_PAYLOAD: return "keys of [payload NAME]: mass, center";
   case SEC_HOME: case SEC_FLANGE: case SEC_BASE:
     return "keys of a pose section: position, and one of quaternion_wxyz, "
            "rotation_row1/2/3, rpy_fixed_xyz";
@@ -115,14 +122,15 @@ static void open_section(parse_ctx *c, char *inner)
   if (kind < 0) {
     twf_ini_fail(&c->ini, TWF_ERR_UNKNOWN, c->ini.lineno, 0,
                  "sections are [robot], [joint NAME], [home], [flange], [base], "
-                 "[target NAME] and [asbuilt], in lower case",
+                 "[target NAME], [mass JOINT], [payload NAME] and [asbuilt], in lower case",
                  "unknown section [%s%s%s]", word, *rest ? " " : "", rest);
     return;
   }
-  if (kind == SEC_JOINT || kind == SEC_TARGET) {
+  if (twf_mf_kind_named(kind)) {
     if (*rest == '\0') {
       twf_ini_fail(&c->ini, TWF_ERR_SYNTAX, c->ini.lineno, 0,
-                   "name it in the header, e.g. [joint j1] or [target T1]",
+                   "name it in the header, e.g. [joint j1], [target T1], [mass j1] or "
+                   "[payload tool]",
                    "section [%s] has no name", word);
       return;
     }
@@ -130,17 +138,19 @@ static void open_section(parse_ctx *c, char *inner)
       return;
   } else if (*rest != '\0') {
     twf_ini_fail(&c->ini, TWF_ERR_SYNTAX, c->ini.lineno, 0,
-                 "only [joint NAME] and [target NAME] carry a name",
+                 "only [joint NAME], [target NAME], [mass JOINT] and [payload NAME] "
+                 "carry a name",
                  "section [%s] takes no name, found '%s'", word, rest);
     return;
   }
   for (i = 0; i < c->nsec; i++) {
     const section *o = &c->secs[i];
-    if ((int)o->kind != kind || strcmp(o->name, kind == SEC_JOINT || kind == SEC_TARGET ? rest : "") != 0)
+    if ((int)o->kind != kind || strcmp(o->name, twf_mf_kind_named(kind) ? rest : "") != 0)
       continue;
-    if (kind == SEC_JOINT || kind == SEC_TARGET)
+    if (twf_mf_kind_named(kind))
       twf_ini_fail(&c->ini, TWF_ERR_DUPLICATE, c->ini.lineno, 0,
-                   "give every joint and every target its own name",
+                   kind == SEC_MASS ? "give each joint's body one [mass JOINT] section"
+                                    : "give every joint, target and payload its own name",
                    "%s name '%s' is used twice (first at line %ld)", word, rest,
                    o->line);
     else
@@ -163,7 +173,7 @@ static void open_section(parse_ctx *c, char *inner)
   memset(s, 0, sizeof *s);
   s->kind = (sec_kind)kind;
   s->line = c->ini.lineno;
-  if (kind == SEC_JOINT || kind == SEC_TARGET)
+  if (twf_mf_kind_named(kind))
     twf_strlcpy(s->name, rest, sizeof s->name);
 }
 

@@ -60,7 +60,7 @@ static twf_model *build_model(parse_ctx *c)
     case SEC_BASE: base = s; break;
     case SEC_JOINT: nj++; break;
     case SEC_TARGET: nt++; break;
-    case SEC_ASBUILT: break;
+    case SEC_ASBUILT: case SEC_MASS: case SEC_PAYLOAD: break;
     }
   }
   if (!c->content) {
@@ -157,6 +157,33 @@ static twf_model *build_model(parse_ctx *c)
         m->meta[k].value = s->entries[k].value;
         s->entries[k].value = NULL; /* now the model's */
         m->n_meta = k + 1;
+      }
+    }
+  }
+
+  /* the mass model, once every joint is known */
+  for (size_t i = 0; i < c->nsec; i++) {
+    const section *s = &c->secs[i];
+    if (s->kind == SEC_MASS) {
+      long k = twf_model_joint_index(m, s->name);
+      twf_joint *jt;
+      if (k < 0) {
+        twf_ini_fail(&c->ini, TWF_ERR_UNKNOWN, s->line, 0,
+                     "name the joint whose body this is, as in its [joint NAME] section",
+                     "[mass %s]: the model has no joint '%s'", s->name, s->name);
+        goto fail;
+      }
+      jt = &m->joints[k];
+      if (twf_mf_parse_mass(c, s, m->length_unit, &jt->mass, jt->mass_center) != 0)
+        goto fail;
+      jt->has_mass = 1;
+    } else if (s->kind == SEC_PAYLOAD) {
+      double mass, center[3];
+      if (twf_mf_parse_mass(c, s, m->length_unit, &mass, center) != 0)
+        goto fail;
+      if (twf_model_payload_add(m, s->name, mass, center) != TWF_OK) {
+        twf_ini_fail(&c->ini, TWF_ERR_NOMEM, s->line, 0, NULL, "out of memory");
+        goto fail;
       }
     }
   }

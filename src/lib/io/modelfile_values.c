@@ -378,7 +378,54 @@ int twf_mf_parse_joint_common(parse_ctx *c, const section *s,
     if (twf_mf_check_range(c, e, what, RANGE_SCALE, &j->scale, &j->scale, 1, 1, "") != 0)
       return -1;
   }
+  j->compliance = 0.0;
+  if ((e = twf_mf_find_entry(s, "compliance")) != NULL) {
+    snprintf(what, sizeof what, "compliance of joint %s", s->name);
+    if (twf_mf_parse_numbers(c, e, what, &j->compliance, 1) != 0)
+      return -1;
+    if (!rev && j->compliance != 0.0)
+      return twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, 0,
+                          "compliance is the yield of a revolute joint under its gravity "
+                          "torque; leave it out for a prismatic joint",
+                          "joint %s is prismatic but has a compliance", s->name);
+    if (!(fabs(j->compliance) <= TWF_READ_COMPLIANCE_MAX))
+      return twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, 1,
+                          "compliance is in rad per N m (a stiffness of 1e5 N m/rad is "
+                          "1e-5): check the value",
+                          "%s: %g rad/(N m) lies beyond %g rad/(N m), the largest accepted",
+                          what, j->compliance, TWF_READ_COMPLIANCE_MAX);
+  }
   return 0;
+}
+
+/* [mass JOINT] and [payload NAME]: mass (kg, positive) and center (a point
+ * in the length unit: base frame at zero for a body, flange frame for a
+ * payload). */
+int twf_mf_parse_mass(parse_ctx *c, const section *s, twf_length_unit lu, double *mass,
+                      double center[3])
+{
+  const entry *em = twf_mf_find_entry(s, "mass"), *ec = twf_mf_find_entry(s, "center");
+  const char *kind = s->kind == SEC_MASS ? "mass" : "payload";
+  char what[96];
+  double v[3];
+  if (em == NULL || ec == NULL)
+    return twf_ini_fail(&c->ini, TWF_ERR_MISSING, s->line, 0,
+                        "give both mass = KG and center = x y z",
+                        "[%s %s] has no %s", kind, s->name, em == NULL ? "mass" : "center");
+  snprintf(what, sizeof what, "mass of [%s %s]", kind, s->name);
+  if (twf_mf_parse_numbers(c, em, what, mass, 1) != 0)
+    return -1;
+  if (!(*mass > 0.0) || !(*mass <= TWF_READ_MASS_MAX))
+    return twf_ini_fail(&c->ini, TWF_ERR_VALUE, em->line, 1,
+                        "mass is in kilograms, above 0 and at most 1e5",
+                        "%s is %g kg", what, *mass);
+  snprintf(what, sizeof what, "center of [%s %s]", kind, s->name);
+  if (twf_mf_parse_numbers(c, ec, what, v, 3) != 0)
+    return -1;
+  for (int k = 0; k < 3; k++)
+    center[k] = twf_length_to_si(v[k], lu);
+  return twf_mf_check_range(c, ec, what, RANGE_LENGTH, v, center, 3, 1,
+                            twf_length_unit_name(lu));
 }
 
 int twf_mf_parse_joint_axis(parse_ctx *c, const section *s,
@@ -481,5 +528,20 @@ int twf_mf_parse_robot(parse_ctx *c, const section *s, twf_model *m)
     return twf_ini_fail(&c->ini, TWF_ERR_UNITS, e->line, 0,
                         "angle_unit is one of deg, rad, mrad",
                         "unknown angle unit '%s'", e->value);
+  if ((e = twf_mf_find_entry(s, "gravity")) != NULL) {
+    double g[3], n;
+    if (twf_mf_parse_numbers(c, e, "gravity direction", g, 3) != 0)
+      return -1;
+    n = twf_v3_norm(g);
+    if (!(n > 0.0) || !isfinite(n))
+      return twf_ini_fail(&c->ini, TWF_ERR_VALUE, e->line, 0,
+                          "gravity is the direction of the fall in the base frame, e.g. "
+                          "0 0 -1 for an upright arm",
+                          "gravity direction is zero");
+    /* a unit vector is kept as written, so that a written model reads
+     * back to the same bits */
+    for (int k = 0; k < 3; k++)
+      m->gravity[k] = fabs(n - 1.0) <= 4e-16 ? g[k] : g[k] / n;
+  }
   return 0;
 }

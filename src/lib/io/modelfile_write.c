@@ -226,6 +226,33 @@ static twf_status write_check(const twf_model *m, twf_error *err)
                            (int)j->type);
     }
   }
+  for (size_t i = 0; i < m->n_joints; i++) {
+    const twf_joint *j = &m->joints[i];
+    if (!isfinite(j->compliance) || !(fabs(j->compliance) <= TWF_READ_COMPLIANCE_MAX) ||
+        (j->type != TWF_JOINT_REVOLUTE && j->compliance != 0.0))
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                           "joint %s has a compliance the reader would refuse", j->name);
+    if (j->has_mass && (!(j->mass > 0.0) || !(j->mass <= TWF_READ_MASS_MAX) ||
+                        !finite_n(j->mass_center, 3) ||
+                        !within_n(j->mass_center, 3, TWF_READ_LENGTH_MAX)))
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                           "the body of joint %s has a mass or centre the reader would refuse",
+                           j->name);
+  }
+  for (size_t i = 0; i < m->n_payloads; i++) {
+    const twf_payload *pl = &m->payloads[i];
+    if (!twf_mf_name_chars_ok(pl->name) || strlen(pl->name) >= TWF_NAME_MAX ||
+        twf_model_payload_index(m, pl->name) != (long)i)
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, twf_mf_name_hint,
+                           "payload %zu has an invalid or repeated name '%s'", i + 1, pl->name);
+    if (!(pl->mass > 0.0) || !(pl->mass <= TWF_READ_MASS_MAX) || !finite_n(pl->center, 3) ||
+        !within_n(pl->center, 3, TWF_READ_LENGTH_MAX))
+      return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                           "payload %s has a mass or centre the reader would refuse", pl->name);
+  }
+  if (!finite_n(m->gravity, 3) || !(fabs(twf_v3_norm(m->gravity) - 1.0) < 1e-9))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "the gravity direction is not a unit vector");
   for (size_t i = 0; i < m->n_targets; i++) {
     const twf_target *t = &m->targets[i];
     if (!twf_mf_name_chars_ok(t->name) || strlen(t->name) >= TWF_NAME_MAX ||
@@ -315,6 +342,8 @@ static twf_status write_model(const twf_model *m, FILE *out, twf_error *err)
     put_text(out, "name", buf);
   fprintf(out, "length_unit = %s\nangle_unit = %s\n",
           twf_length_unit_name(u.lu), twf_angle_unit_name(u.au));
+  if (m->gravity[0] != 0.0 || m->gravity[1] != 0.0 || m->gravity[2] != -1.0)
+    put_nums(out, "gravity", m->gravity, 3, CONV_NONE, &u);
 
   for (size_t i = 0; i < m->n_joints; i++) {
     const twf_joint *j = &m->joints[i];
@@ -340,6 +369,26 @@ static twf_status write_model(const twf_model *m, FILE *out, twf_error *err)
     }
     put_nums(out, "offset", &j->offset, 1, jk, &u);
     put_nums(out, "scale", &j->scale, 1, CONV_NONE, &u);
+    if (j->compliance != 0.0) {
+      fprintf(out, "; rad per N m: yield under the gravity torque of the masses below\n");
+      put_nums(out, "compliance", &j->compliance, 1, CONV_NONE, &u);
+    }
+  }
+
+  /* the mass model: kilograms, centres in the length unit */
+  for (size_t i = 0; i < m->n_joints; i++) {
+    const twf_joint *j = &m->joints[i];
+    if (!j->has_mass)
+      continue;
+    fprintf(out, "\n[mass %s]\n", j->name);
+    put_nums(out, "mass", &j->mass, 1, CONV_NONE, &u);
+    put_nums(out, "center", j->mass_center, 3, CONV_LEN, &u);
+  }
+  for (size_t i = 0; i < m->n_payloads; i++) {
+    const twf_payload *pl = &m->payloads[i];
+    fprintf(out, "\n[payload %s]\n", pl->name);
+    put_nums(out, "mass", &pl->mass, 1, CONV_NONE, &u);
+    put_nums(out, "center", pl->center, 3, CONV_LEN, &u);
   }
 
   {

@@ -314,6 +314,7 @@ twf_predictor *twf_predictor_from_calibration(const twf_calib_result *res,
     {
       size_t sta = twf_campaign_pose_station(c, k);
       const twf_pose *Bs = sta < res->n_stations && res->n_stations > 1 ? &res->station_base[sta] : &d.base;
+      twf_errmodel_set_payload(d.em, twf_campaign_payload(c, k));
       twf_errmodel_eval_station(d.em, d.m, Bs, sta, c->q + k * c->n_joints, &T);
     }
     for (t = start[k]; t < start[k + 1]; t++) {

@@ -107,7 +107,8 @@ twf_status twf_accuracy_residuals(const twf_model *model,
     int six_d;
     if (me->pose != last_pose) {
       twf_pose F;
-      twf_model_fk(model, campaign->q + me->pose * model->n_joints, NULL, &F);
+      twf_model_fk_load(model, campaign->q + me->pose * model->n_joints,
+                        twf_campaign_payload(campaign, me->pose), NULL, &F);
       twf_pose_mul(&base_in_tracker[twf_campaign_pose_station(campaign, me->pose)], &F, &T);
       last_pose = me->pose;
     }
@@ -785,7 +786,9 @@ twf_iso9283 *twf_accuracy_iso9283(const twf_model *model,
       qmean[j] = sum / (double)n;
       spread = fmax(spread, hi - lo);
     }
-    twf_model_fk(model, qmean, NULL, &F);
+    /* the visits' load (the first visit's: a pose repeated under another
+     * load is another commanded pose for a compliant arm) */
+    twf_model_fk_load(model, qmean, twf_campaign_payload(campaign, gp[0]), NULL, &F);
     twf_pose_mul(&base_in_tracker[twf_campaign_pose_station(campaign, first_pose[gr])], &F, &T);
     for (k = 0; k < nt; k++) {
       tcount[k] = 0;

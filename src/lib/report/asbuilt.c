@@ -68,7 +68,13 @@ static void apply_datum(twf_model *m, twf_pose *B, const twf_pose *G)
   for (i = 0; i < m->n_joints; i++) {
     twf_se3_adjoint_apply(G, m->joints[i].twist, m->joints[i].twist);
     twf_pose_apply(G, m->joints[i].point, m->joints[i].point);
+    /* the mass model is in the base frame too (payloads ride on the
+     * flange, whose frame the datum does not change) */
+    if (m->joints[i].has_mass)
+      twf_pose_apply(G, m->joints[i].mass_center, m->joints[i].mass_center);
   }
+  if (twf_model_has_masses(m)) /* else gravity plays no part: keep the default */
+    twf_pose_rotate(G, m->gravity, m->gravity);
   twf_pose_mul(G, &m->home, &m->home);
   twf_pose_inv(G, &Ginv);
   twf_pose_mul(B, &Ginv, B);
@@ -188,7 +194,7 @@ static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
   out->settled = 1;
   twf_pose_identity(&out->datum);
   lines_at_logged_zero(nominal, nd, nq);
-  twf_model_fk(nominal, zero, NULL, &Fn);
+  twf_model_fk_rigid(nominal, zero, NULL, &Fn);
   /* Parallel revolute lines (a four-axis arm) leave the translation along
    * their direction free: the targets at logged zero, which the data
    * determine too, pin it. Otherwise the lines alone fix the frame, so that
@@ -217,7 +223,7 @@ static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
       np += 2;
     }
     if (pin_with_targets) {
-      twf_model_fk(asbuilt, zero, NULL, &Fa);
+      twf_model_fk_rigid(asbuilt, zero, NULL, &Fa);
       for (k = 0; k < nt; k++)
         if (nominal->targets[k].offset_known && asbuilt->targets[k].offset_known) {
           twf_pose_apply(&Fa, asbuilt->targets[k].offset, a + 3 * np);
@@ -245,7 +251,7 @@ static twf_status compare(const twf_model *nominal, twf_model *asbuilt,
     out->settled = 0;
 
   lines_at_logged_zero(asbuilt, ad, aq);
-  twf_model_fk(asbuilt, zero, NULL, &Fa);
+  twf_model_fk_rigid(asbuilt, zero, NULL, &Fa);
   {
     double sum = 0.0;
     size_t used = 0;

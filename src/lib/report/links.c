@@ -108,7 +108,7 @@ static int lines_at_zero(const twf_model *m, lines *L)
     return -1;
   }
   /* q = 0: theta = offset, the configuration the report describes */
-  twf_model_fk(m, q, prefix, &L->flange);
+  twf_model_fk_rigid(m, q, prefix, &L->flange);
   for (size_t j = 0; j < n; j++) {
     const twf_joint *jt = &m->joints[j];
     const double *d = jt->type == TWF_JOINT_REVOLUTE ? jt->twist : jt->twist + 3;
@@ -955,7 +955,7 @@ twf_status twf_dh_residual(const twf_model *m, const twf_dh_row *rows,
     twf_pose T, Tm;
     double dp[3], e, ang;
     twf_simulate_joints(m, 0.0, &state, q);
-    twf_model_fk(m, q, NULL, &Tm);
+    twf_model_fk_rigid(m, q, NULL, &Tm);
     if (base_to_first != NULL)
       T = *base_to_first;
     else

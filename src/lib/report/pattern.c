@@ -241,7 +241,7 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
       continue;
     q = &c->q[ms->pose * nj];
     if (ms->pose != last_pose) {
-      twf_model_fk(m, q, prefix, &flange);
+      twf_model_fk_load(m, q, twf_campaign_payload(c, ms->pose), prefix, &flange);
       twf_model_jacobian_spatial(m, prefix, J);
       last_pose = ms->pose;
     }

@@ -65,7 +65,13 @@ void cli_print_compliance(FILE *fp, const twf_model *m, const twf_campaign *c,
   }
   fprintf(fp, "  stiffness k = 1 / C; its std to first order (std / C^2). The model leaves out the change of\n"
               "  tau with the deflection itself (second order: C |dtau/dtheta| times the deflection).\n");
-  fprintf(fp, "  Caution: %s", cli_compliance_caution);
+  /* the caution's lines indented under its first */
+  fputs("  Caution: ", fp);
+  for (const char *c = cli_compliance_caution; *c != '\0'; c++) {
+    fputc(*c, fp);
+    if (*c == '\n' && c[1] != '\0')
+      fputs("           ", fp);
+  }
 }
 
 json_t *cli_json_compliance(const twf_model *m, const twf_campaign *c, const twf_compliance_summary *s,

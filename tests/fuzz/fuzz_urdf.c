@@ -28,16 +28,22 @@ static double largest_length(const twf_model *m)
 }
 
 /* A configuration of m, deterministic in c: within the limits where there
- * are any, else within +-2 (rad or m). */
+ * are any, clipped to +-2 (rad or m): limits of 1e16 rad are legal input,
+ * but the sine of such an angle carries no digits, so two exact
+ * descriptions of one arm need not agree there. */
 static void config(const twf_model *m, int c, double *q)
 {
   for (size_t i = 0; i < m->n_joints; i++) {
     double t = 0.5 + 0.45 * sin(1.7 * (double)(c + 1) + 2.3 * (double)i);
     const twf_joint *j = &m->joints[i];
-    if (j->has_limits && isfinite(j->limit_hi - j->limit_lo))
-      q[i] = j->limit_lo + t * (j->limit_hi - j->limit_lo);
-    else
-      q[i] = 4.0 * t - 2.0;
+    double lo = -2.0, hi = 2.0;
+    if (j->has_limits && isfinite(j->limit_hi - j->limit_lo)) {
+      lo = fmax(lo, fmin(j->limit_lo, 2.0));
+      hi = fmin(hi, fmax(j->limit_hi, -2.0));
+      if (hi < lo)
+        hi = lo;
+    }
+    q[i] = lo + t * (hi - lo);
   }
 }
 

@@ -99,6 +99,16 @@ const twf_param *twf_errmodel_param(const twf_errmodel *em, size_t j);
  * gravity times the reach times the masses beyond the joint and the
  * heaviest payload, at least 1 N m), the deflection it could cause. */
 double twf_errmodel_param_scale(const twf_errmodel *em, size_t j);
+/* The factor that brings column j of the Jacobian to the geometric
+ * columns' size where columns are multiplied by it (the conditioning of
+ * the scaled Jacobian, its singular values and observability indices):
+ * twf_errmodel_param_scale for every parameter but a compliance, whose
+ * column (the reach times a torque) times the reach over that torque
+ * bound is of an angle's column size times the reach. With the torque
+ * bound itself (about 1e4 N m on a heavy arm) the compliance columns
+ * outgrew the others by 1e8 and the normal matrix's eigenvalues lost the
+ * smallest directions to rounding. */
+double twf_errmodel_column_scale(const twf_errmodel *em, size_t j);
 /* Recompute the axis-error directions u1, u2 from m's current joints. Call
  * after every fold (twf_errmodel_fold does it). */
 void twf_errmodel_update(twf_errmodel *em, const twf_model *m);

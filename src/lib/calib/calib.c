@@ -656,8 +656,8 @@ static int screened_pattern(job *j)
   if (pos != NULL && rot != NULL && use != NULL && st == TWF_OK) {
     for (i = 0; i < nm; i++)
       use[i] = j->pr.use[i] && j->pr.weight[i] > 0.0;
-    if (twf_lsq_residuals(j->pr.m, &j->pr.base, &j->view, pos, rot, &e) == TWF_OK &&
-        twf_residual_pattern(j->pr.m, &j->pr.base, &j->view, pos, use, &po, &pr, &e) == TWF_OK)
+    if (twf_lsq_residuals(j->pr.m, j->pr.base, &j->view, pos, rot, &e) == TWF_OK &&
+        twf_residual_pattern(j->pr.m, j->pr.base, &j->view, pos, use, &po, &pr, &e) == TWF_OK)
       found = pr.n_significant > 0;
     else
       found = 0; /* no verdict on the pattern: the plain limit holds */

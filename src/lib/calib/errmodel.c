@@ -247,6 +247,15 @@ double twf_errmodel_param_scale(const twf_errmodel *em, size_t j)
   return j < em->n_params ? em->scale[j] : 1.0;
 }
 
+double twf_errmodel_column_scale(const twf_errmodel *em, size_t j)
+{
+  if (j >= em->n_params)
+    return 1.0;
+  if (em->params[j].group == TWF_GROUP_COMPLIANCE)
+    return em->reach * em->reach / em->scale[j]; /* the reach over the torque bound */
+  return em->scale[j];
+}
+
 /* u1: the component of base x perpendicular to the joint direction (base y
  * when x is within 30 degrees of it), u2 = d x u1: reproducible names and
  * values for the axis errors (DEVELOPERS.md, "The maths"). */

@@ -1146,8 +1146,8 @@ void twf_lsq_scale_normal(const twf_lsq_problem *pr, const double *A, double *As
   size_t p = pr->p, a, b;
   for (a = 0; a < p; a++)
     for (b = 0; b < p; b++)
-      As[a * p + b] = A[a * p + b] * twf_errmodel_param_scale(pr->em, a) *
-                      twf_errmodel_param_scale(pr->em, b);
+      As[a * p + b] = A[a * p + b] * twf_errmodel_column_scale(pr->em, a) *
+                      twf_errmodel_column_scale(pr->em, b);
 }
 
 

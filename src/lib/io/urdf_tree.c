@@ -71,21 +71,29 @@ static twf_status parse_doc(const urdf_tree *t, const twf_io_text *text, xmlDocP
     return twf_error_set(err, TWF_ERR_NOMEM, t->path, 0, 0, NULL, "out of memory");
   /* No network, no messages on stderr (the library never prints); entities
    * are left unexpanded so that a file cannot make the parser grow. */
+  /* Read as UTF-8 whatever the file declares: a converter for another
+   * encoding reports its failures on stderr, past the context's error
+   * switch, and the library never prints; URDF files are UTF-8 (ASCII in
+   * practice), and anything else is then a clear syntax error. */
   *doc = xmlCtxtReadMemory(ctx, text->data + text->start, (int)(text->len - text->start),
-                           t->path, NULL, XML_PARSE_NONET | XML_PARSE_NOERROR |
+                           t->path, "UTF-8", XML_PARSE_NONET | XML_PARSE_NOERROR |
                            XML_PARSE_NOWARNING | XML_PARSE_BIG_LINES);
   e = xmlCtxtGetLastError(ctx);
   if (*doc == NULL || (e != NULL && e->level >= XML_ERR_ERROR)) {
+    /* libxml2's messages end with a newline: trimmed before the error
+     * text, which would show it escaped */
+    char msg[TWF_ERROR_TEXT_MAX];
+    size_t n;
+    snprintf(msg, sizeof msg, "%s", e && e->message ? e->message : "parse error");
+    n = strlen(msg);
+    while (n > 0 && (msg[n - 1] == '\n' || msg[n - 1] == ' '))
+      msg[--n] = '\0';
+    for (size_t i = 0; i < n; i++)
+      if (msg[i] == '\n')
+        msg[i] = ' ';
     twf_status st = twf_error_set(err, TWF_ERR_SYNTAX, t->path, e ? e->line : 0,
-                                  e ? e->int2 : 0, "give a well-formed URDF (XML) file",
-                                  "not well-formed XML: %s",
-                                  e && e->message ? e->message : "parse error");
-    /* libxml2's messages end with a newline */
-    if (err != NULL) {
-      size_t n = strlen(err->message);
-      while (n > 0 && (err->message[n - 1] == '\n' || err->message[n - 1] == ' '))
-        err->message[--n] = '\0';
-    }
+                                  e ? e->int2 : 0, "give a well-formed URDF (XML) file in UTF-8",
+                                  "not well-formed XML: %s", msg);
     xmlFreeDoc(*doc);
     *doc = NULL;
     xmlFreeParserCtxt(ctx);

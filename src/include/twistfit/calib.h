@@ -67,10 +67,12 @@ typedef struct twf_calib_options {
    * limit. Our own choice (common practice, no source): gross errors of a
    * tracker campaign are a few rows, a systematic misfit many. */
   double screen_max_fraction;
-  /* The lower limit (default 0.01; screen_max_fraction when that is lower) that holds
-   * when the readings the screen keeps still fail the residual pattern
-   * test: a model that lacks an effect (compliance, a gear error) makes
-   * many readings look bad, gross errors are a few. Our own choice. */
+  /* The lower limit (default 0: none may be dropped; screen_max_fraction
+   * when that is lower) that holds when the readings the screen keeps
+   * still fail the residual pattern test: a model that lacks an effect
+   * (compliance, a gear error) makes readings look bad that are not, so
+   * none is dropped as a gross error while the pattern stands (the
+   * warning says so). Our own choice. */
   double screen_pattern_fraction;
   /* The residual-pattern test run on the as-built residuals (alpha,
    * min_explained; torque for the torque family, NULL without a mass

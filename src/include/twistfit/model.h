@@ -111,8 +111,9 @@ const char *twf_model_meta_get(const twf_model *m, const char *key);
 long twf_model_joint_index(const twf_model *m, const char *name);
 long twf_model_target_index(const twf_model *m, const char *name);
 long twf_model_payload_index(const twf_model *m, const char *name);
-/* Add a payload (mass kg, centre m in the flange frame), copying name;
- * TWF_ERR_DUPLICATE for a name already used, TWF_ERR_NOMEM. */
+/* Add a payload (mass kg, centre m in the flange frame; center may point
+ * into m's own payloads), copying name; TWF_ERR_DUPLICATE for a name
+ * already used, TWF_ERR_NOMEM. */
 twf_status twf_model_payload_add(twf_model *m, const char *name, double mass,
                                  const double center[3]);
 /* 1 when some joint has a nonzero compliance (then forward kinematics

@@ -182,10 +182,13 @@ twf_status twf_model_payload_add(twf_model *m, const char *name, double mass,
                                  const double center[3])
 {
   twf_payload *g;
+  double c[3];
   if (m == NULL || name == NULL || center == NULL || strlen(name) >= TWF_NAME_MAX)
     return TWF_ERR_INVALID;
   if (twf_model_payload_index(m, name) >= 0)
     return TWF_ERR_DUPLICATE;
+  /* center may be another payload's, which the realloc moves */
+  twf_v3_copy(center, c);
   g = realloc(m->payloads, (m->n_payloads + 1) * sizeof *g);
   if (g == NULL)
     return TWF_ERR_NOMEM;
@@ -193,7 +196,7 @@ twf_status twf_model_payload_add(twf_model *m, const char *name, double mass,
   memset(&g[m->n_payloads], 0, sizeof *g);
   twf_strlcpy(g[m->n_payloads].name, name, sizeof g->name);
   g[m->n_payloads].mass = mass;
-  twf_v3_copy(center, g[m->n_payloads].center);
+  twf_v3_copy(c, g[m->n_payloads].center);
   m->n_payloads++;
   return TWF_OK;
 }

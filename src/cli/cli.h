@@ -271,6 +271,12 @@ typedef struct cli_links_table {
   const char *reference_key, *value_key;     /* JSON members */
   int with_std;
 } cli_links_table;
+/* A table of l with the given column heads and JSON member names. */
+cli_links_table cli_links_table_of(const twf_links *l, const double *difference,
+                                   const twf_model *model, const cli_units *units,
+                                   const char *reference_label, const char *value_label,
+                                   const char *reference_key, const char *value_key,
+                                   int with_std);
 void cli_links_print(FILE *fp, const cli_links_table *t);
 json_t *cli_links_json(const cli_links_table *t);
 /* v, or 0 when |v| < zero (rounding left-overs); never -0. */

@@ -315,18 +315,8 @@ static void print_summary(FILE *fp, const twf_calib_result *r, const cli_units *
 /* The link table of a result: as-built against the starting model. */
 static cli_links_table links_table(const twf_model *m, const twf_calib_result *r, const cli_units *u)
 {
-  cli_links_table t;
-  memset(&t, 0, sizeof t);
-  t.links = &r->links;
-  t.difference = r->link_change;
-  t.model = m;
-  t.units = u;
-  t.reference_label = "starting";
-  t.value_label = "as-built";
-  t.reference_key = "starting";
-  t.value_key = "asbuilt";
-  t.with_std = 1;
-  return t;
+  return cli_links_table_of(&r->links, r->link_change, m, u, "starting", "as-built", "starting",
+                            "asbuilt", 1);
 }
 
 /* The as-built geometry: the link parameters against the starting model

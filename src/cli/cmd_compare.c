@@ -86,17 +86,7 @@ static void print_row(FILE *fp, const char *label, const twf_stats *s, double un
 
 static cli_links_table links_table(const twf_links *l, const double *diff, const twf_model *a, const cli_units *u)
 {
-  cli_links_table t;
-  memset(&t, 0, sizeof t);
-  t.links = l;
-  t.difference = diff;
-  t.model = a;
-  t.units = u;
-  t.reference_label = "A";
-  t.value_label = "B";
-  t.reference_key = "a";
-  t.value_key = "b";
-  return t;
+  return cli_links_table_of(l, diff, a, u, "A", "B", "a", "b", 0);
 }
 
 static void print_links(FILE *fp, const cli_links_table *t, int full_pose)

@@ -39,6 +39,26 @@ static const char *note_of(const twf_link_row *row, int v)
   return row->why[v] == TWF_LINK_DETERMINED ? "" : twf_link_why_text(row->why[v]);
 }
 
+cli_links_table cli_links_table_of(const twf_links *l, const double *difference,
+                                   const twf_model *model, const cli_units *units,
+                                   const char *reference_label, const char *value_label,
+                                   const char *reference_key, const char *value_key,
+                                   int with_std)
+{
+  cli_links_table t;
+  memset(&t, 0, sizeof t);
+  t.links = l;
+  t.difference = difference;
+  t.model = model;
+  t.units = units;
+  t.reference_label = reference_label;
+  t.value_label = value_label;
+  t.reference_key = reference_key;
+  t.value_key = value_key;
+  t.with_std = with_std;
+  return t;
+}
+
 void cli_links_print(FILE *fp, const cli_links_table *t)
 {
   const twf_links *l = t->links;

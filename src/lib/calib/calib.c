@@ -42,8 +42,10 @@ static const char *const advice_texts[] = {
   [TWF_ADVICE_FIX_MORE] = "fix more parameters (fit fewer groups) or measure more varied poses",
   [TWF_ADVICE_MORE_POSES] = "measure more poses, or fit fewer groups",
   [TWF_ADVICE_MORE_POSES_OR_SIGMA] = "measure more poses, fit fewer groups, or give the noise (sigma_length)",
-  [TWF_ADVICE_ACCEPT_LARGE] = "check the joint order and signs, the units and that the model is this arm's; "
-                              "set accept_large if the arm really is that far from its model",
+  /* one string in two pieces (parenthesised, so no compiler takes it for
+   * a missing comma) */
+  [TWF_ADVICE_ACCEPT_LARGE] = ("check the joint order and signs, the units and that the model is this arm's; "
+                               "set accept_large if the arm really is that far from its model"),
 };
 #define N_ADVICE (sizeof advice_texts / sizeof advice_texts[0])
 

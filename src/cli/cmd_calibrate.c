@@ -344,6 +344,107 @@ static void print_geometry(FILE *fp, const twf_model *m, const twf_calib_result 
               r->asbuilt->targets[j].offset[2] / u->length_si, u->length);
 }
 
+/* The solver section: the fits' iterations and stops, the outlier screen
+ * and the measurements it affected, the check measurements flagged. */
+static void print_solver(FILE *fp, const cli_inputs *in, const twf_calib_result *r,
+                         const twf_calib_options *co, const cli_units *u)
+{
+  const twf_model *m = in->model;
+  const twf_campaign *view = in->campaign;
+  char where[TWF_ERROR_TEXT_MAX];
+  size_t i;
+  fprintf(fp, "\nSolver\n");
+  fprintf(fp, "  registration refinement: %d %s, %s\n", r->registration.iterations,
+          cli_plural((size_t)r->registration.iterations, "iteration", "iterations"),
+          cli_stop_words(r->registration.stop));
+  fprintf(fp, "  calibration: %d %s, cost %.6g -> %.6g, %s\n", r->solve.iterations,
+          cli_plural((size_t)r->solve.iterations, "iteration", "iterations"), r->solve.cost_start,
+          r->solve.cost_end, cli_stop_words(r->solve.stop));
+  if (co->robust == TWF_ROBUST_OFF)
+    fprintf(fp, "  outlier screen: off\n");
+  else if (r->robust_rounds == 0)
+    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; nothing to screen, no refit\n",
+            robust_name(co->robust), co->robust_threshold);
+  else if (r->robust_rounds == 1)
+    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; refitted once\n",
+            robust_name(co->robust), co->robust_threshold);
+  else
+    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; refitted %d times\n",
+            robust_name(co->robust), co->robust_threshold, r->robust_rounds);
+  if (r->n_outliers > 0) {
+    fprintf(fp, "  %zu fit %s affected (error at the first fit and after calibration, %s):\n", r->n_outliers,
+            cli_plural(r->n_outliers, "measurement", "measurements"), u->length);
+    for (i = 0; i < r->n_outliers; i++) {
+      const twf_outlier *o = &r->outliers[i];
+      const twf_measurement *ms = &view->meas[o->meas];
+      cli_meas_where(in, ms, where, sizeof where);
+      fprintf(fp, "    %s: pose %s target %s: %.*f (%.1f robust sd), after %.*f, %s\n", where,
+              view->pose_ids[ms->pose], m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score,
+              u->ldec, len_shown(norm3(r->pos_err_after + 3 * o->meas), u),
+              o->weight == 0.0 ? "dropped" : "down-weighted");
+    }
+  }
+  if (r->n_check_flagged > 0) {
+    fprintf(fp, "  %zu check %s flagged (error after calibration, %s; against the fit's robust scale):\n",
+            r->n_check_flagged, cli_plural(r->n_check_flagged, "measurement", "measurements"), u->length);
+    for (i = 0; i < r->n_check_flagged; i++) {
+      const twf_outlier *o = &r->check_flagged[i];
+      const twf_measurement *ms = &view->meas[o->meas];
+      cli_meas_where(in, ms, where, sizeof where);
+      fprintf(fp, "    %s: pose %s target %s: %.*f (%.1f robust sd)\n", where, view->pose_ids[ms->pose],
+              m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score);
+    }
+  }
+}
+
+/* The identifiability section: the counts, conditioning and observability,
+ * each parameter not estimated and why, the offsets left open, the
+ * strongest correlations. */
+static void print_identifiability(FILE *fp, const twf_model *m, const twf_calib_result *r)
+{
+  char expl[256];
+  size_t i, j;
+  fprintf(fp, "\nIdentifiability\n");
+  fprintf(fp, "  requested %zu parameters; identifiable for this arm and measurement kind %zu;\n"
+              "  estimated %zu; fixed as redundant %zu; fixed because the poses cannot determine them %zu;\n"
+              "  weak %zu\n",
+          r->n_params, r->structural_count, r->n_kept, r->n_fixed_structural, r->n_fixed_data, r->n_weak);
+  fprintf(fp, "  condition number of the scaled Jacobian %.4g; observability O1 %.4g, O2 %.4g, O3 %.4g, O4 %.4g\n",
+          r->condition_number, r->observability.o1, r->observability.o2, r->observability.o3,
+          r->observability.o4);
+  for (j = 0; j < r->n_params; j++) {
+    const twf_param_result *p = &r->params[j];
+    if (p->status == TWF_PARAM_KEPT ||
+        (p->param.group == TWF_GROUP_TARGETS && !r->target_in_fit[p->param.target]))
+      continue;
+    explain_text(r, p, expl, sizeof expl);
+    fprintf(fp, "  %-14s %s%s%s\n", p->param.name, status_name(p->status), expl[0] ? ": ~ " : "", expl);
+  }
+  for (j = 0; j < r->n_params; j++) {
+    const twf_param_result *p = &r->params[j];
+    if (p->param.group != TWF_GROUP_OFFSETS || p->status == TWF_PARAM_KEPT)
+      continue;
+    if (p->status == TWF_PARAM_FIXED_STRUCTURAL && p->n_explain > 0)
+      fprintf(fp, "  the offset of joint %s cannot be determined: it is absorbed by %s%s\n",
+              m->joints[p->param.joint].name,
+              r->params[p->explain[0]].param.group == TWF_GROUP_BASE ? "the base pose"
+              : r->params[p->explain[0]].param.group == TWF_GROUP_TARGETS ? "the target offsets"
+                                                                          : "other parameters",
+              p->param.joint == 0 ? " (rotation about the first axis)"
+              : (size_t)p->param.joint + 1 == m->n_joints ? " (rotation about the last axis)" : "");
+    else
+      fprintf(fp, "  the offset of joint %s is not determined by these poses and keeps its starting value\n",
+              m->joints[p->param.joint].name);
+  }
+  if (r->n_correlations > 0) {
+    fprintf(fp, "  strongest correlations above 0.9:");
+    for (i = 0; i < r->n_correlations; i++)
+      fprintf(fp, "%s %s/%s %.3f", i ? "," : "", r->params[r->correlations[i].a].param.name,
+              r->params[r->correlations[i].b].param.name, r->correlations[i].rho);
+    fputc('\n', fp);
+  }
+}
+
 static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result *r,
                          const twf_calib_options *co, const cli_units *u, const digest *dg, size_t n_dg,
                          const char *created, const twf_warnings *w)
@@ -352,7 +453,7 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   const twf_model *m = in->model;
   const twf_campaign *view = in->campaign;
   const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
-  char expl[256], fitted[160], where[TWF_ERROR_TEXT_MAX];
+  char fitted[160];
   groups_text(r->groups, fitted, sizeof fitted);
   fprintf(fp, "twistfit %s calibrate, %s\n", twf_version(), created);
   for (i = 0; i < n_dg; i++)
@@ -403,90 +504,11 @@ static void print_report(FILE *fp, const cli_inputs *in, const twf_calib_result 
   cli_print_pattern(fp, m, &r->pattern, r->screen_refused, u);
   cli_print_compliance(fp, r->asbuilt, view, &r->compliance, u);
 
-  fprintf(fp, "\nSolver\n");
-  fprintf(fp, "  registration refinement: %d %s, %s\n", r->registration.iterations,
-          cli_plural((size_t)r->registration.iterations, "iteration", "iterations"),
-          cli_stop_words(r->registration.stop));
-  fprintf(fp, "  calibration: %d %s, cost %.6g -> %.6g, %s\n", r->solve.iterations,
-          cli_plural((size_t)r->solve.iterations, "iteration", "iterations"), r->solve.cost_start,
-          r->solve.cost_end, cli_stop_words(r->solve.stop));
-  if (co->robust == TWF_ROBUST_OFF)
-    fprintf(fp, "  outlier screen: off\n");
-  else if (r->robust_rounds == 0)
-    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; nothing to screen, no refit\n",
-            robust_name(co->robust), co->robust_threshold);
-  else if (r->robust_rounds == 1)
-    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; refitted once\n",
-            robust_name(co->robust), co->robust_threshold);
-  else
-    fprintf(fp, "  outlier screen: %s beyond %.3g robust standard deviations; refitted %d times\n",
-            robust_name(co->robust), co->robust_threshold, r->robust_rounds);
-  if (r->n_outliers > 0) {
-    fprintf(fp, "  %zu fit %s affected (error at the first fit and after calibration, %s):\n", r->n_outliers,
-            cli_plural(r->n_outliers, "measurement", "measurements"), u->length);
-    for (i = 0; i < r->n_outliers; i++) {
-      const twf_outlier *o = &r->outliers[i];
-      const twf_measurement *ms = &view->meas[o->meas];
-      cli_meas_where(in, ms, where, sizeof where);
-      fprintf(fp, "    %s: pose %s target %s: %.*f (%.1f robust sd), after %.*f, %s\n", where,
-              view->pose_ids[ms->pose], m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score,
-              u->ldec, len_shown(norm3(r->pos_err_after + 3 * o->meas), u),
-              o->weight == 0.0 ? "dropped" : "down-weighted");
-    }
-  }
-  if (r->n_check_flagged > 0) {
-    fprintf(fp, "  %zu check %s flagged (error after calibration, %s; against the fit's robust scale):\n",
-            r->n_check_flagged, cli_plural(r->n_check_flagged, "measurement", "measurements"), u->length);
-    for (i = 0; i < r->n_check_flagged; i++) {
-      const twf_outlier *o = &r->check_flagged[i];
-      const twf_measurement *ms = &view->meas[o->meas];
-      cli_meas_where(in, ms, where, sizeof where);
-      fprintf(fp, "    %s: pose %s target %s: %.*f (%.1f robust sd)\n", where, view->pose_ids[ms->pose],
-              m->targets[ms->target].name, u->ldec, o->error_m / u->length_si, o->score);
-    }
-  }
+  print_solver(fp, in, r, co, u);
 
   print_geometry(fp, m, r, u, fitted);
 
-  fprintf(fp, "\nIdentifiability\n");
-  fprintf(fp, "  requested %zu parameters; identifiable for this arm and measurement kind %zu;\n"
-              "  estimated %zu; fixed as redundant %zu; fixed because the poses cannot determine them %zu;\n"
-              "  weak %zu\n",
-          r->n_params, r->structural_count, r->n_kept, r->n_fixed_structural, r->n_fixed_data, r->n_weak);
-  fprintf(fp, "  condition number of the scaled Jacobian %.4g; observability O1 %.4g, O2 %.4g, O3 %.4g, O4 %.4g\n",
-          r->condition_number, r->observability.o1, r->observability.o2, r->observability.o3,
-          r->observability.o4);
-  for (j = 0; j < r->n_params; j++) {
-    const twf_param_result *p = &r->params[j];
-    if (p->status == TWF_PARAM_KEPT ||
-        (p->param.group == TWF_GROUP_TARGETS && !r->target_in_fit[p->param.target]))
-      continue;
-    explain_text(r, p, expl, sizeof expl);
-    fprintf(fp, "  %-14s %s%s%s\n", p->param.name, status_name(p->status), expl[0] ? ": ~ " : "", expl);
-  }
-  for (j = 0; j < r->n_params; j++) {
-    const twf_param_result *p = &r->params[j];
-    if (p->param.group != TWF_GROUP_OFFSETS || p->status == TWF_PARAM_KEPT)
-      continue;
-    if (p->status == TWF_PARAM_FIXED_STRUCTURAL && p->n_explain > 0)
-      fprintf(fp, "  the offset of joint %s cannot be determined: it is absorbed by %s%s\n",
-              m->joints[p->param.joint].name,
-              r->params[p->explain[0]].param.group == TWF_GROUP_BASE ? "the base pose"
-              : r->params[p->explain[0]].param.group == TWF_GROUP_TARGETS ? "the target offsets"
-                                                                          : "other parameters",
-              p->param.joint == 0 ? " (rotation about the first axis)"
-              : (size_t)p->param.joint + 1 == m->n_joints ? " (rotation about the last axis)" : "");
-    else
-      fprintf(fp, "  the offset of joint %s is not determined by these poses and keeps its starting value\n",
-              m->joints[p->param.joint].name);
-  }
-  if (r->n_correlations > 0) {
-    fprintf(fp, "  strongest correlations above 0.9:");
-    for (i = 0; i < r->n_correlations; i++)
-      fprintf(fp, "%s %s/%s %.3f", i ? "," : "", r->params[r->correlations[i].a].param.name,
-              r->params[r->correlations[i].b].param.name, r->correlations[i].rho);
-    fputc('\n', fp);
-  }
+  print_identifiability(fp, m, r);
 
   fprintf(fp, "\nParameters fitted (%s; raw, in the error model's coordinates; change from the\n"
               "starting model)\n", fitted);

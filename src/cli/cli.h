@@ -271,6 +271,10 @@ typedef struct cli_links_table {
   const char *reference_key, *value_key;     /* JSON members */
   int with_std;
 } cli_links_table;
+/* Split a comma list of group names and presets (geometric, remaster)
+ * into one mask per name (--fit, --priority); returns the count, or -1
+ * for an unknown name or an over-long list. */
+int cli_split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT]);
 /* A table of l with the given column heads and JSON member names. */
 cli_links_table cli_links_table_of(const twf_links *l, const double *difference,
                                    const twf_model *model, const cli_units *units,

@@ -81,29 +81,6 @@ enum {
   OPT_WRITE_ANYWAY, OPT_HTML
 };
 
-/* Split a comma list of group names into one mask per name; returns the
- * count, or -1 for an unknown name or an over-long list. */
-static int split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT])
-{
-  char buf[256], *tok, *save = NULL;
-  int n = 0;
-  if (strlen(text) >= sizeof buf)
-    return -1;
-  strcpy(buf, text);
-  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
-    if (n == 2 * TWF_GROUP_COUNT)
-      return -1;
-    /* a preset in a list: "geometric,compliance" */
-    if (strcmp(tok, "geometric") == 0)
-      masks[n++] = TWF_GROUPS_GEOMETRIC;
-    else if (strcmp(tok, "remaster") == 0)
-      masks[n++] = TWF_GROUPS_REMASTER;
-    else if (twf_group_parse(tok, &masks[n++]) != TWF_OK)
-      return -1;
-  }
-  return n;
-}
-
 /* Parse a comma list of groups or a preset into a mask. */
 static int parse_groups(const char *text, unsigned *mask)
 {
@@ -116,7 +93,7 @@ static int parse_groups(const char *text, unsigned *mask)
     *mask = TWF_GROUPS_GEOMETRIC | TWF_GROUP_BIT(TWF_GROUP_SCALE);
     return 0;
   }
-  if ((n = split_groups(text, masks)) < 0)
+  if ((n = cli_split_groups(text, masks)) < 0)
     return -1;
   for (k = 0; k < n; k++)
     *mask |= masks[k];
@@ -128,7 +105,7 @@ static int parse_priority(const char *text, twf_group priority[TWF_GROUP_COUNT])
 {
   unsigned masks[2 * TWF_GROUP_COUNT];
   int used[TWF_GROUP_COUNT] = { 0 }, n = 0, g, k, count;
-  if ((count = split_groups(text, masks)) < 0)
+  if ((count = cli_split_groups(text, masks)) < 0)
     return -1;
   for (k = 0; k < count; k++)
     for (g = 0; g < TWF_GROUP_COUNT; g++)

@@ -1060,3 +1060,25 @@ int cli_bad_option(const char *command, int opt, char **argv)
     return cli_usage_error(command, "option '%s' needs a value", word);
   return cli_usage_error(command, "unknown option '%s'", word);
 }
+
+/* The group lists of --fit and --priority (cli.h). */
+int cli_split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT])
+{
+  char buf[256], *tok, *save = NULL;
+  int n = 0;
+  if (strlen(text) >= sizeof buf)
+    return -1;
+  strcpy(buf, text);
+  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
+    if (n == 2 * TWF_GROUP_COUNT)
+      return -1;
+    /* a preset in a list: "geometric,compliance" */
+    if (strcmp(tok, "geometric") == 0)
+      masks[n++] = TWF_GROUPS_GEOMETRIC;
+    else if (strcmp(tok, "remaster") == 0)
+      masks[n++] = TWF_GROUPS_REMASTER;
+    else if (twf_group_parse(tok, &masks[n++]) != TWF_OK)
+      return -1;
+  }
+  return n;
+}

@@ -64,28 +64,6 @@ int pcli_parse_vector(const char *command, const char *option, const char *arg, 
   return TWF_EXIT_OK;
 }
 
-/* A comma list of group names, one mask per name; -1 for an unknown name. */
-static int split_groups(const char *text, unsigned masks[2 * TWF_GROUP_COUNT])
-{
-  char buf[256], *tok, *save = NULL;
-  int n = 0;
-  if (strlen(text) >= sizeof buf)
-    return -1;
-  strcpy(buf, text);
-  for (tok = strtok_r(buf, ",", &save); tok != NULL; tok = strtok_r(NULL, ",", &save)) {
-    if (n == 2 * TWF_GROUP_COUNT)
-      return -1;
-    /* a preset in a list: "geometric,compliance" */
-    if (strcmp(tok, "geometric") == 0)
-      masks[n++] = TWF_GROUPS_GEOMETRIC;
-    else if (strcmp(tok, "remaster") == 0)
-      masks[n++] = TWF_GROUPS_REMASTER;
-    else if (twf_group_parse(tok, &masks[n++]) != TWF_OK)
-      return -1;
-  }
-  return n;
-}
-
 int pcli_parse_groups(const char *command, const char *text, unsigned *mask)
 {
   unsigned masks[2 * TWF_GROUP_COUNT];
@@ -97,7 +75,7 @@ int pcli_parse_groups(const char *command, const char *text, unsigned *mask)
     *mask = TWF_GROUPS_REMASTER;
   else if (strcmp(text, "all") == 0)
     *mask = TWF_GROUPS_GEOMETRIC | TWF_GROUP_BIT(TWF_GROUP_SCALE);
-  else if ((n = split_groups(text, masks)) > 0)
+  else if ((n = cli_split_groups(text, masks)) > 0)
     for (k = 0; k < n; k++)
       *mask |= masks[k];
   if (*mask == 0)
@@ -110,7 +88,7 @@ int pcli_parse_priority(const char *command, const char *text, twf_group priorit
 {
   unsigned masks[2 * TWF_GROUP_COUNT];
   int used[TWF_GROUP_COUNT] = { 0 }, n = 0, g, k, count;
-  if ((count = split_groups(text, masks)) <= 0)
+  if ((count = cli_split_groups(text, masks)) <= 0)
     return cli_usage_error(command, "unknown groups in --priority '%s'", text);
   for (k = 0; k < count; k++)
     for (g = 0; g < TWF_GROUP_COUNT; g++)

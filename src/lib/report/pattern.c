@@ -139,6 +139,52 @@ static int subset_fit(regression *g, const unsigned char *drop, double *ss, size
   return 0;
 }
 
+/* The pose's factors f_j[col] of every joint's columns (0 for a column
+ * not in the model): offset, slope, harmonics, torque (tau: the pose's nj
+ * gravity torques, NULL for none). */
+static void pattern_features(const regression *g, size_t nj, const double *q, const double *tau, double *f)
+{
+  size_t j, col;
+  for (j = 0; j < nj; j++) {
+    double *fj = &f[j * COLS_PER_JOINT];
+    double s1 = sin(q[j]), c1 = cos(q[j]);
+    fj[COL_CONST] = 1.0;
+    fj[COL_SLOPE] = q[j];
+    fj[COL_H1] = s1;
+    fj[COL_H2] = c1;
+    fj[COL_H3] = sin(2.0 * q[j]);
+    fj[COL_H4] = cos(2.0 * q[j]);
+    fj[COL_TORQUE] = tau != NULL ? tau[j] : 0.0;
+    for (col = 0; col < COLS_PER_JOINT; col++)
+      if (!g->active[j * COLS_PER_JOINT + col])
+        fj[col] = 0.0;
+  }
+}
+
+/* Add one pose's rows to the normal equations: A[(j,c),(k,d)] +=
+ * S_jk f_j[c] f_k[d] on the lower triangle, b[(j,c)] += f_j[c] t_j. */
+static void pose_flush(regression *g, size_t nj, const double *f, const double *S, const double *t)
+{
+  size_t j, k, c, d, n = g->ncol;
+  for (j = 0; j < nj; j++) {
+    const double *fj = &f[j * COLS_PER_JOINT];
+    for (c = 0; c < COLS_PER_JOINT; c++) {
+      size_t r = j * COLS_PER_JOINT + c;
+      double *Ar = &g->A[r * n];
+      if (fj[c] == 0.0)
+        continue;
+      for (k = 0; k <= j; k++) {
+        const double *fk = &f[k * COLS_PER_JOINT];
+        double s = S[j * nj + k] * fj[c];
+        size_t dmax = k < j ? COLS_PER_JOINT : c + 1;
+        for (d = 0; d < dmax; d++)
+          Ar[k * COLS_PER_JOINT + d] += s * fk[d];
+      }
+      g->b[r] += fj[c] * t[j];
+    }
+  }
+}
+
 static void regression_free(regression *g)
 {
   free(g->A);
@@ -150,6 +196,20 @@ static void regression_free(regression *g)
   free(g->idx);
   free(g->d);
   free(g->v);
+}
+
+/* Free the scratch arrays of twf_residual_pattern (any may be NULL). */
+static void scratch_free(twf_pose *prefix, double *J, double *x, double *coef, unsigned char *drop, double *f,
+                         double *S, double *t)
+{
+  free(prefix);
+  free(J);
+  free(x);
+  free(coef);
+  free(drop);
+  free(f);
+  free(S);
+  free(t);
 }
 
 static twf_status fail_nomem(regression *g, twf_pattern_result *out, twf_error *err)
@@ -166,9 +226,11 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
 {
   twf_pattern_options o = opt != NULL ? *opt : twf_pattern_default_options();
   regression g;
-  size_t nj, i, j, a, n_avail = 0, stride, seen = 0, last_pose = (size_t)-1, rank_full = 0;
+  size_t nj, i, j, n_avail = 0, stride, seen = 0, last_pose = (size_t)-1, rank_full = 0;
   twf_pose *prefix = NULL, flange;
-  double *J = NULL, *x = NULL, *coef = NULL, ss_full = 0.0;
+  double *J = NULL, *x = NULL, *coef = NULL, *f = NULL, *S = NULL, *t = NULL, ss_full = 0.0;
+  const double *q = NULL;
+  size_t pose_rows = 0;
   unsigned char *drop = NULL;
   memset(&g, 0, sizeof g);
   if (out != NULL)
@@ -209,15 +271,14 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
   x = malloc(3 * g.ncol * sizeof *x);
   coef = malloc(g.ncol * sizeof *coef);
   drop = calloc(g.ncol, 1);
+  f = malloc(g.ncol * sizeof *f);
+  S = malloc(nj * nj * sizeof *S);
+  t = malloc(nj * sizeof *t);
   out->tests = calloc(nj * TWF_PATTERN_NKINDS + 1, sizeof *out->tests);
   if (g.A == NULL || g.b == NULL || g.active == NULL || g.M == NULL || g.V == NULL || g.eval == NULL ||
       g.idx == NULL || g.d == NULL || g.v == NULL || prefix == NULL || J == NULL || x == NULL || coef == NULL ||
-      drop == NULL || out->tests == NULL) {
-    free(prefix);
-    free(J);
-    free(x);
-    free(coef);
-    free(drop);
+      drop == NULL || f == NULL || S == NULL || t == NULL || out->tests == NULL) {
+    scratch_free(prefix, J, x, coef, drop, f, S, t);
     return fail_nomem(&g, out, err);
   }
   out->n_tests = nj * TWF_PATTERN_NKINDS;
@@ -230,56 +291,58 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
     act[COL_TORQUE] = (unsigned char)(rev && o.torque != NULL);
   }
   stride = n_avail > TWF_PATTERN_MAX_MEAS ? (n_avail + TWF_PATTERN_MAX_MEAS - 1) / TWF_PATTERN_MAX_MEAS : 1;
-  for (i = 0; i < c->n_meas; i++) {
-    const twf_measurement *ms = &c->meas[i];
-    const double *q;
-    double pt[3];
-    size_t r, col;
-    if (use != NULL && !use[i])
+  /* The regression row of coordinate a of a measurement at pose p is
+   * x[(j, col)] = v_j[a] f_j[col], with v_j the point's velocity per unit
+   * of q_j and f_j (offset, slope, harmonics, torque) a function of the
+   * pose alone. So the rows of one pose add to the normal matrix
+   * sum_k S_jk f_j f_k^T, S_jk = sum over its rows of v_j . v_k: nj^2
+   * products per row instead of (7 nj)^2, the outer products once per pose. */
+  for (i = 0; i <= c->n_meas; i++) {
+    const twf_measurement *ms = i < c->n_meas ? &c->meas[i] : NULL;
+    size_t k;
+    if (ms != NULL && use != NULL && !use[i])
       continue;
-    if (seen++ % stride != 0)
+    if (ms != NULL && seen++ % stride != 0)
       continue;
-    q = &c->q[ms->pose * nj];
-    if (ms->pose != last_pose) {
+    if (ms == NULL || ms->pose != last_pose) {
+      if (last_pose != (size_t)-1 && pose_rows > 0)
+        pose_flush(&g, nj, f, S, t);
+      if (ms == NULL)
+        break;
+      last_pose = ms->pose;
+      q = &c->q[ms->pose * nj];
       twf_model_fk_load(m, q, twf_campaign_payload(c, ms->pose), prefix, &flange);
       twf_model_jacobian_spatial(m, prefix, J);
-      last_pose = ms->pose;
+      pattern_features(&g, nj, q, o.torque != NULL ? &o.torque[ms->pose * nj] : NULL, f);
+      memset(S, 0, nj * nj * sizeof *S);
+      memset(t, 0, nj * sizeof *t);
+      pose_rows = 0;
     }
-    twf_pose_apply(&flange, m->targets[ms->target].offset, pt);
-    for (j = 0; j < nj; j++) {
-      /* velocity of the point per unit of q_j: base frame, then instrument frame */
-      double w[3] = { J[0 * nj + j], J[1 * nj + j], J[2 * nj + j] }, vb[3], vi[3], f[COLS_PER_JOINT];
-      twf_v3_cross(w, pt, vb);
-      vb[0] += J[3 * nj + j];
-      vb[1] += J[4 * nj + j];
-      vb[2] += J[5 * nj + j];
-      twf_pose_rotate(&base_in_instrument[twf_campaign_pose_station(c, ms->pose)], vb, vi);
-      f[COL_CONST] = 1.0;
-      f[COL_SLOPE] = q[j];
-      f[COL_H1] = sin(q[j]);
-      f[COL_H2] = cos(q[j]);
-      f[COL_H3] = sin(2.0 * q[j]);
-      f[COL_H4] = cos(2.0 * q[j]);
-      f[COL_TORQUE] = o.torque != NULL ? o.torque[ms->pose * nj + j] : 0.0;
-      for (col = 0; col < COLS_PER_JOINT; col++)
-        for (a = 0; a < 3; a++)
-          x[a * g.ncol + j * COLS_PER_JOINT + col] = g.active[j * COLS_PER_JOINT + col] ? vi[a] * f[col] : 0.0;
-    }
-    /* three rows, one per coordinate; the lower triangle only */
-    for (a = 0; a < 3; a++) {
-      const double *xa = &x[a * g.ncol];
-      double y = pos_err[3 * i + a];
-      for (r = 0; r < g.ncol; r++) {
-        double xr = xa[r];
-        double *Ar = &g.A[r * g.ncol];
-        if (xr == 0.0)
-          continue;
-        for (col = 0; col <= r; col++)
-          Ar[col] += xr * xa[col];
-        g.b[r] += xr * y;
+    {
+      double pt[3];
+      const double *y = &pos_err[3 * i];
+      twf_pose_apply(&flange, m->targets[ms->target].offset, pt);
+      for (j = 0; j < nj; j++) {
+        /* velocity of the point per unit of q_j: base frame, then instrument frame */
+        double w[3] = { J[0 * nj + j], J[1 * nj + j], J[2 * nj + j] }, vb[3];
+        double *vi = &x[3 * j];
+        twf_v3_cross(w, pt, vb);
+        vb[0] += J[3 * nj + j];
+        vb[1] += J[4 * nj + j];
+        vb[2] += J[5 * nj + j];
+        twf_pose_rotate(&base_in_instrument[twf_campaign_pose_station(c, ms->pose)], vb, vi);
       }
-      g.yy += y * y;
+      for (j = 0; j < nj; j++) {
+        const double *vj = &x[3 * j];
+        for (k = 0; k <= j; k++) {
+          const double *vk = &x[3 * k];
+          S[j * nj + k] += vj[0] * vk[0] + vj[1] * vk[1] + vj[2] * vk[2];
+        }
+        t[j] += vj[0] * y[0] + vj[1] * y[1] + vj[2] * y[2];
+      }
+      g.yy += y[0] * y[0] + y[1] * y[1] + y[2] * y[2];
     }
+    pose_rows++;
     g.n_rows += 3;
     out->n_used++;
   }
@@ -287,11 +350,7 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
     for (j = i + 1; j < g.ncol; j++)
       g.A[i * g.ncol + j] = g.A[j * g.ncol + i];
   if (subset_fit(&g, NULL, &ss_full, &rank_full, coef) != 0) {
-    free(prefix);
-    free(J);
-    free(x);
-    free(coef);
-    free(drop);
+    scratch_free(prefix, J, x, coef, drop, f, S, t);
     return fail_nomem(&g, out, err);
   }
   out->rank = rank_full;
@@ -368,18 +427,10 @@ twf_status twf_residual_pattern(const twf_model *m, const twf_pose *base_in_inst
                      t->explained_rms_m >= o.min_explained_rms_m;
     out->n_significant += (size_t)t->significant;
   }
-  free(prefix);
-  free(J);
-  free(x);
-  free(coef);
-  free(drop);
+  scratch_free(prefix, J, x, coef, drop, f, S, t);
   regression_free(&g);
   return TWF_OK;
 nomem:
-  free(prefix);
-  free(J);
-  free(x);
-  free(coef);
-  free(drop);
+  scratch_free(prefix, J, x, coef, drop, f, S, t);
   return fail_nomem(&g, out, err);
 }

@@ -34,6 +34,12 @@ struct twf_errmodel {
   int comp_group;
   double *tau;
   double *theta;
+  /* per joint i, at the evaluated pose, the axis-error lines seen through
+   * the prefixes B P_(i-1) and B P_i (side 0 and 1): the directions R u1,
+   * R u2 and the joint point P q_i, 9 numbers a side; line_ready[i] once
+   * filled for this pose */
+  double (*line)[2][9];
+  unsigned char *line_ready;
 };
 
 static const char *const group_names[TWF_GROUP_COUNT] = {
@@ -139,10 +145,12 @@ twf_errmodel *twf_errmodel_alloc_stations(const twf_model *m, unsigned groups, s
   em->axis_step = calloc(6 * (m->n_joints ? m->n_joints : 1), sizeof *em->axis_step);
   em->tau = calloc(m->n_joints ? m->n_joints : 1, sizeof *em->tau);
   em->theta = calloc(m->n_joints ? m->n_joints : 1, sizeof *em->theta);
+  em->line = calloc(m->n_joints ? m->n_joints : 1, sizeof *em->line);
+  em->line_ready = calloc(m->n_joints ? m->n_joints : 1, 1);
   em->payload = -1;
   em->comp_group = (groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE)) != 0;
   if (!em->params || !em->scale || !em->u1 || !em->u2 || !em->prefix || !em->twists ||
-      !em->axis_step || !em->tau || !em->theta)
+      !em->axis_step || !em->tau || !em->theta || !em->line || !em->line_ready)
     goto nomem;
 
   /* The internal layout is group-major in enum order; the redundancy walk
@@ -232,6 +240,8 @@ void twf_errmodel_free(twf_errmodel *em)
   free(em->axis_step);
   free(em->tau);
   free(em->theta);
+  free(em->line);
+  free(em->line_ready);
   free(em);
 }
 
@@ -306,6 +316,52 @@ static void axis_basis_twist(const twf_errmodel *em, const twf_model *m,
   }
 }
 
+/* The lines of joint i's axis errors through both prefixes (see
+ * em->line): an axis error along u of joint i, at the reference point q_i,
+ * is the basis twist (u, -u x q_i) for a tilt and (0, u) for a shift; a
+ * prefix P = (R, p) carries them to (R u, (P q_i) x (R u)) and (0, R u),
+ * since R (u x q) = (R u) x (R q). */
+static void axis_lines(twf_errmodel *em, const twf_model *m, size_t i)
+{
+  int side;
+  for (side = 0; side < 2; side++) {
+    const twf_pose *P = &em->prefix[i + (size_t)side];
+    double *l = em->line[i][side];
+    twf_pose_rotate(P, em->u1[i], l);
+    twf_pose_rotate(P, em->u2[i], l + 3);
+    twf_pose_apply(P, m->joints[i].point, l + 6);
+  }
+  em->line_ready[i] = 1;
+}
+
+/* The twist of an axis parameter: Ad_{B P_(i-1)} e - Ad_{B P_i} e for its
+ * basis twist e (see axis_lines). */
+static void axis_param_twist(twf_errmodel *em, const twf_model *m, const twf_param *p, double t[6])
+{
+  size_t i = (size_t)p->joint, k = (size_t)(3 * p->component);
+  const double *a, *b;
+  if (!em->line_ready[i])
+    axis_lines(em, m, i);
+  a = em->line[i][0];
+  b = em->line[i][1];
+  if (p->group == TWF_GROUP_TILTS) {
+    double xa[3], xb[3];
+    twf_v3_cross(a + 6, a + k, xa);
+    twf_v3_cross(b + 6, b + k, xb);
+    t[0] = a[k] - b[k];
+    t[1] = a[k + 1] - b[k + 1];
+    t[2] = a[k + 2] - b[k + 2];
+    t[3] = xa[0] - xb[0];
+    t[4] = xa[1] - xb[1];
+    t[5] = xa[2] - xb[2];
+  } else {
+    t[0] = t[1] = t[2] = 0.0;
+    t[3] = a[k] - b[k];
+    t[4] = a[k + 1] - b[k + 1];
+    t[5] = a[k + 2] - b[k + 2];
+  }
+}
+
 /* twf_se3_adjoint_apply, inline: the same operations in the same order
  * (so the same bits) without a call through the library's symbol table
  * for each of the pose's seventy-odd twists. */
@@ -352,11 +408,12 @@ void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf
   }
   twf_pose_mul(&em->prefix[n], &m->home, &em->flange);
   em->q = q;
+  memset(em->line_ready, 0, n);
 
   for (j = 0; j < em->n_params; j++) {
     const twf_param *p = &em->params[j];
     double *t = em->twists + 6 * j;
-    double e[6] = { 0, 0, 0, 0, 0, 0 }, a[6], b[6];
+    double e[6] = { 0, 0, 0, 0, 0, 0 };
     int c;
     if (need != NULL && !need[j])
       continue;
@@ -392,11 +449,7 @@ void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf
     case TWF_GROUP_SHIFTS:
     case TWF_GROUP_TILTS:
       /* Ad_{B P_(i-1)} (I - Ad_{exp(S_i theta_i)}) e = Ad_{B P_(i-1)} e - Ad_{B P_i} e */
-      axis_basis_twist(em, m, p, e);
-      ad_apply(&em->prefix[p->joint], e, a);
-      ad_apply(&em->prefix[p->joint + 1], e, b);
-      for (c = 0; c < 6; c++)
-        t[c] = a[c] - b[c];
+      axis_param_twist(em, m, p, t);
       break;
     case TWF_GROUP_TARGETS:
     case TWF_GROUP_COUNT:

@@ -271,6 +271,41 @@ START_TEST(test_calibration_same_bits_for_any_thread_count)
 }
 END_TEST
 
+/* ------------------------------------------------------------ residuals on threads */
+
+/* twf_lsq_residuals on 1, 2 and 3 threads gives the bits of
+ * twf_accuracy_residuals' one loop (point rows, and 6-D rows with _i). The
+ * campaign is large enough (3,000 poses, 9,000 rows) for the threads to
+ * take ranges of their own. */
+START_TEST(test_residuals_same_bits_for_any_thread_count)
+{
+  twf_model *m = test_arm_model(ARM_TF7);
+  twf_pose B;
+  twf_campaign *c = campaign(m, ARM_TF7, 3000, _i, -1, &B);
+  size_t n = c->n_meas, k;
+  double *pos0 = malloc(3 * n * sizeof *pos0), *rot0 = malloc(n * sizeof *rot0);
+  double *pos = malloc(3 * n * sizeof *pos), *rot = malloc(n * sizeof *rot);
+  twf_error err;
+  int t;
+  ck_assert(n >= 9000);
+  for (k = 0; k < m->n_targets; k++)
+    m->targets[k].offset_known = 1;
+  ck_assert(twf_accuracy_residuals(m, &B, NULL, c, pos0, rot0, &err) == TWF_OK);
+  for (t = 1; t <= 3; t++) {
+    memset(pos, 0, 3 * n * sizeof *pos);
+    memset(rot, 0, n * sizeof *rot);
+    ck_assert(twf_lsq_residuals(m, &B, c, t, pos, rot, &err) == TWF_OK);
+    same_bits(pos0, pos, 3 * n * sizeof *pos, "position residuals", t);
+    same_bits(rot0, rot, n * sizeof *rot, "angle residuals", t);
+  }
+  /* NULL outputs are refused on the threaded path as on the one loop */
+  ck_assert(twf_lsq_residuals(m, &B, c, 2, NULL, NULL, &err) == TWF_ERR_INVALID);
+  free(pos0); free(rot0); free(pos); free(rot);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
 /* ------------------------------------------------------------ blocked factor */
 
 /* The reference: the rows of twf_errmodel_point and _orientation, weighted,
@@ -370,6 +405,7 @@ int main(void)
   tcase_add_loop_test(tc, test_passes_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_calibration_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_normal_matrix_bits_of_the_plain_loop, 0, 2);
+  tcase_add_loop_test(tc, test_residuals_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_householder_block_bits_of_the_plain_loop, 0, 4);
   tcase_add_loop_test(tc, test_blocked_factor_keeps_what_givens_kept, 0, 4 * ARM_COUNT);
   suite_add_tcase(s, tc);

@@ -62,6 +62,19 @@ static inline double twf_rng_gauss(unsigned long long *s)
 int twf_meas_residual(const twf_pose *T, const double t[3], const twf_measurement *ms,
                       double pos[3], double rot[3]);
 
+/* The argument checks of twf_accuracy_residuals, alone. */
+twf_status twf_accuracy_residuals_check(const twf_model *model, const twf_pose *base_in_tracker,
+                                        const double *target_offsets, const twf_campaign *campaign,
+                                        const double *pos_err, const double *angle_err, twf_error *err);
+
+/* twf_accuracy_residuals over the measurements [i0, i1) only, with the
+ * target offsets t (3 per target, checked by the caller): the same
+ * operations for each measurement whatever the range, so that ranges
+ * computed on separate threads give the bits of one loop. */
+void twf_accuracy_residuals_range(const twf_model *model, const twf_pose *base_in_tracker,
+                                  const double *t, const twf_campaign *campaign, size_t i0,
+                                  size_t i1, double *pos_err, double *angle_err);
+
 /* Copy a string into a fixed buffer, always NUL-terminated; returns 0 when
  * it fitted, -1 when truncated. */
 int twf_strlcpy(char *dst, const char *src, size_t size);

@@ -238,6 +238,8 @@ typedef struct twf_refine_options {
   double sigma_length;      /* m, where rows give none (0: 0.1 mm; only weights matter) */
   int screen;               /* 1 (default): drop gross errors as the calibration does */
   double robust_threshold;  /* in robust standard deviations (default TWF_ROBUST_THRESHOLD_DEFAULT) */
+  int threads;              /* threads of the passes (0, the default: one per core; results
+                               do not depend on it) */
 } twf_refine_options;
 
 twf_refine_options twf_refine_default_options(void);

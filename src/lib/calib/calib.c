@@ -340,6 +340,7 @@ static twf_status stage_registration(job *j)
   fo.sigma_length = j->sigma_len;
   fo.screen = j->opt.robust != TWF_ROBUST_OFF;
   fo.robust_threshold = j->opt.robust_threshold;
+  fo.threads = j->opt.threads;
   {
     twf_registration_report rep;
     j->res->n_stations = twf_campaign_station_count(j->c);
@@ -350,7 +351,8 @@ static twf_status stage_registration(job *j)
   }
   if (st != TWF_OK)
     return st;
-  return twf_lsq_residuals(j->reg, j->res->station_base_before, j->c, j->res->pos_err_before,
+  return twf_lsq_residuals(j->reg, j->res->station_base_before, j->c, twf_lsq_threads(j->opt.threads),
+                           j->res->pos_err_before,
                            j->res->angle_err_before, j->err);
 }
 
@@ -658,7 +660,7 @@ static int screened_pattern(job *j)
   if (pos != NULL && rot != NULL && use != NULL && st == TWF_OK) {
     for (i = 0; i < nm; i++)
       use[i] = j->pr.use[i] && j->pr.weight[i] > 0.0;
-    if (twf_lsq_residuals(j->pr.m, j->pr.base, &j->view, pos, rot, &e) == TWF_OK &&
+    if (twf_lsq_residuals(j->pr.m, j->pr.base, &j->view, j->pr.n_threads, pos, rot, &e) == TWF_OK &&
         twf_residual_pattern(j->pr.m, j->pr.base, &j->view, pos, use, &po, &pr, &e) == TWF_OK)
       found = pr.n_significant > 0;
     else
@@ -1080,7 +1082,8 @@ static twf_status stage_asbuilt(job *j)
   res->angle_err_after = calloc(nm, sizeof(double));
   if (res->pos_err_after == NULL || res->angle_err_after == NULL)
     return nomem(j);
-  st = twf_lsq_residuals(j->pr.m, j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
+  st = twf_lsq_residuals(j->pr.m, j->pr.base, j->c, j->pr.n_threads, res->pos_err_after,
+                         res->angle_err_after, j->err);
   if (st != TWF_OK)
     return st;
   res->groups = j->opt.groups;

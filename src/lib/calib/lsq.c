@@ -910,21 +910,77 @@ void twf_lsq_factor(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *
         R[a * nc + b] = -R[a * nc + b];
 }
 
+/* One thread's range of twf_lsq_residuals. */
+typedef struct residual_range {
+  const twf_model *m;
+  const twf_pose *B;
+  const double *t;
+  const twf_campaign *c;
+  size_t i0, i1;
+  double *pos, *rot;
+} residual_range;
+
+static void *residual_worker(void *arg)
+{
+  const residual_range *r = arg;
+  twf_accuracy_residuals_range(r->m, r->B, r->t, r->c, r->i0, r->i1, r->pos, r->rot);
+  return NULL;
+}
+
+/* Fewer measurements than this per thread are not worth a thread. */
+#define RESIDUALS_PER_THREAD_MIN 4096
+
 twf_status twf_lsq_residuals(const twf_model *m, const twf_pose *B, const twf_campaign *c,
-                             double *pos, double *rot, twf_error *err)
+                             int n_threads, double *pos, double *rot, twf_error *err)
 {
   /* the model's offsets given explicitly: a target still being fitted
    * (offset_known 0) has a current value too */
   double *t = malloc(3 * (m->n_targets ? m->n_targets : 1) * sizeof *t);
-  size_t k;
+  size_t k, n = c->n_meas;
   twf_status st;
+  residual_range part[TWF_LSQ_THREADS_MAX];
+  pthread_t tid[TWF_LSQ_THREADS_MAX];
+  int nt, started = 0, i;
   if (t == NULL)
     return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
   for (k = 0; k < m->n_targets; k++)
     twf_v3_copy(m->targets[k].offset, t + 3 * k);
-  st = twf_accuracy_residuals(m, B, t, c, pos, rot, err);
+  nt = n_threads < 1 ? 1 : n_threads > TWF_LSQ_THREADS_MAX ? TWF_LSQ_THREADS_MAX : n_threads;
+  if ((size_t)nt > n / RESIDUALS_PER_THREAD_MIN)
+    nt = n / RESIDUALS_PER_THREAD_MIN > 1 ? (int)(n / RESIDUALS_PER_THREAD_MIN) : 1;
+  if (nt == 1) {
+    st = twf_accuracy_residuals(m, B, t, c, pos, rot, err);
+    free(t);
+    return st;
+  }
+  st = twf_accuracy_residuals_check(m, B, t, c, pos, rot, err);
+  if (st != TWF_OK) {
+    free(t);
+    return st;
+  }
+  for (i = 0; i < nt; i++) {
+    part[i].m = m;
+    part[i].B = B;
+    part[i].t = t;
+    part[i].c = c;
+    part[i].i0 = n * (size_t)i / (size_t)nt;
+    part[i].i1 = n * (size_t)(i + 1) / (size_t)nt;
+    part[i].pos = pos;
+    part[i].rot = rot;
+  }
+  for (i = 1; i < nt; i++) {
+    if (pthread_create(&tid[i], NULL, residual_worker, &part[i]) != 0)
+      break;
+    started++;
+  }
+  residual_worker(&part[0]);
+  /* a range whose thread could not start runs here */
+  for (i = started + 1; i < nt; i++)
+    residual_worker(&part[i]);
+  for (i = 1; i <= started; i++)
+    pthread_join(tid[i], NULL);
   free(t);
-  return st;
+  return TWF_OK;
 }
 
 /* ------------------------------------------------------------ the solver */

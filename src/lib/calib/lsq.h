@@ -102,10 +102,13 @@ twf_status twf_lsq_solve(twf_lsq_problem *pr, const unsigned char *keep, const t
                          double *value, twf_solve_report *rep, twf_error *err);
 
 /* Residuals of every measurement (fit and check) at model m and base B
- * with the model's own target offsets, through twf_accuracy_residuals:
- * pos[3 n_meas], rot[n_meas] (NaN for point rows). */
+ * with the model's own target offsets, as twf_accuracy_residuals gives
+ * them: pos[3 n_meas], rot[n_meas] (NaN for point rows). On up to
+ * n_threads threads (each a contiguous range of the measurements; every
+ * measurement's residual is computed alone, so any thread count gives the
+ * same bits). */
 twf_status twf_lsq_residuals(const twf_model *m, const twf_pose *B, const twf_campaign *c,
-                             double *pos, double *rot, twf_error *err);
+                             int n_threads, double *pos, double *rot, twf_error *err);
 
 /* ------------------------------------------------------------ trace */
 

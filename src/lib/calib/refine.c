@@ -22,6 +22,7 @@ twf_refine_options twf_refine_default_options(void)
   o.sigma_length = 0.0;
   o.screen = 1;
   o.robust_threshold = TWF_ROBUST_THRESHOLD_DEFAULT;
+  o.threads = 0;
   return o;
 }
 
@@ -124,6 +125,7 @@ static twf_status refine_traced(twf_model *m, const twf_campaign *c, const unsig
     return st;
   }
   memcpy(pr.base, base_in_tracker, pr.n_stations * sizeof *pr.base);
+  pr.n_threads = twf_lsq_threads(opt.threads);
   keep = calloc(pr.p ? pr.p : 1, 1);
   if (keep == NULL)
     st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");

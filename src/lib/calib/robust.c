@@ -75,7 +75,7 @@ twf_status twf_robust_screen(twf_lsq_problem *pr, twf_robust mode, double k, dou
   double s, s_rot;
   twf_status st = TWF_ERR_NOMEM;
   *changed = 0;
-  if (pos == NULL || rot == NULL || twf_lsq_residuals(pr->m, pr->base, c, pos, rot, NULL) != TWF_OK)
+  if (pos == NULL || rot == NULL || twf_lsq_residuals(pr->m, pr->base, c, pr->n_threads, pos, rot, NULL) != TWF_OK)
     goto done;
   for (i = 0; i < c->n_meas; i++)
     err_len[i] = sqrt(pos[3 * i] * pos[3 * i] + pos[3 * i + 1] * pos[3 * i + 1] +

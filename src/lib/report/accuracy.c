@@ -75,6 +75,18 @@ int twf_meas_residual(const twf_pose *T, const double t[3], const twf_measuremen
   return 1;
 }
 
+twf_status twf_accuracy_residuals_check(const twf_model *model, const twf_pose *base_in_tracker,
+                                        const double *target_offsets, const twf_campaign *campaign,
+                                        const double *pos_err, const double *angle_err, twf_error *err)
+{
+  if (model == NULL || base_in_tracker == NULL || campaign == NULL
+      || (pos_err == NULL && angle_err == NULL))
+    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
+                         "model, base pose, campaign and an output array "
+                         "must not be NULL");
+  return check_offsets(model, campaign, target_offsets, err);
+}
+
 twf_status twf_accuracy_residuals(const twf_model *model,
                                   const twf_pose *base_in_tracker,
                                   const double *target_offsets,
@@ -84,16 +96,10 @@ twf_status twf_accuracy_residuals(const twf_model *model,
 {
   double *scratch;
   const double *t;
-  size_t i, last_pose = SIZE_MAX;
-  twf_pose T; /* flange pose in the tracker frame of the current pose */
   twf_status st;
 
-  if (model == NULL || base_in_tracker == NULL || campaign == NULL
-      || (pos_err == NULL && angle_err == NULL))
-    return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, NULL,
-                         "model, base pose, campaign and an output array "
-                         "must not be NULL");
-  st = check_offsets(model, campaign, target_offsets, err);
+  st = twf_accuracy_residuals_check(model, base_in_tracker, target_offsets, campaign, pos_err,
+                                    angle_err, err);
   if (st != TWF_OK)
     return st;
   scratch = malloc((model->n_targets ? 3 * model->n_targets : 1) * sizeof *scratch);
@@ -101,7 +107,19 @@ twf_status twf_accuracy_residuals(const twf_model *model,
     return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL,
                          "out of memory for the residuals");
   t = offsets_or_model(model, target_offsets, scratch);
-  for (i = 0; i < campaign->n_meas; i++) {
+  twf_accuracy_residuals_range(model, base_in_tracker, t, campaign, 0, campaign->n_meas, pos_err,
+                               angle_err);
+  free(scratch);
+  return TWF_OK;
+}
+
+void twf_accuracy_residuals_range(const twf_model *model, const twf_pose *base_in_tracker,
+                                  const double *t, const twf_campaign *campaign, size_t i0,
+                                  size_t i1, double *pos_err, double *angle_err)
+{
+  size_t i, last_pose = SIZE_MAX;
+  twf_pose T; /* flange pose in the tracker frame of the current pose */
+  for (i = i0; i < i1; i++) {
     const twf_measurement *me = &campaign->meas[i];
     double pos[3], rot[3];
     int six_d;
@@ -118,8 +136,6 @@ twf_status twf_accuracy_residuals(const twf_model *model,
     if (angle_err != NULL)
       angle_err[i] = six_d ? twf_v3_norm(rot) : NAN;
   }
-  free(scratch);
-  return TWF_OK;
 }
 
 /* ------------------------------------------------------------------ */

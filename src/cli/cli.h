@@ -285,6 +285,9 @@ void cli_links_print(FILE *fp, const cli_links_table *t);
 json_t *cli_links_json(const cli_links_table *t);
 /* v, or 0 when |v| < zero (rounding left-overs); never -0. */
 double cli_clean(double v, double zero);
+/* v for printing with dec decimals: 0 when it prints as zero, so that a
+ * rounding left-over never shows as "-0.0000". */
+double cli_clean_shown(double v, int dec);
 /* The quaternion w x y z every output prints: w >= 0 (for w = 0, the
  * first nonzero component positive), components below 1e-12 as 0. */
 void cli_quat_of(const double R[3][3], double q[4]);

@@ -80,16 +80,17 @@ void cli_links_print(FILE *fp, const cli_links_table *t)
         continue;
       fprintf(fp, "  %4zu %-8s %-5s %-6s %14.*f %14.*f", r, row_label(t->model, r),
               row->form == TWF_LINK_FORM_BETA ? "beta" : "dh", twf_link_value_name((twf_link_value)v), dec,
-              cli_clean(shown(row->reference[v], v, u), 1e-12), dec, cli_clean(shown(row->value[v], v, u), 1e-12));
+              cli_clean_shown(shown(row->reference[v], v, u), dec), dec,
+              cli_clean_shown(shown(row->value[v], v, u), dec));
       /* a value the fit left open has no difference to show: it reflects
        * a frame or target convention, or the starting model's value */
       if (open)
         fprintf(fp, " %14s %12s", row->why[v] == TWF_LINK_NOT_FITTED ? "-" : "n/d",
                 row->why[v] == TWF_LINK_NOT_FITTED ? "-" : "n/d");
       else {
-        fprintf(fp, " %14.*f", dec, cli_clean(t->difference[5 * r + (size_t)v] / unit, 1e-12));
+        fprintf(fp, " %14.*f", dec, cli_clean_shown(t->difference[5 * r + (size_t)v] / unit, dec));
         if (t->with_std)
-          fprintf(fp, " %12.*f", dec, cli_clean(row->std[v] / unit, 1e-12));
+          fprintf(fp, " %12.*f", dec, cli_clean_shown(row->std[v] / unit, dec));
       }
       fprintf(fp, "  %s\n", note_of(row, v));
     }

@@ -281,6 +281,11 @@ double cli_clean(double v, double zero)
   return fabs(v) < zero ? 0.0 : v + 0.0;
 }
 
+double cli_clean_shown(double v, int dec)
+{
+  return fabs(v) < 0.5 * pow(10.0, -dec) ? 0.0 : v + 0.0;
+}
+
 void cli_quat_of(const double R[3][3], double q[4])
 {
   int k;

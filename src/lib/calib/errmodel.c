@@ -458,6 +458,30 @@ void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf
   }
 }
 
+void twf_errmodel_eval_flange(twf_errmodel *em, const twf_pose *base_in_tracker, size_t station,
+                              const twf_pose *flange_in_base, const unsigned char *need)
+{
+  size_t j;
+  em->station = station;
+  twf_pose_mul(base_in_tracker, flange_in_base, &em->flange);
+  em->q = NULL;
+  for (j = 0; j < em->n_params; j++) {
+    const twf_param *p = &em->params[j];
+    double *t = em->twists + 6 * j;
+    double e[6] = { 0, 0, 0, 0, 0, 0 };
+    int c;
+    if ((need != NULL && !need[j]) || p->group != TWF_GROUP_BASE)
+      continue;
+    if ((size_t)p->station != em->station) {
+      for (c = 0; c < 6; c++)
+        t[c] = 0.0;
+      continue;
+    }
+    e[p->component] = 1.0;
+    ad_apply(base_in_tracker, e, t);
+  }
+}
+
 void twf_errmodel_eval_station(twf_errmodel *em, const twf_model *m, const twf_pose *station_base,
                                size_t station, const double *q, twf_pose *flange_in_tracker)
 {

@@ -19,6 +19,14 @@ const twf_pose *twf_errmodel_flange(const twf_errmodel *em);
 void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf_pose *base_in_tracker,
                                  size_t station, const double *q, const unsigned char *need);
 
+/* The pose of twf_errmodel_eval_pose_some for a pass whose parameters
+ * are all base or target parameters, from the flange pose in the base
+ * frame (twf_model_fk_load) computed before: the flange base_in_tracker *
+ * flange_in_base and the base twists; the other twists are left as they
+ * were. */
+void twf_errmodel_eval_flange(twf_errmodel *em, const twf_pose *base_in_tracker, size_t station,
+                              const twf_pose *flange_in_base, const unsigned char *need);
+
 /* The orientation residual of twf_errmodel_orientation and the inverse
  * right Jacobian Jinv of SO(3) at it: the orientation rows are Jinv times
  * the rotation part of each parameter's twist. */

@@ -79,6 +79,8 @@ void twf_lsq_free(twf_lsq_problem *pr)
   free(pr->cacheg);
   free(pr->cache_cols);
   twf_model_free(pr->snap);
+  free(pr->flanges);
+  twf_model_free(pr->flange_model);
   free(pr->need);
   twf_model_free(pr->m);
   twf_model_free(pr->trial);
@@ -288,6 +290,7 @@ struct pass {
   double *acc;          /* the reduction */
   const twf_model *m;   /* cost pass */
   const twf_pose *B;
+  const twf_pose *flanges; /* the problem's flange poses at this pass's arm, or NULL */
   /* scheduling */
   pthread_mutex_t mu;
   pthread_cond_t cv;
@@ -402,6 +405,61 @@ static void pass_run(pass *ps)
   free(ps->slot_chunk);
   free(ps->slot_ready);
   ps->slots = NULL;
+}
+
+/* 1 when a and b give the same forward kinematics: joints, home, gravity
+ * and payloads (what twf_model_fk_load reads). */
+static int same_arm(const twf_model *a, const twf_model *b)
+{
+  return a->n_joints == b->n_joints && a->n_payloads == b->n_payloads &&
+         memcmp(a->joints, b->joints, a->n_joints * sizeof *a->joints) == 0 &&
+         memcmp(&a->home, &b->home, sizeof a->home) == 0 &&
+         memcmp(a->gravity, b->gravity, sizeof a->gravity) == 0 &&
+         (a->n_payloads == 0 || memcmp(a->payloads, b->payloads, a->n_payloads * sizeof *a->payloads) == 0);
+}
+
+/* The flange poses of every pose at arm m when the problem keeps them
+ * (see twf_lsq_problem), computed at the first pass at that arm; NULL
+ * otherwise, and when memory is short (the passes then compute them). */
+static const twf_pose *pass_flanges(twf_lsq_problem *pr, const twf_model *m)
+{
+  const twf_campaign *c = pr->c;
+  size_t pose;
+  unsigned fixed_arm = TWF_GROUP_BIT(TWF_GROUP_BASE) | TWF_GROUP_BIT(TWF_GROUP_TARGETS);
+  if ((pr->groups & ~fixed_arm) != 0 || c->n_poses == 0 || c->n_poses > TWF_LSQ_FLANGE_CACHE_POSES)
+    return NULL;
+  if (pr->flanges != NULL && same_arm(pr->flange_model, m))
+    return pr->flanges;
+  if (pr->flanges == NULL)
+    pr->flanges = malloc(c->n_poses * sizeof *pr->flanges);
+  if (pr->flange_model == NULL)
+    pr->flange_model = twf_model_copy(m);
+  else
+    twf_lsq_model_assign(pr->flange_model, m);
+  if (pr->flanges == NULL || pr->flange_model == NULL || pr->flange_model->n_payloads != m->n_payloads)
+    return NULL;
+  if (m->n_payloads > 0)
+    memcpy(pr->flange_model->payloads, m->payloads, m->n_payloads * sizeof *m->payloads);
+  memcpy(pr->flange_model->gravity, m->gravity, sizeof m->gravity);
+  for (pose = 0; pose < c->n_poses; pose++)
+    twf_model_fk_load(m, c->q + pose * pr->n_joints, twf_campaign_payload(c, pose), NULL,
+                      &pr->flanges[pose]);
+  return pr->flanges;
+}
+
+/* The error model at pose: the flange, and the twists of the pass's
+ * parameters. */
+static void pass_eval_pose(const pass *ps, twf_lsq_ws *ws, size_t pose)
+{
+  const twf_lsq_problem *pr = ps->pr;
+  const twf_campaign *c = pr->c;
+  size_t sta = twf_campaign_pose_station(c, pose);
+  if (ps->flanges != NULL) {
+    twf_errmodel_eval_flange(ws->em, &pr->base[sta], sta, &ps->flanges[pose], ps->need);
+    return;
+  }
+  twf_errmodel_set_payload(ws->em, twf_campaign_payload(c, pose));
+  twf_errmodel_eval_pose_some(ws->em, pr->m, &pr->base[sta], sta, c->q + pose * pr->n_joints, ps->need);
 }
 
 /* The columns of a pass (cols NULL: all p), described once. */
@@ -581,9 +639,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
     size_t t;
     if (!pose_active(pr, pose))
       continue;
-    size_t sta = twf_campaign_pose_station(c, pose);
-    twf_errmodel_set_payload(ws->em, twf_campaign_payload(c, pose));
-    twf_errmodel_eval_pose_some(ws->em, m, &pr->base[sta], sta, c->q + pose * pr->n_joints, ps->need);
+    pass_eval_pose(ps, ws, pose);
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
@@ -667,6 +723,7 @@ static double normal_pass(twf_lsq_problem *pr, const size_t *cols, size_t nc, do
   pass_columns(&ps, cols, nc);
   ps.slot_size = ps.ld * ps.ld + ps.ld + 1;
   ps.n_chunks = pass_chunks(pr);
+  ps.flanges = pass_flanges(pr, pr->m);
   ps.compute = normal_compute;
   ps.reduce = sum_reduce;
   ps.acc = pr->acc;
@@ -697,9 +754,7 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
     size_t t;
     if (!pose_active(pr, pose))
       continue;
-    size_t sta = twf_campaign_pose_station(c, pose);
-    twf_errmodel_set_payload(ws->em, twf_campaign_payload(c, pose));
-    twf_errmodel_eval_pose_some(ws->em, m, &pr->base[sta], sta, c->q + pose * pr->n_joints, ps->need);
+    pass_eval_pose(ps, ws, pose);
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
@@ -809,8 +864,11 @@ static void cost_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
       if (!twf_lsq_active(pr, i))
         continue;
       if (!done) {
-        twf_model_fk_load(m, c->q + pose * pr->n_joints, twf_campaign_payload(c, pose), ws->prefix,
-                          &F);
+        if (ps->flanges != NULL)
+          F = ps->flanges[pose];
+        else
+          twf_model_fk_load(m, c->q + pose * pr->n_joints, twf_campaign_payload(c, pose), ws->prefix,
+                            &F);
         twf_pose_mul(&ps->B[twf_campaign_pose_station(c, pose)], &F, &T);
         done = 1;
       }
@@ -837,6 +895,7 @@ static double cost_at(twf_lsq_problem *pr, const twf_model *m, const twf_pose *B
   ps.B = B;
   ps.slot_size = 1;
   ps.n_chunks = pass_chunks(pr);
+  ps.flanges = pass_flanges(pr, m);
   ps.compute = cost_compute;
   ps.reduce = sum_reduce;
   ps.acc = &acc;
@@ -899,6 +958,7 @@ void twf_lsq_factor(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *
   pass_columns(&ps, cols, nc);
   ps.slot_size = nc * nc;
   ps.n_chunks = pass_chunks(pr);
+  ps.flanges = pass_flanges(pr, pr->m);
   ps.compute = factor_compute;
   ps.reduce = factor_reduce;
   ps.acc = R;

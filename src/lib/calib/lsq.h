@@ -50,7 +50,17 @@ typedef struct twf_lsq_problem {
   double *cacheA, *cacheg, cache_cost;
   twf_pose cache_base[TWF_STATIONS_MAX];
   twf_model *snap;
+  /* Flange poses in the base frame of every pose (twf_model_fk_load), kept
+   * while the arm's geometry stays that of flange_model: for problems
+   * whose groups are base and targets only (the registration refinement),
+   * where every pass would otherwise repeat the same forward kinematics.
+   * NULL when not kept (other groups, or more than
+   * TWF_LSQ_FLANGE_CACHE_POSES poses: 96 bytes a pose). */
+  twf_pose *flanges;
+  twf_model *flange_model;
 } twf_lsq_problem;
+
+#define TWF_LSQ_FLANGE_CACHE_POSES 262144
 
 /* Set up the problem at model m (copied) for the parameter groups, over
  * the measurements flagged in use (borrowed: it must outlive the problem).

@@ -99,6 +99,158 @@ static void print_links(FILE *fp, const cli_links_table *t, int full_pose)
                     : "points-only calibration assumed: the targets absorb the flange link (--full-pose if not)");
 }
 
+/* What the report of one comparison shows (text and JSON). */
+typedef struct compare_view {
+  const char *const *inputs;     /* model A, model B */
+  const twf_model *a, *b;
+  const twf_campaign *joints;    /* the --joints file's configurations, or NULL */
+  const char *joints_path;
+  unsigned long long seed;       /* of the random configurations */
+  size_t n_cfg;
+  const double *q;               /* n_cfg x n_joints */
+  const twf_compare_result *res;
+  const twf_links *links;
+  const double *ldiff;
+  const tolerance *tol;          /* 3 */
+  int rejected, full_pose;
+  const cli_units *u;
+} compare_view;
+
+/* The text report of a comparison. */
+static void print_compare(FILE *txt, const compare_view *v)
+{
+  const cli_units *u = v->u;
+  size_t k;
+  int i;
+  char id[TWF_NAME_MAX];
+  size_t wc = v->res->worst_config, j;
+  double qa[4];
+  fprintf(txt, "twistfit %s compare\n", twf_version());
+  fprintf(txt, "model A: %s (%s, %zu joints)\n", v->inputs[0], v->a->name, v->a->n_joints);
+  fprintf(txt, "model B: %s (%s)\n", v->inputs[1], v->b->name);
+  if (v->joints != NULL)
+    fprintf(txt, "configurations: %zu, the rows of %s\n", v->n_cfg, v->joints_path);
+  else
+    fprintf(txt, "configurations: %zu, uniformly random within A's joint limits (seed %llu)\n", v->n_cfg, v->seed);
+  fprintf(txt, "tool points:");
+  for (k = 0; k < v->res->n_points; k++)
+    fprintf(txt, "%s %s", k ? "," : "", point_name(v->res, v->a, k));
+  fprintf(txt, v->res->point_target[0] < 0 ? " (no target has an offset in both models)\n"
+                                        : " (the targets with an offset in both models)\n");
+  if (v->res->aligned) {
+    double w[3];
+    twf_so3_log(v->res->b_to_a.R, w);
+    twf_rot_to_quat(v->res->b_to_a.R, qa);
+    fprintf(txt, "frames: B aligned to A by the best rigid fit of the predicted tool points: rotation %.*f %s, "
+                 "translation %.*f %s (quaternion_wxyz %.9f %.9f %.9f %.9f, position %.*f %.*f %.*f)\n",
+            u->adec, sqrt(w[0] * w[0] + w[1] * w[1] + w[2] * w[2]) / u->angle_si, u->angle, u->ldec,
+            sqrt(v->res->b_to_a.p[0] * v->res->b_to_a.p[0] + v->res->b_to_a.p[1] * v->res->b_to_a.p[1] +
+                 v->res->b_to_a.p[2] * v->res->b_to_a.p[2]) / u->length_si,
+            u->length, qa[0], qa[1], qa[2], qa[3], u->ldec, v->res->b_to_a.p[0] / u->length_si, u->ldec,
+            v->res->b_to_a.p[1] / u->length_si, u->ldec, v->res->b_to_a.p[2] / u->length_si);
+  } else {
+    fprintf(txt, "frames: as written (no alignment)\n");
+  }
+  fputc('\n', txt);
+  fprintf(txt, "Effect in the workspace: A against %sB\n", v->res->aligned ? "aligned " : "");
+  fprintf(txt, "  distance between the tool points, %s\n", u->length);
+  fprintf(txt, "  %-16s %7s %12s %12s %12s %12s\n", "point", "count", "mean", "rms", "p95", "max");
+  print_row(txt, "all", &v->res->position, u->length_si, u->ldec);
+  if (v->res->n_points > 1)
+    for (k = 0; k < v->res->n_points; k++)
+      print_row(txt, point_name(v->res, v->a, k), &v->res->point_position[k], u->length_si, u->ldec);
+  fprintf(txt, "  angle between the flange orientations, %s\n", u->angle);
+  print_row(txt, "flange", &v->res->angle, u->angle_si, u->adec);
+  config_id(v->joints, wc, id, sizeof id);
+  fprintf(txt, "worst configuration: %s: distance %.*f %s at %s, angle %.*f %s; joints (%s, %s):", id, u->ldec,
+          v->res->position.max / u->length_si, u->length, point_name(v->res, v->a, v->res->worst_point), u->adec,
+          v->res->worst_angle_rad / u->angle_si, u->angle, u->angle, u->length);
+  for (j = 0; j < v->a->n_joints; j++)
+    fprintf(txt, " %s %.6g", v->a->joints[j].name,
+            v->q[wc * v->a->n_joints + j] / (v->a->joints[j].type == TWF_JOINT_PRISMATIC ? u->length_si : u->angle_si));
+  fputc('\n', txt);
+  config_id(v->joints, v->res->angle.max_index, id, sizeof id);
+  fprintf(txt, "largest angle: %.*f %s at %s\n", u->adec, v->res->angle.max / u->angle_si, u->angle, id);
+  {
+    cli_links_table lt = links_table(v->links, v->ldiff, v->a, u);
+    print_links(txt, &lt, v->full_pose);
+  }
+  {
+    int any = 0;
+    for (i = 0; i < 3; i++)
+      any |= v->tol[i].limit > 0;
+    if (any) {
+      fprintf(txt, "\nAcceptance:\n");
+      for (i = 0; i < 3; i++)
+        if (v->tol[i].limit > 0)
+          fprintf(txt, "  %-10s %12.*f %s  limit %12.*f  %s\n", v->tol[i].name, v->tol[i].is_angle ? u->adec : u->ldec,
+                  v->tol[i].value / (v->tol[i].is_angle ? u->angle_si : u->length_si), v->tol[i].is_angle ? u->angle : u->length,
+                  v->tol[i].is_angle ? u->adec : u->ldec, v->tol[i].limit / (v->tol[i].is_angle ? u->angle_si : u->length_si),
+                  v->tol[i].value <= v->tol[i].limit ? "pass" : "FAIL");
+      fprintf(txt, "verdict: %s\n", v->rejected ? "REJECTED" : "ACCEPTED");
+    }
+  }
+  }
+
+/* The JSON report of a comparison (caller owns it). */
+static json_t *compare_json(const compare_view *v)
+{
+  const cli_units *u = v->u;
+  json_t *root;
+  size_t k;
+  int i;
+  json_t *pts = json_object(), *tols = json_object(), *wj = json_array();
+  char id[TWF_NAME_MAX];
+  size_t j, wc = v->res->worst_config;
+  root = json_object();
+  json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
+  json_object_set_new(root, "command", json_string("compare"));
+  json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u->length, "angle", u->angle));
+  json_object_set_new(root, "models", json_pack("{s:s, s:s}", "a", v->inputs[0], "b", v->inputs[1]));
+  json_object_set_new(root, "configurations",
+                      v->joints != NULL
+                          ? json_pack("{s:s, s:s, s:I}", "source", "joints", "file", v->joints_path, "count",
+                                      (json_int_t)v->n_cfg)
+                          : json_pack("{s:s, s:I, s:I}", "source", "random", "seed", (json_int_t)v->seed, "count",
+                                      (json_int_t)v->n_cfg));
+  json_object_set_new(root, "alignment",
+                      json_pack("{s:b, s:o}", "aligned", v->res->aligned, "b_to_a", cli_json_pose(&v->res->b_to_a, u)));
+  for (k = 0; k < v->res->n_points; k++)
+    json_object_set_new(pts, point_name(v->res, v->a, k), cli_json_stats(&v->res->point_position[k], u->length_si));
+  json_object_set_new(root, "position", cli_json_stats(&v->res->position, u->length_si));
+  json_object_set_new(root, "points", pts);
+  json_object_set_new(root, "orientation", cli_json_stats(&v->res->angle, u->angle_si));
+  for (j = 0; j < v->a->n_joints; j++)
+    json_array_append_new(
+        wj, cli_json_number(v->q[wc * v->a->n_joints + j] /
+                            (v->a->joints[j].type == TWF_JOINT_PRISMATIC ? u->length_si : u->angle_si)));
+  config_id(v->joints, wc, id, sizeof id);
+  json_object_set_new(root, "worst",
+                      json_pack("{s:s, s:I, s:s, s:o, s:o, s:o}", "configuration", id, "index", (json_int_t)wc,
+                                "point", point_name(v->res, v->a, v->res->worst_point), "distance",
+                                cli_json_number(v->res->position.max / u->length_si), "angle",
+                                cli_json_number(v->res->worst_angle_rad / u->angle_si), "joints", wj));
+  {
+    cli_links_table lt = links_table(v->links, v->ldiff, v->a, u);
+    json_t *lj = cli_links_json(&lt);
+    json_object_set_new(lj, "forms_from", json_string("a"));
+    json_object_set_new(root, "links", lj);
+  }
+  for (i = 0; i < 3; i++)
+    if (v->tol[i].limit > 0)
+      json_object_set_new(tols, v->tol[i].name,
+                          json_pack("{s:o, s:o, s:b}", "limit",
+                                    cli_json_number(v->tol[i].limit / (v->tol[i].is_angle ? u->angle_si : u->length_si)),
+                                    "value",
+                                    cli_json_number(v->tol[i].value / (v->tol[i].is_angle ? u->angle_si : u->length_si)),
+                                    "pass", v->tol[i].value <= v->tol[i].limit));
+  json_object_set_new(root, "acceptance",
+                      json_pack("{s:o, s:s}", "tolerances", tols, "verdict",
+                                json_object_size(tols) == 0 ? "none"
+                                : v->rejected ? "rejected" : "accepted"));
+  return root;
+}
+
 static int run_compare(int argc, char **argv)
 {
   static const struct option longopts[] = {
@@ -139,7 +291,7 @@ static int run_compare(int argc, char **argv)
   cli_urdf_links urdf_links = { { NULL }, 0 };
   twf_error err;
   double *q = NULL;
-  size_t n_cfg = 0, k;
+  size_t n_cfg = 0;
   cli_units u;
   FILE *txt = stdout;
   json_t *root = NULL;
@@ -275,131 +427,28 @@ static int run_compare(int argc, char **argv)
     if (tol[i].limit > 0 && !(tol[i].value <= tol[i].limit))
       status = TWF_EXIT_REJECTED;
 
-  /* text report */
   {
-    char id[TWF_NAME_MAX];
-    size_t wc = res->worst_config, j;
-    double qa[4];
-    fprintf(txt, "twistfit %s compare\n", twf_version());
-    fprintf(txt, "model A: %s (%s, %zu joints)\n", inputs[0], a->name, a->n_joints);
-    fprintf(txt, "model B: %s (%s)\n", inputs[1], b->name);
-    if (joints != NULL)
-      fprintf(txt, "configurations: %zu, the rows of %s\n", n_cfg, joints_path);
-    else
-      fprintf(txt, "configurations: %zu, uniformly random within A's joint limits (seed %llu)\n", n_cfg, seed);
-    fprintf(txt, "tool points:");
-    for (k = 0; k < res->n_points; k++)
-      fprintf(txt, "%s %s", k ? "," : "", point_name(res, a, k));
-    fprintf(txt, res->point_target[0] < 0 ? " (no target has an offset in both models)\n"
-                                          : " (the targets with an offset in both models)\n");
-    if (res->aligned) {
-      double w[3];
-      twf_so3_log(res->b_to_a.R, w);
-      twf_rot_to_quat(res->b_to_a.R, qa);
-      fprintf(txt, "frames: B aligned to A by the best rigid fit of the predicted tool points: rotation %.*f %s, "
-                   "translation %.*f %s (quaternion_wxyz %.9f %.9f %.9f %.9f, position %.*f %.*f %.*f)\n",
-              u.adec, sqrt(w[0] * w[0] + w[1] * w[1] + w[2] * w[2]) / u.angle_si, u.angle, u.ldec,
-              sqrt(res->b_to_a.p[0] * res->b_to_a.p[0] + res->b_to_a.p[1] * res->b_to_a.p[1] +
-                   res->b_to_a.p[2] * res->b_to_a.p[2]) / u.length_si,
-              u.length, qa[0], qa[1], qa[2], qa[3], u.ldec, res->b_to_a.p[0] / u.length_si, u.ldec,
-              res->b_to_a.p[1] / u.length_si, u.ldec, res->b_to_a.p[2] / u.length_si);
-    } else {
-      fprintf(txt, "frames: as written (no alignment)\n");
-    }
-    fputc('\n', txt);
-    fprintf(txt, "Effect in the workspace: A against %sB\n", res->aligned ? "aligned " : "");
-    fprintf(txt, "  distance between the tool points, %s\n", u.length);
-    fprintf(txt, "  %-16s %7s %12s %12s %12s %12s\n", "point", "count", "mean", "rms", "p95", "max");
-    print_row(txt, "all", &res->position, u.length_si, u.ldec);
-    if (res->n_points > 1)
-      for (k = 0; k < res->n_points; k++)
-        print_row(txt, point_name(res, a, k), &res->point_position[k], u.length_si, u.ldec);
-    fprintf(txt, "  angle between the flange orientations, %s\n", u.angle);
-    print_row(txt, "flange", &res->angle, u.angle_si, u.adec);
-    config_id(joints, wc, id, sizeof id);
-    fprintf(txt, "worst configuration: %s: distance %.*f %s at %s, angle %.*f %s; joints (%s, %s):", id, u.ldec,
-            res->position.max / u.length_si, u.length, point_name(res, a, res->worst_point), u.adec,
-            res->worst_angle_rad / u.angle_si, u.angle, u.angle, u.length);
-    for (j = 0; j < a->n_joints; j++)
-      fprintf(txt, " %s %.6g", a->joints[j].name,
-              q[wc * a->n_joints + j] / (a->joints[j].type == TWF_JOINT_PRISMATIC ? u.length_si : u.angle_si));
-    fputc('\n', txt);
-    config_id(joints, res->angle.max_index, id, sizeof id);
-    fprintf(txt, "largest angle: %.*f %s at %s\n", u.adec, res->angle.max / u.angle_si, u.angle, id);
-    {
-      cli_links_table lt = links_table(&links, ldiff, a, &u);
-      print_links(txt, &lt, full_pose);
-    }
-    {
-      int any = 0;
-      for (i = 0; i < 3; i++)
-        any |= tol[i].limit > 0;
-      if (any) {
-        fprintf(txt, "\nAcceptance:\n");
-        for (i = 0; i < 3; i++)
-          if (tol[i].limit > 0)
-            fprintf(txt, "  %-10s %12.*f %s  limit %12.*f  %s\n", tol[i].name, tol[i].is_angle ? u.adec : u.ldec,
-                    tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si), tol[i].is_angle ? u.angle : u.length,
-                    tol[i].is_angle ? u.adec : u.ldec, tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si),
-                    tol[i].value <= tol[i].limit ? "pass" : "FAIL");
-        fprintf(txt, "verdict: %s\n", status == TWF_EXIT_REJECTED ? "REJECTED" : "ACCEPTED");
-      }
-    }
-  }
-
-  if (json_path != NULL) {
-    json_t *pts = json_object(), *tols = json_object(), *wj = json_array();
-    char id[TWF_NAME_MAX];
-    size_t j, wc = res->worst_config;
-    root = json_object();
-    json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
-    json_object_set_new(root, "command", json_string("compare"));
-    json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
-    json_object_set_new(root, "models", json_pack("{s:s, s:s}", "a", inputs[0], "b", inputs[1]));
-    json_object_set_new(root, "configurations",
-                        joints != NULL
-                            ? json_pack("{s:s, s:s, s:I}", "source", "joints", "file", joints_path, "count",
-                                        (json_int_t)n_cfg)
-                            : json_pack("{s:s, s:I, s:I}", "source", "random", "seed", (json_int_t)seed, "count",
-                                        (json_int_t)n_cfg));
-    json_object_set_new(root, "alignment",
-                        json_pack("{s:b, s:o}", "aligned", res->aligned, "b_to_a", cli_json_pose(&res->b_to_a, &u)));
-    for (k = 0; k < res->n_points; k++)
-      json_object_set_new(pts, point_name(res, a, k), cli_json_stats(&res->point_position[k], u.length_si));
-    json_object_set_new(root, "position", cli_json_stats(&res->position, u.length_si));
-    json_object_set_new(root, "points", pts);
-    json_object_set_new(root, "orientation", cli_json_stats(&res->angle, u.angle_si));
-    for (j = 0; j < a->n_joints; j++)
-      json_array_append_new(
-          wj, cli_json_number(q[wc * a->n_joints + j] /
-                              (a->joints[j].type == TWF_JOINT_PRISMATIC ? u.length_si : u.angle_si)));
-    config_id(joints, wc, id, sizeof id);
-    json_object_set_new(root, "worst",
-                        json_pack("{s:s, s:I, s:s, s:o, s:o, s:o}", "configuration", id, "index", (json_int_t)wc,
-                                  "point", point_name(res, a, res->worst_point), "distance",
-                                  cli_json_number(res->position.max / u.length_si), "angle",
-                                  cli_json_number(res->worst_angle_rad / u.angle_si), "joints", wj));
-    {
-      cli_links_table lt = links_table(&links, ldiff, a, &u);
-      json_t *lj = cli_links_json(&lt);
-      json_object_set_new(lj, "forms_from", json_string("a"));
-      json_object_set_new(root, "links", lj);
-    }
-    for (i = 0; i < 3; i++)
-      if (tol[i].limit > 0)
-        json_object_set_new(tols, tol[i].name,
-                            json_pack("{s:o, s:o, s:b}", "limit",
-                                      cli_json_number(tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si)),
-                                      "value",
-                                      cli_json_number(tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si)),
-                                      "pass", tol[i].value <= tol[i].limit));
-    json_object_set_new(root, "acceptance",
-                        json_pack("{s:o, s:s}", "tolerances", tols, "verdict",
-                                  json_object_size(tols) == 0 ? "none"
-                                  : status == TWF_EXIT_REJECTED ? "rejected" : "accepted"));
-    {
+    compare_view v;
+    v.inputs = inputs;
+    v.a = a;
+    v.b = b;
+    v.joints = joints;
+    v.joints_path = joints_path;
+    v.seed = seed;
+    v.n_cfg = n_cfg;
+    v.q = q;
+    v.res = res;
+    v.links = &links;
+    v.ldiff = ldiff;
+    v.tol = tol;
+    v.rejected = status == TWF_EXIT_REJECTED;
+    v.full_pose = full_pose;
+    v.u = &u;
+    print_compare(txt, &v);
+    if (json_path != NULL) {
       cli_put put;
       int w;
+      root = compare_json(&v);
       put.path = json_path;
       put.put = cli_put_json;
       put.ctx = root;

@@ -128,6 +128,67 @@ static void print_plan(FILE *fp, const twf_plan_result *r, const twf_plan_option
   (void)m;
 }
 
+/* The --instrument options: one position (one station), or several, each
+ * NAME=X,Y,Z or a bare position named S1, S2, ... in the order given;
+ * into po (instruments[] and station_names[] hold them). */
+static int parse_instruments(const char *const *text, size_t n, const cli_units *u,
+                             char station_names[][TWF_NAME_MAX], double *instruments, twf_plan_options *po)
+{
+  int status = TWF_EXIT_OK;
+  if (n == 1 && strchr(text[0], '=') == NULL) {
+    po->has_instrument = 1;
+    return pcli_parse_vector("plan", "--instrument", text[0], u->length_si, po->instrument);
+  }
+  if (n > 0) {
+    size_t k, l;
+    for (k = 0; k < n; k++) {
+      const char *eq = strchr(text[k], '='), *vec = eq ? eq + 1 : text[k];
+      if (eq != NULL) {
+        size_t len = (size_t)(eq - text[k]);
+        if (len >= TWF_NAME_MAX)
+          return cli_usage_error("plan", "--instrument: the station name is too long");
+        memcpy(station_names[k], text[k], len);
+        station_names[k][len] = '\0';
+      } else {
+        snprintf(station_names[k], TWF_NAME_MAX, "S%zu", k + 1);
+      }
+      if (twf_station_name_check(station_names[k]) != 0)
+        return cli_usage_error("plan", "--instrument: station name '%s' is not valid (letters, digits, "
+                               "'_', '-' and '.')", station_names[k]);
+      for (l = 0; l < k; l++)
+        if (strcmp(station_names[l], station_names[k]) == 0)
+          return cli_usage_error("plan", "--instrument: station '%s' is given twice", station_names[k]);
+      if ((status = pcli_parse_vector("plan", "--instrument", vec, u->length_si, instruments + 3 * k)) != 0)
+        return status;
+    }
+    po->n_instruments = n;
+    po->instruments = instruments;
+  }
+  return status;
+}
+
+/* The JSON of a plan (caller owns it). */
+static json_t *plan_json(const twf_plan_result *res, const twf_plan_options *po, const twf_model *model,
+                         const cli_units *u)
+{
+  json_t *pl = json_object(), *root = json_object();
+  json_object_set_new(pl, "criterion", json_string(twf_plan_criterion_name(po->criterion)));
+  json_object_set_new(pl, "score", cli_json_number(po->criterion == TWF_PLAN_WORKSPACE ? res->score / u->length_si
+                                                                                       : res->score));
+  json_object_set_new(pl, "score_greedy", cli_json_number(po->criterion == TWF_PLAN_WORKSPACE
+                                                              ? res->score_greedy / u->length_si
+                                                              : res->score_greedy));
+  json_object_set_new(pl, "candidates", json_integer((json_int_t)res->n_candidates));
+  json_object_set_new(pl, "feasible", json_integer((json_int_t)res->n_feasible));
+  json_object_set_new(pl, "excursions_accepted", json_integer((json_int_t)res->exchanges));
+  json_object_set_new(pl, "travel_rad", cli_json_number(res->travel));
+  json_object_set_new(root, "plan", pl);
+  json_object_set_new(root, "assessment", pcli_json_assessment(res->assessment, model, u));
+  json_object_set_new(root, "length_unit", json_string(u->length));
+  json_object_set_new(root, "angle_unit", json_string(u->angle));
+  return root;
+}
+
 static int run_plan(int argc, char **argv)
 {
   static const struct option longopts[] = {
@@ -290,42 +351,8 @@ static int run_plan(int argc, char **argv)
     goto done;
   po.assess = me.opt;
   po.seed = me.opt.calib.seed;
-  if (n_instruments == 1 && strchr(instrument, '=') == NULL) {
-    po.has_instrument = 1;
-    if ((status = pcli_parse_vector("plan", "--instrument", instrument, u.length_si, po.instrument)) != 0)
-      goto done;
-  } else if (n_instruments > 0) {
-    /* several stations, named NAME= or S1, S2, ... in the order given */
-    size_t k, l;
-    for (k = 0; k < n_instruments; k++) {
-      const char *eq = strchr(instrument_text[k], '='), *vec = eq ? eq + 1 : instrument_text[k];
-      if (eq != NULL) {
-        size_t len = (size_t)(eq - instrument_text[k]);
-        if (len >= TWF_NAME_MAX) {
-          status = cli_usage_error("plan", "--instrument: the station name is too long");
-          goto done;
-        }
-        memcpy(station_names[k], instrument_text[k], len);
-        station_names[k][len] = '\0';
-      } else {
-        snprintf(station_names[k], TWF_NAME_MAX, "S%zu", k + 1);
-      }
-      if (twf_station_name_check(station_names[k]) != 0) {
-        status = cli_usage_error("plan", "--instrument: station name '%s' is not valid (letters, digits, "
-                                 "'_', '-' and '.')", station_names[k]);
-        goto done;
-      }
-      for (l = 0; l < k; l++)
-        if (strcmp(station_names[l], station_names[k]) == 0) {
-          status = cli_usage_error("plan", "--instrument: station '%s' is given twice", station_names[k]);
-          goto done;
-        }
-      if ((status = pcli_parse_vector("plan", "--instrument", vec, u.length_si, instruments + 3 * k)) != 0)
-        goto done;
-    }
-    po.n_instruments = n_instruments;
-    po.instruments = instruments;
-  }
+  if ((status = parse_instruments(instrument_text, n_instruments, &u, station_names, instruments, &po)) != 0)
+    goto done;
   if (rmin != NULL && (status = cli_parse_bounded("plan", "--range-min", rmin, u.length_si, u.length, 0.0, 1e3,
                                                   &po.range_min)) != 0)
     goto done;
@@ -393,24 +420,8 @@ static int run_plan(int argc, char **argv)
     pj.comment = comment;
     pj.station = res->station;
     pj.station_names = (const char (*)[TWF_NAME_MAX])station_names;
-    if (me.json != NULL) {
-      json_t *pl = json_object();
-      root = json_object();
-      json_object_set_new(pl, "criterion", json_string(twf_plan_criterion_name(po.criterion)));
-      json_object_set_new(pl, "score", cli_json_number(po.criterion == TWF_PLAN_WORKSPACE ? res->score / u.length_si
-                                                                                          : res->score));
-      json_object_set_new(pl, "score_greedy", cli_json_number(po.criterion == TWF_PLAN_WORKSPACE
-                                                                  ? res->score_greedy / u.length_si
-                                                                  : res->score_greedy));
-      json_object_set_new(pl, "candidates", json_integer((json_int_t)res->n_candidates));
-      json_object_set_new(pl, "feasible", json_integer((json_int_t)res->n_feasible));
-      json_object_set_new(pl, "excursions_accepted", json_integer((json_int_t)res->exchanges));
-      json_object_set_new(pl, "travel_rad", cli_json_number(res->travel));
-      json_object_set_new(root, "plan", pl);
-      json_object_set_new(root, "assessment", pcli_json_assessment(res->assessment, model, &u));
-      json_object_set_new(root, "length_unit", json_string(u.length));
-      json_object_set_new(root, "angle_unit", json_string(u.angle));
-    }
+    if (me.json != NULL)
+      root = plan_json(res, &po, model, &u);
     puts[0] = (cli_put){ output != NULL ? output : "-", pcli_put_joints, &pj };
     puts[1] = (cli_put){ me.json, cli_put_json, root };
     status = cli_write_outputs(puts, 2, force, inputs);

@@ -786,6 +786,100 @@ static void meta_set_short(twf_model *m, const char *key, const char *value)
   twf_model_meta_set(m, key, buf);
 }
 
+/* The command line as typed (before getopt reorders argv), cut to n - 1
+ * bytes. */
+static void command_line_of(int argc, char **argv, char *cmdline, size_t n)
+{
+  size_t used = 0;
+  int k;
+  cmdline[0] = '\0';
+  for (k = 0; k < argc && used + 2 < n; k++) {
+    int w = snprintf(cmdline + used, n - used, "%s%s", k ? " " : "twistfit ", argv[k]);
+    if (w < 0)
+      break;
+    used = used + (size_t)w < n ? used + (size_t)w : n - 1;
+  }
+}
+
+/* The metadata of the as-built model: the earlier records of a model that
+ * was itself calibrated stay, numbered, and this run's is added (when it
+ * was made, by what command from which inputs, what was fitted, the
+ * figures and the verdict). */
+static int record_run(twf_calib_result *res, const cli_units *u, const char *created, const char *cmdline,
+                      const digest *dg, size_t n_dg, int write_anyway)
+{
+  const twf_accuracy_summary *before = res->accuracy_before, *after = res->accuracy_after;
+  twf_error err;
+  size_t i;
+  char key[TWF_NAME_MAX], val[256];
+  long record_no = 0;
+  twf_error_clear(&err);
+  if (twf_asbuilt_record_push(res->asbuilt, &record_no, &err) != TWF_OK)
+    return cli_report_error(&err);
+  twf_model_meta_set(res->asbuilt, "created", created);
+  twf_model_meta_set(res->asbuilt, "tool", "twistfit " PACKAGE_VERSION);
+  meta_set_short(res->asbuilt, "command", cmdline);
+  if (record_no > 0) {
+    snprintf(val, sizeof val, "record%ld (the starting model's own record)", record_no);
+    twf_model_meta_set(res->asbuilt, "started_from", val);
+  }
+  for (i = 0; i < n_dg; i++) {
+    snprintf(key, sizeof key, "input%zu", i + 1);
+    meta_set_short(res->asbuilt, key, dg[i].path);
+    snprintf(key, sizeof key, "input%zu_sha256", i + 1);
+    twf_model_meta_set(res->asbuilt, key, dg[i].hex);
+  }
+  groups_text(res->groups, val, sizeof val);
+  twf_model_meta_set(res->asbuilt, "fitted", val);
+  /* the figures over the measurements the fit kept (the report's) */
+  snprintf(val, sizeof val, "%.6g %s", before->position[TWF_SET_FIT].rms / u->length_si, u->length);
+  twf_model_meta_set(res->asbuilt, "rms_before_fit", val);
+  snprintf(val, sizeof val, "%.6g %s", after->position[TWF_SET_FIT].rms / u->length_si, u->length);
+  twf_model_meta_set(res->asbuilt, "rms_after_fit", val);
+  snprintf(val, sizeof val, "%zu", res->n_dropped);
+  twf_model_meta_set(res->asbuilt, "outliers_dropped", val);
+  if (after->position[TWF_SET_CHECK].count > 0) {
+    snprintf(val, sizeof val, "%.6g %s", before->position[TWF_SET_CHECK].rms / u->length_si, u->length);
+    twf_model_meta_set(res->asbuilt, "rms_before_check", val);
+    snprintf(val, sizeof val, "%.6g %s", after->position[TWF_SET_CHECK].rms / u->length_si, u->length);
+    twf_model_meta_set(res->asbuilt, "rms_after_check", val);
+    snprintf(val, sizeof val, "%zu", res->n_check_flagged);
+    twf_model_meta_set(res->asbuilt, "check_flagged", val);
+  }
+  snprintf(val, sizeof val, "%s (%s RMS %.6g -> %.6g %s)", twf_calib_verdict_name(res->verdict),
+           twf_verdict_basis_name(res->verdict_basis), res->verdict_before.rms / u->length_si,
+           res->verdict_after.rms / u->length_si, u->length);
+  twf_model_meta_set(res->asbuilt, "verdict", val);
+  {
+    /* the weak parameters by name, and those the poses could not determine */
+    size_t used = 0, k, nw = 0, nd = 0;
+    int pass;
+    for (pass = 0; pass < 2; pass++) {
+      used = 0;
+      val[0] = '\0';
+      for (k = 0; k < res->n_params; k++) {
+        const twf_param_result *p = &res->params[k];
+        int w;
+        if (pass == 0 ? !p->weak : p->status != TWF_PARAM_FIXED_DATA)
+          continue;
+        pass == 0 ? nw++ : nd++;
+        w = snprintf(val + used, sizeof val - used, "%s%s", used ? ", " : "", p->param.name);
+        if (w < 0 || used + (size_t)w >= sizeof val - 8) {
+          snprintf(val + used, sizeof val - used, ", ...");
+          break;
+        }
+        used += (size_t)w;
+      }
+      if ((pass == 0 ? nw : nd) > 0)
+        meta_set_short(res->asbuilt, pass == 0 ? "weak_parameters" : "undetermined_parameters", val);
+    }
+  }
+  if (res->verdict == TWF_VERDICT_DO_NOT_USE && write_anyway)
+    twf_model_meta_set(res->asbuilt, "written_anyway",
+                       "yes: the report said do not use this model (--write-anyway)");
+  return TWF_EXIT_OK;
+}
+
 static int run_calibrate(int argc, char **argv)
 {
   static const struct option longopts[] = {
@@ -822,7 +916,6 @@ static int run_calibrate(int argc, char **argv)
   twf_calib_result *res = NULL;
   twf_warnings warnings;
   twf_error err;
-  const twf_accuracy_summary *before, *after;
   json_t *root = NULL;
   digest dg[6];
   size_t n_dg = 0, i, n_reader_warnings = 0, n_resample = 0;
@@ -834,18 +927,7 @@ static int run_calibrate(int argc, char **argv)
   cli_inputs_init(&in);
   twf_warnings_init(&warnings);
   twf_warnings_init(&resample_w);
-  /* the command line as typed, before getopt reorders argv */
-  {
-    size_t used = 0;
-    int k;
-    cmdline[0] = '\0';
-    for (k = 0; k < argc && used + 2 < sizeof cmdline; k++) {
-      int w = snprintf(cmdline + used, sizeof cmdline - used, "%s%s", k ? " " : "twistfit ", argv[k]);
-      if (w < 0)
-        break;
-      used = used + (size_t)w < sizeof cmdline ? used + (size_t)w : sizeof cmdline - 1;
-    }
-  }
+  command_line_of(argc, argv, cmdline, sizeof cmdline);
   optind = 0;
   opterr = 0;
   while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
@@ -1023,80 +1105,9 @@ static int run_calibrate(int argc, char **argv)
     goto done;
   }
   cli_print_trace(&res->trace);
-  before = res->accuracy_before;
-  after = res->accuracy_after;
 
-  /* metadata of the as-built model: the earlier records of a model that
-   * was itself calibrated stay, numbered, and this run's is added */
-  {
-    char key[TWF_NAME_MAX], val[256];
-    long record_no = 0;
-    if (twf_asbuilt_record_push(res->asbuilt, &record_no, &err) != TWF_OK) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    twf_model_meta_set(res->asbuilt, "created", created);
-    twf_model_meta_set(res->asbuilt, "tool", "twistfit " PACKAGE_VERSION);
-    meta_set_short(res->asbuilt, "command", cmdline);
-    if (record_no > 0) {
-      snprintf(val, sizeof val, "record%ld (the starting model's own record)", record_no);
-      twf_model_meta_set(res->asbuilt, "started_from", val);
-    }
-    for (i = 0; i < n_dg; i++) {
-      snprintf(key, sizeof key, "input%zu", i + 1);
-      meta_set_short(res->asbuilt, key, dg[i].path);
-      snprintf(key, sizeof key, "input%zu_sha256", i + 1);
-      twf_model_meta_set(res->asbuilt, key, dg[i].hex);
-    }
-    groups_text(res->groups, val, sizeof val);
-    twf_model_meta_set(res->asbuilt, "fitted", val);
-    /* the figures over the measurements the fit kept (the report's) */
-    snprintf(val, sizeof val, "%.6g %s", before->position[TWF_SET_FIT].rms / u.length_si, u.length);
-    twf_model_meta_set(res->asbuilt, "rms_before_fit", val);
-    snprintf(val, sizeof val, "%.6g %s", after->position[TWF_SET_FIT].rms / u.length_si, u.length);
-    twf_model_meta_set(res->asbuilt, "rms_after_fit", val);
-    snprintf(val, sizeof val, "%zu", res->n_dropped);
-    twf_model_meta_set(res->asbuilt, "outliers_dropped", val);
-    if (after->position[TWF_SET_CHECK].count > 0) {
-      snprintf(val, sizeof val, "%.6g %s", before->position[TWF_SET_CHECK].rms / u.length_si, u.length);
-      twf_model_meta_set(res->asbuilt, "rms_before_check", val);
-      snprintf(val, sizeof val, "%.6g %s", after->position[TWF_SET_CHECK].rms / u.length_si, u.length);
-      twf_model_meta_set(res->asbuilt, "rms_after_check", val);
-      snprintf(val, sizeof val, "%zu", res->n_check_flagged);
-      twf_model_meta_set(res->asbuilt, "check_flagged", val);
-    }
-    snprintf(val, sizeof val, "%s (%s RMS %.6g -> %.6g %s)", twf_calib_verdict_name(res->verdict),
-             twf_verdict_basis_name(res->verdict_basis), res->verdict_before.rms / u.length_si,
-             res->verdict_after.rms / u.length_si, u.length);
-    twf_model_meta_set(res->asbuilt, "verdict", val);
-    {
-      /* the weak parameters by name, and those the poses could not determine */
-      size_t used = 0, k, nw = 0, nd = 0;
-      int pass;
-      for (pass = 0; pass < 2; pass++) {
-        used = 0;
-        val[0] = '\0';
-        for (k = 0; k < res->n_params; k++) {
-          const twf_param_result *p = &res->params[k];
-          int w;
-          if (pass == 0 ? !p->weak : p->status != TWF_PARAM_FIXED_DATA)
-            continue;
-          pass == 0 ? nw++ : nd++;
-          w = snprintf(val + used, sizeof val - used, "%s%s", used ? ", " : "", p->param.name);
-          if (w < 0 || used + (size_t)w >= sizeof val - 8) {
-            snprintf(val + used, sizeof val - used, ", ...");
-            break;
-          }
-          used += (size_t)w;
-        }
-        if ((pass == 0 ? nw : nd) > 0)
-          meta_set_short(res->asbuilt, pass == 0 ? "weak_parameters" : "undetermined_parameters", val);
-      }
-    }
-    if (res->verdict == TWF_VERDICT_DO_NOT_USE && write_anyway)
-      twf_model_meta_set(res->asbuilt, "written_anyway",
-                         "yes: the report said do not use this model (--write-anyway)");
-  }
+  if ((status = record_run(res, &u, created, cmdline, dg, n_dg, write_anyway)) != TWF_EXIT_OK)
+    goto done;
 
   /* a model the report calls worse than the start is not written unless
    * asked for by name */

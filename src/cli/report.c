@@ -44,7 +44,7 @@ void cli_meas_where(const cli_inputs *in, const twf_measurement *ms, char *buf, 
   /* in the two-file form the line is in the points file */
   const char *file = in->data_path ? in->data_path : in->points_path;
   if (ms->line > 0)
-    snprintf(buf, n, "%s:%ld", file ? file : "?", ms->line);
+    snprintf(buf, n, "%s:%lu", file ? file : "?", (unsigned long)ms->line);
   else
     snprintf(buf, n, "%s", file ? file : "?");
 }

@@ -625,7 +625,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
         c0 = bt.c + 3 * bt.n * ld;
         w0 = bt.wc + 3 * bt.n * ld;
         r = bt.r[bt.n];
-        twf_quat_to_rot(ms->quat, Rm);
+        twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
         twf_errmodel_orientation_jinv(ws->em, Rm, r, Ji);
         w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
         *cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
@@ -731,7 +731,7 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
       if (ms->has_orientation) {
         double Rm[3][3], Ji[3][3], ro[3];
         sw = sqrt(pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot);
-        twf_quat_to_rot(ms->quat, Rm);
+        twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
         twf_errmodel_orientation_jinv(ws->em, Rm, ro, Ji);
         for (a = 0; a < ps->nc; a++) {
           const double *e = tw + 6 * ps->cd[a].j;
@@ -815,7 +815,7 @@ static void cost_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
         done = 1;
       }
       w = pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i];
-      if (twf_meas_residual(&T, m->targets[ms->target].offset, ms, r, v)) {
+      if (twf_meas_residual(&T, m->targets[ms->target].offset, ms, twf_campaign_meas_quat(c, i), r, v)) {
         cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
         w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
         cost += 0.5 * w * twf_v3_dot(v, v);

@@ -608,7 +608,7 @@ twf_status twf_register_campaign(const twf_model *model,
       st = twf_error_set(err, TWF_ERR_INVALID, NULL, me->line, 0, NULL,
                          "measurement %zu refers to pose %zu / target %zu, "
                          "beyond the campaign's %zu poses or the model's "
-                         "%zu targets", i, me->pose, me->target,
+                         "%zu targets", i, (size_t)me->pose, (size_t)me->target,
                          campaign->n_poses, nt);
       goto done;
     }

@@ -36,7 +36,7 @@ static twf_status check_offsets(const twf_model *m, const twf_campaign *c,
       return twf_error_set(err, TWF_ERR_INVALID, NULL, me->line, 0, NULL,
                            "measurement %zu refers to pose %zu / target %zu, "
                            "beyond the campaign's %zu poses or the model's "
-                           "%zu targets", i, me->pose, me->target, c->n_poses,
+                           "%zu targets", i, (size_t)me->pose, (size_t)me->target, c->n_poses,
                            m->n_targets);
     if (given == NULL && !m->targets[me->target].offset_known)
       return twf_error_set(err, TWF_ERR_MISSING, NULL, me->line, 0,
@@ -57,7 +57,7 @@ static twf_status check_offsets(const twf_model *m, const twf_campaign *c,
 /* ------------------------------------------------------------------ */
 
 int twf_meas_residual(const twf_pose *T, const double t[3], const twf_measurement *ms,
-                      double pos[3], double rot[3])
+                      const double quat[4], double pos[3], double rot[3])
 {
   double y[3], Rm[3][3], E[3][3];
   int a, b;
@@ -67,7 +67,7 @@ int twf_meas_residual(const twf_pose *T, const double t[3], const twf_measuremen
   pos[2] = ms->pos[2] - y[2];
   if (!ms->has_orientation)
     return 0;
-  twf_quat_to_rot(ms->quat, Rm);
+  twf_quat_to_rot(quat, Rm);
   for (a = 0; a < 3; a++)
     for (b = 0; b < 3; b++)
       E[a][b] = Rm[a][0] * T->R[b][0] + Rm[a][1] * T->R[b][1] + Rm[a][2] * T->R[b][2];
@@ -112,7 +112,7 @@ twf_status twf_accuracy_residuals(const twf_model *model,
       twf_pose_mul(&base_in_tracker[twf_campaign_pose_station(campaign, me->pose)], &F, &T);
       last_pose = me->pose;
     }
-    six_d = twf_meas_residual(&T, t + 3 * me->target, me, pos, rot);
+    six_d = twf_meas_residual(&T, t + 3 * me->target, me, twf_campaign_meas_quat(campaign, i), pos, rot);
     if (pos_err != NULL)
       twf_v3_copy(pos, pos_err + 3 * i);
     if (angle_err != NULL)
@@ -377,7 +377,7 @@ twf_accuracy_summary *twf_accuracy_summarize_kept(const twf_campaign *campaign,
         || (me->set != TWF_SET_FIT && me->set != TWF_SET_CHECK)) {
       twf_error_set(err, TWF_ERR_INVALID, NULL, me->line, 0, NULL,
                     "measurement %zu has target %zu, pose %zu or set %d "
-                    "out of range", i, me->target, me->pose, (int)me->set);
+                    "out of range", i, (size_t)me->target, (size_t)me->pose, (int)me->set);
       return NULL;
     }
     if (excluded != NULL && excluded[i])
@@ -551,7 +551,7 @@ static twf_status iso_orientation(const twf_campaign *c, const twf_pose *B, cons
         continue;
       /* the attained orientation in the base frame, R_B^T R_tracker, then
        * relative to the commanded one */
-      twf_quat_to_rot(me->quat, Rt);
+      twf_quat_to_rot(twf_campaign_meas_quat(c, pose_meas[j]), Rt);
       for (r = 0; r < 3; r++)
         for (q = 0; q < 3; q++) {
           Rb[r][q] = 0.0;

@@ -144,7 +144,7 @@ typedef struct job {
   size_t *order, n_order;    /* the walk order of the parameters */
   unsigned char *keep_struct, *keep;
   double *scales, *As, *Rf, *rel, *cov, *value, *ratio;
-  double *score, *err_len, *first_score, *first_err;
+  double *score, *first_score, *first_err;
   size_t n_rows;             /* weighted rows at the solution */
 } job;
 
@@ -160,7 +160,7 @@ static void job_free(job *j)
   free(j->use); free(j->target_seen); free(j->view_meas);
   free(j->order); free(j->keep_struct); free(j->keep);
   free(j->scales); free(j->As); free(j->Rf); free(j->rel); free(j->cov); free(j->value); free(j->ratio);
-  free(j->score); free(j->err_len); free(j->first_score); free(j->first_err);
+  free(j->score); free(j->first_score); free(j->first_err);
 }
 
 static twf_status check_options(const twf_calib_options *o, twf_error *err)
@@ -222,12 +222,11 @@ static twf_status job_alloc_result(job *j)
   twf_trace_init(&res->trace);
   res->n_meas = c->n_meas;
   res->meas_set = calloc(nm, sizeof *res->meas_set);
-  res->pos_err_before = calloc(3 * nm, sizeof(double));
-  res->angle_err_before = calloc(nm, sizeof(double));
   res->joint_range = calloc(j->start->n_joints ? j->start->n_joints : 1, sizeof(double));
-  /* pos_err_after and angle_err_after: at the as-built summary, so that
-   * they do not add to the registration's peak memory */
-  if (!res->meas_set || !res->pos_err_before || !res->angle_err_before || !res->joint_range)
+  /* the residuals before and after: at the as-built summary, so that they
+   * add neither to the registration's peak memory nor to the fit's and
+   * the screen's */
+  if (!res->meas_set || !res->joint_range)
     return nomem(j);
   return TWF_OK;
 }
@@ -348,10 +347,7 @@ static twf_status stage_registration(job *j)
     j->res->registration = rep.refinement;
     j->res->base_before = j->res->station_base_before[0];
   }
-  if (st != TWF_OK)
-    return st;
-  return twf_lsq_residuals(j->reg, j->res->station_base_before, j->c, j->res->pos_err_before,
-                           j->res->angle_err_before, j->err);
+  return st;
 }
 
 /* ------------------------------------------------------------ stage: the problem */
@@ -394,11 +390,10 @@ static twf_status stage_problem(job *j)
   j->rel = calloc(p ? p : 1, sizeof *j->rel);
   j->ratio = calloc(p ? p : 1, sizeof *j->ratio);
   j->score = calloc(nm, sizeof *j->score);
-  j->err_len = calloc(nm, sizeof *j->err_len);
   j->first_err = calloc(nm, sizeof *j->first_err);
   j->first_score = calloc(nm, sizeof *j->first_score);
   if (!j->res->params || !j->keep_struct || !j->keep || !j->order || !j->As || !j->Rf || !j->scales ||
-      !j->cov || !j->value || !j->rel || !j->ratio || !j->score || !j->err_len || !j->first_err ||
+      !j->cov || !j->value || !j->rel || !j->ratio || !j->score || !j->first_err ||
       !j->first_score)
     return nomem(j);
   for (k = 0; k < p; k++) {
@@ -743,7 +738,7 @@ static twf_status stage_robust(job *j)
       return st;
     if (res->robust_rounds >= 10)
       break;
-    if (twf_robust_screen(&j->pr, o->robust, o->robust_threshold, j->score, j->err_len, &changed) != TWF_OK)
+    if (twf_robust_screen(&j->pr, o->robust, o->robust_threshold, j->score, NULL, &changed) != TWF_OK)
       return nomem(j);
     if (changed > 0 && res->robust_rounds >= 9) {
       /* last refit with these weights */
@@ -757,8 +752,8 @@ static twf_status stage_robust(job *j)
     return st;
   st = list_outliers(j);
   /* the screen's per-measurement figures are in the outlier list now */
-  free(j->score); free(j->err_len); free(j->first_score); free(j->first_err);
-  j->score = j->err_len = j->first_score = j->first_err = NULL;
+  free(j->score); free(j->first_score); free(j->first_err);
+  j->score = j->first_score = j->first_err = NULL;
   return st;
 }
 
@@ -1066,6 +1061,18 @@ static void comparison_restrict(job *j, int lines_fitted)
   }
 }
 
+/* Whether c has 6-D rows (or says so). */
+static int campaign_has_6d(const twf_campaign *c)
+{
+  size_t i;
+  if (c->has_orientation_any)
+    return 1;
+  for (i = 0; i < c->n_meas; i++)
+    if (c->meas[i].has_orientation)
+      return 1;
+  return 0;
+}
+
 /* The outputs: residuals after, the as-built model and its comparison with
  * the start (in the datum frame when joint lines were fitted), the
  * accuracy figures over the kept rows, the left-out rows, the verdict. */
@@ -1076,10 +1083,30 @@ static twf_status stage_asbuilt(job *j)
   int set;
   twf_status st;
   size_t nm = j->c->n_meas ? j->c->n_meas : 1;
+  /* the check rows scored at the final model first, then the problem's
+   * per-measurement arrays are freed (nothing after needs its weights),
+   * and only then the residual arrays of the result: the three never
+   * add up (peak memory of a large campaign) */
+  if ((st = mark_excluded(j)) != TWF_OK)
+    return st;
+  twf_lsq_release_rows(&j->pr);
+  res->pos_err_before = calloc(3 * nm, sizeof(double));
   res->pos_err_after = calloc(3 * nm, sizeof(double));
-  res->angle_err_after = calloc(nm, sizeof(double));
-  if (res->pos_err_after == NULL || res->angle_err_after == NULL)
+  if (res->pos_err_before == NULL || res->pos_err_after == NULL)
     return nomem(j);
+  /* the angles only when there are 6-D rows (else all NaN) */
+  if (campaign_has_6d(j->c)) {
+    res->angle_err_before = calloc(nm, sizeof(double));
+    res->angle_err_after = calloc(nm, sizeof(double));
+    if (res->angle_err_before == NULL || res->angle_err_after == NULL)
+      return nomem(j);
+  }
+  /* before: at the registered start model (j->reg, unchanged since the
+   * registration) and the registered base poses */
+  st = twf_lsq_residuals(j->reg, res->station_base_before, j->c, res->pos_err_before,
+                         res->angle_err_before, j->err);
+  if (st != TWF_OK)
+    return st;
   st = twf_lsq_residuals(j->pr.m, j->pr.base, j->c, res->pos_err_after, res->angle_err_after, j->err);
   if (st != TWF_OK)
     return st;
@@ -1119,8 +1146,6 @@ static twf_status stage_asbuilt(job *j)
   if ((st = joints_undetermined(j)) != TWF_OK)
     return st;
   comparison_restrict(j, lines_fitted);
-  if ((st = mark_excluded(j)) != TWF_OK)
-    return st;
   res->accuracy_before = twf_accuracy_summarize_kept(&j->view, j->start->n_targets, res->pos_err_before,
                                                      res->angle_err_before, res->excluded, j->opt.worst_poses, j->err);
   if (res->accuracy_before == NULL)

@@ -66,6 +66,18 @@ void twf_lsq_model_assign(twf_model *dst, const twf_model *src)
   dst->home = src->home;
 }
 
+void twf_lsq_release_rows(twf_lsq_problem *pr)
+{
+  free(pr->pose_start);
+  free(pr->pose_meas);
+  free(pr->inv_sigma);
+  free(pr->weight);
+  pr->pose_start = NULL;
+  pr->pose_meas = NULL;
+  pr->inv_sigma = NULL;
+  pr->weight = NULL;
+}
+
 void twf_lsq_free(twf_lsq_problem *pr)
 {
   int t;

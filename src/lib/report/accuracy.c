@@ -234,7 +234,9 @@ static int cmp_worst(const void *pa, const void *pb)
 /* Bucket the measurements by key = set * (n_targets + 1) + target and by
  * key = set * (n_targets + 1) + n_targets (overall), then one statistics
  * pass per bucket: O(n log n) overall. which selects lengths of pos_err (0)
- * or the angles (1, NaN rows skipped). */
+ * or the angles (1, NaN rows skipped). The per-target buckets first, then
+ * the overall ones in the same arrays (each bucket holds its rows in
+ * measurement order either way): one entry per measurement, not two. */
 static twf_status summary_stats(const twf_campaign *c, size_t nt,
                                 const double *pos_err, const double *angle_err,
                                 const unsigned char *excluded,
@@ -244,9 +246,10 @@ static twf_status summary_stats(const twf_campaign *c, size_t nt,
   size_t nb = 2 * (nt + 1), i, b;
   size_t *count = calloc(nb + 1, sizeof *count);
   size_t *start = calloc(nb + 1, sizeof *start);
-  size_t *idx = malloc((c->n_meas ? 2 * c->n_meas : 1) * sizeof *idx);
-  double *vals = malloc((c->n_meas ? 2 * c->n_meas : 1) * sizeof *vals);
+  size_t *idx = malloc((c->n_meas ? c->n_meas : 1) * sizeof *idx);
+  double *vals = malloc((c->n_meas ? c->n_meas : 1) * sizeof *vals);
   twf_status st = TWF_OK;
+  int pass;
 
   if (!count || !start || !idx || !vals) {
     st = TWF_ERR_NOMEM;
@@ -262,34 +265,44 @@ static twf_status summary_stats(const twf_campaign *c, size_t nt,
     count[set * (nt + 1) + me->target]++;
     count[set * (nt + 1) + nt]++;
   }
-  for (b = 0; b < nb; b++)
-    start[b + 1] = start[b] + count[b];
-  memset(count, 0, (nb + 1) * sizeof *count);
-  for (i = 0; i < c->n_meas; i++) {
-    const twf_measurement *me = &c->meas[i];
-    size_t set = (size_t)me->set, keys[2], q;
-    double v;
-    if (excluded != NULL && excluded[i])
-      continue;
-    if (which == 1) {
-      if (angle_err == NULL || isnan(angle_err[i]))
-        continue;
-      v = angle_err[i];
-    } else {
-      v = twf_v3_norm(pos_err + 3 * i);
+  /* pass 0: the per-target buckets (b % (nt + 1) < nt) side by side;
+   * pass 1: the two overall buckets */
+  for (pass = 0; pass < 2; pass++) {
+    start[0] = 0;
+    for (b = 0; b < nb; b++)
+      start[b + 1] = start[b] + ((b % (nt + 1) == nt) == (pass == 1) ? count[b] : 0);
+    {
+      size_t *fill = calloc(nb, sizeof *fill);
+      if (fill == NULL) {
+        st = TWF_ERR_NOMEM;
+        goto done;
+      }
+      for (i = 0; i < c->n_meas; i++) {
+        const twf_measurement *me = &c->meas[i];
+        size_t set = (size_t)me->set, key, at;
+        double v;
+        if (excluded != NULL && excluded[i])
+          continue;
+        if (which == 1) {
+          if (angle_err == NULL || isnan(angle_err[i]))
+            continue;
+          v = angle_err[i];
+        } else {
+          v = twf_v3_norm(pos_err + 3 * i);
+        }
+        key = set * (nt + 1) + (pass == 0 ? (size_t)me->target : nt);
+        at = start[key] + fill[key]++;
+        vals[at] = v;
+        idx[at] = i;
+      }
+      free(fill);
     }
-    keys[0] = set * (nt + 1) + me->target;
-    keys[1] = set * (nt + 1) + nt;
-    for (q = 0; q < 2; q++) {
-      size_t at = start[keys[q]] + count[keys[q]]++;
-      vals[at] = v;
-      idx[at] = i;
+    for (b = 0; b < nb; b++) {
+      size_t set = b / (nt + 1), k = b % (nt + 1);
+      twf_stats *s = k == nt ? &overall[set] : &per_target[2 * k + set];
+      if ((k == nt) == (pass == 1))
+        stats_of(vals + start[b], idx + start[b], start[b + 1] - start[b], s);
     }
-  }
-  for (b = 0; b < nb; b++) {
-    size_t set = b / (nt + 1), k = b % (nt + 1);
-    twf_stats *s = k == nt ? &overall[set] : &per_target[2 * k + set];
-    stats_of(vals + start[b], idx + start[b], start[b + 1] - start[b], s);
   }
 done:
   free(count);

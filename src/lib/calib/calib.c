@@ -634,12 +634,26 @@ static double *pose_torques(const twf_model *m, const twf_campaign *c, twf_statu
   return t;
 }
 
+/* Whether c has 6-D rows (or says so). */
+static int campaign_has_6d(const twf_campaign *c)
+{
+  size_t i;
+  if (c->has_orientation_any)
+    return 1;
+  for (i = 0; i < c->n_meas; i++)
+    if (c->meas[i].has_orientation)
+      return 1;
+  return 0;
+}
+
 /* Do the residuals of the rows the screen kept show a systematic pattern
  * (twistfit/pattern.h)? 1 yes, 0 no, -1 out of memory. */
 static int screened_pattern(job *j)
 {
   size_t i, nm = j->c->n_meas;
-  double *pos = malloc(3 * (nm ? nm : 1) * sizeof *pos), *rot = malloc((nm ? nm : 1) * sizeof *rot);
+  int six_d = campaign_has_6d(j->c);
+  double *pos = malloc(3 * (nm ? nm : 1) * sizeof *pos);
+  double *rot = six_d ? malloc((nm ? nm : 1) * sizeof *rot) : NULL; /* the angles: 6-D rows only */
   unsigned char *use = malloc(nm ? nm : 1);
   twf_pattern_options po = j->opt.pattern;
   twf_pattern_result pr;
@@ -648,9 +662,9 @@ static int screened_pattern(job *j)
   int found = -1;
   twf_error e;
   memset(&pr, 0, sizeof pr);
-  if (pos != NULL && rot != NULL && use != NULL && po.torque == NULL)
+  if (pos != NULL && (rot != NULL || !six_d) && use != NULL && po.torque == NULL)
     po.torque = torque = pose_torques(j->pr.m, &j->view, &st);
-  if (pos != NULL && rot != NULL && use != NULL && st == TWF_OK) {
+  if (pos != NULL && (rot != NULL || !six_d) && use != NULL && st == TWF_OK) {
     for (i = 0; i < nm; i++)
       use[i] = j->pr.use[i] && j->pr.weight[i] > 0.0;
     if (twf_lsq_residuals(j->pr.m, j->pr.base, &j->view, pos, rot, &e) == TWF_OK &&
@@ -747,6 +761,13 @@ static twf_status stage_robust(job *j)
         return st;
       break;
     }
+  }
+  /* only Cauchy lists by the final score (twf_robust_listed), the others
+   * by the weights: the scores go before the screen's limit check takes
+   * its memory */
+  if (o->robust != TWF_ROBUST_CAUCHY) {
+    free(j->score);
+    j->score = NULL;
   }
   if ((st = screen_limit(j)) != TWF_OK)
     return st;
@@ -953,7 +974,7 @@ static twf_status mark_excluded(job *j)
 {
   twf_calib_result *res = j->res;
   size_t n = j->c->n_meas, i, k;
-  double *score = NULL, *len = NULL, *w = NULL;
+  double *score = NULL, *len = NULL;
   size_t changed;
   res->excluded = calloc(n ? n : 1, 1);
   if (res->excluded == NULL)
@@ -967,13 +988,12 @@ static twf_status mark_excluded(job *j)
     return TWF_OK;
   score = malloc((n ? n : 1) * sizeof *score);
   len = malloc((n ? n : 1) * sizeof *len);
-  w = malloc((n ? n : 1) * sizeof *w);
-  if (score == NULL || len == NULL || w == NULL)
+  if (score == NULL || len == NULL)
     goto nomem;
-  memcpy(w, j->pr.weight, n * sizeof *w);
+  /* the screen's new weights are not kept: the problem's rows are freed
+   * right after (stage_asbuilt), nothing reads them any more */
   if (twf_robust_screen(&j->pr, j->opt.robust, j->opt.robust_threshold, score, len, &changed) != TWF_OK)
     goto nomem;
-  memcpy(j->pr.weight, w, n * sizeof *w);
   for (i = 0; i < n; i++)
     if (res->meas_set[i] == TWF_SET_CHECK && score[i] > j->opt.robust_threshold) {
       res->excluded[i] = TWF_EXCLUDED_FLAGGED;
@@ -990,10 +1010,10 @@ static twf_status mark_excluded(job *j)
       res->check_flagged[k].weight = 1.0;
       k++;
     }
-  free(score); free(len); free(w);
+  free(score); free(len);
   return TWF_OK;
 nomem:
-  free(score); free(len); free(w);
+  free(score); free(len);
   return nomem(j);
 }
 
@@ -1061,18 +1081,6 @@ static void comparison_restrict(job *j, int lines_fitted)
   }
 }
 
-/* Whether c has 6-D rows (or says so). */
-static int campaign_has_6d(const twf_campaign *c)
-{
-  size_t i;
-  if (c->has_orientation_any)
-    return 1;
-  for (i = 0; i < c->n_meas; i++)
-    if (c->meas[i].has_orientation)
-      return 1;
-  return 0;
-}
-
 /* The outputs: residuals after, the as-built model and its comparison with
  * the start (in the datum frame when joint lines were fitted), the
  * accuracy figures over the kept rows, the left-out rows, the verdict. */
@@ -1084,9 +1092,10 @@ static twf_status stage_asbuilt(job *j)
   twf_status st;
   size_t nm = j->c->n_meas ? j->c->n_meas : 1;
   /* the check rows scored at the final model first, then the problem's
-   * per-measurement arrays are freed (nothing after needs its weights),
-   * and only then the residual arrays of the result: the three never
-   * add up (peak memory of a large campaign) */
+   * per-measurement arrays are freed (no pass runs after the fit), and
+   * only then the residual arrays of the result: the three never add up
+   * (peak memory of a large campaign) */
+  twf_lsq_release_pose_index(&j->pr);
   if ((st = mark_excluded(j)) != TWF_OK)
     return st;
   twf_lsq_release_rows(&j->pr);

@@ -66,14 +66,19 @@ void twf_lsq_model_assign(twf_model *dst, const twf_model *src)
   dst->home = src->home;
 }
 
-void twf_lsq_release_rows(twf_lsq_problem *pr)
+void twf_lsq_release_pose_index(twf_lsq_problem *pr)
 {
   free(pr->pose_start);
   free(pr->pose_meas);
-  free(pr->inv_sigma);
-  free(pr->weight);
   pr->pose_start = NULL;
   pr->pose_meas = NULL;
+}
+
+void twf_lsq_release_rows(twf_lsq_problem *pr)
+{
+  twf_lsq_release_pose_index(pr);
+  free(pr->inv_sigma);
+  free(pr->weight);
   pr->inv_sigma = NULL;
   pr->weight = NULL;
 }
@@ -130,6 +135,13 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
     return err ? err->status : TWF_ERR_NOMEM;
   }
   pr->p = twf_errmodel_n_params(pr->em);
+  if (c->n_meas > TWF_CAMPAIGN_COUNT_MAX) {
+    twf_lsq_free(pr);
+    return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0,
+                         "calibrate from a subset of the poses",
+                         "a calibration takes at most %zu measurements, not %zu",
+                         (size_t)TWF_CAMPAIGN_COUNT_MAX, c->n_meas);
+  }
   pr->pose_start = calloc(n_poses + 1, sizeof *pr->pose_start);
   pr->pose_meas = calloc(c->n_meas ? c->n_meas : 1, sizeof *pr->pose_meas);
   pr->inv_sigma = calloc(c->n_meas ? c->n_meas : 1, sizeof *pr->inv_sigma);
@@ -151,7 +163,7 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
       goto nomem;
     memcpy(fill, pr->pose_start, (n_poses + 1) * sizeof *fill);
     for (i = 0; i < c->n_meas; i++)
-      pr->pose_meas[fill[c->meas[i].pose]++] = i;
+      pr->pose_meas[fill[c->meas[i].pose]++] = (uint32_t)i;
     free(fill);
   }
   for (i = 0; i < c->n_meas; i++) {

@@ -39,7 +39,7 @@ static double prediction_rms(const twf_model *m, const twf_pose *B, const twf_mo
   return sqrt(sum / (double)count);
 }
 
-static double rms_of(const double *res3, const twf_meas_set *set, size_t n, twf_meas_set which)
+static double rms_of(const double *res3, const uint8_t *set, size_t n, twf_meas_set which)
 {
   double sum = 0.0;
   size_t i, count = 0;
@@ -192,7 +192,7 @@ END_TEST
 
 /* weighted cost of a model on the fit set, computed independently */
 static double cost_of(const twf_model *m, const twf_pose *B, const twf_campaign *c,
-                      const twf_meas_set *set, double sigma)
+                      const uint8_t *set, double sigma)
 {
   size_t i;
   double cost = 0;

@@ -325,7 +325,7 @@ json_t *cli_json_stats(const twf_stats *s, double unit)
   return o;
 }
 
-json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const twf_meas_set *sets,
+json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const uint8_t *sets,
                               size_t n_models, const char *const *names, const double *const *pos_err,
                               const double *const *angle_err, const unsigned char *excluded_code,
                               const twf_outlier *outliers, size_t n_outliers, const cli_units *u)

@@ -205,7 +205,8 @@ typedef struct twf_calib_result {
   size_t n_outliers;
   twf_outlier *outliers;
   size_t n_meas;
-  twf_meas_set *meas_set;     /* effective set of each measurement (held-out fraction applied) */
+  uint8_t *meas_set;          /* effective set (a twf_meas_set) of each measurement (held-out
+                                 fraction applied); one byte each */
   /* the same quantities, in the same layout, as twf_accuracy_residuals's
    * pos_err and angle_err */
   double *pos_err_before;     /* n_meas x 3, measured - model, m, instrument frame */

@@ -92,8 +92,8 @@ START_TEST(test_residuals)
     double y[3], Rm[3][3], axis[3] = { 0.48, -0.6, 0.64 }, Ra[3][3];
     fk_by_hand(m, q[pose_of[i]], &F);
     twf_pose_mul(&B, &F, &T);
-    me->pose = pose_of[i];
-    me->target = target_of[i];
+    me->pose = (uint32_t)pose_of[i];
+    me->target = (uint32_t)target_of[i];
     twf_pose_apply(&T, m->targets[target_of[i]].offset, y);
     for (j = 0; j < 3; j++)
       me->pos[j] = y[j] + delta[i][j];
@@ -104,8 +104,9 @@ START_TEST(test_residuals)
       for (j = 0; j < 9; j++)
         Rm[j / 3][j % 3] = Ra[j / 3][0] * T.R[0][j % 3] + Ra[j / 3][1] * T.R[1][j % 3]
                          + Ra[j / 3][2] * T.R[2][j % 3];
-      me->has_orientation = 1;
-      twf_rot_to_quat(Rm, me->quat);
+      double qm[4];
+      twf_rot_to_quat(Rm, qm);
+      ck_assert_int_eq(twf_campaign_meas_set_quat(c, i, qm), TWF_OK);
     }
   }
   ck_assert_int_eq(twf_accuracy_residuals(m, &B, NULL, c, pos_err, ang_err, &err), TWF_OK);
@@ -224,8 +225,8 @@ START_TEST(test_summary_by_hand)
   const double e = 1e-4, tol = 1e-14;
   ck_assert(c != NULL);
   for (i = 0; i < 11; i++) {
-    c->meas[i].pose = pose[i];
-    c->meas[i].target = target[i];
+    c->meas[i].pose = (uint32_t)pose[i];
+    c->meas[i].target = (uint32_t)target[i];
     c->meas[i].set = i >= 8 ? TWF_SET_CHECK : TWF_SET_FIT;
     for (j = 0; j < 3; j++)
       pos_err[3 * i + j] = len[i] * e * u[i % 2][j];
@@ -364,8 +365,8 @@ static twf_campaign *iso_campaign(void)
     c->q[3 * i + 2] = 0.0;
   }
   for (i = 0; i < 10; i++) {
-    c->meas[i].pose = rows[i].pose;
-    c->meas[i].target = rows[i].target;
+    c->meas[i].pose = (uint32_t)rows[i].pose;
+    c->meas[i].target = (uint32_t)rows[i].target;
     memcpy(c->meas[i].pos, rows[i].x, sizeof rows[i].x);
     c->meas[i].set = TWF_SET_FIT;
   }
@@ -507,15 +508,14 @@ START_TEST(test_iso9283_summary_and_orientation)
     memcpy(c->q + 3 * i, q, 3 * sizeof *q);
     fk_by_hand(m, q, &F);
     twf_pose_mul(&B, &F, &T);
-    c->meas[i].pose = i;
+    c->meas[i].pose = (uint32_t)i;
     c->meas[i].target = 0;
     c->meas[i].set = TWF_SET_FIT;
     twf_pose_apply(&T, m->targets[0].offset, c->meas[i].pos);
     /* along the tracker's x: the distances are what the figures see */
     c->meas[i].pos[0] += dx[i];
-    c->meas[i].quat[0] = 1.0;
     if (i < 3) {
-      double D[3][3], Rb[3][3], Rt[3][3];
+      double D[3][3], Rb[3][3], Rt[3][3], qt[4];
       int u, v, w;
       twf_rpy_fixed_xyz_to_rot(a[i], b[i], 0.5e-3, D);
       for (u = 0; u < 3; u++)
@@ -530,8 +530,8 @@ START_TEST(test_iso9283_summary_and_orientation)
           for (w = 0; w < 3; w++)
             Rt[u][v] += B.R[u][w] * Rb[w][v];
         }
-      c->meas[i].has_orientation = 1;
-      twf_rot_to_quat(Rt, c->meas[i].quat);
+      twf_rot_to_quat(Rt, qt);
+      ck_assert_int_eq(twf_campaign_meas_set_quat(c, i, qt), TWF_OK);
     }
   }
   c->has_orientation_any = 1;
@@ -629,7 +629,7 @@ START_TEST(test_iso9283_large)
   for (i = 0; i < n; i++) {
     twf_pose F;
     snprintf(c->pose_ids[i], TWF_NAME_MAX, "P%zu", i);
-    c->meas[i].pose = i;
+    c->meas[i].pose = (uint32_t)i;
     c->meas[i].target = 0;
     twf_model_fk(m, c->q + 3 * i, NULL, &F);
     twf_pose_apply(&F, m->targets[0].offset, c->meas[i].pos);

@@ -39,7 +39,7 @@ static double prediction_rms(const twf_model *m, const twf_pose *B, const twf_mo
   return sqrt(sum / (double)count);
 }
 
-static double rms_of(const double *res3, const twf_meas_set *set, size_t n, twf_meas_set which)
+static double rms_of(const double *res3, const uint8_t *set, size_t n, twf_meas_set which)
 {
   double sum = 0.0;
   size_t i, count = 0;
@@ -192,7 +192,7 @@ END_TEST
 
 /* weighted cost of a model on the fit set, computed independently */
 static double cost_of(const twf_model *m, const twf_pose *B, const twf_campaign *c,
-                      const twf_meas_set *set, double sigma)
+                      const uint8_t *set, double sigma)
 {
   size_t i;
   double cost = 0;
@@ -538,16 +538,17 @@ START_TEST(test_orientation_outliers)
   so.seed = twf_test_seed(74);
   s.c = twf_simulate_campaign(s.truth, &s.base, &so, &err);
   for (k = 0; k < 4; k++) {
-    double R[3][3], E[3][3], Rn[3][3];
+    double R[3][3], E[3][3], Rn[3][3], qn[4];
     const double w[3] = { 0.01, 0.0, 0.0 };
     int a, b, d;
-    twf_quat_to_rot(s.c->meas[bad[k]].quat, R);
+    twf_quat_to_rot(twf_campaign_meas_quat(s.c, bad[k]), R);
     twf_so3_exp(w, 1.0, E);
     for (a = 0; a < 3; a++)
       for (b = 0; b < 3; b++)
         for (Rn[a][b] = 0, d = 0; d < 3; d++)
           Rn[a][b] += E[a][d] * R[d][b];
-    twf_rot_to_quat(Rn, s.c->meas[bad[k]].quat);
+    twf_rot_to_quat(Rn, qn);
+    ck_assert_int_eq(twf_campaign_meas_set_quat(s.c, bad[k], qn), TWF_OK);
   }
   co.sigma_length = sigma;
   co.sigma_angle = sigma_rad;

@@ -79,7 +79,7 @@ static void assert_same(const twf_campaign *a, const twf_campaign *b,
       ck_assert_close(x->pos[j], y->pos[j], tol);
     ck_assert_int_eq(x->has_orientation, y->has_orientation);
     for (j = 0; j < 4; j++)
-      ck_assert_close(x->quat[j], y->quat[j], tol);
+      ck_assert_close(twf_campaign_meas_quat(a, k)[j], twf_campaign_meas_quat(b, k)[j], tol);
     ck_assert_close(x->sigma, y->sigma, tol);
     ck_assert_int_eq(x->set, y->set);
     if (lines)
@@ -135,7 +135,8 @@ START_TEST(test_one_file_values)
   ck_assert_int_eq(c->meas[6].set, TWF_SET_FIT); /* empty: fit */
   ck_assert_int_eq(c->meas[8].set, TWF_SET_CHECK);
   ck_assert_int_eq(c->has_orientation_any, 0);
-  ck_assert(c->meas[0].quat[0] == 1 && c->meas[0].quat[3] == 0);
+  ck_assert(twf_campaign_meas_quat(c, 0)[0] == 1 && twf_campaign_meas_quat(c, 0)[3] == 0);
+  ck_assert_uint_eq(c->n_quat, 0);
   /* Lines count comments and the blank line (file lines 10 and 13). */
   ck_assert_int_eq(c->meas[0].line, 4);
   ck_assert_int_eq(c->meas[5].line, 9);
@@ -458,18 +459,18 @@ START_TEST(test_six_d)
   ck_assert_int_eq(c->has_orientation_any, 1);
   ck_assert_int_eq(c->meas[0].has_orientation, 1);
   for (i = 0; i < 4; i++)
-    ck_assert_close(c->meas[0].quat[i], q0[i] / n0, 1e-15);
+    ck_assert_close(twf_campaign_meas_quat(c, 0)[i], q0[i] / n0, 1e-15);
   /* A row with the four fields empty is position-only. */
   ck_assert_int_eq(c->meas[1].has_orientation, 0);
-  ck_assert(c->meas[1].quat[0] == 1 && c->meas[1].quat[1] == 0);
+  ck_assert(twf_campaign_meas_quat(c, 1)[0] == 1 && twf_campaign_meas_quat(c, 1)[1] == 0);
   /* Norm 1 + 4e-7 is accepted and normalised. */
   ck_assert_int_eq(c->meas[2].has_orientation, 1);
-  n2 = sqrt(c->meas[2].quat[0] * c->meas[2].quat[0] +
-            c->meas[2].quat[1] * c->meas[2].quat[1] +
-            c->meas[2].quat[2] * c->meas[2].quat[2] +
-            c->meas[2].quat[3] * c->meas[2].quat[3]);
+  {
+    const double *q2 = twf_campaign_meas_quat(c, 2);
+    n2 = sqrt(q2[0] * q2[0] + q2[1] * q2[1] + q2[2] * q2[2] + q2[3] * q2[3]);
+  }
   ck_assert_close(n2, 1.0, 1e-15);
-  ck_assert_close(c->meas[2].quat[2], -0.5 / sqrt(0.75 + 0.5000008 * 0.5000008), 1e-15);
+  ck_assert_close(twf_campaign_meas_quat(c, 2)[2], -0.5 / sqrt(0.75 + 0.5000008 * 0.5000008), 1e-15);
   twf_campaign_free(c);
   twf_model_free(m);
 }
@@ -491,20 +492,19 @@ static twf_campaign *random_campaign(const twf_model *m, twf_test_rng *rng)
                                                    m->joints[j].limit_hi);
     for (t = 0; t < nt; t++, k++) {
       twf_measurement *ms = &c->meas[k];
-      ms->pose = p;
-      ms->target = t;
+      ms->pose = (uint32_t)p;
+      ms->target = (uint32_t)t;
       for (j = 0; j < 3; j++)
         ms->pos[j] = twf_test_uniform(rng, -2.5, 2.5);
       if ((k % 3) != 1) {
-        double n = 0;
+        double n = 0, qt[4];
         for (j = 0; j < 4; j++) {
-          ms->quat[j] = twf_test_gauss(rng);
-          n += ms->quat[j] * ms->quat[j];
+          qt[j] = twf_test_gauss(rng);
+          n += qt[j] * qt[j];
         }
         for (j = 0; j < 4; j++)
-          ms->quat[j] /= sqrt(n);
-        ms->has_orientation = 1;
-        c->has_orientation_any = 1;
+          qt[j] /= sqrt(n);
+        ck_assert_int_eq(twf_campaign_meas_set_quat(c, k, qt), TWF_OK);
       }
       ms->sigma = (k % 4) ? twf_test_uniform(rng, 5e-6, 6e-5) : 0.0;
       ms->set = (k % 5 == 2) ? TWF_SET_CHECK : TWF_SET_FIT;
@@ -917,7 +917,7 @@ START_TEST(test_arguments)
   ck_assert_ptr_nonnull(c);
   ck_assert_uint_eq(c->n_poses, 3);
   ck_assert_uint_eq(c->n_meas, 5);
-  ck_assert(c->meas[4].quat[0] == 1 && c->meas[4].set == TWF_SET_FIT);
+  ck_assert(twf_campaign_meas_quat(c, 4)[0] == 1 && c->meas[4].set == TWF_SET_FIT);
   ck_assert(c->q[11] == 0);
   twf_campaign_free(c);
   twf_campaign_free(NULL);

@@ -408,11 +408,11 @@ static twf_campaign *make_campaign(const twf_model *m, const twf_pose *B,
     twf_pose_mul(B, &F, &T);
     for (k = 0; k < nt; k++) {
       twf_measurement *me = &c->meas[p * nt + k];
-      me->pose = p;
-      me->target = k;
+      me->pose = (uint32_t)p;
+      me->target = (uint32_t)k;
       twf_pose_apply(&T, m->targets[k].offset, me->pos);
       me->set = TWF_SET_FIT;
-      me->line = (long)(p * nt + k + 2);
+      me->line = (uint32_t)(p * nt + k + 2);
       if (check_every > 0 && p % check_every == check_every - 1) {
         me->set = TWF_SET_CHECK;
         me->pos[0] += 0.005;

@@ -411,7 +411,7 @@ static void givens_factor(twf_lsq_problem *pr, double *R)
       twf_ident_qr_add_row(R, p, rows + k * p);
     if (ms->has_orientation) {
       double Rm[3][3], r[3];
-      twf_quat_to_rot(ms->quat, Rm);
+      twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
       twf_errmodel_orientation(pr->em, Rm, r, rows);
       for (k = 0; k < 3 * p; k++)
         rows[k] *= sqrt(pr->weight[i]) * pr->inv_sigma_rot;

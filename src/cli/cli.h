@@ -314,7 +314,7 @@ json_t *cli_json_accuracy(const twf_accuracy_summary *s, const twf_model *m,
  * excluded_code: NULL or n_meas codes (TWF_EXCLUDED_DROPPED,
  * TWF_EXCLUDED_FLAGGED, or any other non-zero value: "registration").
  * outliers (NULL or n_outliers) give the weights. */
-json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const twf_meas_set *sets,
+json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const uint8_t *sets,
                               size_t n_models, const char *const *names, const double *const *pos_err,
                               const double *const *angle_err, const unsigned char *excluded_code,
                               const twf_outlier *outliers, size_t n_outliers, const cli_units *u);
@@ -350,7 +350,7 @@ int cli_put_json(FILE *fp, void *ctx, twf_error *err);
 typedef struct cli_residuals {
   const twf_model *m;
   const twf_campaign *c;
-  const twf_meas_set *sets;   /* NULL: the campaign's own */
+  const uint8_t *sets;        /* a twf_meas_set each; NULL: the campaign's own */
   const double *pos[2], *rot[2];
   const char *labels[2];
   const double *weights;

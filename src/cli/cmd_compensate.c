@@ -477,7 +477,7 @@ static int run_compensate(int argc, char **argv)
       twf_ik_goal g;
       g.kind = ms->has_orientation ? TWF_IK_POSE : TWF_IK_POINT;
       if (ms->has_orientation) {
-        twf_quat_to_rot(ms->quat, g.R);
+        twf_quat_to_rot(twf_campaign_meas_quat(input, r), g.R);
       } else {
         /* no orientation given: the seed's orientation is the reference of
          * the reported angle */

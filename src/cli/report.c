@@ -44,7 +44,7 @@ void cli_meas_where(const cli_inputs *in, const twf_measurement *ms, char *buf, 
   /* in the two-file form the line is in the points file */
   const char *file = in->data_path ? in->data_path : in->points_path;
   if (ms->line > 0)
-    snprintf(buf, n, "%s:%ld", file ? file : "?", ms->line);
+    snprintf(buf, n, "%s:%lu", file ? file : "?", (unsigned long)ms->line);
   else
     snprintf(buf, n, "%s", file ? file : "?");
 }
@@ -330,7 +330,7 @@ json_t *cli_json_stats(const twf_stats *s, double unit)
   return o;
 }
 
-json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const twf_meas_set *sets,
+json_t *cli_json_measurements(const twf_campaign *c, const twf_model *m, const uint8_t *sets,
                               size_t n_models, const char *const *names, const double *const *pos_err,
                               const double *const *angle_err, const unsigned char *excluded_code,
                               const twf_outlier *outliers, size_t n_outliers, const cli_units *u)

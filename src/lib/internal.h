@@ -53,14 +53,15 @@ static inline double twf_rng_gauss(unsigned long long *s)
   return sqrt(-2.0 * log(u1)) * cos(2.0 * TWF_PI * u2);
 }
 
-/* The residual of one measurement ms at the flange pose T (flange in the
+/* The residual of one measurement ms, of orientation quat (its
+ * campaign's twf_campaign_meas_quat), at the flange pose T (flange in the
  * tracker frame) with target offset t (flange frame): pos = measured - T t
  * and, for a 6-D row, rot = log(R_meas R_T^T), the orientation residual
  * the solver minimises (its length is the angle reports show). Returns 1
  * for a 6-D row, else 0 with rot untouched. Every residual of the library
  * comes from here (report/accuracy.c). */
 int twf_meas_residual(const twf_pose *T, const double t[3], const twf_measurement *ms,
-                      double pos[3], double rot[3]);
+                      const double quat[4], double pos[3], double rot[3]);
 
 /* The argument checks of twf_accuracy_residuals, alone. */
 twf_status twf_accuracy_residuals_check(const twf_model *model, const twf_pose *base_in_tracker,

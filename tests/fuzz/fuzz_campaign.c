@@ -41,7 +41,7 @@ static void same_campaign(const twf_campaign *a, const twf_campaign *b)
         for (int c = 0; c < 3; c++)
           FUZZ_CHECK(close_to(x->pos[c], y->pos[c]));
         for (int c = 0; c < 4; c++)
-          FUZZ_CHECK(close_to(x->quat[c], y->quat[c]));
+          FUZZ_CHECK(close_to(twf_campaign_meas_quat(a, i)[c], twf_campaign_meas_quat(b, k)[c]));
         FUZZ_CHECK(close_to(x->sigma, y->sigma));
       }
       i++;

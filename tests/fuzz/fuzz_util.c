@@ -277,16 +277,17 @@ void twf_fuzz_check_campaign(const twf_campaign *c, const twf_model *m,
     return;
   for (size_t i = 0; i < c->n_meas; i++) {
     const twf_measurement *r = &c->meas[i];
+    const double *rq = twf_campaign_meas_quat(c, i);
     int ok = r->pose < c->n_poses && r->target < m->n_targets &&
-             finite_n(r->pos, 3) && finite_n(r->quat, 4) &&
+             finite_n(r->pos, 3) && finite_n(rq, 4) &&
              isfinite(r->sigma) && r->sigma >= 0 &&
              (r->set == TWF_SET_FIT || r->set == TWF_SET_CHECK) && r->line >= 1;
     if (ok && r->has_orientation) {
-      double n = r->quat[0] * r->quat[0] + r->quat[1] * r->quat[1] +
-                 r->quat[2] * r->quat[2] + r->quat[3] * r->quat[3];
-      ok = fabs(n - 1) < 1e-9 && c->has_orientation_any;
+      double n = rq[0] * rq[0] + rq[1] * rq[1] + rq[2] * rq[2] + rq[3] * rq[3];
+      ok = fabs(n - 1) < 1e-9 && c->has_orientation_any && r->quat_slot >= 1 &&
+           r->quat_slot <= c->n_quat;
     } else if (ok) {
-      ok = r->quat[0] == 1 && r->quat[1] == 0 && r->quat[2] == 0 && r->quat[3] == 0;
+      ok = rq[0] == 1 && rq[1] == 0 && rq[2] == 0 && rq[3] == 0 && r->quat_slot == 0;
     }
     if (!ok) {
       free(count);

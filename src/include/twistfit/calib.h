@@ -205,12 +205,15 @@ typedef struct twf_calib_result {
   size_t n_outliers;
   twf_outlier *outliers;
   size_t n_meas;
-  twf_meas_set *meas_set;     /* effective set of each measurement (held-out fraction applied) */
+  uint8_t *meas_set;          /* effective set (a twf_meas_set) of each measurement (held-out
+                                 fraction applied); one byte each */
   /* the same quantities, in the same layout, as twf_accuracy_residuals's
    * pos_err and angle_err */
   double *pos_err_before;     /* n_meas x 3, measured - model, m, instrument frame */
   double *pos_err_after;
-  double *angle_err_before;   /* n_meas orientation error angles, rad (NAN for point rows) */
+  double *angle_err_before;   /* n_meas orientation error angles, rad (NAN for point rows);
+                                 NULL when the campaign has no 6-D row (has_orientation_any
+                                 0), so that a large campaign of points stores no angles */
   double *angle_err_after;
   twf_solve_report registration;  /* refinement of base and targets on the starting model */
   twf_solve_report solve;         /* the calibration fit (last robust round) */

@@ -5,6 +5,8 @@
 #ifndef TWISTFIT_CAMPAIGN_H
 #define TWISTFIT_CAMPAIGN_H
 
+#include <stdint.h>
+
 #include "twistfit/common.h"
 #include "twistfit/se3.h"
 #include "twistfit/model.h"
@@ -59,20 +61,31 @@ typedef enum twf_meas_set {
   TWF_SET_CHECK = 1
 } twf_meas_set;
 
-/* One measured target at one pose. */
+/* Most poses of a campaign, most 6-D rows, and the last source line a
+ * measurement records: the row below keeps its indices and its line in 32
+ * bits. The readers refuse a larger campaign (TWF_ERR_VALUE). */
+#define TWF_CAMPAIGN_COUNT_MAX 4294967295u
+
+/* One measured target at one pose: 56 bytes, so that a campaign of
+ * millions of rows stays small. The orientation of a 6-D row is not in
+ * the row but in the campaign's side array (quat_slot): read it with
+ * twf_campaign_meas_quat, give it with twf_campaign_meas_set_quat. */
 typedef struct twf_measurement {
-  size_t pose;         /* index into the campaign's poses */
-  size_t target;       /* index of the target in the model's targets */
+  uint32_t pose;       /* index into the campaign's poses */
+  uint32_t target;     /* index of the target in the model's targets */
   double pos[3];       /* measured target position, metres, tracker frame */
-  /* 1 for a 6-D row: quat is the orientation of the flange frame in the
-   * tracker frame (the rotation part of the flange pose in the tracker). */
-  int has_orientation;
-  double quat[4];      /* unit quaternion w x y z; (1 0 0 0) when absent */
   double sigma;        /* standard deviation of each coordinate, metres;
                           0 = not given (the caller picks a default) */
-  twf_meas_set set;
-  long line;           /* source line (in the points file for the two-file
+  uint32_t line;       /* source line (in the points file for the two-file
                           form), 0 when not read from a file */
+  /* 1 + the index in the campaign's meas_quat of this row's quaternion
+   * when has_orientation is 1; 0 for a point row. */
+  uint32_t quat_slot;
+  uint8_t set;         /* a twf_meas_set */
+  /* 1 for a 6-D row: its quaternion is the orientation of the flange frame
+   * in the tracker frame (the rotation part of the flange pose in the
+   * tracker). Set through twf_campaign_meas_set_quat. */
+  uint8_t has_orientation;
 } twf_measurement;
 
 /* A campaign: the poses the arm was driven to, with the joint values the
@@ -93,6 +106,11 @@ typedef struct twf_campaign {
   size_t n_meas;
   twf_measurement *meas;
   int has_orientation_any; /* some measurement has has_orientation */
+  /* Quaternions (w x y z, unit) of the 6-D rows, n_quat of them, in the
+   * order they were given; row i's is meas_quat[meas[i].quat_slot - 1].
+   * NULL when there are none. Read through twf_campaign_meas_quat. */
+  size_t n_quat, cap_quat;
+  double (*meas_quat)[4];
   /* Instrument stations (the optional "station" column of
    * twistfit-data(5)): each station is one set-up of the instrument with
    * its own frame, so each has its own base pose. n_stations 0: no station
@@ -154,11 +172,24 @@ typedef struct twf_campaign_options {
 twf_campaign_options twf_campaign_default_options(void);
 
 /* A zero-filled campaign with room for n_poses poses and n_meas
- * measurements (n_poses and n_meas set; quaternions (1 0 0 0); set fit),
- * for simulators and tests. NULL when out of memory. */
+ * measurements (n_poses and n_meas set; point rows; set fit), for
+ * simulators and tests. NULL when out of memory or when n_poses exceeds
+ * TWF_CAMPAIGN_COUNT_MAX. */
 twf_campaign *twf_campaign_alloc(size_t n_joints, size_t n_poses,
                                  size_t n_meas);
 void twf_campaign_free(twf_campaign *c);
+/* The orientation of measurement i of c (i < n_meas), unit quaternion
+ * w x y z of the flange frame in the tracker frame: the campaign's for a
+ * 6-D row, (1 0 0 0) for a point row. The pointer is valid until c
+ * changes. */
+const double *twf_campaign_meas_quat(const twf_campaign *c, size_t i);
+/* Make measurement i of c a 6-D row with the orientation quat (w x y z,
+ * copied as given: normalise it first), in the row's slot of the side
+ * array, a new slot when the row had none. Sets has_orientation and
+ * has_orientation_any. TWF_ERR_INVALID (c, i, quat NULL or more than
+ * TWF_CAMPAIGN_COUNT_MAX 6-D rows), TWF_ERR_NOMEM. */
+twf_status twf_campaign_meas_set_quat(twf_campaign *c, size_t i,
+                                      const double quat[4]);
 /* The payload carried at pose (index into the model's payloads), -1 for
  * none (also when c has no payload column). */
 long twf_campaign_payload(const twf_campaign *c, size_t pose);

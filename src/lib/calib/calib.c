@@ -144,7 +144,7 @@ typedef struct job {
   size_t *order, n_order;    /* the walk order of the parameters */
   unsigned char *keep_struct, *keep;
   double *scales, *As, *Rf, *rel, *cov, *value, *ratio;
-  double *score, *err_len, *first_score, *first_err;
+  double *score, *first_score, *first_err;
   size_t n_rows;             /* weighted rows at the solution */
 } job;
 
@@ -160,7 +160,7 @@ static void job_free(job *j)
   free(j->use); free(j->target_seen); free(j->view_meas);
   free(j->order); free(j->keep_struct); free(j->keep);
   free(j->scales); free(j->As); free(j->Rf); free(j->rel); free(j->cov); free(j->value); free(j->ratio);
-  free(j->score); free(j->err_len); free(j->first_score); free(j->first_err);
+  free(j->score); free(j->first_score); free(j->first_err);
 }
 
 static twf_status check_options(const twf_calib_options *o, twf_error *err)
@@ -222,12 +222,11 @@ static twf_status job_alloc_result(job *j)
   twf_trace_init(&res->trace);
   res->n_meas = c->n_meas;
   res->meas_set = calloc(nm, sizeof *res->meas_set);
-  res->pos_err_before = calloc(3 * nm, sizeof(double));
-  res->angle_err_before = calloc(nm, sizeof(double));
   res->joint_range = calloc(j->start->n_joints ? j->start->n_joints : 1, sizeof(double));
-  /* pos_err_after and angle_err_after: at the as-built summary, so that
-   * they do not add to the registration's peak memory */
-  if (!res->meas_set || !res->pos_err_before || !res->angle_err_before || !res->joint_range)
+  /* the residuals before and after: at the as-built summary, so that they
+   * add neither to the registration's peak memory nor to the fit's and
+   * the screen's */
+  if (!res->meas_set || !res->joint_range)
     return nomem(j);
   return TWF_OK;
 }
@@ -349,11 +348,7 @@ static twf_status stage_registration(job *j)
     j->res->registration = rep.refinement;
     j->res->base_before = j->res->station_base_before[0];
   }
-  if (st != TWF_OK)
-    return st;
-  return twf_lsq_residuals(j->reg, j->res->station_base_before, j->c, twf_lsq_threads(j->opt.threads),
-                           j->res->pos_err_before,
-                           j->res->angle_err_before, j->err);
+  return st;
 }
 
 /* ------------------------------------------------------------ stage: the problem */
@@ -396,11 +391,10 @@ static twf_status stage_problem(job *j)
   j->rel = calloc(p ? p : 1, sizeof *j->rel);
   j->ratio = calloc(p ? p : 1, sizeof *j->ratio);
   j->score = calloc(nm, sizeof *j->score);
-  j->err_len = calloc(nm, sizeof *j->err_len);
   j->first_err = calloc(nm, sizeof *j->first_err);
   j->first_score = calloc(nm, sizeof *j->first_score);
   if (!j->res->params || !j->keep_struct || !j->keep || !j->order || !j->As || !j->Rf || !j->scales ||
-      !j->cov || !j->value || !j->rel || !j->ratio || !j->score || !j->err_len || !j->first_err ||
+      !j->cov || !j->value || !j->rel || !j->ratio || !j->score || !j->first_err ||
       !j->first_score)
     return nomem(j);
   for (k = 0; k < p; k++) {
@@ -641,12 +635,26 @@ static double *pose_torques(const twf_model *m, const twf_campaign *c, twf_statu
   return t;
 }
 
+/* Whether c has 6-D rows (or says so). */
+static int campaign_has_6d(const twf_campaign *c)
+{
+  size_t i;
+  if (c->has_orientation_any)
+    return 1;
+  for (i = 0; i < c->n_meas; i++)
+    if (c->meas[i].has_orientation)
+      return 1;
+  return 0;
+}
+
 /* Do the residuals of the rows the screen kept show a systematic pattern
  * (twistfit/pattern.h)? 1 yes, 0 no, -1 out of memory. */
 static int screened_pattern(job *j)
 {
   size_t i, nm = j->c->n_meas;
-  double *pos = malloc(3 * (nm ? nm : 1) * sizeof *pos), *rot = malloc((nm ? nm : 1) * sizeof *rot);
+  int six_d = campaign_has_6d(j->c);
+  double *pos = malloc(3 * (nm ? nm : 1) * sizeof *pos);
+  double *rot = six_d ? malloc((nm ? nm : 1) * sizeof *rot) : NULL; /* the angles: 6-D rows only */
   unsigned char *use = malloc(nm ? nm : 1);
   twf_pattern_options po = j->opt.pattern;
   twf_pattern_result pr;
@@ -655,9 +663,9 @@ static int screened_pattern(job *j)
   int found = -1;
   twf_error e;
   memset(&pr, 0, sizeof pr);
-  if (pos != NULL && rot != NULL && use != NULL && po.torque == NULL)
+  if (pos != NULL && (rot != NULL || !six_d) && use != NULL && po.torque == NULL)
     po.torque = torque = pose_torques(j->pr.m, &j->view, &st);
-  if (pos != NULL && rot != NULL && use != NULL && st == TWF_OK) {
+  if (pos != NULL && (rot != NULL || !six_d) && use != NULL && st == TWF_OK) {
     for (i = 0; i < nm; i++)
       use[i] = j->pr.use[i] && j->pr.weight[i] > 0.0;
     if (twf_lsq_residuals(j->pr.m, j->pr.base, &j->view, j->pr.n_threads, pos, rot, &e) == TWF_OK &&
@@ -745,7 +753,7 @@ static twf_status stage_robust(job *j)
       return st;
     if (res->robust_rounds >= 10)
       break;
-    if (twf_robust_screen(&j->pr, o->robust, o->robust_threshold, j->score, j->err_len, &changed) != TWF_OK)
+    if (twf_robust_screen(&j->pr, o->robust, o->robust_threshold, j->score, NULL, &changed) != TWF_OK)
       return nomem(j);
     if (changed > 0 && res->robust_rounds >= 9) {
       /* last refit with these weights */
@@ -755,12 +763,19 @@ static twf_status stage_robust(job *j)
       break;
     }
   }
+  /* only Cauchy lists by the final score (twf_robust_listed), the others
+   * by the weights: the scores go before the screen's limit check takes
+   * its memory */
+  if (o->robust != TWF_ROBUST_CAUCHY) {
+    free(j->score);
+    j->score = NULL;
+  }
   if ((st = screen_limit(j)) != TWF_OK)
     return st;
   st = list_outliers(j);
   /* the screen's per-measurement figures are in the outlier list now */
-  free(j->score); free(j->err_len); free(j->first_score); free(j->first_err);
-  j->score = j->err_len = j->first_score = j->first_err = NULL;
+  free(j->score); free(j->first_score); free(j->first_err);
+  j->score = j->first_score = j->first_err = NULL;
   return st;
 }
 
@@ -960,7 +975,7 @@ static twf_status mark_excluded(job *j)
 {
   twf_calib_result *res = j->res;
   size_t n = j->c->n_meas, i, k;
-  double *score = NULL, *len = NULL, *w = NULL;
+  double *score = NULL, *len = NULL;
   size_t changed;
   res->excluded = calloc(n ? n : 1, 1);
   if (res->excluded == NULL)
@@ -974,13 +989,12 @@ static twf_status mark_excluded(job *j)
     return TWF_OK;
   score = malloc((n ? n : 1) * sizeof *score);
   len = malloc((n ? n : 1) * sizeof *len);
-  w = malloc((n ? n : 1) * sizeof *w);
-  if (score == NULL || len == NULL || w == NULL)
+  if (score == NULL || len == NULL)
     goto nomem;
-  memcpy(w, j->pr.weight, n * sizeof *w);
+  /* the screen's new weights are not kept: the problem's rows are freed
+   * right after (stage_asbuilt), nothing reads them any more */
   if (twf_robust_screen(&j->pr, j->opt.robust, j->opt.robust_threshold, score, len, &changed) != TWF_OK)
     goto nomem;
-  memcpy(j->pr.weight, w, n * sizeof *w);
   for (i = 0; i < n; i++)
     if (res->meas_set[i] == TWF_SET_CHECK && score[i] > j->opt.robust_threshold) {
       res->excluded[i] = TWF_EXCLUDED_FLAGGED;
@@ -997,10 +1011,10 @@ static twf_status mark_excluded(job *j)
       res->check_flagged[k].weight = 1.0;
       k++;
     }
-  free(score); free(len); free(w);
+  free(score); free(len);
   return TWF_OK;
 nomem:
-  free(score); free(len); free(w);
+  free(score); free(len);
   return nomem(j);
 }
 
@@ -1078,10 +1092,31 @@ static twf_status stage_asbuilt(job *j)
   int set;
   twf_status st;
   size_t nm = j->c->n_meas ? j->c->n_meas : 1;
+  /* the check rows scored at the final model first, then the problem's
+   * per-measurement arrays are freed (no pass runs after the fit), and
+   * only then the residual arrays of the result: the three never add up
+   * (peak memory of a large campaign) */
+  twf_lsq_release_pose_index(&j->pr);
+  if ((st = mark_excluded(j)) != TWF_OK)
+    return st;
+  twf_lsq_release_rows(&j->pr);
+  res->pos_err_before = calloc(3 * nm, sizeof(double));
   res->pos_err_after = calloc(3 * nm, sizeof(double));
-  res->angle_err_after = calloc(nm, sizeof(double));
-  if (res->pos_err_after == NULL || res->angle_err_after == NULL)
+  if (res->pos_err_before == NULL || res->pos_err_after == NULL)
     return nomem(j);
+  /* the angles only when there are 6-D rows (else all NaN) */
+  if (campaign_has_6d(j->c)) {
+    res->angle_err_before = calloc(nm, sizeof(double));
+    res->angle_err_after = calloc(nm, sizeof(double));
+    if (res->angle_err_before == NULL || res->angle_err_after == NULL)
+      return nomem(j);
+  }
+  /* before: at the registered start model (j->reg, unchanged since the
+   * registration) and the registered base poses */
+  st = twf_lsq_residuals(j->reg, res->station_base_before, j->c, j->pr.n_threads, res->pos_err_before,
+                         res->angle_err_before, j->err);
+  if (st != TWF_OK)
+    return st;
   st = twf_lsq_residuals(j->pr.m, j->pr.base, j->c, j->pr.n_threads, res->pos_err_after,
                          res->angle_err_after, j->err);
   if (st != TWF_OK)
@@ -1122,8 +1157,6 @@ static twf_status stage_asbuilt(job *j)
   if ((st = joints_undetermined(j)) != TWF_OK)
     return st;
   comparison_restrict(j, lines_fitted);
-  if ((st = mark_excluded(j)) != TWF_OK)
-    return st;
   res->accuracy_before = twf_accuracy_summarize_kept(&j->view, j->start->n_targets, res->pos_err_before,
                                                      res->angle_err_before, res->excluded, j->opt.worst_poses, j->err);
   if (res->accuracy_before == NULL)

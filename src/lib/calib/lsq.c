@@ -66,6 +66,23 @@ void twf_lsq_model_assign(twf_model *dst, const twf_model *src)
   dst->home = src->home;
 }
 
+void twf_lsq_release_pose_index(twf_lsq_problem *pr)
+{
+  free(pr->pose_start);
+  free(pr->pose_meas);
+  pr->pose_start = NULL;
+  pr->pose_meas = NULL;
+}
+
+void twf_lsq_release_rows(twf_lsq_problem *pr)
+{
+  twf_lsq_release_pose_index(pr);
+  free(pr->inv_sigma);
+  free(pr->weight);
+  pr->inv_sigma = NULL;
+  pr->weight = NULL;
+}
+
 void twf_lsq_free(twf_lsq_problem *pr)
 {
   int t;
@@ -120,6 +137,13 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
     return err ? err->status : TWF_ERR_NOMEM;
   }
   pr->p = twf_errmodel_n_params(pr->em);
+  if (c->n_meas > TWF_CAMPAIGN_COUNT_MAX) {
+    twf_lsq_free(pr);
+    return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0,
+                         "calibrate from a subset of the poses",
+                         "a calibration takes at most %zu measurements, not %zu",
+                         (size_t)TWF_CAMPAIGN_COUNT_MAX, c->n_meas);
+  }
   pr->pose_start = calloc(n_poses + 1, sizeof *pr->pose_start);
   pr->pose_meas = calloc(c->n_meas ? c->n_meas : 1, sizeof *pr->pose_meas);
   pr->inv_sigma = calloc(c->n_meas ? c->n_meas : 1, sizeof *pr->inv_sigma);
@@ -141,7 +165,7 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
       goto nomem;
     memcpy(fill, pr->pose_start, (n_poses + 1) * sizeof *fill);
     for (i = 0; i < c->n_meas; i++)
-      pr->pose_meas[fill[c->meas[i].pose]++] = i;
+      pr->pose_meas[fill[c->meas[i].pose]++] = (uint32_t)i;
     free(fill);
   }
   for (i = 0; i < c->n_meas; i++) {
@@ -681,7 +705,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
         c0 = bt.c + 3 * bt.n * ld;
         w0 = bt.wc + 3 * bt.n * ld;
         r = bt.r[bt.n];
-        twf_quat_to_rot(ms->quat, Rm);
+        twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
         twf_errmodel_orientation_jinv(ws->em, Rm, r, Ji);
         w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
         *cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
@@ -786,7 +810,7 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
       if (ms->has_orientation) {
         double Rm[3][3], Ji[3][3], ro[3];
         sw = sqrt(pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot);
-        twf_quat_to_rot(ms->quat, Rm);
+        twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
         twf_errmodel_orientation_jinv(ws->em, Rm, ro, Ji);
         for (a = 0; a < ps->nc; a++) {
           const double *e = tw + 6 * ps->cd[a].j;
@@ -873,7 +897,7 @@ static void cost_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
         done = 1;
       }
       w = pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i];
-      if (twf_meas_residual(&T, m->targets[ms->target].offset, ms, r, v)) {
+      if (twf_meas_residual(&T, m->targets[ms->target].offset, ms, twf_campaign_meas_quat(c, i), r, v)) {
         cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
         w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
         cost += 0.5 * w * twf_v3_dot(v, v);

@@ -24,7 +24,7 @@ typedef struct twf_lsq_problem {
   twf_errmodel *em;
   size_t p;
   size_t *pose_start;      /* measurements grouped by pose (CSR) */
-  size_t *pose_meas;
+  uint32_t *pose_meas;     /* 32-bit: at most TWF_CAMPAIGN_COUNT_MAX measurements */
   double *inv_sigma;       /* per measurement, 1/m */
   double inv_sigma_rot;    /* 1/rad */
   double sigma_len;        /* typical sigma of a coordinate, m */
@@ -71,6 +71,15 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
                         unsigned groups, const unsigned char *use, double sigma_length,
                         double sigma_angle, twf_error *err);
 void twf_lsq_free(twf_lsq_problem *pr);
+/* Free the per-measurement arrays (the pose grouping, sigmas and weights)
+ * once no pass over the measurements runs any more, so that the figures
+ * computed after the fit do not add to them; pr keeps its model, base
+ * poses and normal matrix. No pass, screen or residual of pr may run
+ * after. */
+void twf_lsq_release_rows(twf_lsq_problem *pr);
+/* Free only the pose grouping (pose_start, pose_meas): the screen and the
+ * residuals do not need it, the passes do. */
+void twf_lsq_release_pose_index(twf_lsq_problem *pr);
 
 /* The thread count of a request: n itself, or for 0 one per online core
  * (at most TWF_LSQ_THREADS_MAX). */

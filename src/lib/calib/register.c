@@ -10,6 +10,7 @@
  * caller's next step (see twistfit.h). */
 #include "internal.h"
 
+#include <stddef.h>
 #include <stdlib.h>
 
 #include <gsl/gsl_errno.h>
@@ -38,9 +39,33 @@ typedef enum reg_outcome {
   REG_NUMERIC     /* the SVD failed (non-finite input) */
 } reg_outcome;
 
+/* A cloud of n points: point i is the 3 doubles at base + stride * k
+ * bytes, k = index[i] (k = i when index is NULL). The campaign's measured
+ * points are read where they lie, the fit rows through their indices, so
+ * that the registration keeps no copy of them. */
+typedef struct reg_cloud {
+  const char *base;
+  size_t stride;
+  const size_t *index;
+} reg_cloud;
+
+static inline const double *cloud_pt(const reg_cloud *x, size_t i)
+{
+  return (const double *)(const void *)(x->base + x->stride * (x->index != NULL ? x->index[i] : i));
+}
+
+static reg_cloud cloud_of_array(const double *a)
+{
+  reg_cloud x;
+  x.base = (const char *)a;
+  x.stride = 3 * sizeof *a;
+  x.index = NULL;
+  return x;
+}
+
 /* Weighted scatter statistics of one cloud: centroid and the singular
  * values of the centred cloud, largest first. */
-static int cloud_shape(const double *x, const double *w, size_t n,
+static int cloud_shape(const reg_cloud *x, const double *w, size_t n,
                        double sumw, double centroid[3], double sv[3],
                        double *rms_size)
 {
@@ -55,18 +80,21 @@ static int cloud_shape(const double *x, const double *w, size_t n,
   centroid[0] = centroid[1] = centroid[2] = 0.0;
   for (i = 0; i < n; i++) {
     double wi = w ? w[i] : 1.0;
+    const double *xi = cloud_pt(x, i);
     for (c = 0; c < 3; c++)
-      centroid[c] += wi * x[3 * i + (size_t)c];
+      centroid[c] += wi * xi[c];
   }
   for (c = 0; c < 3; c++)
     centroid[c] /= sumw;
   for (i = 0; i < n; i++) {
     double wi = w ? w[i] : 1.0, d[3];
+    const double *xi;
     if (wi == 0.0)
       continue;
+    xi = cloud_pt(x, i);
     for (c = 0; c < 3; c++) {
-      d[c] = x[3 * i + (size_t)c] - centroid[c];
-      ss += wi * x[3 * i + (size_t)c] * x[3 * i + (size_t)c];
+      d[c] = xi[c] - centroid[c];
+      ss += wi * xi[c] * xi[c];
     }
     for (r = 0; r < 3; r++)
       for (c = 0; c < 3; c++)
@@ -82,7 +110,7 @@ static int cloud_shape(const double *x, const double *w, size_t n,
   return 0;
 }
 
-static reg_outcome cloud_check(const double *x, const double *w, size_t n,
+static reg_outcome cloud_check(const reg_cloud *x, const double *w, size_t n,
                                double sumw, double centroid[3])
 {
   double sv[3], size;
@@ -98,7 +126,7 @@ static reg_outcome cloud_check(const double *x, const double *w, size_t n,
 }
 
 /* The core: *which receives 0 when cloud a decided the outcome, 1 for b. */
-static reg_outcome register_core(const double *a, const double *b,
+static reg_outcome register_core(const reg_cloud *a, const reg_cloud *b,
                                  const double *w, size_t n, twf_pose *T,
                                  size_t *n_pos, int *which)
 {
@@ -136,11 +164,14 @@ static reg_outcome register_core(const double *a, const double *b,
    * a reflection, also for coplanar clouds where s3 = 0). */
   for (i = 0; i < n; i++) {
     double wi = w ? w[i] : 1.0, da[3], db[3];
+    const double *ai, *bi;
     if (wi == 0.0)
       continue;
+    ai = cloud_pt(a, i);
+    bi = cloud_pt(b, i);
     for (c = 0; c < 3; c++) {
-      da[c] = a[3 * i + (size_t)c] - ca[c];
-      db[c] = b[3 * i + (size_t)c] - cb[c];
+      da[c] = ai[c] - ca[c];
+      db[c] = bi[c] - cb[c];
     }
     for (r = 0; r < 3; r++)
       for (c = 0; c < 3; c++)
@@ -198,6 +229,7 @@ twf_status twf_register_points(const double *a, const double *b,
                                twf_error *err)
 {
   size_t n_pos, i;
+  reg_outcome rc;
   int which;
   twf_status st;
 
@@ -215,7 +247,11 @@ twf_status twf_register_points(const double *a, const double *b,
       return twf_error_set(err, TWF_ERR_VALUE, NULL, 0, 0, NULL,
                            "coordinate %zu of point %zu is not finite",
                            i % 3, i / 3);
-  switch (register_core(a, b, w, n, T, &n_pos, &which)) {
+  {
+    reg_cloud ca = cloud_of_array(a), cb = cloud_of_array(b);
+    rc = register_core(&ca, &cb, w, n, T, &n_pos, &which);
+  }
+  switch (rc) {
   case REG_OK:
     return TWF_OK;
   case REG_TOO_FEW:
@@ -299,16 +335,13 @@ typedef struct reg_work {
   size_t *meas;       /* their indices in the campaign */
   double *w;          /* weights */
   double *a;          /* predicted target points, base frame */
-  double *y;          /* measured points, tracker frame */
-  double *pred;       /* predicted points, tracker frame, last alternation */
   twf_pose *flange;   /* flange pose in the base frame, per campaign pose */
   unsigned char *pose_used;
   size_t n_poses_used;
   int *fitted;        /* per target: offset fitted */
   double *t_sum;      /* per target: accumulators of the offset solve */
   double *t_w;
-  size_t *sta;        /* station of each fit-set measurement */
-  double *w_sta;      /* weights masked to one station */
+  double *w_sta;      /* weights masked to one station (several only) */
 } reg_work;
 
 static void reg_work_free(reg_work *wk)
@@ -316,14 +349,11 @@ static void reg_work_free(reg_work *wk)
   free(wk->meas);
   free(wk->w);
   free(wk->a);
-  free(wk->y);
-  free(wk->pred);
   free(wk->flange);
   free(wk->pose_used);
   free(wk->fitted);
   free(wk->t_sum);
   free(wk->t_w);
-  free(wk->sta);
   free(wk->w_sta);
 }
 
@@ -420,7 +450,7 @@ static void solve_offsets(reg_work *wk, const twf_campaign *c,
   for (i = 0; i < wk->n; i++) {
     const twf_measurement *me = &c->meas[wk->meas[i]];
     const twf_pose *F = &wk->flange[me->pose];
-    const twf_pose *B = &Bs[wk->sta[i]];
+    const twf_pose *B = &Bs[twf_campaign_pose_station(c, me->pose)];
     double d[3], z[3];
     k = me->target;
     if (!wk->fitted[k])
@@ -550,8 +580,8 @@ twf_status twf_register_campaign(const twf_model *model,
   const twf_register_options *o = options ? options : &def;
   reg_work wk;
   twf_register_report rep;
-  twf_pose B[TWF_STATIONS_MAX];
-  double *offsets = NULL;
+  twf_pose B[TWF_STATIONS_MAX], B_prev[TWF_STATIONS_MAX];
+  double *offsets = NULL, *offsets_prev = NULL;
   size_t *fit_count = NULL, *check_count = NULL;
   size_t i, k, nt, nj, n_st, sp;
   size_t sta_poses[TWF_STATIONS_MAX];
@@ -590,10 +620,11 @@ twf_status twf_register_campaign(const twf_model *model,
   wk.t_sum = calloc(nt ? 3 * nt : 1, sizeof *wk.t_sum);
   wk.t_w = calloc(nt ? nt : 1, sizeof *wk.t_w);
   offsets = malloc((nt ? 3 * nt : 1) * sizeof *offsets);
+  offsets_prev = malloc((nt ? 3 * nt : 1) * sizeof *offsets_prev);
   fit_count = calloc(nt ? nt : 1, sizeof *fit_count);
   check_count = calloc(nt ? nt : 1, sizeof *check_count);
   wk.pose_used = calloc(campaign->n_poses ? campaign->n_poses : 1, 1);
-  if (!wk.fitted || !wk.t_sum || !wk.t_w || !offsets || !fit_count
+  if (!wk.fitted || !wk.t_sum || !wk.t_w || !offsets || !offsets_prev || !fit_count
       || !check_count || !wk.pose_used) {
     st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL,
                        "out of memory for the registration");
@@ -608,7 +639,7 @@ twf_status twf_register_campaign(const twf_model *model,
       st = twf_error_set(err, TWF_ERR_INVALID, NULL, me->line, 0, NULL,
                          "measurement %zu refers to pose %zu / target %zu, "
                          "beyond the campaign's %zu poses or the model's "
-                         "%zu targets", i, me->pose, me->target,
+                         "%zu targets", i, (size_t)me->pose, (size_t)me->target,
                          campaign->n_poses, nt);
       goto done;
     }
@@ -640,12 +671,10 @@ twf_status twf_register_campaign(const twf_model *model,
   wk.meas = malloc((wk.n ? wk.n : 1) * sizeof *wk.meas);
   wk.w = malloc((wk.n ? wk.n : 1) * sizeof *wk.w);
   wk.a = malloc((wk.n ? 3 * wk.n : 1) * sizeof *wk.a);
-  wk.y = malloc((wk.n ? 3 * wk.n : 1) * sizeof *wk.y);
-  wk.pred = malloc((wk.n ? 3 * wk.n : 1) * sizeof *wk.pred);
   wk.flange = malloc((campaign->n_poses ? campaign->n_poses : 1) * sizeof *wk.flange);
-  wk.sta = malloc((wk.n ? wk.n : 1) * sizeof *wk.sta);
-  wk.w_sta = malloc((wk.n ? wk.n : 1) * sizeof *wk.w_sta);
-  if (!wk.meas || !wk.w || !wk.a || !wk.y || !wk.pred || !wk.flange || !wk.sta || !wk.w_sta) {
+  if (n_st > 1)
+    wk.w_sta = malloc((wk.n ? wk.n : 1) * sizeof *wk.w_sta);
+  if (!wk.meas || !wk.w || !wk.a || !wk.flange || (n_st > 1 && !wk.w_sta)) {
     st = twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL,
                        "out of memory for the registration");
     goto done;
@@ -662,13 +691,11 @@ twf_status twf_register_campaign(const twf_model *model,
         goto done;
       }
       wk.meas[j] = i;
-      wk.sta[j] = twf_campaign_pose_station(campaign, me->pose);
-      twf_v3_copy(me->pos, wk.y + 3 * j);
       j++;
       if (!wk.pose_used[me->pose]) {
         wk.pose_used[me->pose] = 1;
         wk.n_poses_used++;
-        sta_poses[wk.sta[j - 1]]++;
+        sta_poses[twf_campaign_pose_station(campaign, me->pose)]++;
         twf_model_fk_load(model, campaign->q + me->pose * nj,
                           twf_campaign_payload(campaign, me->pose), NULL,
                           &wk.flange[me->pose]);
@@ -705,10 +732,15 @@ twf_status twf_register_campaign(const twf_model *model,
       const double *w = wk.w;
       if (n_st > 1) {
         for (i = 0; i < wk.n; i++)
-          wk.w_sta[i] = wk.sta[i] == sp ? wk.w[i] : 0.0;
+          wk.w_sta[i] = twf_campaign_pose_station(campaign, campaign->meas[wk.meas[i]].pose) == sp
+                            ? wk.w[i] : 0.0;
         w = wk.w_sta;
       }
-      oc = register_core(wk.a, wk.y, w, wk.n, &B[sp], &n_pos, &which);
+      reg_cloud ca = cloud_of_array(wk.a), cy;
+      cy.base = (const char *)campaign->meas + offsetof(twf_measurement, pos);
+      cy.stride = sizeof *campaign->meas;
+      cy.index = wk.meas;
+      oc = register_core(&ca, &cy, w, wk.n, &B[sp], &n_pos, &which);
     }
     if (oc != REG_OK) {
       st = degenerate_message(model, &wk, oc, n_pos, which,
@@ -727,17 +759,23 @@ twf_status twf_register_campaign(const twf_model *model,
     }
     solve_offsets(&wk, campaign, B, nt, offsets);
     predict_points(&wk, campaign, offsets);
-    for (i = 0; i < wk.n; i++) {
-      double yp[3], d[3];
-      twf_pose_apply(&B[wk.sta[i]], wk.a + 3 * i, yp);
-      if (rep.iterations > 1) { /* no previous prediction before */
-        d[0] = yp[0] - wk.pred[3 * i];
-        d[1] = yp[1] - wk.pred[3 * i + 1];
-        d[2] = yp[2] - wk.pred[3 * i + 2];
-        change = fmax(change, twf_v3_norm(d));
-      }
-      twf_v3_copy(yp, wk.pred + 3 * i);
+    /* the last alternation's prediction is recomputed from its base poses
+     * and offsets (the same operations, so the same bits) rather than
+     * kept per measurement */
+    for (i = 0; i < wk.n && rep.iterations > 1; i++) { /* no previous prediction before */
+      const twf_measurement *me = &campaign->meas[wk.meas[i]];
+      size_t s = twf_campaign_pose_station(campaign, me->pose);
+      double yp[3], ap[3], pp[3], d[3];
+      twf_pose_apply(&B[s], wk.a + 3 * i, yp);
+      flange_point(&wk.flange[me->pose], offsets_prev + 3 * me->target, ap);
+      twf_pose_apply(&B_prev[s], ap, pp);
+      d[0] = yp[0] - pp[0];
+      d[1] = yp[1] - pp[1];
+      d[2] = yp[2] - pp[2];
+      change = fmax(change, twf_v3_norm(d));
     }
+    memcpy(B_prev, B, n_st * sizeof *B);
+    memcpy(offsets_prev, offsets, 3 * nt * sizeof *offsets);
     if (rep.iterations > 1) {
       rep.last_change_m = change;
       if (change <= o->tol_m) {
@@ -753,11 +791,12 @@ twf_status twf_register_campaign(const twf_model *model,
   {
     double ss = 0.0, mx = 0.0;
     for (i = 0; i < wk.n; i++) {
+      const twf_measurement *me = &campaign->meas[wk.meas[i]];
       double yp[3], d[3], l;
-      twf_pose_apply(&B[wk.sta[i]], wk.a + 3 * i, yp);
-      d[0] = wk.y[3 * i] - yp[0];
-      d[1] = wk.y[3 * i + 1] - yp[1];
-      d[2] = wk.y[3 * i + 2] - yp[2];
+      twf_pose_apply(&B[twf_campaign_pose_station(campaign, me->pose)], wk.a + 3 * i, yp);
+      d[0] = me->pos[0] - yp[0];
+      d[1] = me->pos[1] - yp[1];
+      d[2] = me->pos[2] - yp[2];
       l = twf_v3_norm(d);
       ss += l * l;
       mx = fmax(mx, l);
@@ -789,6 +828,7 @@ twf_status twf_register_campaign(const twf_model *model,
 done:
   reg_work_free(&wk);
   free(offsets);
+  free(offsets_prev);
   free(fit_count);
   free(check_count);
   return st;

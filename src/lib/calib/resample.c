@@ -88,9 +88,18 @@ static void refit(boot *b, size_t k)
     if (rc->pose_payload != NULL)
       rc->pose_payload[pose] = twf_campaign_payload(c, src);
     for (t = t0; t < t1; t++) {
-      rc->meas[mi] = c->meas[fit ? b->fit_meas[t] : b->check_meas[t]];
-      rc->meas[mi].pose = pose;
+      size_t from = fit ? b->fit_meas[t] : b->check_meas[t];
+      rc->meas[mi] = c->meas[from];
+      rc->meas[mi].pose = (uint32_t)pose;
       rc->meas[mi].set = fit ? TWF_SET_FIT : TWF_SET_CHECK;
+      rc->meas[mi].has_orientation = 0;
+      rc->meas[mi].quat_slot = 0;
+      if (c->meas[from].has_orientation &&
+          twf_campaign_meas_set_quat(rc, mi, twf_campaign_meas_quat(c, from)) != TWF_OK) {
+        twf_campaign_free(rc);
+        rc = NULL;
+        goto done;
+      }
       mi++;
     }
   }

@@ -70,25 +70,38 @@ twf_status twf_robust_screen(twf_lsq_problem *pr, twf_robust mode, double k, dou
 {
   const twf_campaign *c = pr->c;
   size_t i, cap = c->n_meas ? c->n_meas : 1;
-  double *pos = malloc(3 * cap * sizeof *pos);
-  double *rot = malloc(cap * sizeof *rot);
+  int six_d = 0;
+  double *pos, *rot = NULL, *len, *own_len = NULL;
   double s, s_rot;
   twf_status st = TWF_ERR_NOMEM;
   *changed = 0;
-  if (pos == NULL || rot == NULL || twf_lsq_residuals(pr->m, pr->base, c, pr->n_threads, pos, rot, NULL) != TWF_OK)
+  for (i = 0; i < c->n_meas && !six_d; i++)
+    six_d = c->meas[i].has_orientation;
+  /* Without 6-D rows neither the rotation errors nor their workspace
+   * exist, and the error lengths, when the caller does not want them,
+   * wait in score (each entry is read before its score is written). */
+  pos = malloc(3 * cap * sizeof *pos);
+  if (six_d)
+    rot = malloc(cap * sizeof *rot);
+  len = err_len;
+  if (len == NULL)
+    len = six_d ? (own_len = malloc(cap * sizeof *own_len)) : score;
+  if (pos == NULL || (six_d && rot == NULL) || len == NULL ||
+      twf_lsq_residuals(pr->m, pr->base, c, pr->n_threads, pos, rot, NULL) != TWF_OK)
     goto done;
   for (i = 0; i < c->n_meas; i++)
-    err_len[i] = sqrt(pos[3 * i] * pos[3 * i] + pos[3 * i + 1] * pos[3 * i + 1] +
-                      pos[3 * i + 2] * pos[3 * i + 2]);
+    len[i] = sqrt(pos[3 * i] * pos[3 * i] + pos[3 * i + 1] * pos[3 * i + 1] +
+                  pos[3 * i + 2] * pos[3 * i + 2]);
   /* score takes the rotation errors, and the residuals become the
    * workspace of the scales in place (robust_scales writes entry n <= 3 i
    * only after reading entry 3 i): no arrays of the campaign's size beyond
    * these two */
-  memcpy(score, rot, c->n_meas * sizeof *score);
+  if (six_d)
+    memcpy(score, rot, c->n_meas * sizeof *score);
   robust_scales(pr, pos, score, pos, rot, &s, &s_rot);
   for (i = 0; i < c->n_meas; i++) {
-    double len = err_len[i];
-    double u = len * pr->inv_sigma[i] / s, w;
+    double len_i = len[i];
+    double u = len_i * pr->inv_sigma[i] / s, w;
     if (c->meas[i].has_orientation && s_rot > 0)
       u = fmax(u, score[i] * pr->inv_sigma_rot / s_rot);
     score[i] = u;
@@ -105,6 +118,7 @@ twf_status twf_robust_screen(twf_lsq_problem *pr, twf_robust mode, double k, dou
 done:
   free(pos);
   free(rot);
+  free(own_len);
   return st;
 }
 

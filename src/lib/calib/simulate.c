@@ -101,8 +101,8 @@ twf_campaign *twf_simulate_campaign(const twf_model *truth, const twf_pose *base
       if (!truth->targets[k].offset_known || (opt.targets != NULL && !opt.targets[k]))
         continue;
       ms = &c->meas[mi++];
-      ms->pose = i;
-      ms->target = k;
+      ms->pose = (uint32_t)i;
+      ms->target = (uint32_t)k;
       twf_pose_apply(&T, truth->targets[k].offset, ms->pos);
       for (a = 0; a < 3; a++)
         ms->pos[a] += opt.sigma_m * twf_rng_gauss(&state);
@@ -118,9 +118,8 @@ twf_campaign *twf_simulate_campaign(const twf_model *truth, const twf_pose *base
       }
       ms->sigma = 0.0;
       ms->set = check ? TWF_SET_CHECK : TWF_SET_FIT;
-      ms->has_orientation = opt.orientation;
       if (opt.orientation) {
-        double w[3], E[3][3], R[3][3];
+        double w[3], E[3][3], R[3][3], quat[4];
         int b, d;
         for (a = 0; a < 3; a++)
           w[a] = opt.sigma_rad * twf_rng_gauss(&state);
@@ -131,8 +130,11 @@ twf_campaign *twf_simulate_campaign(const twf_model *truth, const twf_pose *base
             for (d = 0; d < 3; d++)
               R[a][b] += E[a][d] * T.R[d][b];
           }
-        twf_rot_to_quat(R, ms->quat);
-        c->has_orientation_any = 1;
+        twf_rot_to_quat(R, quat);
+        if (twf_campaign_meas_set_quat(c, mi - 1, quat) != TWF_OK) {
+          twf_campaign_free(c);
+          return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory"), NULL;
+        }
       }
     }
   }

@@ -22,8 +22,11 @@ twf_campaign_options twf_campaign_default_options(void)
 
 twf_campaign *twf_campaign_alloc(size_t n_joints, size_t n_poses, size_t n_meas)
 {
-  twf_campaign *c = calloc(1, sizeof *c);
+  twf_campaign *c;
   size_t k;
+  if (n_poses > TWF_CAMPAIGN_COUNT_MAX)
+    return NULL;
+  c = calloc(1, sizeof *c);
   if (c == NULL)
     return NULL;
   c->n_joints = n_joints;
@@ -37,11 +40,46 @@ twf_campaign *twf_campaign_alloc(size_t n_joints, size_t n_poses, size_t n_meas)
     twf_campaign_free(c);
     return NULL;
   }
-  for (k = 0; k < n_meas; k++) {
-    c->meas[k].quat[0] = 1.0;
+  for (k = 0; k < n_meas; k++)
     c->meas[k].set = TWF_SET_FIT;
-  }
   return c;
+}
+
+const double *twf_campaign_meas_quat(const twf_campaign *c, size_t i)
+{
+  static const double identity[4] = {1.0, 0.0, 0.0, 0.0};
+  const twf_measurement *ms;
+  if (c == NULL || i >= c->n_meas)
+    return identity;
+  ms = &c->meas[i];
+  if (!ms->has_orientation || ms->quat_slot == 0 || ms->quat_slot > c->n_quat)
+    return identity;
+  return c->meas_quat[ms->quat_slot - 1];
+}
+
+twf_status twf_campaign_meas_set_quat(twf_campaign *c, size_t i, const double quat[4])
+{
+  twf_measurement *ms;
+  if (c == NULL || quat == NULL || i >= c->n_meas)
+    return TWF_ERR_INVALID;
+  ms = &c->meas[i];
+  if (ms->quat_slot == 0 || ms->quat_slot > c->n_quat) {
+    if (c->n_quat >= TWF_CAMPAIGN_COUNT_MAX)
+      return TWF_ERR_INVALID;
+    if (c->n_quat == c->cap_quat) {
+      size_t cap = c->cap_quat ? 2 * c->cap_quat : 16;
+      double(*grown)[4] = realloc(c->meas_quat, cap * sizeof *grown);
+      if (grown == NULL)
+        return TWF_ERR_NOMEM;
+      c->meas_quat = grown;
+      c->cap_quat = cap;
+    }
+    ms->quat_slot = (uint32_t)(++c->n_quat);
+  }
+  memcpy(c->meas_quat[ms->quat_slot - 1], quat, sizeof c->meas_quat[0]);
+  ms->has_orientation = 1;
+  c->has_orientation_any = 1;
+  return TWF_OK;
 }
 
 void twf_campaign_free(twf_campaign *c)
@@ -53,6 +91,7 @@ void twf_campaign_free(twf_campaign *c)
   free(c->pose_lines);
   free(c->pose_payload);
   free(c->meas);
+  free(c->meas_quat);
   free(c->station_names);
   free(c->pose_station);
   free(c);

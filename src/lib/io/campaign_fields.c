@@ -244,7 +244,7 @@ twf_status twf_creader_field_target(creader *r, const twf_csv_row *row,
   t = twf_model_target_index(r->m, name);
   if (t >= 0) {
     *out = (size_t)t;
-    return TWF_OK;
+    return twf_creader_count_check(r, row, *out, TWF_CAMPAIGN_COUNT_MAX, "targets");
   }
   if (r->m->n_targets == 0)
     return twf_creader_error(r, row, col, TWF_ERR_UNKNOWN,
@@ -344,12 +344,15 @@ twf_status twf_creader_field_set(creader *r, const twf_csv_row *row, int *set)
 }
 
 twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
-                                  twf_measurement *ms, int *set)
+                                  twf_measurement *ms, double quat[4], int *set)
 {
   twf_status st;
   int i;
   memset(ms, 0, sizeof *ms);
-  ms->quat[0] = 1.0;
+  quat[0] = 1.0;
+  quat[1] = quat[2] = quat[3] = 0.0;
+  if ((st = twf_creader_line_check(r, row)) != TWF_OK)
+    return st;
   for (i = 0; i < 3; i++) {
     double v;
     st = field_number(r, row, r->col[COL_X + i], &v);
@@ -376,21 +379,21 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
     if (n_empty == 0) {
       double norm;
       for (i = 0; i < 4; i++) {
-        st = field_number(r, row, r->col[COL_QW + i], &ms->quat[i]);
+        st = field_number(r, row, r->col[COL_QW + i], &quat[i]);
         if (st != TWF_OK)
           return st;
       }
-      if (!twf_io_quat_is_unit(ms->quat, &norm)) {
+      if (!twf_io_quat_is_unit(quat, &norm)) {
         char what[160], msg[TWF_ERROR_TEXT_MAX];
-        snprintf(what, sizeof what, "the quaternion (%.9g %.9g %.9g %.9g)", ms->quat[0], ms->quat[1],
-                 ms->quat[2], ms->quat[3]);
+        snprintf(what, sizeof what, "the quaternion (%.9g %.9g %.9g %.9g)", quat[0], quat[1],
+                 quat[2], quat[3]);
         return twf_creader_error(r, row, r->col[COL_QW], TWF_ERR_VALUE,
                                  "check the column order (qw qx qy qz) and write the "
                                  "quaternion with at least 7 significant digits",
                                  "%s", twf_io_quat_norm_message(msg, sizeof msg, what, norm));
       }
       for (i = 0; i < 4; i++)
-        ms->quat[i] /= norm;
+        quat[i] /= norm;
       ms->has_orientation = 1;
     }
   }
@@ -423,6 +426,6 @@ twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
   if (st != TWF_OK)
     return st;
   ms->set = *set == TWF_SET_CHECK ? TWF_SET_CHECK : TWF_SET_FIT;
-  ms->line = row->line;
+  ms->line = (uint32_t)row->line;
   return TWF_OK;
 }

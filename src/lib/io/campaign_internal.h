@@ -148,7 +148,18 @@ twf_campaign *twf_creader_end(creader *r, twf_status st);
 twf_status twf_creader_read_file(creader *r, const char *path, file_kind kind);
 twf_status twf_creader_pose_add(creader *r, const char *id, const double *q,
                                 long line, size_t *index);
-twf_status twf_creader_meas_add(creader *r, const twf_measurement *ms);
+/* Append ms, and quat (w x y z) to the side array when ms is a 6-D row. */
+twf_status twf_creader_meas_add(creader *r, const twf_measurement *ms,
+                                const double quat[4]);
+/* The campaign's 32-bit counts (TWF_CAMPAIGN_COUNT_MAX): value, the
+ * number of poses, of 6-D rows or a source line, must not exceed max;
+ * else TWF_ERR_VALUE at row (may be NULL) naming what. max is
+ * TWF_CAMPAIGN_COUNT_MAX in the readers (a parameter so that a test can
+ * reach the limit). */
+twf_status twf_creader_count_check(creader *r, const twf_csv_row *row,
+                                   size_t value, size_t max, const char *what);
+/* The row's line fits a measurement's 32-bit line. */
+twf_status twf_creader_line_check(creader *r, const twf_csv_row *row);
 /* A (pose, target) pair may appear once. */
 twf_status twf_creader_pair_check(creader *r, const twf_csv_row *row,
                                   size_t pose, size_t target);
@@ -175,8 +186,10 @@ twf_status twf_creader_field_payload(creader *r, const twf_csv_row *row,
                                      size_t pose, int first_row);
 /* set: -1 when absent or empty. */
 twf_status twf_creader_field_set(creader *r, const twf_csv_row *row, int *set);
+/* The position, orientation (quat, (1 0 0 0) for a point row), sigma
+ * and set of a row. */
 twf_status twf_creader_field_meas(creader *r, const twf_csv_row *row,
-                                  twf_measurement *ms, int *set);
+                                  twf_measurement *ms, double quat[4], int *set);
 
 /* A comment line p..le below the header with exactly the shape of a data
  * row: as many fields as the header, numbers where numbers belong. Counts

@@ -34,12 +34,13 @@ twf_status twf_creader_row_points(creader *r, const twf_csv_row *row)
   char id[TWF_NAME_MAX];
   size_t target, pose;
   twf_measurement ms;
+  double quat[4];
   int set;
   twf_status st;
   if ((st = twf_creader_check_nf(r, row)) != TWF_OK ||
       (st = twf_creader_field_id(r, row, r->col[COL_POSE], id, "pose id")) != TWF_OK ||
       (st = twf_creader_field_target(r, row, &target)) != TWF_OK ||
-      (st = twf_creader_field_meas(r, row, &ms, &set)) != TWF_OK)
+      (st = twf_creader_field_meas(r, row, &ms, quat, &set)) != TWF_OK)
     return st;
   pose = twf_idmap_find(&r->poses, r->c->pose_ids, id);
   if (pose == NONE) {
@@ -59,11 +60,11 @@ twf_status twf_creader_row_points(creader *r, const twf_csv_row *row)
   if ((st = twf_creader_pair_check(r, row, pose, target)) != TWF_OK)
     return st;
   if (set < 0 && r->pose_set[pose] >= 0)
-    ms.set = (twf_meas_set)r->pose_set[pose];
-  ms.pose = pose;
-  ms.target = target;
+    ms.set = (uint8_t)r->pose_set[pose];
+  ms.pose = (uint32_t)pose;
+  ms.target = (uint32_t)target;
   r->pose_npts[pose]++;
-  return twf_creader_meas_add(r, &ms);
+  return twf_creader_meas_add(r, &ms, quat);
 }
 
 twf_campaign *twf_campaign_read_pair(const char *joints_path,
@@ -141,7 +142,7 @@ twf_campaign *twf_campaign_read_pair(const char *joints_path,
             kept++;
           }
           for (i = 0; i < r.c->n_meas; i++)
-            r.c->meas[i].pose = map[r.c->meas[i].pose];
+            r.c->meas[i].pose = (uint32_t)map[r.c->meas[i].pose];
           r.c->n_poses = kept;
           free(map);
         }

@@ -32,12 +32,36 @@ const char *twf_creader_colname(const creader *r, long col)
   return col > 0 && (size_t)col <= r->nh ? r->hname[col - 1] : "?";
 }
 
+twf_status twf_creader_count_check(creader *r, const twf_csv_row *row,
+                                   size_t value, size_t max, const char *what)
+{
+  if (value <= max)
+    return TWF_OK;
+  return twf_creader_error(r, row, 0, TWF_ERR_VALUE,
+                           "split the campaign into several files and calibrate from a "
+                           "subset of the poses",
+                           "the campaign holds more %s than the %zu a campaign can hold",
+                           what, max);
+}
+
+twf_status twf_creader_line_check(creader *r, const twf_csv_row *row)
+{
+  return twf_creader_count_check(r, row, row->line > 0 ? (size_t)row->line : 0,
+                                 TWF_CAMPAIGN_COUNT_MAX, "lines");
+}
+
 twf_status twf_creader_pose_add(creader *r, const char *id, const double *q,
                                 long line, size_t *index)
 {
   twf_campaign *c = r->c;
   size_t nj = c->n_joints, nt = r->m->n_targets, n = c->n_poses + 1, k;
   size_t old_pt = r->cap_pt;
+  if (n > TWF_CAMPAIGN_COUNT_MAX)
+    return twf_error_set(r->err, TWF_ERR_VALUE, r->path, line, 0,
+                         "split the campaign into several files and calibrate from a "
+                         "subset of the poses",
+                         "the campaign holds more poses than the %zu a campaign can hold",
+                         (size_t)TWF_CAMPAIGN_COUNT_MAX);
   if (twf_io_grow((void **)&c->pose_ids, &r->cap_ids, n, sizeof *c->pose_ids) ||
       twf_io_grow((void **)&c->q, &r->cap_q, n * (nj ? nj : 1), sizeof *c->q) ||
       twf_io_grow((void **)&c->pose_lines, &r->cap_lines, n, sizeof *c->pose_lines) ||
@@ -59,13 +83,27 @@ twf_status twf_creader_pose_add(creader *r, const char *id, const double *q,
   return TWF_OK;
 }
 
-twf_status twf_creader_meas_add(creader *r, const twf_measurement *ms)
+twf_status twf_creader_meas_add(creader *r, const twf_measurement *ms,
+                                const double quat[4])
 {
   twf_campaign *c = r->c;
+  twf_status st;
   if (twf_io_grow((void **)&c->meas, &r->cap_meas, c->n_meas + 1, sizeof *c->meas))
     return twf_creader_nomem(r);
-  c->meas[c->n_meas++] = *ms;
-  return TWF_OK;
+  c->meas[c->n_meas] = *ms;
+  c->meas[c->n_meas].has_orientation = 0;
+  c->meas[c->n_meas].quat_slot = 0;
+  c->n_meas++;
+  if (!ms->has_orientation)
+    return TWF_OK;
+  if (c->n_quat >= TWF_CAMPAIGN_COUNT_MAX)
+    return twf_error_set(r->err, TWF_ERR_VALUE, r->path, (long)ms->line, 0,
+                         "split the campaign into several files and calibrate from a "
+                         "subset of the poses",
+                         "the campaign holds more 6-D rows than the %zu a campaign can hold",
+                         (size_t)TWF_CAMPAIGN_COUNT_MAX);
+  st = twf_campaign_meas_set_quat(c, c->n_meas - 1, quat);
+  return st == TWF_OK ? TWF_OK : twf_creader_nomem(r);
 }
 
 /* A (pose, target) pair may appear once. */
@@ -95,13 +133,14 @@ static twf_status row_one(creader *r, const twf_csv_row *row)
   char id[TWF_NAME_MAX];
   size_t target, pose, j, nj = r->m->n_joints;
   twf_measurement ms;
+  double quat[4];
   int set;
   twf_status st;
   if ((st = twf_creader_check_nf(r, row)) != TWF_OK ||
       (st = twf_creader_field_id(r, row, r->col[COL_POSE], id, "pose id")) != TWF_OK ||
       (st = twf_creader_field_target(r, row, &target)) != TWF_OK ||
       (st = twf_creader_field_joints(r, row, r->qbuf)) != TWF_OK ||
-      (st = twf_creader_field_meas(r, row, &ms, &set)) != TWF_OK)
+      (st = twf_creader_field_meas(r, row, &ms, quat, &set)) != TWF_OK)
     return st;
   pose = twf_idmap_find(&r->poses, r->c->pose_ids, id);
   if (pose == NONE) {
@@ -129,9 +168,9 @@ static twf_status row_one(creader *r, const twf_csv_row *row)
   if ((st = twf_creader_field_payload(r, row, pose, 0)) != TWF_OK ||
       (st = twf_creader_pair_check(r, row, pose, target)) != TWF_OK)
     return st;
-  ms.pose = pose;
-  ms.target = target;
-  return twf_creader_meas_add(r, &ms);
+  ms.pose = (uint32_t)pose;
+  ms.target = (uint32_t)target;
+  return twf_creader_meas_add(r, &ms, quat);
 }
 
 static twf_status reader_row(void *user, twf_csv_in *in,

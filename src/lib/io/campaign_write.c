@@ -124,10 +124,10 @@ twf_status twf_campaign_write(const twf_campaign *c, const twf_model *m,
     for (j = 0; j < 3; j++)
       fprintf(out, ",%.17g", twf_length_from_si(ms->pos[j], length_unit));
     if (any_orient) {
-      if (ms->has_orientation)
-        fprintf(out, ",%.17g,%.17g,%.17g,%.17g", ms->quat[0], ms->quat[1],
-                ms->quat[2], ms->quat[3]);
-      else
+      if (ms->has_orientation) {
+        const double *qt = twf_campaign_meas_quat(c, order[k]);
+        fprintf(out, ",%.17g,%.17g,%.17g,%.17g", qt[0], qt[1], qt[2], qt[3]);
+      } else
         fputs(",,,,", out);
     }
     if (any_sigma) {

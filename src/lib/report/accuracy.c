@@ -36,7 +36,7 @@ static twf_status check_offsets(const twf_model *m, const twf_campaign *c,
       return twf_error_set(err, TWF_ERR_INVALID, NULL, me->line, 0, NULL,
                            "measurement %zu refers to pose %zu / target %zu, "
                            "beyond the campaign's %zu poses or the model's "
-                           "%zu targets", i, me->pose, me->target, c->n_poses,
+                           "%zu targets", i, (size_t)me->pose, (size_t)me->target, c->n_poses,
                            m->n_targets);
     if (given == NULL && !m->targets[me->target].offset_known)
       return twf_error_set(err, TWF_ERR_MISSING, NULL, me->line, 0,
@@ -57,7 +57,7 @@ static twf_status check_offsets(const twf_model *m, const twf_campaign *c,
 /* ------------------------------------------------------------------ */
 
 int twf_meas_residual(const twf_pose *T, const double t[3], const twf_measurement *ms,
-                      double pos[3], double rot[3])
+                      const double quat[4], double pos[3], double rot[3])
 {
   double y[3], Rm[3][3], E[3][3];
   int a, b;
@@ -67,7 +67,7 @@ int twf_meas_residual(const twf_pose *T, const double t[3], const twf_measuremen
   pos[2] = ms->pos[2] - y[2];
   if (!ms->has_orientation)
     return 0;
-  twf_quat_to_rot(ms->quat, Rm);
+  twf_quat_to_rot(quat, Rm);
   for (a = 0; a < 3; a++)
     for (b = 0; b < 3; b++)
       E[a][b] = Rm[a][0] * T->R[b][0] + Rm[a][1] * T->R[b][1] + Rm[a][2] * T->R[b][2];
@@ -130,7 +130,7 @@ void twf_accuracy_residuals_range(const twf_model *model, const twf_pose *base_i
       twf_pose_mul(&base_in_tracker[twf_campaign_pose_station(campaign, me->pose)], &F, &T);
       last_pose = me->pose;
     }
-    six_d = twf_meas_residual(&T, t + 3 * me->target, me, pos, rot);
+    six_d = twf_meas_residual(&T, t + 3 * me->target, me, twf_campaign_meas_quat(campaign, i), pos, rot);
     if (pos_err != NULL)
       twf_v3_copy(pos, pos_err + 3 * i);
     if (angle_err != NULL)
@@ -250,7 +250,9 @@ static int cmp_worst(const void *pa, const void *pb)
 /* Bucket the measurements by key = set * (n_targets + 1) + target and by
  * key = set * (n_targets + 1) + n_targets (overall), then one statistics
  * pass per bucket: O(n log n) overall. which selects lengths of pos_err (0)
- * or the angles (1, NaN rows skipped). */
+ * or the angles (1, NaN rows skipped). The per-target buckets first, then
+ * the overall ones in the same arrays (each bucket holds its rows in
+ * measurement order either way): one entry per measurement, not two. */
 static twf_status summary_stats(const twf_campaign *c, size_t nt,
                                 const double *pos_err, const double *angle_err,
                                 const unsigned char *excluded,
@@ -260,9 +262,10 @@ static twf_status summary_stats(const twf_campaign *c, size_t nt,
   size_t nb = 2 * (nt + 1), i, b;
   size_t *count = calloc(nb + 1, sizeof *count);
   size_t *start = calloc(nb + 1, sizeof *start);
-  size_t *idx = malloc((c->n_meas ? 2 * c->n_meas : 1) * sizeof *idx);
-  double *vals = malloc((c->n_meas ? 2 * c->n_meas : 1) * sizeof *vals);
+  size_t *idx = malloc((c->n_meas ? c->n_meas : 1) * sizeof *idx);
+  double *vals = malloc((c->n_meas ? c->n_meas : 1) * sizeof *vals);
   twf_status st = TWF_OK;
+  int pass;
 
   if (!count || !start || !idx || !vals) {
     st = TWF_ERR_NOMEM;
@@ -278,34 +281,44 @@ static twf_status summary_stats(const twf_campaign *c, size_t nt,
     count[set * (nt + 1) + me->target]++;
     count[set * (nt + 1) + nt]++;
   }
-  for (b = 0; b < nb; b++)
-    start[b + 1] = start[b] + count[b];
-  memset(count, 0, (nb + 1) * sizeof *count);
-  for (i = 0; i < c->n_meas; i++) {
-    const twf_measurement *me = &c->meas[i];
-    size_t set = (size_t)me->set, keys[2], q;
-    double v;
-    if (excluded != NULL && excluded[i])
-      continue;
-    if (which == 1) {
-      if (angle_err == NULL || isnan(angle_err[i]))
-        continue;
-      v = angle_err[i];
-    } else {
-      v = twf_v3_norm(pos_err + 3 * i);
+  /* pass 0: the per-target buckets (b % (nt + 1) < nt) side by side;
+   * pass 1: the two overall buckets */
+  for (pass = 0; pass < 2; pass++) {
+    start[0] = 0;
+    for (b = 0; b < nb; b++)
+      start[b + 1] = start[b] + ((b % (nt + 1) == nt) == (pass == 1) ? count[b] : 0);
+    {
+      size_t *fill = calloc(nb, sizeof *fill);
+      if (fill == NULL) {
+        st = TWF_ERR_NOMEM;
+        goto done;
+      }
+      for (i = 0; i < c->n_meas; i++) {
+        const twf_measurement *me = &c->meas[i];
+        size_t set = (size_t)me->set, key, at;
+        double v;
+        if (excluded != NULL && excluded[i])
+          continue;
+        if (which == 1) {
+          if (angle_err == NULL || isnan(angle_err[i]))
+            continue;
+          v = angle_err[i];
+        } else {
+          v = twf_v3_norm(pos_err + 3 * i);
+        }
+        key = set * (nt + 1) + (pass == 0 ? (size_t)me->target : nt);
+        at = start[key] + fill[key]++;
+        vals[at] = v;
+        idx[at] = i;
+      }
+      free(fill);
     }
-    keys[0] = set * (nt + 1) + me->target;
-    keys[1] = set * (nt + 1) + nt;
-    for (q = 0; q < 2; q++) {
-      size_t at = start[keys[q]] + count[keys[q]]++;
-      vals[at] = v;
-      idx[at] = i;
+    for (b = 0; b < nb; b++) {
+      size_t set = b / (nt + 1), k = b % (nt + 1);
+      twf_stats *s = k == nt ? &overall[set] : &per_target[2 * k + set];
+      if ((k == nt) == (pass == 1))
+        stats_of(vals + start[b], idx + start[b], start[b + 1] - start[b], s);
     }
-  }
-  for (b = 0; b < nb; b++) {
-    size_t set = b / (nt + 1), k = b % (nt + 1);
-    twf_stats *s = k == nt ? &overall[set] : &per_target[2 * k + set];
-    stats_of(vals + start[b], idx + start[b], start[b + 1] - start[b], s);
   }
 done:
   free(count);
@@ -393,7 +406,7 @@ twf_accuracy_summary *twf_accuracy_summarize_kept(const twf_campaign *campaign,
         || (me->set != TWF_SET_FIT && me->set != TWF_SET_CHECK)) {
       twf_error_set(err, TWF_ERR_INVALID, NULL, me->line, 0, NULL,
                     "measurement %zu has target %zu, pose %zu or set %d "
-                    "out of range", i, me->target, me->pose, (int)me->set);
+                    "out of range", i, (size_t)me->target, (size_t)me->pose, (int)me->set);
       return NULL;
     }
     if (excluded != NULL && excluded[i])
@@ -567,7 +580,7 @@ static twf_status iso_orientation(const twf_campaign *c, const twf_pose *B, cons
         continue;
       /* the attained orientation in the base frame, R_B^T R_tracker, then
        * relative to the commanded one */
-      twf_quat_to_rot(me->quat, Rt);
+      twf_quat_to_rot(twf_campaign_meas_quat(c, pose_meas[j]), Rt);
       for (r = 0; r < 3; r++)
         for (q = 0; q < 3; q++) {
           Rb[r][q] = 0.0;

@@ -379,6 +379,22 @@ START_TEST(test_screen_limit)
   ck_assert_uint_gt(r->screen_refused, 0);
   ck_assert_uint_eq(r->n_dropped, 0);
   ck_assert(warned(&w, "the model, not the data", NULL));
+  /* the rows were kept: the model is the fit with every weight 1, the one
+   * a run without the screen gives (the refit after the refusal must not
+   * start from the normal matrix of the screened weights) */
+  {
+    twf_calib_options off = co;
+    twf_calib_result *plain;
+    size_t i;
+    off.robust = TWF_ROBUST_OFF;
+    plain = calibrate(&s, &off, NULL);
+    ck_assert_uint_eq(plain->n_meas, r->n_meas);
+    for (i = 0; i < 3 * r->n_meas; i++)
+      ck_assert_msg(fabs(r->pos_err_after[i] - plain->pos_err_after[i]) < 1e-9,
+                    "residual %zu: %g m kept against %g m without the screen", i, r->pos_err_after[i],
+                    plain->pos_err_after[i]);
+    twf_calib_result_free(plain);
+  }
   twf_warnings_clear(&w);
   twf_calib_result_free(r);
   free_scenario(&s);

@@ -726,8 +726,7 @@ static twf_status screen_limit(job *j)
                    "so many gross errors are unlikely; the model, not the data, is the likely problem "
                    "(see the residual pattern test), so the readings were kept",
                    n_drop, n_fit, 100.0 * (double)n_drop / (double)n_fit, 100.0 * o->screen_max_fraction);
-  for (i = 0; i < j->c->n_meas; i++)
-    j->pr.weight[i] = 1.0;
+  twf_lsq_reset_weights(&j->pr);
   j->res->robust_rounds++;
   return fit_round(j, j->res->robust_rounds);
 }

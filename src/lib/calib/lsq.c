@@ -183,6 +183,14 @@ nomem:
   return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
 }
 
+void twf_lsq_reset_weights(twf_lsq_problem *pr)
+{
+  size_t i;
+  for (i = 0; i < pr->c->n_meas; i++)
+    pr->weight[i] = 1.0;
+  pr->weight_gen++;
+}
+
 int twf_lsq_threads(int n)
 {
   long cores;

@@ -81,6 +81,9 @@ void twf_lsq_release_rows(twf_lsq_problem *pr);
  * residuals do not need it, the passes do. */
 void twf_lsq_release_pose_index(twf_lsq_problem *pr);
 
+/* Every weight back to 1 (a screen's refused drops), the normal matrix
+ * made with the old weights marked stale. */
+void twf_lsq_reset_weights(twf_lsq_problem *pr);
 /* The thread count of a request: n itself, or for 0 one per online core
  * (at most TWF_LSQ_THREADS_MAX). */
 int twf_lsq_threads(int n);

@@ -268,6 +268,17 @@ twf_status twf_calibrate_resample(const twf_model *start, const twf_campaign *c,
   b.opt = opt ? *opt : twf_calib_default_options();
   b.opt.check_fraction = 0.0; /* the sets are the base result's */
   b.opt.threads = 1;          /* one refit per thread */
+  /* Each refit takes the base run's verdict on its screen: a drawn set
+   * that repeats a pose repeats its gross errors (more than the screen's
+   * limit can then be dropped) and its residual pattern (the pattern test
+   * takes the repeats for independent readings and finds a pattern more
+   * readily), so the refits would refuse screens the base run accepted,
+   * keep gross errors and spread for that reason alone. Accepted: every
+   * refit screens without the limit; refused: no refit screens. */
+  if (base->screen_refused > 0)
+    b.opt.robust = TWF_ROBUST_OFF;
+  else
+    b.opt.screen_max_fraction = 1.0;
   b.base = base;
   b.seed = seed;
   b.n_refits = n_refits;

@@ -79,8 +79,11 @@ void twf_lsq_release_rows(twf_lsq_problem *pr)
   twf_lsq_release_pose_index(pr);
   free(pr->inv_sigma);
   free(pr->weight);
+  free(pr->wlog);
   pr->inv_sigma = NULL;
   pr->weight = NULL;
+  pr->wlog = NULL;
+  pr->wlog_n = pr->wlog_cap = 0;
 }
 
 void twf_lsq_free(twf_lsq_problem *pr)
@@ -106,6 +109,7 @@ void twf_lsq_free(twf_lsq_problem *pr)
   free(pr->pose_meas);
   free(pr->inv_sigma);
   free(pr->weight);
+  free(pr->wlog);
   free(pr->rows);
   free(pr->A);
   free(pr->g);
@@ -151,8 +155,12 @@ twf_status twf_lsq_init(twf_lsq_problem *pr, const twf_model *m, const twf_campa
   pr->rows = calloc(6 * (pr->p ? pr->p : 1), sizeof *pr->rows);
   pr->A = calloc(pr->p ? pr->p * pr->p : 1, sizeof *pr->A);
   pr->g = calloc(pr->p ? pr->p : 1, sizeof *pr->g);
+  /* room for the changes of a screen that drops a few per cent: beyond
+   * that a full pass costs little more than updating row by row */
+  pr->wlog_cap = c->n_meas / 32 > 64 ? c->n_meas / 32 : 64;
+  pr->wlog = malloc(pr->wlog_cap * sizeof *pr->wlog);
   if (!pr->pose_start || !pr->pose_meas || !pr->inv_sigma || !pr->weight ||
-      !pr->rows || !pr->A || !pr->g)
+      !pr->rows || !pr->A || !pr->g || !pr->wlog)
     goto nomem;
   /* counting sort of the measurements by pose */
   for (i = 0; i < c->n_meas; i++)
@@ -183,12 +191,26 @@ nomem:
   return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
 }
 
+void twf_lsq_set_weight(twf_lsq_problem *pr, size_t i, double w)
+{
+  if (pr->weight[i] == w)
+    return;
+  if (pr->wlog_n < pr->wlog_cap) {
+    pr->wlog[pr->wlog_n].meas = (uint32_t)i;
+    pr->wlog[pr->wlog_n].change = w - pr->weight[i];
+    pr->wlog_n++;
+  } else {
+    pr->wlog_full = 1;
+  }
+  pr->weight[i] = w;
+  pr->weight_gen++;
+}
+
 void twf_lsq_reset_weights(twf_lsq_problem *pr)
 {
   size_t i;
   for (i = 0; i < pr->c->n_meas; i++)
-    pr->weight[i] = 1.0;
-  pr->weight_gen++;
+    twf_lsq_set_weight(pr, i, 1.0);
 }
 
 int twf_lsq_threads(int n)
@@ -758,6 +780,7 @@ static double normal_pass(twf_lsq_problem *pr, const size_t *cols, size_t nc, do
   ps.flanges = pass_flanges(pr, pr->m);
   ps.compute = normal_compute;
   ps.reduce = sum_reduce;
+  pr->n_normal_passes++;
   ps.acc = pr->acc;
   memset(ps.acc, 0, ps.slot_size * sizeof *ps.acc);
   pass_run(&ps);
@@ -941,13 +964,12 @@ static double cost_at(twf_lsq_problem *pr, const twf_model *m, const twf_pose *B
  * over the columns cols[0..nc) (NULL: all p), and the cost. Restricting to
  * the kept columns in the solver saves the updates of the fixed ones. */
 /* 1 when the last normal matrix was made over these columns at this
- * model, base and weights: the covariance asks again for the one the
- * solver ended on. */
-static int normal_cached(const twf_lsq_problem *pr, const size_t *cols, size_t nc)
+ * model and base (its weights may have changed since: twf_lsq_normal):
+ * the covariance asks again for the one the solver ended on. */
+static int cache_at_point(const twf_lsq_problem *pr, const size_t *cols, size_t nc)
 {
   const twf_model *a = pr->m, *b = pr->snap;
-  if (!pr->cache_valid || pr->cache_nc != nc || pr->cache_weight_gen != pr->weight_gen ||
-      (cols == NULL) != (pr->cache_all != 0))
+  if (!pr->cache_valid || pr->cache_nc != nc || (cols == NULL) != (pr->cache_all != 0))
     return 0;
   if (cols != NULL && memcmp(cols, pr->cache_cols, nc * sizeof *cols) != 0)
     return 0;
@@ -957,19 +979,117 @@ static int normal_cached(const twf_lsq_problem *pr, const size_t *cols, size_t n
          memcmp(&a->home, &b->home, sizeof a->home) == 0;
 }
 
+/* Accumulate dw (the weight times 1/sigma^2) times the k rows (k x p,
+ * row-major) over the cache's columns into the cached A and g, and the
+ * residual r (k) into the cost. */
+static double cache_add_rows(twf_lsq_problem *pr, const double *rows, size_t k, const double *r, double dw)
+{
+  size_t n = pr->cache_nc, p = pr->p, a, b, e;
+  double sq = 0.0;
+  for (a = 0; a < n; a++) {
+    size_t ca = pr->cache_all ? a : pr->cache_cols[a];
+    double ga = 0.0;
+    for (e = 0; e < k; e++)
+      ga += rows[e * p + ca] * r[e];
+    pr->cacheg[a] += dw * ga;
+    for (b = a; b < n; b++) {
+      size_t cb = pr->cache_all ? b : pr->cache_cols[b];
+      double s = 0.0;
+      for (e = 0; e < k; e++)
+        s += rows[e * p + ca] * rows[e * p + cb];
+      pr->cacheA[a * n + b] += dw * s;
+      if (b != a)
+        pr->cacheA[b * n + a] = pr->cacheA[a * n + b];
+    }
+  }
+  for (e = 0; e < k; e++)
+    sq += r[e] * r[e];
+  pr->cache_cost += 0.5 * dw * sq;
+  return fabs(0.5 * dw * sq);
+}
+
+/* The cached normal matrix, made at the working model with the weights
+ * before the logged changes, brought to the current weights: each changed
+ * row's contribution changes with its weight (the rows as
+ * twf_errmodel_point and twf_errmodel_orientation form them). The same
+ * sums as a full pass up to rounding, at the cost of the changed rows: a
+ * screen that drops a few gross errors refits from here. Where the rows
+ * taken out carried most of the cost (gross errors of a thousand sigmas),
+ * their subtraction would leave the rest with too few digits for the
+ * solver's tests on the cost: the cost is then summed afresh. */
+static void cache_reweight(twf_lsq_problem *pr)
+{
+  const twf_campaign *c = pr->c;
+  twf_errmodel *em = pr->em;
+  double *rows = pr->rows; /* 6 x p, the problem's scratch */
+  double changed_cost = 0.0;
+  size_t k;
+  for (k = 0; k < pr->wlog_n; k++) {
+    size_t i = pr->wlog[k].meas, pose = c->meas[i].pose, sta = twf_campaign_pose_station(c, pose);
+    const twf_measurement *ms = &c->meas[i];
+    double y[3], r[3], dw;
+    twf_pose F;
+    if (!pr->use[i] || pr->wlog[k].change == 0.0)
+      continue;
+    twf_errmodel_set_payload(em, twf_campaign_payload(c, pose));
+    twf_errmodel_eval_station(em, pr->m, &pr->base[sta], sta, c->q + pose * pr->n_joints, &F);
+    twf_errmodel_point(em, pr->m, ms->target, y, rows);
+    r[0] = ms->pos[0] - y[0];
+    r[1] = ms->pos[1] - y[1];
+    r[2] = ms->pos[2] - y[2];
+    dw = pr->wlog[k].change * pr->inv_sigma[i] * pr->inv_sigma[i];
+    changed_cost += cache_add_rows(pr, rows, 3, r, dw);
+    if (ms->has_orientation) {
+      double Rm[3][3];
+      twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
+      twf_errmodel_orientation(em, Rm, r, rows);
+      dw = pr->wlog[k].change * pr->inv_sigma_rot * pr->inv_sigma_rot;
+      changed_cost += cache_add_rows(pr, rows, 3, r, dw);
+    }
+  }
+  if (!(changed_cost <= 1e3 * pr->cache_cost))
+    pr->cache_cost = cost_at(pr, pr->m, pr->base);
+}
+
+/* The cache now holds A, g and the cost over these columns at the
+ * working model and base with the current weights. */
+static void cache_mark(twf_lsq_problem *pr, const size_t *cols, size_t n)
+{
+  pr->cache_valid = 1;
+  pr->cache_nc = n;
+  pr->cache_all = cols == NULL;
+  if (cols != NULL)
+    memcpy(pr->cache_cols, cols, n * sizeof *cols);
+  memcpy(pr->cache_base, pr->base, sizeof pr->base);
+  pr->cache_weight_gen = pr->weight_gen;
+  twf_lsq_model_assign(pr->snap, pr->m);
+  pr->wlog_n = 0;
+  pr->wlog_full = 0;
+}
+
+/* Put a normal matrix made at the working model with the current weights
+ * (the solver's, after a rejected trial took the cache's place). */
+static void cache_store(twf_lsq_problem *pr, const size_t *cols, size_t n, const double *A, const double *g,
+                        double cost)
+{
+  memcpy(pr->cacheA, A, n * n * sizeof *A);
+  memcpy(pr->cacheg, g, n * sizeof *g);
+  pr->cache_cost = cost;
+  cache_mark(pr, cols, n);
+}
+
 double twf_lsq_normal(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *A, double *g)
 {
   size_t n = cols ? nc : pr->p;
-  if (!normal_cached(pr, cols, n)) {
+  if (!cache_at_point(pr, cols, n)) {
     pr->cache_cost = normal_pass(pr, cols, n, pr->cacheA, pr->cacheg);
-    pr->cache_valid = 1;
-    pr->cache_nc = n;
-    pr->cache_all = cols == NULL;
-    if (cols != NULL)
-      memcpy(pr->cache_cols, cols, n * sizeof *cols);
-    memcpy(pr->cache_base, pr->base, sizeof pr->base);
-    pr->cache_weight_gen = pr->weight_gen;
-    twf_lsq_model_assign(pr->snap, pr->m);
+    cache_mark(pr, cols, n);
+  } else if (pr->cache_weight_gen != pr->weight_gen) {
+    if (pr->wlog_full)
+      pr->cache_cost = normal_pass(pr, cols, n, pr->cacheA, pr->cacheg);
+    else
+      cache_reweight(pr);
+    cache_mark(pr, cols, n);
   }
   memcpy(A, pr->cacheA, n * n * sizeof *A);
   memcpy(g, pr->cacheg, n * sizeof *g);
@@ -1087,6 +1207,12 @@ typedef struct lm_state {
   gsl_vector *rhs, *x;
   double cost, lambda, nu;
   twf_pose trial_base[TWF_STATIONS_MAX];
+  /* A trial after an accepted step is linearised at once (its normal
+   * matrix gives its cost too, and the next step needs it when it is
+   * accepted, as most are): trial_A, trial_g hold it. After a rejection,
+   * trials take the cost alone until one is accepted. */
+  int linearise_trials;
+  double *trial_A, *trial_g;
 } lm_state;
 
 /* Converged when every column is orthogonal to the weighted residual
@@ -1120,8 +1246,23 @@ static int lm_solve_damped(lm_state *s)
   return gsl_linalg_cholesky_decomp1(s->M) != 0 || gsl_linalg_cholesky_solve(s->M, s->rhs, s->x) != 0;
 }
 
+/* Exchange the working model and base with the trial's. */
+static void lm_swap(lm_state *s)
+{
+  twf_lsq_problem *pr = s->pr;
+  twf_model *tmp = pr->m;
+  twf_pose b[TWF_STATIONS_MAX];
+  pr->m = pr->trial;
+  pr->trial = tmp;
+  memcpy(b, pr->base, sizeof b);
+  memcpy(pr->base, s->trial_base, sizeof b);
+  memcpy(s->trial_base, b, sizeof b);
+}
+
 /* Fold the solved step into the trial model; returns the trial cost, with
- * the largest scaled step and the predicted decrease. */
+ * the largest scaled step and the predicted decrease. With
+ * linearise_trials the trial is made the working model (the step is
+ * undone by lm_reject) and its normal matrix is in trial_A, trial_g. */
 static double lm_trial(lm_state *s, double *step_max, double *pred)
 {
   twf_lsq_problem *pr = s->pr;
@@ -1141,7 +1282,10 @@ static double lm_trial(lm_state *s, double *step_max, double *pred)
   twf_lsq_model_assign(pr->trial, pr->m);
   memcpy(s->trial_base, pr->base, sizeof pr->base);
   twf_errmodel_fold(pr->em, s->delta, pr->trial, s->trial_base);
-  return cost_at(pr, pr->trial, s->trial_base);
+  if (!s->linearise_trials)
+    return cost_at(pr, pr->trial, s->trial_base);
+  lm_swap(s);
+  return twf_lsq_normal(pr, s->idx, s->nk, s->trial_A, s->trial_g);
 }
 
 static void lm_record(const lm_state *s, int iteration, double cost, int accepted)
@@ -1186,14 +1330,19 @@ static twf_status lm_iterate(lm_state *s, double *value, twf_solve_report *rep, 
     rho = pred > 0 ? (s->cost - cost_new) / pred : -1.0;
     if (isfinite(cost_new) && cost_new < s->cost) {
       double decrease = s->cost - cost_new;
-      twf_model *tmp = pr->m;
       lm_record(s, rep->iterations, cost_new, 1);
-      pr->m = pr->trial;
-      pr->trial = tmp;
-      memcpy(pr->base, s->trial_base, sizeof pr->base);
       for (a = 0; a < pr->p; a++)
         value[a] += s->delta[a];
-      s->cost = twf_lsq_normal(pr, s->idx, s->nk, pr->A, pr->g);
+      if (s->linearise_trials) {
+        /* the trial is the working model already, linearised */
+        memcpy(pr->A, s->trial_A, s->nk * s->nk * sizeof *pr->A);
+        memcpy(pr->g, s->trial_g, s->nk * sizeof *pr->g);
+        s->cost = cost_new;
+      } else {
+        lm_swap(s);
+        s->cost = twf_lsq_normal(pr, s->idx, s->nk, pr->A, pr->g);
+      }
+      s->linearise_trials = 1;
       rep->cost_end = s->cost;
       s->lambda *= fmax(1.0 / 3.0, 1.0 - pow(2.0 * rho - 1.0, 3));
       s->nu = 2.0;
@@ -1208,6 +1357,13 @@ static twf_status lm_iterate(lm_state *s, double *value, twf_solve_report *rep, 
       }
     } else {
       lm_record(s, rep->iterations, cost_new, 0);
+      if (s->linearise_trials) {
+        /* back to the linearisation point, whose normal matrix the
+         * solver holds: the cache takes it back for the covariance */
+        lm_swap(s);
+        cache_store(pr, s->idx, s->nk, pr->A, pr->g, s->cost);
+        s->linearise_trials = 0;
+      }
       twf_errmodel_update(pr->em, pr->m);
       if (!isfinite(cost_new) && s->lambda > 1e12) {
         rep->stop = TWF_STOP_DIVERGED;
@@ -1273,7 +1429,10 @@ twf_status twf_lsq_solve(twf_lsq_problem *pr, const unsigned char *keep, const t
   s.M = gsl_matrix_alloc(s.nk, s.nk);
   s.rhs = gsl_vector_alloc(s.nk);
   s.x = gsl_vector_alloc(s.nk);
-  if (s.M == NULL || s.rhs == NULL || s.x == NULL)
+  s.trial_A = malloc(s.nk * s.nk * sizeof *s.trial_A);
+  s.trial_g = malloc(s.nk * sizeof *s.trial_g);
+  s.linearise_trials = 1;
+  if (s.M == NULL || s.rhs == NULL || s.x == NULL || s.trial_A == NULL || s.trial_g == NULL)
     goto nomem;
   st = lm_iterate(&s, value, rep, err);
   goto done;
@@ -1285,6 +1444,8 @@ done:
   if (s.x) gsl_vector_free(s.x);
   free(s.idx);
   free(s.delta);
+  free(s.trial_A);
+  free(s.trial_g);
   return st;
 }
 

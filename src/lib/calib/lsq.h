@@ -28,7 +28,7 @@ typedef struct twf_lsq_problem {
   double *inv_sigma;       /* per measurement, 1/m */
   double inv_sigma_rot;    /* 1/rad */
   double sigma_len;        /* typical sigma of a coordinate, m */
-  double *weight;          /* robust weight, 0 = dropped (a writer bumps weight_gen) */
+  double *weight;          /* robust weight, 0 = dropped (write with twf_lsq_set_weight) */
   const unsigned char *use;/* 1: enters the fit */
   double *rows;            /* 3 x p rows, then 3 x p gathered columns */
   double *A, *g;           /* p x p, p */
@@ -45,6 +45,14 @@ typedef struct twf_lsq_problem {
   /* The last normal matrix, and what it was made at (twf_lsq_normal). A
    * writer of weight[] bumps weight_gen. */
   unsigned long weight_gen, cache_weight_gen;
+  /* The weights changed since the last normal matrix, each with the value
+   * it had (twf_lsq_set_weight): while they are few, the next normal
+   * matrix at the same point is that one with their rows' contributions
+   * changed (a screen's refit), not a pass over every row. */
+  struct twf_lsq_reweight { uint32_t meas; double change; } *wlog;
+  size_t wlog_n, wlog_cap;
+  int wlog_full;           /* more changes than the log holds: a full pass */
+  unsigned long n_normal_passes; /* normal matrices made over every row (a diagnostic) */
   int cache_valid, cache_all;
   size_t cache_nc, *cache_cols;
   double *cacheA, *cacheg, cache_cost;
@@ -81,8 +89,10 @@ void twf_lsq_release_rows(twf_lsq_problem *pr);
  * residuals do not need it, the passes do. */
 void twf_lsq_release_pose_index(twf_lsq_problem *pr);
 
-/* Every weight back to 1 (a screen's refused drops), the normal matrix
- * made with the old weights marked stale. */
+/* Set measurement i's weight (>= 0), the normal matrix made with the old
+ * one marked stale (and the change logged for its update). */
+void twf_lsq_set_weight(twf_lsq_problem *pr, size_t i, double w);
+/* Every weight back to 1 (a screen's refused drops). */
 void twf_lsq_reset_weights(twf_lsq_problem *pr);
 /* The thread count of a request: n itself, or for 0 one per online core
  * (at most TWF_LSQ_THREADS_MAX). */

@@ -110,9 +110,7 @@ twf_status twf_robust_screen(twf_lsq_problem *pr, twf_robust mode, double k, dou
     w = robust_weight(mode, u, k);
     if (fabs(w - pr->weight[i]) > 1e-3 * fmax(w, pr->weight[i]))
       (*changed)++;
-    if (w != pr->weight[i])
-      pr->weight_gen++; /* the normal matrix made with the old weights is stale */
-    pr->weight[i] = w;
+    twf_lsq_set_weight(pr, i, w);
   }
   st = TWF_OK;
 done:

@@ -1207,11 +1207,14 @@ typedef struct lm_state {
   gsl_vector *rhs, *x;
   double cost, lambda, nu;
   twf_pose trial_base[TWF_STATIONS_MAX];
-  /* A trial after an accepted step is linearised at once (its normal
-   * matrix gives its cost too, and the next step needs it when it is
-   * accepted, as most are): trial_A, trial_g hold it. After a rejection,
-   * trials take the cost alone until one is accepted. */
-  int linearise_trials;
+  /* A trial after an accepted step that predicts a large decrease is
+   * linearised at once (its normal matrix gives its cost too, and the next
+   * step needs it when it is accepted, as such steps are): trial_A, trial_g
+   * hold it. A trial that predicts little is most likely the last, whether
+   * accepted or not, and a normal pass costs about six cost passes: it
+   * takes the cost alone, and so do the trials after a rejection until
+   * one is accepted. */
+  int after_accept, linearised;
   double *trial_A, *trial_g;
 } lm_state;
 
@@ -1259,10 +1262,15 @@ static void lm_swap(lm_state *s)
   memcpy(s->trial_base, b, sizeof b);
 }
 
+/* Predicted decreases above this fraction of the cost make a trial worth
+ * linearising (a first step from a nominal model predicts most of the
+ * cost; the steps after it, near the noise floor, a small part). */
+#define LM_LINEARISE_PRED 1e-3
+
 /* Fold the solved step into the trial model; returns the trial cost, with
- * the largest scaled step and the predicted decrease. With
- * linearise_trials the trial is made the working model (the step is
- * undone by lm_reject) and its normal matrix is in trial_A, trial_g. */
+ * the largest scaled step and the predicted decrease. A linearised trial
+ * (s->linearised) is made the working model (lm_swap undoes it) and its
+ * normal matrix is in trial_A, trial_g. */
 static double lm_trial(lm_state *s, double *step_max, double *pred)
 {
   twf_lsq_problem *pr = s->pr;
@@ -1282,7 +1290,8 @@ static double lm_trial(lm_state *s, double *step_max, double *pred)
   twf_lsq_model_assign(pr->trial, pr->m);
   memcpy(s->trial_base, pr->base, sizeof pr->base);
   twf_errmodel_fold(pr->em, s->delta, pr->trial, s->trial_base);
-  if (!s->linearise_trials)
+  s->linearised = s->after_accept && *pred > LM_LINEARISE_PRED * s->cost;
+  if (!s->linearised)
     return cost_at(pr, pr->trial, s->trial_base);
   lm_swap(s);
   return twf_lsq_normal(pr, s->idx, s->nk, s->trial_A, s->trial_g);
@@ -1333,7 +1342,7 @@ static twf_status lm_iterate(lm_state *s, double *value, twf_solve_report *rep, 
       lm_record(s, rep->iterations, cost_new, 1);
       for (a = 0; a < pr->p; a++)
         value[a] += s->delta[a];
-      if (s->linearise_trials) {
+      if (s->linearised) {
         /* the trial is the working model already, linearised */
         memcpy(pr->A, s->trial_A, s->nk * s->nk * sizeof *pr->A);
         memcpy(pr->g, s->trial_g, s->nk * sizeof *pr->g);
@@ -1342,7 +1351,7 @@ static twf_status lm_iterate(lm_state *s, double *value, twf_solve_report *rep, 
         lm_swap(s);
         s->cost = twf_lsq_normal(pr, s->idx, s->nk, pr->A, pr->g);
       }
-      s->linearise_trials = 1;
+      s->after_accept = 1;
       rep->cost_end = s->cost;
       s->lambda *= fmax(1.0 / 3.0, 1.0 - pow(2.0 * rho - 1.0, 3));
       s->nu = 2.0;
@@ -1357,13 +1366,13 @@ static twf_status lm_iterate(lm_state *s, double *value, twf_solve_report *rep, 
       }
     } else {
       lm_record(s, rep->iterations, cost_new, 0);
-      if (s->linearise_trials) {
+      if (s->linearised) {
         /* back to the linearisation point, whose normal matrix the
          * solver holds: the cache takes it back for the covariance */
         lm_swap(s);
         cache_store(pr, s->idx, s->nk, pr->A, pr->g, s->cost);
-        s->linearise_trials = 0;
       }
+      s->after_accept = 0;
       twf_errmodel_update(pr->em, pr->m);
       if (!isfinite(cost_new) && s->lambda > 1e12) {
         rep->stop = TWF_STOP_DIVERGED;
@@ -1431,7 +1440,7 @@ twf_status twf_lsq_solve(twf_lsq_problem *pr, const unsigned char *keep, const t
   s.x = gsl_vector_alloc(s.nk);
   s.trial_A = malloc(s.nk * s.nk * sizeof *s.trial_A);
   s.trial_g = malloc(s.nk * sizeof *s.trial_g);
-  s.linearise_trials = 1;
+  s.after_accept = 1;
   if (s.M == NULL || s.rhs == NULL || s.x == NULL || s.trial_A == NULL || s.trial_g == NULL)
     goto nomem;
   st = lm_iterate(&s, value, rep, err);

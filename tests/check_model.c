@@ -347,7 +347,7 @@ START_TEST(test_fk_prefix_scale_offset)
   ck_assert(pose_diff(&prefix[0], &P) == 0.0);
   for (size_t i = 0; i < fx.n; i++) {
     twf_pose E;
-    twf_se3_exp(m->joints[i].twist, theta[i], &E);
+    twf_se3_exp_joint(m->joints[i].twist, theta[i], &E);
     twf_pose_mul(&P, &E, &P);
     ck_assert(pose_diff(&prefix[i + 1], &P) <= 1e-15);
   }

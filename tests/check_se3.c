@@ -217,6 +217,55 @@ START_TEST(test_exp_tiny_machine_precision)
 }
 END_TEST
 
+/* The joint exponential (unit or zero rotation part): within 4 ulp of the
+ * long double Taylor series for tiny to half-turn angles of either sign
+ * (as test_exp_tiny_machine_precision; common practice, no source), the
+ * prismatic case exact, and any other rotation length the general
+ * exponential's bits. */
+START_TEST(test_exp_joint)
+{
+  twf_test_rng rng;
+  const double angles[] = { 1e-15, -1e-12, 1e-9, -3.3e-5, 9.7e-4, 1.03e-3, -0.0998,
+                            0.0999999, 0.1000001, 0.2417, -1.3, 2.9, -3.1 };
+  twf_test_rng_init(&rng, twf_test_seed(SEED + 7));
+  for (size_t k = 0; k < sizeof angles / sizeof angles[0]; k++) {
+    for (int rep = 0; rep < 20; rep++) {
+      double S[6], t = angles[k], x = fabs(t), vn, pn;
+      long double E[4][4];
+      twf_pose T;
+      rand_screw(&rng, S);
+      twf_se3_exp_joint(S, t, &T);
+      taylor_exp_ld(S, t, E);
+      vn = sqrt(S[3] * S[3] + S[4] * S[4] + S[5] * S[5]);
+      pn = sqrt(T.p[0] * T.p[0] + T.p[1] * T.p[1] + T.p[2] * T.p[2]);
+      for (int i = 0; i < 3; i++) {
+        for (int j = 0; j < 3; j++) {
+          double ref = (double)E[i][j];
+          ck_assert_msg(fabs(T.R[i][j] - ref) <= 4 * EPS * fmax(fabs(ref), fmin(x, 1.0)),
+                        "angle %g: R[%d][%d] = %.17g, series %.17g", t, i, j, T.R[i][j], ref);
+        }
+        ck_assert_msg(fabs(T.p[i] - (double)E[i][3]) <= 4 * EPS * fmax(pn, x < 1 ? 0.0 : x * vn),
+                      "angle %g: p[%d] = %.17g, series %.17g", t, i, T.p[i], (double)E[i][3]);
+      }
+    }
+  }
+  {
+    double u[3] = { 0.48, -0.6, 0.64 }, S[6], S2[6] = { 0.37, -1.21, 2.03, 0.4, 0.1, -0.2 };
+    twf_pose T, G;
+    twf_twist_prismatic(u, S);
+    twf_se3_exp_joint(S, -0.3175, &T);
+    for (int i = 0; i < 3; i++) {
+      for (int j = 0; j < 3; j++)
+        ck_assert(T.R[i][j] == (i == j ? 1.0 : 0.0));
+      ck_assert(T.p[i] == -0.3175 * u[i]);
+    }
+    twf_se3_exp_joint(S2, 0.8123, &T);
+    twf_se3_exp(S2, 0.8123, &G);
+    ck_assert(memcmp(&T, &G, sizeof T) == 0);
+  }
+}
+END_TEST
+
 START_TEST(test_exp_special_cases)
 {
   /* Prismatic: R = I exactly and p = u t (Murray, Li and Sastry 1994,
@@ -814,6 +863,7 @@ static Suite *se3_suite(void)
   tcase_add_test(tc, test_exp_vs_scipy_expm);
   tcase_add_test(tc, test_exp_tiny_machine_precision);
   tcase_add_test(tc, test_exp_special_cases);
+  tcase_add_test(tc, test_exp_joint);
   tcase_add_test(tc, test_twist_point_invariance);
   tcase_add_test(tc, test_exp_adjoint_conjugation);
   tcase_add_test(tc, test_log_roundtrip_random);

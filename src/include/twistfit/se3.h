@@ -38,6 +38,11 @@ void twf_se3_hat(const double S[6], double X[4][4]);
  * prismatic (w = 0), general screws with pitch and any |w| (the angle is
  * |w| t); series expansions keep it accurate for tiny |w| t. */
 void twf_se3_exp(const double S[6], double t, twf_pose *out);
+/* twf_se3_exp for a joint's twist, whose rotation part is a unit vector
+ * (revolute, or a screw with pitch) or zero (prismatic): the same closed
+ * forms without the norm and the divisions, to rounding the same pose (a
+ * rotation part of any other length takes twf_se3_exp). */
+void twf_se3_exp_joint(const double S[6], double t, twf_pose *out);
 /* Rotation part only: exp(hat(w) t). */
 void twf_so3_exp(const double w[3], double t, double R[3][3]);
 /* Logarithm: xi = (w, v) with exp(hat(xi)) = T and |w| in [0, pi].

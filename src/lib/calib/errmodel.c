@@ -403,7 +403,7 @@ void twf_errmodel_eval_pose_some(twf_errmodel *em, const twf_model *m, const twf
   for (i = 0; i < n; i++) {
     const twf_joint *jt = &m->joints[i];
     twf_pose E;
-    twf_se3_exp(jt->twist, loaded ? em->theta[i] : jt->scale * q[i] + jt->offset, &E);
+    twf_se3_exp_joint(jt->twist, loaded ? em->theta[i] : jt->scale * q[i] + jt->offset, &E);
     twf_pose_mul(&em->prefix[i], &E, &em->prefix[i + 1]);
   }
   twf_pose_mul(&em->prefix[n], &m->home, &em->flange);

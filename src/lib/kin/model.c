@@ -239,7 +239,7 @@ static void fk_theta(const twf_model *m, const double *q, const double *theta,
     prefix[0] = P;
   for (size_t i = 0; i < m->n_joints; i++) {
     const twf_joint *j = &m->joints[i];
-    twf_se3_exp(j->twist, theta != NULL ? theta[i] : j->scale * q[i] + j->offset, &E);
+    twf_se3_exp_joint(j->twist, theta != NULL ? theta[i] : j->scale * q[i] + j->offset, &E);
     twf_pose_mul(&P, &E, &P);
     if (prefix != NULL)
       prefix[i + 1] = P;

@@ -12,6 +12,8 @@
  */
 #include "internal.h"
 
+#include <float.h>
+
 /* ------------------------------------------------------------ helpers */
 
 static inline void mat3_mul(const double A[3][3], const double B[3][3], double out[3][3])
@@ -207,6 +209,45 @@ void twf_se3_exp(const double S[6], double t, twf_pose *out)
   twf_v3_cross(phi, pr, ppr);
   for (int i = 0; i < 3; i++)
     out->p[i] = rho[i] + b * pr[i] + c * ppr[i];
+}
+
+void twf_se3_exp_joint(const double S[6], double t, twf_pose *out)
+{
+  const double *w = S, *v = S + 3;
+  double n2 = w[0] * w[0] + w[1] * w[1] + w[2] * w[2];
+  double s, h, A, B, C, x = fabs(t), wv[3], wwv[3];
+  if (n2 == 0.0) {
+    /* prismatic: a translation along v */
+    for (int i = 0; i < 3; i++) {
+      for (int k = 0; k < 3; k++)
+        out->R[i][k] = i == k ? 1.0 : 0.0;
+      out->p[i] = v[i] * t;
+    }
+    return;
+  }
+  if (fabs(n2 - 1.0) > 4.0 * DBL_EPSILON) {
+    twf_se3_exp(S, t, out);
+    return;
+  }
+  /* |w| = 1: the coefficients of twf_se3_exp times the powers of t they
+   * divide by, sin t = 2 s h and 1 - cos t = 2 s^2 (half angles, no
+   * cancellation near 0), and t - sin t by its series below 0.1 */
+  s = sin(0.5 * t);
+  h = cos(0.5 * t);
+  A = 2.0 * s * h;
+  B = 2.0 * s * s;
+  if (x < 0.1) {
+    double x2 = x * x;
+    C = t * x2 * (1.0 / 6.0) *
+        (1.0 - x2 / 20.0 * (1.0 - x2 / 42.0 * (1.0 - x2 / 72.0 * (1.0 - x2 / 110.0 * (1.0 - x2 / 156.0)))));
+  } else {
+    C = t - A;
+  }
+  rot_from_coefs(w, A, B, out->R);
+  twf_v3_cross(w, v, wv);
+  twf_v3_cross(w, wv, wwv);
+  for (int i = 0; i < 3; i++)
+    out->p[i] = v[i] * t + B * wv[i] + C * wwv[i];
 }
 
 /* --------------------------------------------------------- logarithms */

@@ -389,8 +389,11 @@ START_TEST(test_screen_limit)
     off.robust = TWF_ROBUST_OFF;
     plain = calibrate(&s, &off, NULL);
     ck_assert_uint_eq(plain->n_meas, r->n_meas);
+    /* both converged: within a few hundredths of the 0.02 mm noise (the
+     * solver stops when the next step moves no parameter by 1 % of its
+     * standard deviation); the screened fit is 0.2 mm away */
     for (i = 0; i < 3 * r->n_meas; i++)
-      ck_assert_msg(fabs(r->pos_err_after[i] - plain->pos_err_after[i]) < 1e-9,
+      ck_assert_msg(fabs(r->pos_err_after[i] - plain->pos_err_after[i]) < 1e-6,
                     "residual %zu: %g m kept against %g m without the screen", i, r->pos_err_after[i],
                     plain->pos_err_after[i]);
     twf_calib_result_free(plain);

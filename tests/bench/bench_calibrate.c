@@ -188,6 +188,12 @@ static int run_case(const bench_case *bc, bench_out *out)
       printf("\n    parameters: %zu requested, %zu estimated; stop %s; %zu outliers\n", res->n_params,
              res->n_kept, twf_stop_name(res->solve.stop), res->n_outliers);
       kinematics_ratio(nominal, &B, c);
+      if (getenv("BENCH_TRACE") != NULL)
+        for (k = 0; k < res->trace.n_steps; k++) {
+          const twf_solver_step *st = &res->trace.steps[k];
+          printf("    step: %s round %d trial %d cost %.17g damping %.3g %s\n", st->fit, st->round, st->iteration,
+                 st->cost, st->damping, st->accepted ? "accepted" : "rejected");
+        }
     }
   }
   twf_calib_result_free(best_res);

@@ -174,7 +174,9 @@ twf_status twf_register_campaign(const twf_model *model,
 /* Why the solver stopped. */
 typedef enum twf_stop {
   TWF_STOP_NONE = 0,    /* did not run */
-  TWF_STOP_STEP,        /* the scaled step fell below step_tol_m: converged */
+  TWF_STOP_STEP,        /* the scaled step fell below step_tol_m, or the next step would move
+                           every parameter by less than 1 % of its standard deviation
+                           (DEVELOPERS.md): converged */
   TWF_STOP_GRADIENT,    /* the scaled gradient vanished: converged */
   TWF_STOP_COST,        /* no step reduces the cost any more (at rounding level): converged */
   TWF_STOP_MAXITER,     /* iteration limit reached: not converged */

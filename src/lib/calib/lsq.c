@@ -1216,6 +1216,7 @@ typedef struct lm_state {
    * one is accepted. */
   int after_accept, linearised;
   double *trial_A, *trial_g;
+  size_t rows;         /* weighted rows in the fit (3 a point, 6 a 6-D measurement) */
 } lm_state;
 
 /* Converged when every column is orthogonal to the weighted residual
@@ -1267,11 +1268,9 @@ static void lm_swap(lm_state *s)
  * cost; the steps after it, near the noise floor, a small part). */
 #define LM_LINEARISE_PRED 1e-3
 
-/* Fold the solved step into the trial model; returns the trial cost, with
- * the largest scaled step and the predicted decrease. A linearised trial
- * (s->linearised) is made the working model (lm_swap undoes it) and its
- * normal matrix is in trial_A, trial_g. */
-static double lm_trial(lm_state *s, double *step_max, double *pred)
+/* The solved step into delta, with the largest scaled step and the
+ * predicted decrease of the cost. */
+static void lm_step(lm_state *s, double *step_max, double *pred)
 {
   twf_lsq_problem *pr = s->pr;
   size_t a;
@@ -1287,10 +1286,39 @@ static double lm_trial(lm_state *s, double *step_max, double *pred)
     *pred += d * (s->lambda * pr->A[a * s->nk + a] * d + pr->g[a]);
   }
   *pred *= 0.5;
+}
+
+/* Converged when the next step, undamped, would move the parameters by
+ * less than LM_STEP_SIGMAS of their standard deviations: its predicted
+ * decrease is 0.5 d^T A d (A = J^T W J) for small damping, and for any
+ * parameter (or combination c of them) |c^T d| <= sqrt(c^T A^-1 c)
+ * sqrt(d^T A d), so d^T A d < tau^2 s^2 bounds every change by tau of its
+ * standard deviation, s^2 = 2 cost / (rows - columns) the a-posteriori
+ * variance factor (so that a sigma given too large or too small does not
+ * move the test). Such a step changes no figure a report shows; the
+ * steps before it, near the noise floor, took a normal pass each. Only
+ * after an accepted step at small damping, where the solved step is the
+ * Gauss-Newton one. */
+#define LM_STEP_SIGMAS 1e-2
+
+static int lm_step_negligible(const lm_state *s, double pred)
+{
+  double dof = (double)s->rows - (double)s->nk;
+  if (!s->after_accept || s->lambda > 1e-6 || dof < 1.0 || !(s->cost > 0.0))
+    return 0;
+  return pred >= 0.0 && pred < LM_STEP_SIGMAS * LM_STEP_SIGMAS * s->cost / dof;
+}
+
+/* Fold the step of lm_step into the trial model; returns the trial cost.
+ * A linearised trial (s->linearised) is made the working model (lm_swap
+ * undoes it) and its normal matrix is in trial_A, trial_g. */
+static double lm_trial(lm_state *s, double pred)
+{
+  twf_lsq_problem *pr = s->pr;
   twf_lsq_model_assign(pr->trial, pr->m);
   memcpy(s->trial_base, pr->base, sizeof pr->base);
   twf_errmodel_fold(pr->em, s->delta, pr->trial, s->trial_base);
-  s->linearised = s->after_accept && *pred > LM_LINEARISE_PRED * s->cost;
+  s->linearised = s->after_accept && pred > LM_LINEARISE_PRED * s->cost;
   if (!s->linearised)
     return cost_at(pr, pr->trial, s->trial_base);
   lm_swap(s);
@@ -1335,7 +1363,13 @@ static twf_status lm_iterate(lm_state *s, double *value, twf_solve_report *rep, 
       }
       continue;
     }
-    cost_new = lm_trial(s, &step_max, &pred);
+    lm_step(s, &step_max, &pred);
+    if (lm_step_negligible(s, pred)) {
+      rep->iterations--; /* no trial made */
+      rep->stop = TWF_STOP_STEP;
+      return TWF_OK;
+    }
+    cost_new = lm_trial(s, pred);
     rho = pred > 0 ? (s->cost - cost_new) / pred : -1.0;
     if (isfinite(cost_new) && cost_new < s->cost) {
       double decrease = s->cost - cost_new;
@@ -1422,6 +1456,9 @@ twf_status twf_lsq_solve(twf_lsq_problem *pr, const unsigned char *keep, const t
   for (a = 0; a < p; a++)
     if (keep[a])
       s.idx[s.nk++] = a;
+  for (a = 0; a < pr->c->n_meas; a++)
+    if (twf_lsq_active(pr, a))
+      s.rows += pr->c->meas[a].has_orientation ? 6 : 3;
   s.cost = twf_lsq_normal(pr, s.idx, s.nk, pr->A, pr->g);
   rep->cost_start = rep->cost_end = s.cost;
   if (!isfinite(s.cost)) {

@@ -1207,13 +1207,14 @@ typedef struct lm_state {
   gsl_vector *rhs, *x;
   double cost, lambda, nu;
   twf_pose trial_base[TWF_STATIONS_MAX];
-  /* A trial after an accepted step that predicts a large decrease is
-   * linearised at once (its normal matrix gives its cost too, and the next
-   * step needs it when it is accepted, as such steps are): trial_A, trial_g
-   * hold it. A trial that predicts little is most likely the last, whether
-   * accepted or not, and a normal pass costs about six cost passes: it
-   * takes the cost alone, and so do the trials after a rejection until
-   * one is accepted. */
+  /* A trial after an accepted step is linearised at once: its normal
+   * matrix gives its cost too, and an accepted trial needs it anyway (for
+   * the next step, or for the stop test on it and the covariance), so the
+   * cost pass is saved; trial_A, trial_g hold it. A rejected trial then
+   * cost a normal pass (about six cost passes) instead of a cost pass, so
+   * after a rejection trials take the cost alone until one is accepted.
+   * The trials at the noise floor, where rejections by rounding were
+   * common, are not made (lm_step_negligible). */
   int after_accept, linearised;
   double *trial_A, *trial_g;
   size_t rows;         /* weighted rows in the fit (3 a point, 6 a 6-D measurement) */
@@ -1263,11 +1264,6 @@ static void lm_swap(lm_state *s)
   memcpy(s->trial_base, b, sizeof b);
 }
 
-/* Predicted decreases above this fraction of the cost make a trial worth
- * linearising (a first step from a nominal model predicts most of the
- * cost; the steps after it, near the noise floor, a small part). */
-#define LM_LINEARISE_PRED 1e-3
-
 /* The solved step into delta, with the largest scaled step and the
  * predicted decrease of the cost. */
 static void lm_step(lm_state *s, double *step_max, double *pred)
@@ -1312,13 +1308,13 @@ static int lm_step_negligible(const lm_state *s, double pred)
 /* Fold the step of lm_step into the trial model; returns the trial cost.
  * A linearised trial (s->linearised) is made the working model (lm_swap
  * undoes it) and its normal matrix is in trial_A, trial_g. */
-static double lm_trial(lm_state *s, double pred)
+static double lm_trial(lm_state *s)
 {
   twf_lsq_problem *pr = s->pr;
   twf_lsq_model_assign(pr->trial, pr->m);
   memcpy(s->trial_base, pr->base, sizeof pr->base);
   twf_errmodel_fold(pr->em, s->delta, pr->trial, s->trial_base);
-  s->linearised = s->after_accept && pred > LM_LINEARISE_PRED * s->cost;
+  s->linearised = s->after_accept;
   if (!s->linearised)
     return cost_at(pr, pr->trial, s->trial_base);
   lm_swap(s);
@@ -1369,7 +1365,7 @@ static twf_status lm_iterate(lm_state *s, double *value, twf_solve_report *rep, 
       rep->stop = TWF_STOP_STEP;
       return TWF_OK;
     }
-    cost_new = lm_trial(s, pred);
+    cost_new = lm_trial(s);
     rho = pred > 0 ? (s->cost - cost_new) / pred : -1.0;
     if (isfinite(cost_new) && cost_new < s->cost) {
       double decrease = s->cost - cost_new;

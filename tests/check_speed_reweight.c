@@ -6,6 +6,8 @@
  *    new weights to rounding; with points and with 6-D rows.
  *  - Changes beyond the log's room: a full pass, the same bits as a fresh
  *    problem's.
+ *  - The factor pass leaves R^T R, the gradient and the cost in the cache:
+ *    the fit's first normal matrix makes no pass.
  *  - The solver: a trial after an accepted step is linearised at once, so
  *    a solve costs one normal pass per trial plus the first, and the
  *    normal matrix it ends on is still cached for the covariance. */
@@ -135,6 +137,64 @@ START_TEST(test_reweighted_normal_agrees_with_a_full_pass)
 }
 END_TEST
 
+/* The factor pass leaves the normal matrix R^T R, the gradient and the
+ * cost in the cache: the normal matrix over a subset of its columns then
+ * makes no pass and agrees with a fresh problem's full pass to rounding
+ * (points and 6-D rows). */
+START_TEST(test_factor_leaves_the_normal_matrix)
+{
+  twf_model *m = test_arm_model(ARM_TF7);
+  twf_pose B;
+  twf_campaign *c = campaign(m, 150, _i, 1, &B);
+  unsigned char *use = malloc(c->n_meas);
+  twf_lsq_problem pr, fresh;
+  double *R, *A1, *g1, *A2, *g2, cost1, cost2;
+  size_t i, p, nf = 0, nc = 0, *fcols, *cols, a, b;
+  for (i = 0; i < c->n_meas; i++)
+    use[i] = c->meas[i].set == TWF_SET_FIT;
+  problem(&pr, m, c, use, TWF_GROUPS_GEOMETRIC, &B);
+  problem(&fresh, m, c, use, TWF_GROUPS_GEOMETRIC, &B);
+  p = pr.p;
+  fcols = malloc(p * sizeof *fcols);
+  cols = malloc(p * sizeof *cols);
+  for (i = 0; i < p; i++)
+    if (i % 5 != 2)
+      fcols[nf++] = i;
+  for (i = 0; i < nf; i++)
+    if (i % 3 != 1) /* a subset of the factor's columns */
+      cols[nc++] = fcols[i];
+  R = malloc(nf * nf * sizeof *R);
+  A1 = malloc(nc * nc * sizeof *A1);
+  A2 = malloc(nc * nc * sizeof *A2);
+  g1 = malloc(nc * sizeof *g1);
+  g2 = malloc(nc * sizeof *g2);
+  twf_lsq_factor(&pr, fcols, nf, R);
+  cost1 = twf_lsq_normal(&pr, cols, nc, A1, g1);
+  ck_assert_msg(pr.n_normal_passes == 0, "the factor's normal matrix was not used");
+  cost2 = twf_lsq_normal(&fresh, cols, nc, A2, g2);
+  ck_assert_uint_eq(fresh.n_normal_passes, 1);
+  ck_assert_msg(fabs(cost1 - cost2) <= 1e-12 * cost2, "cost %.17g against %.17g", cost1, cost2);
+  for (a = 0; a < nc; a++) {
+    double ga = sqrt(A2[a * nc + a] * 2.0 * cost2);
+    ck_assert_msg(fabs(g1[a] - g2[a]) <= 1e-11 * ga, "g[%zu]: %.17g against %.17g", a, g1[a], g2[a]);
+    for (b = 0; b < nc; b++) {
+      double s = sqrt(A2[a * nc + a] * A2[b * nc + b]);
+      ck_assert_msg(fabs(A1[a * nc + b] - A2[a * nc + b]) <= 1e-12 * s, "A[%zu][%zu]: %.17g against %.17g", a,
+                    b, A1[a * nc + b], A2[a * nc + b]);
+    }
+  }
+  /* a column the factor did not have: a full pass */
+  cols[nc - 1] = 2;
+  twf_lsq_normal(&pr, cols, nc, A1, g1);
+  ck_assert_uint_eq(pr.n_normal_passes, 1);
+  twf_lsq_free(&fresh);
+  twf_lsq_free(&pr);
+  free(R); free(A1); free(A2); free(g1); free(g2); free(fcols); free(cols); free(use);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
 /* A base-and-targets problem (the registration refinement's) from a
  * displaced base: the solve converges, costs one normal pass per trial
  * plus the first, and leaves the normal matrix of its solution cached. */
@@ -196,6 +256,7 @@ int main(void)
   tcase_set_timeout(tc, 120);
   tcase_add_loop_test(tc, test_reweighted_normal_agrees_with_a_full_pass, 0, 2);
   tcase_add_test(tc, test_solve_linearises_trials_and_leaves_its_matrix);
+  tcase_add_loop_test(tc, test_factor_leaves_the_normal_matrix, 0, 2);
   suite_add_tcase(s, tc);
   return twf_test_run(s);
 }

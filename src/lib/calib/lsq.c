@@ -46,6 +46,7 @@ struct twf_lsq_ws {
   twf_pose *prefix;     /* n_joints + 1 */
   double *X, *Y;        /* row batches (3 NB x p; X at least p x p) */
   double *B;            /* factor block, column-major, max_chunk_rows x p */
+  double *rb;           /* its weighted residuals, max_chunk_rows */
 };
 
 /* A column of a pass: its parameter and, for a target's, which. */
@@ -98,6 +99,7 @@ void twf_lsq_free(twf_lsq_problem *pr)
   free(pr->cacheA);
   free(pr->cacheg);
   free(pr->cache_cols);
+  free(pr->cache_pos);
   twf_model_free(pr->snap);
   free(pr->flanges);
   twf_model_free(pr->flange_model);
@@ -251,6 +253,7 @@ static void ws_free(twf_lsq_ws *w, int own_em)
   free(w->X);
   free(w->Y);
   free(w->B);
+  free(w->rb);
   memset(w, 0, sizeof *w);
 }
 
@@ -264,7 +267,8 @@ static int ws_alloc(twf_lsq_problem *pr, twf_lsq_ws *w, int thread)
   w->X = calloc(nx > p * p ? nx : p * p, sizeof *w->X); /* padding stays zero */
   w->Y = calloc(nx, sizeof *w->Y);
   w->B = calloc((pr->max_chunk_rows ? pr->max_chunk_rows : 1) * p, sizeof *w->B);
-  if (w->em == NULL || !w->prefix || !w->X || !w->Y || !w->B) {
+  w->rb = calloc(pr->max_chunk_rows ? pr->max_chunk_rows : 1, sizeof *w->rb);
+  if (w->em == NULL || !w->prefix || !w->X || !w->Y || !w->B || !w->rb) {
     ws_free(w, thread != 0);
     return -1;
   }
@@ -297,9 +301,10 @@ static int pass_resources(twf_lsq_problem *pr)
   pr->cacheA = calloc(p * p, sizeof *pr->cacheA);
   pr->cacheg = calloc(p, sizeof *pr->cacheg);
   pr->cache_cols = calloc(p, sizeof *pr->cache_cols);
+  pr->cache_pos = calloc(p, sizeof *pr->cache_pos);
   pr->snap = twf_model_copy(pr->m);
   pr->need = calloc(p, 1);
-  if (!pr->ws || !pr->slot1 || !pr->acc || !pr->coldesc || !pr->need || !pr->cacheA || !pr->cacheg || !pr->cache_cols || !pr->snap || ws_alloc(pr, &pr->ws[0], 0) != 0)
+  if (!pr->ws || !pr->slot1 || !pr->acc || !pr->coldesc || !pr->need || !pr->cacheA || !pr->cacheg || !pr->cache_cols || !pr->cache_pos || !pr->snap || ws_alloc(pr, &pr->ws[0], 0) != 0)
     return -1;
   pr->n_ws = 1;
   return 0;
@@ -795,9 +800,10 @@ static double normal_pass(twf_lsq_problem *pr, const size_t *cols, size_t nc, do
 /* ------------------------------------------------------------ the factor */
 
 /* The weighted rows of a chunk into the column-major block B (rows x nc),
- * formed as twf_errmodel_point and twf_errmodel_orientation form them;
- * returns the row count. */
-static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, double *B, size_t ldb)
+ * formed as twf_errmodel_point and twf_errmodel_orientation form them, and
+ * their weighted residuals into rb; returns the row count. */
+static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, double *B, size_t ldb,
+                          double *rb)
 {
   twf_lsq_problem *pr = ps->pr;
   const twf_campaign *c = pr->c;
@@ -821,6 +827,8 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
         continue;
       twf_pose_apply(F, m->targets[ms->target].offset, y);
       sw = sqrt(pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i]);
+      for (r = 0; r < 3; r++)
+        rb[n + (size_t)r] = sw * (ms->pos[r] - y[r]);
       for (a = 0; a < ps->nc; a++) {
         const lsq_col *cd = &ps->cd[a];
         double *col = B + a * ldb + n;
@@ -843,6 +851,8 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
         sw = sqrt(pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot);
         twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
         twf_errmodel_orientation_jinv(ws->em, Rm, ro, Ji);
+        for (r = 0; r < 3; r++)
+          rb[n + (size_t)r] = sw * ro[r];
         for (a = 0; a < ps->nc; a++) {
           const double *e = tw + 6 * ps->cd[a].j;
           double *col = B + a * ldb + n;
@@ -865,19 +875,35 @@ static size_t factor_rows(pass *ps, twf_lsq_ws *ws, size_t pose0, size_t pose1, 
 #define FACTOR_BLOCK_POSES 8
 
 /* Slot of the factor pass: the chunk's own factor, column-major (as a
- * triangular block of rows for the merge). */
+ * triangular block of rows for the merge), then the chunk's gradient
+ * J^T W r (nc) and cost. */
 static void factor_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
 {
-  size_t nc = ps->nc, ldb = ps->pr->max_chunk_rows, n, a, b;
+  size_t nc = ps->nc, ldb = ps->pr->max_chunk_rows, n, a, b, i;
   size_t pose0 = chunk * TWF_LSQ_CHUNK_POSES, pose1 = pose0 + TWF_LSQ_CHUNK_POSES, p0;
   double *Rc = ws->X; /* nc x nc, free during the factor pass */
+  double *g = slot + nc * nc, *cost = g + nc;
   if (pose1 > ps->pr->c->n_poses)
     pose1 = ps->pr->c->n_poses;
   memset(Rc, 0, nc * nc * sizeof *Rc);
+  memset(g, 0, (nc + 1) * sizeof *g);
   for (p0 = pose0; p0 < pose1; p0 += FACTOR_BLOCK_POSES) {
-    n = factor_rows(ps, ws, p0, p0 + FACTOR_BLOCK_POSES < pose1 ? p0 + FACTOR_BLOCK_POSES : pose1, ws->B, ldb);
+    n = factor_rows(ps, ws, p0, p0 + FACTOR_BLOCK_POSES < pose1 ? p0 + FACTOR_BLOCK_POSES : pose1, ws->B, ldb,
+                    ws->rb);
     if (n == 0)
       continue;
+    /* the gradient and the cost from the rows before the reflections
+     * overwrite them: the fit's first normal matrix is R^T R at this
+     * point, and these (twf_lsq_factor) */
+    for (a = 0; a < nc; a++) {
+      const double *col = ws->B + a * ldb;
+      double s = 0.0;
+      for (i = 0; i < n; i++)
+        s += col[i] * ws->rb[i];
+      g[a] += s;
+    }
+    for (i = 0; i < n; i++)
+      *cost += 0.5 * ws->rb[i] * ws->rb[i];
     /* the block's columns are ldb apart: compact them to n rows */
     if (n < ldb)
       for (a = 1; a < nc; a++)
@@ -891,8 +917,12 @@ static void factor_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
 
 static void factor_reduce(pass *ps, size_t chunk, double *slot)
 {
+  size_t nc = ps->nc, a;
+  double *g = ps->acc + nc * nc;
   (void)chunk;
-  twf_ident_qr_add_block(ps->acc, ps->nc, slot, ps->nc, 1);
+  twf_ident_qr_add_block(ps->acc, nc, slot, nc, 1);
+  for (a = 0; a <= nc; a++)
+    g[a] += slot[nc * nc + a]; /* the gradient, then the cost */
 }
 
 /* ------------------------------------------------------------ the cost */
@@ -963,16 +993,19 @@ static double cost_at(twf_lsq_problem *pr, const twf_model *m, const twf_pose *B
 /* The normal matrix A = J^T W J (nc x nc) and gradient g = J^T W r (nc)
  * over the columns cols[0..nc) (NULL: all p), and the cost. Restricting to
  * the kept columns in the solver saves the updates of the fixed ones. */
-/* 1 when the last normal matrix was made over these columns at this
- * model and base (its weights may have changed since: twf_lsq_normal):
- * the covariance asks again for the one the solver ended on. */
+/* 1 when the last normal matrix was made at this model and base over
+ * columns that include these (its weights may have changed since:
+ * twf_lsq_normal): the covariance asks again for the one the solver ended
+ * on, and the fit's first is part of the factor pass's. */
 static int cache_at_point(const twf_lsq_problem *pr, const size_t *cols, size_t nc)
 {
   const twf_model *a = pr->m, *b = pr->snap;
-  if (!pr->cache_valid || pr->cache_nc != nc || (cols == NULL) != (pr->cache_all != 0))
+  size_t k;
+  if (!pr->cache_valid)
     return 0;
-  if (cols != NULL && memcmp(cols, pr->cache_cols, nc * sizeof *cols) != 0)
-    return 0;
+  for (k = 0; k < nc; k++)
+    if (pr->cache_pos[cols ? cols[k] : k] == SIZE_MAX)
+      return 0;
   return memcmp(pr->base, pr->cache_base, sizeof pr->base) == 0 &&
          memcmp(a->joints, b->joints, a->n_joints * sizeof *a->joints) == 0 &&
          memcmp(a->targets, b->targets, a->n_targets * sizeof *a->targets) == 0 &&
@@ -987,13 +1020,13 @@ static double cache_add_rows(twf_lsq_problem *pr, const double *rows, size_t k, 
   size_t n = pr->cache_nc, p = pr->p, a, b, e;
   double sq = 0.0;
   for (a = 0; a < n; a++) {
-    size_t ca = pr->cache_all ? a : pr->cache_cols[a];
+    size_t ca = pr->cache_cols[a];
     double ga = 0.0;
     for (e = 0; e < k; e++)
       ga += rows[e * p + ca] * r[e];
     pr->cacheg[a] += dw * ga;
     for (b = a; b < n; b++) {
-      size_t cb = pr->cache_all ? b : pr->cache_cols[b];
+      size_t cb = pr->cache_cols[b];
       double s = 0.0;
       for (e = 0; e < k; e++)
         s += rows[e * p + ca] * rows[e * p + cb];
@@ -1051,20 +1084,30 @@ static void cache_reweight(twf_lsq_problem *pr)
     pr->cache_cost = cost_at(pr, pr->m, pr->base);
 }
 
-/* The cache now holds A, g and the cost over these columns at the
- * working model and base with the current weights. */
-static void cache_mark(twf_lsq_problem *pr, const size_t *cols, size_t n)
+/* The cache now holds A, g and the cost at the working model and base
+ * with the current weights. */
+static void cache_settle(twf_lsq_problem *pr)
 {
   pr->cache_valid = 1;
-  pr->cache_nc = n;
-  pr->cache_all = cols == NULL;
-  if (cols != NULL)
-    memcpy(pr->cache_cols, cols, n * sizeof *cols);
   memcpy(pr->cache_base, pr->base, sizeof pr->base);
   pr->cache_weight_gen = pr->weight_gen;
   twf_lsq_model_assign(pr->snap, pr->m);
   pr->wlog_n = 0;
   pr->wlog_full = 0;
+}
+
+/* The same, over the columns cols[0..n) (NULL: 0 .. n - 1). */
+static void cache_mark(twf_lsq_problem *pr, const size_t *cols, size_t n)
+{
+  size_t k;
+  pr->cache_nc = n;
+  for (k = 0; k < pr->p; k++)
+    pr->cache_pos[k] = SIZE_MAX;
+  for (k = 0; k < n; k++) {
+    pr->cache_cols[k] = cols ? cols[k] : k;
+    pr->cache_pos[pr->cache_cols[k]] = k;
+  }
+  cache_settle(pr);
 }
 
 /* Put a normal matrix made at the working model with the current weights
@@ -1080,19 +1123,30 @@ static void cache_store(twf_lsq_problem *pr, const size_t *cols, size_t n, const
 
 double twf_lsq_normal(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *A, double *g)
 {
-  size_t n = cols ? nc : pr->p;
-  if (!cache_at_point(pr, cols, n)) {
+  size_t n = cols ? nc : pr->p, N, a, b;
+  int same;
+  if (!cache_at_point(pr, cols, n) || (pr->cache_weight_gen != pr->weight_gen && pr->wlog_full)) {
     pr->cache_cost = normal_pass(pr, cols, n, pr->cacheA, pr->cacheg);
     cache_mark(pr, cols, n);
   } else if (pr->cache_weight_gen != pr->weight_gen) {
-    if (pr->wlog_full)
-      pr->cache_cost = normal_pass(pr, cols, n, pr->cacheA, pr->cacheg);
-    else
-      cache_reweight(pr);
-    cache_mark(pr, cols, n);
+    cache_reweight(pr);
+    cache_settle(pr);
   }
-  memcpy(A, pr->cacheA, n * n * sizeof *A);
-  memcpy(g, pr->cacheg, n * sizeof *g);
+  /* these columns out of the cache's (the same ones: a copy) */
+  N = pr->cache_nc;
+  for (a = 0, same = N == n; a < n && same; a++)
+    same = pr->cache_cols[a] == (cols ? cols[a] : a);
+  if (same) {
+    memcpy(A, pr->cacheA, n * n * sizeof *A);
+    memcpy(g, pr->cacheg, n * sizeof *g);
+    return pr->cache_cost;
+  }
+  for (a = 0; a < n; a++) {
+    size_t ia = pr->cache_pos[cols ? cols[a] : a];
+    g[a] = pr->cacheg[ia];
+    for (b = 0; b < n; b++)
+      A[a * n + b] = pr->cacheA[ia * N + pr->cache_pos[cols ? cols[b] : b]];
+  }
   return pr->cache_cost;
 }
 
@@ -1108,18 +1162,32 @@ void twf_lsq_factor(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *
   memset(&ps, 0, sizeof ps);
   ps.pr = pr;
   pass_columns(&ps, cols, nc);
-  ps.slot_size = nc * nc;
   ps.n_chunks = pass_chunks(pr);
   ps.flanges = pass_flanges(pr, pr->m);
   ps.compute = factor_compute;
   ps.reduce = factor_reduce;
-  ps.acc = R;
-  memset(R, 0, nc * nc * sizeof *R);
+  ps.slot_size = nc * nc + nc + 1;
+  ps.acc = pr->acc; /* R, then the gradient and the cost */
+  memset(ps.acc, 0, ps.slot_size * sizeof *ps.acc);
   pass_run(&ps);
+  memcpy(R, ps.acc, nc * nc * sizeof *R);
   for (a = 0; a < nc; a++)
     if (R[a * nc + a] < 0.0)
       for (b = a; b < nc; b++)
         R[a * nc + b] = -R[a * nc + b];
+  /* the normal matrix at this point is R^T R: the cache takes it with the
+   * gradient and the cost, for the fit's first linearisation */
+  for (a = 0; a < nc; a++)
+    for (b = a; b < nc; b++) {
+      double s = 0.0;
+      size_t k;
+      for (k = 0; k <= a; k++)
+        s += R[k * nc + a] * R[k * nc + b];
+      pr->cacheA[a * nc + b] = pr->cacheA[b * nc + a] = s;
+    }
+  memcpy(pr->cacheg, ps.acc + nc * nc, nc * sizeof *pr->cacheg);
+  pr->cache_cost = ps.acc[nc * nc + nc];
+  cache_mark(pr, cols, nc);
 }
 
 /* One thread's range of twf_lsq_residuals. */

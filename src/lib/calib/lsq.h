@@ -53,8 +53,9 @@ typedef struct twf_lsq_problem {
   size_t wlog_n, wlog_cap;
   int wlog_full;           /* more changes than the log holds: a full pass */
   unsigned long n_normal_passes; /* normal matrices made over every row (a diagnostic) */
-  int cache_valid, cache_all;
-  size_t cache_nc, *cache_cols;
+  int cache_valid;
+  size_t cache_nc, *cache_cols;  /* its columns */
+  size_t *cache_pos;       /* p: each parameter's place among them, SIZE_MAX when not there */
   double *cacheA, *cacheg, cache_cost;
   twf_pose cache_base[TWF_STATIONS_MAX];
   twf_model *snap;
@@ -112,7 +113,10 @@ double twf_lsq_normal(twf_lsq_problem *pr, const size_t *cols, size_t nc, double
 /* The triangular factor R of the weighted Jacobian (R^T R = J^T W J) over
  * the columns cols[0..nc) (R is nc x nc, diagonal not negative), streamed
  * by blocks of rows (Householder) and merged chunk by chunk: the
- * redundancy walks run on it. */
+ * redundancy walks run on it. The same pass sums the gradient and the
+ * cost, and the normal matrix R^T R over these columns, with them, takes
+ * the place of the last one (twf_lsq_normal at this point over any of
+ * these columns then makes no pass: the fit's first linearisation). */
 void twf_lsq_factor(twf_lsq_problem *pr, const size_t *cols, size_t nc, double *R);
 
 /* Scale A (p x p) into length units: As = D A D. */

@@ -320,191 +320,284 @@ static int check_outputs(sim_settings *s)
   return cli_outputs_check("simulate", s->outputs, names, 3, s->force, s->inputs);
 }
 
+/* What a run reads and makes; sim_job_free releases it. so in the
+ * settings points into it (targets, stations, poses), so it stays where
+ * it was made. */
+typedef struct sim_job {
+  twf_model *model, *truth;
+  twf_campaign *joints;              /* the --joints file, or NULL */
+  twf_campaign *c;                   /* the simulated campaign */
+  unsigned char *mask;               /* the --targets measured, or NULL */
+  size_t *pose_station;              /* each pose's station, or NULL */
+  twf_pose B;                        /* the one base pose (no --stations) */
+  twf_pose station_base[TWF_STATIONS_MAX];
+  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
+  size_t n_stations;                 /* 0: no --stations, the base pose B */
+  twf_warnings warnings;
+  twf_error err;
+} sim_job;
+
+static void sim_job_init(sim_job *j)
+{
+  j->model = j->truth = NULL;
+  j->joints = j->c = NULL;
+  j->mask = NULL;
+  j->pose_station = NULL;
+  j->n_stations = 0;
+  twf_warnings_init(&j->warnings);
+  twf_error_clear(&j->err);
+}
+
+static void sim_job_free(sim_job *j)
+{
+  free(j->pose_station);
+  twf_campaign_free(j->c);
+  twf_campaign_free(j->joints);
+  twf_model_free(j->truth);
+  twf_model_free(j->model);
+  free(j->mask);
+  twf_warnings_clear(&j->warnings);
+}
+
+/* MODEL, then the sizes given in its units and the --targets it names. */
+static int read_model(sim_settings *s, sim_job *j)
+{
+  const sim_text *tx = &s->tx;
+  cli_units u;
+  int status;
+  j->model = twf_model_read_with(s->model_path, &s->ropt, &j->warnings, NULL, &j->err);
+  if (j->model == NULL)
+    return cli_report_error(&j->err);
+  cli_units_of(&u, j->model);
+  if ((status = unit_value(tx->angle_sd, "--angle-sd", u.angle_si, u.angle, 0.1, &s->mag.tilt_rad)) != 0 ||
+      (status = unit_value(tx->length_sd, "--length-sd", u.length_si, u.length, 0.1, &s->mag.shift_m)) != 0 ||
+      (status = unit_value(tx->offset_sd, "--offset-sd", u.angle_si, u.angle, 0.1, &s->mag.offset_rad)) != 0 ||
+      (status = unit_value(tx->target_sd, "--target-sd", u.length_si, u.length, 0.1, &s->mag.target_m)) != 0 ||
+      (status = unit_value(tx->sigma, "--sigma", u.length_si, u.length, 0.01, &s->so.sigma_m)) != 0 ||
+      (status = unit_value(tx->sigma_angle, "--sigma-angle", u.angle_si, u.angle, 0.1, &s->so.sigma_rad)) != 0 ||
+      (status = unit_value(tx->outlier_size, "--outlier-size", u.length_si, u.length, 1.0, &s->so.outlier_m)) != 0)
+    return status;
+  if (s->targets_text != NULL) {
+    j->mask = calloc(j->model->n_targets ? j->model->n_targets : 1, 1);
+    if (j->mask == NULL)
+      return TWF_EXIT_INTERNAL;
+    if ((status = pcli_parse_targets("simulate", j->model, s->targets_text, j->mask)) != 0)
+      return status;
+    s->so.targets = j->mask;
+  }
+  return 0;
+}
+
+/* The true arm: the --true file (MODEL's shape), or MODEL with errors
+ * drawn at the sizes given. */
+static int make_true_arm(const sim_settings *s, sim_job *j)
+{
+  char note[128];
+  if (s->true_path != NULL) {
+    j->truth = twf_model_read_with(s->true_path, &s->ropt, &j->warnings, NULL, &j->err);
+    if (j->truth == NULL)
+      return cli_report_error(&j->err);
+    return same_shape(j->model, j->truth, s->true_path);
+  }
+  j->truth = twf_model_copy(j->model);
+  if (j->truth == NULL)
+    return TWF_EXIT_INTERNAL;
+  /* the errors are drawn from their own stream of the seed */
+  twf_model_perturb(j->truth, &s->mag, s->so.seed ^ 0x6a09e667f3bcc909ULL);
+  snprintf(note, sizeof note, "drawn by twistfit simulate, seed %llu", s->so.seed);
+  twf_model_meta_set(j->truth, "simulated", note);
+  return 0;
+}
+
+/* The --base pose file, or the identity. */
+static int read_base(const sim_settings *s, sim_job *j)
+{
+  if (s->base_path == NULL) {
+    twf_pose_identity(&j->B);
+    return 0;
+  }
+  if (twf_base_read(s->base_path, &j->B, &j->err) != TWF_OK)
+    return cli_report_error(&j->err);
+  /* any base pose places a simulated arm, but a true arm and a base
+   * pose that different runs wrote are more likely a slip: a warning */
+  if (s->true_path != NULL)
+    cli_check_same_run("simulate", s->true_path, "the true arm", s->base_path, "the base pose file", 0, 0);
+  return 0;
+}
+
+/* The --stations file: [station NAME] sections only. */
+static int read_stations(const sim_settings *s, sim_job *j)
+{
+  if (s->stations_path == NULL)
+    return 0;
+  if (twf_base_read_stations(s->stations_path, NULL, j->station_base, j->station_names, TWF_STATIONS_MAX,
+                             &j->n_stations, NULL, &j->err) != TWF_OK)
+    return cli_report_error(&j->err);
+  if (j->station_names[0][0] == '\0') {
+    twf_error_set(&j->err, TWF_ERR_MISSING, s->stations_path, 0, 0,
+                  "give one [station NAME] section per station, or use --base for one",
+                  "the file holds a [base] section, not instrument stations");
+    return cli_report_error(&j->err);
+  }
+  if (s->true_path != NULL)
+    cli_check_same_run("simulate", s->true_path, "the true arm", s->stations_path, "the stations file", 0, 0);
+  return 0;
+}
+
+/* The poses of the --joints file replace the drawn ones. */
+static int read_joints(sim_settings *s, sim_job *j)
+{
+  if (s->joints_path == NULL)
+    return 0;
+  j->joints = twf_campaign_read_joints(s->joints_path, j->model, NULL, &j->warnings, &j->err);
+  if (j->joints == NULL)
+    return cli_report_error(&j->err);
+  s->so.n_poses = j->joints->n_poses;
+  s->so.q = j->joints->q;
+  return 0;
+}
+
+/* Every input read and checked; the readers' warnings are printed only
+ * when all of them could be read. */
+static int load_inputs(sim_settings *s, sim_job *j)
+{
+  int status;
+  if ((status = read_model(s, j)) != 0 || (status = make_true_arm(s, j)) != 0 ||
+      (status = read_base(s, j)) != 0 || (status = read_stations(s, j)) != 0 ||
+      (status = read_joints(s, j)) != 0)
+    return status;
+  cli_print_warnings(&j->warnings);
+  return 0;
+}
+
+/* Room for the station of each of the so.n_poses poses. */
+static int alloc_pose_station(const sim_settings *s, sim_job *j)
+{
+  j->pose_station = malloc((s->so.n_poses ? s->so.n_poses : 1) * sizeof *j->pose_station);
+  return j->pose_station == NULL ? TWF_EXIT_INTERNAL : 0;
+}
+
+/* The joints file names each pose's station (plan writes it): by name
+ * into the stations file. */
+static int stations_by_name(const sim_settings *s, sim_job *j)
+{
+  const twf_campaign *joints = j->joints;
+  size_t k, l;
+  int status;
+  if (s->have_assign)
+    return cli_usage_error("simulate", "the joints file has a station column: --assign does not apply");
+  if ((status = alloc_pose_station(s, j)) != 0)
+    return status;
+  for (k = 0; k < s->so.n_poses; k++) {
+    const char *nm = joints->station_names[twf_campaign_pose_station(joints, k)];
+    for (l = 0; l < j->n_stations; l++)
+      if (strcmp(j->station_names[l], nm) == 0)
+        break;
+    if (l == j->n_stations) {
+      twf_error_set(&j->err, TWF_ERR_MISSING, s->stations_path, 0, 0,
+                    "give a section for every station of the joints file",
+                    "no section [station %s] for station '%s' of pose '%s' in %s", nm, nm, joints->pose_ids[k],
+                    s->joints_path);
+      return cli_report_error(&j->err);
+    }
+    j->pose_station[k] = l;
+  }
+  return 0;
+}
+
+/* Consecutive blocks of (nearly) equal size, in station order. */
+static int stations_in_blocks(const sim_settings *s, sim_job *j)
+{
+  size_t n;
+  int status;
+  if ((status = alloc_pose_station(s, j)) != 0)
+    return status;
+  for (n = 0; n < s->so.n_poses; n++)
+    j->pose_station[n] = n * j->n_stations / s->so.n_poses;
+  return 0;
+}
+
+/* With --stations, which station sees each pose: the joints file's
+ * station column, --assign block, or (pose_station left NULL) the
+ * library's default, in turn. */
+static int assign_stations(sim_settings *s, sim_job *j)
+{
+  int status = 0;
+  if (j->n_stations == 0)
+    return 0;
+  s->so.n_stations = j->n_stations;
+  s->so.station_base = j->station_base;
+  s->so.station_names = (const char (*)[TWF_NAME_MAX])j->station_names;
+  if (j->joints != NULL && j->joints->n_stations > 0)
+    status = stations_by_name(s, j);
+  else if (s->assign_block)
+    status = stations_in_blocks(s, j);
+  else
+    return 0;
+  if (status == 0)
+    s->so.pose_station = j->pose_station;
+  return status;
+}
+
+/* The campaign measured on the true arm; the poses keep the joints
+ * file's ids. */
+static int simulate(const sim_settings *s, sim_job *j)
+{
+  size_t n;
+  j->c = twf_simulate_campaign(j->truth, j->n_stations > 0 ? NULL : &j->B, &s->so, &j->err);
+  if (j->c == NULL)
+    return cli_report_error(&j->err);
+  if (j->joints != NULL)
+    for (n = 0; n < j->c->n_poses; n++)
+      memcpy(j->c->pose_ids[n], j->joints->pose_ids[n], TWF_NAME_MAX);
+  return 0;
+}
+
+/* The campaign, the true arm and the base pose or stations, written
+ * together (or none). */
+static int write_outputs(const sim_settings *s, sim_job *j)
+{
+  const twf_model *model = j->model;
+  twf_length_unit lu = s->have_lu ? s->lu : model->length_unit;
+  campaign_ctx cc = { j->c, model, lu, s->have_au ? s->au : model->angle_unit, s->so.seed };
+  base_ctx bc = { j->n_stations > 0 ? j->station_base : &j->B,
+                  j->n_stations > 0 ? (const char (*)[TWF_NAME_MAX])j->station_names : NULL,
+                  j->n_stations > 0 ? j->n_stations : 1, lu };
+  cli_put puts[3];
+  puts[0] = (cli_put){ s->outputs[0], put_campaign, &cc };
+  puts[1] = (cli_put){ s->outputs[1], put_true, j->truth };
+  puts[2] = (cli_put){ s->outputs[2], put_base, &bc };
+  return cli_write_outputs(puts, 3, s->force, s->inputs);
+}
+
+/* With -v, what was written (unless the campaign went to standard
+ * output). */
+static void say_simulated(const sim_settings *s, const twf_campaign *c)
+{
+  size_t i, n_check = 0;
+  if (cli_verbosity <= 0 || strcmp(s->outputs[0], "-") == 0)
+    return;
+  for (i = 0; i < c->n_meas; i++)
+    n_check += c->meas[i].set == TWF_SET_CHECK;
+  fprintf(stderr, "twistfit: simulated %zu poses, %zu measurements (%zu check) into %s\n", c->n_poses, c->n_meas,
+          n_check, s->outputs[0]);
+}
+
 static int run_simulate(int argc, char **argv)
 {
   sim_settings s;
+  sim_job j;
   int status;
-  twf_model *model = NULL, *truth = NULL;
-  twf_campaign *joints = NULL, *c = NULL;
-  unsigned char *mask = NULL;
-  twf_warnings warnings;
-  twf_error err;
-  twf_pose B, station_base[TWF_STATIONS_MAX];
-  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
-  size_t n_stations = 0, *pose_station = NULL;
-  cli_units u;
-  size_t n = 0;
 
   if ((status = parse_options(argc, argv, &s)) != 0 || s.help_shown)
     return status;
   if ((status = check_settings(&s)) != 0 || (status = check_outputs(&s)) != 0)
     return status;
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
-
-  model = twf_model_read_with(s.model_path, &s.ropt, &warnings, NULL, &err);
-  if (model == NULL) {
-    status = cli_report_error(&err);
-    goto done;
-  }
-  cli_units_of(&u, model);
-  if ((status = unit_value(s.tx.angle_sd, "--angle-sd", u.angle_si, u.angle, 0.1, &s.mag.tilt_rad)) != 0 ||
-      (status = unit_value(s.tx.length_sd, "--length-sd", u.length_si, u.length, 0.1, &s.mag.shift_m)) != 0 ||
-      (status = unit_value(s.tx.offset_sd, "--offset-sd", u.angle_si, u.angle, 0.1, &s.mag.offset_rad)) != 0 ||
-      (status = unit_value(s.tx.target_sd, "--target-sd", u.length_si, u.length, 0.1, &s.mag.target_m)) != 0 ||
-      (status = unit_value(s.tx.sigma, "--sigma", u.length_si, u.length, 0.01, &s.so.sigma_m)) != 0 ||
-      (status = unit_value(s.tx.sigma_angle, "--sigma-angle", u.angle_si, u.angle, 0.1, &s.so.sigma_rad)) != 0 ||
-      (status = unit_value(s.tx.outlier_size, "--outlier-size", u.length_si, u.length, 1.0, &s.so.outlier_m)) != 0)
-    goto done;
-  if (s.targets_text != NULL) {
-    mask = calloc(model->n_targets ? model->n_targets : 1, 1);
-    if (mask == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    if ((status = pcli_parse_targets("simulate", model, s.targets_text, mask)) != 0)
-      goto done;
-    s.so.targets = mask;
-  }
-  if (s.true_path != NULL) {
-    truth = twf_model_read_with(s.true_path, &s.ropt, &warnings, NULL, &err);
-    if (truth == NULL) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    if ((status = same_shape(model, truth, s.true_path)) != 0)
-      goto done;
-  } else {
-    char note[128];
-    truth = twf_model_copy(model);
-    if (truth == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    /* the errors are drawn from their own stream of the seed */
-    twf_model_perturb(truth, &s.mag, s.so.seed ^ 0x6a09e667f3bcc909ULL);
-    snprintf(note, sizeof note, "drawn by twistfit simulate, seed %llu", s.so.seed);
-    twf_model_meta_set(truth, "simulated", note);
-  }
-  if (s.base_path != NULL) {
-    if (twf_base_read(s.base_path, &B, &err) != TWF_OK) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    /* any base pose places a simulated arm, but a true arm and a base
-     * pose that different runs wrote are more likely a slip: a warning */
-    if (s.true_path != NULL)
-      cli_check_same_run("simulate", s.true_path, "the true arm", s.base_path, "the base pose file", 0, 0);
-  } else {
-    twf_pose_identity(&B);
-  }
-  if (s.stations_path != NULL) {
-    if (twf_base_read_stations(s.stations_path, NULL, station_base, station_names, TWF_STATIONS_MAX, &n_stations,
-                               NULL, &err) != TWF_OK) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    if (station_names[0][0] == '\0') {
-      twf_error_set(&err, TWF_ERR_MISSING, s.stations_path, 0, 0,
-                    "give one [station NAME] section per station, or use --base for one",
-                    "the file holds a [base] section, not instrument stations");
-      status = cli_report_error(&err);
-      goto done;
-    }
-    if (s.true_path != NULL)
-      cli_check_same_run("simulate", s.true_path, "the true arm", s.stations_path, "the stations file", 0, 0);
-  }
-  if (s.joints_path != NULL) {
-    joints = twf_campaign_read_joints(s.joints_path, model, NULL, &warnings, &err);
-    if (joints == NULL) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    s.so.n_poses = joints->n_poses;
-    s.so.q = joints->q;
-  }
-  cli_print_warnings(&warnings);
-  if (n_stations > 0) {
-    s.so.n_stations = n_stations;
-    s.so.station_base = station_base;
-    s.so.station_names = (const char (*)[TWF_NAME_MAX])station_names;
-    if (joints != NULL && joints->n_stations > 0) {
-      /* the joints file names each pose's station (plan writes it): by
-       * name into the stations file */
-      size_t k, l;
-      if (s.have_assign) {
-        status = cli_usage_error("simulate", "the joints file has a station column: --assign does not apply");
-        goto done;
-      }
-      pose_station = malloc((s.so.n_poses ? s.so.n_poses : 1) * sizeof *pose_station);
-      if (pose_station == NULL) {
-        status = TWF_EXIT_INTERNAL;
-        goto done;
-      }
-      for (k = 0; k < s.so.n_poses; k++) {
-        const char *nm = joints->station_names[twf_campaign_pose_station(joints, k)];
-        for (l = 0; l < n_stations; l++)
-          if (strcmp(station_names[l], nm) == 0)
-            break;
-        if (l == n_stations) {
-          twf_error_set(&err, TWF_ERR_MISSING, s.stations_path, 0, 0,
-                        "give a section for every station of the joints file",
-                        "no section [station %s] for station '%s' of pose '%s' in %s", nm, nm,
-                        joints->pose_ids[k], s.joints_path);
-          status = cli_report_error(&err);
-          goto done;
-        }
-        pose_station[k] = l;
-      }
-      s.so.pose_station = pose_station;
-    } else if (s.assign_block) {
-      /* consecutive blocks of (nearly) equal size, in station order */
-      pose_station = malloc((s.so.n_poses ? s.so.n_poses : 1) * sizeof *pose_station);
-      if (pose_station == NULL) {
-        status = TWF_EXIT_INTERNAL;
-        goto done;
-      }
-      for (n = 0; n < s.so.n_poses; n++)
-        pose_station[n] = n * n_stations / s.so.n_poses;
-      s.so.pose_station = pose_station;
-    }
-  }
-  c = twf_simulate_campaign(truth, n_stations > 0 ? NULL : &B, &s.so, &err);
-  if (c == NULL) {
-    status = cli_report_error(&err);
-    goto done;
-  }
-  if (joints != NULL)
-    for (n = 0; n < c->n_poses; n++)
-      memcpy(c->pose_ids[n], joints->pose_ids[n], TWF_NAME_MAX);
-  {
-    campaign_ctx cc = { c, model, s.have_lu ? s.lu : model->length_unit, s.have_au ? s.au : model->angle_unit,
-                        s.so.seed };
-    base_ctx bc = { n_stations > 0 ? station_base : &B,
-                    n_stations > 0 ? (const char (*)[TWF_NAME_MAX])station_names : NULL,
-                    n_stations > 0 ? n_stations : 1, s.have_lu ? s.lu : model->length_unit };
-    cli_put puts[3];
-    puts[0] = (cli_put){ s.outputs[0], put_campaign, &cc };
-    puts[1] = (cli_put){ s.outputs[1], put_true, truth };
-    puts[2] = (cli_put){ s.outputs[2], put_base, &bc };
-    status = cli_write_outputs(puts, 3, s.force, s.inputs);
-  }
-  if (status == TWF_EXIT_OK && cli_verbosity > 0 && strcmp(s.outputs[0], "-") != 0) {
-    size_t i, n_check = 0;
-    for (i = 0; i < c->n_meas; i++)
-      n_check += c->meas[i].set == TWF_SET_CHECK;
-    fprintf(stderr, "twistfit: simulated %zu poses, %zu measurements (%zu check) into %s\n", c->n_poses,
-            c->n_meas, n_check, s.outputs[0]);
-  }
-
-done:
-  free(pose_station);
-  twf_campaign_free(c);
-  twf_campaign_free(joints);
-  twf_model_free(truth);
-  twf_model_free(model);
-  free(mask);
-  twf_warnings_clear(&warnings);
+  sim_job_init(&j);
+  if ((status = load_inputs(&s, &j)) == 0 && (status = assign_stations(&s, &j)) == 0 &&
+      (status = simulate(&s, &j)) == 0 && (status = write_outputs(&s, &j)) == TWF_EXIT_OK)
+    say_simulated(&s, j.c);
+  sim_job_free(&j);
   return status;
 }
 

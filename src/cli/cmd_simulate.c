@@ -136,330 +136,468 @@ static int same_shape(const twf_model *a, const twf_model *b, const char *path)
   return 0;
 }
 
-static int run_simulate(int argc, char **argv)
-{
-  static const struct option longopts[] = {
-    { "output", required_argument, NULL, 'o' },
-    { "true-output", required_argument, NULL, OPT_TRUE_OUT },
-    { "base-output", required_argument, NULL, OPT_BASE_OUT },
-    { "joints", required_argument, NULL, OPT_JOINTS },
-    { "poses", required_argument, NULL, OPT_POSES },
-    { "limit-margin", required_argument, NULL, OPT_MARGIN },
-    { "true", required_argument, NULL, OPT_TRUE },
-    { "angle-sd", required_argument, NULL, OPT_ANGLE_SD },
-    { "length-sd", required_argument, NULL, OPT_LENGTH_SD },
-    { "offset-sd", required_argument, NULL, OPT_OFFSET_SD },
-    { "scale-sd", required_argument, NULL, OPT_SCALE_SD },
-    { "target-sd", required_argument, NULL, OPT_TARGET_SD },
-    { "base", required_argument, NULL, OPT_BASE },
-    { "stations", required_argument, NULL, OPT_STATIONS },
-    { "assign", required_argument, NULL, OPT_ASSIGN },
-    { "sigma", required_argument, NULL, OPT_SIGMA },
-    { "orientation", no_argument, NULL, OPT_ORIENTATION },
-    { "sigma-angle", required_argument, NULL, OPT_SIGMA_ANGLE },
-    { "targets", required_argument, NULL, OPT_TARGETS },
-    { "outliers", required_argument, NULL, OPT_OUTLIERS },
-    { "outlier-size", required_argument, NULL, OPT_OUTLIER_SIZE },
-    { "check-fraction", required_argument, NULL, OPT_CHECK },
-    { "seed", required_argument, NULL, OPT_SEED },
-    { "length-unit", required_argument, NULL, OPT_LUNIT },
-    { "angle-unit", required_argument, NULL, OPT_AUNIT },
-    { "force", no_argument, NULL, 'f' },
-    CLI_URDF_LONGOPTS,
-    { "help", no_argument, NULL, 'h' },
-    { NULL, 0, NULL, 0 }
-  };
-  static const char *const names[3] = { "--output", "--true-output", "--base-output" };
-  const char *outputs[3] = { NULL, NULL, NULL };
-  const char *joints_path = NULL, *true_path = NULL, *base_path = NULL, *targets_text = NULL;
-  const char *inputs[5] = { NULL, NULL, NULL, NULL, NULL };
-  sim_text tx;
-  int force = 0, opt, status = TWF_EXIT_OK, have_lu = 0, have_au = 0, have_poses = 0, drawn = 0;
-  twf_simulate_options so = twf_simulate_default_options();
-  twf_perturbation mag = { 0, 0, 0, 0, 0 };
-  twf_length_unit lu = TWF_LENGTH_MM;
-  twf_angle_unit au = TWF_ANGLE_DEG;
-  twf_model *model = NULL, *truth = NULL;
-  twf_campaign *joints = NULL, *c = NULL;
-  unsigned char *mask = NULL;
-  twf_warnings warnings;
-  twf_read_options ropt = twf_read_default_options();
-  cli_urdf_links urdf_links = { { NULL }, 0 };
-  twf_error err;
-  twf_pose B, station_base[TWF_STATIONS_MAX];
-  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
-  size_t n_stations = 0, *pose_station = NULL;
-  const char *stations_path = NULL;
-  int assign_block = 0, have_assign = 0;
-  cli_units u;
-  size_t n = 0;
+static const struct option simulate_longopts[] = {
+  { "output", required_argument, NULL, 'o' },
+  { "true-output", required_argument, NULL, OPT_TRUE_OUT },
+  { "base-output", required_argument, NULL, OPT_BASE_OUT },
+  { "joints", required_argument, NULL, OPT_JOINTS },
+  { "poses", required_argument, NULL, OPT_POSES },
+  { "limit-margin", required_argument, NULL, OPT_MARGIN },
+  { "true", required_argument, NULL, OPT_TRUE },
+  { "angle-sd", required_argument, NULL, OPT_ANGLE_SD },
+  { "length-sd", required_argument, NULL, OPT_LENGTH_SD },
+  { "offset-sd", required_argument, NULL, OPT_OFFSET_SD },
+  { "scale-sd", required_argument, NULL, OPT_SCALE_SD },
+  { "target-sd", required_argument, NULL, OPT_TARGET_SD },
+  { "base", required_argument, NULL, OPT_BASE },
+  { "stations", required_argument, NULL, OPT_STATIONS },
+  { "assign", required_argument, NULL, OPT_ASSIGN },
+  { "sigma", required_argument, NULL, OPT_SIGMA },
+  { "orientation", no_argument, NULL, OPT_ORIENTATION },
+  { "sigma-angle", required_argument, NULL, OPT_SIGMA_ANGLE },
+  { "targets", required_argument, NULL, OPT_TARGETS },
+  { "outliers", required_argument, NULL, OPT_OUTLIERS },
+  { "outlier-size", required_argument, NULL, OPT_OUTLIER_SIZE },
+  { "check-fraction", required_argument, NULL, OPT_CHECK },
+  { "seed", required_argument, NULL, OPT_SEED },
+  { "length-unit", required_argument, NULL, OPT_LUNIT },
+  { "angle-unit", required_argument, NULL, OPT_AUNIT },
+  { "force", no_argument, NULL, 'f' },
+  CLI_URDF_LONGOPTS,
+  { "help", no_argument, NULL, 'h' },
+  { NULL, 0, NULL, 0 }
+};
 
-  memset(&tx, 0, sizeof tx);
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
+/* The command's settings as the options give them. The sizes in MODEL's
+ * units stay text (tx) until MODEL is read; so and mag are completed by
+ * the loading steps. */
+typedef struct sim_settings {
+  const char *outputs[3];  /* the campaign, the true arm, the base pose */
+  const char *inputs[5];   /* MODEL, joints, true arm, base or stations file; NULL-terminated */
+  const char *model_path, *joints_path, *true_path, *base_path, *stations_path, *targets_text;
+  sim_text tx;
+  int force, have_lu, have_au, have_poses, drawn, assign_block, have_assign;
+  int help_shown;          /* -h: the help is printed, nothing else to do */
+  twf_simulate_options so;
+  twf_perturbation mag;
+  twf_length_unit lu;      /* of the campaign file when have_lu */
+  twf_angle_unit au;       /* of the campaign file when have_au */
+  twf_read_options ropt;
+  cli_urdf_links urdf_links; /* the --target-link names that ropt points to */
+} sim_settings;
+
+static void sim_settings_init(sim_settings *s)
+{
+  memset(s, 0, sizeof *s);
+  s->so = twf_simulate_default_options();
+  s->mag = (twf_perturbation){ 0, 0, 0, 0, 0 };
+  s->lu = TWF_LENGTH_MM;
+  s->au = TWF_ANGLE_DEG;
+  s->ropt = twf_read_default_options();
+  s->urdf_links = (cli_urdf_links){ { NULL }, 0 };
+}
+
+static int parse_assign(sim_settings *s, const char *arg)
+{
+  if (strcmp(arg, "turn") == 0)
+    s->assign_block = 0;
+  else if (strcmp(arg, "block") == 0)
+    s->assign_block = 1;
+  else
+    return cli_usage_error("simulate", "--assign takes turn or block");
+  s->have_assign = 1;
+  return 0;
+}
+
+/* One option of getopt_long into s: 0, or the exit status of a bad one. */
+static int take_option(sim_settings *s, int opt, char *arg, char **argv)
+{
+  int status;
+  switch (opt) {
+  case 'o': s->outputs[0] = arg; break;
+  case OPT_TRUE_OUT: s->outputs[1] = arg; break;
+  case OPT_BASE_OUT: s->outputs[2] = arg; break;
+  case OPT_JOINTS: s->joints_path = arg; break;
+  case OPT_POSES:
+    if ((status = pcli_parse_count("simulate", "--poses", arg, 1, 10000000, &s->so.n_poses)) != 0)
+      return status;
+    s->have_poses = 1;
+    break;
+  case OPT_MARGIN:
+    return pcli_parse_fraction("simulate", "--limit-margin", arg, 0.0, 0.45, &s->so.limit_margin);
+  case OPT_TRUE: s->true_path = arg; break;
+  case OPT_ANGLE_SD: s->tx.angle_sd = arg; s->drawn = 1; break;
+  case OPT_LENGTH_SD: s->tx.length_sd = arg; s->drawn = 1; break;
+  case OPT_OFFSET_SD: s->tx.offset_sd = arg; s->drawn = 1; break;
+  case OPT_SCALE_SD:
+    if ((status = pcli_parse_fraction("simulate", "--scale-sd", arg, 0.0, 0.1, &s->mag.scale)) != 0)
+      return status;
+    s->drawn = 1;
+    break;
+  case OPT_TARGET_SD: s->tx.target_sd = arg; s->drawn = 1; break;
+  case OPT_BASE: s->base_path = arg; break;
+  case OPT_STATIONS: s->stations_path = arg; break;
+  case OPT_ASSIGN: return parse_assign(s, arg);
+  case OPT_SIGMA: s->tx.sigma = arg; break;
+  case OPT_ORIENTATION: s->so.orientation = 1; break;
+  case OPT_SIGMA_ANGLE: s->tx.sigma_angle = arg; break;
+  case OPT_TARGETS: s->targets_text = arg; break;
+  case OPT_OUTLIERS:
+    return pcli_parse_fraction("simulate", "--outliers", arg, 0.0, 1.0, &s->so.outlier_fraction);
+  case OPT_OUTLIER_SIZE: s->tx.outlier_size = arg; break;
+  case OPT_CHECK:
+    return pcli_parse_fraction("simulate", "--check-fraction", arg, 0.0, 0.9, &s->so.check_fraction);
+  case OPT_SEED: return pcli_parse_seed("simulate", arg, &s->so.seed);
+  case OPT_LUNIT:
+    if ((status = cli_parse_length_unit("simulate", arg, &s->lu)) != 0)
+      return status;
+    s->have_lu = 1;
+    break;
+  case OPT_AUNIT:
+    if ((status = cli_parse_angle_unit("simulate", arg, &s->au)) != 0)
+      return status;
+    s->have_au = 1;
+    break;
+  case 'f': s->force = 1; break;
+  case CLI_OPT_BASE_LINK:
+  case CLI_OPT_TIP_LINK:
+  case CLI_OPT_TARGET_LINK: return cli_urdf_longopt("simulate", opt, arg, &s->urdf_links, &s->ropt);
+  case 'h': fputs(simulate_help, stdout); s->help_shown = 1; break;
+  default: return cli_bad_option("simulate", opt, argv);
+  }
+  return 0;
+}
+
+/* The command line into s (MODEL is the one operand): 0, or the exit
+ * status of a usage error; s->help_shown after -h. */
+static int parse_options(int argc, char **argv, sim_settings *s)
+{
+  int opt, status;
+  sim_settings_init(s);
   optind = 0;
   opterr = 0;
-  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
-    switch (opt) {
-    case 'o': outputs[0] = optarg; break;
-    case OPT_TRUE_OUT: outputs[1] = optarg; break;
-    case OPT_BASE_OUT: outputs[2] = optarg; break;
-    case OPT_JOINTS: joints_path = optarg; break;
-    case OPT_POSES:
-      if ((status = pcli_parse_count("simulate", "--poses", optarg, 1, 10000000, &so.n_poses)) != 0)
-        return status;
-      have_poses = 1;
-      break;
-    case OPT_MARGIN:
-      if ((status = pcli_parse_fraction("simulate", "--limit-margin", optarg, 0.0, 0.45, &so.limit_margin)) != 0)
-        return status;
-      break;
-    case OPT_TRUE: true_path = optarg; break;
-    case OPT_ANGLE_SD: tx.angle_sd = optarg; drawn = 1; break;
-    case OPT_LENGTH_SD: tx.length_sd = optarg; drawn = 1; break;
-    case OPT_OFFSET_SD: tx.offset_sd = optarg; drawn = 1; break;
-    case OPT_SCALE_SD:
-      if ((status = pcli_parse_fraction("simulate", "--scale-sd", optarg, 0.0, 0.1, &mag.scale)) != 0)
-        return status;
-      drawn = 1;
-      break;
-    case OPT_TARGET_SD: tx.target_sd = optarg; drawn = 1; break;
-    case OPT_BASE: base_path = optarg; break;
-    case OPT_STATIONS: stations_path = optarg; break;
-    case OPT_ASSIGN:
-      if (strcmp(optarg, "turn") == 0)
-        assign_block = 0;
-      else if (strcmp(optarg, "block") == 0)
-        assign_block = 1;
-      else
-        return cli_usage_error("simulate", "--assign takes turn or block");
-      have_assign = 1;
-      break;
-    case OPT_SIGMA: tx.sigma = optarg; break;
-    case OPT_ORIENTATION: so.orientation = 1; break;
-    case OPT_SIGMA_ANGLE: tx.sigma_angle = optarg; break;
-    case OPT_TARGETS: targets_text = optarg; break;
-    case OPT_OUTLIERS:
-      if ((status = pcli_parse_fraction("simulate", "--outliers", optarg, 0.0, 1.0, &so.outlier_fraction)) != 0)
-        return status;
-      break;
-    case OPT_OUTLIER_SIZE: tx.outlier_size = optarg; break;
-    case OPT_CHECK:
-      if ((status = pcli_parse_fraction("simulate", "--check-fraction", optarg, 0.0, 0.9, &so.check_fraction)) !=
-          0)
-        return status;
-      break;
-    case OPT_SEED:
-      if ((status = pcli_parse_seed("simulate", optarg, &so.seed)) != 0)
-        return status;
-      break;
-    case OPT_LUNIT:
-      if ((status = cli_parse_length_unit("simulate", optarg, &lu)) != 0)
-        return status;
-      have_lu = 1;
-      break;
-    case OPT_AUNIT:
-      if ((status = cli_parse_angle_unit("simulate", optarg, &au)) != 0)
-        return status;
-      have_au = 1;
-      break;
-    case 'f': force = 1; break;
-    case CLI_OPT_BASE_LINK:
-    case CLI_OPT_TIP_LINK:
-    case CLI_OPT_TARGET_LINK:
-      if ((status = cli_urdf_longopt("simulate", opt, optarg, &urdf_links, &ropt)) != 0)
-        return status;
-      break;
-    case 'h': fputs(simulate_help, stdout); return TWF_EXIT_OK;
-    default: return cli_bad_option("simulate", opt, argv);
-    }
-  }
+  while ((opt = getopt_long(argc, argv, ":o:fh", simulate_longopts, NULL)) != -1)
+    if ((status = take_option(s, opt, optarg, argv)) != 0 || s->help_shown)
+      return status;
   if (argc - optind != 1)
     return cli_usage_error("simulate", "expected one MODEL");
+  s->model_path = argv[optind];
+  return 0;
+}
+
+/* The options that need or exclude each other. */
+static int check_settings(const sim_settings *s)
+{
+  const char *const *outputs = s->outputs;
   if (outputs[0] == NULL)
     return cli_usage_error("simulate", "give the campaign file with -o FILE");
-  if (joints_path != NULL && have_poses)
+  if (s->joints_path != NULL && s->have_poses)
     return cli_usage_error("simulate", "give --joints or --poses, not both");
-  if (true_path != NULL && drawn)
+  if (s->true_path != NULL && s->drawn)
     return cli_usage_error("simulate", "give the true arm (--true) or error sizes (--angle-sd ...), not both");
-  if (tx.sigma_angle != NULL && !so.orientation)
+  if (s->tx.sigma_angle != NULL && !s->so.orientation)
     return cli_usage_error("simulate", "--sigma-angle needs --orientation");
-  if (stations_path != NULL && base_path != NULL)
+  if (s->stations_path != NULL && s->base_path != NULL)
     return cli_usage_error("simulate", "give --base or --stations, not both");
-  if (have_assign && stations_path == NULL)
+  if (s->have_assign && s->stations_path == NULL)
     return cli_usage_error("simulate", "--assign needs --stations");
   if (outputs[0] != NULL && strcmp(outputs[0], "-") == 0 && (outputs[1] != NULL || outputs[2] != NULL) &&
       ((outputs[1] && strcmp(outputs[1], "-") == 0) || (outputs[2] && strcmp(outputs[2], "-") == 0)))
     return cli_usage_error("simulate", "only one output can go to standard output");
-  inputs[0] = argv[optind];
-  inputs[1] = joints_path;
-  inputs[2] = true_path;
-  inputs[3] = base_path != NULL ? base_path : stations_path;
-  if ((status = cli_outputs_check("simulate", outputs, names, 3, force, inputs)) != 0)
+  return 0;
+}
+
+/* The output files checked against each other, the inputs and what
+ * exists, before any work. */
+static int check_outputs(sim_settings *s)
+{
+  static const char *const names[3] = { "--output", "--true-output", "--base-output" };
+  s->inputs[0] = s->model_path;
+  s->inputs[1] = s->joints_path;
+  s->inputs[2] = s->true_path;
+  s->inputs[3] = s->base_path != NULL ? s->base_path : s->stations_path;
+  s->inputs[4] = NULL;
+  return cli_outputs_check("simulate", s->outputs, names, 3, s->force, s->inputs);
+}
+
+/* What a run reads and makes; sim_job_free releases it. so in the
+ * settings points into it (targets, stations, poses), so it stays where
+ * it was made. */
+typedef struct sim_job {
+  twf_model *model, *truth;
+  twf_campaign *joints;              /* the --joints file, or NULL */
+  twf_campaign *c;                   /* the simulated campaign */
+  unsigned char *mask;               /* the --targets measured, or NULL */
+  size_t *pose_station;              /* each pose's station, or NULL */
+  twf_pose B;                        /* the one base pose (no --stations) */
+  twf_pose station_base[TWF_STATIONS_MAX];
+  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
+  size_t n_stations;                 /* 0: no --stations, the base pose B */
+  twf_warnings warnings;
+  twf_error err;
+} sim_job;
+
+static void sim_job_init(sim_job *j)
+{
+  j->model = j->truth = NULL;
+  j->joints = j->c = NULL;
+  j->mask = NULL;
+  j->pose_station = NULL;
+  j->n_stations = 0;
+  twf_warnings_init(&j->warnings);
+  twf_error_clear(&j->err);
+}
+
+static void sim_job_free(sim_job *j)
+{
+  free(j->pose_station);
+  twf_campaign_free(j->c);
+  twf_campaign_free(j->joints);
+  twf_model_free(j->truth);
+  twf_model_free(j->model);
+  free(j->mask);
+  twf_warnings_clear(&j->warnings);
+}
+
+/* MODEL, then the sizes given in its units and the --targets it names. */
+static int read_model(sim_settings *s, sim_job *j)
+{
+  const sim_text *tx = &s->tx;
+  cli_units u;
+  int status;
+  j->model = twf_model_read_with(s->model_path, &s->ropt, &j->warnings, NULL, &j->err);
+  if (j->model == NULL)
+    return cli_report_error(&j->err);
+  cli_units_of(&u, j->model);
+  if ((status = unit_value(tx->angle_sd, "--angle-sd", u.angle_si, u.angle, 0.1, &s->mag.tilt_rad)) != 0 ||
+      (status = unit_value(tx->length_sd, "--length-sd", u.length_si, u.length, 0.1, &s->mag.shift_m)) != 0 ||
+      (status = unit_value(tx->offset_sd, "--offset-sd", u.angle_si, u.angle, 0.1, &s->mag.offset_rad)) != 0 ||
+      (status = unit_value(tx->target_sd, "--target-sd", u.length_si, u.length, 0.1, &s->mag.target_m)) != 0 ||
+      (status = unit_value(tx->sigma, "--sigma", u.length_si, u.length, 0.01, &s->so.sigma_m)) != 0 ||
+      (status = unit_value(tx->sigma_angle, "--sigma-angle", u.angle_si, u.angle, 0.1, &s->so.sigma_rad)) != 0 ||
+      (status = unit_value(tx->outlier_size, "--outlier-size", u.length_si, u.length, 1.0, &s->so.outlier_m)) != 0)
     return status;
+  if (s->targets_text != NULL) {
+    j->mask = calloc(j->model->n_targets ? j->model->n_targets : 1, 1);
+    if (j->mask == NULL)
+      return TWF_EXIT_INTERNAL;
+    if ((status = pcli_parse_targets("simulate", j->model, s->targets_text, j->mask)) != 0)
+      return status;
+    s->so.targets = j->mask;
+  }
+  return 0;
+}
 
-  model = twf_model_read_with(argv[optind], &ropt, &warnings, NULL, &err);
-  if (model == NULL) {
-    status = cli_report_error(&err);
-    goto done;
+/* The true arm: the --true file (MODEL's shape), or MODEL with errors
+ * drawn at the sizes given. */
+static int make_true_arm(const sim_settings *s, sim_job *j)
+{
+  char note[128];
+  if (s->true_path != NULL) {
+    j->truth = twf_model_read_with(s->true_path, &s->ropt, &j->warnings, NULL, &j->err);
+    if (j->truth == NULL)
+      return cli_report_error(&j->err);
+    return same_shape(j->model, j->truth, s->true_path);
   }
-  cli_units_of(&u, model);
-  if ((status = unit_value(tx.angle_sd, "--angle-sd", u.angle_si, u.angle, 0.1, &mag.tilt_rad)) != 0 ||
-      (status = unit_value(tx.length_sd, "--length-sd", u.length_si, u.length, 0.1, &mag.shift_m)) != 0 ||
-      (status = unit_value(tx.offset_sd, "--offset-sd", u.angle_si, u.angle, 0.1, &mag.offset_rad)) != 0 ||
-      (status = unit_value(tx.target_sd, "--target-sd", u.length_si, u.length, 0.1, &mag.target_m)) != 0 ||
-      (status = unit_value(tx.sigma, "--sigma", u.length_si, u.length, 0.01, &so.sigma_m)) != 0 ||
-      (status = unit_value(tx.sigma_angle, "--sigma-angle", u.angle_si, u.angle, 0.1, &so.sigma_rad)) != 0 ||
-      (status = unit_value(tx.outlier_size, "--outlier-size", u.length_si, u.length, 1.0, &so.outlier_m)) != 0)
-    goto done;
-  if (targets_text != NULL) {
-    mask = calloc(model->n_targets ? model->n_targets : 1, 1);
-    if (mask == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    if ((status = pcli_parse_targets("simulate", model, targets_text, mask)) != 0)
-      goto done;
-    so.targets = mask;
-  }
-  if (true_path != NULL) {
-    truth = twf_model_read_with(true_path, &ropt, &warnings, NULL, &err);
-    if (truth == NULL) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    if ((status = same_shape(model, truth, true_path)) != 0)
-      goto done;
-  } else {
-    char note[128];
-    truth = twf_model_copy(model);
-    if (truth == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    /* the errors are drawn from their own stream of the seed */
-    twf_model_perturb(truth, &mag, so.seed ^ 0x6a09e667f3bcc909ULL);
-    snprintf(note, sizeof note, "drawn by twistfit simulate, seed %llu", so.seed);
-    twf_model_meta_set(truth, "simulated", note);
-  }
-  if (base_path != NULL) {
-    if (twf_base_read(base_path, &B, &err) != TWF_OK) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    /* any base pose places a simulated arm, but a true arm and a base
-     * pose that different runs wrote are more likely a slip: a warning */
-    if (true_path != NULL)
-      cli_check_same_run("simulate", true_path, "the true arm", base_path, "the base pose file", 0, 0);
-  } else {
-    twf_pose_identity(&B);
-  }
-  if (stations_path != NULL) {
-    if (twf_base_read_stations(stations_path, NULL, station_base, station_names, TWF_STATIONS_MAX, &n_stations,
-                               NULL, &err) != TWF_OK) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    if (station_names[0][0] == '\0') {
-      twf_error_set(&err, TWF_ERR_MISSING, stations_path, 0, 0,
-                    "give one [station NAME] section per station, or use --base for one",
-                    "the file holds a [base] section, not instrument stations");
-      status = cli_report_error(&err);
-      goto done;
-    }
-    if (true_path != NULL)
-      cli_check_same_run("simulate", true_path, "the true arm", stations_path, "the stations file", 0, 0);
-  }
-  if (joints_path != NULL) {
-    joints = twf_campaign_read_joints(joints_path, model, NULL, &warnings, &err);
-    if (joints == NULL) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    so.n_poses = joints->n_poses;
-    so.q = joints->q;
-  }
-  cli_print_warnings(&warnings);
-  if (n_stations > 0) {
-    so.n_stations = n_stations;
-    so.station_base = station_base;
-    so.station_names = (const char (*)[TWF_NAME_MAX])station_names;
-    if (joints != NULL && joints->n_stations > 0) {
-      /* the joints file names each pose's station (plan writes it): by
-       * name into the stations file */
-      size_t k, l;
-      if (have_assign) {
-        status = cli_usage_error("simulate", "the joints file has a station column: --assign does not apply");
-        goto done;
-      }
-      pose_station = malloc((so.n_poses ? so.n_poses : 1) * sizeof *pose_station);
-      if (pose_station == NULL) {
-        status = TWF_EXIT_INTERNAL;
-        goto done;
-      }
-      for (k = 0; k < so.n_poses; k++) {
-        const char *nm = joints->station_names[twf_campaign_pose_station(joints, k)];
-        for (l = 0; l < n_stations; l++)
-          if (strcmp(station_names[l], nm) == 0)
-            break;
-        if (l == n_stations) {
-          twf_error_set(&err, TWF_ERR_MISSING, stations_path, 0, 0,
-                        "give a section for every station of the joints file",
-                        "no section [station %s] for station '%s' of pose '%s' in %s", nm, nm,
-                        joints->pose_ids[k], joints_path);
-          status = cli_report_error(&err);
-          goto done;
-        }
-        pose_station[k] = l;
-      }
-      so.pose_station = pose_station;
-    } else if (assign_block) {
-      /* consecutive blocks of (nearly) equal size, in station order */
-      pose_station = malloc((so.n_poses ? so.n_poses : 1) * sizeof *pose_station);
-      if (pose_station == NULL) {
-        status = TWF_EXIT_INTERNAL;
-        goto done;
-      }
-      for (n = 0; n < so.n_poses; n++)
-        pose_station[n] = n * n_stations / so.n_poses;
-      so.pose_station = pose_station;
-    }
-  }
-  c = twf_simulate_campaign(truth, n_stations > 0 ? NULL : &B, &so, &err);
-  if (c == NULL) {
-    status = cli_report_error(&err);
-    goto done;
-  }
-  if (joints != NULL)
-    for (n = 0; n < c->n_poses; n++)
-      memcpy(c->pose_ids[n], joints->pose_ids[n], TWF_NAME_MAX);
-  {
-    campaign_ctx cc = { c, model, have_lu ? lu : model->length_unit, have_au ? au : model->angle_unit, so.seed };
-    base_ctx bc = { n_stations > 0 ? station_base : &B,
-                    n_stations > 0 ? (const char (*)[TWF_NAME_MAX])station_names : NULL,
-                    n_stations > 0 ? n_stations : 1, have_lu ? lu : model->length_unit };
-    cli_put puts[3];
-    puts[0] = (cli_put){ outputs[0], put_campaign, &cc };
-    puts[1] = (cli_put){ outputs[1], put_true, truth };
-    puts[2] = (cli_put){ outputs[2], put_base, &bc };
-    status = cli_write_outputs(puts, 3, force, inputs);
-  }
-  if (status == TWF_EXIT_OK && cli_verbosity > 0 && strcmp(outputs[0], "-") != 0) {
-    size_t i, n_check = 0;
-    for (i = 0; i < c->n_meas; i++)
-      n_check += c->meas[i].set == TWF_SET_CHECK;
-    fprintf(stderr, "twistfit: simulated %zu poses, %zu measurements (%zu check) into %s\n", c->n_poses,
-            c->n_meas, n_check, outputs[0]);
-  }
+  j->truth = twf_model_copy(j->model);
+  if (j->truth == NULL)
+    return TWF_EXIT_INTERNAL;
+  /* the errors are drawn from their own stream of the seed */
+  twf_model_perturb(j->truth, &s->mag, s->so.seed ^ 0x6a09e667f3bcc909ULL);
+  snprintf(note, sizeof note, "drawn by twistfit simulate, seed %llu", s->so.seed);
+  twf_model_meta_set(j->truth, "simulated", note);
+  return 0;
+}
 
-done:
-  free(pose_station);
-  twf_campaign_free(c);
-  twf_campaign_free(joints);
-  twf_model_free(truth);
-  twf_model_free(model);
-  free(mask);
-  twf_warnings_clear(&warnings);
+/* The --base pose file, or the identity. */
+static int read_base(const sim_settings *s, sim_job *j)
+{
+  if (s->base_path == NULL) {
+    twf_pose_identity(&j->B);
+    return 0;
+  }
+  if (twf_base_read(s->base_path, &j->B, &j->err) != TWF_OK)
+    return cli_report_error(&j->err);
+  /* any base pose places a simulated arm, but a true arm and a base
+   * pose that different runs wrote are more likely a slip: a warning */
+  if (s->true_path != NULL)
+    cli_check_same_run("simulate", s->true_path, "the true arm", s->base_path, "the base pose file", 0, 0);
+  return 0;
+}
+
+/* The --stations file: [station NAME] sections only. */
+static int read_stations(const sim_settings *s, sim_job *j)
+{
+  if (s->stations_path == NULL)
+    return 0;
+  if (twf_base_read_stations(s->stations_path, NULL, j->station_base, j->station_names, TWF_STATIONS_MAX,
+                             &j->n_stations, NULL, &j->err) != TWF_OK)
+    return cli_report_error(&j->err);
+  if (j->station_names[0][0] == '\0') {
+    twf_error_set(&j->err, TWF_ERR_MISSING, s->stations_path, 0, 0,
+                  "give one [station NAME] section per station, or use --base for one",
+                  "the file holds a [base] section, not instrument stations");
+    return cli_report_error(&j->err);
+  }
+  if (s->true_path != NULL)
+    cli_check_same_run("simulate", s->true_path, "the true arm", s->stations_path, "the stations file", 0, 0);
+  return 0;
+}
+
+/* The poses of the --joints file replace the drawn ones. */
+static int read_joints(sim_settings *s, sim_job *j)
+{
+  if (s->joints_path == NULL)
+    return 0;
+  j->joints = twf_campaign_read_joints(s->joints_path, j->model, NULL, &j->warnings, &j->err);
+  if (j->joints == NULL)
+    return cli_report_error(&j->err);
+  s->so.n_poses = j->joints->n_poses;
+  s->so.q = j->joints->q;
+  return 0;
+}
+
+/* Every input read and checked; the readers' warnings are printed only
+ * when all of them could be read. */
+static int load_inputs(sim_settings *s, sim_job *j)
+{
+  int status;
+  if ((status = read_model(s, j)) != 0 || (status = make_true_arm(s, j)) != 0 ||
+      (status = read_base(s, j)) != 0 || (status = read_stations(s, j)) != 0 ||
+      (status = read_joints(s, j)) != 0)
+    return status;
+  cli_print_warnings(&j->warnings);
+  return 0;
+}
+
+/* Room for the station of each of the so.n_poses poses. */
+static int alloc_pose_station(const sim_settings *s, sim_job *j)
+{
+  j->pose_station = malloc((s->so.n_poses ? s->so.n_poses : 1) * sizeof *j->pose_station);
+  return j->pose_station == NULL ? TWF_EXIT_INTERNAL : 0;
+}
+
+/* The joints file names each pose's station (plan writes it): by name
+ * into the stations file. */
+static int stations_by_name(const sim_settings *s, sim_job *j)
+{
+  const twf_campaign *joints = j->joints;
+  size_t k, l;
+  int status;
+  if (s->have_assign)
+    return cli_usage_error("simulate", "the joints file has a station column: --assign does not apply");
+  if ((status = alloc_pose_station(s, j)) != 0)
+    return status;
+  for (k = 0; k < s->so.n_poses; k++) {
+    const char *nm = joints->station_names[twf_campaign_pose_station(joints, k)];
+    for (l = 0; l < j->n_stations; l++)
+      if (strcmp(j->station_names[l], nm) == 0)
+        break;
+    if (l == j->n_stations) {
+      twf_error_set(&j->err, TWF_ERR_MISSING, s->stations_path, 0, 0,
+                    "give a section for every station of the joints file",
+                    "no section [station %s] for station '%s' of pose '%s' in %s", nm, nm, joints->pose_ids[k],
+                    s->joints_path);
+      return cli_report_error(&j->err);
+    }
+    j->pose_station[k] = l;
+  }
+  return 0;
+}
+
+/* Consecutive blocks of (nearly) equal size, in station order. */
+static int stations_in_blocks(const sim_settings *s, sim_job *j)
+{
+  size_t n;
+  int status;
+  if ((status = alloc_pose_station(s, j)) != 0)
+    return status;
+  for (n = 0; n < s->so.n_poses; n++)
+    j->pose_station[n] = n * j->n_stations / s->so.n_poses;
+  return 0;
+}
+
+/* With --stations, which station sees each pose: the joints file's
+ * station column, --assign block, or (pose_station left NULL) the
+ * library's default, in turn. */
+static int assign_stations(sim_settings *s, sim_job *j)
+{
+  int status = 0;
+  if (j->n_stations == 0)
+    return 0;
+  s->so.n_stations = j->n_stations;
+  s->so.station_base = j->station_base;
+  s->so.station_names = (const char (*)[TWF_NAME_MAX])j->station_names;
+  if (j->joints != NULL && j->joints->n_stations > 0)
+    status = stations_by_name(s, j);
+  else if (s->assign_block)
+    status = stations_in_blocks(s, j);
+  else
+    return 0;
+  if (status == 0)
+    s->so.pose_station = j->pose_station;
+  return status;
+}
+
+/* The campaign measured on the true arm; the poses keep the joints
+ * file's ids. */
+static int simulate(const sim_settings *s, sim_job *j)
+{
+  size_t n;
+  j->c = twf_simulate_campaign(j->truth, j->n_stations > 0 ? NULL : &j->B, &s->so, &j->err);
+  if (j->c == NULL)
+    return cli_report_error(&j->err);
+  if (j->joints != NULL)
+    for (n = 0; n < j->c->n_poses; n++)
+      memcpy(j->c->pose_ids[n], j->joints->pose_ids[n], TWF_NAME_MAX);
+  return 0;
+}
+
+/* The campaign, the true arm and the base pose or stations, written
+ * together (or none). */
+static int write_outputs(const sim_settings *s, sim_job *j)
+{
+  const twf_model *model = j->model;
+  twf_length_unit lu = s->have_lu ? s->lu : model->length_unit;
+  campaign_ctx cc = { j->c, model, lu, s->have_au ? s->au : model->angle_unit, s->so.seed };
+  base_ctx bc = { j->n_stations > 0 ? j->station_base : &j->B,
+                  j->n_stations > 0 ? (const char (*)[TWF_NAME_MAX])j->station_names : NULL,
+                  j->n_stations > 0 ? j->n_stations : 1, lu };
+  cli_put puts[3];
+  puts[0] = (cli_put){ s->outputs[0], put_campaign, &cc };
+  puts[1] = (cli_put){ s->outputs[1], put_true, j->truth };
+  puts[2] = (cli_put){ s->outputs[2], put_base, &bc };
+  return cli_write_outputs(puts, 3, s->force, s->inputs);
+}
+
+/* With -v, what was written (unless the campaign went to standard
+ * output). */
+static void say_simulated(const sim_settings *s, const twf_campaign *c)
+{
+  size_t i, n_check = 0;
+  if (cli_verbosity <= 0 || strcmp(s->outputs[0], "-") == 0)
+    return;
+  for (i = 0; i < c->n_meas; i++)
+    n_check += c->meas[i].set == TWF_SET_CHECK;
+  fprintf(stderr, "twistfit: simulated %zu poses, %zu measurements (%zu check) into %s\n", c->n_poses, c->n_meas,
+          n_check, s->outputs[0]);
+}
+
+static int run_simulate(int argc, char **argv)
+{
+  sim_settings s;
+  sim_job j;
+  int status;
+
+  if ((status = parse_options(argc, argv, &s)) != 0 || s.help_shown)
+    return status;
+  if ((status = check_settings(&s)) != 0 || (status = check_outputs(&s)) != 0)
+    return status;
+  sim_job_init(&j);
+  if ((status = load_inputs(&s, &j)) == 0 && (status = assign_stations(&s, &j)) == 0 &&
+      (status = simulate(&s, &j)) == 0 && (status = write_outputs(&s, &j)) == TWF_EXIT_OK)
+    say_simulated(&s, j.c);
+  sim_job_free(&j);
   return status;
 }
 

@@ -134,7 +134,21 @@ static json_t *json_iso9283(const twf_iso9283 *iso, const twf_model *m, const tw
   return a;
 }
 
-static int run_verify(int argc, char **argv)
+/* The command's settings, as its options give them. */
+typedef struct verify_settings {
+  const char *base_path;                 /* --base, or NULL: register */
+  const char *residuals_path, *json_path, *html_path;
+  const char *repeat_text;               /* --repeat-tol as typed (read in the model's units) */
+  const char *tol_text[4];               /* --tol-rms, --tol-p95, --tol-max, --tol-angle-max */
+  int force, fit_offsets, allow_mixed;
+  int help_shown;                        /* -h: the help is printed, nothing more to do */
+  long worst;                            /* --worst */
+} verify_settings;
+
+/* Read the options into *s and the input options into *in (argv is
+ * permuted and optind left at MODEL, as getopt_long does); returns an exit
+ * status, 0 with s->help_shown set after --help. */
+static int parse_verify_options(int argc, char **argv, cli_inputs *in, verify_settings *s)
 {
   static const struct option longopts[] = {
     CLI_INPUT_LONGOPTS,
@@ -154,12 +168,52 @@ static int run_verify(int argc, char **argv)
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
-  const char *tol_text[4] = { NULL, NULL, NULL, NULL };
+  static const verify_settings defaults = { NULL, NULL, NULL, NULL, NULL, { NULL, NULL, NULL, NULL }, 0, 0, 0, 0, 5 };
+  int opt, status = TWF_EXIT_OK;
+
+  *s = defaults;
+  optind = 0;
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":fh", longopts, NULL)) != -1) {
+    if (cli_inputs_option(in, "verify", opt, optarg, &status)) {
+      if (status != 0)
+        return status;
+      continue;
+    }
+    switch (opt) {
+    case OPT_BASE: s->base_path = optarg; break;
+    case OPT_FIT_OFFSETS: s->fit_offsets = 1; break;
+    case OPT_ALLOW_MIXED: s->allow_mixed = 1; break;
+    case OPT_TOL_RMS: s->tol_text[0] = optarg; break;
+    case OPT_TOL_P95: s->tol_text[1] = optarg; break;
+    case OPT_TOL_MAX: s->tol_text[2] = optarg; break;
+    case OPT_TOL_ANGLE: s->tol_text[3] = optarg; break;
+    case OPT_REPEAT_TOL: s->repeat_text = optarg; break;
+    case OPT_WORST: {
+      char *end;
+      s->worst = strtol(optarg, &end, 10);
+      if (*end != '\0' || *optarg == '\0' || s->worst < 0 || s->worst > 1000)
+        return cli_usage_error("verify", "--worst takes a count from 0 to 1000");
+      break;
+    }
+    case OPT_RESIDUALS: s->residuals_path = optarg; break;
+    case OPT_JSON: s->json_path = optarg; break;
+    case OPT_HTML: s->html_path = optarg; break;
+    case 'f': s->force = 1; break;
+    case 'h': fputs(verify_help, stdout); s->help_shown = 1; return TWF_EXIT_OK;
+    default: return cli_bad_option("verify", opt, argv);
+    }
+  }
+  if (s->base_path != NULL && s->fit_offsets)
+    return cli_usage_error("verify", "--base and --fit-offsets exclude each other");
+  return TWF_EXIT_OK;
+}
+
+static int run_verify(int argc, char **argv)
+{
   static const char *const tol_opt[4] = { "--tol-rms", "--tol-p95", "--tol-max", "--tol-angle-max" };
-  const char *base_path = NULL, *residuals_path = NULL, *json_path = NULL, *repeat_text = NULL;
-  const char *html_path = NULL;
-  int force = 0, fit_offsets = 0, allow_mixed = 0, opt, status = TWF_EXIT_OK, i;
-  long worst = 5;
+  verify_settings s;
+  int status = TWF_EXIT_OK, i;
   cli_inputs in;
   cli_units u;
   twf_error err;
@@ -178,71 +232,35 @@ static int run_verify(int argc, char **argv)
   cli_inputs_init(&in);
   memset(&rrep, 0, sizeof rrep);
   twf_trace_init(&trace);
-  optind = 0;
-  opterr = 0;
-  while ((opt = getopt_long(argc, argv, ":fh", longopts, NULL)) != -1) {
-    if (cli_inputs_option(&in, "verify", opt, optarg, &status)) {
-      if (status != 0)
-        goto done;
-      continue;
-    }
-    switch (opt) {
-    case OPT_BASE: base_path = optarg; break;
-    case OPT_FIT_OFFSETS: fit_offsets = 1; break;
-    case OPT_ALLOW_MIXED: allow_mixed = 1; break;
-    case OPT_TOL_RMS: tol_text[0] = optarg; break;
-    case OPT_TOL_P95: tol_text[1] = optarg; break;
-    case OPT_TOL_MAX: tol_text[2] = optarg; break;
-    case OPT_TOL_ANGLE: tol_text[3] = optarg; break;
-    case OPT_REPEAT_TOL: repeat_text = optarg; break;
-    case OPT_WORST: {
-      char *end;
-      worst = strtol(optarg, &end, 10);
-      if (*end != '\0' || *optarg == '\0' || worst < 0 || worst > 1000) {
-        status = cli_usage_error("verify", "--worst takes a count from 0 to 1000");
-        goto done;
-      }
-      break;
-    }
-    case OPT_RESIDUALS: residuals_path = optarg; break;
-    case OPT_JSON: json_path = optarg; break;
-    case OPT_HTML: html_path = optarg; break;
-    case 'f': force = 1; break;
-    case 'h': fputs(verify_help, stdout); goto done;
-    default: status = cli_bad_option("verify", opt, argv); goto done;
-    }
-  }
-  if (base_path != NULL && fit_offsets) {
-    status = cli_usage_error("verify", "--base and --fit-offsets exclude each other");
+  if ((status = parse_verify_options(argc, argv, &in, &s)) != 0 || s.help_shown)
     goto done;
-  }
   if ((status = cli_inputs_load(&in, "verify", argc, argv, optind)) != 0)
     goto done;
   cli_units_of(&u, in.model);
   for (i = 0; i < 4; i++)
-    if (tol_text[i] != NULL &&
-        (status = cli_parse_tolerance("verify", tol_opt[i], tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
+    if (s.tol_text[i] != NULL &&
+        (status = cli_parse_tolerance("verify", tol_opt[i], s.tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
                                       &tol[i].limit)) != 0)
       goto done;
-  if (json_path != NULL && strcmp(json_path, "-") == 0)
+  if (s.json_path != NULL && strcmp(s.json_path, "-") == 0)
     txt = stderr;
-  if (base_path != NULL)
-    cli_inputs_add_path(&in, base_path);
+  if (s.base_path != NULL)
+    cli_inputs_add_path(&in, s.base_path);
   {
-    const char *outs[3] = { json_path, residuals_path, html_path };
+    const char *outs[3] = { s.json_path, s.residuals_path, s.html_path };
     static const char *const names[3] = { "--json", "--residuals", "--html" };
-    if (residuals_path != NULL && strcmp(residuals_path, "-") == 0) {
+    if (s.residuals_path != NULL && strcmp(s.residuals_path, "-") == 0) {
       status = cli_usage_error("verify", "--residuals needs a file name");
       goto done;
     }
-    if (html_path != NULL && strcmp(html_path, "-") == 0) {
+    if (s.html_path != NULL && strcmp(s.html_path, "-") == 0) {
       status = cli_usage_error("verify", "--html needs a file name");
       goto done;
     }
-    if ((status = cli_outputs_check("verify", outs, names, 3, force, in.paths)) != 0)
+    if ((status = cli_outputs_check("verify", outs, names, 3, s.force, in.paths)) != 0)
       goto done;
   }
-  if (tol_text[3] != NULL && !in.campaign->has_orientation_any) {
+  if (s.tol_text[3] != NULL && !in.campaign->has_orientation_any) {
     status = cli_usage_error("verify", "--tol-angle-max needs 6-D rows (with a quaternion); the campaign has none");
     goto done;
   }
@@ -258,15 +276,15 @@ static int run_verify(int argc, char **argv)
     goto done;
   }
   twf_register_offsets_init(in.model, offsets);
-  if (base_path != NULL) {
+  if (s.base_path != NULL) {
     size_t k;
-    if (cli_read_station_bases(base_path, &in.ropt, in.campaign, base_st, &err) != TWF_OK) {
+    if (cli_read_station_bases(s.base_path, &in.ropt, in.campaign, base_st, &err) != TWF_OK) {
       status = cli_report_error(&err);
       goto done;
     }
     /* the base pose is in the frame of the model it was fitted with */
-    if ((status = cli_check_same_run("verify", in.model_path, "the model", base_path, "the base pose file",
-                                     allow_mixed, 1)) != 0)
+    if ((status = cli_check_same_run("verify", in.model_path, "the model", s.base_path, "the base pose file",
+                                     s.allow_mixed, 1)) != 0)
       goto done;
     for (k = 0; k < in.campaign->n_meas; k++)
       if (!in.model->targets[in.campaign->meas[k].target].offset_known) {
@@ -280,7 +298,7 @@ static int run_verify(int argc, char **argv)
   } else {
     twf_register_options ro = twf_register_default_options();
     size_t k;
-    ro.fit_all_offsets = fit_offsets;
+    ro.fit_all_offsets = s.fit_offsets;
     if (twf_register_and_refine(in.model, in.campaign, &ro, NULL, base_st, &rrep, excluded, &trace, &err) !=
         TWF_OK) {
       cli_hint_options(&err);
@@ -292,16 +310,16 @@ static int run_verify(int argc, char **argv)
     cli_print_trace(&trace);
   }
   if (twf_accuracy_residuals(in.model, base_st, offsets, in.campaign, pos, rot, &err) != TWF_OK ||
-      (summary = twf_accuracy_summarize(in.campaign, in.model->n_targets, pos, rot, (size_t)worst,
+      (summary = twf_accuracy_summarize(in.campaign, in.model->n_targets, pos, rot, (size_t)s.worst,
                                         &err)) == NULL) {
     status = cli_report_error(&err);
     goto done;
   }
   {
     twf_iso9283_options io = twf_iso9283_default_options();
-    if (repeat_text != NULL) {
+    if (s.repeat_text != NULL) {
       double v;
-      if (cli_parse_double(repeat_text, &v) != 0 || v <= 0) {
+      if (cli_parse_double(s.repeat_text, &v) != 0 || v <= 0) {
         status = cli_usage_error("verify", "--repeat-tol takes a positive number");
         goto done;
       }
@@ -367,11 +385,11 @@ static int run_verify(int argc, char **argv)
           snprintf(at, sizeof at, " at station %s", in.campaign->station_names[sta]);
         cli_quat_of(b->R, q);
         fprintf(txt, "base pose in the instrument frame%s (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
-                at, base_path ? "given" : "registered", u.ldec, b->p[0] / u.length_si, u.ldec,
+                at, s.base_path ? "given" : "registered", u.ldec, b->p[0] / u.length_si, u.ldec,
                 b->p[1] / u.length_si, u.ldec, b->p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
       }
     }
-    if (base_path == NULL) {
+    if (s.base_path == NULL) {
       size_t k, n_ex = rrep.n_excluded;
       fprintf(txt, "registration: closed form, %u %s with the target offsets%s; refinement %d %s, %s\n",
               rrep.alternation.iterations, cli_plural(rrep.alternation.iterations, "round", "rounds"),
@@ -408,8 +426,8 @@ static int run_verify(int argc, char **argv)
                        in.campaign, &u);
     cli_print_worst(txt, summary, in.campaign, in.model, &u);
     fputc('\n', txt);
-    print_iso9283(txt, iso, in.model, in.campaign, &u, base_path == NULL);
-    if (json_path != NULL || html_path != NULL) {
+    print_iso9283(txt, iso, in.model, in.campaign, &u, s.base_path == NULL);
+    if (s.json_path != NULL || s.html_path != NULL) {
       json_t *tols = json_object();
       root = json_object();
       json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
@@ -424,7 +442,7 @@ static int run_verify(int argc, char **argv)
       /* base_in_tracker: the older name, kept for existing readers */
       json_object_set_new(root, "base_in_instrument", cli_json_pose(base, &u));
       json_object_set_new(root, "base_in_tracker", cli_json_pose(base, &u));
-      json_object_set_new(root, "base_source", json_string(base_path ? "given" : "registered"));
+      json_object_set_new(root, "base_source", json_string(s.base_path ? "given" : "registered"));
       if (twf_campaign_station_count(in.campaign) > 1) {
         /* several instrument stations: the base pose at each (the members
          * above are the first station's) */
@@ -441,7 +459,7 @@ static int run_verify(int argc, char **argv)
         static const char *const names[1] = { "error" };
         const double *pe[1] = { pos }, *ae[1] = { rot };
         json_t *meas = cli_json_measurements(in.campaign, in.model, NULL, 1, names, pe, ae,
-                                             base_path == NULL ? excluded : NULL, NULL, 0, &u);
+                                             s.base_path == NULL ? excluded : NULL, NULL, 0, &u);
         if (meas != NULL)
           json_object_set_new(root, "measurements", meas);
       }
@@ -502,7 +520,7 @@ static int run_verify(int argc, char **argv)
       rr.rot[0] = rot;
       rr.labels[0] = rr.labels[1] = "";
       rr.u = &u;
-      if (residuals_path != NULL && base_path == NULL) {
+      if (s.residuals_path != NULL && s.base_path == NULL) {
         /* the registration's weight of each fit row: 0 for a gross error */
         size_t k;
         weights = malloc(in.campaign->n_meas * sizeof *weights);
@@ -511,14 +529,14 @@ static int run_verify(int argc, char **argv)
             weights[k] = excluded[k] ? 0.0 : 1.0;
         rr.weights = weights;
       }
-      puts[0].path = json_path;
+      puts[0].path = s.json_path;
       puts[0].put = cli_put_json;
       puts[0].ctx = root;
-      puts[1].path = residuals_path;
+      puts[1].path = s.residuals_path;
       puts[1].put = cli_put_residuals;
       puts[1].ctx = &rr;
-      puts[2] = (cli_put){ html_path, cli_put_html_run, root };
-      w = cli_write_outputs(puts, 3, force, in.paths);
+      puts[2] = (cli_put){ s.html_path, cli_put_html_run, root };
+      w = cli_write_outputs(puts, 3, s.force, in.paths);
       free(weights);
       if (w != 0)
         status = w;

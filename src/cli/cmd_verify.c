@@ -394,6 +394,109 @@ static int judge_acceptance(verify_run *r)
   return TWF_EXIT_OK;
 }
 
+/* The verdict, first in the report: one line per tolerance set. */
+static void print_verdict(FILE *txt, const verify_run *r)
+{
+  const cli_units *u = &r->u;
+  int i;
+  fprintf(txt, "verdict: %s on the %s set\n", r->acc.accepted ? "ACCEPTED" : "REJECTED",
+          r->acc.set == TWF_SET_CHECK ? "check" : "fit");
+  for (i = 0; i < 4; i++) {
+    const tolerance *t = &r->tol[i];
+    double unit = t->is_angle ? u->angle_si : u->length_si;
+    int dec = t->is_angle ? u->adec : u->ldec;
+    if (t->limit > 0)
+      fprintf(txt, "  %-10s %10.*f %s  limit %10.*f  %s\n", t->name, dec, t->value / unit,
+              t->is_angle ? u->angle : u->length, dec, t->limit / unit, t->pass ? "PASS" : "FAIL");
+  }
+  fputc('\n', txt);
+}
+
+/* The base pose of each station, given or registered. */
+static void print_base_poses(FILE *txt, const verify_settings *s, const verify_run *r)
+{
+  const cli_units *u = &r->u;
+  size_t sta, n_st = twf_campaign_station_count(r->in.campaign);
+  for (sta = 0; sta < n_st; sta++) {
+    double q[4];
+    char at[TWF_NAME_MAX + 16] = "";
+    const twf_pose *b = &r->base[sta];
+    if (n_st > 1)
+      snprintf(at, sizeof at, " at station %s", r->in.campaign->station_names[sta]);
+    cli_quat_of(b->R, q);
+    fprintf(txt, "base pose in the instrument frame%s (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
+            at, s->base_path ? "given" : "registered", u->ldec, b->p[0] / u->length_si, u->ldec,
+            b->p[1] / u->length_si, u->ldec, b->p[2] / u->length_si, u->length, q[0], q[1], q[2], q[3]);
+  }
+}
+
+/* How the registration went, and the measurements it left out as gross
+ * errors (with their error, as they stay in the figures). */
+static void print_registration(FILE *txt, const verify_run *r)
+{
+  const twf_registration_report *rrep = &r->rrep;
+  const twf_campaign *c = r->in.campaign;
+  const cli_units *u = &r->u;
+  size_t k, n_ex = rrep->n_excluded;
+  fprintf(txt, "registration: closed form, %u %s with the target offsets%s; refinement %d %s, %s\n",
+          rrep->alternation.iterations, cli_plural(rrep->alternation.iterations, "round", "rounds"),
+          rrep->alternation.converged ? "" : " (not settled)", rrep->refinement.iterations,
+          cli_plural((size_t)rrep->refinement.iterations, "iteration", "iterations"),
+          cli_stop_words(rrep->refinement.stop));
+  if (n_ex == 0)
+    return;
+  fprintf(txt, "registration left out %zu fit-set measurement%s as gross error%s (beyond %g robust "
+               "standard deviations; %s in the figures below):\n", n_ex, n_ex == 1 ? "" : "s",
+          n_ex == 1 ? "" : "s", rrep->robust_threshold, n_ex == 1 ? "it stays" : "they stay");
+  for (k = 0; k < c->n_meas; k++)
+    if (r->excluded[k]) {
+      const twf_measurement *ms = &c->meas[k];
+      const double *p = r->pos + 3 * k;
+      char where[TWF_ERROR_TEXT_MAX];
+      cli_meas_where(&r->in, ms, where, sizeof where);
+      fprintf(txt, "  %s: pose %s target %s: %.*f %s\n", where, c->pose_ids[ms->pose],
+              r->in.model->targets[ms->target].name, u->ldec,
+              sqrt(p[0] * p[0] + p[1] * p[1] + p[2] * p[2]) / u->length_si, u->length);
+    }
+}
+
+/* The offset of every target that has one (given or fitted). */
+static void print_offsets(FILE *txt, const verify_run *r)
+{
+  const twf_model *m = r->in.model;
+  const cli_units *u = &r->u;
+  size_t k;
+  for (k = 0; k < m->n_targets; k++)
+    if (m->targets[k].offset_known)
+      fprintf(txt, "target %s offset in the flange frame, %s: %.*f %.*f %.*f\n", m->targets[k].name, u->length,
+              u->ldec, r->offsets[3 * k] / u->length_si, u->ldec, r->offsets[3 * k + 1] / u->length_si, u->ldec,
+              r->offsets[3 * k + 2] / u->length_si);
+}
+
+/* The text report. */
+static void print_verify(FILE *txt, const verify_settings *s, const verify_run *r)
+{
+  const cli_inputs *in = &r->in;
+  fprintf(txt, "twistfit %s verify\n", twf_version());
+  fprintf(txt, "model: %s (%s, %zu joints)\n", in->model_path, in->model->name, in->model->n_joints);
+  if (in->data_path)
+    fprintf(txt, "data: %s\n", in->data_path);
+  else
+    fprintf(txt, "data: %s + %s\n", in->joints_path, in->points_path);
+  fprintf(txt, "campaign: %zu poses, %zu measurements\n", in->campaign->n_poses, in->campaign->n_meas);
+  if (r->acc.n_limits > 0)
+    print_verdict(txt, r);
+  print_base_poses(txt, s, r);
+  if (s->base_path == NULL)
+    print_registration(txt, r);
+  print_offsets(txt, r);
+  fputc('\n', txt);
+  cli_print_accuracy(txt, "Accuracy of the model on this campaign", r->summary, in->model, in->campaign, &r->u);
+  cli_print_worst(txt, r->summary, in->campaign, in->model, &r->u);
+  fputc('\n', txt);
+  print_iso9283(txt, r->iso, in->model, in->campaign, &r->u, s->base_path == NULL);
+}
+
 static int run_verify(int argc, char **argv)
 {
   verify_settings s;
@@ -419,81 +522,9 @@ static int run_verify(int argc, char **argv)
   if (r.acc.n_limits > 0 && !r.acc.accepted)
     status = TWF_EXIT_REJECTED;
 
-  /* text report */
+  print_verify(txt, &s, &r);
   {
     int i;
-    fprintf(txt, "twistfit %s verify\n", twf_version());
-    fprintf(txt, "model: %s (%s, %zu joints)\n", r.in.model_path, r.in.model->name, r.in.model->n_joints);
-    if (r.in.data_path)
-      fprintf(txt, "data: %s\n", r.in.data_path);
-    else
-      fprintf(txt, "data: %s + %s\n", r.in.joints_path, r.in.points_path);
-    fprintf(txt, "campaign: %zu poses, %zu measurements\n", r.in.campaign->n_poses, r.in.campaign->n_meas);
-    if (r.acc.n_limits > 0) {
-      /* the verdict first */
-      fprintf(txt, "verdict: %s on the %s set\n", r.acc.accepted ? "ACCEPTED" : "REJECTED",
-              r.acc.set == TWF_SET_CHECK ? "check" : "fit");
-      for (i = 0; i < 4; i++)
-        if (r.tol[i].limit > 0)
-          fprintf(txt, "  %-10s %10.*f %s  limit %10.*f  %s\n", r.tol[i].name,
-                  r.tol[i].is_angle ? r.u.adec : r.u.ldec,
-                  r.tol[i].value / (r.tol[i].is_angle ? r.u.angle_si : r.u.length_si),
-                  r.tol[i].is_angle ? r.u.angle : r.u.length, r.tol[i].is_angle ? r.u.adec : r.u.ldec,
-                  r.tol[i].limit / (r.tol[i].is_angle ? r.u.angle_si : r.u.length_si), r.tol[i].pass ? "PASS" : "FAIL");
-      fputc('\n', txt);
-    }
-    {
-      size_t sta, n_st = twf_campaign_station_count(r.in.campaign);
-      for (sta = 0; sta < n_st; sta++) {
-        double q[4];
-        char at[TWF_NAME_MAX + 16] = "";
-        const twf_pose *b = &r.base[sta];
-        if (n_st > 1)
-          snprintf(at, sizeof at, " at station %s", r.in.campaign->station_names[sta]);
-        cli_quat_of(b->R, q);
-        fprintf(txt, "base pose in the instrument frame%s (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
-                at, s.base_path ? "given" : "registered", r.u.ldec, b->p[0] / r.u.length_si, r.u.ldec,
-                b->p[1] / r.u.length_si, r.u.ldec, b->p[2] / r.u.length_si, r.u.length, q[0], q[1], q[2], q[3]);
-      }
-    }
-    if (s.base_path == NULL) {
-      size_t k, n_ex = r.rrep.n_excluded;
-      fprintf(txt, "registration: closed form, %u %s with the target offsets%s; refinement %d %s, %s\n",
-              r.rrep.alternation.iterations, cli_plural(r.rrep.alternation.iterations, "round", "rounds"),
-              r.rrep.alternation.converged ? "" : " (not settled)", r.rrep.refinement.iterations,
-              cli_plural((size_t)r.rrep.refinement.iterations, "iteration", "iterations"),
-              cli_stop_words(r.rrep.refinement.stop));
-      if (n_ex > 0) {
-        fprintf(txt, "registration left out %zu fit-set measurement%s as gross error%s (beyond %g robust "
-                     "standard deviations; %s in the figures below):\n", n_ex, n_ex == 1 ? "" : "s",
-                n_ex == 1 ? "" : "s", r.rrep.robust_threshold, n_ex == 1 ? "it stays" : "they stay");
-        for (k = 0; k < r.in.campaign->n_meas; k++)
-          if (r.excluded[k]) {
-            const twf_measurement *ms = &r.in.campaign->meas[k];
-            char where[TWF_ERROR_TEXT_MAX];
-            cli_meas_where(&r.in, ms, where, sizeof where);
-            fprintf(txt, "  %s: pose %s target %s: %.*f %s\n", where,
-                    r.in.campaign->pose_ids[ms->pose], r.in.model->targets[ms->target].name, r.u.ldec,
-                    sqrt(r.pos[3 * k] * r.pos[3 * k] + r.pos[3 * k + 1] * r.pos[3 * k + 1] + r.pos[3 * k + 2] * r.pos[3 * k + 2]) /
-                        r.u.length_si,
-                    r.u.length);
-          }
-      }
-    }
-    {
-      size_t k;
-      for (k = 0; k < r.in.model->n_targets; k++)
-        if (r.in.model->targets[k].offset_known)
-          fprintf(txt, "target %s offset in the flange frame, %s: %.*f %.*f %.*f\n",
-                  r.in.model->targets[k].name, r.u.length, r.u.ldec, r.offsets[3 * k] / r.u.length_si, r.u.ldec,
-                  r.offsets[3 * k + 1] / r.u.length_si, r.u.ldec, r.offsets[3 * k + 2] / r.u.length_si);
-    }
-    fputc('\n', txt);
-    cli_print_accuracy(txt, "Accuracy of the model on this campaign", r.summary, r.in.model,
-                       r.in.campaign, &r.u);
-    cli_print_worst(txt, r.summary, r.in.campaign, r.in.model, &r.u);
-    fputc('\n', txt);
-    print_iso9283(txt, r.iso, r.in.model, r.in.campaign, &r.u, s.base_path == NULL);
     if (s.json_path != NULL || s.html_path != NULL) {
       json_t *tols = json_object();
       root = json_object();

@@ -497,13 +497,158 @@ static void print_verify(FILE *txt, const verify_settings *s, const verify_run *
   print_iso9283(txt, r->iso, in->model, in->campaign, &r->u, s->base_path == NULL);
 }
 
+/* With several instrument stations: the base pose at each. */
+static json_t *json_stations(const verify_run *r)
+{
+  json_t *arr = json_array();
+  size_t sta;
+  for (sta = 0; sta < twf_campaign_station_count(r->in.campaign); sta++)
+    json_array_append_new(arr, json_pack("{s:s, s:o}", "name", r->in.campaign->station_names[sta],
+                                         "base_in_instrument", cli_json_pose(&r->base[sta], &r->u)));
+  return arr;
+}
+
+/* The per-measurement errors; NULL when there are none to give. */
+static json_t *json_measurements(const verify_settings *s, const verify_run *r)
+{
+  static const char *const names[1] = { "error" };
+  const double *pe[1] = { r->pos }, *ae[1] = { r->rot };
+  return cli_json_measurements(r->in.campaign, r->in.model, NULL, 1, names, pe, ae,
+                               s->base_path == NULL ? r->excluded : NULL, NULL, 0, &r->u);
+}
+
+/* ISO 9283 orientation AP and RP of each repeated 6-D pose. */
+static json_t *json_iso9283_orientation(const twf_iso9283 *iso, const twf_campaign *c, const cli_units *u)
+{
+  json_t *ori = json_array();
+  size_t k;
+  for (k = 0; k < iso->n_orientation; k++) {
+    const twf_iso9283_orientation *e = &iso->orientation[k];
+    json_array_append_new(ori, json_pack("{s:s, s:I, s:[o,o,o], s:[o,o,o]}", "pose", c->pose_ids[e->first_pose],
+                                         "visits", (json_int_t)e->n, "ap_abc", cli_json_number(e->ap[0] / u->angle_si),
+                                         cli_json_number(e->ap[1] / u->angle_si),
+                                         cli_json_number(e->ap[2] / u->angle_si), "rp_abc",
+                                         cli_json_number(e->rp[0] / u->angle_si),
+                                         cli_json_number(e->rp[1] / u->angle_si),
+                                         cli_json_number(e->rp[2] / u->angle_si)));
+  }
+  return ori;
+}
+
+/* The worst ISO 9283 figures and the cycles they rest on. */
+static json_t *json_iso9283_summary(const twf_iso9283 *iso, const cli_units *u)
+{
+  return json_pack("{s:o, s:o, s:o, s:o, s:I, s:I, s:I}", "ap_p_max", cli_json_number(iso->ap_p_max / u->length_si),
+                   "rp_max", cli_json_number(iso->rp_max / u->length_si), "ap_angle_max",
+                   cli_json_number(iso->ap_angle_max / u->angle_si), "rp_angle_max",
+                   cli_json_number(iso->rp_angle_max / u->angle_si), "min_cycles", (json_int_t)iso->min_cycles,
+                   "max_cycles", (json_int_t)iso->max_cycles, "standard_cycles", (json_int_t)TWF_ISO9283_CYCLES);
+}
+
+/* The set judged, each tolerance set and the verdict (none without
+ * tolerances). */
+static json_t *json_acceptance(const verify_run *r)
+{
+  const cli_units *u = &r->u;
+  json_t *tols = json_object();
+  int i;
+  for (i = 0; i < 4; i++) {
+    const tolerance *t = &r->tol[i];
+    double unit = t->is_angle ? u->angle_si : u->length_si;
+    if (t->limit > 0)
+      json_object_set_new(tols, t->name,
+                          json_pack("{s:o, s:o, s:b}", "limit", cli_json_number(t->limit / unit), "value",
+                                    cli_json_number(t->value / unit), "pass", t->pass));
+  }
+  return json_pack("{s:s, s:o, s:s}", "set", r->acc.set == TWF_SET_CHECK ? "check" : "fit", "tolerances", tols,
+                   "verdict", json_object_size(tols) == 0 ? "none" : r->acc.accepted ? "accepted" : "rejected");
+}
+
+static json_t *json_warnings(const twf_warnings *w)
+{
+  json_t *wa = json_array();
+  size_t k;
+  for (k = 0; k < w->count; k++)
+    json_array_append_new(wa, json_string(w->items[k].message));
+  return wa;
+}
+
+/* The JSON report (--json, and what --html is made from). */
+static json_t *verify_json(const verify_settings *s, const verify_run *r)
+{
+  const cli_inputs *in = &r->in;
+  const cli_units *u = &r->u;
+  json_t *root = json_object(), *meas;
+  char created[64];
+  json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
+  json_object_set_new(root, "command", json_string("verify"));
+  json_object_set_new(root, "created", json_string(cli_created_now(created, sizeof created)));
+  json_object_set_new(root, "inputs", cli_json_inputs(in));
+  json_object_set_new(root, "robot", cli_json_robot(in->model, u));
+  json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u->length, "angle", u->angle));
+  /* base_in_tracker: the older name, kept for existing readers */
+  json_object_set_new(root, "base_in_instrument", cli_json_pose(r->base, u));
+  json_object_set_new(root, "base_in_tracker", cli_json_pose(r->base, u));
+  json_object_set_new(root, "base_source", json_string(s->base_path ? "given" : "registered"));
+  /* several instrument stations: the base pose at each (the members
+   * above are the first station's) */
+  if (twf_campaign_station_count(in->campaign) > 1)
+    json_object_set_new(root, "stations", json_stations(r));
+  json_object_set_new(root, "accuracy", cli_json_accuracy(r->summary, in->model, in->campaign, u));
+  json_object_set_new(root, "iso9283", json_iso9283(r->iso, in->model, in->campaign, u));
+  if ((meas = json_measurements(s, r)) != NULL)
+    json_object_set_new(root, "measurements", meas);
+  json_object_set_new(root, "iso9283_orientation", json_iso9283_orientation(r->iso, in->campaign, u));
+  json_object_set_new(root, "iso9283_summary", json_iso9283_summary(r->iso, u));
+  json_object_set_new(root, "acceptance", json_acceptance(r));
+  json_object_set_new(root, "warnings", json_warnings(&in->warnings));
+  return root;
+}
+
+/* Write --json, --residuals and --html (root: the JSON report, or NULL
+ * without either) as one set, after everything else succeeded; returns
+ * an exit status. */
+static int write_verify_outputs(const verify_settings *s, const verify_run *r, json_t *root)
+{
+  cli_residuals rr;
+  cli_put puts[3];
+  int w;
+  double *weights = NULL;
+  memset(&rr, 0, sizeof rr);
+  rr.m = r->in.model;
+  rr.c = r->in.campaign;
+  rr.pos[0] = r->pos;
+  rr.rot[0] = r->rot;
+  rr.labels[0] = rr.labels[1] = "";
+  rr.u = &r->u;
+  if (s->residuals_path != NULL && s->base_path == NULL) {
+    /* the registration's weight of each fit row: 0 for a gross error */
+    size_t k;
+    weights = malloc(r->in.campaign->n_meas * sizeof *weights);
+    if (weights != NULL)
+      for (k = 0; k < r->in.campaign->n_meas; k++)
+        weights[k] = r->excluded[k] ? 0.0 : 1.0;
+    rr.weights = weights;
+  }
+  puts[0].path = s->json_path;
+  puts[0].put = cli_put_json;
+  puts[0].ctx = root;
+  puts[1].path = s->residuals_path;
+  puts[1].put = cli_put_residuals;
+  puts[1].ctx = &rr;
+  puts[2] = (cli_put){ s->html_path, cli_put_html_run, root };
+  w = cli_write_outputs(puts, 3, s->force, r->in.paths);
+  free(weights);
+  return w;
+}
+
 static int run_verify(int argc, char **argv)
 {
   verify_settings s;
   verify_run r;
   FILE *txt = stdout;
   json_t *root = NULL;
-  int status;
+  int status, w;
 
   verify_run_init(&r);
   if ((status = parse_verify_options(argc, argv, &r.in, &s)) != 0 || s.help_shown)
@@ -516,130 +661,21 @@ static int run_verify(int argc, char **argv)
   if ((status = alloc_verify_arrays(&r)) != 0)
     goto done;
   status = s.base_path != NULL ? take_given_base(&s, &r) : register_base(&s, &r);
-  if (status != 0 || (status = accuracy_figures(&s, &r)) != 0 || (status = iso9283_figures(&s, &r)) != 0 ||
-      (status = judge_acceptance(&r)) != 0)
+  if (status != 0)
+    goto done;
+  if ((status = accuracy_figures(&s, &r)) != 0 || (status = iso9283_figures(&s, &r)) != 0)
+    goto done;
+  if ((status = judge_acceptance(&r)) != 0)
     goto done;
   if (r.acc.n_limits > 0 && !r.acc.accepted)
     status = TWF_EXIT_REJECTED;
 
+  /* the outputs only now, all or none, when everything has succeeded */
   print_verify(txt, &s, &r);
-  {
-    int i;
-    if (s.json_path != NULL || s.html_path != NULL) {
-      json_t *tols = json_object();
-      root = json_object();
-      json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
-      json_object_set_new(root, "command", json_string("verify"));
-      {
-        char created[64];
-        json_object_set_new(root, "created", json_string(cli_created_now(created, sizeof created)));
-      }
-      json_object_set_new(root, "inputs", cli_json_inputs(&r.in));
-      json_object_set_new(root, "robot", cli_json_robot(r.in.model, &r.u));
-      json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", r.u.length, "angle", r.u.angle));
-      /* base_in_tracker: the older name, kept for existing readers */
-      json_object_set_new(root, "base_in_instrument", cli_json_pose(r.base, &r.u));
-      json_object_set_new(root, "base_in_tracker", cli_json_pose(r.base, &r.u));
-      json_object_set_new(root, "base_source", json_string(s.base_path ? "given" : "registered"));
-      if (twf_campaign_station_count(r.in.campaign) > 1) {
-        /* several instrument stations: the base pose at each (the members
-         * above are the first station's) */
-        json_t *arr = json_array();
-        size_t sta;
-        for (sta = 0; sta < twf_campaign_station_count(r.in.campaign); sta++)
-          json_array_append_new(arr, json_pack("{s:s, s:o}", "name", r.in.campaign->station_names[sta],
-                                               "base_in_instrument", cli_json_pose(&r.base[sta], &r.u)));
-        json_object_set_new(root, "stations", arr);
-      }
-      json_object_set_new(root, "accuracy", cli_json_accuracy(r.summary, r.in.model, r.in.campaign, &r.u));
-      json_object_set_new(root, "iso9283", json_iso9283(r.iso, r.in.model, r.in.campaign, &r.u));
-      {
-        static const char *const names[1] = { "error" };
-        const double *pe[1] = { r.pos }, *ae[1] = { r.rot };
-        json_t *meas = cli_json_measurements(r.in.campaign, r.in.model, NULL, 1, names, pe, ae,
-                                             s.base_path == NULL ? r.excluded : NULL, NULL, 0, &r.u);
-        if (meas != NULL)
-          json_object_set_new(root, "measurements", meas);
-      }
-      {
-        json_t *ori = json_array();
-        size_t k;
-        for (k = 0; k < r.iso->n_orientation; k++) {
-          const twf_iso9283_orientation *e = &r.iso->orientation[k];
-          json_array_append_new(ori, json_pack("{s:s, s:I, s:[o,o,o], s:[o,o,o]}", "pose",
-                                               r.in.campaign->pose_ids[e->first_pose], "visits", (json_int_t)e->n,
-                                               "ap_abc", cli_json_number(e->ap[0] / r.u.angle_si),
-                                               cli_json_number(e->ap[1] / r.u.angle_si),
-                                               cli_json_number(e->ap[2] / r.u.angle_si), "rp_abc",
-                                               cli_json_number(e->rp[0] / r.u.angle_si),
-                                               cli_json_number(e->rp[1] / r.u.angle_si),
-                                               cli_json_number(e->rp[2] / r.u.angle_si)));
-        }
-        json_object_set_new(root, "iso9283_orientation", ori);
-        json_object_set_new(root, "iso9283_summary",
-                            json_pack("{s:o, s:o, s:o, s:o, s:I, s:I, s:I}", "ap_p_max",
-                                      cli_json_number(r.iso->ap_p_max / r.u.length_si), "rp_max",
-                                      cli_json_number(r.iso->rp_max / r.u.length_si), "ap_angle_max",
-                                      cli_json_number(r.iso->ap_angle_max / r.u.angle_si), "rp_angle_max",
-                                      cli_json_number(r.iso->rp_angle_max / r.u.angle_si), "min_cycles",
-                                      (json_int_t)r.iso->min_cycles, "max_cycles", (json_int_t)r.iso->max_cycles,
-                                      "standard_cycles", (json_int_t)TWF_ISO9283_CYCLES));
-      }
-      for (i = 0; i < 4; i++)
-        if (r.tol[i].limit > 0)
-          json_object_set_new(tols, r.tol[i].name,
-                              json_pack("{s:o, s:o, s:b}", "limit",
-                                        cli_json_number(r.tol[i].limit / (r.tol[i].is_angle ? r.u.angle_si : r.u.length_si)),
-                                        "value",
-                                        cli_json_number(r.tol[i].value / (r.tol[i].is_angle ? r.u.angle_si : r.u.length_si)),
-                                        "pass", r.tol[i].pass));
-      json_object_set_new(root, "acceptance",
-                          json_pack("{s:s, s:o, s:s}", "set", r.acc.set == TWF_SET_CHECK ? "check" : "fit",
-                                    "tolerances", tols, "verdict",
-                                    json_object_size(tols) == 0 ? "none"
-                                    : r.acc.accepted ? "accepted" : "rejected"));
-      {
-        json_t *wa = json_array();
-        size_t k;
-        for (k = 0; k < r.in.warnings.count; k++)
-          json_array_append_new(wa, json_string(r.in.warnings.items[k].message));
-        json_object_set_new(root, "warnings", wa);
-      }
-    }
-    {
-      cli_residuals rr;
-      cli_put puts[3];
-      int w;
-      double *weights = NULL;
-      memset(&rr, 0, sizeof rr);
-      rr.m = r.in.model;
-      rr.c = r.in.campaign;
-      rr.pos[0] = r.pos;
-      rr.rot[0] = r.rot;
-      rr.labels[0] = rr.labels[1] = "";
-      rr.u = &r.u;
-      if (s.residuals_path != NULL && s.base_path == NULL) {
-        /* the registration's weight of each fit row: 0 for a gross error */
-        size_t k;
-        weights = malloc(r.in.campaign->n_meas * sizeof *weights);
-        if (weights != NULL)
-          for (k = 0; k < r.in.campaign->n_meas; k++)
-            weights[k] = r.excluded[k] ? 0.0 : 1.0;
-        rr.weights = weights;
-      }
-      puts[0].path = s.json_path;
-      puts[0].put = cli_put_json;
-      puts[0].ctx = root;
-      puts[1].path = s.residuals_path;
-      puts[1].put = cli_put_residuals;
-      puts[1].ctx = &rr;
-      puts[2] = (cli_put){ s.html_path, cli_put_html_run, root };
-      w = cli_write_outputs(puts, 3, s.force, r.in.paths);
-      free(weights);
-      if (w != 0)
-        status = w;
-    }
-  }
+  if (s.json_path != NULL || s.html_path != NULL)
+    root = verify_json(&s, &r);
+  if ((w = write_verify_outputs(&s, &r, root)) != 0)
+    status = w;
 
 done:
   json_decref(root);

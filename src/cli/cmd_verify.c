@@ -134,7 +134,21 @@ static json_t *json_iso9283(const twf_iso9283 *iso, const twf_model *m, const tw
   return a;
 }
 
-static int run_verify(int argc, char **argv)
+/* The command's settings, as its options give them. */
+typedef struct verify_settings {
+  const char *base_path;                 /* --base, or NULL: register */
+  const char *residuals_path, *json_path, *html_path;
+  const char *repeat_text;               /* --repeat-tol as typed (read in the model's units) */
+  const char *tol_text[4];               /* --tol-rms, --tol-p95, --tol-max, --tol-angle-max */
+  int force, fit_offsets, allow_mixed;
+  int help_shown;                        /* -h: the help is printed, nothing more to do */
+  long worst;                            /* --worst */
+} verify_settings;
+
+/* Read the options into *s and the input options into *in (argv is
+ * permuted and optind left at MODEL, as getopt_long does); returns an exit
+ * status, 0 with s->help_shown set after --help. */
+static int parse_verify_options(int argc, char **argv, cli_inputs *in, verify_settings *s)
 {
   static const struct option longopts[] = {
     CLI_INPUT_LONGOPTS,
@@ -154,387 +168,518 @@ static int run_verify(int argc, char **argv)
     { "help", no_argument, NULL, 'h' },
     { NULL, 0, NULL, 0 }
   };
-  const char *tol_text[4] = { NULL, NULL, NULL, NULL };
-  static const char *const tol_opt[4] = { "--tol-rms", "--tol-p95", "--tol-max", "--tol-angle-max" };
-  const char *base_path = NULL, *residuals_path = NULL, *json_path = NULL, *repeat_text = NULL;
-  const char *html_path = NULL;
-  int force = 0, fit_offsets = 0, allow_mixed = 0, opt, status = TWF_EXIT_OK, i;
-  long worst = 5;
-  cli_inputs in;
-  cli_units u;
-  twf_error err;
-  twf_pose base_st[TWF_STATIONS_MAX], *base = base_st;
-  double *offsets = NULL, *pos = NULL, *rot = NULL;
-  unsigned char *excluded = NULL;
-  twf_accuracy_summary *summary = NULL;
-  twf_iso9283 *iso = NULL;
-  tolerance tol[4] = { { "rms", 0, 0, 0, 0 }, { "p95", 0, 0, 0, 0 }, { "max", 0, 0, 0, 0 },
-                       { "angle-max", 0, 0, 1, 0 } };
-  twf_registration_report rrep;
-  twf_trace trace;
-  FILE *txt = stdout;
-  json_t *root = NULL;
+  static const verify_settings defaults = { NULL, NULL, NULL, NULL, NULL, { NULL, NULL, NULL, NULL }, 0, 0, 0, 0, 5 };
+  int opt, status = TWF_EXIT_OK;
 
-  cli_inputs_init(&in);
-  memset(&rrep, 0, sizeof rrep);
-  twf_trace_init(&trace);
+  *s = defaults;
   optind = 0;
   opterr = 0;
   while ((opt = getopt_long(argc, argv, ":fh", longopts, NULL)) != -1) {
-    if (cli_inputs_option(&in, "verify", opt, optarg, &status)) {
+    if (cli_inputs_option(in, "verify", opt, optarg, &status)) {
       if (status != 0)
-        goto done;
+        return status;
       continue;
     }
     switch (opt) {
-    case OPT_BASE: base_path = optarg; break;
-    case OPT_FIT_OFFSETS: fit_offsets = 1; break;
-    case OPT_ALLOW_MIXED: allow_mixed = 1; break;
-    case OPT_TOL_RMS: tol_text[0] = optarg; break;
-    case OPT_TOL_P95: tol_text[1] = optarg; break;
-    case OPT_TOL_MAX: tol_text[2] = optarg; break;
-    case OPT_TOL_ANGLE: tol_text[3] = optarg; break;
-    case OPT_REPEAT_TOL: repeat_text = optarg; break;
+    case OPT_BASE: s->base_path = optarg; break;
+    case OPT_FIT_OFFSETS: s->fit_offsets = 1; break;
+    case OPT_ALLOW_MIXED: s->allow_mixed = 1; break;
+    case OPT_TOL_RMS: s->tol_text[0] = optarg; break;
+    case OPT_TOL_P95: s->tol_text[1] = optarg; break;
+    case OPT_TOL_MAX: s->tol_text[2] = optarg; break;
+    case OPT_TOL_ANGLE: s->tol_text[3] = optarg; break;
+    case OPT_REPEAT_TOL: s->repeat_text = optarg; break;
     case OPT_WORST: {
       char *end;
-      worst = strtol(optarg, &end, 10);
-      if (*end != '\0' || *optarg == '\0' || worst < 0 || worst > 1000) {
-        status = cli_usage_error("verify", "--worst takes a count from 0 to 1000");
-        goto done;
-      }
+      s->worst = strtol(optarg, &end, 10);
+      if (*end != '\0' || *optarg == '\0' || s->worst < 0 || s->worst > 1000)
+        return cli_usage_error("verify", "--worst takes a count from 0 to 1000");
       break;
     }
-    case OPT_RESIDUALS: residuals_path = optarg; break;
-    case OPT_JSON: json_path = optarg; break;
-    case OPT_HTML: html_path = optarg; break;
-    case 'f': force = 1; break;
-    case 'h': fputs(verify_help, stdout); goto done;
-    default: status = cli_bad_option("verify", opt, argv); goto done;
+    case OPT_RESIDUALS: s->residuals_path = optarg; break;
+    case OPT_JSON: s->json_path = optarg; break;
+    case OPT_HTML: s->html_path = optarg; break;
+    case 'f': s->force = 1; break;
+    case 'h': fputs(verify_help, stdout); s->help_shown = 1; return TWF_EXIT_OK;
+    default: return cli_bad_option("verify", opt, argv);
     }
   }
-  if (base_path != NULL && fit_offsets) {
-    status = cli_usage_error("verify", "--base and --fit-offsets exclude each other");
-    goto done;
-  }
-  if ((status = cli_inputs_load(&in, "verify", argc, argv, optind)) != 0)
-    goto done;
-  cli_units_of(&u, in.model);
+  if (s->base_path != NULL && s->fit_offsets)
+    return cli_usage_error("verify", "--base and --fit-offsets exclude each other");
+  return TWF_EXIT_OK;
+}
+
+/* One run of the command: its inputs and what it works out from them. */
+typedef struct verify_run {
+  cli_inputs in;
+  cli_units u;
+  twf_error err;
+  twf_pose base[TWF_STATIONS_MAX];  /* robot base in the instrument frame, per station */
+  double *offsets;                  /* per target: 3, flange frame */
+  double *pos, *rot;                /* per measurement: measured - model (3), orientation error */
+  unsigned char *excluded;          /* per measurement: left out of the registration */
+  twf_registration_report rrep;
+  twf_trace trace;
+  twf_accuracy_summary *summary;
+  twf_iso9283 *iso;
+  tolerance tol[4];                 /* rms, p95, max, angle-max */
+  twf_acceptance acc;
+} verify_run;
+
+static void verify_run_init(verify_run *r)
+{
+  static const tolerance tol[4] = { { "rms", 0, 0, 0, 0 }, { "p95", 0, 0, 0, 0 }, { "max", 0, 0, 0, 0 },
+                                    { "angle-max", 0, 0, 1, 0 } };
+  memset(r, 0, sizeof *r);
+  cli_inputs_init(&r->in);
+  twf_error_clear(&r->err);
+  twf_trace_init(&r->trace);
+  memcpy(r->tol, tol, sizeof r->tol);
+}
+
+static void verify_run_free(verify_run *r)
+{
+  twf_iso9283_free(r->iso);
+  twf_accuracy_summary_free(r->summary);
+  free(r->offsets);
+  free(r->pos);
+  free(r->rot);
+  free(r->excluded);
+  twf_trace_clear(&r->trace);
+  cli_inputs_free(&r->in);
+}
+
+/* --residuals and --html need file names; no output may be an input or
+ * (without --force) an existing file. Checked before any work. */
+static int check_verify_outputs(const verify_settings *s, const cli_inputs *in)
+{
+  const char *outs[3] = { s->json_path, s->residuals_path, s->html_path };
+  static const char *const names[3] = { "--json", "--residuals", "--html" };
+  if (s->residuals_path != NULL && strcmp(s->residuals_path, "-") == 0)
+    return cli_usage_error("verify", "--residuals needs a file name");
+  if (s->html_path != NULL && strcmp(s->html_path, "-") == 0)
+    return cli_usage_error("verify", "--html needs a file name");
+  return cli_outputs_check("verify", outs, names, 3, s->force, in->paths);
+}
+
+/* Read MODEL and DATA (from argv[first]), take the tolerances in the
+ * model's units and check the outputs; returns an exit status. */
+static int load_verify_inputs(const verify_settings *s, verify_run *r, int argc, char **argv, int first)
+{
+  static const char *const tol_opt[4] = { "--tol-rms", "--tol-p95", "--tol-max", "--tol-angle-max" };
+  int status, i;
+  if ((status = cli_inputs_load(&r->in, "verify", argc, argv, first)) != 0)
+    return status;
+  cli_units_of(&r->u, r->in.model);
   for (i = 0; i < 4; i++)
-    if (tol_text[i] != NULL &&
-        (status = cli_parse_tolerance("verify", tol_opt[i], tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
-                                      &tol[i].limit)) != 0)
-      goto done;
-  if (json_path != NULL && strcmp(json_path, "-") == 0)
+    if (s->tol_text[i] != NULL &&
+        (status = cli_parse_tolerance("verify", tol_opt[i], s->tol_text[i],
+                                      r->tol[i].is_angle ? r->u.angle_si : r->u.length_si, &r->tol[i].limit)) != 0)
+      return status;
+  if (s->base_path != NULL)
+    cli_inputs_add_path(&r->in, s->base_path);
+  if ((status = check_verify_outputs(s, &r->in)) != 0)
+    return status;
+  if (s->tol_text[3] != NULL && !r->in.campaign->has_orientation_any)
+    return cli_usage_error("verify", "--tol-angle-max needs 6-D rows (with a quaternion); the campaign has none");
+  return TWF_EXIT_OK;
+}
+
+/* The per-target and per-measurement arrays, the offsets starting as the
+ * model gives them; returns an exit status. */
+static int alloc_verify_arrays(verify_run *r)
+{
+  size_t n_meas = r->in.campaign->n_meas, n_targets = r->in.model->n_targets;
+  r->excluded = calloc(n_meas, 1);
+  r->offsets = calloc(3 * (n_targets ? n_targets : 1), sizeof *r->offsets);
+  r->pos = calloc(3 * n_meas, sizeof *r->pos);
+  r->rot = calloc(n_meas, sizeof *r->rot);
+  if (r->offsets == NULL || r->pos == NULL || r->rot == NULL || r->excluded == NULL)
+    return TWF_EXIT_INTERNAL;
+  twf_register_offsets_init(r->in.model, r->offsets);
+  return TWF_EXIT_OK;
+}
+
+/* --base: the base pose of each station as given. Nothing is fitted, so
+ * every measured target needs its offset in the model; returns an exit
+ * status. */
+static int take_given_base(const verify_settings *s, verify_run *r)
+{
+  const twf_model *m = r->in.model;
+  const twf_campaign *c = r->in.campaign;
+  size_t k;
+  int status;
+  if (cli_read_station_bases(s->base_path, &r->in.ropt, c, r->base, &r->err) != TWF_OK)
+    return cli_report_error(&r->err);
+  /* the base pose is in the frame of the model it was fitted with */
+  if ((status = cli_check_same_run("verify", r->in.model_path, "the model", s->base_path, "the base pose file",
+                                   s->allow_mixed, 1)) != 0)
+    return status;
+  for (k = 0; k < c->n_meas; k++)
+    if (!m->targets[c->meas[k].target].offset_known) {
+      twf_error_set(&r->err, TWF_ERR_MISSING, r->in.model_path, 0, 0,
+                    "give the target an offset in the model, or drop --base to fit it",
+                    "target %s has no offset and --base fits nothing", m->targets[c->meas[k].target].name);
+      return cli_report_error(&r->err);
+    }
+  return TWF_EXIT_OK;
+}
+
+/* No --base: register the model to the instrument (the base pose of each
+ * station and the offsets of the targets declared without one, or of all
+ * with --fit-offsets), leaving out gross errors; returns an exit status. */
+static int register_base(const verify_settings *s, verify_run *r)
+{
+  twf_register_options ro = twf_register_default_options();
+  size_t k;
+  ro.fit_all_offsets = s->fit_offsets;
+  if (twf_register_and_refine(r->in.model, r->in.campaign, &ro, NULL, r->base, &r->rrep, r->excluded, &r->trace,
+                              &r->err) != TWF_OK) {
+    cli_hint_options(&r->err);
+    return cli_report_error(&r->err);
+  }
+  /* the registration leaves the fitted offsets in the model */
+  for (k = 0; k < r->in.model->n_targets; k++)
+    memcpy(r->offsets + 3 * k, r->in.model->targets[k].offset, sizeof r->in.model->targets[k].offset);
+  cli_print_trace(&r->trace);
+  return TWF_EXIT_OK;
+}
+
+/* The error of every measurement and their summary (with the --worst
+ * poses); returns an exit status. */
+static int accuracy_figures(const verify_settings *s, verify_run *r)
+{
+  if (twf_accuracy_residuals(r->in.model, r->base, r->offsets, r->in.campaign, r->pos, r->rot, &r->err) != TWF_OK ||
+      (r->summary = twf_accuracy_summarize(r->in.campaign, r->in.model->n_targets, r->pos, r->rot, (size_t)s->worst,
+                                           &r->err)) == NULL)
+    return cli_report_error(&r->err);
+  return TWF_EXIT_OK;
+}
+
+/* ISO 9283 AP and RP over the commanded poses that repeat (--repeat-tol:
+ * how close joint values are for one pose); returns an exit status. */
+static int iso9283_figures(const verify_settings *s, verify_run *r)
+{
+  twf_iso9283_options io = twf_iso9283_default_options();
+  if (s->repeat_text != NULL) {
+    double v;
+    if (cli_parse_double(s->repeat_text, &v) != 0 || v <= 0)
+      return cli_usage_error("verify", "--repeat-tol takes a positive number");
+    io.joint_tol = v * r->u.angle_si;
+    io.joint_tol_prismatic = v * r->u.length_si;
+  }
+  r->iso = twf_accuracy_iso9283(r->in.model, r->base, r->offsets, r->in.campaign, &io, &r->err);
+  if (r->iso == NULL)
+    return cli_report_error(&r->err);
+  return TWF_EXIT_OK;
+}
+
+/* The acceptance verdict (library): on the check set when it has rows,
+ * else on the fit set. Returns the exit status of an error; the verdict
+ * is in r->acc and r->tol. */
+static int judge_acceptance(verify_run *r)
+{
+  twf_acceptance_limits lim;
+  int i;
+  lim.rms_m = r->tol[0].limit;
+  lim.p95_m = r->tol[1].limit;
+  lim.max_m = r->tol[2].limit;
+  lim.angle_max_rad = r->tol[3].limit;
+  if (twf_accuracy_accept(r->summary, &lim, &r->acc, &r->err) != TWF_OK)
+    return cli_report_error(&r->err);
+  for (i = 0; i < 4; i++) {
+    r->tol[i].value = r->acc.value[i];
+    r->tol[i].pass = r->acc.pass[i];
+  }
+  return TWF_EXIT_OK;
+}
+
+/* The verdict, first in the report: one line per tolerance set. */
+static void print_verdict(FILE *txt, const verify_run *r)
+{
+  const cli_units *u = &r->u;
+  int i;
+  fprintf(txt, "verdict: %s on the %s set\n", r->acc.accepted ? "ACCEPTED" : "REJECTED",
+          r->acc.set == TWF_SET_CHECK ? "check" : "fit");
+  for (i = 0; i < 4; i++) {
+    const tolerance *t = &r->tol[i];
+    double unit = t->is_angle ? u->angle_si : u->length_si;
+    int dec = t->is_angle ? u->adec : u->ldec;
+    if (t->limit > 0)
+      fprintf(txt, "  %-10s %10.*f %s  limit %10.*f  %s\n", t->name, dec, t->value / unit,
+              t->is_angle ? u->angle : u->length, dec, t->limit / unit, t->pass ? "PASS" : "FAIL");
+  }
+  fputc('\n', txt);
+}
+
+/* The base pose of each station, given or registered. */
+static void print_base_poses(FILE *txt, const verify_settings *s, const verify_run *r)
+{
+  const cli_units *u = &r->u;
+  size_t sta, n_st = twf_campaign_station_count(r->in.campaign);
+  for (sta = 0; sta < n_st; sta++) {
+    double q[4];
+    char at[TWF_NAME_MAX + 16] = "";
+    const twf_pose *b = &r->base[sta];
+    if (n_st > 1)
+      snprintf(at, sizeof at, " at station %s", r->in.campaign->station_names[sta]);
+    cli_quat_of(b->R, q);
+    fprintf(txt, "base pose in the instrument frame%s (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
+            at, s->base_path ? "given" : "registered", u->ldec, b->p[0] / u->length_si, u->ldec,
+            b->p[1] / u->length_si, u->ldec, b->p[2] / u->length_si, u->length, q[0], q[1], q[2], q[3]);
+  }
+}
+
+/* How the registration went, and the measurements it left out as gross
+ * errors (with their error, as they stay in the figures). */
+static void print_registration(FILE *txt, const verify_run *r)
+{
+  const twf_registration_report *rrep = &r->rrep;
+  const twf_campaign *c = r->in.campaign;
+  const cli_units *u = &r->u;
+  size_t k, n_ex = rrep->n_excluded;
+  fprintf(txt, "registration: closed form, %u %s with the target offsets%s; refinement %d %s, %s\n",
+          rrep->alternation.iterations, cli_plural(rrep->alternation.iterations, "round", "rounds"),
+          rrep->alternation.converged ? "" : " (not settled)", rrep->refinement.iterations,
+          cli_plural((size_t)rrep->refinement.iterations, "iteration", "iterations"),
+          cli_stop_words(rrep->refinement.stop));
+  if (n_ex == 0)
+    return;
+  fprintf(txt, "registration left out %zu fit-set measurement%s as gross error%s (beyond %g robust "
+               "standard deviations; %s in the figures below):\n", n_ex, n_ex == 1 ? "" : "s",
+          n_ex == 1 ? "" : "s", rrep->robust_threshold, n_ex == 1 ? "it stays" : "they stay");
+  for (k = 0; k < c->n_meas; k++)
+    if (r->excluded[k]) {
+      const twf_measurement *ms = &c->meas[k];
+      const double *p = r->pos + 3 * k;
+      char where[TWF_ERROR_TEXT_MAX];
+      cli_meas_where(&r->in, ms, where, sizeof where);
+      fprintf(txt, "  %s: pose %s target %s: %.*f %s\n", where, c->pose_ids[ms->pose],
+              r->in.model->targets[ms->target].name, u->ldec,
+              sqrt(p[0] * p[0] + p[1] * p[1] + p[2] * p[2]) / u->length_si, u->length);
+    }
+}
+
+/* The offset of every target that has one (given or fitted). */
+static void print_offsets(FILE *txt, const verify_run *r)
+{
+  const twf_model *m = r->in.model;
+  const cli_units *u = &r->u;
+  size_t k;
+  for (k = 0; k < m->n_targets; k++)
+    if (m->targets[k].offset_known)
+      fprintf(txt, "target %s offset in the flange frame, %s: %.*f %.*f %.*f\n", m->targets[k].name, u->length,
+              u->ldec, r->offsets[3 * k] / u->length_si, u->ldec, r->offsets[3 * k + 1] / u->length_si, u->ldec,
+              r->offsets[3 * k + 2] / u->length_si);
+}
+
+/* The text report. */
+static void print_verify(FILE *txt, const verify_settings *s, const verify_run *r)
+{
+  const cli_inputs *in = &r->in;
+  fprintf(txt, "twistfit %s verify\n", twf_version());
+  fprintf(txt, "model: %s (%s, %zu joints)\n", in->model_path, in->model->name, in->model->n_joints);
+  if (in->data_path)
+    fprintf(txt, "data: %s\n", in->data_path);
+  else
+    fprintf(txt, "data: %s + %s\n", in->joints_path, in->points_path);
+  fprintf(txt, "campaign: %zu poses, %zu measurements\n", in->campaign->n_poses, in->campaign->n_meas);
+  if (r->acc.n_limits > 0)
+    print_verdict(txt, r);
+  print_base_poses(txt, s, r);
+  if (s->base_path == NULL)
+    print_registration(txt, r);
+  print_offsets(txt, r);
+  fputc('\n', txt);
+  cli_print_accuracy(txt, "Accuracy of the model on this campaign", r->summary, in->model, in->campaign, &r->u);
+  cli_print_worst(txt, r->summary, in->campaign, in->model, &r->u);
+  fputc('\n', txt);
+  print_iso9283(txt, r->iso, in->model, in->campaign, &r->u, s->base_path == NULL);
+}
+
+/* With several instrument stations: the base pose at each. */
+static json_t *json_stations(const verify_run *r)
+{
+  json_t *arr = json_array();
+  size_t sta;
+  for (sta = 0; sta < twf_campaign_station_count(r->in.campaign); sta++)
+    json_array_append_new(arr, json_pack("{s:s, s:o}", "name", r->in.campaign->station_names[sta],
+                                         "base_in_instrument", cli_json_pose(&r->base[sta], &r->u)));
+  return arr;
+}
+
+/* The per-measurement errors; NULL when there are none to give. */
+static json_t *json_measurements(const verify_settings *s, const verify_run *r)
+{
+  static const char *const names[1] = { "error" };
+  const double *pe[1] = { r->pos }, *ae[1] = { r->rot };
+  return cli_json_measurements(r->in.campaign, r->in.model, NULL, 1, names, pe, ae,
+                               s->base_path == NULL ? r->excluded : NULL, NULL, 0, &r->u);
+}
+
+/* ISO 9283 orientation AP and RP of each repeated 6-D pose. */
+static json_t *json_iso9283_orientation(const twf_iso9283 *iso, const twf_campaign *c, const cli_units *u)
+{
+  json_t *ori = json_array();
+  size_t k;
+  for (k = 0; k < iso->n_orientation; k++) {
+    const twf_iso9283_orientation *e = &iso->orientation[k];
+    json_array_append_new(ori, json_pack("{s:s, s:I, s:[o,o,o], s:[o,o,o]}", "pose", c->pose_ids[e->first_pose],
+                                         "visits", (json_int_t)e->n, "ap_abc", cli_json_number(e->ap[0] / u->angle_si),
+                                         cli_json_number(e->ap[1] / u->angle_si),
+                                         cli_json_number(e->ap[2] / u->angle_si), "rp_abc",
+                                         cli_json_number(e->rp[0] / u->angle_si),
+                                         cli_json_number(e->rp[1] / u->angle_si),
+                                         cli_json_number(e->rp[2] / u->angle_si)));
+  }
+  return ori;
+}
+
+/* The worst ISO 9283 figures and the cycles they rest on. */
+static json_t *json_iso9283_summary(const twf_iso9283 *iso, const cli_units *u)
+{
+  return json_pack("{s:o, s:o, s:o, s:o, s:I, s:I, s:I}", "ap_p_max", cli_json_number(iso->ap_p_max / u->length_si),
+                   "rp_max", cli_json_number(iso->rp_max / u->length_si), "ap_angle_max",
+                   cli_json_number(iso->ap_angle_max / u->angle_si), "rp_angle_max",
+                   cli_json_number(iso->rp_angle_max / u->angle_si), "min_cycles", (json_int_t)iso->min_cycles,
+                   "max_cycles", (json_int_t)iso->max_cycles, "standard_cycles", (json_int_t)TWF_ISO9283_CYCLES);
+}
+
+/* The set judged, each tolerance set and the verdict (none without
+ * tolerances). */
+static json_t *json_acceptance(const verify_run *r)
+{
+  const cli_units *u = &r->u;
+  json_t *tols = json_object();
+  int i;
+  for (i = 0; i < 4; i++) {
+    const tolerance *t = &r->tol[i];
+    double unit = t->is_angle ? u->angle_si : u->length_si;
+    if (t->limit > 0)
+      json_object_set_new(tols, t->name,
+                          json_pack("{s:o, s:o, s:b}", "limit", cli_json_number(t->limit / unit), "value",
+                                    cli_json_number(t->value / unit), "pass", t->pass));
+  }
+  return json_pack("{s:s, s:o, s:s}", "set", r->acc.set == TWF_SET_CHECK ? "check" : "fit", "tolerances", tols,
+                   "verdict", json_object_size(tols) == 0 ? "none" : r->acc.accepted ? "accepted" : "rejected");
+}
+
+static json_t *json_warnings(const twf_warnings *w)
+{
+  json_t *wa = json_array();
+  size_t k;
+  for (k = 0; k < w->count; k++)
+    json_array_append_new(wa, json_string(w->items[k].message));
+  return wa;
+}
+
+/* The JSON report (--json, and what --html is made from). */
+static json_t *verify_json(const verify_settings *s, const verify_run *r)
+{
+  const cli_inputs *in = &r->in;
+  const cli_units *u = &r->u;
+  json_t *root = json_object(), *meas;
+  char created[64];
+  json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
+  json_object_set_new(root, "command", json_string("verify"));
+  json_object_set_new(root, "created", json_string(cli_created_now(created, sizeof created)));
+  json_object_set_new(root, "inputs", cli_json_inputs(in));
+  json_object_set_new(root, "robot", cli_json_robot(in->model, u));
+  json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u->length, "angle", u->angle));
+  /* base_in_tracker: the older name, kept for existing readers */
+  json_object_set_new(root, "base_in_instrument", cli_json_pose(r->base, u));
+  json_object_set_new(root, "base_in_tracker", cli_json_pose(r->base, u));
+  json_object_set_new(root, "base_source", json_string(s->base_path ? "given" : "registered"));
+  /* several instrument stations: the base pose at each (the members
+   * above are the first station's) */
+  if (twf_campaign_station_count(in->campaign) > 1)
+    json_object_set_new(root, "stations", json_stations(r));
+  json_object_set_new(root, "accuracy", cli_json_accuracy(r->summary, in->model, in->campaign, u));
+  json_object_set_new(root, "iso9283", json_iso9283(r->iso, in->model, in->campaign, u));
+  if ((meas = json_measurements(s, r)) != NULL)
+    json_object_set_new(root, "measurements", meas);
+  json_object_set_new(root, "iso9283_orientation", json_iso9283_orientation(r->iso, in->campaign, u));
+  json_object_set_new(root, "iso9283_summary", json_iso9283_summary(r->iso, u));
+  json_object_set_new(root, "acceptance", json_acceptance(r));
+  json_object_set_new(root, "warnings", json_warnings(&in->warnings));
+  return root;
+}
+
+/* Write --json, --residuals and --html (root: the JSON report, or NULL
+ * without either) as one set, after everything else succeeded; returns
+ * an exit status. */
+static int write_verify_outputs(const verify_settings *s, const verify_run *r, json_t *root)
+{
+  cli_residuals rr;
+  cli_put puts[3];
+  int w;
+  double *weights = NULL;
+  memset(&rr, 0, sizeof rr);
+  rr.m = r->in.model;
+  rr.c = r->in.campaign;
+  rr.pos[0] = r->pos;
+  rr.rot[0] = r->rot;
+  rr.labels[0] = rr.labels[1] = "";
+  rr.u = &r->u;
+  if (s->residuals_path != NULL && s->base_path == NULL) {
+    /* the registration's weight of each fit row: 0 for a gross error */
+    size_t k;
+    weights = malloc(r->in.campaign->n_meas * sizeof *weights);
+    if (weights != NULL)
+      for (k = 0; k < r->in.campaign->n_meas; k++)
+        weights[k] = r->excluded[k] ? 0.0 : 1.0;
+    rr.weights = weights;
+  }
+  puts[0].path = s->json_path;
+  puts[0].put = cli_put_json;
+  puts[0].ctx = root;
+  puts[1].path = s->residuals_path;
+  puts[1].put = cli_put_residuals;
+  puts[1].ctx = &rr;
+  puts[2] = (cli_put){ s->html_path, cli_put_html_run, root };
+  w = cli_write_outputs(puts, 3, s->force, r->in.paths);
+  free(weights);
+  return w;
+}
+
+static int run_verify(int argc, char **argv)
+{
+  verify_settings s;
+  verify_run r;
+  FILE *txt = stdout;
+  json_t *root = NULL;
+  int status, w;
+
+  verify_run_init(&r);
+  if ((status = parse_verify_options(argc, argv, &r.in, &s)) != 0 || s.help_shown)
+    goto done;
+  if ((status = load_verify_inputs(&s, &r, argc, argv, optind)) != 0)
+    goto done;
+  /* with the JSON on standard output, the text report goes to standard error */
+  if (s.json_path != NULL && strcmp(s.json_path, "-") == 0)
     txt = stderr;
-  if (base_path != NULL)
-    cli_inputs_add_path(&in, base_path);
-  {
-    const char *outs[3] = { json_path, residuals_path, html_path };
-    static const char *const names[3] = { "--json", "--residuals", "--html" };
-    if (residuals_path != NULL && strcmp(residuals_path, "-") == 0) {
-      status = cli_usage_error("verify", "--residuals needs a file name");
-      goto done;
-    }
-    if (html_path != NULL && strcmp(html_path, "-") == 0) {
-      status = cli_usage_error("verify", "--html needs a file name");
-      goto done;
-    }
-    if ((status = cli_outputs_check("verify", outs, names, 3, force, in.paths)) != 0)
-      goto done;
-  }
-  if (tol_text[3] != NULL && !in.campaign->has_orientation_any) {
-    status = cli_usage_error("verify", "--tol-angle-max needs 6-D rows (with a quaternion); the campaign has none");
+  if ((status = alloc_verify_arrays(&r)) != 0)
     goto done;
-  }
-  twf_error_clear(&err);
-
-  /* the base pose and the target offsets */
-  excluded = calloc(in.campaign->n_meas, 1);
-  offsets = calloc(3 * (in.model->n_targets ? in.model->n_targets : 1), sizeof *offsets);
-  pos = calloc(3 * in.campaign->n_meas, sizeof *pos);
-  rot = calloc(in.campaign->n_meas, sizeof *rot);
-  if (offsets == NULL || pos == NULL || rot == NULL || excluded == NULL) {
-    status = TWF_EXIT_INTERNAL;
+  status = s.base_path != NULL ? take_given_base(&s, &r) : register_base(&s, &r);
+  if (status != 0)
     goto done;
-  }
-  twf_register_offsets_init(in.model, offsets);
-  if (base_path != NULL) {
-    size_t k;
-    if (cli_read_station_bases(base_path, &in.ropt, in.campaign, base_st, &err) != TWF_OK) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    /* the base pose is in the frame of the model it was fitted with */
-    if ((status = cli_check_same_run("verify", in.model_path, "the model", base_path, "the base pose file",
-                                     allow_mixed, 1)) != 0)
-      goto done;
-    for (k = 0; k < in.campaign->n_meas; k++)
-      if (!in.model->targets[in.campaign->meas[k].target].offset_known) {
-        twf_error_set(&err, TWF_ERR_MISSING, in.model_path, 0, 0,
-                      "give the target an offset in the model, or drop --base to fit it",
-                      "target %s has no offset and --base fits nothing",
-                      in.model->targets[in.campaign->meas[k].target].name);
-        status = cli_report_error(&err);
-        goto done;
-      }
-  } else {
-    twf_register_options ro = twf_register_default_options();
-    size_t k;
-    ro.fit_all_offsets = fit_offsets;
-    if (twf_register_and_refine(in.model, in.campaign, &ro, NULL, base_st, &rrep, excluded, &trace, &err) !=
-        TWF_OK) {
-      cli_hint_options(&err);
-      status = cli_report_error(&err);
-      goto done;
-    }
-    for (k = 0; k < in.model->n_targets; k++)
-      memcpy(offsets + 3 * k, in.model->targets[k].offset, sizeof in.model->targets[k].offset);
-    cli_print_trace(&trace);
-  }
-  if (twf_accuracy_residuals(in.model, base_st, offsets, in.campaign, pos, rot, &err) != TWF_OK ||
-      (summary = twf_accuracy_summarize(in.campaign, in.model->n_targets, pos, rot, (size_t)worst,
-                                        &err)) == NULL) {
-    status = cli_report_error(&err);
+  if ((status = accuracy_figures(&s, &r)) != 0 || (status = iso9283_figures(&s, &r)) != 0)
     goto done;
-  }
-  {
-    twf_iso9283_options io = twf_iso9283_default_options();
-    if (repeat_text != NULL) {
-      double v;
-      if (cli_parse_double(repeat_text, &v) != 0 || v <= 0) {
-        status = cli_usage_error("verify", "--repeat-tol takes a positive number");
-        goto done;
-      }
-      io.joint_tol = v * u.angle_si;
-      io.joint_tol_prismatic = v * u.length_si;
-    }
-    iso = twf_accuracy_iso9283(in.model, base_st, offsets, in.campaign, &io, &err);
-    if (iso == NULL) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-  }
+  if ((status = judge_acceptance(&r)) != 0)
+    goto done;
+  if (r.acc.n_limits > 0 && !r.acc.accepted)
+    status = TWF_EXIT_REJECTED;
 
-  /* acceptance (library): the check set when it has rows */
-  {
-    twf_acceptance_limits lim;
-    twf_acceptance acc;
-    int set;
-    lim.rms_m = tol[0].limit;
-    lim.p95_m = tol[1].limit;
-    lim.max_m = tol[2].limit;
-    lim.angle_max_rad = tol[3].limit;
-    if (twf_accuracy_accept(summary, &lim, &acc, &err) != TWF_OK) {
-      status = cli_report_error(&err);
-      goto done;
-    }
-    set = acc.set;
-    for (i = 0; i < 4; i++) {
-      tol[i].value = acc.value[i];
-      tol[i].pass = acc.pass[i];
-    }
-    if (acc.n_limits > 0 && !acc.accepted)
-      status = TWF_EXIT_REJECTED;
-
-    /* text report */
-    fprintf(txt, "twistfit %s verify\n", twf_version());
-    fprintf(txt, "model: %s (%s, %zu joints)\n", in.model_path, in.model->name, in.model->n_joints);
-    if (in.data_path)
-      fprintf(txt, "data: %s\n", in.data_path);
-    else
-      fprintf(txt, "data: %s + %s\n", in.joints_path, in.points_path);
-    fprintf(txt, "campaign: %zu poses, %zu measurements\n", in.campaign->n_poses, in.campaign->n_meas);
-    if (acc.n_limits > 0) {
-      /* the verdict first */
-      fprintf(txt, "verdict: %s on the %s set\n", acc.accepted ? "ACCEPTED" : "REJECTED",
-              set == TWF_SET_CHECK ? "check" : "fit");
-      for (i = 0; i < 4; i++)
-        if (tol[i].limit > 0)
-          fprintf(txt, "  %-10s %10.*f %s  limit %10.*f  %s\n", tol[i].name,
-                  tol[i].is_angle ? u.adec : u.ldec,
-                  tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si),
-                  tol[i].is_angle ? u.angle : u.length, tol[i].is_angle ? u.adec : u.ldec,
-                  tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si), tol[i].pass ? "PASS" : "FAIL");
-      fputc('\n', txt);
-    }
-    {
-      size_t sta, n_st = twf_campaign_station_count(in.campaign);
-      for (sta = 0; sta < n_st; sta++) {
-        double q[4];
-        char at[TWF_NAME_MAX + 16] = "";
-        const twf_pose *b = &base_st[sta];
-        if (n_st > 1)
-          snprintf(at, sizeof at, " at station %s", in.campaign->station_names[sta]);
-        cli_quat_of(b->R, q);
-        fprintf(txt, "base pose in the instrument frame%s (%s): position %.*f %.*f %.*f %s, quaternion_wxyz %.9f %.9f %.9f %.9f\n",
-                at, base_path ? "given" : "registered", u.ldec, b->p[0] / u.length_si, u.ldec,
-                b->p[1] / u.length_si, u.ldec, b->p[2] / u.length_si, u.length, q[0], q[1], q[2], q[3]);
-      }
-    }
-    if (base_path == NULL) {
-      size_t k, n_ex = rrep.n_excluded;
-      fprintf(txt, "registration: closed form, %u %s with the target offsets%s; refinement %d %s, %s\n",
-              rrep.alternation.iterations, cli_plural(rrep.alternation.iterations, "round", "rounds"),
-              rrep.alternation.converged ? "" : " (not settled)", rrep.refinement.iterations,
-              cli_plural((size_t)rrep.refinement.iterations, "iteration", "iterations"),
-              cli_stop_words(rrep.refinement.stop));
-      if (n_ex > 0) {
-        fprintf(txt, "registration left out %zu fit-set measurement%s as gross error%s (beyond %g robust "
-                     "standard deviations; %s in the figures below):\n", n_ex, n_ex == 1 ? "" : "s",
-                n_ex == 1 ? "" : "s", rrep.robust_threshold, n_ex == 1 ? "it stays" : "they stay");
-        for (k = 0; k < in.campaign->n_meas; k++)
-          if (excluded[k]) {
-            const twf_measurement *ms = &in.campaign->meas[k];
-            char where[TWF_ERROR_TEXT_MAX];
-            cli_meas_where(&in, ms, where, sizeof where);
-            fprintf(txt, "  %s: pose %s target %s: %.*f %s\n", where,
-                    in.campaign->pose_ids[ms->pose], in.model->targets[ms->target].name, u.ldec,
-                    sqrt(pos[3 * k] * pos[3 * k] + pos[3 * k + 1] * pos[3 * k + 1] + pos[3 * k + 2] * pos[3 * k + 2]) /
-                        u.length_si,
-                    u.length);
-          }
-      }
-    }
-    {
-      size_t k;
-      for (k = 0; k < in.model->n_targets; k++)
-        if (in.model->targets[k].offset_known)
-          fprintf(txt, "target %s offset in the flange frame, %s: %.*f %.*f %.*f\n",
-                  in.model->targets[k].name, u.length, u.ldec, offsets[3 * k] / u.length_si, u.ldec,
-                  offsets[3 * k + 1] / u.length_si, u.ldec, offsets[3 * k + 2] / u.length_si);
-    }
-    fputc('\n', txt);
-    cli_print_accuracy(txt, "Accuracy of the model on this campaign", summary, in.model,
-                       in.campaign, &u);
-    cli_print_worst(txt, summary, in.campaign, in.model, &u);
-    fputc('\n', txt);
-    print_iso9283(txt, iso, in.model, in.campaign, &u, base_path == NULL);
-    if (json_path != NULL || html_path != NULL) {
-      json_t *tols = json_object();
-      root = json_object();
-      json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
-      json_object_set_new(root, "command", json_string("verify"));
-      {
-        char created[64];
-        json_object_set_new(root, "created", json_string(cli_created_now(created, sizeof created)));
-      }
-      json_object_set_new(root, "inputs", cli_json_inputs(&in));
-      json_object_set_new(root, "robot", cli_json_robot(in.model, &u));
-      json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u.length, "angle", u.angle));
-      /* base_in_tracker: the older name, kept for existing readers */
-      json_object_set_new(root, "base_in_instrument", cli_json_pose(base, &u));
-      json_object_set_new(root, "base_in_tracker", cli_json_pose(base, &u));
-      json_object_set_new(root, "base_source", json_string(base_path ? "given" : "registered"));
-      if (twf_campaign_station_count(in.campaign) > 1) {
-        /* several instrument stations: the base pose at each (the members
-         * above are the first station's) */
-        json_t *arr = json_array();
-        size_t sta;
-        for (sta = 0; sta < twf_campaign_station_count(in.campaign); sta++)
-          json_array_append_new(arr, json_pack("{s:s, s:o}", "name", in.campaign->station_names[sta],
-                                               "base_in_instrument", cli_json_pose(&base_st[sta], &u)));
-        json_object_set_new(root, "stations", arr);
-      }
-      json_object_set_new(root, "accuracy", cli_json_accuracy(summary, in.model, in.campaign, &u));
-      json_object_set_new(root, "iso9283", json_iso9283(iso, in.model, in.campaign, &u));
-      {
-        static const char *const names[1] = { "error" };
-        const double *pe[1] = { pos }, *ae[1] = { rot };
-        json_t *meas = cli_json_measurements(in.campaign, in.model, NULL, 1, names, pe, ae,
-                                             base_path == NULL ? excluded : NULL, NULL, 0, &u);
-        if (meas != NULL)
-          json_object_set_new(root, "measurements", meas);
-      }
-      {
-        json_t *ori = json_array();
-        size_t k;
-        for (k = 0; k < iso->n_orientation; k++) {
-          const twf_iso9283_orientation *e = &iso->orientation[k];
-          json_array_append_new(ori, json_pack("{s:s, s:I, s:[o,o,o], s:[o,o,o]}", "pose",
-                                               in.campaign->pose_ids[e->first_pose], "visits", (json_int_t)e->n,
-                                               "ap_abc", cli_json_number(e->ap[0] / u.angle_si),
-                                               cli_json_number(e->ap[1] / u.angle_si),
-                                               cli_json_number(e->ap[2] / u.angle_si), "rp_abc",
-                                               cli_json_number(e->rp[0] / u.angle_si),
-                                               cli_json_number(e->rp[1] / u.angle_si),
-                                               cli_json_number(e->rp[2] / u.angle_si)));
-        }
-        json_object_set_new(root, "iso9283_orientation", ori);
-        json_object_set_new(root, "iso9283_summary",
-                            json_pack("{s:o, s:o, s:o, s:o, s:I, s:I, s:I}", "ap_p_max",
-                                      cli_json_number(iso->ap_p_max / u.length_si), "rp_max",
-                                      cli_json_number(iso->rp_max / u.length_si), "ap_angle_max",
-                                      cli_json_number(iso->ap_angle_max / u.angle_si), "rp_angle_max",
-                                      cli_json_number(iso->rp_angle_max / u.angle_si), "min_cycles",
-                                      (json_int_t)iso->min_cycles, "max_cycles", (json_int_t)iso->max_cycles,
-                                      "standard_cycles", (json_int_t)TWF_ISO9283_CYCLES));
-      }
-      for (i = 0; i < 4; i++)
-        if (tol[i].limit > 0)
-          json_object_set_new(tols, tol[i].name,
-                              json_pack("{s:o, s:o, s:b}", "limit",
-                                        cli_json_number(tol[i].limit / (tol[i].is_angle ? u.angle_si : u.length_si)),
-                                        "value",
-                                        cli_json_number(tol[i].value / (tol[i].is_angle ? u.angle_si : u.length_si)),
-                                        "pass", tol[i].pass));
-      json_object_set_new(root, "acceptance",
-                          json_pack("{s:s, s:o, s:s}", "set", set == TWF_SET_CHECK ? "check" : "fit",
-                                    "tolerances", tols, "verdict",
-                                    json_object_size(tols) == 0 ? "none"
-                                    : acc.accepted ? "accepted" : "rejected"));
-      {
-        json_t *wa = json_array();
-        size_t k;
-        for (k = 0; k < in.warnings.count; k++)
-          json_array_append_new(wa, json_string(in.warnings.items[k].message));
-        json_object_set_new(root, "warnings", wa);
-      }
-    }
-    {
-      cli_residuals rr;
-      cli_put puts[3];
-      int w;
-      double *weights = NULL;
-      memset(&rr, 0, sizeof rr);
-      rr.m = in.model;
-      rr.c = in.campaign;
-      rr.pos[0] = pos;
-      rr.rot[0] = rot;
-      rr.labels[0] = rr.labels[1] = "";
-      rr.u = &u;
-      if (residuals_path != NULL && base_path == NULL) {
-        /* the registration's weight of each fit row: 0 for a gross error */
-        size_t k;
-        weights = malloc(in.campaign->n_meas * sizeof *weights);
-        if (weights != NULL)
-          for (k = 0; k < in.campaign->n_meas; k++)
-            weights[k] = excluded[k] ? 0.0 : 1.0;
-        rr.weights = weights;
-      }
-      puts[0].path = json_path;
-      puts[0].put = cli_put_json;
-      puts[0].ctx = root;
-      puts[1].path = residuals_path;
-      puts[1].put = cli_put_residuals;
-      puts[1].ctx = &rr;
-      puts[2] = (cli_put){ html_path, cli_put_html_run, root };
-      w = cli_write_outputs(puts, 3, force, in.paths);
-      free(weights);
-      if (w != 0)
-        status = w;
-    }
-  }
+  /* the outputs only now, all or none, when everything has succeeded */
+  print_verify(txt, &s, &r);
+  if (s.json_path != NULL || s.html_path != NULL)
+    root = verify_json(&s, &r);
+  if ((w = write_verify_outputs(&s, &r, root)) != 0)
+    status = w;
 
 done:
   json_decref(root);
-  twf_iso9283_free(iso);
-  twf_accuracy_summary_free(summary);
-  free(offsets);
-  free(pos);
-  free(rot);
-  free(excluded);
-  twf_trace_clear(&trace);
-  cli_inputs_free(&in);
+  verify_run_free(&r);
   return status;
 }
 

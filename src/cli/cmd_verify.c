@@ -223,6 +223,7 @@ typedef struct verify_run {
   twf_accuracy_summary *summary;
   twf_iso9283 *iso;
   tolerance tol[4];                 /* rms, p95, max, angle-max */
+  double repeat_tol;                /* --repeat-tol in the model's units, 0 when not given */
   twf_acceptance acc;
 } verify_run;
 
@@ -276,6 +277,11 @@ static int load_verify_inputs(const verify_settings *s, verify_run *r, int argc,
         (status = cli_parse_tolerance("verify", tol_opt[i], s->tol_text[i],
                                       r->tol[i].is_angle ? r->u.angle_si : r->u.length_si, &r->tol[i].limit)) != 0)
       return status;
+  /* read with the tolerances, before any work: a bad value is a usage
+   * error of the command line, not of the figures */
+  if (s->repeat_text != NULL &&
+      (cli_parse_double(s->repeat_text, &r->repeat_tol) != 0 || !(r->repeat_tol > 0)))
+    return cli_usage_error("verify", "--repeat-tol takes a positive number");
   if (s->base_path != NULL)
     cli_inputs_add_path(&r->in, s->base_path);
   if ((status = check_verify_outputs(s, &r->in)) != 0)
@@ -358,15 +364,12 @@ static int accuracy_figures(const verify_settings *s, verify_run *r)
 
 /* ISO 9283 AP and RP over the commanded poses that repeat (--repeat-tol:
  * how close joint values are for one pose); returns an exit status. */
-static int iso9283_figures(const verify_settings *s, verify_run *r)
+static int iso9283_figures(verify_run *r)
 {
   twf_iso9283_options io = twf_iso9283_default_options();
-  if (s->repeat_text != NULL) {
-    double v;
-    if (cli_parse_double(s->repeat_text, &v) != 0 || v <= 0)
-      return cli_usage_error("verify", "--repeat-tol takes a positive number");
-    io.joint_tol = v * r->u.angle_si;
-    io.joint_tol_prismatic = v * r->u.length_si;
+  if (r->repeat_tol > 0) {
+    io.joint_tol = r->repeat_tol * r->u.angle_si;
+    io.joint_tol_prismatic = r->repeat_tol * r->u.length_si;
   }
   r->iso = twf_accuracy_iso9283(r->in.model, r->base, r->offsets, r->in.campaign, &io, &r->err);
   if (r->iso == NULL)
@@ -624,10 +627,15 @@ static int write_verify_outputs(const verify_settings *s, const verify_run *r, j
   if (s->residuals_path != NULL && s->base_path == NULL) {
     /* the registration's weight of each fit row: 0 for a gross error */
     size_t k;
-    weights = malloc(r->in.campaign->n_meas * sizeof *weights);
-    if (weights != NULL)
-      for (k = 0; k < r->in.campaign->n_meas; k++)
-        weights[k] = r->excluded[k] ? 0.0 : 1.0;
+    weights = malloc((r->in.campaign->n_meas ? r->in.campaign->n_meas : 1) * sizeof *weights);
+    if (weights == NULL) {
+      /* the file would lack its weight column: nothing rather than less */
+      twf_error e;
+      twf_error_set(&e, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+      return cli_report_error(&e);
+    }
+    for (k = 0; k < r->in.campaign->n_meas; k++)
+      weights[k] = r->excluded[k] ? 0.0 : 1.0;
     rr.weights = weights;
   }
   puts[0].path = s->json_path;
@@ -663,7 +671,7 @@ static int run_verify(int argc, char **argv)
   status = s.base_path != NULL ? take_given_base(&s, &r) : register_base(&s, &r);
   if (status != 0)
     goto done;
-  if ((status = accuracy_figures(&s, &r)) != 0 || (status = iso9283_figures(&s, &r)) != 0)
+  if ((status = accuracy_figures(&s, &r)) != 0 || (status = iso9283_figures(&r)) != 0)
     goto done;
   if ((status = judge_acceptance(&r)) != 0)
     goto done;

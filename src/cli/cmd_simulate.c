@@ -454,6 +454,11 @@ static int read_joints(sim_settings *s, sim_job *j)
     return cli_report_error(&j->err);
   s->so.n_poses = j->joints->n_poses;
   s->so.q = j->joints->q;
+  if (j->joints->n_stations > 0 && s->stations_path == NULL)
+    twf_warnings_add(&j->warnings, s->joints_path, 0, 0,
+                     "the joints file names instrument stations (the first '%s'), but without --stations "
+                     "every pose is measured from the one base pose and the campaign has no station column",
+                     j->joints->station_names[0]);
   return 0;
 }
 

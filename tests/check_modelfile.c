@@ -824,6 +824,33 @@ START_TEST(test_size_limit)
 }
 END_TEST
 
+/* The chain options of a URDF robot given for a model file: the model
+ * is read as without them, with a warning that they do not apply. */
+START_TEST(test_urdf_options_on_a_model_file_warn)
+{
+  twf_read_options o = twf_read_default_options();
+  twf_warnings w;
+  twf_model *m;
+  twf_error err;
+  size_t i, n = 0;
+  twf_warnings_init(&w);
+  m = twf_model_read_with(sample_path("tf6s"), &o, &w, NULL, &err);
+  ck_assert_ptr_nonnull(m);
+  for (i = 0; i < w.count; i++)
+    n += strstr(w.items[i].message, "not a URDF robot") != NULL;
+  ck_assert_uint_eq(n, 0);
+  twf_model_free(m);
+  o.urdf_tip_link = "tool0";
+  m = twf_model_read_with(sample_path("tf6s"), &o, &w, NULL, &err);
+  ck_assert_ptr_nonnull(m);
+  for (i = 0; i < w.count; i++)
+    n += strstr(w.items[i].message, "not a URDF robot") != NULL;
+  ck_assert_uint_eq(n, 1);
+  twf_model_free(m);
+  twf_warnings_clear(&w);
+}
+END_TEST
+
 /* twf_model_read_with hands out the size and SHA-256 of the bytes it
  * parsed (reference: Python's hashlib); nothing on failure. */
 START_TEST(test_input_digest)
@@ -1375,6 +1402,7 @@ static Suite *modelfile_suite(void)
   tcase_add_test(tc, test_long_names_and_limit_line);
   tcase_add_test(tc, test_endless_line_stops);
   tcase_add_test(tc, test_size_limit);
+  tcase_add_test(tc, test_urdf_options_on_a_model_file_warn);
   tcase_add_test(tc, test_input_digest);
   tcase_add_test(tc, test_many_asbuilt_keys);
   tcase_add_test(tc, test_units);

@@ -40,7 +40,8 @@ typedef struct twf_read_options {
   /* A URDF file (twf_model_read reads one when the name ends in .urdf or
    * a regular file's first non-blank character is '<', through
    * twf_model_read_urdf): the base and tip links of the chain; NULL (the
-   * default) for the root and the one tip. Model files ignore them. */
+   * default) for the root and the one tip. Model files ignore them, with
+   * a warning. */
   const char *urdf_base_link;
   const char *urdf_tip_link;
   /* The links fixed to the tip that become targets, as

@@ -339,6 +339,13 @@ twf_model *twf_model_read_with(const char *path, const twf_read_options *opt,
     m = twf_urdf_read_model(path, &u, warnings, digest, err);
   } else {
     m = read_model(path, opt, warnings, digest, err);
+    /* the chain of a URDF robot asked for, and a model file given: say
+     * that the choice did nothing rather than ignore it */
+    if (m != NULL && opt != NULL &&
+        (opt->urdf_base_link != NULL || opt->urdf_tip_link != NULL || opt->urdf_n_target_links > 0))
+      twf_warnings_add(warnings, path, 0, 0,
+                       "a model file, not a URDF robot: the base link, tip link and target links chosen "
+                       "for a URDF chain do not apply to it");
   }
   twf_io_c_locale_leave(&loc);
   return m;

@@ -346,127 +346,226 @@ static int check_outputs(plan_settings *s)
   return cli_outputs_check("plan", outputs, names, 2, s->force, s->inputs);
 }
 
+/* What a run reads and makes; plan_job_free releases it. The plan
+ * options in the settings point into it (stations, boxes, pool), so it
+ * stays where it was made. */
+typedef struct plan_job {
+  twf_model *model;
+  cli_units u;                       /* MODEL's */
+  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
+  double instruments[3 * TWF_STATIONS_MAX];
+  double box_lo[MAX_BOXES][64], box_hi[MAX_BOXES][64];
+  twf_keepout boxes[MAX_BOXES];
+  twf_campaign *pool;                /* the --pool file, or NULL */
+  twf_plan_result *res;
+  twf_warnings warnings;
+  twf_error err;
+} plan_job;
+
+static void plan_job_init(plan_job *j)
+{
+  j->model = NULL;
+  j->pool = NULL;
+  j->res = NULL;
+  twf_warnings_init(&j->warnings);
+  twf_error_clear(&j->err);
+}
+
+static void plan_job_free(plan_job *j)
+{
+  twf_plan_result_free(j->res);
+  twf_campaign_free(j->pool);
+  twf_model_free(j->model);
+  twf_warnings_clear(&j->warnings);
+}
+
+/* A reader or the planner failed: what it warned of, then the error. */
+static int report_failure(const plan_job *j)
+{
+  cli_print_warnings(&j->warnings);
+  return cli_report_error(&j->err);
+}
+
+/* MODEL, then the measurement options that need it. */
+static int read_model(plan_settings *s, plan_job *j)
+{
+  int status;
+  j->model = twf_model_read_with(s->model_path, &s->ropt, &j->warnings, NULL, &j->err);
+  if (j->model == NULL)
+    return report_failure(j);
+  if (j->model->n_joints > 64) /* the room of box_lo and box_hi */
+    return cli_usage_error("plan", "at most 64 joints");
+  cli_units_of(&j->u, j->model);
+  if ((status = pcli_measure_resolve(&s->me, "plan", j->model)) != 0)
+    return status;
+  s->po.assess = s->me.opt;
+  s->po.seed = s->me.opt.calib.seed;
+  return 0;
+}
+
+/* --range-min and --range-max in MODEL's length unit. */
+static int parse_range(plan_settings *s, const plan_job *j)
+{
+  const cli_units *u = &j->u;
+  int status;
+  if (s->rmin != NULL && (status = cli_parse_bounded("plan", "--range-min", s->rmin, u->length_si, u->length, 0.0,
+                                                     1e3, &s->po.range_min)) != 0)
+    return status;
+  if (s->rmax != NULL && (status = cli_parse_bounded("plan", "--range-max", s->rmax, u->length_si, u->length, 1e-3,
+                                                     1e3, &s->po.range_max)) != 0)
+    return status;
+  if (!(s->po.range_max > s->po.range_min))
+    return cli_usage_error("plan", "--range-max must exceed --range-min");
+  return 0;
+}
+
+/* --acceptance in MODEL's angle unit and --target-axis: the cone the
+ * targets see the instrument in. */
+static int parse_acceptance(plan_settings *s, const plan_job *j)
+{
+  const cli_units *u = &j->u;
+  const double *axis = s->po.target_axis;
+  int status;
+  if (s->accept != NULL && (status = cli_parse_bounded("plan", "--acceptance", s->accept, u->angle_si, u->angle,
+                                                       1e-6, 3.14159265358979323846, &s->po.acceptance_rad)) != 0)
+    return status;
+  if (s->axis != NULL) {
+    if ((status = pcli_parse_vector("plan", "--target-axis", s->axis, 1.0, s->po.target_axis)) != 0)
+      return status;
+    if (!(axis[0] != 0 || axis[1] != 0 || axis[2] != 0))
+      return cli_usage_error("plan", "--target-axis must not be zero");
+  }
+  return 0;
+}
+
+/* The --keep-out boxes, in MODEL's joints and units. */
+static int parse_boxes(plan_settings *s, plan_job *j)
+{
+  size_t b;
+  int status;
+  for (b = 0; b < s->n_boxes; b++) {
+    if ((status = parse_box(j->model, &j->u, s->boxes_text[b], j->box_lo[b], j->box_hi[b])) != 0)
+      return status;
+    j->boxes[b].lo = j->box_lo[b];
+    j->boxes[b].hi = j->box_hi[b];
+  }
+  s->po.keepout = j->boxes;
+  s->po.n_keepout = s->n_boxes;
+  return 0;
+}
+
+/* The constraints that need MODEL (its units, its joints), in the order
+ * their errors are reported. */
+static int parse_constraints(plan_settings *s, plan_job *j)
+{
+  int status;
+  if ((status = parse_instruments(s->instrument_text, s->n_instruments, &j->u, j->station_names, j->instruments,
+                                  &s->po)) != 0 ||
+      (status = parse_range(s, j)) != 0 || (status = parse_acceptance(s, j)) != 0 ||
+      (status = parse_boxes(s, j)) != 0)
+    return status;
+  return 0;
+}
+
+/* The --pool file's poses replace the drawn candidates. */
+static int read_pool(plan_settings *s, plan_job *j)
+{
+  if (s->pool_path == NULL)
+    return 0;
+  j->pool = twf_campaign_read_joints(s->pool_path, j->model, &s->copt, &j->warnings, &j->err);
+  if (j->pool == NULL)
+    return report_failure(j);
+  s->po.pool = j->pool->q;
+  s->po.n_pool = j->pool->n_poses;
+  return 0;
+}
+
+/* The poses chosen and ordered, with the assessment of the set. */
+static int make_plan(const plan_settings *s, plan_job *j)
+{
+  if (twf_plan(j->model, &s->po, &j->res, &j->warnings, &j->err) != TWF_OK)
+    return report_failure(j);
+  return 0;
+}
+
+/* The report goes to standard error when standard output carries the
+ * poses or the JSON. */
+static FILE *report_stream(const plan_settings *s)
+{
+  const char *output = s->output, *json = s->me.json;
+  return output == NULL || strcmp(output, "-") == 0 || (json && strcmp(json, "-") == 0) ? stderr : stdout;
+}
+
+/* The text report: the plan, the assessment of the chosen set, then the
+ * warnings of the run. */
+static void print_report(FILE *text, const plan_settings *s, const plan_job *j)
+{
+  const twf_model *model = j->model;
+  fprintf(text, "twistfit %s plan: %s, %zu joints\n", twf_version(), model->name, model->n_joints);
+  print_plan(text, j->res, &s->po, model, &j->u, (const char (*)[TWF_NAME_MAX])j->station_names);
+  pcli_print_assessment(text, j->res->assessment, model, &s->po.assess, &j->u);
+  cli_print_warnings(&j->warnings);
+}
+
+/* The poses (standard output unless -o) and the JSON, written together
+ * (or none). */
+static int write_outputs(const plan_settings *s, const plan_job *j)
+{
+  const twf_model *model = j->model;
+  const twf_plan_result *res = j->res;
+  pcli_joints pj;
+  cli_put puts[2];
+  char comment[256];
+  json_t *root = NULL;
+  int status;
+  snprintf(comment, sizeof comment, "Poses planned by twistfit plan (criterion %s, seed %llu) for %s",
+           twf_plan_criterion_name(s->po.criterion), s->po.seed, model->name);
+  pj.m = model;
+  pj.q = res->q;
+  pj.n = res->n;
+  pj.id_prefix = "P";
+  pj.ids = j->pool != NULL ? (const char (*)[TWF_NAME_MAX])j->pool->pose_ids : NULL;
+  pj.id_index = res->candidate;
+  pj.length_unit = s->copt.length_from_caller ? s->copt.length_unit : model->length_unit;
+  pj.angle_unit = s->copt.angle_from_caller ? s->copt.angle_unit : model->angle_unit;
+  pj.comment = comment;
+  pj.station = res->station;
+  pj.station_names = (const char (*)[TWF_NAME_MAX])j->station_names;
+  if (s->me.json != NULL)
+    root = plan_json(res, &s->po, model, &j->u);
+  puts[0] = (cli_put){ s->output != NULL ? s->output : "-", pcli_put_joints, &pj };
+  puts[1] = (cli_put){ s->me.json, cli_put_json, root };
+  status = cli_write_outputs(puts, 2, s->force, s->inputs);
+  json_decref(root);
+  return status;
+}
+
+/* A run whose options are checked: MODEL and the constraints in its
+ * units, the pool, the plan; the report and the outputs only when all of
+ * them succeeded. */
+static int plan_and_write(plan_settings *s)
+{
+  plan_job j;
+  int status;
+  plan_job_init(&j);
+  if ((status = read_model(s, &j)) == 0 && (status = parse_constraints(s, &j)) == 0 &&
+      (status = read_pool(s, &j)) == 0 && (status = make_plan(s, &j)) == 0) {
+    print_report(report_stream(s), s, &j);
+    status = write_outputs(s, &j);
+  }
+  plan_job_free(&j);
+  return status;
+}
+
 static int run_plan(int argc, char **argv)
 {
   plan_settings s;
-  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
-  double instruments[3 * TWF_STATIONS_MAX];
-  size_t b;
   int status;
-  double box_lo[MAX_BOXES][64], box_hi[MAX_BOXES][64];
-  twf_keepout boxes[MAX_BOXES];
-  twf_model *model = NULL;
-  twf_campaign *pool = NULL;
-  twf_plan_result *res = NULL;
-  twf_warnings warnings;
-  twf_error err;
-  json_t *root = NULL;
-  cli_units u;
 
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
-  if ((status = parse_options(argc, argv, &s)) != 0 || s.help_shown)
-    goto done;
-  if ((status = check_settings(&s)) != 0 || (status = check_outputs(&s)) != 0)
-    goto done;
-  model = twf_model_read_with(s.inputs[0], &s.ropt, &warnings, NULL, &err);
-  if (model == NULL) {
-    cli_print_warnings(&warnings);
-    status = cli_report_error(&err);
-    goto done;
-  }
-  if (model->n_joints > 64) {
-    status = cli_usage_error("plan", "at most 64 joints");
-    goto done;
-  }
-  cli_units_of(&u, model);
-  if ((status = pcli_measure_resolve(&s.me, "plan", model)) != 0)
-    goto done;
-  s.po.assess = s.me.opt;
-  s.po.seed = s.me.opt.calib.seed;
-  if ((status = parse_instruments(s.instrument_text, s.n_instruments, &u, station_names, instruments, &s.po)) != 0)
-    goto done;
-  if (s.rmin != NULL && (status = cli_parse_bounded("plan", "--range-min", s.rmin, u.length_si, u.length, 0.0, 1e3,
-                                                    &s.po.range_min)) != 0)
-    goto done;
-  if (s.rmax != NULL && (status = cli_parse_bounded("plan", "--range-max", s.rmax, u.length_si, u.length, 1e-3, 1e3,
-                                                    &s.po.range_max)) != 0)
-    goto done;
-  if (!(s.po.range_max > s.po.range_min)) {
-    status = cli_usage_error("plan", "--range-max must exceed --range-min");
-    goto done;
-  }
-  if (s.accept != NULL && (status = cli_parse_bounded("plan", "--acceptance", s.accept, u.angle_si, u.angle, 1e-6,
-                                                      3.14159265358979323846, &s.po.acceptance_rad)) != 0)
-    goto done;
-  if (s.axis != NULL) {
-    if ((status = pcli_parse_vector("plan", "--target-axis", s.axis, 1.0, s.po.target_axis)) != 0)
-      goto done;
-    if (!(s.po.target_axis[0] != 0 || s.po.target_axis[1] != 0 || s.po.target_axis[2] != 0)) {
-      status = cli_usage_error("plan", "--target-axis must not be zero");
-      goto done;
-    }
-  }
-  for (b = 0; b < s.n_boxes; b++) {
-    if ((status = parse_box(model, &u, s.boxes_text[b], box_lo[b], box_hi[b])) != 0)
-      goto done;
-    boxes[b].lo = box_lo[b];
-    boxes[b].hi = box_hi[b];
-  }
-  s.po.keepout = boxes;
-  s.po.n_keepout = s.n_boxes;
-  if (s.pool_path != NULL) {
-    pool = twf_campaign_read_joints(s.pool_path, model, &s.copt, &warnings, &err);
-    if (pool == NULL) {
-      cli_print_warnings(&warnings);
-      status = cli_report_error(&err);
-      goto done;
-    }
-    s.po.pool = pool->q;
-    s.po.n_pool = pool->n_poses;
-  }
-  if (twf_plan(model, &s.po, &res, &warnings, &err) != TWF_OK) {
-    cli_print_warnings(&warnings);
-    status = cli_report_error(&err);
-    goto done;
-  }
-  {
-    FILE *text =
-      s.output == NULL || strcmp(s.output, "-") == 0 || (s.me.json && strcmp(s.me.json, "-") == 0) ? stderr : stdout;
-    pcli_joints pj;
-    cli_put puts[2];
-    char comment[256];
-    snprintf(comment, sizeof comment, "Poses planned by twistfit plan (criterion %s, seed %llu) for %s",
-             twf_plan_criterion_name(s.po.criterion), s.po.seed, model->name);
-    fprintf(text, "twistfit %s plan: %s, %zu joints\n", twf_version(), model->name, model->n_joints);
-    print_plan(text, res, &s.po, model, &u, (const char (*)[TWF_NAME_MAX])station_names);
-    pcli_print_assessment(text, res->assessment, model, &s.po.assess, &u);
-    cli_print_warnings(&warnings);
-    pj.m = model;
-    pj.q = res->q;
-    pj.n = res->n;
-    pj.id_prefix = "P";
-    pj.ids = pool != NULL ? (const char (*)[TWF_NAME_MAX])pool->pose_ids : NULL;
-    pj.id_index = res->candidate;
-    pj.length_unit = s.copt.length_from_caller ? s.copt.length_unit : model->length_unit;
-    pj.angle_unit = s.copt.angle_from_caller ? s.copt.angle_unit : model->angle_unit;
-    pj.comment = comment;
-    pj.station = res->station;
-    pj.station_names = (const char (*)[TWF_NAME_MAX])station_names;
-    if (s.me.json != NULL)
-      root = plan_json(res, &s.po, model, &u);
-    puts[0] = (cli_put){ s.output != NULL ? s.output : "-", pcli_put_joints, &pj };
-    puts[1] = (cli_put){ s.me.json, cli_put_json, root };
-    status = cli_write_outputs(puts, 2, s.force, s.inputs);
-  }
-
-done:
-  json_decref(root);
-  twf_plan_result_free(res);
-  twf_campaign_free(pool);
-  twf_model_free(model);
+  if ((status = parse_options(argc, argv, &s)) == 0 && !s.help_shown && (status = check_settings(&s)) == 0 &&
+      (status = check_outputs(&s)) == 0)
+    status = plan_and_write(&s);
   pcli_measure_free(&s.me);
-  twf_warnings_clear(&warnings);
   return status;
 }
 

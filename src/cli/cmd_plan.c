@@ -189,251 +189,383 @@ static json_t *plan_json(const twf_plan_result *res, const twf_plan_options *po,
   return root;
 }
 
-static int run_plan(int argc, char **argv)
-{
-  static const struct option longopts[] = {
-    PCLI_MEASURE_LONGOPTS,
-    { "count", required_argument, NULL, OPT_COUNT },
-    { "output", required_argument, NULL, 'o' },
-    { "criterion", required_argument, NULL, OPT_CRITERION },
-    { "candidates", required_argument, NULL, OPT_CANDIDATES },
-    { "pool", required_argument, NULL, OPT_POOL },
-    { "limit-margin", required_argument, NULL, OPT_MARGIN },
-    { "instrument", required_argument, NULL, OPT_INSTRUMENT },
-    { "range-min", required_argument, NULL, OPT_RMIN },
-    { "range-max", required_argument, NULL, OPT_RMAX },
-    { "acceptance", required_argument, NULL, OPT_ACCEPT },
-    { "target-axis", required_argument, NULL, OPT_AXIS },
-    { "keep-out", required_argument, NULL, OPT_KEEPOUT },
-    { "excursions", required_argument, NULL, OPT_EXCURSIONS },
-    { "length-unit", required_argument, NULL, OPT_LUNIT },
-    { "angle-unit", required_argument, NULL, OPT_AUNIT },
-    { "force", no_argument, NULL, 'f' },
-    CLI_URDF_LONGOPTS,
-    { "help", no_argument, NULL, 'h' },
-    { NULL, 0, NULL, 0 }
-  };
-  static const char *const names[2] = { "--output", "--json" };
-  pcli_measure me;
-  twf_plan_options po = twf_plan_default_options();
-  twf_campaign_options copt = twf_campaign_default_options();
-  const char *output = NULL, *pool_path = NULL, *instrument = NULL, *rmin = NULL, *rmax = NULL;
-  const char *instrument_text[TWF_STATIONS_MAX];
-  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
-  double instruments[3 * TWF_STATIONS_MAX];
-  size_t n_instruments = 0;
-  const char *accept = NULL, *axis = NULL, *boxes_text[MAX_BOXES];
-  const char *inputs[3] = { NULL, NULL, NULL }, *outputs[2];
-  size_t n_boxes = 0, b;
-  int force = 0, opt, status = TWF_EXIT_OK, have_count = 0;
-  double box_lo[MAX_BOXES][64], box_hi[MAX_BOXES][64];
-  twf_keepout boxes[MAX_BOXES];
-  twf_model *model = NULL;
-  twf_campaign *pool = NULL;
-  twf_plan_result *res = NULL;
-  twf_warnings warnings;
-  twf_read_options ropt = twf_read_default_options();
-  cli_urdf_links urdf_links = { { NULL }, 0 };
-  twf_error err;
-  json_t *root = NULL;
-  cli_units u;
+static const struct option plan_longopts[] = {
+  PCLI_MEASURE_LONGOPTS,
+  { "count", required_argument, NULL, OPT_COUNT },
+  { "output", required_argument, NULL, 'o' },
+  { "criterion", required_argument, NULL, OPT_CRITERION },
+  { "candidates", required_argument, NULL, OPT_CANDIDATES },
+  { "pool", required_argument, NULL, OPT_POOL },
+  { "limit-margin", required_argument, NULL, OPT_MARGIN },
+  { "instrument", required_argument, NULL, OPT_INSTRUMENT },
+  { "range-min", required_argument, NULL, OPT_RMIN },
+  { "range-max", required_argument, NULL, OPT_RMAX },
+  { "acceptance", required_argument, NULL, OPT_ACCEPT },
+  { "target-axis", required_argument, NULL, OPT_AXIS },
+  { "keep-out", required_argument, NULL, OPT_KEEPOUT },
+  { "excursions", required_argument, NULL, OPT_EXCURSIONS },
+  { "length-unit", required_argument, NULL, OPT_LUNIT },
+  { "angle-unit", required_argument, NULL, OPT_AUNIT },
+  { "force", no_argument, NULL, 'f' },
+  CLI_URDF_LONGOPTS,
+  { "help", no_argument, NULL, 'h' },
+  { NULL, 0, NULL, 0 }
+};
 
-  pcli_measure_init(&me);
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
+/* The command's settings as the options give them. What is in MODEL's
+ * units or names its joints (--range-min, --range-max, --acceptance,
+ * --instrument, --keep-out) stays text until MODEL is read; po is
+ * completed by the loading steps. */
+typedef struct plan_settings {
+  const char *model_path, *output, *pool_path;
+  const char *rmin, *rmax, *accept, *axis;
+  const char *instrument_text[TWF_STATIONS_MAX];
+  size_t n_instruments;
+  const char *boxes_text[MAX_BOXES];
+  size_t n_boxes;
+  const char *inputs[3];      /* MODEL, the pool; NULL-terminated */
+  int force, have_count;
+  int help_shown;             /* -h: the help is printed, nothing else to do */
+  pcli_measure me;            /* the measurement options and --json; pcli_measure_free */
+  twf_plan_options po;
+  twf_campaign_options copt;  /* the units of --pool and of the output */
+  twf_read_options ropt;
+  cli_urdf_links urdf_links;  /* the --target-link names that ropt points to */
+} plan_settings;
+
+static void plan_settings_init(plan_settings *s)
+{
+  memset(s, 0, sizeof *s);
+  pcli_measure_init(&s->me);
+  s->po = twf_plan_default_options();
+  s->copt = twf_campaign_default_options();
+  s->ropt = twf_read_default_options();
+  s->urdf_links = (cli_urdf_links){ { NULL }, 0 };
+}
+
+/* One option of getopt_long into s: 0, or the exit status of a bad one. */
+static int take_option(plan_settings *s, int opt, char *arg, char **argv)
+{
+  int status;
+  if (pcli_measure_option(&s->me, "plan", opt, arg, &status))
+    return status;
+  switch (opt) {
+  case OPT_COUNT:
+    if ((status = pcli_parse_count("plan", "--count", arg, 1, 100000, &s->po.count)) != 0)
+      return status;
+    s->have_count = 1;
+    break;
+  case 'o': s->output = arg; break;
+  case OPT_CRITERION:
+    if (twf_plan_criterion_parse(arg, &s->po.criterion) != TWF_OK)
+      return cli_usage_error("plan", "--criterion takes workspace, d or o4, not '%s'", arg);
+    break;
+  case OPT_CANDIDATES:
+    return pcli_parse_count("plan", "--candidates", arg, 1, 10000000, &s->po.n_candidates);
+  case OPT_POOL: s->pool_path = arg; break;
+  case OPT_MARGIN:
+    return pcli_parse_fraction("plan", "--limit-margin", arg, 0.0, 0.45, &s->po.limit_margin);
+  case OPT_INSTRUMENT:
+    if (s->n_instruments == TWF_STATIONS_MAX)
+      return cli_usage_error("plan", "at most %d instrument stations", TWF_STATIONS_MAX);
+    s->instrument_text[s->n_instruments++] = arg;
+    break;
+  case OPT_RMIN: s->rmin = arg; break;
+  case OPT_RMAX: s->rmax = arg; break;
+  case OPT_ACCEPT: s->accept = arg; break;
+  case OPT_AXIS: s->axis = arg; break;
+  case OPT_KEEPOUT:
+    if (s->n_boxes == MAX_BOXES)
+      return cli_usage_error("plan", "at most %d --keep-out boxes", MAX_BOXES);
+    s->boxes_text[s->n_boxes++] = arg;
+    break;
+  case OPT_EXCURSIONS:
+    return pcli_parse_count("plan", "--excursions", arg, 0, 100000, &s->po.excursions);
+  case OPT_LUNIT:
+    if ((status = cli_parse_length_unit("plan", arg, &s->copt.length_unit)) != 0)
+      return status;
+    s->copt.length_from_caller = 1;
+    break;
+  case OPT_AUNIT:
+    if ((status = cli_parse_angle_unit("plan", arg, &s->copt.angle_unit)) != 0)
+      return status;
+    s->copt.angle_from_caller = 1;
+    break;
+  case 'f': s->force = 1; break;
+  case CLI_OPT_BASE_LINK:
+  case CLI_OPT_TIP_LINK:
+  case CLI_OPT_TARGET_LINK: return cli_urdf_longopt("plan", opt, arg, &s->urdf_links, &s->ropt);
+  case 'h': fputs(plan_help, stdout); s->help_shown = 1; break;
+  default: return cli_bad_option("plan", opt, argv);
+  }
+  return 0;
+}
+
+/* The command line into s (MODEL is the one operand): 0, or the exit
+ * status of a usage error; s->help_shown after -h. s is initialised
+ * first whatever happens, so pcli_measure_free(&s->me) always applies. */
+static int parse_options(int argc, char **argv, plan_settings *s)
+{
+  int opt, status;
+  plan_settings_init(s);
   optind = 0;
   opterr = 0;
-  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
-    if (pcli_measure_option(&me, "plan", opt, optarg, &status)) {
-      if (status != 0)
-        goto done;
-      continue;
-    }
-    switch (opt) {
-    case OPT_COUNT:
-      if ((status = pcli_parse_count("plan", "--count", optarg, 1, 100000, &po.count)) != 0)
-        goto done;
-      have_count = 1;
-      break;
-    case 'o': output = optarg; break;
-    case OPT_CRITERION:
-      if (twf_plan_criterion_parse(optarg, &po.criterion) != TWF_OK) {
-        status = cli_usage_error("plan", "--criterion takes workspace, d or o4, not '%s'", optarg);
-        goto done;
-      }
-      break;
-    case OPT_CANDIDATES:
-      if ((status = pcli_parse_count("plan", "--candidates", optarg, 1, 10000000, &po.n_candidates)) != 0)
-        goto done;
-      break;
-    case OPT_POOL: pool_path = optarg; break;
-    case OPT_MARGIN:
-      if ((status = pcli_parse_fraction("plan", "--limit-margin", optarg, 0.0, 0.45, &po.limit_margin)) != 0)
-        goto done;
-      break;
-    case OPT_INSTRUMENT:
-      if (n_instruments == TWF_STATIONS_MAX) {
-        status = cli_usage_error("plan", "at most %d instrument stations", TWF_STATIONS_MAX);
-        goto done;
-      }
-      instrument = instrument_text[n_instruments++] = optarg;
-      break;
-    case OPT_RMIN: rmin = optarg; break;
-    case OPT_RMAX: rmax = optarg; break;
-    case OPT_ACCEPT: accept = optarg; break;
-    case OPT_AXIS: axis = optarg; break;
-    case OPT_KEEPOUT:
-      if (n_boxes == MAX_BOXES) {
-        status = cli_usage_error("plan", "at most %d --keep-out boxes", MAX_BOXES);
-        goto done;
-      }
-      boxes_text[n_boxes++] = optarg;
-      break;
-    case OPT_EXCURSIONS:
-      if ((status = pcli_parse_count("plan", "--excursions", optarg, 0, 100000, &po.excursions)) != 0)
-        goto done;
-      break;
-    case OPT_LUNIT:
-      if ((status = cli_parse_length_unit("plan", optarg, &copt.length_unit)) != 0)
-        goto done;
-      copt.length_from_caller = 1;
-      break;
-    case OPT_AUNIT:
-      if ((status = cli_parse_angle_unit("plan", optarg, &copt.angle_unit)) != 0)
-        goto done;
-      copt.angle_from_caller = 1;
-      break;
-    case 'f': force = 1; break;
-    case CLI_OPT_BASE_LINK:
-    case CLI_OPT_TIP_LINK:
-    case CLI_OPT_TARGET_LINK:
-      if ((status = cli_urdf_longopt("plan", opt, optarg, &urdf_links, &ropt)) != 0)
-        goto done;
-      break;
-    case 'h': fputs(plan_help, stdout); goto done;
-    default: status = cli_bad_option("plan", opt, argv); goto done;
-    }
-  }
-  if (argc - optind != 1) {
-    status = cli_usage_error("plan", "expected one MODEL");
-    goto done;
-  }
-  if (!have_count) {
-    status = cli_usage_error("plan", "give the number of poses with --count N");
-    goto done;
-  }
-  if ((rmin || rmax || accept) && instrument == NULL) {
-    status = cli_usage_error("plan", "--range-min, --range-max and --acceptance need --instrument");
-    goto done;
-  }
-  if ((output == NULL || strcmp(output, "-") == 0) && me.json != NULL && strcmp(me.json, "-") == 0) {
-    status = cli_usage_error("plan", "the poses and the JSON cannot both go to standard output");
-    goto done;
-  }
-  inputs[0] = argv[optind];
-  inputs[1] = pool_path;
-  outputs[0] = output;
-  outputs[1] = me.json;
-  if ((status = cli_outputs_check("plan", outputs, names, 2, force, inputs)) != 0)
-    goto done;
-  model = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err);
-  if (model == NULL) {
-    cli_print_warnings(&warnings);
-    status = cli_report_error(&err);
-    goto done;
-  }
-  if (model->n_joints > 64) {
-    status = cli_usage_error("plan", "at most 64 joints");
-    goto done;
-  }
-  cli_units_of(&u, model);
-  if ((status = pcli_measure_resolve(&me, "plan", model)) != 0)
-    goto done;
-  po.assess = me.opt;
-  po.seed = me.opt.calib.seed;
-  if ((status = parse_instruments(instrument_text, n_instruments, &u, station_names, instruments, &po)) != 0)
-    goto done;
-  if (rmin != NULL && (status = cli_parse_bounded("plan", "--range-min", rmin, u.length_si, u.length, 0.0, 1e3,
-                                                  &po.range_min)) != 0)
-    goto done;
-  if (rmax != NULL && (status = cli_parse_bounded("plan", "--range-max", rmax, u.length_si, u.length, 1e-3, 1e3,
-                                                  &po.range_max)) != 0)
-    goto done;
-  if (!(po.range_max > po.range_min)) {
-    status = cli_usage_error("plan", "--range-max must exceed --range-min");
-    goto done;
-  }
-  if (accept != NULL && (status = cli_parse_bounded("plan", "--acceptance", accept, u.angle_si, u.angle, 1e-6,
-                                                    3.14159265358979323846, &po.acceptance_rad)) != 0)
-    goto done;
-  if (axis != NULL) {
-    if ((status = pcli_parse_vector("plan", "--target-axis", axis, 1.0, po.target_axis)) != 0)
-      goto done;
-    if (!(po.target_axis[0] != 0 || po.target_axis[1] != 0 || po.target_axis[2] != 0)) {
-      status = cli_usage_error("plan", "--target-axis must not be zero");
-      goto done;
-    }
-  }
-  for (b = 0; b < n_boxes; b++) {
-    if ((status = parse_box(model, &u, boxes_text[b], box_lo[b], box_hi[b])) != 0)
-      goto done;
-    boxes[b].lo = box_lo[b];
-    boxes[b].hi = box_hi[b];
-  }
-  po.keepout = boxes;
-  po.n_keepout = n_boxes;
-  if (pool_path != NULL) {
-    pool = twf_campaign_read_joints(pool_path, model, &copt, &warnings, &err);
-    if (pool == NULL) {
-      cli_print_warnings(&warnings);
-      status = cli_report_error(&err);
-      goto done;
-    }
-    po.pool = pool->q;
-    po.n_pool = pool->n_poses;
-  }
-  if (twf_plan(model, &po, &res, &warnings, &err) != TWF_OK) {
-    cli_print_warnings(&warnings);
-    status = cli_report_error(&err);
-    goto done;
-  }
-  {
-    FILE *text = output == NULL || strcmp(output, "-") == 0 || (me.json && strcmp(me.json, "-") == 0) ? stderr
-                                                                                                    : stdout;
-    pcli_joints pj;
-    cli_put puts[2];
-    char comment[256];
-    snprintf(comment, sizeof comment, "Poses planned by twistfit plan (criterion %s, seed %llu) for %s",
-             twf_plan_criterion_name(po.criterion), po.seed, model->name);
-    fprintf(text, "twistfit %s plan: %s, %zu joints\n", twf_version(), model->name, model->n_joints);
-    print_plan(text, res, &po, model, &u, (const char (*)[TWF_NAME_MAX])station_names);
-    pcli_print_assessment(text, res->assessment, model, &po.assess, &u);
-    cli_print_warnings(&warnings);
-    pj.m = model;
-    pj.q = res->q;
-    pj.n = res->n;
-    pj.id_prefix = "P";
-    pj.ids = pool != NULL ? (const char (*)[TWF_NAME_MAX])pool->pose_ids : NULL;
-    pj.id_index = res->candidate;
-    pj.length_unit = copt.length_from_caller ? copt.length_unit : model->length_unit;
-    pj.angle_unit = copt.angle_from_caller ? copt.angle_unit : model->angle_unit;
-    pj.comment = comment;
-    pj.station = res->station;
-    pj.station_names = (const char (*)[TWF_NAME_MAX])station_names;
-    if (me.json != NULL)
-      root = plan_json(res, &po, model, &u);
-    puts[0] = (cli_put){ output != NULL ? output : "-", pcli_put_joints, &pj };
-    puts[1] = (cli_put){ me.json, cli_put_json, root };
-    status = cli_write_outputs(puts, 2, force, inputs);
-  }
+  while ((opt = getopt_long(argc, argv, ":o:fh", plan_longopts, NULL)) != -1)
+    if ((status = take_option(s, opt, optarg, argv)) != 0 || s->help_shown)
+      return status;
+  if (argc - optind != 1)
+    return cli_usage_error("plan", "expected one MODEL");
+  s->model_path = argv[optind];
+  return 0;
+}
 
-done:
+/* The options that are required or need each other. */
+static int check_settings(const plan_settings *s)
+{
+  const char *output = s->output;
+  if (!s->have_count)
+    return cli_usage_error("plan", "give the number of poses with --count N");
+  if ((s->rmin || s->rmax || s->accept) && s->n_instruments == 0)
+    return cli_usage_error("plan", "--range-min, --range-max and --acceptance need --instrument");
+  if ((output == NULL || strcmp(output, "-") == 0) && s->me.json != NULL && strcmp(s->me.json, "-") == 0)
+    return cli_usage_error("plan", "the poses and the JSON cannot both go to standard output");
+  return 0;
+}
+
+/* The output files checked against each other, the inputs and what
+ * exists, before any work. */
+static int check_outputs(plan_settings *s)
+{
+  static const char *const names[2] = { "--output", "--json" };
+  const char *outputs[2];
+  s->inputs[0] = s->model_path;
+  s->inputs[1] = s->pool_path;
+  s->inputs[2] = NULL;
+  outputs[0] = s->output;
+  outputs[1] = s->me.json;
+  return cli_outputs_check("plan", outputs, names, 2, s->force, s->inputs);
+}
+
+/* What a run reads and makes; plan_job_free releases it. The plan
+ * options in the settings point into it (stations, boxes, pool), so it
+ * stays where it was made. */
+typedef struct plan_job {
+  twf_model *model;
+  cli_units u;                       /* MODEL's */
+  char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
+  double instruments[3 * TWF_STATIONS_MAX];
+  double box_lo[MAX_BOXES][64], box_hi[MAX_BOXES][64];
+  twf_keepout boxes[MAX_BOXES];
+  twf_campaign *pool;                /* the --pool file, or NULL */
+  twf_plan_result *res;
+  twf_warnings warnings;
+  twf_error err;
+} plan_job;
+
+static void plan_job_init(plan_job *j)
+{
+  j->model = NULL;
+  j->pool = NULL;
+  j->res = NULL;
+  twf_warnings_init(&j->warnings);
+  twf_error_clear(&j->err);
+}
+
+static void plan_job_free(plan_job *j)
+{
+  twf_plan_result_free(j->res);
+  twf_campaign_free(j->pool);
+  twf_model_free(j->model);
+  twf_warnings_clear(&j->warnings);
+}
+
+/* A reader or the planner failed: what it warned of, then the error. */
+static int report_failure(const plan_job *j)
+{
+  cli_print_warnings(&j->warnings);
+  return cli_report_error(&j->err);
+}
+
+/* MODEL, then the measurement options that need it. */
+static int read_model(plan_settings *s, plan_job *j)
+{
+  int status;
+  j->model = twf_model_read_with(s->model_path, &s->ropt, &j->warnings, NULL, &j->err);
+  if (j->model == NULL)
+    return report_failure(j);
+  if (j->model->n_joints > 64) /* the room of box_lo and box_hi */
+    return cli_usage_error("plan", "at most 64 joints");
+  cli_units_of(&j->u, j->model);
+  if ((status = pcli_measure_resolve(&s->me, "plan", j->model)) != 0)
+    return status;
+  s->po.assess = s->me.opt;
+  s->po.seed = s->me.opt.calib.seed;
+  return 0;
+}
+
+/* --range-min and --range-max in MODEL's length unit. */
+static int parse_range(plan_settings *s, const plan_job *j)
+{
+  const cli_units *u = &j->u;
+  int status;
+  if (s->rmin != NULL && (status = cli_parse_bounded("plan", "--range-min", s->rmin, u->length_si, u->length, 0.0,
+                                                     1e3, &s->po.range_min)) != 0)
+    return status;
+  if (s->rmax != NULL && (status = cli_parse_bounded("plan", "--range-max", s->rmax, u->length_si, u->length, 1e-3,
+                                                     1e3, &s->po.range_max)) != 0)
+    return status;
+  if (!(s->po.range_max > s->po.range_min))
+    return cli_usage_error("plan", "--range-max must exceed --range-min");
+  return 0;
+}
+
+/* --acceptance in MODEL's angle unit and --target-axis: the cone the
+ * targets see the instrument in. */
+static int parse_acceptance(plan_settings *s, const plan_job *j)
+{
+  const cli_units *u = &j->u;
+  const double *axis = s->po.target_axis;
+  int status;
+  if (s->accept != NULL && (status = cli_parse_bounded("plan", "--acceptance", s->accept, u->angle_si, u->angle,
+                                                       1e-6, 3.14159265358979323846, &s->po.acceptance_rad)) != 0)
+    return status;
+  if (s->axis != NULL) {
+    if ((status = pcli_parse_vector("plan", "--target-axis", s->axis, 1.0, s->po.target_axis)) != 0)
+      return status;
+    if (!(axis[0] != 0 || axis[1] != 0 || axis[2] != 0))
+      return cli_usage_error("plan", "--target-axis must not be zero");
+  }
+  return 0;
+}
+
+/* The --keep-out boxes, in MODEL's joints and units. */
+static int parse_boxes(plan_settings *s, plan_job *j)
+{
+  size_t b;
+  int status;
+  for (b = 0; b < s->n_boxes; b++) {
+    if ((status = parse_box(j->model, &j->u, s->boxes_text[b], j->box_lo[b], j->box_hi[b])) != 0)
+      return status;
+    j->boxes[b].lo = j->box_lo[b];
+    j->boxes[b].hi = j->box_hi[b];
+  }
+  s->po.keepout = j->boxes;
+  s->po.n_keepout = s->n_boxes;
+  return 0;
+}
+
+/* The constraints that need MODEL (its units, its joints), in the order
+ * their errors are reported. */
+static int parse_constraints(plan_settings *s, plan_job *j)
+{
+  int status;
+  if ((status = parse_instruments(s->instrument_text, s->n_instruments, &j->u, j->station_names, j->instruments,
+                                  &s->po)) != 0 ||
+      (status = parse_range(s, j)) != 0 || (status = parse_acceptance(s, j)) != 0 ||
+      (status = parse_boxes(s, j)) != 0)
+    return status;
+  return 0;
+}
+
+/* The --pool file's poses replace the drawn candidates. */
+static int read_pool(plan_settings *s, plan_job *j)
+{
+  if (s->pool_path == NULL)
+    return 0;
+  j->pool = twf_campaign_read_joints(s->pool_path, j->model, &s->copt, &j->warnings, &j->err);
+  if (j->pool == NULL)
+    return report_failure(j);
+  s->po.pool = j->pool->q;
+  s->po.n_pool = j->pool->n_poses;
+  return 0;
+}
+
+/* The poses chosen and ordered, with the assessment of the set. */
+static int make_plan(const plan_settings *s, plan_job *j)
+{
+  if (twf_plan(j->model, &s->po, &j->res, &j->warnings, &j->err) != TWF_OK)
+    return report_failure(j);
+  return 0;
+}
+
+/* The report goes to standard error when standard output carries the
+ * poses or the JSON. */
+static FILE *report_stream(const plan_settings *s)
+{
+  const char *output = s->output, *json = s->me.json;
+  return output == NULL || strcmp(output, "-") == 0 || (json && strcmp(json, "-") == 0) ? stderr : stdout;
+}
+
+/* The text report: the plan, the assessment of the chosen set, then the
+ * warnings of the run. */
+static void print_report(FILE *text, const plan_settings *s, const plan_job *j)
+{
+  const twf_model *model = j->model;
+  fprintf(text, "twistfit %s plan: %s, %zu joints\n", twf_version(), model->name, model->n_joints);
+  print_plan(text, j->res, &s->po, model, &j->u, (const char (*)[TWF_NAME_MAX])j->station_names);
+  pcli_print_assessment(text, j->res->assessment, model, &s->po.assess, &j->u);
+  cli_print_warnings(&j->warnings);
+}
+
+/* The poses (standard output unless -o) and the JSON, written together
+ * (or none). */
+static int write_outputs(const plan_settings *s, const plan_job *j)
+{
+  const twf_model *model = j->model;
+  const twf_plan_result *res = j->res;
+  pcli_joints pj;
+  cli_put puts[2];
+  char comment[256];
+  json_t *root = NULL;
+  int status;
+  snprintf(comment, sizeof comment, "Poses planned by twistfit plan (criterion %s, seed %llu) for %s",
+           twf_plan_criterion_name(s->po.criterion), s->po.seed, model->name);
+  pj.m = model;
+  pj.q = res->q;
+  pj.n = res->n;
+  pj.id_prefix = "P";
+  pj.ids = j->pool != NULL ? (const char (*)[TWF_NAME_MAX])j->pool->pose_ids : NULL;
+  pj.id_index = res->candidate;
+  pj.length_unit = s->copt.length_from_caller ? s->copt.length_unit : model->length_unit;
+  pj.angle_unit = s->copt.angle_from_caller ? s->copt.angle_unit : model->angle_unit;
+  pj.comment = comment;
+  pj.station = res->station;
+  pj.station_names = (const char (*)[TWF_NAME_MAX])j->station_names;
+  if (s->me.json != NULL)
+    root = plan_json(res, &s->po, model, &j->u);
+  puts[0] = (cli_put){ s->output != NULL ? s->output : "-", pcli_put_joints, &pj };
+  puts[1] = (cli_put){ s->me.json, cli_put_json, root };
+  status = cli_write_outputs(puts, 2, s->force, s->inputs);
   json_decref(root);
-  twf_plan_result_free(res);
-  twf_campaign_free(pool);
-  twf_model_free(model);
-  pcli_measure_free(&me);
-  twf_warnings_clear(&warnings);
+  return status;
+}
+
+/* A run whose options are checked: MODEL and the constraints in its
+ * units, the pool, the plan; the report and the outputs only when all of
+ * them succeeded. */
+static int plan_and_write(plan_settings *s)
+{
+  plan_job j;
+  int status;
+  plan_job_init(&j);
+  if ((status = read_model(s, &j)) == 0 && (status = parse_constraints(s, &j)) == 0 &&
+      (status = read_pool(s, &j)) == 0 && (status = make_plan(s, &j)) == 0) {
+    print_report(report_stream(s), s, &j);
+    status = write_outputs(s, &j);
+  }
+  plan_job_free(&j);
+  return status;
+}
+
+static int run_plan(int argc, char **argv)
+{
+  plan_settings s;
+  int status;
+
+  if ((status = parse_options(argc, argv, &s)) == 0 && !s.help_shown && (status = check_settings(&s)) == 0 &&
+      (status = check_outputs(&s)) == 0)
+    status = plan_and_write(&s);
+  pcli_measure_free(&s.me);
   return status;
 }
 

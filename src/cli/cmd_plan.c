@@ -327,6 +327,9 @@ static int check_settings(const plan_settings *s)
     return cli_usage_error("plan", "give the number of poses with --count N");
   if ((s->rmin || s->rmax || s->accept) && s->n_instruments == 0)
     return cli_usage_error("plan", "--range-min, --range-max and --acceptance need --instrument");
+  /* the axis only tilts the acceptance cone: alone it would do nothing */
+  if (s->axis != NULL && s->accept == NULL)
+    return cli_usage_error("plan", "--target-axis needs --acceptance (the direction of the acceptance cone)");
   if ((output == NULL || strcmp(output, "-") == 0) && s->me.json != NULL && strcmp(s->me.json, "-") == 0)
     return cli_usage_error("plan", "the poses and the JSON cannot both go to standard output");
   return 0;

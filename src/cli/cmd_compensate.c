@@ -272,196 +272,250 @@ static twf_model *with_flange_target(const twf_model *m)
   return c;
 }
 
+static const struct option compensate_longopts[] = {
+  { "output", required_argument, NULL, 'o' },
+  { "force", no_argument, NULL, 'f' },
+  { "point", required_argument, NULL, OPT_POINT },
+  { "cartesian", required_argument, NULL, OPT_CARTESIAN },
+  { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
+  { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
+  { "tol-position", required_argument, NULL, OPT_TOL_POS },
+  { "tol-angle", required_argument, NULL, OPT_TOL_ANG },
+  { "max-iter", required_argument, NULL, OPT_MAX_ITER },
+  { "singular-threshold", required_argument, NULL, OPT_SINGULAR },
+  { "allow-flagged", no_argument, NULL, OPT_ALLOW },
+  CLI_URDF_LONGOPTS,
+  { "payload", required_argument, NULL, OPT_PAYLOAD },
+  { "help", no_argument, NULL, 'h' },
+  { NULL, 0, NULL, 0 }
+};
+
+/* The command's settings as the options give them. The tolerances stay
+ * text until the input's units are known; co is completed by the loading
+ * steps (payload, tolerances, --point). */
+typedef struct comp_settings {
+  const char *output;           /* -o, or NULL: standard output */
+  const char *point;            /* --point target, or NULL */
+  const char *cartesian;        /* --cartesian goal file, or NULL: a program */
+  const char *tol_pos, *tol_ang;/* --tol-position, --tol-angle as typed */
+  const char *payload_name;     /* --payload, or NULL */
+  /* the operands, NULL-terminated: NOMINAL, ASBUILT, PROGRAM.csv; with
+   * --cartesian ASBUILT and the goal file */
+  const char *inputs[4];
+  const char *asbuilt_path, *input_path;
+  int force, allow;
+  int help_shown;               /* -h: the help is printed, nothing else to do */
+  twf_campaign_options copt;
+  twf_compensate_options co;
+  twf_read_options ropt;
+  cli_urdf_links urdf_links;    /* the --target-link names that ropt points to */
+} comp_settings;
+
+static void comp_settings_init(comp_settings *s)
+{
+  memset(s, 0, sizeof *s);
+  s->copt = twf_campaign_default_options();
+  s->co = twf_compensate_default_options();
+  s->ropt = twf_read_default_options();
+  s->urdf_links = (cli_urdf_links){ { NULL }, 0 };
+}
+
+static int parse_max_iter(comp_settings *s, const char *arg)
+{
+  char *end;
+  long v = strtol(arg, &end, 10);
+  if (*arg == '\0' || *end != '\0' || v < 1 || v > 100000)
+    return cli_usage_error("compensate", "--max-iter takes a count from 1 to 100000");
+  s->co.ik.max_iter = (unsigned)v;
+  return 0;
+}
+
+static int parse_singular_threshold(comp_settings *s, const char *arg)
+{
+  double *t = &s->co.ik.singular_threshold;
+  if (cli_parse_double(arg, t) != 0 || *t < 0 || *t > 1)
+    return cli_usage_error("compensate", "--singular-threshold takes a number from 0 to 1, not '%s'", arg);
+  return 0;
+}
+
+/* One option of getopt_long into s: 0, or the exit status of a bad one. */
+static int take_option(comp_settings *s, int opt, char *arg, char **argv)
+{
+  int status;
+  switch (opt) {
+  case 'o': s->output = arg; break;
+  case 'f': s->force = 1; break;
+  case OPT_POINT: s->point = arg; break;
+  case OPT_CARTESIAN: s->cartesian = arg; break;
+  case OPT_LENGTH_UNIT:
+    if ((status = cli_parse_length_unit("compensate", arg, &s->copt.length_unit)) != 0)
+      return status;
+    s->copt.length_from_caller = 1;
+    break;
+  case OPT_ANGLE_UNIT:
+    if ((status = cli_parse_angle_unit("compensate", arg, &s->copt.angle_unit)) != 0)
+      return status;
+    s->copt.angle_from_caller = 1;
+    break;
+  case OPT_TOL_POS: s->tol_pos = arg; break;
+  case OPT_TOL_ANG: s->tol_ang = arg; break;
+  case OPT_MAX_ITER: return parse_max_iter(s, arg);
+  case OPT_SINGULAR: return parse_singular_threshold(s, arg);
+  case OPT_ALLOW: s->allow = 1; break;
+  case CLI_OPT_BASE_LINK:
+  case CLI_OPT_TIP_LINK:
+  case CLI_OPT_TARGET_LINK: return cli_urdf_longopt("compensate", opt, arg, &s->urdf_links, &s->ropt);
+  case OPT_PAYLOAD: s->payload_name = arg; break;
+  case 'h': fputs(compensate_help, stdout); s->help_shown = 1; break;
+  default: return cli_bad_option("compensate", opt, argv);
+  }
+  return 0;
+}
+
+/* The operands after the options: NOMINAL ASBUILT PROGRAM.csv, or
+ * ASBUILT alone with --cartesian (which excludes --point). */
+static int take_operands(comp_settings *s, int n_pos, char **pos)
+{
+  if (s->cartesian != NULL ? n_pos != 1 : n_pos != 3)
+    return cli_usage_error("compensate", s->cartesian != NULL ? "with --cartesian, give ASBUILT only"
+                                                              : "expected NOMINAL, ASBUILT and PROGRAM.csv");
+  if (s->cartesian != NULL && s->point != NULL)
+    return cli_usage_error("compensate", "--point and --cartesian exclude each other (a Cartesian row names "
+                                         "its point in the target column)");
+  if (s->cartesian != NULL) {
+    s->inputs[0] = pos[0];
+    s->inputs[1] = s->cartesian;
+  } else {
+    s->inputs[0] = pos[0];
+    s->inputs[1] = pos[1];
+    s->inputs[2] = pos[2];
+  }
+  s->asbuilt_path = s->inputs[s->cartesian ? 0 : 1];
+  s->input_path = s->cartesian ? s->cartesian : s->inputs[2];
+  return 0;
+}
+
+/* The command line into s: 0, or the exit status of a usage error;
+ * s->help_shown after -h. */
+static int parse_options(int argc, char **argv, comp_settings *s)
+{
+  int opt, status;
+  comp_settings_init(s);
+  optind = 0;
+  opterr = 0;
+  while ((opt = getopt_long(argc, argv, ":o:fh", compensate_longopts, NULL)) != -1)
+    if ((status = take_option(s, opt, optarg, argv)) != 0 || s->help_shown)
+      return status;
+  return take_operands(s, argc - optind, argv + optind);
+}
+
+/* The output checked against the inputs and what exists, before any work. */
+static int check_output(comp_settings *s)
+{
+  static const char *const names[1] = { "--output" };
+  return cli_outputs_check("compensate", &s->output, names, 1, s->force, s->inputs);
+}
+
 static int run_compensate(int argc, char **argv)
 {
-  static const struct option longopts[] = {
-    { "output", required_argument, NULL, 'o' },
-    { "force", no_argument, NULL, 'f' },
-    { "point", required_argument, NULL, OPT_POINT },
-    { "cartesian", required_argument, NULL, OPT_CARTESIAN },
-    { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
-    { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
-    { "tol-position", required_argument, NULL, OPT_TOL_POS },
-    { "tol-angle", required_argument, NULL, OPT_TOL_ANG },
-    { "max-iter", required_argument, NULL, OPT_MAX_ITER },
-    { "singular-threshold", required_argument, NULL, OPT_SINGULAR },
-    { "allow-flagged", no_argument, NULL, OPT_ALLOW },
-    CLI_URDF_LONGOPTS,
-    { "payload", required_argument, NULL, OPT_PAYLOAD },
-    { "help", no_argument, NULL, 'h' },
-    { NULL, 0, NULL, 0 }
-  };
-  static const char *const names[1] = { "--output" };
-  const char *output = NULL, *point = NULL, *cartesian = NULL, *tol_pos = NULL, *tol_ang = NULL;
-  const char *payload_name = NULL;
-  const char *inputs[4] = { NULL, NULL, NULL, NULL };
-  int force = 0, allow = 0, warned = 0, opt, status = TWF_EXIT_OK, n_pos;
-  twf_campaign_options copt = twf_campaign_default_options();
-  twf_compensate_options co = twf_compensate_default_options();
+  comp_settings s;
+  int warned = 0, status;
   twf_compensate_summary sum;
   twf_model *nominal = NULL, *asbuilt = NULL, *goal_model = NULL;
   twf_campaign *input = NULL;
   twf_ik_result *res = NULL;
   double *qout = NULL;
   twf_warnings warnings;
-  twf_read_options ropt = twf_read_default_options();
-  cli_urdf_links urdf_links = { { NULL }, 0 };
   twf_error err;
   comp_out out;
   cli_put put;
 
+  if ((status = parse_options(argc, argv, &s)) != 0 || s.help_shown)
+    return status;
+  if ((status = check_output(&s)) != 0)
+    return status;
   twf_warnings_init(&warnings);
   twf_error_clear(&err);
-  optind = 0;
-  opterr = 0;
-  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
-    switch (opt) {
-    case 'o': output = optarg; break;
-    case 'f': force = 1; break;
-    case OPT_POINT: point = optarg; break;
-    case OPT_CARTESIAN: cartesian = optarg; break;
-    case OPT_LENGTH_UNIT:
-      if ((status = cli_parse_length_unit("compensate", optarg, &copt.length_unit)) != 0)
-        goto done;
-      copt.length_from_caller = 1;
-      break;
-    case OPT_ANGLE_UNIT:
-      if ((status = cli_parse_angle_unit("compensate", optarg, &copt.angle_unit)) != 0)
-        goto done;
-      copt.angle_from_caller = 1;
-      break;
-    case OPT_TOL_POS: tol_pos = optarg; break;
-    case OPT_TOL_ANG: tol_ang = optarg; break;
-    case OPT_MAX_ITER: {
-      char *end;
-      long v = strtol(optarg, &end, 10);
-      if (*optarg == '\0' || *end != '\0' || v < 1 || v > 100000) {
-        status = cli_usage_error("compensate", "--max-iter takes a count from 1 to 100000");
-        goto done;
-      }
-      co.ik.max_iter = (unsigned)v;
-      break;
-    }
-    case OPT_SINGULAR:
-      if (cli_parse_double(optarg, &co.ik.singular_threshold) != 0 || co.ik.singular_threshold < 0 ||
-          co.ik.singular_threshold > 1) {
-        status = cli_usage_error("compensate", "--singular-threshold takes a number from 0 to 1, not '%s'", optarg);
-        goto done;
-      }
-      break;
-    case OPT_ALLOW: allow = 1; break;
-    case CLI_OPT_BASE_LINK:
-    case CLI_OPT_TIP_LINK:
-    case CLI_OPT_TARGET_LINK:
-      if ((status = cli_urdf_longopt("compensate", opt, optarg, &urdf_links, &ropt)) != 0)
-        goto done;
-      break;
-    case OPT_PAYLOAD: payload_name = optarg; break;
-    case 'h': fputs(compensate_help, stdout); goto done;
-    default: status = cli_bad_option("compensate", opt, argv); goto done;
-    }
-  }
-  n_pos = argc - optind;
-  if (cartesian != NULL ? n_pos != 1 : n_pos != 3) {
-    status = cli_usage_error("compensate", cartesian != NULL ? "with --cartesian, give ASBUILT only"
-                                                             : "expected NOMINAL, ASBUILT and PROGRAM.csv");
-    goto done;
-  }
-  if (cartesian != NULL && point != NULL) {
-    status = cli_usage_error("compensate", "--point and --cartesian exclude each other (a Cartesian row names "
-                                           "its point in the target column)");
-    goto done;
-  }
-  if (cartesian != NULL) {
-    inputs[0] = argv[optind];
-    inputs[1] = cartesian;
-  } else {
-    inputs[0] = argv[optind];
-    inputs[1] = argv[optind + 1];
-    inputs[2] = argv[optind + 2];
-  }
-  if ((status = cli_outputs_check("compensate", &output, names, 1, force, inputs)) != 0)
-    goto done;
 
   /* the models and the input */
-  if (cartesian == NULL) {
-    nominal = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err);
+  if (s.cartesian == NULL) {
+    nominal = twf_model_read_with(s.inputs[0], &s.ropt, &warnings, NULL, &err);
     if (nominal == NULL)
       goto fail;
   }
-  asbuilt = twf_model_read_with(inputs[cartesian ? 0 : 1], &ropt, &warnings, NULL, &err);
+  asbuilt = twf_model_read_with(s.inputs[s.cartesian ? 0 : 1], &s.ropt, &warnings, NULL, &err);
   if (asbuilt == NULL)
     goto fail;
-  if (nominal != NULL && twf_models_same_joints(nominal, asbuilt, inputs[0], inputs[1], &err) != TWF_OK)
+  if (nominal != NULL && twf_models_same_joints(nominal, asbuilt, s.inputs[0], s.inputs[1], &err) != TWF_OK)
     goto fail;
-  if (cartesian == NULL) {
-    input = twf_campaign_read_joints(inputs[2], nominal, &copt, &warnings, &err);
+  if (s.cartesian == NULL) {
+    input = twf_campaign_read_joints(s.inputs[2], nominal, &s.copt, &warnings, &err);
   } else {
     goal_model = with_flange_target(asbuilt);
     if (goal_model == NULL) {
       status = TWF_EXIT_INTERNAL;
       goto done;
     }
-    input = twf_campaign_read(cartesian, goal_model, &copt, &warnings, &err);
+    input = twf_campaign_read(s.cartesian, goal_model, &s.copt, &warnings, &err);
   }
   if (input == NULL)
     goto fail;
   cli_print_warnings(&warnings);
   warned = 1;
   /* the load: --payload, or the input's payload column (one for all rows) */
-  if ((status = cli_payload_resolve("compensate", asbuilt, payload_name, &co.ik.payload)) != 0)
+  if ((status = cli_payload_resolve("compensate", asbuilt, s.payload_name, &s.co.ik.payload)) != 0)
     goto done;
   if (input->pose_payload != NULL) {
-    const twf_model *named = cartesian ? goal_model : nominal;
+    const twf_model *named = s.cartesian ? goal_model : nominal;
     long first = twf_campaign_payload(input, 0);
     size_t k;
-    if (payload_name != NULL) {
+    if (s.payload_name != NULL) {
       status = cli_usage_error("compensate", "%s names the payload of its rows: leave out --payload",
-                               inputs[cartesian ? 1 : 2]);
+                               s.inputs[s.cartesian ? 1 : 2]);
       goto done;
     }
     for (k = 1; k < input->n_poses; k++)
       if (twf_campaign_payload(input, k) != first) {
         status = cli_usage_error("compensate", "%s names more than one payload: compensate one program "
-                                 "per load", inputs[cartesian ? 1 : 2]);
+                                 "per load", s.inputs[s.cartesian ? 1 : 2]);
         goto done;
       }
-    co.ik.payload = first >= 0 ? twf_model_payload_index(asbuilt, named->payloads[first].name) : -1;
-    if (first >= 0 && co.ik.payload < 0) {
+    s.co.ik.payload = first >= 0 ? twf_model_payload_index(asbuilt, named->payloads[first].name) : -1;
+    if (first >= 0 && s.co.ik.payload < 0) {
       status = cli_usage_error("compensate", "the as-built model does not declare the payload '%s'",
                                named->payloads[first].name);
       goto done;
     }
   }
   memset(&out, 0, sizeof out);
-  declared_units(cartesian ? cartesian : inputs[2], &copt, &out.lu, &out.au);
-  if (tol_pos != NULL &&
-      (status = cli_parse_tolerance("compensate", "--tol-position", tol_pos, twf_length_unit_si(out.lu),
-                                    &co.ik.tol_position_m)) != 0)
+  declared_units(s.cartesian ? s.cartesian : s.inputs[2], &s.copt, &out.lu, &out.au);
+  if (s.tol_pos != NULL &&
+      (status = cli_parse_tolerance("compensate", "--tol-position", s.tol_pos, twf_length_unit_si(out.lu),
+                                    &s.co.ik.tol_position_m)) != 0)
     goto done;
-  if (tol_ang != NULL &&
-      (status = cli_parse_tolerance("compensate", "--tol-angle", tol_ang, twf_angle_unit_si(out.au),
-                                    &co.ik.tol_angle_rad)) != 0)
+  if (s.tol_ang != NULL &&
+      (status = cli_parse_tolerance("compensate", "--tol-angle", s.tol_ang, twf_angle_unit_si(out.au),
+                                    &s.co.ik.tol_angle_rad)) != 0)
     goto done;
-  if (point != NULL) {
-    co.kind = TWF_IK_POINT;
-    co.target = point;
+  if (s.point != NULL) {
+    s.co.kind = TWF_IK_POINT;
+    s.co.target = s.point;
   }
 
   /* the work */
-  out.n_rows = cartesian ? input->n_meas : input->n_poses;
+  out.n_rows = s.cartesian ? input->n_meas : input->n_poses;
   res = calloc(out.n_rows ? out.n_rows : 1, sizeof *res);
   qout = calloc((out.n_rows ? out.n_rows : 1) * asbuilt->n_joints, sizeof *qout);
   if (res == NULL || qout == NULL) {
     status = TWF_EXIT_INTERNAL;
     goto done;
   }
-  if (cartesian == NULL) {
-    if (twf_compensate_program(nominal, asbuilt, input->q, input->n_poses, &co, qout, res, &sum, &err) != TWF_OK) {
+  if (s.cartesian == NULL) {
+    if (twf_compensate_program(nominal, asbuilt, input->q, input->n_poses, &s.co, qout, res, &sum, &err) != TWF_OK) {
       if (err.line > 0) {
         /* the row's line in the program */
         err.line = input->pose_lines[err.line - 1];
-        snprintf(err.file, sizeof err.file, "%s", inputs[2]);
+        snprintf(err.file, sizeof err.file, "%s", s.inputs[2]);
       }
       goto fail;
     }
@@ -488,15 +542,15 @@ static int run_compensate(int argc, char **argv)
       memcpy(g.p, ms->pos, sizeof g.p);
       memcpy(g.point, goal_model->targets[ms->target].offset, sizeof g.point);
       if (!goal_model->targets[ms->target].offset_known) {
-        twf_error_set(&err, TWF_ERR_MISSING, cartesian, ms->line, 0,
+        twf_error_set(&err, TWF_ERR_MISSING, s.cartesian, ms->line, 0,
                       "give the target an offset in the as-built model, or use 'flange'",
                       "target %s has no offset in the as-built model", goal_model->targets[ms->target].name);
         twf_ik_free(w);
         goto fail;
       }
-      if (twf_ik_solve(w, asbuilt, &g, input->q + ms->pose * asbuilt->n_joints, &co.ik,
+      if (twf_ik_solve(w, asbuilt, &g, input->q + ms->pose * asbuilt->n_joints, &s.co.ik,
                        qout + r * asbuilt->n_joints, &res[r], &err) != TWF_OK) {
-        snprintf(err.file, sizeof err.file, "%s", cartesian);
+        snprintf(err.file, sizeof err.file, "%s", s.cartesian);
         err.line = ms->line;
         twf_ik_free(w);
         goto fail;
@@ -509,20 +563,20 @@ static int run_compensate(int argc, char **argv)
   out.model = asbuilt;
   out.input = input;
   out.goal_model = goal_model;
-  out.cartesian = cartesian != NULL;
+  out.cartesian = s.cartesian != NULL;
   out.q = qout;
   out.res = res;
-  out.nominal_path = inputs[0];
-  out.asbuilt_path = inputs[cartesian ? 0 : 1];
-  out.input_path = cartesian ? cartesian : inputs[2];
-  out.point = point;
-  put.path = output != NULL ? output : "-";
+  out.nominal_path = s.inputs[0];
+  out.asbuilt_path = s.inputs[s.cartesian ? 0 : 1];
+  out.input_path = s.cartesian ? s.cartesian : s.inputs[2];
+  out.point = s.point;
+  put.path = s.output != NULL ? s.output : "-";
   put.put = put_compensated;
   put.ctx = &out;
-  status = cli_write_outputs(&put, 1, force, inputs);
+  status = cli_write_outputs(&put, 1, s.force, s.inputs);
   if (status == TWF_EXIT_OK) {
-    print_summary(&sum, &out, allow);
-    if (sum.n_flagged > 0 && !allow)
+    print_summary(&sum, &out, s.allow);
+    if (sum.n_flagged > 0 && !s.allow)
       status = TWF_EXIT_REJECTED;
   }
   goto done;
@@ -530,7 +584,7 @@ static int run_compensate(int argc, char **argv)
 fail:
   if (!warned)
     cli_print_warnings(&warnings);
-  if (err.status == TWF_ERR_DEGENERATE && cartesian == NULL)
+  if (err.status == TWF_ERR_DEGENERATE && s.cartesian == NULL)
     snprintf(err.hint, sizeof err.hint, "match one target's position with --point T");
   else if (err.status == TWF_ERR_DEGENERATE)
     snprintf(err.hint, sizeof err.hint, "leave out the quaternion: the row then asks for the position only");

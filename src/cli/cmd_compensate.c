@@ -416,187 +416,296 @@ static int check_output(comp_settings *s)
   return cli_outputs_check("compensate", &s->output, names, 1, s->force, s->inputs);
 }
 
+/* What a run reads and makes; comp_job_free releases it. */
+typedef struct comp_job {
+  twf_model *nominal;            /* NULL with --cartesian */
+  twf_model *asbuilt;
+  twf_model *goal_model;         /* --cartesian: the as-built model with a flange target */
+  twf_campaign *input;           /* the program or the goals */
+  size_t n_rows;
+  twf_ik_result *res;            /* per row */
+  double *qout;                  /* per row: the compensated joint values, SI */
+  twf_compensate_summary sum;
+  twf_length_unit lu;            /* of the input file */
+  twf_angle_unit au;
+  twf_warnings warnings;
+  int warned;                    /* the readers' warnings are printed */
+  twf_error err;
+} comp_job;
+
+static void comp_job_init(comp_job *j)
+{
+  memset(j, 0, sizeof *j);
+  twf_warnings_init(&j->warnings);
+  twf_error_clear(&j->err);
+}
+
+static void comp_job_free(comp_job *j)
+{
+  free(j->res);
+  free(j->qout);
+  twf_campaign_free(j->input);
+  twf_model_free(j->goal_model);
+  twf_model_free(j->asbuilt);
+  twf_model_free(j->nominal);
+  twf_warnings_clear(&j->warnings);
+}
+
+/* The library's error in j->err reported, after the readers' warnings
+ * (unless printed already) and with a hint for a goal the arm cannot
+ * meet; returns the exit status. */
+static int report_failure(const comp_settings *s, comp_job *j)
+{
+  if (!j->warned)
+    cli_print_warnings(&j->warnings);
+  if (j->err.status == TWF_ERR_DEGENERATE && s->cartesian == NULL)
+    snprintf(j->err.hint, sizeof j->err.hint, "match one target's position with --point T");
+  else if (j->err.status == TWF_ERR_DEGENERATE)
+    snprintf(j->err.hint, sizeof j->err.hint, "leave out the quaternion: the row then asks for the position only");
+  return cli_report_error(&j->err);
+}
+
+/* NOMINAL (not with --cartesian) and ASBUILT, with the same joints. */
+static int read_models(const comp_settings *s, comp_job *j)
+{
+  if (s->cartesian == NULL) {
+    j->nominal = twf_model_read_with(s->inputs[0], &s->ropt, &j->warnings, NULL, &j->err);
+    if (j->nominal == NULL)
+      return report_failure(s, j);
+  }
+  j->asbuilt = twf_model_read_with(s->asbuilt_path, &s->ropt, &j->warnings, NULL, &j->err);
+  if (j->asbuilt == NULL)
+    return report_failure(s, j);
+  if (j->nominal != NULL &&
+      twf_models_same_joints(j->nominal, j->asbuilt, s->inputs[0], s->inputs[1], &j->err) != TWF_OK)
+    return report_failure(s, j);
+  return 0;
+}
+
+/* The program (read with NOMINAL's joints) or the Cartesian goals (read
+ * with the as-built model and its flange target); then the readers'
+ * warnings. */
+static int read_input(const comp_settings *s, comp_job *j)
+{
+  if (s->cartesian == NULL) {
+    j->input = twf_campaign_read_joints(s->inputs[2], j->nominal, &s->copt, &j->warnings, &j->err);
+  } else {
+    j->goal_model = with_flange_target(j->asbuilt);
+    if (j->goal_model == NULL)
+      return TWF_EXIT_INTERNAL;
+    j->input = twf_campaign_read(s->cartesian, j->goal_model, &s->copt, &j->warnings, &j->err);
+  }
+  if (j->input == NULL)
+    return report_failure(s, j);
+  cli_print_warnings(&j->warnings);
+  j->warned = 1;
+  return 0;
+}
+
+/* The load: --payload, or the input's payload column (one for all rows),
+ * into s->co.ik.payload. */
+static int settle_payload(comp_settings *s, const comp_job *j)
+{
+  const twf_campaign *input = j->input;
+  const twf_model *named = s->cartesian ? j->goal_model : j->nominal;
+  long first;
+  size_t k;
+  int status;
+  if ((status = cli_payload_resolve("compensate", j->asbuilt, s->payload_name, &s->co.ik.payload)) != 0)
+    return status;
+  if (input->pose_payload == NULL)
+    return 0;
+  first = twf_campaign_payload(input, 0);
+  if (s->payload_name != NULL)
+    return cli_usage_error("compensate", "%s names the payload of its rows: leave out --payload", s->input_path);
+  for (k = 1; k < input->n_poses; k++)
+    if (twf_campaign_payload(input, k) != first)
+      return cli_usage_error("compensate", "%s names more than one payload: compensate one program "
+                             "per load", s->input_path);
+  s->co.ik.payload = first >= 0 ? twf_model_payload_index(j->asbuilt, named->payloads[first].name) : -1;
+  if (first >= 0 && s->co.ik.payload < 0)
+    return cli_usage_error("compensate", "the as-built model does not declare the payload '%s'",
+                           named->payloads[first].name);
+  return 0;
+}
+
+/* The input's units, the tolerances given in them and --point, into
+ * s->co. */
+static int take_tolerances(comp_settings *s, comp_job *j)
+{
+  int status;
+  declared_units(s->input_path, &s->copt, &j->lu, &j->au);
+  if (s->tol_pos != NULL &&
+      (status = cli_parse_tolerance("compensate", "--tol-position", s->tol_pos, twf_length_unit_si(j->lu),
+                                    &s->co.ik.tol_position_m)) != 0)
+    return status;
+  if (s->tol_ang != NULL &&
+      (status = cli_parse_tolerance("compensate", "--tol-angle", s->tol_ang, twf_angle_unit_si(j->au),
+                                    &s->co.ik.tol_angle_rad)) != 0)
+    return status;
+  if (s->point != NULL) {
+    s->co.kind = TWF_IK_POINT;
+    s->co.target = s->point;
+  }
+  return 0;
+}
+
+/* Every input read and checked, the options completed in the input's
+ * units. */
+static int load_inputs(comp_settings *s, comp_job *j)
+{
+  int status;
+  if ((status = read_models(s, j)) != 0 || (status = read_input(s, j)) != 0 ||
+      (status = settle_payload(s, j)) != 0 || (status = take_tolerances(s, j)) != 0)
+    return status;
+  return 0;
+}
+
+/* Room for the result and the joint values of every row. */
+static int alloc_rows(const comp_settings *s, comp_job *j)
+{
+  j->n_rows = s->cartesian ? j->input->n_meas : j->input->n_poses;
+  j->res = calloc(j->n_rows ? j->n_rows : 1, sizeof *j->res);
+  j->qout = calloc((j->n_rows ? j->n_rows : 1) * j->asbuilt->n_joints, sizeof *j->qout);
+  return j->res == NULL || j->qout == NULL ? TWF_EXIT_INTERNAL : 0;
+}
+
+/* Each row of the program on the as-built arm; an error names the row's
+ * line in the program. */
+static int compensate_program(const comp_settings *s, comp_job *j)
+{
+  const twf_campaign *input = j->input;
+  if (twf_compensate_program(j->nominal, j->asbuilt, input->q, input->n_poses, &s->co, j->qout, j->res, &j->sum,
+                             &j->err) != TWF_OK) {
+    if (j->err.line > 0) {
+      /* the row's line in the program */
+      j->err.line = input->pose_lines[j->err.line - 1];
+      snprintf(j->err.file, sizeof j->err.file, "%s", s->inputs[2]);
+    }
+    return report_failure(s, j);
+  }
+  return 0;
+}
+
+/* The goal of Cartesian row r in the as-built base frame. */
+static void goal_of_row(const comp_job *j, size_t r, twf_ik_goal *g)
+{
+  const twf_campaign *input = j->input;
+  const twf_measurement *ms = &input->meas[r];
+  g->kind = ms->has_orientation ? TWF_IK_POSE : TWF_IK_POINT;
+  if (ms->has_orientation) {
+    twf_quat_to_rot(twf_campaign_meas_quat(input, r), g->R);
+  } else {
+    /* no orientation given: the seed's orientation is the reference of
+     * the reported angle */
+    twf_pose T;
+    twf_model_fk(j->asbuilt, input->q + ms->pose * j->asbuilt->n_joints, NULL, &T);
+    memcpy(g->R, T.R, sizeof g->R);
+  }
+  memcpy(g->p, ms->pos, sizeof g->p);
+  memcpy(g->point, j->goal_model->targets[ms->target].offset, sizeof g->point);
+}
+
+/* Cartesian row r solved from its seed: TWF_OK, or the error in j->err
+ * (at the row's line of the goal file). */
+static twf_status solve_goal_row(const comp_settings *s, comp_job *j, twf_ik *w, size_t r)
+{
+  const twf_measurement *ms = &j->input->meas[r];
+  const twf_target *t = &j->goal_model->targets[ms->target];
+  size_t n = j->asbuilt->n_joints;
+  twf_ik_goal g;
+  goal_of_row(j, r, &g);
+  if (!t->offset_known)
+    return twf_error_set(&j->err, TWF_ERR_MISSING, s->cartesian, ms->line, 0,
+                         "give the target an offset in the as-built model, or use 'flange'",
+                         "target %s has no offset in the as-built model", t->name);
+  if (twf_ik_solve(w, j->asbuilt, &g, j->input->q + ms->pose * n, &s->co.ik, j->qout + r * n, &j->res[r],
+                   &j->err) != TWF_OK) {
+    snprintf(j->err.file, sizeof j->err.file, "%s", s->cartesian);
+    j->err.line = ms->line;
+    return j->err.status;
+  }
+  return TWF_OK;
+}
+
+/* --cartesian: inverse kinematics of the as-built arm for every goal, and
+ * the summary over the rows. */
+static int solve_goals(const comp_settings *s, comp_job *j)
+{
+  twf_ik *w = twf_ik_alloc(j->asbuilt->n_joints);
+  size_t r;
+  if (w == NULL)
+    return TWF_EXIT_INTERNAL;
+  for (r = 0; r < j->input->n_meas; r++)
+    if (solve_goal_row(s, j, w, r) != TWF_OK) {
+      twf_ik_free(w);
+      return report_failure(s, j);
+    }
+  twf_ik_free(w);
+  twf_compensate_summarize(j->asbuilt, j->res, j->input->n_meas, &j->sum);
+  return 0;
+}
+
+/* The joint values of every row (program or goals) and their summary. */
+static int compensate(const comp_settings *s, comp_job *j)
+{
+  int status;
+  if ((status = alloc_rows(s, j)) != 0)
+    return status;
+  return s->cartesian == NULL ? compensate_program(s, j) : solve_goals(s, j);
+}
+
+/* What the CSV and the summary show of a run. */
+static void compensate_view(const comp_settings *s, const comp_job *j, comp_out *out)
+{
+  memset(out, 0, sizeof *out);
+  out->model = j->asbuilt;
+  out->input = j->input;
+  out->goal_model = j->goal_model;
+  out->cartesian = s->cartesian != NULL;
+  out->n_rows = j->n_rows;
+  out->q = j->qout;
+  out->res = j->res;
+  out->lu = j->lu;
+  out->au = j->au;
+  out->nominal_path = s->inputs[0];
+  out->asbuilt_path = s->asbuilt_path;
+  out->input_path = s->input_path;
+  out->point = s->point;
+}
+
+/* The CSV to -o FILE (atomically) or standard output. */
+static int write_compensated(const comp_settings *s, comp_out *out)
+{
+  cli_put put;
+  put.path = s->output != NULL ? s->output : "-";
+  put.put = put_compensated;
+  put.ctx = out;
+  return cli_write_outputs(&put, 1, s->force, s->inputs);
+}
+
 static int run_compensate(int argc, char **argv)
 {
   comp_settings s;
-  int warned = 0, status;
-  twf_compensate_summary sum;
-  twf_model *nominal = NULL, *asbuilt = NULL, *goal_model = NULL;
-  twf_campaign *input = NULL;
-  twf_ik_result *res = NULL;
-  double *qout = NULL;
-  twf_warnings warnings;
-  twf_error err;
+  comp_job j;
   comp_out out;
-  cli_put put;
+  int status;
 
   if ((status = parse_options(argc, argv, &s)) != 0 || s.help_shown)
     return status;
   if ((status = check_output(&s)) != 0)
     return status;
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
-
-  /* the models and the input */
-  if (s.cartesian == NULL) {
-    nominal = twf_model_read_with(s.inputs[0], &s.ropt, &warnings, NULL, &err);
-    if (nominal == NULL)
-      goto fail;
-  }
-  asbuilt = twf_model_read_with(s.inputs[s.cartesian ? 0 : 1], &s.ropt, &warnings, NULL, &err);
-  if (asbuilt == NULL)
-    goto fail;
-  if (nominal != NULL && twf_models_same_joints(nominal, asbuilt, s.inputs[0], s.inputs[1], &err) != TWF_OK)
-    goto fail;
-  if (s.cartesian == NULL) {
-    input = twf_campaign_read_joints(s.inputs[2], nominal, &s.copt, &warnings, &err);
-  } else {
-    goal_model = with_flange_target(asbuilt);
-    if (goal_model == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    input = twf_campaign_read(s.cartesian, goal_model, &s.copt, &warnings, &err);
-  }
-  if (input == NULL)
-    goto fail;
-  cli_print_warnings(&warnings);
-  warned = 1;
-  /* the load: --payload, or the input's payload column (one for all rows) */
-  if ((status = cli_payload_resolve("compensate", asbuilt, s.payload_name, &s.co.ik.payload)) != 0)
-    goto done;
-  if (input->pose_payload != NULL) {
-    const twf_model *named = s.cartesian ? goal_model : nominal;
-    long first = twf_campaign_payload(input, 0);
-    size_t k;
-    if (s.payload_name != NULL) {
-      status = cli_usage_error("compensate", "%s names the payload of its rows: leave out --payload",
-                               s.inputs[s.cartesian ? 1 : 2]);
-      goto done;
-    }
-    for (k = 1; k < input->n_poses; k++)
-      if (twf_campaign_payload(input, k) != first) {
-        status = cli_usage_error("compensate", "%s names more than one payload: compensate one program "
-                                 "per load", s.inputs[s.cartesian ? 1 : 2]);
-        goto done;
-      }
-    s.co.ik.payload = first >= 0 ? twf_model_payload_index(asbuilt, named->payloads[first].name) : -1;
-    if (first >= 0 && s.co.ik.payload < 0) {
-      status = cli_usage_error("compensate", "the as-built model does not declare the payload '%s'",
-                               named->payloads[first].name);
-      goto done;
+  comp_job_init(&j);
+  if ((status = load_inputs(&s, &j)) == 0 && (status = compensate(&s, &j)) == 0) {
+    compensate_view(&s, &j, &out);
+    status = write_compensated(&s, &out);
+    if (status == TWF_EXIT_OK) {
+      print_summary(&j.sum, &out, s.allow);
+      if (j.sum.n_flagged > 0 && !s.allow)
+        status = TWF_EXIT_REJECTED;
     }
   }
-  memset(&out, 0, sizeof out);
-  declared_units(s.cartesian ? s.cartesian : s.inputs[2], &s.copt, &out.lu, &out.au);
-  if (s.tol_pos != NULL &&
-      (status = cli_parse_tolerance("compensate", "--tol-position", s.tol_pos, twf_length_unit_si(out.lu),
-                                    &s.co.ik.tol_position_m)) != 0)
-    goto done;
-  if (s.tol_ang != NULL &&
-      (status = cli_parse_tolerance("compensate", "--tol-angle", s.tol_ang, twf_angle_unit_si(out.au),
-                                    &s.co.ik.tol_angle_rad)) != 0)
-    goto done;
-  if (s.point != NULL) {
-    s.co.kind = TWF_IK_POINT;
-    s.co.target = s.point;
-  }
-
-  /* the work */
-  out.n_rows = s.cartesian ? input->n_meas : input->n_poses;
-  res = calloc(out.n_rows ? out.n_rows : 1, sizeof *res);
-  qout = calloc((out.n_rows ? out.n_rows : 1) * asbuilt->n_joints, sizeof *qout);
-  if (res == NULL || qout == NULL) {
-    status = TWF_EXIT_INTERNAL;
-    goto done;
-  }
-  if (s.cartesian == NULL) {
-    if (twf_compensate_program(nominal, asbuilt, input->q, input->n_poses, &s.co, qout, res, &sum, &err) != TWF_OK) {
-      if (err.line > 0) {
-        /* the row's line in the program */
-        err.line = input->pose_lines[err.line - 1];
-        snprintf(err.file, sizeof err.file, "%s", s.inputs[2]);
-      }
-      goto fail;
-    }
-  } else {
-    twf_ik *w = twf_ik_alloc(asbuilt->n_joints);
-    size_t r;
-    if (w == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    for (r = 0; r < input->n_meas; r++) {
-      const twf_measurement *ms = &input->meas[r];
-      twf_ik_goal g;
-      g.kind = ms->has_orientation ? TWF_IK_POSE : TWF_IK_POINT;
-      if (ms->has_orientation) {
-        twf_quat_to_rot(twf_campaign_meas_quat(input, r), g.R);
-      } else {
-        /* no orientation given: the seed's orientation is the reference of
-         * the reported angle */
-        twf_pose T;
-        twf_model_fk(asbuilt, input->q + ms->pose * asbuilt->n_joints, NULL, &T);
-        memcpy(g.R, T.R, sizeof g.R);
-      }
-      memcpy(g.p, ms->pos, sizeof g.p);
-      memcpy(g.point, goal_model->targets[ms->target].offset, sizeof g.point);
-      if (!goal_model->targets[ms->target].offset_known) {
-        twf_error_set(&err, TWF_ERR_MISSING, s.cartesian, ms->line, 0,
-                      "give the target an offset in the as-built model, or use 'flange'",
-                      "target %s has no offset in the as-built model", goal_model->targets[ms->target].name);
-        twf_ik_free(w);
-        goto fail;
-      }
-      if (twf_ik_solve(w, asbuilt, &g, input->q + ms->pose * asbuilt->n_joints, &s.co.ik,
-                       qout + r * asbuilt->n_joints, &res[r], &err) != TWF_OK) {
-        snprintf(err.file, sizeof err.file, "%s", s.cartesian);
-        err.line = ms->line;
-        twf_ik_free(w);
-        goto fail;
-      }
-    }
-    twf_ik_free(w);
-    twf_compensate_summarize(asbuilt, res, input->n_meas, &sum);
-  }
-
-  out.model = asbuilt;
-  out.input = input;
-  out.goal_model = goal_model;
-  out.cartesian = s.cartesian != NULL;
-  out.q = qout;
-  out.res = res;
-  out.nominal_path = s.inputs[0];
-  out.asbuilt_path = s.inputs[s.cartesian ? 0 : 1];
-  out.input_path = s.cartesian ? s.cartesian : s.inputs[2];
-  out.point = s.point;
-  put.path = s.output != NULL ? s.output : "-";
-  put.put = put_compensated;
-  put.ctx = &out;
-  status = cli_write_outputs(&put, 1, s.force, s.inputs);
-  if (status == TWF_EXIT_OK) {
-    print_summary(&sum, &out, s.allow);
-    if (sum.n_flagged > 0 && !s.allow)
-      status = TWF_EXIT_REJECTED;
-  }
-  goto done;
-
-fail:
-  if (!warned)
-    cli_print_warnings(&warnings);
-  if (err.status == TWF_ERR_DEGENERATE && s.cartesian == NULL)
-    snprintf(err.hint, sizeof err.hint, "match one target's position with --point T");
-  else if (err.status == TWF_ERR_DEGENERATE)
-    snprintf(err.hint, sizeof err.hint, "leave out the quaternion: the row then asks for the position only");
-  status = cli_report_error(&err);
-done:
-  free(res);
-  free(qout);
-  twf_campaign_free(input);
-  twf_model_free(goal_model);
-  twf_model_free(asbuilt);
-  twf_model_free(nominal);
-  twf_warnings_clear(&warnings);
+  comp_job_free(&j);
   return status;
 }
 

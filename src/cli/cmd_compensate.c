@@ -272,277 +272,440 @@ static twf_model *with_flange_target(const twf_model *m)
   return c;
 }
 
-static int run_compensate(int argc, char **argv)
-{
-  static const struct option longopts[] = {
-    { "output", required_argument, NULL, 'o' },
-    { "force", no_argument, NULL, 'f' },
-    { "point", required_argument, NULL, OPT_POINT },
-    { "cartesian", required_argument, NULL, OPT_CARTESIAN },
-    { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
-    { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
-    { "tol-position", required_argument, NULL, OPT_TOL_POS },
-    { "tol-angle", required_argument, NULL, OPT_TOL_ANG },
-    { "max-iter", required_argument, NULL, OPT_MAX_ITER },
-    { "singular-threshold", required_argument, NULL, OPT_SINGULAR },
-    { "allow-flagged", no_argument, NULL, OPT_ALLOW },
-    CLI_URDF_LONGOPTS,
-    { "payload", required_argument, NULL, OPT_PAYLOAD },
-    { "help", no_argument, NULL, 'h' },
-    { NULL, 0, NULL, 0 }
-  };
-  static const char *const names[1] = { "--output" };
-  const char *output = NULL, *point = NULL, *cartesian = NULL, *tol_pos = NULL, *tol_ang = NULL;
-  const char *payload_name = NULL;
-  const char *inputs[4] = { NULL, NULL, NULL, NULL };
-  int force = 0, allow = 0, warned = 0, opt, status = TWF_EXIT_OK, n_pos;
-  twf_campaign_options copt = twf_campaign_default_options();
-  twf_compensate_options co = twf_compensate_default_options();
-  twf_compensate_summary sum;
-  twf_model *nominal = NULL, *asbuilt = NULL, *goal_model = NULL;
-  twf_campaign *input = NULL;
-  twf_ik_result *res = NULL;
-  double *qout = NULL;
-  twf_warnings warnings;
-  twf_read_options ropt = twf_read_default_options();
-  cli_urdf_links urdf_links = { { NULL }, 0 };
-  twf_error err;
-  comp_out out;
-  cli_put put;
+static const struct option compensate_longopts[] = {
+  { "output", required_argument, NULL, 'o' },
+  { "force", no_argument, NULL, 'f' },
+  { "point", required_argument, NULL, OPT_POINT },
+  { "cartesian", required_argument, NULL, OPT_CARTESIAN },
+  { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
+  { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
+  { "tol-position", required_argument, NULL, OPT_TOL_POS },
+  { "tol-angle", required_argument, NULL, OPT_TOL_ANG },
+  { "max-iter", required_argument, NULL, OPT_MAX_ITER },
+  { "singular-threshold", required_argument, NULL, OPT_SINGULAR },
+  { "allow-flagged", no_argument, NULL, OPT_ALLOW },
+  CLI_URDF_LONGOPTS,
+  { "payload", required_argument, NULL, OPT_PAYLOAD },
+  { "help", no_argument, NULL, 'h' },
+  { NULL, 0, NULL, 0 }
+};
 
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
+/* The command's settings as the options give them. The tolerances stay
+ * text until the input's units are known; co is completed by the loading
+ * steps (payload, tolerances, --point). */
+typedef struct comp_settings {
+  const char *output;           /* -o, or NULL: standard output */
+  const char *point;            /* --point target, or NULL */
+  const char *cartesian;        /* --cartesian goal file, or NULL: a program */
+  const char *tol_pos, *tol_ang;/* --tol-position, --tol-angle as typed */
+  const char *payload_name;     /* --payload, or NULL */
+  /* the operands, NULL-terminated: NOMINAL, ASBUILT, PROGRAM.csv; with
+   * --cartesian ASBUILT and the goal file */
+  const char *inputs[4];
+  const char *asbuilt_path, *input_path;
+  int force, allow;
+  int help_shown;               /* -h: the help is printed, nothing else to do */
+  twf_campaign_options copt;
+  twf_compensate_options co;
+  twf_read_options ropt;
+  cli_urdf_links urdf_links;    /* the --target-link names that ropt points to */
+} comp_settings;
+
+static void comp_settings_init(comp_settings *s)
+{
+  memset(s, 0, sizeof *s);
+  s->copt = twf_campaign_default_options();
+  s->co = twf_compensate_default_options();
+  s->ropt = twf_read_default_options();
+  s->urdf_links = (cli_urdf_links){ { NULL }, 0 };
+}
+
+static int parse_max_iter(comp_settings *s, const char *arg)
+{
+  char *end;
+  long v = strtol(arg, &end, 10);
+  if (*arg == '\0' || *end != '\0' || v < 1 || v > 100000)
+    return cli_usage_error("compensate", "--max-iter takes a count from 1 to 100000");
+  s->co.ik.max_iter = (unsigned)v;
+  return 0;
+}
+
+static int parse_singular_threshold(comp_settings *s, const char *arg)
+{
+  double *t = &s->co.ik.singular_threshold;
+  if (cli_parse_double(arg, t) != 0 || *t < 0 || *t > 1)
+    return cli_usage_error("compensate", "--singular-threshold takes a number from 0 to 1, not '%s'", arg);
+  return 0;
+}
+
+/* One option of getopt_long into s: 0, or the exit status of a bad one. */
+static int take_option(comp_settings *s, int opt, char *arg, char **argv)
+{
+  int status;
+  switch (opt) {
+  case 'o': s->output = arg; break;
+  case 'f': s->force = 1; break;
+  case OPT_POINT: s->point = arg; break;
+  case OPT_CARTESIAN: s->cartesian = arg; break;
+  case OPT_LENGTH_UNIT:
+    if ((status = cli_parse_length_unit("compensate", arg, &s->copt.length_unit)) != 0)
+      return status;
+    s->copt.length_from_caller = 1;
+    break;
+  case OPT_ANGLE_UNIT:
+    if ((status = cli_parse_angle_unit("compensate", arg, &s->copt.angle_unit)) != 0)
+      return status;
+    s->copt.angle_from_caller = 1;
+    break;
+  case OPT_TOL_POS: s->tol_pos = arg; break;
+  case OPT_TOL_ANG: s->tol_ang = arg; break;
+  case OPT_MAX_ITER: return parse_max_iter(s, arg);
+  case OPT_SINGULAR: return parse_singular_threshold(s, arg);
+  case OPT_ALLOW: s->allow = 1; break;
+  case CLI_OPT_BASE_LINK:
+  case CLI_OPT_TIP_LINK:
+  case CLI_OPT_TARGET_LINK: return cli_urdf_longopt("compensate", opt, arg, &s->urdf_links, &s->ropt);
+  case OPT_PAYLOAD: s->payload_name = arg; break;
+  case 'h': fputs(compensate_help, stdout); s->help_shown = 1; break;
+  default: return cli_bad_option("compensate", opt, argv);
+  }
+  return 0;
+}
+
+/* The operands after the options: NOMINAL ASBUILT PROGRAM.csv, or
+ * ASBUILT alone with --cartesian (which excludes --point). */
+static int take_operands(comp_settings *s, int n_pos, char **pos)
+{
+  if (s->cartesian != NULL ? n_pos != 1 : n_pos != 3)
+    return cli_usage_error("compensate", s->cartesian != NULL ? "with --cartesian, give ASBUILT only"
+                                                              : "expected NOMINAL, ASBUILT and PROGRAM.csv");
+  if (s->cartesian != NULL && s->point != NULL)
+    return cli_usage_error("compensate", "--point and --cartesian exclude each other (a Cartesian row names "
+                                         "its point in the target column)");
+  if (s->cartesian != NULL) {
+    s->inputs[0] = pos[0];
+    s->inputs[1] = s->cartesian;
+  } else {
+    s->inputs[0] = pos[0];
+    s->inputs[1] = pos[1];
+    s->inputs[2] = pos[2];
+  }
+  s->asbuilt_path = s->inputs[s->cartesian ? 0 : 1];
+  s->input_path = s->cartesian ? s->cartesian : s->inputs[2];
+  return 0;
+}
+
+/* The command line into s: 0, or the exit status of a usage error;
+ * s->help_shown after -h. */
+static int parse_options(int argc, char **argv, comp_settings *s)
+{
+  int opt, status;
+  comp_settings_init(s);
   optind = 0;
   opterr = 0;
-  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
-    switch (opt) {
-    case 'o': output = optarg; break;
-    case 'f': force = 1; break;
-    case OPT_POINT: point = optarg; break;
-    case OPT_CARTESIAN: cartesian = optarg; break;
-    case OPT_LENGTH_UNIT:
-      if ((status = cli_parse_length_unit("compensate", optarg, &copt.length_unit)) != 0)
-        goto done;
-      copt.length_from_caller = 1;
-      break;
-    case OPT_ANGLE_UNIT:
-      if ((status = cli_parse_angle_unit("compensate", optarg, &copt.angle_unit)) != 0)
-        goto done;
-      copt.angle_from_caller = 1;
-      break;
-    case OPT_TOL_POS: tol_pos = optarg; break;
-    case OPT_TOL_ANG: tol_ang = optarg; break;
-    case OPT_MAX_ITER: {
-      char *end;
-      long v = strtol(optarg, &end, 10);
-      if (*optarg == '\0' || *end != '\0' || v < 1 || v > 100000) {
-        status = cli_usage_error("compensate", "--max-iter takes a count from 1 to 100000");
-        goto done;
-      }
-      co.ik.max_iter = (unsigned)v;
-      break;
-    }
-    case OPT_SINGULAR:
-      if (cli_parse_double(optarg, &co.ik.singular_threshold) != 0 || co.ik.singular_threshold < 0 ||
-          co.ik.singular_threshold > 1) {
-        status = cli_usage_error("compensate", "--singular-threshold takes a number from 0 to 1, not '%s'", optarg);
-        goto done;
-      }
-      break;
-    case OPT_ALLOW: allow = 1; break;
-    case CLI_OPT_BASE_LINK:
-    case CLI_OPT_TIP_LINK:
-    case CLI_OPT_TARGET_LINK:
-      if ((status = cli_urdf_longopt("compensate", opt, optarg, &urdf_links, &ropt)) != 0)
-        goto done;
-      break;
-    case OPT_PAYLOAD: payload_name = optarg; break;
-    case 'h': fputs(compensate_help, stdout); goto done;
-    default: status = cli_bad_option("compensate", opt, argv); goto done;
-    }
-  }
-  n_pos = argc - optind;
-  if (cartesian != NULL ? n_pos != 1 : n_pos != 3) {
-    status = cli_usage_error("compensate", cartesian != NULL ? "with --cartesian, give ASBUILT only"
-                                                             : "expected NOMINAL, ASBUILT and PROGRAM.csv");
-    goto done;
-  }
-  if (cartesian != NULL && point != NULL) {
-    status = cli_usage_error("compensate", "--point and --cartesian exclude each other (a Cartesian row names "
-                                           "its point in the target column)");
-    goto done;
-  }
-  if (cartesian != NULL) {
-    inputs[0] = argv[optind];
-    inputs[1] = cartesian;
-  } else {
-    inputs[0] = argv[optind];
-    inputs[1] = argv[optind + 1];
-    inputs[2] = argv[optind + 2];
-  }
-  if ((status = cli_outputs_check("compensate", &output, names, 1, force, inputs)) != 0)
-    goto done;
+  while ((opt = getopt_long(argc, argv, ":o:fh", compensate_longopts, NULL)) != -1)
+    if ((status = take_option(s, opt, optarg, argv)) != 0 || s->help_shown)
+      return status;
+  return take_operands(s, argc - optind, argv + optind);
+}
 
-  /* the models and the input */
-  if (cartesian == NULL) {
-    nominal = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err);
-    if (nominal == NULL)
-      goto fail;
-  }
-  asbuilt = twf_model_read_with(inputs[cartesian ? 0 : 1], &ropt, &warnings, NULL, &err);
-  if (asbuilt == NULL)
-    goto fail;
-  if (nominal != NULL && twf_models_same_joints(nominal, asbuilt, inputs[0], inputs[1], &err) != TWF_OK)
-    goto fail;
-  if (cartesian == NULL) {
-    input = twf_campaign_read_joints(inputs[2], nominal, &copt, &warnings, &err);
-  } else {
-    goal_model = with_flange_target(asbuilt);
-    if (goal_model == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    input = twf_campaign_read(cartesian, goal_model, &copt, &warnings, &err);
-  }
-  if (input == NULL)
-    goto fail;
-  cli_print_warnings(&warnings);
-  warned = 1;
-  /* the load: --payload, or the input's payload column (one for all rows) */
-  if ((status = cli_payload_resolve("compensate", asbuilt, payload_name, &co.ik.payload)) != 0)
-    goto done;
-  if (input->pose_payload != NULL) {
-    const twf_model *named = cartesian ? goal_model : nominal;
-    long first = twf_campaign_payload(input, 0);
-    size_t k;
-    if (payload_name != NULL) {
-      status = cli_usage_error("compensate", "%s names the payload of its rows: leave out --payload",
-                               inputs[cartesian ? 1 : 2]);
-      goto done;
-    }
-    for (k = 1; k < input->n_poses; k++)
-      if (twf_campaign_payload(input, k) != first) {
-        status = cli_usage_error("compensate", "%s names more than one payload: compensate one program "
-                                 "per load", inputs[cartesian ? 1 : 2]);
-        goto done;
-      }
-    co.ik.payload = first >= 0 ? twf_model_payload_index(asbuilt, named->payloads[first].name) : -1;
-    if (first >= 0 && co.ik.payload < 0) {
-      status = cli_usage_error("compensate", "the as-built model does not declare the payload '%s'",
-                               named->payloads[first].name);
-      goto done;
-    }
-  }
-  memset(&out, 0, sizeof out);
-  declared_units(cartesian ? cartesian : inputs[2], &copt, &out.lu, &out.au);
-  if (tol_pos != NULL &&
-      (status = cli_parse_tolerance("compensate", "--tol-position", tol_pos, twf_length_unit_si(out.lu),
-                                    &co.ik.tol_position_m)) != 0)
-    goto done;
-  if (tol_ang != NULL &&
-      (status = cli_parse_tolerance("compensate", "--tol-angle", tol_ang, twf_angle_unit_si(out.au),
-                                    &co.ik.tol_angle_rad)) != 0)
-    goto done;
-  if (point != NULL) {
-    co.kind = TWF_IK_POINT;
-    co.target = point;
-  }
+/* The output checked against the inputs and what exists, before any work. */
+static int check_output(comp_settings *s)
+{
+  static const char *const names[1] = { "--output" };
+  return cli_outputs_check("compensate", &s->output, names, 1, s->force, s->inputs);
+}
 
-  /* the work */
-  out.n_rows = cartesian ? input->n_meas : input->n_poses;
-  res = calloc(out.n_rows ? out.n_rows : 1, sizeof *res);
-  qout = calloc((out.n_rows ? out.n_rows : 1) * asbuilt->n_joints, sizeof *qout);
-  if (res == NULL || qout == NULL) {
-    status = TWF_EXIT_INTERNAL;
-    goto done;
-  }
-  if (cartesian == NULL) {
-    if (twf_compensate_program(nominal, asbuilt, input->q, input->n_poses, &co, qout, res, &sum, &err) != TWF_OK) {
-      if (err.line > 0) {
-        /* the row's line in the program */
-        err.line = input->pose_lines[err.line - 1];
-        snprintf(err.file, sizeof err.file, "%s", inputs[2]);
-      }
-      goto fail;
-    }
-  } else {
-    twf_ik *w = twf_ik_alloc(asbuilt->n_joints);
-    size_t r;
-    if (w == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    for (r = 0; r < input->n_meas; r++) {
-      const twf_measurement *ms = &input->meas[r];
-      twf_ik_goal g;
-      g.kind = ms->has_orientation ? TWF_IK_POSE : TWF_IK_POINT;
-      if (ms->has_orientation) {
-        twf_quat_to_rot(twf_campaign_meas_quat(input, r), g.R);
-      } else {
-        /* no orientation given: the seed's orientation is the reference of
-         * the reported angle */
-        twf_pose T;
-        twf_model_fk(asbuilt, input->q + ms->pose * asbuilt->n_joints, NULL, &T);
-        memcpy(g.R, T.R, sizeof g.R);
-      }
-      memcpy(g.p, ms->pos, sizeof g.p);
-      memcpy(g.point, goal_model->targets[ms->target].offset, sizeof g.point);
-      if (!goal_model->targets[ms->target].offset_known) {
-        twf_error_set(&err, TWF_ERR_MISSING, cartesian, ms->line, 0,
-                      "give the target an offset in the as-built model, or use 'flange'",
-                      "target %s has no offset in the as-built model", goal_model->targets[ms->target].name);
-        twf_ik_free(w);
-        goto fail;
-      }
-      if (twf_ik_solve(w, asbuilt, &g, input->q + ms->pose * asbuilt->n_joints, &co.ik,
-                       qout + r * asbuilt->n_joints, &res[r], &err) != TWF_OK) {
-        snprintf(err.file, sizeof err.file, "%s", cartesian);
-        err.line = ms->line;
-        twf_ik_free(w);
-        goto fail;
-      }
-    }
-    twf_ik_free(w);
-    twf_compensate_summarize(asbuilt, res, input->n_meas, &sum);
-  }
+/* What a run reads and makes; comp_job_free releases it. */
+typedef struct comp_job {
+  twf_model *nominal;            /* NULL with --cartesian */
+  twf_model *asbuilt;
+  twf_model *goal_model;         /* --cartesian: the as-built model with a flange target */
+  twf_campaign *input;           /* the program or the goals */
+  size_t n_rows;
+  twf_ik_result *res;            /* per row */
+  double *qout;                  /* per row: the compensated joint values, SI */
+  twf_compensate_summary sum;
+  twf_length_unit lu;            /* of the input file */
+  twf_angle_unit au;
+  twf_warnings warnings;
+  int warned;                    /* the readers' warnings are printed */
+  twf_error err;
+} comp_job;
 
-  out.model = asbuilt;
-  out.input = input;
-  out.goal_model = goal_model;
-  out.cartesian = cartesian != NULL;
-  out.q = qout;
-  out.res = res;
-  out.nominal_path = inputs[0];
-  out.asbuilt_path = inputs[cartesian ? 0 : 1];
-  out.input_path = cartesian ? cartesian : inputs[2];
-  out.point = point;
-  put.path = output != NULL ? output : "-";
+static void comp_job_init(comp_job *j)
+{
+  memset(j, 0, sizeof *j);
+  twf_warnings_init(&j->warnings);
+  twf_error_clear(&j->err);
+}
+
+static void comp_job_free(comp_job *j)
+{
+  free(j->res);
+  free(j->qout);
+  twf_campaign_free(j->input);
+  twf_model_free(j->goal_model);
+  twf_model_free(j->asbuilt);
+  twf_model_free(j->nominal);
+  twf_warnings_clear(&j->warnings);
+}
+
+/* The library's error in j->err reported, after the readers' warnings
+ * (unless printed already) and with a hint for a goal the arm cannot
+ * meet; returns the exit status. */
+static int report_failure(const comp_settings *s, comp_job *j)
+{
+  if (!j->warned)
+    cli_print_warnings(&j->warnings);
+  if (j->err.status == TWF_ERR_DEGENERATE && s->cartesian == NULL)
+    snprintf(j->err.hint, sizeof j->err.hint, "match one target's position with --point T");
+  else if (j->err.status == TWF_ERR_DEGENERATE)
+    snprintf(j->err.hint, sizeof j->err.hint, "leave out the quaternion: the row then asks for the position only");
+  return cli_report_error(&j->err);
+}
+
+/* NOMINAL (not with --cartesian) and ASBUILT, with the same joints. */
+static int read_models(const comp_settings *s, comp_job *j)
+{
+  if (s->cartesian == NULL) {
+    j->nominal = twf_model_read_with(s->inputs[0], &s->ropt, &j->warnings, NULL, &j->err);
+    if (j->nominal == NULL)
+      return report_failure(s, j);
+  }
+  j->asbuilt = twf_model_read_with(s->asbuilt_path, &s->ropt, &j->warnings, NULL, &j->err);
+  if (j->asbuilt == NULL)
+    return report_failure(s, j);
+  if (j->nominal != NULL &&
+      twf_models_same_joints(j->nominal, j->asbuilt, s->inputs[0], s->inputs[1], &j->err) != TWF_OK)
+    return report_failure(s, j);
+  return 0;
+}
+
+/* The program (read with NOMINAL's joints) or the Cartesian goals (read
+ * with the as-built model and its flange target); then the readers'
+ * warnings. */
+static int read_input(const comp_settings *s, comp_job *j)
+{
+  if (s->cartesian == NULL) {
+    j->input = twf_campaign_read_joints(s->inputs[2], j->nominal, &s->copt, &j->warnings, &j->err);
+  } else {
+    j->goal_model = with_flange_target(j->asbuilt);
+    if (j->goal_model == NULL)
+      return TWF_EXIT_INTERNAL;
+    j->input = twf_campaign_read(s->cartesian, j->goal_model, &s->copt, &j->warnings, &j->err);
+  }
+  if (j->input == NULL)
+    return report_failure(s, j);
+  cli_print_warnings(&j->warnings);
+  j->warned = 1;
+  return 0;
+}
+
+/* The load: --payload, or the input's payload column (one for all rows),
+ * into s->co.ik.payload. */
+static int settle_payload(comp_settings *s, const comp_job *j)
+{
+  const twf_campaign *input = j->input;
+  const twf_model *named = s->cartesian ? j->goal_model : j->nominal;
+  long first;
+  size_t k;
+  int status;
+  if ((status = cli_payload_resolve("compensate", j->asbuilt, s->payload_name, &s->co.ik.payload)) != 0)
+    return status;
+  if (input->pose_payload == NULL)
+    return 0;
+  first = twf_campaign_payload(input, 0);
+  if (s->payload_name != NULL)
+    return cli_usage_error("compensate", "%s names the payload of its rows: leave out --payload", s->input_path);
+  for (k = 1; k < input->n_poses; k++)
+    if (twf_campaign_payload(input, k) != first)
+      return cli_usage_error("compensate", "%s names more than one payload: compensate one program "
+                             "per load", s->input_path);
+  s->co.ik.payload = first >= 0 ? twf_model_payload_index(j->asbuilt, named->payloads[first].name) : -1;
+  if (first >= 0 && s->co.ik.payload < 0)
+    return cli_usage_error("compensate", "the as-built model does not declare the payload '%s'",
+                           named->payloads[first].name);
+  return 0;
+}
+
+/* The input's units, the tolerances given in them and --point, into
+ * s->co. */
+static int take_tolerances(comp_settings *s, comp_job *j)
+{
+  int status;
+  declared_units(s->input_path, &s->copt, &j->lu, &j->au);
+  if (s->tol_pos != NULL &&
+      (status = cli_parse_tolerance("compensate", "--tol-position", s->tol_pos, twf_length_unit_si(j->lu),
+                                    &s->co.ik.tol_position_m)) != 0)
+    return status;
+  if (s->tol_ang != NULL &&
+      (status = cli_parse_tolerance("compensate", "--tol-angle", s->tol_ang, twf_angle_unit_si(j->au),
+                                    &s->co.ik.tol_angle_rad)) != 0)
+    return status;
+  if (s->point != NULL) {
+    s->co.kind = TWF_IK_POINT;
+    s->co.target = s->point;
+  }
+  return 0;
+}
+
+/* Every input read and checked, the options completed in the input's
+ * units. */
+static int load_inputs(comp_settings *s, comp_job *j)
+{
+  int status;
+  if ((status = read_models(s, j)) != 0 || (status = read_input(s, j)) != 0 ||
+      (status = settle_payload(s, j)) != 0 || (status = take_tolerances(s, j)) != 0)
+    return status;
+  return 0;
+}
+
+/* Room for the result and the joint values of every row. */
+static int alloc_rows(const comp_settings *s, comp_job *j)
+{
+  j->n_rows = s->cartesian ? j->input->n_meas : j->input->n_poses;
+  j->res = calloc(j->n_rows ? j->n_rows : 1, sizeof *j->res);
+  j->qout = calloc((j->n_rows ? j->n_rows : 1) * j->asbuilt->n_joints, sizeof *j->qout);
+  return j->res == NULL || j->qout == NULL ? TWF_EXIT_INTERNAL : 0;
+}
+
+/* Each row of the program on the as-built arm; an error names the row's
+ * line in the program. */
+static int compensate_program(const comp_settings *s, comp_job *j)
+{
+  const twf_campaign *input = j->input;
+  if (twf_compensate_program(j->nominal, j->asbuilt, input->q, input->n_poses, &s->co, j->qout, j->res, &j->sum,
+                             &j->err) != TWF_OK) {
+    if (j->err.line > 0) {
+      /* the row's line in the program */
+      j->err.line = input->pose_lines[j->err.line - 1];
+      snprintf(j->err.file, sizeof j->err.file, "%s", s->inputs[2]);
+    }
+    return report_failure(s, j);
+  }
+  return 0;
+}
+
+/* The goal of Cartesian row r in the as-built base frame. */
+static void goal_of_row(const comp_job *j, size_t r, twf_ik_goal *g)
+{
+  const twf_campaign *input = j->input;
+  const twf_measurement *ms = &input->meas[r];
+  g->kind = ms->has_orientation ? TWF_IK_POSE : TWF_IK_POINT;
+  if (ms->has_orientation) {
+    twf_quat_to_rot(twf_campaign_meas_quat(input, r), g->R);
+  } else {
+    /* no orientation given: the seed's orientation is the reference of
+     * the reported angle */
+    twf_pose T;
+    twf_model_fk(j->asbuilt, input->q + ms->pose * j->asbuilt->n_joints, NULL, &T);
+    memcpy(g->R, T.R, sizeof g->R);
+  }
+  memcpy(g->p, ms->pos, sizeof g->p);
+  memcpy(g->point, j->goal_model->targets[ms->target].offset, sizeof g->point);
+}
+
+/* Cartesian row r solved from its seed: TWF_OK, or the error in j->err
+ * (at the row's line of the goal file). */
+static twf_status solve_goal_row(const comp_settings *s, comp_job *j, twf_ik *w, size_t r)
+{
+  const twf_measurement *ms = &j->input->meas[r];
+  const twf_target *t = &j->goal_model->targets[ms->target];
+  size_t n = j->asbuilt->n_joints;
+  twf_ik_goal g;
+  goal_of_row(j, r, &g);
+  if (!t->offset_known)
+    return twf_error_set(&j->err, TWF_ERR_MISSING, s->cartesian, ms->line, 0,
+                         "give the target an offset in the as-built model, or use 'flange'",
+                         "target %s has no offset in the as-built model", t->name);
+  if (twf_ik_solve(w, j->asbuilt, &g, j->input->q + ms->pose * n, &s->co.ik, j->qout + r * n, &j->res[r],
+                   &j->err) != TWF_OK) {
+    snprintf(j->err.file, sizeof j->err.file, "%s", s->cartesian);
+    j->err.line = ms->line;
+    return j->err.status;
+  }
+  return TWF_OK;
+}
+
+/* --cartesian: inverse kinematics of the as-built arm for every goal, and
+ * the summary over the rows. */
+static int solve_goals(const comp_settings *s, comp_job *j)
+{
+  twf_ik *w = twf_ik_alloc(j->asbuilt->n_joints);
+  size_t r;
+  if (w == NULL)
+    return TWF_EXIT_INTERNAL;
+  for (r = 0; r < j->input->n_meas; r++)
+    if (solve_goal_row(s, j, w, r) != TWF_OK) {
+      twf_ik_free(w);
+      return report_failure(s, j);
+    }
+  twf_ik_free(w);
+  twf_compensate_summarize(j->asbuilt, j->res, j->input->n_meas, &j->sum);
+  return 0;
+}
+
+/* The joint values of every row (program or goals) and their summary. */
+static int compensate(const comp_settings *s, comp_job *j)
+{
+  int status;
+  if ((status = alloc_rows(s, j)) != 0)
+    return status;
+  return s->cartesian == NULL ? compensate_program(s, j) : solve_goals(s, j);
+}
+
+/* What the CSV and the summary show of a run. */
+static void compensate_view(const comp_settings *s, const comp_job *j, comp_out *out)
+{
+  memset(out, 0, sizeof *out);
+  out->model = j->asbuilt;
+  out->input = j->input;
+  out->goal_model = j->goal_model;
+  out->cartesian = s->cartesian != NULL;
+  out->n_rows = j->n_rows;
+  out->q = j->qout;
+  out->res = j->res;
+  out->lu = j->lu;
+  out->au = j->au;
+  out->nominal_path = s->inputs[0];
+  out->asbuilt_path = s->asbuilt_path;
+  out->input_path = s->input_path;
+  out->point = s->point;
+}
+
+/* The CSV to -o FILE (atomically) or standard output. */
+static int write_compensated(const comp_settings *s, comp_out *out)
+{
+  cli_put put;
+  put.path = s->output != NULL ? s->output : "-";
   put.put = put_compensated;
-  put.ctx = &out;
-  status = cli_write_outputs(&put, 1, force, inputs);
-  if (status == TWF_EXIT_OK) {
-    print_summary(&sum, &out, allow);
-    if (sum.n_flagged > 0 && !allow)
-      status = TWF_EXIT_REJECTED;
-  }
-  goto done;
+  put.ctx = out;
+  return cli_write_outputs(&put, 1, s->force, s->inputs);
+}
 
-fail:
-  if (!warned)
-    cli_print_warnings(&warnings);
-  if (err.status == TWF_ERR_DEGENERATE && cartesian == NULL)
-    snprintf(err.hint, sizeof err.hint, "match one target's position with --point T");
-  else if (err.status == TWF_ERR_DEGENERATE)
-    snprintf(err.hint, sizeof err.hint, "leave out the quaternion: the row then asks for the position only");
-  status = cli_report_error(&err);
-done:
-  free(res);
-  free(qout);
-  twf_campaign_free(input);
-  twf_model_free(goal_model);
-  twf_model_free(asbuilt);
-  twf_model_free(nominal);
-  twf_warnings_clear(&warnings);
+static int run_compensate(int argc, char **argv)
+{
+  comp_settings s;
+  comp_job j;
+  comp_out out;
+  int status;
+
+  if ((status = parse_options(argc, argv, &s)) != 0 || s.help_shown)
+    return status;
+  if ((status = check_output(&s)) != 0)
+    return status;
+  comp_job_init(&j);
+  if ((status = load_inputs(&s, &j)) == 0 && (status = compensate(&s, &j)) == 0) {
+    compensate_view(&s, &j, &out);
+    status = write_compensated(&s, &out);
+    if (status == TWF_EXIT_OK) {
+      print_summary(&j.sum, &out, s.allow);
+      if (j.sum.n_flagged > 0 && !s.allow)
+        status = TWF_EXIT_REJECTED;
+    }
+  }
+  comp_job_free(&j);
   return status;
 }
 

@@ -70,11 +70,12 @@ static void declared_units(const char *path, const twf_campaign_options *copt, t
                            twf_angle_unit *au)
 {
   FILE *fp = fopen(path, "r");
-  char line[1024];
+  char *line = NULL; /* whole lines (the reader took them whole): no part of a long comment read as a line */
+  size_t cap = 0;
   int first = 1;
   *lu = TWF_LENGTH_MM;
   *au = TWF_ANGLE_DEG;
-  while (fp != NULL && fgets(line, sizeof line, fp) != NULL) {
+  while (fp != NULL && getline(&line, &cap, fp) != -1) {
     char *p = line, *tok, *save = NULL;
     if (first && (unsigned char)p[0] == 0xEF && (unsigned char)p[1] == 0xBB && (unsigned char)p[2] == 0xBF)
       p += 3;
@@ -107,6 +108,7 @@ static void declared_units(const char *path, const twf_campaign_options *copt, t
     }
     break;
   }
+  free(line);
   if (fp != NULL)
     fclose(fp);
   if (copt->length_from_caller)

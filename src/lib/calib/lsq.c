@@ -706,22 +706,17 @@ static size_t pose_rows(const twf_lsq_problem *pr, size_t pose)
  * first are added here, as are the target-target block W_t R_c . R_d and
  * the gradient R_c . sum w_i r_i (pose_rank6). */
 
-/* What the columns of a pose's rank-6 block are made from: M =
- * [[P, [s]x], [-[s]x, W I]] about o, and where the target columns lie. */
-typedef struct rank6_pose {
+/* M = [[P, [s]x], [-[s]x, W I]] about o: what a pose's twist columns are
+ * multiplied by (pose_rank6 fills it, a local). */
+typedef struct rank6_m {
   double P[3][3], s[3], W, o[3];
-  size_t tlo, thi; /* the pass's target columns are among [tlo, thi) */
-} rank6_pose;
+} rank6_m;
 
-/* Twist column a of the block: c = (w, v + w x o), wc = M c; then its
- * terms e^T N with the target columns after it (N is in their wc by now;
- * the kernel leaves these out, their c being zero). */
-static void rank6_col(const rank6_pose *q, const lsq_col *cd, const double *e, size_t a, size_t ld, double *C,
-                      double *WC, double *A)
+/* Twist column a of the block: c = (w, v + w x o), wc = M c. */
+static inline TWF_TILE_INLINE void rank6_col(const rank6_m *q, const double *e, size_t a, size_t ld, double *C, double *WC)
 {
   const double *o = q->o, *s = q->s;
   double w0 = e[0], w1 = e[1], w2 = e[2], v0, v1, v2;
-  size_t b;
   v0 = e[3] + (w1 * o[2] - w2 * o[1]);
   v1 = e[4] + (w2 * o[0] - w0 * o[2]);
   v2 = e[5] + (w0 * o[1] - w1 * o[0]);
@@ -737,21 +732,22 @@ static void rank6_col(const rank6_pose *q, const lsq_col *cd, const double *e, s
   WC[3 * ld + a] = (w1 * s[2] - w2 * s[1]) + q->W * v0;
   WC[4 * ld + a] = (w2 * s[0] - w0 * s[2]) + q->W * v1;
   WC[5 * ld + a] = (w0 * s[1] - w1 * s[0]) + q->W * v2;
-  for (b = a + 1 > q->tlo ? a + 1 : q->tlo; b < q->thi; b++)
-    if (cd[b].target >= 0)
-      A[a * ld + b] += w0 * WC[b] + w1 * WC[ld + b] + w2 * WC[2 * ld + b] + v0 * WC[3 * ld + b] +
-                       v1 * WC[4 * ld + b] + v2 * WC[5 * ld + b];
 }
 
 #if defined(__GNUC__)
+/* M's coefficients in both lanes, made once a pose (SSE2 has no
+ * broadcast from memory). */
+typedef struct rank6_m2 {
+  v2d P[3][3], s[3], W, o[3];
+} rank6_m2;
+
 /* rank6_col for twist columns a and a + 1 in two lanes: the same
  * operations, so the same bits. */
-static void rank6_col2(const rank6_pose *q, const lsq_col *cd, const double *e, const double *f, size_t a,
-                       size_t ld, double *C, double *WC, double *A)
+static inline TWF_TILE_INLINE void rank6_col2(const rank6_m2 *q, const double *e, const double *f, size_t a, size_t ld, double *C,
+                              double *WC)
 {
-  const double *o = q->o, *s = q->s;
+  const v2d *o = q->o, *s = q->s;
   v2d w0 = { e[0], f[0] }, w1 = { e[1], f[1] }, w2 = { e[2], f[2] }, v0, v1, v2;
-  size_t b;
   v0 = (v2d){ e[3], f[3] } + (w1 * o[2] - w2 * o[1]);
   v1 = (v2d){ e[4], f[4] } + (w2 * o[0] - w0 * o[2]);
   v2 = (v2d){ e[5], f[5] } + (w0 * o[1] - w1 * o[0]);
@@ -767,15 +763,43 @@ static void rank6_col2(const rank6_pose *q, const lsq_col *cd, const double *e, 
   st2(WC + 3 * ld + a, (w1 * s[2] - w2 * s[1]) + q->W * v0);
   st2(WC + 4 * ld + a, (w2 * s[0] - w0 * s[2]) + q->W * v1);
   st2(WC + 5 * ld + a, (w0 * s[1] - w1 * s[0]) + q->W * v2);
-  for (b = a + 1 > q->tlo ? a + 1 : q->tlo; b < q->thi; b++)
-    if (cd[b].target >= 0) {
-      v2d d = w0 * WC[b] + w1 * WC[ld + b] + w2 * WC[2 * ld + b] + v0 * WC[3 * ld + b] + v1 * WC[4 * ld + b] +
-              v2 * WC[5 * ld + b];
-      A[a * ld + b] += d[0];
-      A[(a + 1) * ld + b] += d[1];
-    }
 }
 #endif
+
+/* Every twist column of the block (rank6_col), in the clones of
+ * batch_flush: with AVX the two lanes take three-operand instructions,
+ * the same operations. */
+TWF_BATCH_CLONES static void rank6_twists(const rank6_m *q, const lsq_col *cd, const double *tw, size_t nc,
+                                          size_t ld, double *C, double *WC)
+{
+  size_t a;
+#if defined(__GNUC__)
+  rank6_m2 q2;
+  int k, l;
+  for (k = 0; k < 3; k++) {
+    for (l = 0; l < 3; l++)
+      q2.P[k][l] = (v2d){ q->P[k][l], q->P[k][l] };
+    q2.s[k] = (v2d){ q->s[k], q->s[k] };
+    q2.o[k] = (v2d){ q->o[k], q->o[k] };
+  }
+  q2.W = (v2d){ q->W, q->W };
+#endif
+  for (a = 0; a < nc;) {
+    if (cd[a].target >= 0) {
+      a++;
+      continue;
+    }
+#if defined(__GNUC__)
+    if (a + 1 < nc && cd[a + 1].target < 0) {
+      rank6_col2(&q2, tw + 6 * cd[a].j, tw + 6 * cd[a + 1].j, a, ld, C, WC);
+      a += 2;
+      continue;
+    }
+#endif
+    rank6_col(q, tw + 6 * cd[a].j, a, ld, C, WC);
+    a++;
+  }
+}
 
 /* The pose's block as entries bt->n and bt->n + 1 of the batch (room for
  * two left by the caller), with the terms the kernel does not make added
@@ -791,12 +815,10 @@ static void pose_rank6(const pass *ps, const twf_lsq_ws *ws, size_t pose, size_t
   const twf_pose *F = twf_errmodel_flange(ws->em);
   size_t nc = ps->nc, ld = ps->ld, a, b, t;
   double *C = bt->c + 3 * bt->n * ld, *WC = bt->wc + 3 * bt->n * ld, h[6] = { 0.0 };
-  rank6_pose q;
+  rank6_m q;
   int k, l;
   memset(&q, 0, sizeof q);
   memcpy(q.o, F->p, sizeof q.o);
-  q.tlo = tlo;
-  q.thi = thi;
   /* the target columns gather their sums in place while the measurements
    * are read: s_t in wc rows 0-2, W_t in wc row 3, sum w r in c rows 0-2 */
   for (a = tlo; a < thi; a++)
@@ -855,42 +877,63 @@ static void pose_rank6(const pass *ps, const twf_lsq_ws *ws, size_t pose, size_t
   q.P[2][1] = q.P[1][2];
   /* target columns: gradient, their own block, then N in place of the sums */
   for (b = tlo; b < thi; b++) {
-    double Rc[3], st[3], Wt;
+    double R0, R1, R2, s0, s1, s2, Wt;
     size_t d;
+    int cb;
     if (cd[b].target < 0)
       continue;
-    for (k = 0; k < 3; k++)
-      Rc[k] = F->R[k][cd[b].comp];
-    g[b] += Rc[0] * C[b] + Rc[1] * C[ld + b] + Rc[2] * C[2 * ld + b];
+    cb = cd[b].comp;
+    R0 = F->R[0][cb];
+    R1 = F->R[1][cb];
+    R2 = F->R[2][cb];
+    g[b] += R0 * C[b] + R1 * C[ld + b] + R2 * C[2 * ld + b];
+    s0 = WC[b];
+    s1 = WC[ld + b];
+    s2 = WC[2 * ld + b];
     Wt = WC[3 * ld + b];
     for (d = b; d < thi; d++)
-      if (cd[d].target == cd[b].target)
-        A[b * ld + d] += Wt * (Rc[0] * F->R[0][cd[d].comp] + Rc[1] * F->R[1][cd[d].comp] +
-                               Rc[2] * F->R[2][cd[d].comp]);
-    for (k = 0; k < 3; k++)
-      st[k] = WC[(size_t)k * ld + b];
-    WC[b] = st[1] * Rc[2] - st[2] * Rc[1];
-    WC[ld + b] = st[2] * Rc[0] - st[0] * Rc[2];
-    WC[2 * ld + b] = st[0] * Rc[1] - st[1] * Rc[0];
-    for (k = 0; k < 3; k++) {
-      WC[(size_t)(3 + k) * ld + b] = Wt * Rc[k];
-      C[(size_t)k * ld + b] = 0.0;
-    }
+      if (cd[d].target == cd[b].target) {
+        int cc = cd[d].comp;
+        A[b * ld + d] += Wt * (R0 * F->R[0][cc] + R1 * F->R[1][cc] + R2 * F->R[2][cc]);
+      }
+    WC[b] = s1 * R2 - s2 * R1;
+    WC[ld + b] = s2 * R0 - s0 * R2;
+    WC[2 * ld + b] = s0 * R1 - s1 * R0;
+    WC[3 * ld + b] = Wt * R0;
+    WC[4 * ld + b] = Wt * R1;
+    WC[5 * ld + b] = Wt * R2;
+    C[b] = C[ld + b] = C[2 * ld + b] = 0.0;
   }
-  for (a = 0; a < nc;) {
-    if (cd[a].target >= 0) {
-      a++;
+  rank6_twists(&q, cd, tw, nc, ld, C, WC);
+  /* a twist column before a target column: e^T N, which the kernel
+   * leaves out (the target's c is zero); along a row of A, two target
+   * columns at a time */
+  for (a = 0; a < thi; a++) {
+    double e0, e1, e2, e3, e4, e5;
+    double *Aa = A + a * ld;
+    if (cd[a].target >= 0)
       continue;
-    }
+    e0 = C[a];
+    e1 = C[ld + a];
+    e2 = C[2 * ld + a];
+    e3 = C[3 * ld + a];
+    e4 = C[4 * ld + a];
+    e5 = C[5 * ld + a];
+    for (b = a + 1 > tlo ? a + 1 : tlo; b < thi; b++) {
+      if (cd[b].target < 0)
+        continue;
 #if defined(__GNUC__)
-    if (a + 1 < nc && cd[a + 1].target < 0) {
-      rank6_col2(&q, cd, tw + 6 * cd[a].j, tw + 6 * cd[a + 1].j, a, ld, C, WC, A);
-      a += 2;
-      continue;
-    }
+      if (b + 1 < thi && cd[b + 1].target >= 0) {
+        v2d d = ld2(WC + b) * e0 + ld2(WC + ld + b) * e1 + ld2(WC + 2 * ld + b) * e2 + ld2(WC + 3 * ld + b) * e3 +
+                ld2(WC + 4 * ld + b) * e4 + ld2(WC + 5 * ld + b) * e5;
+        st2(Aa + b, ld2(Aa + b) + d);
+        b++;
+        continue;
+      }
 #endif
-    rank6_col(&q, cd, tw + 6 * cd[a].j, a, ld, C, WC, A);
-    a++;
+      Aa[b] += WC[b] * e0 + WC[ld + b] * e1 + WC[2 * ld + b] * e2 + WC[3 * ld + b] * e3 + WC[4 * ld + b] * e4 +
+               WC[5 * ld + b] * e5;
+    }
   }
   memcpy(bt->r[bt->n], h, sizeof bt->r[0]);
   memcpy(bt->r[bt->n + 1], h + 3, sizeof bt->r[0]);

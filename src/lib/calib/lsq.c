@@ -766,13 +766,16 @@ static inline TWF_TILE_INLINE void rank6_col2(const rank6_m2 *q, const double *e
 }
 #endif
 
-/* Every twist column of the block (rank6_col), in the clones of
- * batch_flush: with AVX the two lanes take three-operand instructions,
- * the same operations. */
+/* Every twist column of the block (rank6_col), then the terms e^T N of
+ * a twist column before a target column (the base's), which the kernel
+ * leaves out (the target's c is zero): along a row of A, up to four
+ * target columns at a time. In the clones of batch_flush: with AVX the
+ * lanes take three-operand instructions, the same operations. N is in
+ * the target columns' wc already. */
 TWF_BATCH_CLONES static void rank6_twists(const rank6_m *q, const lsq_col *cd, const double *tw, size_t nc,
-                                          size_t ld, double *C, double *WC)
+                                          size_t ld, size_t tlo, size_t thi, double *C, double *WC, double *A)
 {
-  size_t a;
+  size_t a, b;
 #if defined(__GNUC__)
   rank6_m2 q2;
   int k, l;
@@ -798,6 +801,39 @@ TWF_BATCH_CLONES static void rank6_twists(const rank6_m *q, const lsq_col *cd, c
 #endif
     rank6_col(q, tw + 6 * cd[a].j, a, ld, C, WC);
     a++;
+  }
+  for (a = 0; a < thi; a++) {
+    double e0, e1, e2, e3, e4, e5, *Aa = A + a * ld;
+    if (cd[a].target >= 0)
+      continue;
+    e0 = C[a];
+    e1 = C[ld + a];
+    e2 = C[2 * ld + a];
+    e3 = C[3 * ld + a];
+    e4 = C[4 * ld + a];
+    e5 = C[5 * ld + a];
+    for (b = a + 1 > tlo ? a + 1 : tlo; b < thi; b++) {
+      if (cd[b].target < 0)
+        continue;
+#if defined(__GNUC__)
+      if (b + 3 < thi && cd[b + 1].target >= 0 && cd[b + 2].target >= 0 && cd[b + 3].target >= 0) {
+        v4d n0, n1, n2, n3, n4, n5, s0;
+        memcpy(&n0, WC + b, sizeof n0);
+        memcpy(&n1, WC + ld + b, sizeof n1);
+        memcpy(&n2, WC + 2 * ld + b, sizeof n2);
+        memcpy(&n3, WC + 3 * ld + b, sizeof n3);
+        memcpy(&n4, WC + 4 * ld + b, sizeof n4);
+        memcpy(&n5, WC + 5 * ld + b, sizeof n5);
+        memcpy(&s0, Aa + b, sizeof s0);
+        s0 += n0 * e0 + n1 * e1 + n2 * e2 + n3 * e3 + n4 * e4 + n5 * e5;
+        memcpy(Aa + b, &s0, sizeof s0);
+        b += 3;
+        continue;
+      }
+#endif
+      Aa[b] += WC[b] * e0 + WC[ld + b] * e1 + WC[2 * ld + b] * e2 + WC[3 * ld + b] * e3 + WC[4 * ld + b] * e4 +
+               WC[5 * ld + b] * e5;
+    }
   }
 }
 
@@ -840,9 +876,12 @@ static void pose_rank6(const pass *ps, const twf_lsq_ws *ws, size_t pose, size_t
     *cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
     /* A^T A = [[|y|^2 I - y y^T, [y]x], [-[y]x, I]], A^T r = (y x r, r) */
     yy = yc[0] * yc[0] + yc[1] * yc[1] + yc[2] * yc[2];
-    for (k = 0; k < 3; k++)
-      for (l = k; l < 3; l++)
-        q.P[k][l] += w * ((k == l ? yy : 0.0) - yc[k] * yc[l]);
+    q.P[0][0] += w * (yy - yc[0] * yc[0]);
+    q.P[0][1] -= w * (yc[0] * yc[1]);
+    q.P[0][2] -= w * (yc[0] * yc[2]);
+    q.P[1][1] += w * (yy - yc[1] * yc[1]);
+    q.P[1][2] -= w * (yc[1] * yc[2]);
+    q.P[2][2] += w * (yy - yc[2] * yc[2]);
     h[0] += w * (yc[1] * r[2] - yc[2] * r[1]);
     h[1] += w * (yc[2] * r[0] - yc[0] * r[2]);
     h[2] += w * (yc[0] * r[1] - yc[1] * r[0]);
@@ -904,37 +943,7 @@ static void pose_rank6(const pass *ps, const twf_lsq_ws *ws, size_t pose, size_t
     WC[5 * ld + b] = Wt * R2;
     C[b] = C[ld + b] = C[2 * ld + b] = 0.0;
   }
-  rank6_twists(&q, cd, tw, nc, ld, C, WC);
-  /* a twist column before a target column: e^T N, which the kernel
-   * leaves out (the target's c is zero); along a row of A, two target
-   * columns at a time */
-  for (a = 0; a < thi; a++) {
-    double e0, e1, e2, e3, e4, e5;
-    double *Aa = A + a * ld;
-    if (cd[a].target >= 0)
-      continue;
-    e0 = C[a];
-    e1 = C[ld + a];
-    e2 = C[2 * ld + a];
-    e3 = C[3 * ld + a];
-    e4 = C[4 * ld + a];
-    e5 = C[5 * ld + a];
-    for (b = a + 1 > tlo ? a + 1 : tlo; b < thi; b++) {
-      if (cd[b].target < 0)
-        continue;
-#if defined(__GNUC__)
-      if (b + 1 < thi && cd[b + 1].target >= 0) {
-        v2d d = ld2(WC + b) * e0 + ld2(WC + ld + b) * e1 + ld2(WC + 2 * ld + b) * e2 + ld2(WC + 3 * ld + b) * e3 +
-                ld2(WC + 4 * ld + b) * e4 + ld2(WC + 5 * ld + b) * e5;
-        st2(Aa + b, ld2(Aa + b) + d);
-        b++;
-        continue;
-      }
-#endif
-      Aa[b] += WC[b] * e0 + WC[ld + b] * e1 + WC[2 * ld + b] * e2 + WC[3 * ld + b] * e3 + WC[4 * ld + b] * e4 +
-               WC[5 * ld + b] * e5;
-    }
-  }
+  rank6_twists(&q, cd, tw, nc, ld, tlo, thi, C, WC, A);
   memcpy(bt->r[bt->n], h, sizeof bt->r[0]);
   memcpy(bt->r[bt->n + 1], h + 3, sizeof bt->r[0]);
   bt->gu[bt->n] = C;

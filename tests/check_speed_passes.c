@@ -250,9 +250,11 @@ END_TEST
  * for g: Cauchy-Schwarz bounds of the entries). Cases: 3 targets (points;
  * 6-D), one target, two of three targets with 6-D rows (the third target's
  * columns stay zero), column subsets with target columns between twist
- * columns (the base's before them, the joints' after), dropped (weight 0)
- * and down-weighted rows (some poses then fall back to the row path), and
- * the 6-axis arm; every case over several chunks. */
+ * columns (the base's before them, the joints' after), every column in
+ * a shuffled order (target columns among twist columns, twist columns
+ * among them), dropped (weight 0) and down-weighted rows (some poses then
+ * fall back to the row path), and the 6-axis arm; every case over several
+ * chunks. */
 START_TEST(test_normal_matrix_folded_per_pose)
 {
   static const struct {
@@ -261,6 +263,7 @@ START_TEST(test_normal_matrix_folded_per_pose)
   } cases[] = {
     { ARM_TF7, 0, 3, 0, 0 }, { ARM_TF7, 0, 1, 0, 0 }, { ARM_TF7, 1, 3, 0, 0 }, { ARM_TF7, 0, 3, 1, 0 },
     { ARM_TF7, 1, 3, 2, 1 }, { ARM_TF7, 1, 2, 1, 0 }, { ARM_TF6S, 0, 3, 0, 1 }, { ARM_TF6S, 1, 3, 1, 1 },
+    { ARM_TF7, 0, 3, 3, 0 }, { ARM_TF7, 1, 3, 3, 1 },
   };
   const int k = _i;
   twf_model *m = test_arm_model(cases[k].arm);
@@ -284,8 +287,29 @@ START_TEST(test_normal_matrix_folded_per_pose)
                                                                                             : 1.0);
   cols = malloc(p * sizeof *cols);
   for (i = 0; i < p; i++)
-    if (cases[k].subset == 0 || (cases[k].subset == 1 ? i % 3 != 1 : i % 4 != 2))
+    if (cases[k].subset == 0 || cases[k].subset == 3 || (cases[k].subset == 1 ? i % 3 != 1 : i % 4 != 2))
       cols[nc++] = i;
+  if (cases[k].subset == 3) {
+    /* Fisher-Yates with a fixed linear congruential sequence */
+    unsigned long long x = 12345;
+    size_t first = nc, last = 0, twist_inside = 0;
+    for (a = nc - 1; a > 0; a--) {
+      size_t tmp;
+      x = x * 6364136223846793005ULL + 1442695040888963407ULL;
+      b = (size_t)((x >> 33) % (a + 1));
+      tmp = cols[a];
+      cols[a] = cols[b];
+      cols[b] = tmp;
+    }
+    for (a = 0; a < nc; a++)
+      if (twf_errmodel_param(pr.em, cols[a])->group == TWF_GROUP_TARGETS) {
+        first = a < first ? a : first;
+        last = a;
+      }
+    for (a = first; a < last; a++)
+      twist_inside += twf_errmodel_param(pr.em, cols[a])->group != TWF_GROUP_TARGETS;
+    ck_assert(twist_inside > 0);
+  }
   /* the subsets keep target columns with twist columns before and after */
   for (a = 0; a < nc; a++)
     if (twf_errmodel_param(pr.em, cols[a])->group == TWF_GROUP_TARGETS)
@@ -346,7 +370,8 @@ START_TEST(test_normal_matrix_folded_per_pose)
                   g0[ca], gs);
     for (b = a; b < nc; b++) {
       size_t cb = cols[b];
-      double ref = A0[ca * p + cb], s = sqrt(A0[ca * p + ca] * A0[cb * p + cb]);
+      /* the reference holds its upper triangle in parameter order */
+      double ref = ca <= cb ? A0[ca * p + cb] : A0[cb * p + ca], s = sqrt(A0[ca * p + ca] * A0[cb * p + cb]);
       ck_assert_msg(fabs(A[a * nc + b] - ref) <= 1e-12 * s, "A[%zu][%zu]: %.17g against %.17g (scale %g)", a, b,
                     A[a * nc + b], ref, s);
       ck_assert(A[b * nc + a] == A[a * nc + b]);
@@ -607,7 +632,7 @@ int main(void)
   tcase_add_loop_test(tc, test_passes_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_calibration_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_normal_matrix_bits_of_the_plain_loop, 0, 2);
-  tcase_add_loop_test(tc, test_normal_matrix_folded_per_pose, 0, 8);
+  tcase_add_loop_test(tc, test_normal_matrix_folded_per_pose, 0, 10);
   tcase_add_loop_test(tc, test_residuals_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_kept_flanges_agree_with_fresh_kinematics, 0, 2);
   tcase_add_loop_test(tc, test_householder_block_bits_of_the_plain_loop, 0, 4);

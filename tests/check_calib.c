@@ -618,8 +618,11 @@ START_TEST(test_asbuilt_independent_of_order)
     for (i = 0; i < sa.res->n_params; i++)
       if (sa.res->params[i].status != sb.res->params[i].status)
         raw_differs = 1;
-    /* the link table, values and standard deviations, to 1e-9 relative
-     * (of the value, or of 1 m / 1 rad near zero) */
+    /* the link table, values to 1e-9 relative (of the value, or of 1 m /
+     * 1 rad near zero), standard deviations to 1e-8 relative: they come
+     * through the inverse of the normal matrix of each order's kept
+     * columns, which brings its rounding to about 1e-9 of them (tf6s row
+     * 4's d: 0.5e-9 to 2.1e-9 between builds that differ by rounding) */
     ck_assert_uint_eq(sa.res->links.n_rows, sb.res->links.n_rows);
     for (i = 0; i < sa.res->links.n_rows; i++) {
       const twf_link_row *ra = &sa.res->links.rows[i], *rb = &sb.res->links.rows[i];
@@ -636,8 +639,8 @@ START_TEST(test_asbuilt_independent_of_order)
          * distance times the tilt between lines 1 and 2 (0.27 um here).
          * Kept visible with its own bound until an intrinsic place exists. */
         double tol = arm == 3 && i == 1 ? 1e-6 : 1e-9 * fmax(fabs(ra->value[v]), 1.0);
-        double stol = arm == 3 && i == 1 ? 1e-3 * ra->std[v] : 1e-9 * ra->std[v] + 1e-15;
-        ck_assert_msg(fabs(ca - cb) <= tol && fabs(ra->std[v] - rb->std[v]) <= stol &&
+        double stol = arm == 3 && i == 1 ? 1e-3 * ra->std[v] : 1e-8 * ra->std[v] + 1e-15;
+        ck_assert_msg(fabs(ca - cb) <= tol && fabs(ra->std[v] - rb->std[v]) <= stol,
                       "%s row %zu %s: change %.12g / %.12g, std %.12g / %.12g", sa.nominal->name, i,
                       twf_link_value_name((twf_link_value)v), ca, cb, ra->std[v], rb->std[v]);
       }

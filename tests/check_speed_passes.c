@@ -181,7 +181,10 @@ END_TEST
  * AVX or an SSE2 version of the kernel, whichever the processor runs)
  * gives the bits of the plain loop written here, entry by entry
  * A[a][b] += (w c0a) c0b + (w c1a) c1b + (w c2a) c2b over the rows of
- * twf_errmodel_point, one measurement after another. */
+ * twf_errmodel_point, one measurement after another. That is the path of
+ * poses of at most 6 rows: two of the three targets enter (with all
+ * three the pose's rows are folded into one rank-6 block, which agrees to
+ * rounding: test_normal_matrix_folded_per_pose). */
 START_TEST(test_normal_matrix_bits_of_the_plain_loop)
 {
   twf_model *m = test_arm_model(_i ? ARM_TF6S : ARM_TF7);
@@ -194,7 +197,7 @@ START_TEST(test_normal_matrix_bits_of_the_plain_loop)
   size_t i, p, a, b, pose;
   twf_error err;
   for (i = 0; i < c->n_meas; i++)
-    use[i] = c->meas[i].set == TWF_SET_FIT;
+    use[i] = c->meas[i].set == TWF_SET_FIT && c->meas[i].target < 2;
   ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
   pr.base[0] = B;
   pr.n_threads = 1;
@@ -233,6 +236,148 @@ START_TEST(test_normal_matrix_bits_of_the_plain_loop)
                     a, b, A[a * p + b], A0[a * p + b]);
   }
   free(A); free(g); free(A0); free(g0); free(rows); free(use);
+  twf_errmodel_free(em);
+  twf_lsq_free(&pr);
+  twf_campaign_free(c);
+  twf_model_free(m);
+}
+END_TEST
+
+/* The normal matrix, gradient and cost of poses folded into one rank-6
+ * block through their twists (more than 6 rows a pose) against the plain
+ * sums over the rows of twf_errmodel_point and twf_errmodel_orientation,
+ * to 1e-12 of each entry's scale (sqrt(A_aa A_bb) for A, sqrt(A_aa 2 cost)
+ * for g: Cauchy-Schwarz bounds of the entries). Cases: 3 targets (points;
+ * 6-D), one target, two of three targets with 6-D rows (the third target's
+ * columns stay zero), column subsets with target columns between twist
+ * columns (the base's before them, the joints' after), every column in
+ * a shuffled order (target columns among twist columns, twist columns
+ * among them), dropped (weight 0) and down-weighted rows (some poses then
+ * fall back to the row path), and the 6-axis arm; every case over several
+ * chunks. */
+START_TEST(test_normal_matrix_folded_per_pose)
+{
+  static const struct {
+    test_arm arm;
+    int six_d, targets, subset, weights;
+  } cases[] = {
+    { ARM_TF7, 0, 3, 0, 0 }, { ARM_TF7, 0, 1, 0, 0 }, { ARM_TF7, 1, 3, 0, 0 }, { ARM_TF7, 0, 3, 1, 0 },
+    { ARM_TF7, 1, 3, 2, 1 }, { ARM_TF7, 1, 2, 1, 0 }, { ARM_TF6S, 0, 3, 0, 1 }, { ARM_TF6S, 1, 3, 1, 1 },
+    { ARM_TF7, 0, 3, 3, 0 }, { ARM_TF7, 1, 3, 3, 1 },
+  };
+  const int k = _i;
+  twf_model *m = test_arm_model(cases[k].arm);
+  twf_pose B;
+  twf_campaign *c = campaign(m, cases[k].arm, 200, cases[k].six_d, -1, &B); /* 4 chunks */
+  unsigned char *use = malloc(c->n_meas);
+  twf_lsq_problem pr;
+  twf_errmodel *em;
+  double *A, *g, *A0, *g0, *rows, cost, cost0 = 0.0;
+  size_t i, p, a, b, pose, nc = 0, *cols, n_target_cols = 0, n_folded = 0, n_rowwise = 0;
+  twf_error err;
+  for (i = 0; i < c->n_meas; i++)
+    use[i] = c->meas[i].set == TWF_SET_FIT && c->meas[i].target < (size_t)cases[k].targets;
+  ck_assert(twf_lsq_init(&pr, m, c, TWF_GROUPS_GEOMETRIC, use, 2e-5, 0.0, &err) == TWF_OK);
+  pr.base[0] = B;
+  p = pr.p;
+  if (cases[k].weights)
+    for (i = 0; i < c->n_meas; i++)
+      twf_lsq_set_weight(&pr, i, (c->meas[i].pose % 4 == 1 && c->meas[i].target != 0) || i % 7 == 3 ? 0.0
+                                 : i % 5 == 1                                               ? 0.25
+                                                                                            : 1.0);
+  cols = malloc(p * sizeof *cols);
+  for (i = 0; i < p; i++)
+    if (cases[k].subset == 0 || cases[k].subset == 3 || (cases[k].subset == 1 ? i % 3 != 1 : i % 4 != 2))
+      cols[nc++] = i;
+  if (cases[k].subset == 3) {
+    /* Fisher-Yates with a fixed linear congruential sequence */
+    unsigned long long x = 12345;
+    size_t first = nc, last = 0, twist_inside = 0;
+    for (a = nc - 1; a > 0; a--) {
+      size_t tmp;
+      x = x * 6364136223846793005ULL + 1442695040888963407ULL;
+      b = (size_t)((x >> 33) % (a + 1));
+      tmp = cols[a];
+      cols[a] = cols[b];
+      cols[b] = tmp;
+    }
+    for (a = 0; a < nc; a++)
+      if (twf_errmodel_param(pr.em, cols[a])->group == TWF_GROUP_TARGETS) {
+        first = a < first ? a : first;
+        last = a;
+      }
+    for (a = first; a < last; a++)
+      twist_inside += twf_errmodel_param(pr.em, cols[a])->group != TWF_GROUP_TARGETS;
+    ck_assert(twist_inside > 0);
+  }
+  /* the subsets keep target columns with twist columns before and after */
+  for (a = 0; a < nc; a++)
+    if (twf_errmodel_param(pr.em, cols[a])->group == TWF_GROUP_TARGETS)
+      n_target_cols++;
+  ck_assert(n_target_cols > 0 && twf_errmodel_param(pr.em, cols[0])->group != TWF_GROUP_TARGETS &&
+            twf_errmodel_param(pr.em, cols[nc - 1])->group != TWF_GROUP_TARGETS);
+  A = malloc(nc * nc * sizeof *A);
+  g = malloc(nc * sizeof *g);
+  A0 = calloc(p * p, sizeof *A0);
+  g0 = calloc(p, sizeof *g0);
+  rows = malloc(3 * p * sizeof *rows);
+  cost = twf_lsq_normal(&pr, cases[k].subset ? cols : NULL, nc, A, g);
+  em = twf_errmodel_alloc(m, TWF_GROUPS_GEOMETRIC, NULL);
+  ck_assert(em != NULL && twf_errmodel_n_params(em) == p);
+  for (pose = 0; pose < c->n_poses; pose++) {
+    size_t n_rows = 0;
+    twf_errmodel_eval_pose(em, m, &B, c->q + pose * c->n_joints, NULL);
+    for (i = 0; i < c->n_meas; i++) {
+      double y[3], r[3], w;
+      int pass, e;
+      if (c->meas[i].pose != pose || !twf_lsq_active(&pr, i))
+        continue;
+      n_rows += c->meas[i].has_orientation ? 6 : 3;
+      for (pass = 0; pass < (c->meas[i].has_orientation ? 2 : 1); pass++) {
+        if (pass == 0) {
+          twf_errmodel_point(em, m, c->meas[i].target, y, rows);
+          for (e = 0; e < 3; e++)
+            r[e] = c->meas[i].pos[e] - y[e];
+          w = pr.weight[i] * pr.inv_sigma[i] * pr.inv_sigma[i];
+        } else {
+          double Rm[3][3];
+          twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
+          twf_errmodel_orientation(em, Rm, r, rows);
+          w = pr.weight[i] * pr.inv_sigma_rot * pr.inv_sigma_rot;
+        }
+        cost0 += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
+        for (a = 0; a < p; a++) {
+          g0[a] += w * (rows[a] * r[0] + rows[p + a] * r[1] + rows[2 * p + a] * r[2]);
+          for (b = a; b < p; b++)
+            A0[a * p + b] += w * (rows[a] * rows[b] + rows[p + a] * rows[p + b] + rows[2 * p + a] * rows[2 * p + b]);
+        }
+      }
+    }
+    if (n_rows > 6)
+      n_folded++;
+    else if (n_rows > 0)
+      n_rowwise++;
+  }
+  /* the case takes the path it is meant to test */
+  ck_assert(cases[k].targets == 1 ? n_folded == 0 : n_folded > c->n_poses / 4);
+  if (cases[k].weights)
+    ck_assert(n_rowwise > 0);
+  ck_assert_msg(fabs(cost - cost0) <= 1e-12 * cost0, "cost %.17g against %.17g", cost, cost0);
+  for (a = 0; a < nc; a++) {
+    size_t ca = cols[a];
+    double gs = sqrt(A0[ca * p + ca] * 2.0 * cost0);
+    ck_assert_msg(fabs(g[a] - g0[ca]) <= 1e-12 * gs, "gradient %zu: %.17g against %.17g (scale %g)", a, g[a],
+                  g0[ca], gs);
+    for (b = a; b < nc; b++) {
+      size_t cb = cols[b];
+      /* the reference holds its upper triangle in parameter order */
+      double ref = ca <= cb ? A0[ca * p + cb] : A0[cb * p + ca], s = sqrt(A0[ca * p + ca] * A0[cb * p + cb]);
+      ck_assert_msg(fabs(A[a * nc + b] - ref) <= 1e-12 * s, "A[%zu][%zu]: %.17g against %.17g (scale %g)", a, b,
+                    A[a * nc + b], ref, s);
+      ck_assert(A[b * nc + a] == A[a * nc + b]);
+    }
+  }
+  free(A); free(g); free(A0); free(g0); free(rows); free(use); free(cols);
   twf_errmodel_free(em);
   twf_lsq_free(&pr);
   twf_campaign_free(c);
@@ -487,6 +632,7 @@ int main(void)
   tcase_add_loop_test(tc, test_passes_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_calibration_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_normal_matrix_bits_of_the_plain_loop, 0, 2);
+  tcase_add_loop_test(tc, test_normal_matrix_folded_per_pose, 0, 10);
   tcase_add_loop_test(tc, test_residuals_same_bits_for_any_thread_count, 0, 2);
   tcase_add_loop_test(tc, test_kept_flanges_agree_with_fresh_kinematics, 0, 2);
   tcase_add_loop_test(tc, test_householder_block_bits_of_the_plain_loop, 0, 4);

@@ -570,11 +570,14 @@ static int pose_active(const twf_lsq_problem *pr, size_t pose)
 /* The weighted rows of one measurement's block over the pass's columns:
  * c (3 x ld, ld = nc padded to a multiple of 4 with zeros) as
  * twf_errmodel_point / twf_errmodel_orientation form them, wc = w c, and
- * the residual. */
+ * the residual; g gains gu^T r with gu = wc. An entry may instead be half
+ * of a pose's rank-6 block (pose_rank6): then c holds 3 of the 6 rows of
+ * the twists, wc those of M times them, r half of h, and gu = c. */
 typedef struct row_batch {
   size_t n, ld;
   double *c, *wc;  /* NB x 3 x ld */
   double r[NB][3];
+  const double *gu[NB]; /* the entry's rows that multiply r into g */
 } row_batch;
 
 #if defined(__GNUC__)
@@ -662,9 +665,9 @@ TWF_BATCH_CLONES static void batch_flush(row_batch *bt, size_t nc, double *A, do
   size_t a, b, k, ld = bt->ld, n = bt->n;
   for (a = 0; a < nc; a += 2) {
     for (k = 0; k < n; k++) {
-      const double *wc = bt->wc + 3 * k * ld;
-      g[a] += wc[a] * bt->r[k][0] + wc[ld + a] * bt->r[k][1] + wc[2 * ld + a] * bt->r[k][2];
-      g[a + 1] += wc[a + 1] * bt->r[k][0] + wc[ld + a + 1] * bt->r[k][1] + wc[2 * ld + a + 1] * bt->r[k][2];
+      const double *u = bt->gu[k];
+      g[a] += u[a] * bt->r[k][0] + u[ld + a] * bt->r[k][1] + u[2 * ld + a] * bt->r[k][2];
+      g[a + 1] += u[a + 1] * bt->r[k][0] + u[ld + a + 1] * bt->r[k][1] + u[2 * ld + a + 1] * bt->r[k][2];
     }
     for (b = a; b + 4 <= ld; b += 4)
       batch_tile(bt, a, b, 4, A);
@@ -672,6 +675,285 @@ TWF_BATCH_CLONES static void batch_flush(row_batch *bt, size_t nc, double *A, do
       batch_tile(bt, a, b, 2, A);
   }
   bt->n = 0;
+}
+
+/* Rows of the pose's measurements that enter the fit (3 per point, 6 with
+ * an orientation): 0 when none does. */
+static size_t pose_rows(const twf_lsq_problem *pr, size_t pose)
+{
+  size_t t, n = 0;
+  for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
+    size_t i = pr->pose_meas[t];
+    if (twf_lsq_active(pr, i))
+      n += pr->c->meas[i].has_orientation ? 6 : 3;
+  }
+  return n;
+}
+
+/* The rows of one pose folded through its twists. Over a twist column
+ * (e = (w, v), spatial) a point y's rows are A_y e with A_y = [-[y]x, I]
+ * and an orientation's are [Ji, 0] e, so all the pose's rows over those
+ * columns give T^T M T and T^T h (T: 6 x nt, the twists; M = sum w_i
+ * A_i^T A_i, h = sum w_i A_i^T r_i): two 3-row entries of the batch (c =
+ * the 6 rows of T, wc = those of M T, gu = c, r = h) where the rows
+ * themselves would take one entry per point and per orientation. The
+ * twists are taken about o, the flange's origin (v + w x o, y - o): the
+ * same rows, without the cancellation of |y| |w| against |v| that M's
+ * |y|^2 terms would otherwise bring about a point metres from the origin.
+ *
+ * A target column's rows are F->R[.][comp] for that target's points, zero
+ * for the others: the pure translation (0, R_c) seen through A_y. Its
+ * terms with a twist column are e^T N with N = sum over the target's
+ * points of w_i A_i^T R_c = (s_t x R_c, W_t R_c) (s_t = sum w_i (y_i - o),
+ * W_t = sum w_i): wc holds N in the target column and c zero, so the
+ * kernel makes those where the target column comes first (A is the upper
+ * triangle in the pass's order) and the ones where a twist column comes
+ * first are added here, as are the target-target block W_t R_c . R_d and
+ * the gradient R_c . sum w_i r_i (pose_rank6). */
+
+/* M = [[P, [s]x], [-[s]x, W I]] about o: what a pose's twist columns are
+ * multiplied by (pose_rank6 fills it, a local). */
+typedef struct rank6_m {
+  double P[3][3], s[3], W, o[3];
+} rank6_m;
+
+/* Twist column a of the block: c = (w, v + w x o), wc = M c. */
+static inline TWF_TILE_INLINE void rank6_col(const rank6_m *q, const double *e, size_t a, size_t ld, double *C, double *WC)
+{
+  const double *o = q->o, *s = q->s;
+  double w0 = e[0], w1 = e[1], w2 = e[2], v0, v1, v2;
+  v0 = e[3] + (w1 * o[2] - w2 * o[1]);
+  v1 = e[4] + (w2 * o[0] - w0 * o[2]);
+  v2 = e[5] + (w0 * o[1] - w1 * o[0]);
+  C[a] = w0;
+  C[ld + a] = w1;
+  C[2 * ld + a] = w2;
+  C[3 * ld + a] = v0;
+  C[4 * ld + a] = v1;
+  C[5 * ld + a] = v2;
+  WC[a] = q->P[0][0] * w0 + q->P[0][1] * w1 + q->P[0][2] * w2 + (s[1] * v2 - s[2] * v1);
+  WC[ld + a] = q->P[1][0] * w0 + q->P[1][1] * w1 + q->P[1][2] * w2 + (s[2] * v0 - s[0] * v2);
+  WC[2 * ld + a] = q->P[2][0] * w0 + q->P[2][1] * w1 + q->P[2][2] * w2 + (s[0] * v1 - s[1] * v0);
+  WC[3 * ld + a] = (w1 * s[2] - w2 * s[1]) + q->W * v0;
+  WC[4 * ld + a] = (w2 * s[0] - w0 * s[2]) + q->W * v1;
+  WC[5 * ld + a] = (w0 * s[1] - w1 * s[0]) + q->W * v2;
+}
+
+#if defined(__GNUC__)
+/* M's coefficients in both lanes, made once a pose (SSE2 has no
+ * broadcast from memory). */
+typedef struct rank6_m2 {
+  v2d P[3][3], s[3], W, o[3];
+} rank6_m2;
+
+/* rank6_col for twist columns a and a + 1 in two lanes: the same
+ * operations, so the same bits. */
+static inline TWF_TILE_INLINE void rank6_col2(const rank6_m2 *q, const double *e, const double *f, size_t a, size_t ld, double *C,
+                              double *WC)
+{
+  const v2d *o = q->o, *s = q->s;
+  v2d w0 = { e[0], f[0] }, w1 = { e[1], f[1] }, w2 = { e[2], f[2] }, v0, v1, v2;
+  v0 = (v2d){ e[3], f[3] } + (w1 * o[2] - w2 * o[1]);
+  v1 = (v2d){ e[4], f[4] } + (w2 * o[0] - w0 * o[2]);
+  v2 = (v2d){ e[5], f[5] } + (w0 * o[1] - w1 * o[0]);
+  st2(C + a, w0);
+  st2(C + ld + a, w1);
+  st2(C + 2 * ld + a, w2);
+  st2(C + 3 * ld + a, v0);
+  st2(C + 4 * ld + a, v1);
+  st2(C + 5 * ld + a, v2);
+  st2(WC + a, q->P[0][0] * w0 + q->P[0][1] * w1 + q->P[0][2] * w2 + (s[1] * v2 - s[2] * v1));
+  st2(WC + ld + a, q->P[1][0] * w0 + q->P[1][1] * w1 + q->P[1][2] * w2 + (s[2] * v0 - s[0] * v2));
+  st2(WC + 2 * ld + a, q->P[2][0] * w0 + q->P[2][1] * w1 + q->P[2][2] * w2 + (s[0] * v1 - s[1] * v0));
+  st2(WC + 3 * ld + a, (w1 * s[2] - w2 * s[1]) + q->W * v0);
+  st2(WC + 4 * ld + a, (w2 * s[0] - w0 * s[2]) + q->W * v1);
+  st2(WC + 5 * ld + a, (w0 * s[1] - w1 * s[0]) + q->W * v2);
+}
+#endif
+
+/* Every twist column of the block (rank6_col), then the terms e^T N of
+ * a twist column before a target column (the base's), which the kernel
+ * leaves out (the target's c is zero): along a row of A, up to four
+ * target columns at a time. In the clones of batch_flush: with AVX the
+ * lanes take three-operand instructions, the same operations. N is in
+ * the target columns' wc already. */
+TWF_BATCH_CLONES static void rank6_twists(const rank6_m *q, const lsq_col *cd, const double *tw, size_t nc,
+                                          size_t ld, size_t tlo, size_t thi, double *C, double *WC, double *A)
+{
+  size_t a, b;
+#if defined(__GNUC__)
+  rank6_m2 q2;
+  int k, l;
+  for (k = 0; k < 3; k++) {
+    for (l = 0; l < 3; l++)
+      q2.P[k][l] = (v2d){ q->P[k][l], q->P[k][l] };
+    q2.s[k] = (v2d){ q->s[k], q->s[k] };
+    q2.o[k] = (v2d){ q->o[k], q->o[k] };
+  }
+  q2.W = (v2d){ q->W, q->W };
+#endif
+  for (a = 0; a < nc;) {
+    if (cd[a].target >= 0) {
+      a++;
+      continue;
+    }
+#if defined(__GNUC__)
+    if (a + 1 < nc && cd[a + 1].target < 0) {
+      rank6_col2(&q2, tw + 6 * cd[a].j, tw + 6 * cd[a + 1].j, a, ld, C, WC);
+      a += 2;
+      continue;
+    }
+#endif
+    rank6_col(q, tw + 6 * cd[a].j, a, ld, C, WC);
+    a++;
+  }
+  for (a = 0; a < thi; a++) {
+    double e0, e1, e2, e3, e4, e5, *Aa = A + a * ld;
+    if (cd[a].target >= 0)
+      continue;
+    e0 = C[a];
+    e1 = C[ld + a];
+    e2 = C[2 * ld + a];
+    e3 = C[3 * ld + a];
+    e4 = C[4 * ld + a];
+    e5 = C[5 * ld + a];
+    for (b = a + 1 > tlo ? a + 1 : tlo; b < thi; b++) {
+      if (cd[b].target < 0)
+        continue;
+#if defined(__GNUC__)
+      if (b + 3 < thi && cd[b + 1].target >= 0 && cd[b + 2].target >= 0 && cd[b + 3].target >= 0) {
+        v4d n0, n1, n2, n3, n4, n5, s0;
+        memcpy(&n0, WC + b, sizeof n0);
+        memcpy(&n1, WC + ld + b, sizeof n1);
+        memcpy(&n2, WC + 2 * ld + b, sizeof n2);
+        memcpy(&n3, WC + 3 * ld + b, sizeof n3);
+        memcpy(&n4, WC + 4 * ld + b, sizeof n4);
+        memcpy(&n5, WC + 5 * ld + b, sizeof n5);
+        memcpy(&s0, Aa + b, sizeof s0);
+        s0 += n0 * e0 + n1 * e1 + n2 * e2 + n3 * e3 + n4 * e4 + n5 * e5;
+        memcpy(Aa + b, &s0, sizeof s0);
+        b += 3;
+        continue;
+      }
+#endif
+      Aa[b] += WC[b] * e0 + WC[ld + b] * e1 + WC[2 * ld + b] * e2 + WC[3 * ld + b] * e3 + WC[4 * ld + b] * e4 +
+               WC[5 * ld + b] * e5;
+    }
+  }
+}
+
+/* The pose's block as entries bt->n and bt->n + 1 of the batch (room for
+ * two left by the caller), with the terms the kernel does not make added
+ * to A and g; the pass's target columns lie in [tlo, thi). */
+static void pose_rank6(const pass *ps, const twf_lsq_ws *ws, size_t pose, size_t tlo, size_t thi, row_batch *bt,
+                       double *A, double *g, double *cost)
+{
+  const twf_lsq_problem *pr = ps->pr;
+  const twf_campaign *c = pr->c;
+  const twf_model *m = pr->m;
+  const lsq_col *cd = ps->cd;
+  const double *tw = twf_errmodel_twists(ws->em);
+  const twf_pose *F = twf_errmodel_flange(ws->em);
+  size_t nc = ps->nc, ld = ps->ld, a, b, t;
+  double *C = bt->c + 3 * bt->n * ld, *WC = bt->wc + 3 * bt->n * ld, h[6] = { 0.0 };
+  rank6_m q;
+  int k, l;
+  memset(&q, 0, sizeof q);
+  memcpy(q.o, F->p, sizeof q.o);
+  /* the target columns gather their sums in place while the measurements
+   * are read: s_t in wc rows 0-2, W_t in wc row 3, sum w r in c rows 0-2 */
+  for (a = tlo; a < thi; a++)
+    if (cd[a].target >= 0)
+      for (k = 0; k < 6; k++)
+        C[(size_t)k * ld + a] = WC[(size_t)k * ld + a] = 0.0;
+  for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
+    size_t i = pr->pose_meas[t];
+    const twf_measurement *ms = &c->meas[i];
+    double y[3], yc[3], r[3], w, yy;
+    if (!twf_lsq_active(pr, i))
+      continue;
+    twf_pose_apply(F, m->targets[ms->target].offset, y);
+    for (k = 0; k < 3; k++) {
+      r[k] = ms->pos[k] - y[k];
+      yc[k] = y[k] - q.o[k];
+    }
+    w = pr->weight[i] * pr->inv_sigma[i] * pr->inv_sigma[i];
+    *cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
+    /* A^T A = [[|y|^2 I - y y^T, [y]x], [-[y]x, I]], A^T r = (y x r, r) */
+    yy = yc[0] * yc[0] + yc[1] * yc[1] + yc[2] * yc[2];
+    q.P[0][0] += w * (yy - yc[0] * yc[0]);
+    q.P[0][1] -= w * (yc[0] * yc[1]);
+    q.P[0][2] -= w * (yc[0] * yc[2]);
+    q.P[1][1] += w * (yy - yc[1] * yc[1]);
+    q.P[1][2] -= w * (yc[1] * yc[2]);
+    q.P[2][2] += w * (yy - yc[2] * yc[2]);
+    h[0] += w * (yc[1] * r[2] - yc[2] * r[1]);
+    h[1] += w * (yc[2] * r[0] - yc[0] * r[2]);
+    h[2] += w * (yc[0] * r[1] - yc[1] * r[0]);
+    for (k = 0; k < 3; k++) {
+      q.s[k] += w * yc[k];
+      h[3 + k] += w * r[k];
+    }
+    q.W += w;
+    for (a = tlo; a < thi; a++)
+      if (cd[a].target == (long)ms->target) {
+        for (k = 0; k < 3; k++) {
+          WC[(size_t)k * ld + a] += w * yc[k];
+          C[(size_t)k * ld + a] += w * r[k];
+        }
+        WC[3 * ld + a] += w;
+      }
+    if (ms->has_orientation) {
+      double Rm[3][3], Ji[3][3];
+      twf_quat_to_rot(twf_campaign_meas_quat(c, i), Rm);
+      twf_errmodel_orientation_jinv(ws->em, Rm, r, Ji);
+      w = pr->weight[i] * pr->inv_sigma_rot * pr->inv_sigma_rot;
+      *cost += 0.5 * w * (r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
+      for (k = 0; k < 3; k++) {
+        for (l = k; l < 3; l++)
+          q.P[k][l] += w * (Ji[0][k] * Ji[0][l] + Ji[1][k] * Ji[1][l] + Ji[2][k] * Ji[2][l]);
+        h[k] += w * (Ji[0][k] * r[0] + Ji[1][k] * r[1] + Ji[2][k] * r[2]);
+      }
+    }
+  }
+  q.P[1][0] = q.P[0][1];
+  q.P[2][0] = q.P[0][2];
+  q.P[2][1] = q.P[1][2];
+  /* target columns: gradient, their own block, then N in place of the sums */
+  for (b = tlo; b < thi; b++) {
+    double R0, R1, R2, s0, s1, s2, Wt;
+    size_t d;
+    int cb;
+    if (cd[b].target < 0)
+      continue;
+    cb = cd[b].comp;
+    R0 = F->R[0][cb];
+    R1 = F->R[1][cb];
+    R2 = F->R[2][cb];
+    g[b] += R0 * C[b] + R1 * C[ld + b] + R2 * C[2 * ld + b];
+    s0 = WC[b];
+    s1 = WC[ld + b];
+    s2 = WC[2 * ld + b];
+    Wt = WC[3 * ld + b];
+    for (d = b; d < thi; d++)
+      if (cd[d].target == cd[b].target) {
+        int cc = cd[d].comp;
+        A[b * ld + d] += Wt * (R0 * F->R[0][cc] + R1 * F->R[1][cc] + R2 * F->R[2][cc]);
+      }
+    WC[b] = s1 * R2 - s2 * R1;
+    WC[ld + b] = s2 * R0 - s0 * R2;
+    WC[2 * ld + b] = s0 * R1 - s1 * R0;
+    WC[3 * ld + b] = Wt * R0;
+    WC[4 * ld + b] = Wt * R1;
+    WC[5 * ld + b] = Wt * R2;
+    C[b] = C[ld + b] = C[2 * ld + b] = 0.0;
+  }
+  rank6_twists(&q, cd, tw, nc, ld, tlo, thi, C, WC, A);
+  memcpy(bt->r[bt->n], h, sizeof bt->r[0]);
+  memcpy(bt->r[bt->n + 1], h + 3, sizeof bt->r[0]);
+  bt->gu[bt->n] = C;
+  bt->gu[bt->n + 1] = C + 3 * ld;
+  bt->n += 2;
 }
 
 /* Slot of the normal pass: A (ld x ld, upper triangle), g (ld), the cost. */
@@ -682,7 +964,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
   const twf_model *m = pr->m;
   const lsq_col *cd = ps->cd;
   size_t nc = ps->nc, ld = ps->ld, pose0 = chunk * TWF_LSQ_CHUNK_POSES, pose1 = pose0 + TWF_LSQ_CHUNK_POSES;
-  size_t pose, a;
+  size_t pose, a, tlo = 0, thi = 0;
   double *A = slot, *g = slot + ld * ld, *cost = g + ld;
   row_batch bt;
   if (pose1 > c->n_poses)
@@ -692,13 +974,29 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
   bt.ld = ld;
   bt.c = ws->X;
   bt.wc = ws->Y;
+  for (a = 0; a < nc; a++)
+    if (cd[a].target >= 0) {
+      if (thi == 0)
+        tlo = a;
+      thi = a + 1;
+    }
   for (pose = pose0; pose < pose1; pose++) {
     const double *tw;
     const twf_pose *F;
-    size_t t;
-    if (!pose_active(pr, pose))
+    size_t t, rows = pose_rows(pr, pose);
+    if (rows == 0)
       continue;
     pass_eval_pose(ps, ws, pose);
+    /* beyond 6 rows (two points, or one with an orientation) the pose's
+     * rank-6 block is the cheaper: the kernel's work goes with the rows */
+    if (rows > 6) {
+      if (bt.n + 2 > NB)
+        batch_flush(&bt, nc, A, g);
+      pose_rank6(ps, ws, pose, tlo, thi, &bt, A, g, cost);
+      if (bt.n == NB)
+        batch_flush(&bt, nc, A, g);
+      continue;
+    }
     tw = twf_errmodel_twists(ws->em);
     F = twf_errmodel_flange(ws->em);
     for (t = pr->pose_start[pose]; t < pr->pose_start[pose + 1]; t++) {
@@ -733,6 +1031,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
       }
       for (a = 0; a < 3 * ld; a++)
         w0[a] = w * c0[a];
+      bt.gu[bt.n] = w0;
       if (++bt.n == NB)
         batch_flush(&bt, nc, A, g);
       if (ms->has_orientation) {
@@ -755,6 +1054,7 @@ static void normal_compute(pass *ps, twf_lsq_ws *ws, size_t chunk, double *slot)
         }
         for (a = 0; a < 3 * ld; a++)
           w0[a] = w * c0[a];
+        bt.gu[bt.n] = w0;
         if (++bt.n == NB)
           batch_flush(&bt, nc, A, g);
       }

@@ -582,16 +582,11 @@ static json_t *resample_json(const twf_resample_result *rs, const twf_calib_resu
                    "warnings", warn);
 }
 
-static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
-                           const cli_units *u, const digest *dg, size_t n_dg, const char *created,
-                           const twf_warnings *w)
+/* What made the report: the tool, when, from which inputs, in which units. */
+static void add_json_origin(json_t *root, const digest *dg, size_t n_dg, const char *created, const cli_units *u)
 {
-  const twf_campaign *view = in->campaign;
-  const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
-  json_t *root = json_object(), *inputs = json_array(), *params = json_array();
-  json_t *warn = json_array(), *outl = json_array(), *corr = json_array(), *ident;
-  size_t i, j;
-  const twf_model *m = in->model;
+  json_t *inputs = json_array();
+  size_t i;
   for (i = 0; i < n_dg; i++)
     json_array_append_new(inputs, json_pack("{s:s, s:s}", "path", dg[i].path, "sha256", dg[i].hex));
   json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
@@ -599,6 +594,11 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   json_object_set_new(root, "created", json_string(created));
   json_object_set_new(root, "inputs", inputs);
   json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u->length, "angle", u->angle));
+}
+
+/* The campaign's counts and the noise the fit weighted by. */
+static void add_json_campaign(json_t *root, const twf_campaign *view, const twf_calib_result *r, const cli_units *u)
+{
   json_object_set_new(root, "campaign",
                       json_pack("{s:I, s:I, s:I, s:I}", "poses", (json_int_t)view->n_poses, "measurements",
                                 (json_int_t)view->n_meas, "fit", (json_int_t)r->n_fit_meas, "check",
@@ -609,6 +609,14 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                                : r->sigma_source == TWF_SIGMA_FROM_ROWS ? "rows"
                                                                                         : "given",
                                                "estimated", r->sigma_source == TWF_SIGMA_ESTIMATED));
+}
+
+/* The base pose before and after, and the target offsets the fit
+ * determined. */
+static void add_json_base_targets(json_t *root, const twf_model *m, const twf_calib_result *r, const cli_units *u)
+{
+  json_t *targets = json_object();
+  size_t j;
   /* base_in_tracker: the older name, kept for existing readers */
   json_object_set_new(root, "base_in_instrument",
                       json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
@@ -616,49 +624,56 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   json_object_set_new(root, "base_in_tracker",
                       json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
                                 cli_json_pose(&r->base_in_tracker, u)));
-  {
-    json_t *targets = json_object();
-    for (j = 0; j < r->asbuilt->n_targets; j++)
-      if (r->target_in_fit[j])
-        json_object_set_new(targets, m->targets[j].name,
-                            json_pack("[o,o,o]", cli_json_number(r->asbuilt->targets[j].offset[0] / u->length_si),
-                                      cli_json_number(r->asbuilt->targets[j].offset[1] / u->length_si),
-                                      cli_json_number(r->asbuilt->targets[j].offset[2] / u->length_si)));
-    json_object_set_new(root, "target_offsets_flange", targets);
+  for (j = 0; j < r->asbuilt->n_targets; j++)
+    if (r->target_in_fit[j])
+      json_object_set_new(targets, m->targets[j].name,
+                          json_pack("[o,o,o]", cli_json_number(r->asbuilt->targets[j].offset[0] / u->length_si),
+                                    cli_json_number(r->asbuilt->targets[j].offset[1] / u->length_si),
+                                    cli_json_number(r->asbuilt->targets[j].offset[2] / u->length_si)));
+  json_object_set_new(root, "target_offsets_flange", targets);
+}
+
+/* The summary: the verdict and the figures it used, the left-out rows. */
+static void add_json_summary(json_t *root, const twf_model *m, const twf_campaign *view, const twf_calib_result *r,
+                             const cli_units *u)
+{
+  json_t *flagged = json_array();
+  char gtext[160];
+  size_t i;
+  groups_text(r->groups, gtext, sizeof gtext);
+  json_object_set_new(root, "fitted", json_string(gtext));
+  json_object_set_new(root, "verdict",
+                      json_pack("{s:s, s:s, s:o, s:o}", "conclusion", twf_calib_verdict_name(r->verdict), "basis",
+                                twf_verdict_basis_name(r->verdict_basis), "before",
+                                cli_json_stats(&r->verdict_before, u->length_si), "after",
+                                cli_json_stats(&r->verdict_after, u->length_si)));
+  json_object_set_new(root, "left_out",
+                      json_pack("{s:{s:o, s:o}, s:{s:o, s:o}}", "fit_dropped", "before",
+                                cli_json_stats(&r->excluded_before[TWF_SET_FIT], u->length_si), "after",
+                                cli_json_stats(&r->excluded_after[TWF_SET_FIT], u->length_si), "check_flagged",
+                                "before", cli_json_stats(&r->excluded_before[TWF_SET_CHECK], u->length_si), "after",
+                                cli_json_stats(&r->excluded_after[TWF_SET_CHECK], u->length_si)));
+  json_object_set_new(root, "check_every_row",
+                      json_pack("{s:o, s:o}", "before", cli_json_stats(&r->check_all_before, u->length_si),
+                                "after", cli_json_stats(&r->check_all_after, u->length_si)));
+  for (i = 0; i < r->n_check_flagged; i++) {
+    const twf_outlier *o = &r->check_flagged[i];
+    const twf_measurement *ms = &view->meas[o->meas];
+    json_array_append_new(flagged, json_pack("{s:I, s:s, s:s, s:o, s:o}", "line", (json_int_t)ms->line, "pose",
+                                             view->pose_ids[ms->pose], "target", m->targets[ms->target].name,
+                                             "error", cli_json_number(o->error_m / u->length_si), "score",
+                                             cli_json_number(o->score)));
   }
-  json_object_set_new(root, "accuracy_before", cli_json_accuracy(before, m, view, u));
-  json_object_set_new(root, "accuracy_after", cli_json_accuracy(after, m, view, u));
-  json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(&r->fit_screened, u->length_si));
-  {
-    /* the summary: the verdict and the figures it used, the left-out rows */
-    json_t *flagged = json_array();
-    char gtext[160];
-    groups_text(r->groups, gtext, sizeof gtext);
-    json_object_set_new(root, "fitted", json_string(gtext));
-    json_object_set_new(root, "verdict",
-                        json_pack("{s:s, s:s, s:o, s:o}", "conclusion", twf_calib_verdict_name(r->verdict), "basis",
-                                  twf_verdict_basis_name(r->verdict_basis), "before",
-                                  cli_json_stats(&r->verdict_before, u->length_si), "after",
-                                  cli_json_stats(&r->verdict_after, u->length_si)));
-    json_object_set_new(root, "left_out",
-                        json_pack("{s:{s:o, s:o}, s:{s:o, s:o}}", "fit_dropped", "before",
-                                  cli_json_stats(&r->excluded_before[TWF_SET_FIT], u->length_si), "after",
-                                  cli_json_stats(&r->excluded_after[TWF_SET_FIT], u->length_si), "check_flagged",
-                                  "before", cli_json_stats(&r->excluded_before[TWF_SET_CHECK], u->length_si), "after",
-                                  cli_json_stats(&r->excluded_after[TWF_SET_CHECK], u->length_si)));
-    json_object_set_new(root, "check_every_row",
-                        json_pack("{s:o, s:o}", "before", cli_json_stats(&r->check_all_before, u->length_si),
-                                  "after", cli_json_stats(&r->check_all_after, u->length_si)));
-    for (i = 0; i < r->n_check_flagged; i++) {
-      const twf_outlier *o = &r->check_flagged[i];
-      const twf_measurement *ms = &view->meas[o->meas];
-      json_array_append_new(flagged, json_pack("{s:I, s:s, s:s, s:o, s:o}", "line", (json_int_t)ms->line, "pose",
-                                               view->pose_ids[ms->pose], "target", m->targets[ms->target].name,
-                                               "error", cli_json_number(o->error_m / u->length_si), "score",
-                                               cli_json_number(o->score)));
-    }
-    json_object_set_new(root, "check_flagged", flagged);
-  }
+  json_object_set_new(root, "check_flagged", flagged);
+}
+
+/* The solver's iterations and stops, the outlier screen and the fit
+ * measurements it affected. */
+static void add_json_solver(json_t *root, const twf_model *m, const twf_campaign *view, const twf_calib_result *r,
+                            const twf_calib_options *co, const cli_units *u)
+{
+  json_t *outl = json_array();
+  size_t i;
   json_object_set_new(root, "solver",
                       json_pack("{s:{s:i, s:s}, s:{s:i, s:o, s:o, s:s, s:b}, s:{s:s, s:o, s:i}}",
                                 "registration", "iterations", r->registration.iterations, "stop",
@@ -677,22 +692,34 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                           cli_json_number(o->score), "weight", cli_json_number(o->weight)));
   }
   json_object_set_new(root, "outliers", outl);
+}
+
+/* The residual pattern, the compliance, each measurement's errors before
+ * and after, and the as-built link table. */
+static void add_json_residuals(json_t *root, const twf_model *m, const twf_campaign *view, const twf_calib_result *r,
+                               const cli_units *u)
+{
+  static const char *const names[2] = { "before", "after" };
+  const double *pe[2] = { r->pos_err_before, r->pos_err_after };
+  const double *ae[2] = { r->angle_err_before, r->angle_err_after };
+  json_t *meas;
+  cli_links_table t;
   json_object_set_new(root, "residual_pattern", cli_json_pattern(m, &r->pattern, r->screen_refused, u));
   if (r->compliance.n_joints > 0)
     json_object_set_new(root, "compliance", cli_json_compliance(r->asbuilt, view, &r->compliance, u));
-  {
-    static const char *const names[2] = { "before", "after" };
-    const double *pe[2] = { r->pos_err_before, r->pos_err_after };
-    const double *ae[2] = { r->angle_err_before, r->angle_err_after };
-    json_t *meas = cli_json_measurements(view, m, r->meas_set, 2, names, pe, ae, r->excluded, r->outliers,
-                                         r->n_outliers, u);
-    if (meas != NULL)
-      json_object_set_new(root, "measurements", meas);
-  }
-  {
-    cli_links_table t = links_table(m, r, u);
-    json_object_set_new(root, "links", cli_links_json(&t));
-  }
+  meas = cli_json_measurements(view, m, r->meas_set, 2, names, pe, ae, r->excluded, r->outliers, r->n_outliers, u);
+  if (meas != NULL)
+    json_object_set_new(root, "measurements", meas);
+  t = links_table(m, r, u);
+  json_object_set_new(root, "links", cli_links_json(&t));
+}
+
+/* The parameters member: each parameter's change and std in report
+ * units (null when not estimated), with what explains a fixed one. */
+static json_t *params_json(const twf_calib_result *r, const cli_units *u)
+{
+  json_t *params = json_array();
+  size_t i, j;
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     const char *unit;
@@ -711,20 +738,49 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
     }
     json_array_append_new(params, o);
   }
-  json_object_set_new(root, "parameters", params);
+  return params;
+}
+
+/* The identifiability member: the counts, conditioning, observability
+ * and the strongest correlations. */
+static json_t *identifiability_json(const twf_calib_result *r)
+{
+  json_t *corr = json_array();
+  size_t i;
   for (i = 0; i < r->n_correlations; i++)
     json_array_append_new(corr, json_pack("{s:s, s:s, s:o}", "a", r->params[r->correlations[i].a].param.name, "b",
                                           r->params[r->correlations[i].b].param.name, "rho",
                                           cli_json_number(r->correlations[i].rho)));
-  ident = json_pack("{s:I, s:I, s:I, s:I, s:I, s:I, s:o, s:[o,o,o,o], s:o}", "requested",
-                    (json_int_t)r->n_params, "identifiable", (json_int_t)r->structural_count, "estimated",
-                    (json_int_t)r->n_kept, "fixed_redundant", (json_int_t)r->n_fixed_structural,
-                    "fixed_by_data", (json_int_t)r->n_fixed_data, "weak", (json_int_t)r->n_weak,
-                    "condition_number", cli_json_number(r->condition_number), "observability",
-                    cli_json_number(r->observability.o1), cli_json_number(r->observability.o2),
-                    cli_json_number(r->observability.o3), cli_json_number(r->observability.o4),
-                    "correlations", corr);
-  json_object_set_new(root, "identifiability", ident);
+  return json_pack("{s:I, s:I, s:I, s:I, s:I, s:I, s:o, s:[o,o,o,o], s:o}", "requested",
+                   (json_int_t)r->n_params, "identifiable", (json_int_t)r->structural_count, "estimated",
+                   (json_int_t)r->n_kept, "fixed_redundant", (json_int_t)r->n_fixed_structural,
+                   "fixed_by_data", (json_int_t)r->n_fixed_data, "weak", (json_int_t)r->n_weak,
+                   "condition_number", cli_json_number(r->condition_number), "observability",
+                   cli_json_number(r->observability.o1), cli_json_number(r->observability.o2),
+                   cli_json_number(r->observability.o3), cli_json_number(r->observability.o4),
+                   "correlations", corr);
+}
+
+/* The report as JSON: the members in the order readers have seen them. */
+static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
+                           const cli_units *u, const digest *dg, size_t n_dg, const char *created,
+                           const twf_warnings *w)
+{
+  const twf_campaign *view = in->campaign;
+  const twf_model *m = in->model;
+  json_t *root = json_object(), *warn = json_array();
+  size_t i;
+  add_json_origin(root, dg, n_dg, created, u);
+  add_json_campaign(root, view, r, u);
+  add_json_base_targets(root, m, r, u);
+  json_object_set_new(root, "accuracy_before", cli_json_accuracy(r->accuracy_before, m, view, u));
+  json_object_set_new(root, "accuracy_after", cli_json_accuracy(r->accuracy_after, m, view, u));
+  json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(&r->fit_screened, u->length_si));
+  add_json_summary(root, m, view, r, u);
+  add_json_solver(root, m, view, r, co, u);
+  add_json_residuals(root, m, view, r, u);
+  json_object_set_new(root, "parameters", params_json(r, u));
+  json_object_set_new(root, "identifiability", identifiability_json(r));
   /* for the HTML report: the arm and its joints' units, the singular
    * values against the noise, the correlation matrix */
   json_object_set_new(root, "robot", cli_json_robot(m, u));

@@ -582,16 +582,11 @@ static json_t *resample_json(const twf_resample_result *rs, const twf_calib_resu
                    "warnings", warn);
 }
 
-static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
-                           const cli_units *u, const digest *dg, size_t n_dg, const char *created,
-                           const twf_warnings *w)
+/* What made the report: the tool, when, from which inputs, in which units. */
+static void add_json_origin(json_t *root, const digest *dg, size_t n_dg, const char *created, const cli_units *u)
 {
-  const twf_campaign *view = in->campaign;
-  const twf_accuracy_summary *before = r->accuracy_before, *after = r->accuracy_after;
-  json_t *root = json_object(), *inputs = json_array(), *params = json_array();
-  json_t *warn = json_array(), *outl = json_array(), *corr = json_array(), *ident;
-  size_t i, j;
-  const twf_model *m = in->model;
+  json_t *inputs = json_array();
+  size_t i;
   for (i = 0; i < n_dg; i++)
     json_array_append_new(inputs, json_pack("{s:s, s:s}", "path", dg[i].path, "sha256", dg[i].hex));
   json_object_set_new(root, "tool", json_pack("{s:s, s:s}", "name", "twistfit", "version", twf_version()));
@@ -599,6 +594,11 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   json_object_set_new(root, "created", json_string(created));
   json_object_set_new(root, "inputs", inputs);
   json_object_set_new(root, "units", json_pack("{s:s, s:s}", "length", u->length, "angle", u->angle));
+}
+
+/* The campaign's counts and the noise the fit weighted by. */
+static void add_json_campaign(json_t *root, const twf_campaign *view, const twf_calib_result *r, const cli_units *u)
+{
   json_object_set_new(root, "campaign",
                       json_pack("{s:I, s:I, s:I, s:I}", "poses", (json_int_t)view->n_poses, "measurements",
                                 (json_int_t)view->n_meas, "fit", (json_int_t)r->n_fit_meas, "check",
@@ -609,6 +609,14 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                                : r->sigma_source == TWF_SIGMA_FROM_ROWS ? "rows"
                                                                                         : "given",
                                                "estimated", r->sigma_source == TWF_SIGMA_ESTIMATED));
+}
+
+/* The base pose before and after, and the target offsets the fit
+ * determined. */
+static void add_json_base_targets(json_t *root, const twf_model *m, const twf_calib_result *r, const cli_units *u)
+{
+  json_t *targets = json_object();
+  size_t j;
   /* base_in_tracker: the older name, kept for existing readers */
   json_object_set_new(root, "base_in_instrument",
                       json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
@@ -616,49 +624,56 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
   json_object_set_new(root, "base_in_tracker",
                       json_pack("{s:o, s:o}", "before", cli_json_pose(&r->base_before, u), "after",
                                 cli_json_pose(&r->base_in_tracker, u)));
-  {
-    json_t *targets = json_object();
-    for (j = 0; j < r->asbuilt->n_targets; j++)
-      if (r->target_in_fit[j])
-        json_object_set_new(targets, m->targets[j].name,
-                            json_pack("[o,o,o]", cli_json_number(r->asbuilt->targets[j].offset[0] / u->length_si),
-                                      cli_json_number(r->asbuilt->targets[j].offset[1] / u->length_si),
-                                      cli_json_number(r->asbuilt->targets[j].offset[2] / u->length_si)));
-    json_object_set_new(root, "target_offsets_flange", targets);
+  for (j = 0; j < r->asbuilt->n_targets; j++)
+    if (r->target_in_fit[j])
+      json_object_set_new(targets, m->targets[j].name,
+                          json_pack("[o,o,o]", cli_json_number(r->asbuilt->targets[j].offset[0] / u->length_si),
+                                    cli_json_number(r->asbuilt->targets[j].offset[1] / u->length_si),
+                                    cli_json_number(r->asbuilt->targets[j].offset[2] / u->length_si)));
+  json_object_set_new(root, "target_offsets_flange", targets);
+}
+
+/* The summary: the verdict and the figures it used, the left-out rows. */
+static void add_json_summary(json_t *root, const twf_model *m, const twf_campaign *view, const twf_calib_result *r,
+                             const cli_units *u)
+{
+  json_t *flagged = json_array();
+  char gtext[160];
+  size_t i;
+  groups_text(r->groups, gtext, sizeof gtext);
+  json_object_set_new(root, "fitted", json_string(gtext));
+  json_object_set_new(root, "verdict",
+                      json_pack("{s:s, s:s, s:o, s:o}", "conclusion", twf_calib_verdict_name(r->verdict), "basis",
+                                twf_verdict_basis_name(r->verdict_basis), "before",
+                                cli_json_stats(&r->verdict_before, u->length_si), "after",
+                                cli_json_stats(&r->verdict_after, u->length_si)));
+  json_object_set_new(root, "left_out",
+                      json_pack("{s:{s:o, s:o}, s:{s:o, s:o}}", "fit_dropped", "before",
+                                cli_json_stats(&r->excluded_before[TWF_SET_FIT], u->length_si), "after",
+                                cli_json_stats(&r->excluded_after[TWF_SET_FIT], u->length_si), "check_flagged",
+                                "before", cli_json_stats(&r->excluded_before[TWF_SET_CHECK], u->length_si), "after",
+                                cli_json_stats(&r->excluded_after[TWF_SET_CHECK], u->length_si)));
+  json_object_set_new(root, "check_every_row",
+                      json_pack("{s:o, s:o}", "before", cli_json_stats(&r->check_all_before, u->length_si),
+                                "after", cli_json_stats(&r->check_all_after, u->length_si)));
+  for (i = 0; i < r->n_check_flagged; i++) {
+    const twf_outlier *o = &r->check_flagged[i];
+    const twf_measurement *ms = &view->meas[o->meas];
+    json_array_append_new(flagged, json_pack("{s:I, s:s, s:s, s:o, s:o}", "line", (json_int_t)ms->line, "pose",
+                                             view->pose_ids[ms->pose], "target", m->targets[ms->target].name,
+                                             "error", cli_json_number(o->error_m / u->length_si), "score",
+                                             cli_json_number(o->score)));
   }
-  json_object_set_new(root, "accuracy_before", cli_json_accuracy(before, m, view, u));
-  json_object_set_new(root, "accuracy_after", cli_json_accuracy(after, m, view, u));
-  json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(&r->fit_screened, u->length_si));
-  {
-    /* the summary: the verdict and the figures it used, the left-out rows */
-    json_t *flagged = json_array();
-    char gtext[160];
-    groups_text(r->groups, gtext, sizeof gtext);
-    json_object_set_new(root, "fitted", json_string(gtext));
-    json_object_set_new(root, "verdict",
-                        json_pack("{s:s, s:s, s:o, s:o}", "conclusion", twf_calib_verdict_name(r->verdict), "basis",
-                                  twf_verdict_basis_name(r->verdict_basis), "before",
-                                  cli_json_stats(&r->verdict_before, u->length_si), "after",
-                                  cli_json_stats(&r->verdict_after, u->length_si)));
-    json_object_set_new(root, "left_out",
-                        json_pack("{s:{s:o, s:o}, s:{s:o, s:o}}", "fit_dropped", "before",
-                                  cli_json_stats(&r->excluded_before[TWF_SET_FIT], u->length_si), "after",
-                                  cli_json_stats(&r->excluded_after[TWF_SET_FIT], u->length_si), "check_flagged",
-                                  "before", cli_json_stats(&r->excluded_before[TWF_SET_CHECK], u->length_si), "after",
-                                  cli_json_stats(&r->excluded_after[TWF_SET_CHECK], u->length_si)));
-    json_object_set_new(root, "check_every_row",
-                        json_pack("{s:o, s:o}", "before", cli_json_stats(&r->check_all_before, u->length_si),
-                                  "after", cli_json_stats(&r->check_all_after, u->length_si)));
-    for (i = 0; i < r->n_check_flagged; i++) {
-      const twf_outlier *o = &r->check_flagged[i];
-      const twf_measurement *ms = &view->meas[o->meas];
-      json_array_append_new(flagged, json_pack("{s:I, s:s, s:s, s:o, s:o}", "line", (json_int_t)ms->line, "pose",
-                                               view->pose_ids[ms->pose], "target", m->targets[ms->target].name,
-                                               "error", cli_json_number(o->error_m / u->length_si), "score",
-                                               cli_json_number(o->score)));
-    }
-    json_object_set_new(root, "check_flagged", flagged);
-  }
+  json_object_set_new(root, "check_flagged", flagged);
+}
+
+/* The solver's iterations and stops, the outlier screen and the fit
+ * measurements it affected. */
+static void add_json_solver(json_t *root, const twf_model *m, const twf_campaign *view, const twf_calib_result *r,
+                            const twf_calib_options *co, const cli_units *u)
+{
+  json_t *outl = json_array();
+  size_t i;
   json_object_set_new(root, "solver",
                       json_pack("{s:{s:i, s:s}, s:{s:i, s:o, s:o, s:s, s:b}, s:{s:s, s:o, s:i}}",
                                 "registration", "iterations", r->registration.iterations, "stop",
@@ -677,22 +692,34 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
                                           cli_json_number(o->score), "weight", cli_json_number(o->weight)));
   }
   json_object_set_new(root, "outliers", outl);
+}
+
+/* The residual pattern, the compliance, each measurement's errors before
+ * and after, and the as-built link table. */
+static void add_json_residuals(json_t *root, const twf_model *m, const twf_campaign *view, const twf_calib_result *r,
+                               const cli_units *u)
+{
+  static const char *const names[2] = { "before", "after" };
+  const double *pe[2] = { r->pos_err_before, r->pos_err_after };
+  const double *ae[2] = { r->angle_err_before, r->angle_err_after };
+  json_t *meas;
+  cli_links_table t;
   json_object_set_new(root, "residual_pattern", cli_json_pattern(m, &r->pattern, r->screen_refused, u));
   if (r->compliance.n_joints > 0)
     json_object_set_new(root, "compliance", cli_json_compliance(r->asbuilt, view, &r->compliance, u));
-  {
-    static const char *const names[2] = { "before", "after" };
-    const double *pe[2] = { r->pos_err_before, r->pos_err_after };
-    const double *ae[2] = { r->angle_err_before, r->angle_err_after };
-    json_t *meas = cli_json_measurements(view, m, r->meas_set, 2, names, pe, ae, r->excluded, r->outliers,
-                                         r->n_outliers, u);
-    if (meas != NULL)
-      json_object_set_new(root, "measurements", meas);
-  }
-  {
-    cli_links_table t = links_table(m, r, u);
-    json_object_set_new(root, "links", cli_links_json(&t));
-  }
+  meas = cli_json_measurements(view, m, r->meas_set, 2, names, pe, ae, r->excluded, r->outliers, r->n_outliers, u);
+  if (meas != NULL)
+    json_object_set_new(root, "measurements", meas);
+  t = links_table(m, r, u);
+  json_object_set_new(root, "links", cli_links_json(&t));
+}
+
+/* The parameters member: each parameter's change and std in report
+ * units (null when not estimated), with what explains a fixed one. */
+static json_t *params_json(const twf_calib_result *r, const cli_units *u)
+{
+  json_t *params = json_array();
+  size_t i, j;
   for (j = 0; j < r->n_params; j++) {
     const twf_param_result *p = &r->params[j];
     const char *unit;
@@ -711,20 +738,49 @@ static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, cons
     }
     json_array_append_new(params, o);
   }
-  json_object_set_new(root, "parameters", params);
+  return params;
+}
+
+/* The identifiability member: the counts, conditioning, observability
+ * and the strongest correlations. */
+static json_t *identifiability_json(const twf_calib_result *r)
+{
+  json_t *corr = json_array();
+  size_t i;
   for (i = 0; i < r->n_correlations; i++)
     json_array_append_new(corr, json_pack("{s:s, s:s, s:o}", "a", r->params[r->correlations[i].a].param.name, "b",
                                           r->params[r->correlations[i].b].param.name, "rho",
                                           cli_json_number(r->correlations[i].rho)));
-  ident = json_pack("{s:I, s:I, s:I, s:I, s:I, s:I, s:o, s:[o,o,o,o], s:o}", "requested",
-                    (json_int_t)r->n_params, "identifiable", (json_int_t)r->structural_count, "estimated",
-                    (json_int_t)r->n_kept, "fixed_redundant", (json_int_t)r->n_fixed_structural,
-                    "fixed_by_data", (json_int_t)r->n_fixed_data, "weak", (json_int_t)r->n_weak,
-                    "condition_number", cli_json_number(r->condition_number), "observability",
-                    cli_json_number(r->observability.o1), cli_json_number(r->observability.o2),
-                    cli_json_number(r->observability.o3), cli_json_number(r->observability.o4),
-                    "correlations", corr);
-  json_object_set_new(root, "identifiability", ident);
+  return json_pack("{s:I, s:I, s:I, s:I, s:I, s:I, s:o, s:[o,o,o,o], s:o}", "requested",
+                   (json_int_t)r->n_params, "identifiable", (json_int_t)r->structural_count, "estimated",
+                   (json_int_t)r->n_kept, "fixed_redundant", (json_int_t)r->n_fixed_structural,
+                   "fixed_by_data", (json_int_t)r->n_fixed_data, "weak", (json_int_t)r->n_weak,
+                   "condition_number", cli_json_number(r->condition_number), "observability",
+                   cli_json_number(r->observability.o1), cli_json_number(r->observability.o2),
+                   cli_json_number(r->observability.o3), cli_json_number(r->observability.o4),
+                   "correlations", corr);
+}
+
+/* The report as JSON: the members in the order readers have seen them. */
+static json_t *report_json(const cli_inputs *in, const twf_calib_result *r, const twf_calib_options *co,
+                           const cli_units *u, const digest *dg, size_t n_dg, const char *created,
+                           const twf_warnings *w)
+{
+  const twf_campaign *view = in->campaign;
+  const twf_model *m = in->model;
+  json_t *root = json_object(), *warn = json_array();
+  size_t i;
+  add_json_origin(root, dg, n_dg, created, u);
+  add_json_campaign(root, view, r, u);
+  add_json_base_targets(root, m, r, u);
+  json_object_set_new(root, "accuracy_before", cli_json_accuracy(r->accuracy_before, m, view, u));
+  json_object_set_new(root, "accuracy_after", cli_json_accuracy(r->accuracy_after, m, view, u));
+  json_object_set_new(root, "accuracy_after_fit_screened", cli_json_stats(&r->fit_screened, u->length_si));
+  add_json_summary(root, m, view, r, u);
+  add_json_solver(root, m, view, r, co, u);
+  add_json_residuals(root, m, view, r, u);
+  json_object_set_new(root, "parameters", params_json(r, u));
+  json_object_set_new(root, "identifiability", identifiability_json(r));
   /* for the HTML report: the arm and its joints' units, the singular
    * values against the noise, the correlation matrix */
   json_object_set_new(root, "robot", cli_json_robot(m, u));
@@ -880,305 +936,456 @@ static int record_run(twf_calib_result *res, const cli_units *u, const char *cre
   return TWF_EXIT_OK;
 }
 
-static int run_calibrate(int argc, char **argv)
-{
-  static const struct option longopts[] = {
-    CLI_INPUT_LONGOPTS,
-    { "output", required_argument, NULL, 'o' },
-    { "base-output", required_argument, NULL, OPT_BASE_OUT },
-    { "json", required_argument, NULL, OPT_JSON },
-    { "residuals", required_argument, NULL, OPT_RESIDUALS },
-    { "fit", required_argument, NULL, OPT_FIT },
-    { "priority", required_argument, NULL, OPT_PRIORITY },
-    { "sigma", required_argument, NULL, OPT_SIGMA },
-    { "sigma-angle", required_argument, NULL, OPT_SIGMA_ANGLE },
-    { "robust", required_argument, NULL, OPT_ROBUST },
-    { "robust-threshold", required_argument, NULL, OPT_ROBUST_K },
-    { "screen-limit", required_argument, NULL, OPT_SCREEN_LIMIT },
-    { "check-fraction", required_argument, NULL, OPT_CHECK_FRACTION },
-    { "seed", required_argument, NULL, OPT_SEED },
-    { "max-iterations", required_argument, NULL, OPT_MAXIT },
-    { "threads", required_argument, NULL, OPT_THREADS },
-    { "resample", required_argument, NULL, OPT_RESAMPLE },
-    { "accept-large", no_argument, NULL, OPT_ACCEPT_LARGE },
-    { "write-anyway", no_argument, NULL, OPT_WRITE_ANYWAY },
-    { "html", required_argument, NULL, OPT_HTML },
-    { "force", no_argument, NULL, 'f' },
-    { "help", no_argument, NULL, 'h' },
-    { NULL, 0, NULL, 0 }
-  };
-  const char *model_out = NULL, *base_out = NULL, *json_path = NULL, *residuals_path = NULL, *html_path = NULL;
-  const char *sigma_text = NULL, *sigma_angle_text = NULL, *fit_text = NULL, *priority_text = NULL;
-  int force = 0, write_anyway = 0, opt, status = TWF_EXIT_OK;
-  cli_inputs in;
-  cli_units u;
-  twf_calib_options co = twf_calib_default_options();
-  twf_calib_result *res = NULL;
-  twf_warnings warnings;
-  twf_error err;
-  json_t *root = NULL;
-  digest dg[6];
-  size_t n_dg = 0, i, n_reader_warnings = 0, n_resample = 0;
-  twf_resample_result *resampled = NULL;
-  twf_warnings resample_w;
-  char created[64], cmdline[1024];
-  FILE *txt = stdout;
+static const struct option calibrate_longopts[] = {
+  CLI_INPUT_LONGOPTS,
+  { "output", required_argument, NULL, 'o' },
+  { "base-output", required_argument, NULL, OPT_BASE_OUT },
+  { "json", required_argument, NULL, OPT_JSON },
+  { "residuals", required_argument, NULL, OPT_RESIDUALS },
+  { "fit", required_argument, NULL, OPT_FIT },
+  { "priority", required_argument, NULL, OPT_PRIORITY },
+  { "sigma", required_argument, NULL, OPT_SIGMA },
+  { "sigma-angle", required_argument, NULL, OPT_SIGMA_ANGLE },
+  { "robust", required_argument, NULL, OPT_ROBUST },
+  { "robust-threshold", required_argument, NULL, OPT_ROBUST_K },
+  { "screen-limit", required_argument, NULL, OPT_SCREEN_LIMIT },
+  { "check-fraction", required_argument, NULL, OPT_CHECK_FRACTION },
+  { "seed", required_argument, NULL, OPT_SEED },
+  { "max-iterations", required_argument, NULL, OPT_MAXIT },
+  { "threads", required_argument, NULL, OPT_THREADS },
+  { "resample", required_argument, NULL, OPT_RESAMPLE },
+  { "accept-large", no_argument, NULL, OPT_ACCEPT_LARGE },
+  { "write-anyway", no_argument, NULL, OPT_WRITE_ANYWAY },
+  { "html", required_argument, NULL, OPT_HTML },
+  { "force", no_argument, NULL, 'f' },
+  { "help", no_argument, NULL, 'h' },
+  { NULL, 0, NULL, 0 }
+};
 
-  cli_inputs_init(&in);
-  twf_warnings_init(&warnings);
-  twf_warnings_init(&resample_w);
-  command_line_of(argc, argv, cmdline, sizeof cmdline);
+/* The command's settings as the options give them. The sigmas stay text
+ * until the model's units are known, the group lists until all options
+ * are read; co is completed by parse_options and load_inputs. The input
+ * options go to the job's cli_inputs (cli_inputs_option). */
+typedef struct calib_settings {
+  const char *model_out, *base_out, *json_path, *residuals_path, *html_path;
+  const char *sigma_text, *sigma_angle_text, *fit_text, *priority_text;
+  int force, write_anyway;
+  int help_shown;      /* -h: the help is printed, nothing else to do */
+  int first_operand;   /* optind after the options: MODEL, then the data */
+  size_t n_resample;   /* --resample, 0: none */
+  twf_calib_options co;
+  char cmdline[1024];  /* as typed (getopt reorders argv), for the record */
+} calib_settings;
+
+static void calib_settings_init(calib_settings *s)
+{
+  memset(s, 0, sizeof *s);
+  s->co = twf_calib_default_options();
+}
+
+static int parse_robust(calib_settings *s, const char *arg)
+{
+  if (strcmp(arg, "drop") == 0) s->co.robust = TWF_ROBUST_DROP;
+  else if (strcmp(arg, "huber") == 0) s->co.robust = TWF_ROBUST_HUBER;
+  else if (strcmp(arg, "cauchy") == 0) s->co.robust = TWF_ROBUST_CAUCHY;
+  else if (strcmp(arg, "off") == 0) s->co.robust = TWF_ROBUST_OFF;
+  else return cli_usage_error("calibrate", "--robust takes drop, huber, cauchy or off");
+  return 0;
+}
+
+static int parse_robust_threshold(calib_settings *s, const char *arg)
+{
+  if (cli_parse_double(arg, &s->co.robust_threshold) != 0 || s->co.robust_threshold <= 0)
+    return cli_usage_error("calibrate", "--robust-threshold takes a positive number");
+  return 0;
+}
+
+static int parse_screen_limit(calib_settings *s, const char *arg)
+{
+  double pct;
+  if (cli_parse_double(arg, &pct) != 0 || !(pct > 0 && pct <= 100))
+    return cli_usage_error("calibrate", "--screen-limit takes a percentage above 0 and at most 100");
+  s->co.screen_max_fraction = pct / 100.0;
+  return 0;
+}
+
+static int parse_check_fraction(calib_settings *s, const char *arg)
+{
+  double *f = &s->co.check_fraction;
+  if (cli_parse_double(arg, f) != 0 || *f < 0 || *f >= 1)
+    return cli_usage_error("calibrate", "--check-fraction takes a number from 0 up to (not including) 1");
+  return 0;
+}
+
+static int parse_seed(calib_settings *s, const char *arg)
+{
+  char *end;
+  errno = 0;
+  s->co.seed = strtoull(arg, &end, 10);
+  if (*end != '\0' || *arg == '\0' || *arg == '-' || errno == ERANGE)
+    return cli_usage_error("calibrate", "--seed takes a non-negative whole number");
+  return 0;
+}
+
+/* A whole number from lo to hi into *v: 0, or -1 for anything else. */
+static int count_in(const char *arg, long lo, long hi, long *v)
+{
+  char *end;
+  *v = strtol(arg, &end, 10);
+  return *end == '\0' && *v >= lo && *v <= hi ? 0 : -1;
+}
+
+/* --max-iterations, --threads and --resample. */
+static int parse_count(calib_settings *s, int opt, const char *arg)
+{
+  long v;
+  switch (opt) {
+  case OPT_MAXIT:
+    if (count_in(arg, 1, 100000, &v) != 0)
+      return cli_usage_error("calibrate", "--max-iterations takes a count from 1 to 100000");
+    s->co.max_iterations = (int)v;
+    break;
+  case OPT_THREADS:
+    if (count_in(arg, 1, 256, &v) != 0)
+      return cli_usage_error("calibrate", "--threads takes a count from 1 to 256");
+    s->co.threads = (int)v;
+    break;
+  default:
+    if (count_in(arg, 1, 100000, &v) != 0)
+      return cli_usage_error("calibrate", "--resample takes a count from 1 to 100000");
+    s->n_resample = (size_t)v;
+    break;
+  }
+  return 0;
+}
+
+/* One option of getopt_long into s, or into in for the input options: 0,
+ * or the exit status of a bad one. */
+static int take_option(calib_settings *s, cli_inputs *in, int opt, const char *arg, char **argv)
+{
+  int status;
+  if (cli_inputs_option(in, "calibrate", opt, arg, &status))
+    return status;
+  switch (opt) {
+  case 'o': s->model_out = arg; break;
+  case OPT_BASE_OUT: s->base_out = arg; break;
+  case OPT_JSON: s->json_path = arg; break;
+  case OPT_RESIDUALS: s->residuals_path = arg; break;
+  case OPT_HTML: s->html_path = arg; break;
+  case OPT_FIT: s->fit_text = arg; break;
+  case OPT_PRIORITY: s->priority_text = arg; break;
+  case OPT_SIGMA: s->sigma_text = arg; break;
+  case OPT_SIGMA_ANGLE: s->sigma_angle_text = arg; break;
+  case OPT_ROBUST: return parse_robust(s, arg);
+  case OPT_ROBUST_K: return parse_robust_threshold(s, arg);
+  case OPT_SCREEN_LIMIT: return parse_screen_limit(s, arg);
+  case OPT_CHECK_FRACTION: return parse_check_fraction(s, arg);
+  case OPT_SEED: return parse_seed(s, arg);
+  case OPT_MAXIT:
+  case OPT_THREADS:
+  case OPT_RESAMPLE: return parse_count(s, opt, arg);
+  case OPT_ACCEPT_LARGE: s->co.accept_large = 1; break;
+  case OPT_WRITE_ANYWAY: s->write_anyway = 1; break;
+  case 'f': s->force = 1; break;
+  case 'h': fputs(calibrate_help, stdout); s->help_shown = 1; break;
+  default: return cli_bad_option("calibrate", opt, argv);
+  }
+  return 0;
+}
+
+/* --fit and --priority into co, once all options are read. */
+static int take_groups(calib_settings *s)
+{
+  if (s->fit_text != NULL && parse_groups(s->fit_text, &s->co.groups) != 0)
+    return cli_usage_error("calibrate", "unknown group in --fit '%s'", s->fit_text);
+  if (s->priority_text != NULL && parse_priority(s->priority_text, s->co.priority) != 0)
+    return cli_usage_error("calibrate", "unknown group in --priority '%s'", s->priority_text);
+  return 0;
+}
+
+/* The command line into s (the input options into in): 0, or the exit
+ * status of a usage error; s->help_shown after -h. */
+static int parse_options(int argc, char **argv, calib_settings *s, cli_inputs *in)
+{
+  int opt, status;
+  calib_settings_init(s);
+  command_line_of(argc, argv, s->cmdline, sizeof s->cmdline);
   optind = 0;
   opterr = 0;
-  while ((opt = getopt_long(argc, argv, ":o:fh", longopts, NULL)) != -1) {
-    if (cli_inputs_option(&in, "calibrate", opt, optarg, &status)) {
-      if (status != 0)
-        goto done;
-      continue;
-    }
-    switch (opt) {
-    case 'o': model_out = optarg; break;
-    case OPT_BASE_OUT: base_out = optarg; break;
-    case OPT_JSON: json_path = optarg; break;
-    case OPT_RESIDUALS: residuals_path = optarg; break;
-    case OPT_HTML: html_path = optarg; break;
-    case OPT_FIT: fit_text = optarg; break;
-    case OPT_PRIORITY: priority_text = optarg; break;
-    case OPT_SIGMA: sigma_text = optarg; break;
-    case OPT_SIGMA_ANGLE: sigma_angle_text = optarg; break;
-    case OPT_ROBUST:
-      if (strcmp(optarg, "drop") == 0) co.robust = TWF_ROBUST_DROP;
-      else if (strcmp(optarg, "huber") == 0) co.robust = TWF_ROBUST_HUBER;
-      else if (strcmp(optarg, "cauchy") == 0) co.robust = TWF_ROBUST_CAUCHY;
-      else if (strcmp(optarg, "off") == 0) co.robust = TWF_ROBUST_OFF;
-      else { status = cli_usage_error("calibrate", "--robust takes drop, huber, cauchy or off"); goto done; }
-      break;
-    case OPT_ROBUST_K:
-      if (cli_parse_double(optarg, &co.robust_threshold) != 0 || co.robust_threshold <= 0) {
-        status = cli_usage_error("calibrate", "--robust-threshold takes a positive number");
-        goto done;
-      }
-      break;
-    case OPT_SCREEN_LIMIT: {
-      double pct;
-      if (cli_parse_double(optarg, &pct) != 0 || !(pct > 0 && pct <= 100)) {
-        status = cli_usage_error("calibrate", "--screen-limit takes a percentage above 0 and at most 100");
-        goto done;
-      }
-      co.screen_max_fraction = pct / 100.0;
-      break;
-    }
-    case OPT_CHECK_FRACTION:
-      if (cli_parse_double(optarg, &co.check_fraction) != 0 || co.check_fraction < 0 || co.check_fraction >= 1) {
-        status = cli_usage_error("calibrate", "--check-fraction takes a number from 0 up to (not including) 1");
-        goto done;
-      }
-      break;
-    case OPT_SEED: {
-      char *end;
-      errno = 0;
-      co.seed = strtoull(optarg, &end, 10);
-      if (*end != '\0' || *optarg == '\0' || *optarg == '-' || errno == ERANGE) {
-        status = cli_usage_error("calibrate", "--seed takes a non-negative whole number");
-        goto done;
-      }
-      break;
-    }
-    case OPT_MAXIT: {
-      char *end;
-      long v = strtol(optarg, &end, 10);
-      if (*end != '\0' || v < 1 || v > 100000) {
-        status = cli_usage_error("calibrate", "--max-iterations takes a count from 1 to 100000");
-        goto done;
-      }
-      co.max_iterations = (int)v;
-      break;
-    }
-    case OPT_THREADS: {
-      char *end;
-      long v = strtol(optarg, &end, 10);
-      if (*end != '\0' || v < 1 || v > 256) {
-        status = cli_usage_error("calibrate", "--threads takes a count from 1 to 256");
-        goto done;
-      }
-      co.threads = (int)v;
-      break;
-    }
-    case OPT_RESAMPLE: {
-      char *end;
-      long v = strtol(optarg, &end, 10);
-      if (*end != '\0' || v < 1 || v > 100000) {
-        status = cli_usage_error("calibrate", "--resample takes a count from 1 to 100000");
-        goto done;
-      }
-      n_resample = (size_t)v;
-      break;
-    }
-    case OPT_ACCEPT_LARGE: co.accept_large = 1; break;
-    case OPT_WRITE_ANYWAY: write_anyway = 1; break;
-    case 'f': force = 1; break;
-    case 'h': fputs(calibrate_help, stdout); goto done;
-    default: status = cli_bad_option("calibrate", opt, argv); goto done;
-    }
-  }
-  if (fit_text != NULL && parse_groups(fit_text, &co.groups) != 0) {
-    status = cli_usage_error("calibrate", "unknown group in --fit '%s'", fit_text);
-    goto done;
-  }
-  if (priority_text != NULL && parse_priority(priority_text, co.priority) != 0) {
-    status = cli_usage_error("calibrate", "unknown group in --priority '%s'", priority_text);
-    goto done;
-  }
-  if ((status = cli_inputs_load(&in, "calibrate", argc, argv, optind)) != 0)
-    goto done;
-  if ((co.groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE)) && !twf_model_has_masses(in.model)) {
-    fprintf(stderr, "twistfit: error: %s: the compliance group needs a mass model: the model declares no "
-                    "masses\n", in.model_path);
-    fprintf(stderr, "twistfit: hint: declare the bodies' masses ([mass JOINT]) and the payloads ([payload "
-                    "NAME]) in the model file, see twistfit-model(5)\n");
-    status = TWF_EXIT_INPUT;
-    goto done;
-  }
-  cli_units_of(&u, in.model);
+  while ((opt = getopt_long(argc, argv, ":o:fh", calibrate_longopts, NULL)) != -1)
+    if ((status = take_option(s, in, opt, optarg, argv)) != 0 || s->help_shown)
+      return status;
+  s->first_operand = optind;
+  return take_groups(s);
+}
+
+/* What a run reads and makes; calib_job_free releases it. */
+typedef struct calib_job {
+  cli_inputs in;                   /* the input options, then the model and campaign */
+  cli_units u;                     /* the model's, for the report */
+  FILE *txt;                       /* the text report: stderr when --json is '-' */
+  digest dg[6];                    /* one per input path (at most 5) */
+  size_t n_dg;
+  char created[64];                /* when the run was made, UTC */
+  twf_warnings warnings;           /* the readers', then the calibration's */
+  twf_calib_result *res;
+  twf_resample_result *resampled;  /* --resample */
+  twf_warnings resample_w;
+  json_t *root;                    /* the JSON report, for --json and --html */
+} calib_job;
+
+static void calib_job_init(calib_job *j)
+{
+  memset(j, 0, sizeof *j);
+  cli_inputs_init(&j->in);
+  twf_warnings_init(&j->warnings);
+  twf_warnings_init(&j->resample_w);
+  j->txt = stdout;
+}
+
+static void calib_job_free(calib_job *j)
+{
+  json_decref(j->root);
+  twf_resample_result_free(j->resampled);
+  twf_warnings_clear(&j->resample_w);
+  twf_calib_result_free(j->res);
+  twf_warnings_clear(&j->warnings);
+  cli_inputs_free(&j->in);
+}
+
+/* The compliance group fits joint yield under gravity: without the
+ * model's masses there is nothing to fit. */
+static int check_masses(const calib_settings *s, const calib_job *j)
+{
+  if (!(s->co.groups & TWF_GROUP_BIT(TWF_GROUP_COMPLIANCE)) || twf_model_has_masses(j->in.model))
+    return TWF_EXIT_OK;
+  fprintf(stderr, "twistfit: error: %s: the compliance group needs a mass model: the model declares no "
+                  "masses\n", j->in.model_path);
+  fprintf(stderr, "twistfit: hint: declare the bodies' masses ([mass JOINT]) and the payloads ([payload "
+                  "NAME]) in the model file, see twistfit-model(5)\n");
+  return TWF_EXIT_INPUT;
+}
+
+/* --sigma and --sigma-angle into co, in the model's units. */
+static int take_sigmas(calib_settings *s, const calib_job *j)
+{
+  const cli_units *u = &j->u;
+  int status;
   /* bounded: a sigma far outside what an instrument can have (1e-300)
    * would reach the solver as infinite weights */
-  if (sigma_text != NULL &&
-      (status = cli_parse_bounded("calibrate", "--sigma", sigma_text, u.length_si, u.length, 1e-9, 1.0, &co.sigma_length)) != 0)
-    goto done;
-  if (sigma_angle_text != NULL &&
-      (status = cli_parse_bounded("calibrate", "--sigma-angle", sigma_angle_text, u.angle_si, u.angle, 1e-9, 1.0,
-                                  &co.sigma_angle)) != 0)
-    goto done;
+  if (s->sigma_text != NULL &&
+      (status = cli_parse_bounded("calibrate", "--sigma", s->sigma_text, u->length_si, u->length, 1e-9, 1.0,
+                                  &s->co.sigma_length)) != 0)
+    return status;
+  if (s->sigma_angle_text != NULL &&
+      (status = cli_parse_bounded("calibrate", "--sigma-angle", s->sigma_angle_text, u->angle_si, u->angle, 1e-9, 1.0,
+                                  &s->co.sigma_angle)) != 0)
+    return status;
   /* as verify treats --tol-angle-max: an orientation option without 6-D
    * rows is a mistake, not a no-op */
-  if (sigma_angle_text != NULL && !in.campaign->has_orientation_any) {
-    status = cli_usage_error("calibrate", "--sigma-angle needs 6-D rows (with a quaternion); the campaign has none");
-    goto done;
-  }
-  if (json_path != NULL && strcmp(json_path, "-") == 0)
-    txt = stderr;
-  /* refuse outputs that would fail before the work is done: a failed run
-   * then writes nothing */
-  {
-    const char *outs[5] = { model_out, base_out, json_path, residuals_path, html_path };
-    static const char *const names[5] = { "--output", "--base-output", "--json", "--residuals", "--html" };
-    size_t k;
-    for (k = 0; k < 5; k++)
-      if (k != 2 && outs[k] != NULL && strcmp(outs[k], "-") == 0) {
-        status = cli_usage_error("calibrate", "only --json may go to standard output ('-'); give file names for the others");
-        goto done;
-      }
-    if ((status = cli_outputs_check("calibrate", outs, names, 5, force, in.paths)) != 0)
-      goto done;
-  }
+  if (s->sigma_angle_text != NULL && !j->in.campaign->has_orientation_any)
+    return cli_usage_error("calibrate", "--sigma-angle needs 6-D rows (with a quaternion); the campaign has none");
+  return TWF_EXIT_OK;
+}
 
-  /* the digests of the bytes the readers parsed (paths: the model, then
-   * the campaign's files in the order read) */
-  for (i = 0; in.paths[i] != NULL; i++) {
-    const twf_input_digest *d = i == 0 ? &in.model_digest
-                                : i - 1 < in.campaign->n_inputs ? &in.campaign->inputs[i - 1] : NULL;
-    dg[n_dg].path = in.paths[i];
-    snprintf(dg[n_dg].hex, sizeof dg[n_dg].hex, "%s", d && d->sha256[0] ? d->sha256 : "unavailable");
-    n_dg++;
-  }
-  {
-    time_t now = time(NULL);
-    struct tm tmv;
-    gmtime_r(&now, &tmv);
-    strftime(created, sizeof created, "%Y-%m-%dT%H:%M:%SZ", &tmv);
-  }
+/* The model and the campaign, checked against the settings (the masses
+ * for compliance, the sigmas in the model's units). */
+static int load_inputs(calib_settings *s, calib_job *j, int argc, char **argv)
+{
+  int status;
+  if ((status = cli_inputs_load(&j->in, "calibrate", argc, argv, s->first_operand)) != 0)
+    return status;
+  if ((status = check_masses(s, j)) != 0)
+    return status;
+  cli_units_of(&j->u, j->in.model);
+  return take_sigmas(s, j);
+}
 
+/* Refuse outputs that would fail before the work is done: a failed run
+ * then writes nothing. */
+static int check_outputs(const calib_settings *s, calib_job *j)
+{
+  const char *outs[5] = { s->model_out, s->base_out, s->json_path, s->residuals_path, s->html_path };
+  static const char *const names[5] = { "--output", "--base-output", "--json", "--residuals", "--html" };
+  size_t k;
+  if (s->json_path != NULL && strcmp(s->json_path, "-") == 0)
+    j->txt = stderr;
+  for (k = 0; k < 5; k++)
+    if (k != 2 && outs[k] != NULL && strcmp(outs[k], "-") == 0)
+      return cli_usage_error("calibrate", "only --json may go to standard output ('-'); give file names for the others");
+  return cli_outputs_check("calibrate", outs, names, 5, s->force, j->in.paths);
+}
+
+/* The digests of the bytes the readers parsed (paths: the model, then
+ * the campaign's files in the order read), and the time of the run. */
+static void note_inputs(calib_job *j)
+{
+  const cli_inputs *in = &j->in;
+  time_t now = time(NULL);
+  struct tm tmv;
+  size_t i;
+  for (i = 0; in->paths[i] != NULL; i++) {
+    const twf_input_digest *d = i == 0 ? &in->model_digest
+                                : i - 1 < in->campaign->n_inputs ? &in->campaign->inputs[i - 1] : NULL;
+    j->dg[j->n_dg].path = in->paths[i];
+    snprintf(j->dg[j->n_dg].hex, sizeof j->dg[j->n_dg].hex, "%s", d && d->sha256[0] ? d->sha256 : "unavailable");
+    j->n_dg++;
+  }
+  gmtime_r(&now, &tmv);
+  strftime(j->created, sizeof j->created, "%Y-%m-%dT%H:%M:%SZ", &tmv);
+}
+
+/* The fit. On failure the warnings printed are the calibration's own
+ * (the readers' were printed as they were read), and nothing is written. */
+static int calibrate_model(const calib_settings *s, calib_job *j)
+{
+  twf_error err;
+  size_t i, n_reader_warnings;
+  int status;
   twf_error_clear(&err);
   /* the report lists the readers' warnings too */
-  for (i = 0; i < in.warnings.count; i++)
-    twf_warnings_add(&warnings, in.warnings.items[i].file, in.warnings.items[i].line,
-                     in.warnings.items[i].column, "%s", in.warnings.items[i].message);
-  n_reader_warnings = warnings.count;
-  if (twf_calibrate(in.model, in.campaign, &co, &res, &warnings, &err) != TWF_OK) {
-    twf_warnings tail = warnings;
+  for (i = 0; i < j->in.warnings.count; i++)
+    twf_warnings_add(&j->warnings, j->in.warnings.items[i].file, j->in.warnings.items[i].line,
+                     j->in.warnings.items[i].column, "%s", j->in.warnings.items[i].message);
+  n_reader_warnings = j->warnings.count;
+  if (twf_calibrate(j->in.model, j->in.campaign, &s->co, &j->res, &j->warnings, &err) != TWF_OK) {
+    twf_warnings tail = j->warnings;
     tail.items += n_reader_warnings;
     tail.count -= n_reader_warnings;
     cli_print_warnings(&tail);
     cli_hint_options(&err);
     status = cli_report_error(&err);
     fprintf(stderr, "twistfit: no output file was written\n");
-    goto done;
+    return status;
   }
-  cli_print_trace(&res->trace);
+  cli_print_trace(&j->res->trace);
+  return TWF_EXIT_OK;
+}
 
-  if ((status = record_run(res, &u, created, cmdline, dg, n_dg, write_anyway)) != TWF_EXIT_OK)
-    goto done;
-
-  /* a model the report calls worse than the start is not written unless
-   * asked for by name */
-  if (res->verdict == TWF_VERDICT_DO_NOT_USE && !write_anyway && (model_out != NULL || base_out != NULL)) {
-    print_report(txt, &in, res, &co, &u, dg, n_dg, created, &warnings);
-    fflush(txt);
+/* The text report, then the refusal of a model the report calls worse
+ * than the start (not written unless asked for by name), then the
+ * bootstrap with --resample. */
+static int print_reports(const calib_settings *s, calib_job *j)
+{
+  const twf_calib_result *res = j->res;
+  print_report(j->txt, &j->in, res, &s->co, &j->u, j->dg, j->n_dg, j->created, &j->warnings);
+  if (res->verdict == TWF_VERDICT_DO_NOT_USE && !s->write_anyway && (s->model_out != NULL || s->base_out != NULL)) {
+    fflush(j->txt);
     fprintf(stderr, "twistfit: error: the calibrated model predicts the %s worse than the starting model: "
                     "not written\n"
                     "twistfit: hint: keep the previous model and measure more, and more varied, poses; "
                     "--write-anyway writes it regardless (recorded in its [asbuilt] section)\n"
                     "twistfit: no output file was written\n",
             twf_verdict_basis_name(res->verdict_basis));
-    status = TWF_EXIT_COMPUTE;
-    goto done;
+    return TWF_EXIT_COMPUTE;
   }
-  print_report(txt, &in, res, &co, &u, dg, n_dg, created, &warnings);
-  if (n_resample > 0 &&
-      (status = print_resample(txt, &in, res, &co, &u, n_resample, &resampled, &resample_w)) != TWF_EXIT_OK)
-    goto done;
-  {
-    cli_put puts[5];
-    cli_residuals rr;
-    base_file_ctx bo;
-    double *weights = malloc((in.campaign->n_meas ? in.campaign->n_meas : 1) * sizeof *weights);
-    size_t k;
-    if (weights == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    for (i = 0; i < in.campaign->n_meas; i++)
-      weights[i] = 1.0;
-    for (k = 0; k < res->n_outliers; k++)
-      weights[res->outliers[k].meas] = res->outliers[k].weight;
-    if (json_path != NULL || html_path != NULL)
-      root = report_json(&in, res, &co, &u, dg, n_dg, created, &warnings);
-    if (root != NULL && resampled != NULL)
-      json_object_set_new(root, "resample", resample_json(resampled, res, &u, &resample_w));
-    cli_json_add_predicted(root, res, in.model, in.campaign, &co, &u);
-    cli_json_add_stations(root, res, in.campaign, &u);
-    memset(&rr, 0, sizeof rr);
-    rr.m = in.model;
-    rr.c = in.campaign;
-    rr.sets = res->meas_set;
-    rr.pos[0] = res->pos_err_before;
-    rr.pos[1] = res->pos_err_after;
-    rr.rot[0] = res->angle_err_before;
-    rr.rot[1] = res->angle_err_after;
-    rr.labels[0] = "before_";
-    rr.labels[1] = "after_";
-    rr.weights = weights;
-    rr.u = &u;
-    bo.B = res->n_stations > 1 ? res->station_base : &res->base_in_tracker;
-    bo.names = (const char (*)[TWF_NAME_MAX])in.campaign->station_names;
-    bo.n = res->n_stations > 1 ? res->n_stations : 1;
-    bo.lu = in.model->length_unit;
-    puts[0] = (cli_put){ model_out, put_model, res->asbuilt };
-    puts[1] = (cli_put){ base_out, put_base, &bo };
-    puts[2] = (cli_put){ json_path, cli_put_json, root };
-    puts[3] = (cli_put){ residuals_path, cli_put_residuals, &rr };
-    puts[4] = (cli_put){ html_path, cli_put_html_run, root };
-    status = cli_write_outputs(puts, 5, force, in.paths);
-    free(weights);
-  }
+  if (s->n_resample == 0)
+    return TWF_EXIT_OK;
+  return print_resample(j->txt, &j->in, res, &s->co, &j->u, s->n_resample, &j->resampled, &j->resample_w);
+}
 
+/* The weight of each measurement in the fit (1, or the outlier screen's),
+ * for the residuals file; NULL when out of memory. */
+static double *fit_weights(const calib_job *j)
+{
+  const twf_campaign *c = j->in.campaign;
+  double *weights = malloc((c->n_meas ? c->n_meas : 1) * sizeof *weights);
+  size_t i;
+  if (weights == NULL)
+    return NULL;
+  for (i = 0; i < c->n_meas; i++)
+    weights[i] = 1.0;
+  for (i = 0; i < j->res->n_outliers; i++)
+    weights[j->res->outliers[i].meas] = j->res->outliers[i].weight;
+  return weights;
+}
+
+/* The JSON report for --json and --html (NULL when neither is asked
+ * for), with the bootstrap, the predictions and the stations. */
+static json_t *run_json(const calib_settings *s, const calib_job *j)
+{
+  const cli_inputs *in = &j->in;
+  json_t *root = NULL;
+  if (s->json_path != NULL || s->html_path != NULL)
+    root = report_json(in, j->res, &s->co, &j->u, j->dg, j->n_dg, j->created, &j->warnings);
+  if (root != NULL && j->resampled != NULL)
+    json_object_set_new(root, "resample", resample_json(j->resampled, j->res, &j->u, &j->resample_w));
+  cli_json_add_predicted(root, j->res, in->model, in->campaign, &s->co, &j->u);
+  cli_json_add_stations(root, j->res, in->campaign, &j->u);
+  return root;
+}
+
+/* The residuals file: before and after, per measurement, with weights. */
+static void residuals_of(const calib_job *j, const double *weights, cli_residuals *rr)
+{
+  memset(rr, 0, sizeof *rr);
+  rr->m = j->in.model;
+  rr->c = j->in.campaign;
+  rr->sets = j->res->meas_set;
+  rr->pos[0] = j->res->pos_err_before;
+  rr->pos[1] = j->res->pos_err_after;
+  rr->rot[0] = j->res->angle_err_before;
+  rr->rot[1] = j->res->angle_err_after;
+  rr->labels[0] = "before_";
+  rr->labels[1] = "after_";
+  rr->weights = weights;
+  rr->u = &j->u;
+}
+
+/* The base file: the one base pose, or one per station. */
+static void base_file_of(const calib_job *j, base_file_ctx *bo)
+{
+  const twf_calib_result *res = j->res;
+  bo->B = res->n_stations > 1 ? res->station_base : &res->base_in_tracker;
+  bo->names = (const char (*)[TWF_NAME_MAX])j->in.campaign->station_names;
+  bo->n = res->n_stations > 1 ? res->n_stations : 1;
+  bo->lu = j->in.model->length_unit;
+}
+
+/* Every output asked for, as one set (cli_write_outputs). */
+static int write_outputs(const calib_settings *s, calib_job *j)
+{
+  cli_put puts[5];
+  cli_residuals rr;
+  base_file_ctx bo;
+  double *weights = fit_weights(j);
+  int status;
+  if (weights == NULL)
+    return TWF_EXIT_INTERNAL;
+  j->root = run_json(s, j);
+  residuals_of(j, weights, &rr);
+  base_file_of(j, &bo);
+  puts[0] = (cli_put){ s->model_out, put_model, j->res->asbuilt };
+  puts[1] = (cli_put){ s->base_out, put_base, &bo };
+  puts[2] = (cli_put){ s->json_path, cli_put_json, j->root };
+  puts[3] = (cli_put){ s->residuals_path, cli_put_residuals, &rr };
+  puts[4] = (cli_put){ s->html_path, cli_put_html_run, j->root };
+  status = cli_write_outputs(puts, 5, s->force, j->in.paths);
+  free(weights);
+  return status;
+}
+
+static int run_calibrate(int argc, char **argv)
+{
+  calib_settings s;
+  calib_job j;
+  int status;
+
+  calib_job_init(&j);
+  if ((status = parse_options(argc, argv, &s, &j.in)) != 0 || s.help_shown)
+    goto done;
+  if ((status = load_inputs(&s, &j, argc, argv)) != 0 || (status = check_outputs(&s, &j)) != 0)
+    goto done;
+  note_inputs(&j);
+  if ((status = calibrate_model(&s, &j)) != 0)
+    goto done;
+  if ((status = record_run(j.res, &j.u, j.created, s.cmdline, j.dg, j.n_dg, s.write_anyway)) != TWF_EXIT_OK)
+    goto done;
+  if ((status = print_reports(&s, &j)) != TWF_EXIT_OK)
+    goto done;
+  status = write_outputs(&s, &j);
 done:
-  json_decref(root);
-  twf_resample_result_free(resampled);
-  twf_warnings_clear(&resample_w);
-  twf_calib_result_free(res);
-  twf_warnings_clear(&warnings);
-  cli_inputs_free(&in);
+  calib_job_free(&j);
   return status;
 }
 

@@ -393,142 +393,220 @@ static int check_output(compare_settings *s)
   return cli_outputs_check("compare", &s->json_path, names, 1, s->force, s->inputs);
 }
 
+/* What a run reads and makes; compare_job_free releases it. */
+typedef struct compare_job {
+  twf_model *a, *b;
+  twf_campaign *joints;          /* the --joints file, or NULL */
+  double *q;                     /* n_cfg x n_joints: joints->q, or the random ones (owned) */
+  size_t n_cfg;
+  cli_units u;                   /* model A's */
+  tolerance tol[3];              /* rms, max, angle-max */
+  twf_compare_result *res;
+  twf_links links;
+  double *ldiff;                 /* 5 per link row: B - A, SI */
+  int rejected;                  /* a tolerance is exceeded */
+  twf_warnings warnings;
+  twf_error err;
+} compare_job;
+
+static void compare_job_init(compare_job *j)
+{
+  static const tolerance tol[3] = { { "rms", 0, 0, 0 }, { "max", 0, 0, 0 }, { "angle-max", 0, 0, 1 } };
+  memset(j, 0, sizeof *j);
+  memcpy(j->tol, tol, sizeof j->tol);
+  twf_warnings_init(&j->warnings);
+  twf_error_clear(&j->err);
+}
+
+static void compare_job_free(compare_job *j)
+{
+  twf_links_clear(&j->links);
+  free(j->ldiff);
+  twf_compare_result_free(j->res);
+  if (j->joints == NULL)
+    free(j->q);
+  twf_campaign_free(j->joints);
+  twf_model_free(j->a);
+  twf_model_free(j->b);
+  twf_warnings_clear(&j->warnings);
+}
+
+/* The library's error in j->err reported, after the readers' warnings
+ * (none left once load_inputs has printed them); returns the exit status. */
+static int report_failure(compare_job *j)
+{
+  cli_print_warnings(&j->warnings);
+  return cli_report_error(&j->err);
+}
+
+/* Models A and B, with the same joints. */
+static int read_models(const compare_settings *s, compare_job *j)
+{
+  if ((j->a = twf_model_read_with(s->inputs[0], &s->ropt, &j->warnings, NULL, &j->err)) == NULL ||
+      (j->b = twf_model_read_with(s->inputs[1], &s->ropt, &j->warnings, NULL, &j->err)) == NULL)
+    return report_failure(j);
+  if (twf_models_same_joints(j->a, j->b, s->inputs[0], s->inputs[1], &j->err) != TWF_OK)
+    return report_failure(j);
+  return 0;
+}
+
+/* --payload must name a load of A or of B; when neither declares it, the
+ * error lists A's payloads (the readers' warnings are not printed). */
+static int check_payload(const compare_settings *s, const compare_job *j)
+{
+  long dummy;
+  if (s->co.payload != NULL && twf_model_payload_index(j->a, s->co.payload) < 0 &&
+      twf_model_payload_index(j->b, s->co.payload) < 0)
+    return cli_payload_resolve("compare", j->a, s->co.payload, &dummy);
+  return 0;
+}
+
+/* A's units, and the tolerances given in them. */
+static int take_tolerances(const compare_settings *s, compare_job *j)
+{
+  static const char *const tol_opt[3] = { "--tol-rms", "--tol-max", "--tol-angle-max" };
+  tolerance *tol = j->tol;
+  int status, i;
+  cli_units_of(&j->u, j->a);
+  for (i = 0; i < 3; i++)
+    if (s->tol_text[i] != NULL &&
+        (status = cli_parse_tolerance("compare", tol_opt[i], s->tol_text[i],
+                                      tol[i].is_angle ? j->u.angle_si : j->u.length_si, &tol[i].limit)) != 0)
+      return status;
+  return 0;
+}
+
+/* The configurations: the rows of the --joints file (read with A's
+ * joints), else --count random ones within A's limits from --seed. */
+static int make_configurations(const compare_settings *s, compare_job *j)
+{
+  const twf_model *a = j->a;
+  unsigned long long state = s->seed;
+  size_t c;
+  if (s->joints_path != NULL) {
+    if ((j->joints = twf_campaign_read_joints(s->joints_path, a, &s->copt, &j->warnings, &j->err)) == NULL)
+      return report_failure(j);
+    j->n_cfg = j->joints->n_poses;
+    j->q = j->joints->q;
+    return 0;
+  }
+  j->n_cfg = (size_t)s->count;
+  j->q = malloc(j->n_cfg * (a->n_joints ? a->n_joints : 1) * sizeof *j->q);
+  if (j->q == NULL)
+    return TWF_EXIT_INTERNAL;
+  for (c = 0; c < j->n_cfg; c++)
+    twf_simulate_joints(a, 0.0, &state, j->q + c * a->n_joints);
+  return 0;
+}
+
+/* Every input read and checked, then the readers' warnings printed (and
+ * dropped: a later failure does not repeat them). */
+static int load_inputs(const compare_settings *s, compare_job *j)
+{
+  int status;
+  if ((status = read_models(s, j)) != 0 || (status = check_payload(s, j)) != 0 ||
+      (status = take_tolerances(s, j)) != 0 || (status = make_configurations(s, j)) != 0)
+    return status;
+  cli_print_warnings(&j->warnings);
+  twf_warnings_clear(&j->warnings);
+  return 0;
+}
+
+/* A against B over the configurations, and link by link. */
+static int compare(const compare_settings *s, compare_job *j)
+{
+  if (twf_compare_models(j->a, j->b, j->q, j->n_cfg, &s->co, &j->res, &j->err) != TWF_OK) {
+    if (j->err.status == TWF_ERR_DEGENERATE)
+      snprintf(j->err.hint, sizeof j->err.hint, "give more varied configurations, or pass --no-align");
+    return report_failure(j);
+  }
+  j->ldiff = malloc(5 * (j->a->n_joints + 2) * sizeof *j->ldiff);
+  if (j->ldiff == NULL)
+    return TWF_EXIT_INTERNAL;
+  if (twf_compare_links(j->a, j->b, s->full_pose, &j->links, j->ldiff, &j->err) != TWF_OK)
+    return report_failure(j);
+  return 0;
+}
+
+/* The figures the tolerances judge, and the verdict. */
+static void judge(compare_job *j)
+{
+  tolerance *tol = j->tol;
+  int i;
+  tol[0].value = j->res->position.rms;
+  tol[1].value = j->res->position.max;
+  tol[2].value = j->res->angle.max;
+  for (i = 0; i < 3; i++)
+    if (tol[i].limit > 0 && !(tol[i].value <= tol[i].limit))
+      j->rejected = 1;
+}
+
+/* What the text and JSON reports show of a run. */
+static void compare_view_of(const compare_settings *s, const compare_job *j, compare_view *v)
+{
+  v->inputs = s->inputs;
+  v->a = j->a;
+  v->b = j->b;
+  v->joints = j->joints;
+  v->joints_path = s->joints_path;
+  v->seed = s->seed;
+  v->n_cfg = j->n_cfg;
+  v->q = j->q;
+  v->res = j->res;
+  v->links = &j->links;
+  v->ldiff = j->ldiff;
+  v->tol = j->tol;
+  v->rejected = j->rejected;
+  v->full_pose = s->full_pose;
+  v->u = &j->u;
+}
+
+/* The text report goes to standard error when the JSON takes standard
+ * output. */
+static FILE *report_stream(const compare_settings *s)
+{
+  return s->json_path != NULL && strcmp(s->json_path, "-") == 0 ? stderr : stdout;
+}
+
+/* --json FILE (atomically) or standard output: 0, or the exit status of a
+ * failed write. */
+static int write_json(const compare_settings *s, const compare_view *v)
+{
+  cli_put put;
+  json_t *root = compare_json(v);
+  int w;
+  put.path = s->json_path;
+  put.put = cli_put_json;
+  put.ctx = root;
+  w = cli_write_outputs(&put, 1, s->force, s->inputs);
+  json_decref(root);
+  return w;
+}
+
 static int run_compare(int argc, char **argv)
 {
   compare_settings s;
-  const char *const *inputs = s.inputs;
-  const char *joints_path, *json_path;
-  tolerance tol[3] = { { "rms", 0, 0, 0 }, { "max", 0, 0, 0 }, { "angle-max", 0, 0, 1 } };
-  static const char *const tol_opt[3] = { "--tol-rms", "--tol-max", "--tol-angle-max" };
-  int status = TWF_EXIT_OK, i;
-  twf_links links;
-  double *ldiff = NULL;
-  twf_model *a = NULL, *b = NULL;
-  twf_campaign *joints = NULL;
-  twf_compare_result *res = NULL;
-  twf_warnings warnings;
-  twf_error err;
-  double *q = NULL;
-  size_t n_cfg = 0;
-  cli_units u;
-  FILE *txt = stdout;
-  json_t *root = NULL;
+  compare_job j;
+  compare_view v;
+  int status;
 
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
-  memset(&links, 0, sizeof links);
   if ((status = parse_options(argc, argv, &s)) != 0 || s.help_shown)
-    goto done;
+    return status;
   if ((status = check_output(&s)) != 0)
-    goto done;
-  joints_path = s.joints_path;
-  json_path = s.json_path;
-  if (json_path != NULL && strcmp(json_path, "-") == 0)
-    txt = stderr;
-
-  if ((a = twf_model_read_with(inputs[0], &s.ropt, &warnings, NULL, &err)) == NULL ||
-      (b = twf_model_read_with(inputs[1], &s.ropt, &warnings, NULL, &err)) == NULL)
-    goto fail;
-  if (twf_models_same_joints(a, b, inputs[0], inputs[1], &err) != TWF_OK)
-    goto fail;
-  if (s.co.payload != NULL && twf_model_payload_index(a, s.co.payload) < 0 &&
-      twf_model_payload_index(b, s.co.payload) < 0) {
-    long dummy;
-    status = cli_payload_resolve("compare", a, s.co.payload, &dummy);
-    goto done;
-  }
-  cli_units_of(&u, a);
-  for (i = 0; i < 3; i++)
-    if (s.tol_text[i] != NULL &&
-        (status = cli_parse_tolerance("compare", tol_opt[i], s.tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
-                                      &tol[i].limit)) != 0)
-      goto done;
-  if (joints_path != NULL) {
-    if ((joints = twf_campaign_read_joints(joints_path, a, &s.copt, &warnings, &err)) == NULL)
-      goto fail;
-    n_cfg = joints->n_poses;
-    q = joints->q;
-  } else {
-    unsigned long long state = s.seed;
-    size_t c;
-    n_cfg = (size_t)s.count;
-    q = malloc(n_cfg * (a->n_joints ? a->n_joints : 1) * sizeof *q);
-    if (q == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    for (c = 0; c < n_cfg; c++)
-      twf_simulate_joints(a, 0.0, &state, q + c * a->n_joints);
-  }
-  cli_print_warnings(&warnings);
-  twf_warnings_clear(&warnings);
-  if (twf_compare_models(a, b, q, n_cfg, &s.co, &res, &err) != TWF_OK) {
-    if (err.status == TWF_ERR_DEGENERATE)
-      snprintf(err.hint, sizeof err.hint, "give more varied configurations, or pass --no-align");
-    goto fail;
-  }
-
-  ldiff = malloc(5 * (a->n_joints + 2) * sizeof *ldiff);
-  if (ldiff == NULL) {
-    status = TWF_EXIT_INTERNAL;
-    goto done;
-  }
-  if (twf_compare_links(a, b, s.full_pose, &links, ldiff, &err) != TWF_OK)
-    goto fail;
-
-  tol[0].value = res->position.rms;
-  tol[1].value = res->position.max;
-  tol[2].value = res->angle.max;
-  for (i = 0; i < 3; i++)
-    if (tol[i].limit > 0 && !(tol[i].value <= tol[i].limit))
-      status = TWF_EXIT_REJECTED;
-
-  {
-    compare_view v;
-    v.inputs = inputs;
-    v.a = a;
-    v.b = b;
-    v.joints = joints;
-    v.joints_path = joints_path;
-    v.seed = s.seed;
-    v.n_cfg = n_cfg;
-    v.q = q;
-    v.res = res;
-    v.links = &links;
-    v.ldiff = ldiff;
-    v.tol = tol;
-    v.rejected = status == TWF_EXIT_REJECTED;
-    v.full_pose = s.full_pose;
-    v.u = &u;
-    print_compare(txt, &v);
-    if (json_path != NULL) {
-      cli_put put;
-      int w;
-      root = compare_json(&v);
-      put.path = json_path;
-      put.put = cli_put_json;
-      put.ctx = root;
-      w = cli_write_outputs(&put, 1, s.force, inputs);
+    return status;
+  compare_job_init(&j);
+  if ((status = load_inputs(&s, &j)) == 0 && (status = compare(&s, &j)) == 0) {
+    judge(&j);
+    status = j.rejected ? TWF_EXIT_REJECTED : TWF_EXIT_OK;
+    compare_view_of(&s, &j, &v);
+    print_compare(report_stream(&s), &v);
+    if (s.json_path != NULL) {
+      int w = write_json(&s, &v);
       if (w != 0)
         status = w;
     }
   }
-  goto done;
-
-fail:
-  cli_print_warnings(&warnings);
-  status = cli_report_error(&err);
-done:
-  json_decref(root);
-  twf_links_clear(&links);
-  free(ldiff);
-  twf_compare_result_free(res);
-  if (joints == NULL)
-    free(q);
-  twf_campaign_free(joints);
-  twf_model_free(a);
-  twf_model_free(b);
-  twf_warnings_clear(&warnings);
+  compare_job_free(&j);
   return status;
 }
 

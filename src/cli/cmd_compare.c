@@ -190,7 +190,7 @@ static void print_compare(FILE *txt, const compare_view *v)
       fprintf(txt, "verdict: %s\n", v->rejected ? "REJECTED" : "ACCEPTED");
     }
   }
-  }
+}
 
 /* The JSON report of a comparison (caller owns it). */
 static json_t *compare_json(const compare_view *v)

@@ -190,7 +190,7 @@ static void print_compare(FILE *txt, const compare_view *v)
       fprintf(txt, "verdict: %s\n", v->rejected ? "REJECTED" : "ACCEPTED");
     }
   }
-  }
+}
 
 /* The JSON report of a comparison (caller owns it). */
 static json_t *compare_json(const compare_view *v)
@@ -251,228 +251,362 @@ static json_t *compare_json(const compare_view *v)
   return root;
 }
 
-static int run_compare(int argc, char **argv)
-{
-  static const struct option longopts[] = {
-    { "joints", required_argument, NULL, OPT_JOINTS },
-    { "count", required_argument, NULL, OPT_COUNT },
-    { "seed", required_argument, NULL, OPT_SEED },
-    { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
-    { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
-    { "no-align", no_argument, NULL, OPT_NO_ALIGN },
-    { "full-pose", no_argument, NULL, OPT_FULL_POSE },
-    { "tol-rms", required_argument, NULL, OPT_TOL_RMS },
-    { "tol-max", required_argument, NULL, OPT_TOL_MAX },
-    { "tol-angle-max", required_argument, NULL, OPT_TOL_ANGLE },
-    { "json", required_argument, NULL, OPT_JSON },
-    { "payload", required_argument, NULL, OPT_PAYLOAD },
-    { "force", no_argument, NULL, 'f' },
-    CLI_URDF_LONGOPTS,
-    { "help", no_argument, NULL, 'h' },
-    { NULL, 0, NULL, 0 }
-  };
-  static const char *const tol_opt[3] = { "--tol-rms", "--tol-max", "--tol-angle-max" };
-  static const char *const names[1] = { "--json" };
-  const char *joints_path = NULL, *json_path = NULL, *tol_text[3] = { NULL, NULL, NULL };
-  const char *inputs[4] = { NULL, NULL, NULL, NULL };
-  tolerance tol[3] = { { "rms", 0, 0, 0 }, { "max", 0, 0, 0 }, { "angle-max", 0, 0, 1 } };
-  unsigned long long seed = 1;
-  long count = 1000;
-  int force = 0, opt, status = TWF_EXIT_OK, i, have_count = 0, have_seed = 0, full_pose = 0;
-  twf_links links;
-  double *ldiff = NULL;
-  twf_campaign_options copt = twf_campaign_default_options();
-  twf_compare_options co = twf_compare_default_options();
-  twf_model *a = NULL, *b = NULL;
-  twf_campaign *joints = NULL;
-  twf_compare_result *res = NULL;
-  twf_warnings warnings;
-  twf_read_options ropt = twf_read_default_options();
-  cli_urdf_links urdf_links = { { NULL }, 0 };
-  twf_error err;
-  double *q = NULL;
-  size_t n_cfg = 0;
-  cli_units u;
-  FILE *txt = stdout;
-  json_t *root = NULL;
+static const struct option compare_longopts[] = {
+  { "joints", required_argument, NULL, OPT_JOINTS },
+  { "count", required_argument, NULL, OPT_COUNT },
+  { "seed", required_argument, NULL, OPT_SEED },
+  { "length-unit", required_argument, NULL, OPT_LENGTH_UNIT },
+  { "angle-unit", required_argument, NULL, OPT_ANGLE_UNIT },
+  { "no-align", no_argument, NULL, OPT_NO_ALIGN },
+  { "full-pose", no_argument, NULL, OPT_FULL_POSE },
+  { "tol-rms", required_argument, NULL, OPT_TOL_RMS },
+  { "tol-max", required_argument, NULL, OPT_TOL_MAX },
+  { "tol-angle-max", required_argument, NULL, OPT_TOL_ANGLE },
+  { "json", required_argument, NULL, OPT_JSON },
+  { "payload", required_argument, NULL, OPT_PAYLOAD },
+  { "force", no_argument, NULL, 'f' },
+  CLI_URDF_LONGOPTS,
+  { "help", no_argument, NULL, 'h' },
+  { NULL, 0, NULL, 0 }
+};
 
-  twf_warnings_init(&warnings);
-  twf_error_clear(&err);
-  memset(&links, 0, sizeof links);
+/* The command's settings as the options give them. The tolerances stay
+ * text until model A's units are known. Filled in place: ropt points to
+ * the names kept in urdf_links. */
+typedef struct compare_settings {
+  const char *joints_path;      /* --joints, or NULL: random configurations */
+  const char *json_path;        /* --json, or NULL */
+  const char *tol_text[3];      /* --tol-rms, --tol-max, --tol-angle-max as typed */
+  const char *inputs[4];        /* model A, model B, the joints file, NULL */
+  unsigned long long seed;      /* --seed */
+  long count;                   /* --count */
+  int have_count, have_seed;    /* given on the command line */
+  int full_pose, force;
+  int help_shown;               /* -h: the help is printed, nothing else to do */
+  twf_campaign_options copt;
+  twf_compare_options co;       /* --no-align, --payload */
+  twf_read_options ropt;
+  cli_urdf_links urdf_links;    /* the --target-link names that ropt points to */
+} compare_settings;
+
+static void compare_settings_init(compare_settings *s)
+{
+  memset(s, 0, sizeof *s);
+  s->seed = 1;
+  s->count = 1000;
+  s->copt = twf_campaign_default_options();
+  s->co = twf_compare_default_options();
+  s->ropt = twf_read_default_options();
+  s->urdf_links = (cli_urdf_links){ { NULL }, 0 };
+}
+
+static int parse_count(compare_settings *s, const char *arg)
+{
+  char *end;
+  errno = 0;
+  s->count = strtol(arg, &end, 10);
+  if (*arg == '\0' || *end != '\0' || errno != 0 || s->count < 1 || s->count > 10000000)
+    return cli_usage_error("compare", "--count takes a number of configurations from 1 to 10000000");
+  s->have_count = 1;
+  return 0;
+}
+
+static int parse_seed(compare_settings *s, const char *arg)
+{
+  char *end;
+  errno = 0;
+  s->seed = strtoull(arg, &end, 10);
+  if (*arg == '\0' || *arg == '-' || *end != '\0' || errno != 0)
+    return cli_usage_error("compare", "--seed takes a non-negative whole number");
+  s->have_seed = 1;
+  return 0;
+}
+
+/* One option of getopt_long into s: 0, or the exit status of a bad one. */
+static int take_option(compare_settings *s, int opt, char *arg, char **argv)
+{
+  int status;
+  switch (opt) {
+  case OPT_JOINTS: s->joints_path = arg; break;
+  case OPT_COUNT: return parse_count(s, arg);
+  case OPT_SEED: return parse_seed(s, arg);
+  case OPT_LENGTH_UNIT:
+    if ((status = cli_parse_length_unit("compare", arg, &s->copt.length_unit)) != 0)
+      return status;
+    s->copt.length_from_caller = 1;
+    break;
+  case OPT_ANGLE_UNIT:
+    if ((status = cli_parse_angle_unit("compare", arg, &s->copt.angle_unit)) != 0)
+      return status;
+    s->copt.angle_from_caller = 1;
+    break;
+  case OPT_NO_ALIGN: s->co.align = 0; break;
+  case OPT_FULL_POSE: s->full_pose = 1; break;
+  case OPT_TOL_RMS: s->tol_text[0] = arg; break;
+  case OPT_TOL_MAX: s->tol_text[1] = arg; break;
+  case OPT_TOL_ANGLE: s->tol_text[2] = arg; break;
+  case OPT_JSON: s->json_path = arg; break;
+  case OPT_PAYLOAD: s->co.payload = arg; break;
+  case 'f': s->force = 1; break;
+  case CLI_OPT_BASE_LINK:
+  case CLI_OPT_TIP_LINK:
+  case CLI_OPT_TARGET_LINK: return cli_urdf_longopt("compare", opt, arg, &s->urdf_links, &s->ropt);
+  case 'h': fputs(compare_help, stdout); s->help_shown = 1; break;
+  default: return cli_bad_option("compare", opt, argv);
+  }
+  return 0;
+}
+
+/* The operands after the options: models A and B; --joints excludes
+ * --count and --seed. */
+static int take_operands(compare_settings *s, int n_pos, char **pos)
+{
+  if (n_pos != 2)
+    return cli_usage_error("compare", "expected two models, A and B");
+  if (s->joints_path != NULL && (s->have_count || s->have_seed))
+    return cli_usage_error("compare", "--joints gives the configurations: --count and --seed do not apply");
+  s->inputs[0] = pos[0];
+  s->inputs[1] = pos[1];
+  s->inputs[2] = s->joints_path;
+  return 0;
+}
+
+/* The command line into s: 0, or the exit status of a usage error;
+ * s->help_shown after -h. */
+static int parse_options(int argc, char **argv, compare_settings *s)
+{
+  int opt, status;
+  compare_settings_init(s);
   optind = 0;
   opterr = 0;
-  while ((opt = getopt_long(argc, argv, ":fh", longopts, NULL)) != -1) {
-    switch (opt) {
-    case OPT_JOINTS: joints_path = optarg; break;
-    case OPT_COUNT: {
-      char *end;
-      errno = 0;
-      count = strtol(optarg, &end, 10);
-      if (*optarg == '\0' || *end != '\0' || errno != 0 || count < 1 || count > 10000000) {
-        status = cli_usage_error("compare", "--count takes a number of configurations from 1 to 10000000");
-        goto done;
-      }
-      have_count = 1;
-      break;
-    }
-    case OPT_SEED: {
-      char *end;
-      errno = 0;
-      seed = strtoull(optarg, &end, 10);
-      if (*optarg == '\0' || *optarg == '-' || *end != '\0' || errno != 0) {
-        status = cli_usage_error("compare", "--seed takes a non-negative whole number");
-        goto done;
-      }
-      have_seed = 1;
-      break;
-    }
-    case OPT_LENGTH_UNIT:
-      if ((status = cli_parse_length_unit("compare", optarg, &copt.length_unit)) != 0)
-        goto done;
-      copt.length_from_caller = 1;
-      break;
-    case OPT_ANGLE_UNIT:
-      if ((status = cli_parse_angle_unit("compare", optarg, &copt.angle_unit)) != 0)
-        goto done;
-      copt.angle_from_caller = 1;
-      break;
-    case OPT_NO_ALIGN: co.align = 0; break;
-    case OPT_FULL_POSE: full_pose = 1; break;
-    case OPT_TOL_RMS: tol_text[0] = optarg; break;
-    case OPT_TOL_MAX: tol_text[1] = optarg; break;
-    case OPT_TOL_ANGLE: tol_text[2] = optarg; break;
-    case OPT_JSON: json_path = optarg; break;
-    case OPT_PAYLOAD: co.payload = optarg; break;
-    case 'f': force = 1; break;
-    case CLI_OPT_BASE_LINK:
-    case CLI_OPT_TIP_LINK:
-    case CLI_OPT_TARGET_LINK:
-      if ((status = cli_urdf_longopt("compare", opt, optarg, &urdf_links, &ropt)) != 0)
-        goto done;
-      break;
-    case 'h': fputs(compare_help, stdout); goto done;
-    default: status = cli_bad_option("compare", opt, argv); goto done;
-    }
-  }
-  if (argc - optind != 2) {
-    status = cli_usage_error("compare", "expected two models, A and B");
-    goto done;
-  }
-  if (joints_path != NULL && (have_count || have_seed)) {
-    status = cli_usage_error("compare", "--joints gives the configurations: --count and --seed do not apply");
-    goto done;
-  }
-  inputs[0] = argv[optind];
-  inputs[1] = argv[optind + 1];
-  inputs[2] = joints_path;
-  if ((status = cli_outputs_check("compare", &json_path, names, 1, force, inputs)) != 0)
-    goto done;
-  if (json_path != NULL && strcmp(json_path, "-") == 0)
-    txt = stderr;
+  while ((opt = getopt_long(argc, argv, ":fh", compare_longopts, NULL)) != -1)
+    if ((status = take_option(s, opt, optarg, argv)) != 0 || s->help_shown)
+      return status;
+  return take_operands(s, argc - optind, argv + optind);
+}
 
-  if ((a = twf_model_read_with(inputs[0], &ropt, &warnings, NULL, &err)) == NULL ||
-      (b = twf_model_read_with(inputs[1], &ropt, &warnings, NULL, &err)) == NULL)
-    goto fail;
-  if (twf_models_same_joints(a, b, inputs[0], inputs[1], &err) != TWF_OK)
-    goto fail;
-  if (co.payload != NULL && twf_model_payload_index(a, co.payload) < 0 &&
-      twf_model_payload_index(b, co.payload) < 0) {
-    long dummy;
-    status = cli_payload_resolve("compare", a, co.payload, &dummy);
-    goto done;
-  }
-  cli_units_of(&u, a);
+/* The --json output checked against the inputs and what exists, before
+ * any work. */
+static int check_output(compare_settings *s)
+{
+  static const char *const names[1] = { "--json" };
+  return cli_outputs_check("compare", &s->json_path, names, 1, s->force, s->inputs);
+}
+
+/* What a run reads and makes; compare_job_free releases it. */
+typedef struct compare_job {
+  twf_model *a, *b;
+  twf_campaign *joints;          /* the --joints file, or NULL */
+  double *q;                     /* n_cfg x n_joints: joints->q, or the random ones (owned) */
+  size_t n_cfg;
+  cli_units u;                   /* model A's */
+  tolerance tol[3];              /* rms, max, angle-max */
+  twf_compare_result *res;
+  twf_links links;
+  double *ldiff;                 /* 5 per link row: B - A, SI */
+  int rejected;                  /* a tolerance is exceeded */
+  twf_warnings warnings;
+  twf_error err;
+} compare_job;
+
+static void compare_job_init(compare_job *j)
+{
+  static const tolerance tol[3] = { { "rms", 0, 0, 0 }, { "max", 0, 0, 0 }, { "angle-max", 0, 0, 1 } };
+  memset(j, 0, sizeof *j);
+  memcpy(j->tol, tol, sizeof j->tol);
+  twf_warnings_init(&j->warnings);
+  twf_error_clear(&j->err);
+}
+
+static void compare_job_free(compare_job *j)
+{
+  twf_links_clear(&j->links);
+  free(j->ldiff);
+  twf_compare_result_free(j->res);
+  if (j->joints == NULL)
+    free(j->q);
+  twf_campaign_free(j->joints);
+  twf_model_free(j->a);
+  twf_model_free(j->b);
+  twf_warnings_clear(&j->warnings);
+}
+
+/* The library's error in j->err reported, after the readers' warnings
+ * (none left once load_inputs has printed them); returns the exit status. */
+static int report_failure(compare_job *j)
+{
+  cli_print_warnings(&j->warnings);
+  return cli_report_error(&j->err);
+}
+
+/* Models A and B, with the same joints. */
+static int read_models(const compare_settings *s, compare_job *j)
+{
+  if ((j->a = twf_model_read_with(s->inputs[0], &s->ropt, &j->warnings, NULL, &j->err)) == NULL ||
+      (j->b = twf_model_read_with(s->inputs[1], &s->ropt, &j->warnings, NULL, &j->err)) == NULL)
+    return report_failure(j);
+  if (twf_models_same_joints(j->a, j->b, s->inputs[0], s->inputs[1], &j->err) != TWF_OK)
+    return report_failure(j);
+  return 0;
+}
+
+/* --payload must name a load of A or of B; when neither declares it, the
+ * error lists A's payloads (the readers' warnings are not printed). */
+static int check_payload(const compare_settings *s, const compare_job *j)
+{
+  long dummy;
+  if (s->co.payload != NULL && twf_model_payload_index(j->a, s->co.payload) < 0 &&
+      twf_model_payload_index(j->b, s->co.payload) < 0)
+    return cli_payload_resolve("compare", j->a, s->co.payload, &dummy);
+  return 0;
+}
+
+/* A's units, and the tolerances given in them. */
+static int take_tolerances(const compare_settings *s, compare_job *j)
+{
+  static const char *const tol_opt[3] = { "--tol-rms", "--tol-max", "--tol-angle-max" };
+  tolerance *tol = j->tol;
+  int status, i;
+  cli_units_of(&j->u, j->a);
   for (i = 0; i < 3; i++)
-    if (tol_text[i] != NULL &&
-        (status = cli_parse_tolerance("compare", tol_opt[i], tol_text[i], tol[i].is_angle ? u.angle_si : u.length_si,
-                                      &tol[i].limit)) != 0)
-      goto done;
-  if (joints_path != NULL) {
-    if ((joints = twf_campaign_read_joints(joints_path, a, &copt, &warnings, &err)) == NULL)
-      goto fail;
-    n_cfg = joints->n_poses;
-    q = joints->q;
-  } else {
-    unsigned long long state = seed;
-    size_t c;
-    n_cfg = (size_t)count;
-    q = malloc(n_cfg * (a->n_joints ? a->n_joints : 1) * sizeof *q);
-    if (q == NULL) {
-      status = TWF_EXIT_INTERNAL;
-      goto done;
-    }
-    for (c = 0; c < n_cfg; c++)
-      twf_simulate_joints(a, 0.0, &state, q + c * a->n_joints);
-  }
-  cli_print_warnings(&warnings);
-  twf_warnings_clear(&warnings);
-  if (twf_compare_models(a, b, q, n_cfg, &co, &res, &err) != TWF_OK) {
-    if (err.status == TWF_ERR_DEGENERATE)
-      snprintf(err.hint, sizeof err.hint, "give more varied configurations, or pass --no-align");
-    goto fail;
-  }
+    if (s->tol_text[i] != NULL &&
+        (status = cli_parse_tolerance("compare", tol_opt[i], s->tol_text[i],
+                                      tol[i].is_angle ? j->u.angle_si : j->u.length_si, &tol[i].limit)) != 0)
+      return status;
+  return 0;
+}
 
-  ldiff = malloc(5 * (a->n_joints + 2) * sizeof *ldiff);
-  if (ldiff == NULL) {
-    status = TWF_EXIT_INTERNAL;
-    goto done;
+/* The configurations: the rows of the --joints file (read with A's
+ * joints), else --count random ones within A's limits from --seed. */
+static int make_configurations(const compare_settings *s, compare_job *j)
+{
+  const twf_model *a = j->a;
+  unsigned long long state = s->seed;
+  size_t c;
+  if (s->joints_path != NULL) {
+    if ((j->joints = twf_campaign_read_joints(s->joints_path, a, &s->copt, &j->warnings, &j->err)) == NULL)
+      return report_failure(j);
+    j->n_cfg = j->joints->n_poses;
+    j->q = j->joints->q;
+    return 0;
   }
-  if (twf_compare_links(a, b, full_pose, &links, ldiff, &err) != TWF_OK)
-    goto fail;
+  j->n_cfg = (size_t)s->count;
+  j->q = malloc(j->n_cfg * (a->n_joints ? a->n_joints : 1) * sizeof *j->q);
+  if (j->q == NULL)
+    return TWF_EXIT_INTERNAL;
+  for (c = 0; c < j->n_cfg; c++)
+    twf_simulate_joints(a, 0.0, &state, j->q + c * a->n_joints);
+  return 0;
+}
 
-  tol[0].value = res->position.rms;
-  tol[1].value = res->position.max;
-  tol[2].value = res->angle.max;
+/* Every input read and checked, then the readers' warnings printed (and
+ * dropped: a later failure does not repeat them). */
+static int load_inputs(const compare_settings *s, compare_job *j)
+{
+  int status;
+  if ((status = read_models(s, j)) != 0 || (status = check_payload(s, j)) != 0 ||
+      (status = take_tolerances(s, j)) != 0 || (status = make_configurations(s, j)) != 0)
+    return status;
+  cli_print_warnings(&j->warnings);
+  twf_warnings_clear(&j->warnings);
+  return 0;
+}
+
+/* A against B over the configurations, and link by link. */
+static int compare(const compare_settings *s, compare_job *j)
+{
+  if (twf_compare_models(j->a, j->b, j->q, j->n_cfg, &s->co, &j->res, &j->err) != TWF_OK) {
+    if (j->err.status == TWF_ERR_DEGENERATE)
+      snprintf(j->err.hint, sizeof j->err.hint, "give more varied configurations, or pass --no-align");
+    return report_failure(j);
+  }
+  j->ldiff = malloc(5 * (j->a->n_joints + 2) * sizeof *j->ldiff);
+  if (j->ldiff == NULL)
+    return TWF_EXIT_INTERNAL;
+  if (twf_compare_links(j->a, j->b, s->full_pose, &j->links, j->ldiff, &j->err) != TWF_OK)
+    return report_failure(j);
+  return 0;
+}
+
+/* The figures the tolerances judge, and the verdict. */
+static void judge(compare_job *j)
+{
+  tolerance *tol = j->tol;
+  int i;
+  tol[0].value = j->res->position.rms;
+  tol[1].value = j->res->position.max;
+  tol[2].value = j->res->angle.max;
   for (i = 0; i < 3; i++)
     if (tol[i].limit > 0 && !(tol[i].value <= tol[i].limit))
-      status = TWF_EXIT_REJECTED;
+      j->rejected = 1;
+}
 
-  {
-    compare_view v;
-    v.inputs = inputs;
-    v.a = a;
-    v.b = b;
-    v.joints = joints;
-    v.joints_path = joints_path;
-    v.seed = seed;
-    v.n_cfg = n_cfg;
-    v.q = q;
-    v.res = res;
-    v.links = &links;
-    v.ldiff = ldiff;
-    v.tol = tol;
-    v.rejected = status == TWF_EXIT_REJECTED;
-    v.full_pose = full_pose;
-    v.u = &u;
-    print_compare(txt, &v);
-    if (json_path != NULL) {
-      cli_put put;
-      int w;
-      root = compare_json(&v);
-      put.path = json_path;
-      put.put = cli_put_json;
-      put.ctx = root;
-      w = cli_write_outputs(&put, 1, force, inputs);
+/* What the text and JSON reports show of a run. */
+static void compare_view_of(const compare_settings *s, const compare_job *j, compare_view *v)
+{
+  v->inputs = s->inputs;
+  v->a = j->a;
+  v->b = j->b;
+  v->joints = j->joints;
+  v->joints_path = s->joints_path;
+  v->seed = s->seed;
+  v->n_cfg = j->n_cfg;
+  v->q = j->q;
+  v->res = j->res;
+  v->links = &j->links;
+  v->ldiff = j->ldiff;
+  v->tol = j->tol;
+  v->rejected = j->rejected;
+  v->full_pose = s->full_pose;
+  v->u = &j->u;
+}
+
+/* The text report goes to standard error when the JSON takes standard
+ * output. */
+static FILE *report_stream(const compare_settings *s)
+{
+  return s->json_path != NULL && strcmp(s->json_path, "-") == 0 ? stderr : stdout;
+}
+
+/* --json FILE (atomically) or standard output: 0, or the exit status of a
+ * failed write. */
+static int write_json(const compare_settings *s, const compare_view *v)
+{
+  cli_put put;
+  json_t *root = compare_json(v);
+  int w;
+  put.path = s->json_path;
+  put.put = cli_put_json;
+  put.ctx = root;
+  w = cli_write_outputs(&put, 1, s->force, s->inputs);
+  json_decref(root);
+  return w;
+}
+
+static int run_compare(int argc, char **argv)
+{
+  compare_settings s;
+  compare_job j;
+  compare_view v;
+  int status;
+
+  if ((status = parse_options(argc, argv, &s)) != 0 || s.help_shown)
+    return status;
+  if ((status = check_output(&s)) != 0)
+    return status;
+  compare_job_init(&j);
+  if ((status = load_inputs(&s, &j)) == 0 && (status = compare(&s, &j)) == 0) {
+    judge(&j);
+    status = j.rejected ? TWF_EXIT_REJECTED : TWF_EXIT_OK;
+    compare_view_of(&s, &j, &v);
+    print_compare(report_stream(&s), &v);
+    if (s.json_path != NULL) {
+      int w = write_json(&s, &v);
       if (w != 0)
         status = w;
     }
   }
-  goto done;
-
-fail:
-  cli_print_warnings(&warnings);
-  status = cli_report_error(&err);
-done:
-  json_decref(root);
-  twf_links_clear(&links);
-  free(ldiff);
-  twf_compare_result_free(res);
-  if (joints == NULL)
-    free(q);
-  twf_campaign_free(joints);
-  twf_model_free(a);
-  twf_model_free(b);
-  twf_warnings_clear(&warnings);
+  compare_job_free(&j);
   return status;
 }
 

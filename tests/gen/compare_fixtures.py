@@ -11,7 +11,8 @@ Every file in NEW_DIR (what a generator just wrote, e.g. with
   - the remaining lines must match one for one; each is split at commas and
     compared field by field: fields that both parse as floats must satisfy
     |a - b| <= max(1e-12 * max(|a|, |b|), 1e-15), other fields must be equal
-    as text.
+    as text; a column named in LOOSE (by file and header name) takes its
+    own tolerances instead.
 
 Prints each difference (file, line, field, both values) and a summary; exits
 0 when everything agrees, 1 on any difference or missing file, 2 on a usage
@@ -23,6 +24,13 @@ import sys
 
 REL = 1e-12
 ABS = 1e-15
+
+# Columns whose reference value comes out of a cancellation, so that its
+# last digits follow the BLAS under NumPy (reference BLAS or OpenBLAS), not
+# the method: SciPy's rmsd of align_vectors is the root of a difference of
+# two sums (1.2e-7 m for an exact fit is the root of rounding; seen 8.4e-8
+# with OpenBLAS). No test reads it. (relative, absolute) tolerances.
+LOOSE = {("align_results.csv", "rmsd"): (1e-6, 1e-6)}
 
 
 def data_lines(path):
@@ -50,6 +58,7 @@ def compare_file(old, new, report):
         report("%s: %d data lines committed, %d regenerated"
                % (os.path.basename(new), len(a), len(b)))
         bad += 1
+    header = a[0][1].split(",") if a else []
     for (na, la), (nb, lb) in zip(a, b):
         fa, fb = la.split(","), lb.split(",")
         if len(fa) != len(fb):
@@ -60,7 +69,9 @@ def compare_file(old, new, report):
         for k, (x, y) in enumerate(zip(fa, fb), 1):
             xv, yv = as_float(x), as_float(y)
             if xv is not None and yv is not None:
-                if not abs(xv - yv) <= max(REL * max(abs(xv), abs(yv)), ABS):
+                name = header[k - 1] if k - 1 < len(header) else ""
+                rel, ab = LOOSE.get((os.path.basename(new), name), (REL, ABS))
+                if not abs(xv - yv) <= max(rel * max(abs(xv), abs(yv)), ab):
                     report("%s: line %d field %d: committed %s, regenerated %s"
                            % (os.path.basename(new), na, k, x, y))
                     bad += 1

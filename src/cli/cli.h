@@ -39,6 +39,9 @@ int cli_exit_status(twf_status st);
 /* Print "twistfit: error: FILE:LINE:COL: message" and the hint to stderr;
  * return the exit status for err->status. */
 int cli_report_error(const twf_error *err);
+/* Report "out of memory" and return its exit status (TWF_EXIT_INTERNAL):
+ * a command never stops without saying why. */
+int cli_out_of_memory(void);
 /* Print a usage error for the command and return TWF_EXIT_USAGE. */
 int cli_usage_error(const char *command, const char *fmt, ...)
     __attribute__((format(printf, 2, 3)));

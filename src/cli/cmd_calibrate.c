@@ -1351,7 +1351,7 @@ static int write_outputs(const calib_settings *s, calib_job *j)
   double *weights = fit_weights(j);
   int status;
   if (weights == NULL)
-    return TWF_EXIT_INTERNAL;
+    return cli_out_of_memory();
   j->root = run_json(s, j);
   residuals_of(j, weights, &rr);
   base_file_of(j, &bo);

@@ -451,7 +451,7 @@ static int read_models(const compare_settings *s, compare_job *j)
 }
 
 /* --payload must name a load of A or of B; when neither declares it, the
- * error lists A's payloads (the readers' warnings are not printed). */
+ * error lists A's payloads. */
 static int check_payload(const compare_settings *s, const compare_job *j)
 {
   long dummy;
@@ -492,20 +492,28 @@ static int make_configurations(const compare_settings *s, compare_job *j)
   }
   j->n_cfg = (size_t)s->count;
   j->q = malloc(j->n_cfg * (a->n_joints ? a->n_joints : 1) * sizeof *j->q);
-  if (j->q == NULL)
-    return TWF_EXIT_INTERNAL;
+  if (j->q == NULL) {
+    twf_error_set(&j->err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    return report_failure(j);
+  }
   for (c = 0; c < j->n_cfg; c++)
     twf_simulate_joints(a, 0.0, &state, j->q + c * a->n_joints);
   return 0;
 }
 
-/* Every input read and checked, then the readers' warnings printed (and
- * dropped: a later failure does not repeat them). */
+/* Every input read and checked; the readers' warnings printed as soon as
+ * their files are read (before an error about the options that follow:
+ * a warning such as URDF link options given for a model file may be its
+ * cause) and dropped, so that a later failure does not repeat them. */
 static int load_inputs(const compare_settings *s, compare_job *j)
 {
   int status;
-  if ((status = read_models(s, j)) != 0 || (status = check_payload(s, j)) != 0 ||
-      (status = take_tolerances(s, j)) != 0 || (status = make_configurations(s, j)) != 0)
+  if ((status = read_models(s, j)) != 0)
+    return status;
+  cli_print_warnings(&j->warnings);
+  twf_warnings_clear(&j->warnings);
+  if ((status = check_payload(s, j)) != 0 || (status = take_tolerances(s, j)) != 0 ||
+      (status = make_configurations(s, j)) != 0)
     return status;
   cli_print_warnings(&j->warnings);
   twf_warnings_clear(&j->warnings);
@@ -522,7 +530,7 @@ static int compare(const compare_settings *s, compare_job *j)
   }
   j->ldiff = malloc(5 * (j->a->n_joints + 2) * sizeof *j->ldiff);
   if (j->ldiff == NULL)
-    return TWF_EXIT_INTERNAL;
+    return cli_out_of_memory();
   if (twf_compare_links(j->a, j->b, s->full_pose, &j->links, j->ldiff, &j->err) != TWF_OK)
     return report_failure(j);
   return 0;

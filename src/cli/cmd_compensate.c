@@ -467,6 +467,14 @@ static int report_failure(const comp_settings *s, comp_job *j)
   return cli_report_error(&j->err);
 }
 
+/* Out of memory, said after the readers' warnings; returns the exit
+ * status. */
+static int report_nomem(const comp_settings *s, comp_job *j)
+{
+  twf_error_set(&j->err, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+  return report_failure(s, j);
+}
+
 /* NOMINAL (not with --cartesian) and ASBUILT, with the same joints. */
 static int read_models(const comp_settings *s, comp_job *j)
 {
@@ -494,7 +502,7 @@ static int read_input(const comp_settings *s, comp_job *j)
   } else {
     j->goal_model = with_flange_target(j->asbuilt);
     if (j->goal_model == NULL)
-      return TWF_EXIT_INTERNAL;
+      return report_nomem(s, j);
     j->input = twf_campaign_read(s->cartesian, j->goal_model, &s->copt, &j->warnings, &j->err);
   }
   if (j->input == NULL)
@@ -569,7 +577,7 @@ static int alloc_rows(const comp_settings *s, comp_job *j)
   j->n_rows = s->cartesian ? j->input->n_meas : j->input->n_poses;
   j->res = calloc(j->n_rows ? j->n_rows : 1, sizeof *j->res);
   j->qout = calloc((j->n_rows ? j->n_rows : 1) * j->asbuilt->n_joints, sizeof *j->qout);
-  return j->res == NULL || j->qout == NULL ? TWF_EXIT_INTERNAL : 0;
+  return j->res == NULL || j->qout == NULL ? report_nomem(s, j) : 0;
 }
 
 /* Each row of the program on the as-built arm; an error names the row's
@@ -637,7 +645,7 @@ static int solve_goals(const comp_settings *s, comp_job *j)
   twf_ik *w = twf_ik_alloc(j->asbuilt->n_joints);
   size_t r;
   if (w == NULL)
-    return TWF_EXIT_INTERNAL;
+    return report_nomem(s, j);
   for (r = 0; r < j->input->n_meas; r++)
     if (solve_goal_row(s, j, w, r) != TWF_OK) {
       twf_ik_free(w);

@@ -244,7 +244,7 @@ static int export_dh(const twf_model *m, const char *source, twf_dh_convention c
   if (rows == NULL || rigid == NULL) {
     free(rows);
     twf_model_free(rigid);
-    return TWF_EXIT_INTERNAL;
+    return cli_out_of_memory();
   }
   for (size_t k = 0; k < rigid->n_joints; k++)
     rigid->joints[k].compliance = 0.0;

@@ -59,6 +59,8 @@ enum {
 };
 
 #define MAX_BOXES 16
+/* Joints a keep-out box can bound (the room of its corners) */
+#define BOX_JOINTS_MAX 64
 
 /* "J=LO:HI,..." into a box (bounds in the joints' units). */
 static int parse_box(const twf_model *m, const cli_units *u, const char *text, double *lo, double *hi)
@@ -91,8 +93,8 @@ static int parse_box(const twf_model *m, const cli_units *u, const char *text, d
   return TWF_EXIT_OK;
 }
 
-static void print_plan(FILE *fp, const twf_plan_result *r, const twf_plan_options *o, const twf_model *m,
-                       const cli_units *u, const char (*names)[TWF_NAME_MAX])
+static void print_plan(FILE *fp, const twf_plan_result *r, const twf_plan_options *o, const cli_units *u,
+                       const char (*names)[TWF_NAME_MAX])
 {
   fprintf(fp, "plan: %zu poses chosen from %zu candidates, %zu satisfying the constraints", r->n, r->n_candidates,
           r->n_feasible);
@@ -125,7 +127,6 @@ static void print_plan(FILE *fp, const twf_plan_result *r, const twf_plan_option
                 "  are not in it\n");
   }
   fputc('\n', fp);
-  (void)m;
 }
 
 /* The --instrument options: one position (one station), or several, each
@@ -357,7 +358,7 @@ typedef struct plan_job {
   cli_units u;                       /* MODEL's */
   char station_names[TWF_STATIONS_MAX][TWF_NAME_MAX];
   double instruments[3 * TWF_STATIONS_MAX];
-  double box_lo[MAX_BOXES][64], box_hi[MAX_BOXES][64];
+  double box_lo[MAX_BOXES][BOX_JOINTS_MAX], box_hi[MAX_BOXES][BOX_JOINTS_MAX];
   twf_keepout boxes[MAX_BOXES];
   twf_campaign *pool;                /* the --pool file, or NULL */
   twf_plan_result *res;
@@ -396,8 +397,8 @@ static int read_model(plan_settings *s, plan_job *j)
   j->model = twf_model_read_with(s->model_path, &s->ropt, &j->warnings, NULL, &j->err);
   if (j->model == NULL)
     return report_failure(j);
-  if (j->model->n_joints > 64) /* the room of box_lo and box_hi */
-    return cli_usage_error("plan", "at most 64 joints");
+  if (j->model->n_joints > BOX_JOINTS_MAX) /* the room of box_lo and box_hi */
+    return cli_usage_error("plan", "at most %d joints", BOX_JOINTS_MAX);
   cli_units_of(&j->u, j->model);
   if ((status = pcli_measure_resolve(&s->me, "plan", j->model)) != 0)
     return status;
@@ -505,7 +506,7 @@ static void print_report(FILE *text, const plan_settings *s, const plan_job *j)
 {
   const twf_model *model = j->model;
   fprintf(text, "twistfit %s plan: %s, %zu joints\n", twf_version(), model->name, model->n_joints);
-  print_plan(text, j->res, &s->po, model, &j->u, (const char (*)[TWF_NAME_MAX])j->station_names);
+  print_plan(text, j->res, &s->po, &j->u, (const char (*)[TWF_NAME_MAX])j->station_names);
   pcli_print_assessment(text, j->res->assessment, model, &s->po.assess, &j->u);
   cli_print_warnings(&j->warnings);
 }

@@ -380,7 +380,7 @@ static int read_model(sim_settings *s, sim_job *j)
   if (s->targets_text != NULL) {
     j->mask = calloc(j->model->n_targets ? j->model->n_targets : 1, 1);
     if (j->mask == NULL)
-      return TWF_EXIT_INTERNAL;
+      return cli_out_of_memory();
     if ((status = pcli_parse_targets("simulate", j->model, s->targets_text, j->mask)) != 0)
       return status;
     s->so.targets = j->mask;
@@ -401,7 +401,7 @@ static int make_true_arm(const sim_settings *s, sim_job *j)
   }
   j->truth = twf_model_copy(j->model);
   if (j->truth == NULL)
-    return TWF_EXIT_INTERNAL;
+    return cli_out_of_memory();
   /* the errors are drawn from their own stream of the seed */
   twf_model_perturb(j->truth, &s->mag, s->so.seed ^ 0x6a09e667f3bcc909ULL);
   snprintf(note, sizeof note, "drawn by twistfit simulate, seed %llu", s->so.seed);
@@ -479,7 +479,7 @@ static int load_inputs(sim_settings *s, sim_job *j)
 static int alloc_pose_station(const sim_settings *s, sim_job *j)
 {
   j->pose_station = malloc((s->so.n_poses ? s->so.n_poses : 1) * sizeof *j->pose_station);
-  return j->pose_station == NULL ? TWF_EXIT_INTERNAL : 0;
+  return j->pose_station == NULL ? cli_out_of_memory() : 0;
 }
 
 /* The joints file names each pose's station (plan writes it): by name

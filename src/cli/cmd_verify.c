@@ -301,7 +301,7 @@ static int alloc_verify_arrays(verify_run *r)
   r->pos = calloc(3 * n_meas, sizeof *r->pos);
   r->rot = calloc(n_meas, sizeof *r->rot);
   if (r->offsets == NULL || r->pos == NULL || r->rot == NULL || r->excluded == NULL)
-    return TWF_EXIT_INTERNAL;
+    return cli_out_of_memory();
   twf_register_offsets_init(r->in.model, r->offsets);
   return TWF_EXIT_OK;
 }
@@ -628,12 +628,8 @@ static int write_verify_outputs(const verify_settings *s, const verify_run *r, j
     /* the registration's weight of each fit row: 0 for a gross error */
     size_t k;
     weights = malloc((r->in.campaign->n_meas ? r->in.campaign->n_meas : 1) * sizeof *weights);
-    if (weights == NULL) {
-      /* the file would lack its weight column: nothing rather than less */
-      twf_error e;
-      twf_error_set(&e, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
-      return cli_report_error(&e);
-    }
+    if (weights == NULL) /* the file would lack its weight column: nothing rather than less */
+      return cli_out_of_memory();
     for (k = 0; k < r->in.campaign->n_meas; k++)
       weights[k] = r->excluded[k] ? 0.0 : 1.0;
     rr.weights = weights;

@@ -57,6 +57,13 @@ static void print_location(FILE *fp, const char *file, long line, long column)
   }
 }
 
+int cli_out_of_memory(void)
+{
+  twf_error e;
+  twf_error_set(&e, TWF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+  return cli_report_error(&e);
+}
+
 int cli_report_error(const twf_error *err)
 {
   fputs("twistfit: error: ", stderr);

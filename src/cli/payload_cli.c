@@ -43,10 +43,8 @@ int cli_payload_apply(const char *command, twf_campaign *c, const char *path, lo
                     "'twistfit help %s'\n", command);
     return TWF_EXIT_USAGE;
   }
-  if (twf_campaign_payload_alloc(c) != TWF_OK) {
-    fprintf(stderr, "twistfit: error: out of memory\n");
-    return TWF_EXIT_INTERNAL;
-  }
+  if (twf_campaign_payload_alloc(c) != TWF_OK)
+    return cli_out_of_memory();
   for (k = 0; k < c->n_poses; k++)
     c->pose_payload[k] = index;
   return TWF_EXIT_OK;

@@ -177,7 +177,7 @@ int pcli_measure_resolve(pcli_measure *me, const char *command, const twf_model 
   if (me->targets != NULL) {
     me->target_mask = calloc(m->n_targets ? m->n_targets : 1, 1);
     if (me->target_mask == NULL)
-      return TWF_EXIT_INTERNAL;
+      return cli_out_of_memory();
     if ((st = pcli_parse_targets(command, m, me->targets, me->target_mask)) != 0)
       return st;
     me->opt.targets = me->target_mask;

@@ -7,7 +7,8 @@
  *   usage: bench_calibrate                     the table (N = 100 .. 100,000;
  *                                              1,000,000 too with BENCH_LARGE=1)
  *          bench_calibrate POSES [TARGETS [REPEATS [THREADS [ARM]]]]
- *                                              one case (ARM 6 or 7, default 7)
+ *                                              one case (ARM 6 or 7, default 7);
+ *                                              BENCH_TRACE=1 adds the solver's steps
  *
  * Every case runs in a child process, so that its peak resident memory
  * (getrusage) is its own. Wall time is the best of the repeats, CPU time

@@ -89,9 +89,15 @@ static void put_nums(FILE *out, const char *key, const double *si, size_t n,
 /* "key = text" for a text made by text_for_file. A ';' after a blank
  * starts an end comment, so a text that begins with ';' is written right
  * after the '=' ("name =;x"), where the reader takes it as the value. */
+/* "key = text", or "key=text" where the spaces would take the line past
+ * TWF_MODEL_LINE_MAX: the reader took a line "key =text" of that length,
+ * and the written model must read back. */
 static void put_text(FILE *out, const char *key, const char *text)
 {
-  fprintf(out, text[0] == ';' ? "%s =%s\n" : "%s = %s\n", key, text);
+  if (strlen(key) + 3 + strlen(text) > TWF_MODEL_LINE_MAX)
+    fprintf(out, "%s=%s\n", key, text);
+  else
+    fprintf(out, text[0] == ';' ? "%s =%s\n" : "%s = %s\n", key, text);
 }
 
 /* A text value as the reader will give it back, where possible: control
@@ -292,15 +298,16 @@ static twf_status write_check(const twf_model *m, twf_error *err)
     if (!twf_mf_name_chars_ok(k) || strlen(k) >= TWF_NAME_MAX)
       return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0, twf_mf_name_hint,
                            "metadata key '%s' is not valid", k);
-    /* "key = value": the line must fit the reader. */
-    if (strlen(k) + 3 + strlen(v) > TWF_MODEL_LINE_MAX) {
+    /* "key=value" at the shortest (put_text): the line must fit the
+     * reader. */
+    if (strlen(k) + 1 + strlen(v) > TWF_MODEL_LINE_MAX) {
       char *t = malloc(strlen(v) + 1);
       size_t len;
       if (t == NULL)
         return twf_error_set(err, TWF_ERR_NOMEM, NULL, 0, 0, NULL,
                              "out of memory");
       text_for_file(v, t);
-      len = strlen(k) + 3 + strlen(t);
+      len = strlen(k) + 1 + strlen(t);
       free(t);
       if (len > TWF_MODEL_LINE_MAX)
         return twf_error_set(err, TWF_ERR_INVALID, NULL, 0, 0,

@@ -54,6 +54,26 @@ static void problem(twf_lsq_problem *pr, const twf_model *m, const twf_campaign 
   pr->n_threads = 2;
 }
 
+/* (A1, g1, cost1) agrees with the full pass's (A2, g2, cost2) over nc
+ * columns to rounding: the cost to 1e-12, the entries against their
+ * columns' scales sqrt(A_aa A_bb) to 1e-12, the gradient against
+ * sqrt(A_aa 2 cost) (the solver's gradient test) to 1e-11. */
+static void assert_normal_agrees(size_t nc, const double *A1, const double *g1, double cost1, const double *A2,
+                                 const double *g2, double cost2)
+{
+  size_t a, b;
+  ck_assert_msg(fabs(cost1 - cost2) <= 1e-12 * cost2, "cost %.17g against %.17g", cost1, cost2);
+  for (a = 0; a < nc; a++) {
+    double ga = sqrt(A2[a * nc + a] * 2.0 * cost2);
+    ck_assert_msg(fabs(g1[a] - g2[a]) <= 1e-11 * ga, "g[%zu]: %.17g against %.17g", a, g1[a], g2[a]);
+    for (b = 0; b < nc; b++) {
+      double s = sqrt(A2[a * nc + a] * A2[b * nc + b]);
+      ck_assert_msg(fabs(A1[a * nc + b] - A2[a * nc + b]) <= 1e-12 * s, "A[%zu][%zu]: %.17g against %.17g", a,
+                    b, A1[a * nc + b], A2[a * nc + b]);
+    }
+  }
+}
+
 /* The screen's kind of change: a few rows dropped, one down-weighted, one
  * dropped and restored (two log entries that cancel). */
 static void change_weights(twf_lsq_problem *pr, const twf_campaign *c)
@@ -78,7 +98,7 @@ START_TEST(test_reweighted_normal_agrees_with_a_full_pass)
   unsigned char *use = malloc(c->n_meas);
   twf_lsq_problem pr, fresh;
   double *A0, *g0, *A1, *g1, *A2, *g2, cost0, cost1, cost2;
-  size_t i, p, nc = 0, *cols, a, b;
+  size_t i, p, nc = 0, *cols;
   for (i = 0; i < c->n_meas; i++)
     use[i] = c->meas[i].set == TWF_SET_FIT;
   problem(&pr, m, c, use, TWF_GROUPS_GEOMETRIC, &B);
@@ -105,18 +125,7 @@ START_TEST(test_reweighted_normal_agrees_with_a_full_pass)
   ck_assert_uint_eq(fresh.n_normal_passes, 1);
   /* the changes moved the matrix (the dropped rows are a few per cent) */
   ck_assert_msg(cost0 > 1.01 * cost2, "cost %g before, %g after dropping", cost0, cost2);
-  ck_assert_msg(fabs(cost1 - cost2) <= 1e-12 * cost2, "cost %.17g against %.17g", cost1, cost2);
-  for (a = 0; a < nc; a++) {
-    /* entries against their columns' scales: sqrt(A_aa A_bb), and for the
-     * gradient sqrt(A_aa 2 cost) (the solver's gradient test) */
-    double ga = sqrt(A2[a * nc + a] * 2.0 * cost2);
-    ck_assert_msg(fabs(g1[a] - g2[a]) <= 1e-11 * ga, "g[%zu]: %.17g against %.17g", a, g1[a], g2[a]);
-    for (b = 0; b < nc; b++) {
-      double s = sqrt(A2[a * nc + a] * A2[b * nc + b]);
-      ck_assert_msg(fabs(A1[a * nc + b] - A2[a * nc + b]) <= 1e-12 * s, "A[%zu][%zu]: %.17g against %.17g", a,
-                    b, A1[a * nc + b], A2[a * nc + b]);
-    }
-  }
+  assert_normal_agrees(nc, A1, g1, cost1, A2, g2, cost2);
   twf_lsq_free(&fresh);
   /* changes beyond the log's room: a full pass, a fresh problem's bits */
   for (i = 0; i < c->n_meas; i++)
@@ -149,7 +158,7 @@ START_TEST(test_factor_leaves_the_normal_matrix)
   unsigned char *use = malloc(c->n_meas);
   twf_lsq_problem pr, fresh;
   double *R, *A1, *g1, *A2, *g2, cost1, cost2;
-  size_t i, p, nf = 0, nc = 0, *fcols, *cols, a, b;
+  size_t i, p, nf = 0, nc = 0, *fcols, *cols;
   for (i = 0; i < c->n_meas; i++)
     use[i] = c->meas[i].set == TWF_SET_FIT;
   problem(&pr, m, c, use, TWF_GROUPS_GEOMETRIC, &B);
@@ -173,16 +182,7 @@ START_TEST(test_factor_leaves_the_normal_matrix)
   ck_assert_msg(pr.n_normal_passes == 0, "the factor's normal matrix was not used");
   cost2 = twf_lsq_normal(&fresh, cols, nc, A2, g2);
   ck_assert_uint_eq(fresh.n_normal_passes, 1);
-  ck_assert_msg(fabs(cost1 - cost2) <= 1e-12 * cost2, "cost %.17g against %.17g", cost1, cost2);
-  for (a = 0; a < nc; a++) {
-    double ga = sqrt(A2[a * nc + a] * 2.0 * cost2);
-    ck_assert_msg(fabs(g1[a] - g2[a]) <= 1e-11 * ga, "g[%zu]: %.17g against %.17g", a, g1[a], g2[a]);
-    for (b = 0; b < nc; b++) {
-      double s = sqrt(A2[a * nc + a] * A2[b * nc + b]);
-      ck_assert_msg(fabs(A1[a * nc + b] - A2[a * nc + b]) <= 1e-12 * s, "A[%zu][%zu]: %.17g against %.17g", a,
-                    b, A1[a * nc + b], A2[a * nc + b]);
-    }
-  }
+  assert_normal_agrees(nc, A1, g1, cost1, A2, g2, cost2);
   /* a column the factor did not have: a full pass */
   cols[nc - 1] = 2;
   twf_lsq_normal(&pr, cols, nc, A1, g1);

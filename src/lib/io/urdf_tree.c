@@ -495,12 +495,19 @@ twf_status twf_urdf_joint_axis(const urdf_tree *t, size_t j, double a[3], twf_wa
 {
   xmlNodePtr ax = twf_urdf_child(t->joints[j].node, "axis");
   twf_status st;
-  double len;
+  double len, scale, n, u[3];
   a[0] = 1; /* URDF's default axis */
   a[1] = a[2] = 0;
   if (ax != NULL && (st = numbers(t, ax, "xyz", a, 3, err)) != TWF_OK)
     return st;
-  len = twf_v3_norm(a);
+  /* the length of the axis scaled by its largest component first: an
+   * axis such as (1e308, 0, 2) would overflow the sum of squares and
+   * normalise to zero */
+  scale = fmax(fabs(a[0]), fmax(fabs(a[1]), fabs(a[2])));
+  for (int k = 0; k < 3; k++)
+    u[k] = scale > 0 ? a[k] / scale : 0.0;
+  n = twf_v3_norm(u); /* in [1, sqrt 3] for a nonzero axis */
+  len = scale * n;
   if (!(len > 1e-12))
     return twf_error_set(err, TWF_ERR_VALUE, t->path, twf_urdf_line(ax), 0,
                          "give the joint's axis direction", "joint %s has a zero axis",
@@ -509,6 +516,6 @@ twf_status twf_urdf_joint_axis(const urdf_tree *t, size_t j, double a[3], twf_wa
     twf_warnings_add(w, t->path, twf_urdf_line(ax), 0,
                      "axis of joint %s normalised (length %.9g)", t->joints[j].name, len);
   for (int k = 0; k < 3; k++)
-    a[k] /= len;
+    a[k] = u[k] / n;
   return TWF_OK;
 }
